@@ -1,0 +1,19 @@
+"""acidbase: checks and interprets blood-gas and electrolyte panels.
+
+Public API: ``Panel``, ``interpret``, ``interpret_many``, ``Interpretation``,
+``Finding``, ``Results``, ``Settings``, ``CAUTION`` and the errors.
+"""
+
+from .api import interpret, interpret_many
+from .errors import AcidBaseError, PanelError, Problem, UnitError
+from .model import Panel, describe
+from .reference import Settings
+from .results import CAUTION, Disorder, Finding, Interpretation, Results
+from .compensation import plane_bands
+
+__all__ = [
+    "CAUTION", "AcidBaseError", "Disorder", "Finding", "Interpretation", "Panel", "PanelError",
+    "Problem", "Results", "Settings", "UnitError", "describe", "interpret", "interpret_many",
+    "plane_bands",
+]
+__version__ = "0.1.0"

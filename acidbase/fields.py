@@ -1,0 +1,121 @@
+"""The panel's fields: names, units, LOINC codes and ranges, declared once.
+
+Two ranges per numeric field, both in the field's canonical unit:
+
+* ``accepted`` -- outside it the value is refused.  It is set wide enough to admit
+  every value a living patient can present, and narrow enough that a value typed
+  in the wrong unit falls outside it (pCO2 5.3 "mm[Hg]", albumin 38 "g/dL",
+  glucose 6 "mg/dL").  Where an analyser's measuring range is narrower, the
+  analyser refuses first.  Design choice, documented in docs/methods.md
+  ("Accepted ranges"), informed by the plausibility limits in the same file.
+* ``physiologic`` -- outside it the value is accepted but flagged as extreme
+  (rule ``TRUST-EXTREME-VALUE``), to be verified before acting on it.
+
+Reference intervals (what is "normal") live in ``acidbase.reference``, because
+they depend on the sample type.
+
+LOINC codes are those of the terms we read as headers in batch files; they were
+checked against the interoperability notes gathered for the project and must
+be re-checked against a LOINC release file before they are relied on for
+anything but column matching.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from . import units as _units
+
+
+@dataclass(frozen=True)
+class FieldSpec:
+    name: str
+    """API, CLI (``--name``) and file column name."""
+    title: str
+    """The trade's name, as printed on a report."""
+    kind: str
+    """Kind of quantity: a key of ``acidbase.units.FACTORS``."""
+    accepted: tuple[float, float]
+    """Canonical unit; outside this range the value is refused."""
+    physiologic: tuple[float, float]
+    """Canonical unit; outside this range the value is flagged as extreme."""
+    required: bool = False
+    loinc: tuple[str, ...] = ()
+    help: str = ""
+
+    @property
+    def unit(self) -> str:
+        """Canonical unit (UCUM)."""
+        return _units.canonical_unit(self.kind)
+
+    @property
+    def units(self) -> tuple[str, ...]:
+        """Units accepted for this field (UCUM), canonical first."""
+        return tuple(_units.FACTORS[self.kind])
+
+
+# Order: the order a blood-gas report prints, then chemistry, then context.
+NUMERIC: tuple[FieldSpec, ...] = (
+    FieldSpec("ph", "pH", "ph", (6.5, 8.0), (6.8, 7.8), True,
+              ("2744-1", "2746-6", "2745-8", "11558-4"),
+              "pH of the sample at 37 degC as measured by the analyser."),
+    FieldSpec("pco2", "pCO2", "pressure", (8.0, 200.0), (10.0, 150.0), True,
+              ("2019-8", "2021-4", "11557-6"),
+              "Partial pressure of carbon dioxide at 37 degC."),
+    FieldSpec("hco3", "HCO3-", "electrolyte", (2.0, 60.0), (4.0, 50.0), True,
+              ("1960-4", "14627-4", "1959-6", "1963-8", "2028-9"),
+              "Bicarbonate: the analyser's calculated value, or a chemistry total CO2 "
+              "(say which with hco3_source)."),
+    FieldSpec("na", "Na+", "electrolyte", (80.0, 200.0), (110.0, 170.0), True,
+              ("2951-2", "2947-0", "32717-1", "39791-9"), "Sodium."),
+    FieldSpec("cl", "Cl-", "electrolyte", (50.0, 160.0), (70.0, 135.0), True,
+              ("2075-0", "41650-3", "2069-3"), "Chloride."),
+    FieldSpec("k", "K+", "electrolyte", (0.5, 15.0), (1.5, 8.0), False,
+              ("2823-3", "6298-4", "32713-0", "39789-3"), "Potassium."),
+    FieldSpec("albumin", "Albumin", "albumin", (3.0, 80.0), (10.0, 60.0), False,
+              ("1751-7",), "Serum or plasma albumin."),
+    FieldSpec("lactate", "Lactate", "electrolyte", (0.0, 40.0), (0.0, 25.0), False,
+              ("2524-7", "32693-4", "2518-9", "2519-7"), "Lactate."),
+    FieldSpec("glucose", "Glucose", "glucose", (0.6, 111.0), (1.5, 60.0), False,
+              ("2345-7", "14749-6", "2339-0", "15074-8"), "Glucose."),
+    FieldSpec("urea", "Urea", "urea", (0.3, 100.0), (0.5, 80.0), False,
+              ("22664-7",), "Urea (not urea nitrogen; for urea nitrogen use bun)."),
+    FieldSpec("bun", "Urea nitrogen (BUN)", "bun", (0.8, 280.0), (1.4, 224.0), False,
+              ("3094-0", "14937-7", "6299-2"), "Urea nitrogen (BUN); give urea or BUN, not both."),
+    FieldSpec("osmolality", "Osmolality", "osmolality", (150.0, 500.0), (230.0, 400.0), False,
+              ("2692-2",), "Measured serum osmolality (freezing point)."),
+    FieldSpec("ica", "Ionised Ca2+", "electrolyte", (0.2, 4.0), (0.5, 2.5), False,
+              ("1994-3",), "Ionised calcium."),
+    FieldSpec("mg", "Mg2+", "electrolyte", (0.1, 5.0), (0.3, 3.0), False,
+              ("19123-9",), "Magnesium (total), used as an approximation in the apparent SID."),
+    FieldSpec("phosphate", "Phosphate", "phosphate", (0.1, 6.0), (0.2, 4.0), False,
+              ("2777-1",), "Inorganic phosphate."),
+    FieldSpec("hb", "Haemoglobin", "haemoglobin", (2.0, 25.0), (4.0, 22.0), False,
+              ("718-7",), "Total haemoglobin."),
+    FieldSpec("po2", "pO2", "pressure", (5.0, 800.0), (20.0, 700.0), False,
+              ("2703-7", "2705-2", "11556-8"), "Partial pressure of oxygen at 37 degC."),
+    FieldSpec("fio2", "FiO2", "fraction", (0.16, 1.0), (0.21, 1.0), False,
+              ("3150-0",), "Inspired oxygen fraction (0.21-1.0, or 21-100 with unit %)."),
+    FieldSpec("pb", "Barometric pressure", "pressure", (350.0, 800.0), (450.0, 800.0), False,
+              (), "Barometric pressure; 760 mm[Hg] is assumed when not given."),
+    FieldSpec("temperature", "Patient temperature", "temperature", (25.0, 45.0), (30.0, 42.0),
+              False, ("8310-5",), "Patient temperature in degC."),
+    FieldSpec("age", "Age", "age", (0.0, 120.0), (0.0, 120.0), False, ("30525-0",),
+              "Age in years."),
+)
+
+BY_NAME: dict[str, FieldSpec] = {f.name: f for f in NUMERIC}
+REQUIRED: tuple[str, ...] = tuple(f.name for f in NUMERIC if f.required)
+
+#: LOINC codes above that are from memory, not from the checked notes (verify
+#: against a LOINC release before relying on them).
+LOINC_FROM_MEMORY: frozenset[str] = frozenset(
+    {"1994-3", "19123-9", "2777-1", "8310-5", "30525-0", "2746-6", "11558-4", "2021-4",
+     "2705-2", "11556-8", "2069-3", "22664-7", "3150-0", "2519-7", "32693-4"}
+)
+
+SAMPLE_TYPES: tuple[str, ...] = ("arterial", "venous", "capillary", "unknown")
+HCO3_SOURCES: tuple[str, ...] = ("analyser", "chemistry", "unknown")
+
+#: Text fields carried with a panel; they do not enter the chemistry.
+TEXT_FIELDS: tuple[str, ...] = ("sample_id", "patient_id", "collected_at")

@@ -1,0 +1,365 @@
+"""The input boundary: a validated panel, and the same checks over columns.
+
+Ranges and units come from ``acidbase.fields`` (declared once).  Two gates share
+one check:
+
+* ``Panel`` (pydantic v2) for one panel: every problem is collected into one
+  ``pydantic.ValidationError``, each located at its field; a cross-field problem
+  has an empty location and belongs to the panel as a whole.
+* ``screen`` for columns of many panels (the batch path): the same range check
+  over numpy arrays, returning the refused rows and their reasons instead of
+  raising, so a file never loses a row.
+
+A value outside its accepted range is refused, never converted.  When the same
+number would be ordinary in another unit of the field, the message says so.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any, Literal
+
+import numpy as np
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    ValidationError,
+    ValidationInfo,
+    create_model,
+    field_validator,
+    model_validator,
+)
+from pydantic_core import PydanticCustomError
+
+from . import units as _units
+from .errors import Problem, UnitError
+from .fields import BY_NAME, HCO3_SOURCES, NUMERIC, REQUIRED, SAMPLE_TYPES, TEXT_FIELDS, FieldSpec
+
+# ---------------------------------------------------------------------------
+# The one range check, over arrays
+
+
+def _hint(spec: FieldSpec, values: np.ndarray, unit: str) -> np.ndarray:
+    """For each value, the other unit in which it would be accepted (or "")."""
+    hints = np.full(values.shape, "", dtype=object)
+    lo, hi = spec.accepted
+    given = _units.normalise(unit)
+    for other, f in _units.FACTORS[spec.kind].items():
+        if other == given:
+            continue
+        fits = (values * f >= lo) & (values * f <= hi) & (hints == "")
+        hints[fits] = (
+            f"{spec.title} would be ordinary at this value in {other}: if that is the unit, "
+            f"state it ({spec.name} unit {other}); the value was not converted"
+        )
+    return hints
+
+
+def range_problems(spec: FieldSpec, raw: np.ndarray, unit: str) -> tuple[np.ndarray, np.ndarray]:
+    """Check values of one field given in ``unit``.
+
+    Returns ``(canonical, bad)``: the values in the canonical unit, and a mask of
+    refused values (not finite, or outside the accepted range).  NaN is
+    "not measured" and is not refused here.
+    """
+    f = _units.factor(spec.name, spec.kind, unit)
+    canonical = raw * f
+    lo, hi = spec.accepted
+    with np.errstate(invalid="ignore"):
+        bad = np.isinf(raw) | (canonical < lo) | (canonical > hi)
+    return canonical, bad
+
+
+def describe_value(spec: FieldSpec, value: float, unit: str) -> Problem:
+    """The Problem for one refused value (message built in one place)."""
+    code = _units.normalise(unit)
+    f = _units.factor(spec.name, spec.kind, unit)
+    if not np.isfinite(value):
+        return Problem(spec.name, spec.title, value, code, kind="not_a_number")
+    lo, hi = spec.accepted
+    hint = str(_hint(spec, np.array([value]), unit)[0])
+    return Problem(spec.name, spec.title, float(value), code, (lo / f, hi / f), hint)
+
+
+@dataclass
+class Screened:
+    """Columns after the boundary: canonical units, refused rows marked."""
+
+    n: int
+    values: dict[str, np.ndarray]
+    """Numeric fields in canonical units; NaN where not measured or refused."""
+    sample_type: np.ndarray
+    """int8 codes: index into ``SAMPLE_TYPES``."""
+    hco3_source: np.ndarray
+    """int8 codes: index into ``HCO3_SOURCES``."""
+    refused: np.ndarray
+    """Boolean mask of refused rows."""
+    reasons: np.ndarray
+    """Object array: "" for accepted rows, the problems joined by "; " otherwise."""
+    problems: dict[int, list[Problem]]
+    """Refused row index -> its problems."""
+
+
+def _as_float(name: str, raw: Any, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """A float64 column and a mask of cells that are not numbers at all."""
+    if raw is None:
+        return np.full(n, np.nan), np.zeros(n, dtype=bool)
+    arr = np.asarray(raw)
+    if arr.ndim == 0:
+        arr = np.full(n, arr.item())
+    if arr.dtype.kind in "fiu":
+        return arr.astype(np.float64, copy=False), np.zeros(n, dtype=bool)
+    if arr.dtype.kind == "b":
+        return np.full(n, np.nan), np.ones(n, dtype=bool)
+    out = np.full(n, np.nan)
+    bad = np.zeros(n, dtype=bool)
+    for i, cell in enumerate(arr.tolist()):
+        if cell is None or (isinstance(cell, str) and cell.strip() == ""):
+            continue
+        if isinstance(cell, bool):
+            bad[i] = True
+            continue
+        try:
+            out[i] = float(cell)
+        except (TypeError, ValueError):
+            bad[i] = True
+    return out, bad
+
+
+def _choice(raw: Any, n: int, allowed: tuple[str, ...], default: str) -> tuple[np.ndarray, np.ndarray]:
+    """Codes (int8 index into ``allowed``) for a text column, and a mask of bad cells.
+
+    Accepts strings (any case, surrounding spaces) or integer codes already
+    encoded.  Empty cells take the default.  Vectorised over unique values, so a
+    column of millions costs one sort.
+    """
+    default_code = allowed.index(default)
+    if raw is None:
+        return np.full(n, default_code, dtype=np.int8), np.zeros(n, dtype=bool)
+    arr = np.asarray(raw)
+    if arr.ndim == 0:
+        arr = np.full(n, arr.item(), dtype=object)
+    if arr.dtype.kind in "iu":
+        bad = (arr < 0) | (arr >= len(allowed))
+        return np.where(bad, default_code, arr).astype(np.int8), bad
+    uniques, inverse = np.unique(arr.astype(object).astype(str), return_inverse=True)
+    codes = np.empty(len(uniques), dtype=np.int8)
+    bad_unique = np.zeros(len(uniques), dtype=bool)
+    for j, cell in enumerate(uniques.tolist()):
+        text = cell.strip().lower()
+        if text in ("", "none", "nan"):
+            codes[j] = default_code
+        elif text in allowed:
+            codes[j] = allowed.index(text)
+        else:
+            codes[j] = default_code
+            bad_unique[j] = True
+    return codes[inverse.reshape(-1)], bad_unique[inverse.reshape(-1)]
+
+
+def column_length(columns: Mapping[str, Any]) -> int:
+    for value in columns.values():
+        arr = np.asarray(value, dtype=object) if not isinstance(value, np.ndarray) else value
+        if arr.ndim:
+            return int(arr.shape[0])
+    return 1
+
+
+def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None) -> Screened:
+    """Apply the boundary checks to columns of panels.
+
+    ``columns`` maps field names to arrays (floats, NaN or None for not measured;
+    strings for ``sample_type`` and ``hco3_source``).  ``units`` maps field names
+    to unit labels; a field not named is in its canonical unit.  An unknown unit
+    raises ``UnitError`` (it concerns the whole column, not a row).
+    """
+    units = dict(units or {})
+    unknown = set(units) - set(BY_NAME)
+    if unknown:
+        raise UnitError(field=", ".join(sorted(unknown)), unit="(any)", accepted=tuple(BY_NAME))
+    n = column_length(columns)
+    refused = np.zeros(n, dtype=bool)
+    problems: dict[int, list[Problem]] = {}
+
+    def add(rows: np.ndarray, make) -> None:
+        for i in np.flatnonzero(rows).tolist():
+            problems.setdefault(i, []).append(make(i))
+
+    values: dict[str, np.ndarray] = {}
+    for spec in NUMERIC:
+        unit = units.get(spec.name, spec.unit)
+        _units.factor(spec.name, spec.kind, unit)  # an unknown unit fails the whole column
+        if columns.get(spec.name) is None and not spec.required:
+            values[spec.name] = np.full(n, np.nan)
+            continue
+        raw, not_number = _as_float(spec.name, columns.get(spec.name), n)
+        canonical, bad = range_problems(spec, raw, unit)
+        code = _units.normalise(unit)
+        add(not_number, lambda i, s=spec, c=code, r=columns.get(spec.name): Problem(
+            s.name, s.title, np.asarray(r, dtype=object).reshape(-1)[i] if np.ndim(r) else r,
+            c, kind="not_a_number"))
+        add(bad, lambda i, s=spec, r=raw, u=unit: describe_value(s, float(r[i]), u))
+        if spec.required:
+            missing = np.isnan(raw) & ~not_number
+            add(missing, lambda i, s=spec, c=code: Problem(s.name, s.title, None, c, kind="missing"))
+            bad = bad | missing
+        refused |= bad | not_number
+        values[spec.name] = canonical
+
+    both = ~np.isnan(values["urea"]) & ~np.isnan(values["bun"])
+    add(both, lambda i: Problem("urea", "Urea", "urea and bun", "", kind=(
+        "give urea or urea nitrogen (bun), not both")))
+    refused |= both
+
+    sample_type, bad_st = _choice(columns.get("sample_type"), n, SAMPLE_TYPES, "unknown")
+    add(bad_st, lambda i: Problem("sample_type", "Sample type",
+        np.asarray(columns["sample_type"], dtype=object).reshape(-1)[i], "",
+        kind=f"not one of {', '.join(SAMPLE_TYPES)}"))
+    hco3_source, bad_src = _choice(columns.get("hco3_source"), n, HCO3_SOURCES, "unknown")
+    add(bad_src, lambda i: Problem("hco3_source", "HCO3- source",
+        np.asarray(columns["hco3_source"], dtype=object).reshape(-1)[i], "",
+        kind=f"not one of {', '.join(HCO3_SOURCES)}"))
+    refused |= bad_st | bad_src
+
+    if refused.any():
+        for name in values:
+            values[name] = np.where(refused, np.nan, values[name])
+    reasons = np.full(n, "", dtype=object)
+    for i, plist in problems.items():
+        reasons[i] = "; ".join(str(p) for p in plist)
+    return Screened(n, values, sample_type, hco3_source, refused, reasons, problems)
+
+
+# ---------------------------------------------------------------------------
+# The single-panel model (pydantic v2)
+
+
+class _PanelBase(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+    @model_validator(mode="after")
+    def _urea_or_bun(self) -> _PanelBase:
+        if getattr(self, "urea") is not None and getattr(self, "bun") is not None:
+            raise PydanticCustomError(
+                "urea_and_bun", "give urea or urea nitrogen (bun), not both"
+            )
+        return self
+
+    def columns(self) -> tuple[dict[str, np.ndarray], dict[str, str]]:
+        """This panel as columns of length one, with its units (a batch of one)."""
+        cols: dict[str, Any] = {}
+        for spec in NUMERIC:
+            v = getattr(self, spec.name)
+            cols[spec.name] = np.array([np.nan if v is None else v], dtype=np.float64)
+        cols["sample_type"] = np.array([self.sample_type], dtype=object)
+        cols["hco3_source"] = np.array([self.hco3_source], dtype=object)
+        unit_map = {s.name: getattr(self, f"{s.name}_unit") for s in NUMERIC}
+        return cols, unit_map
+
+    def canonical(self) -> dict[str, float | None]:
+        """Numeric fields in canonical units (None where not measured)."""
+        out: dict[str, float | None] = {}
+        for spec in NUMERIC:
+            v = getattr(self, spec.name)
+            if v is None:
+                out[spec.name] = None
+            else:
+                out[spec.name] = v * _units.factor(spec.name, spec.kind, getattr(self, f"{spec.name}_unit"))
+        return out
+
+
+def _unit_validator(spec: FieldSpec):
+    def check(cls, value: str) -> str:
+        code = _units.normalise(value)
+        if code not in spec.units:
+            raise PydanticCustomError(
+                "unit_not_accepted",
+                "unit '{unit}' is not accepted for {title}; use one of {accepted}",
+                {"unit": value, "title": spec.title, "accepted": ", ".join(spec.units)},
+            )
+        return code
+    return field_validator(f"{spec.name}_unit")(check)
+
+
+def _value_validator(spec: FieldSpec):
+    def check(cls, value: float | None, info: ValidationInfo) -> float | None:
+        if value is None:
+            return None
+        unit = info.data.get(f"{spec.name}_unit")
+        if unit is None:  # the unit itself was refused; that error says enough
+            return value
+        raw = np.array([value], dtype=np.float64)
+        _, bad = range_problems(spec, raw, unit)
+        if bad[0]:
+            p = describe_value(spec, value, unit)
+            raise PydanticCustomError(
+                "outside_accepted_range", str(p),
+                {"field": spec.name, "value": value, "unit": p.unit,
+                 "low": p.allowed[0] if p.allowed else None,
+                 "high": p.allowed[1] if p.allowed else None, "hint": p.hint},
+            )
+        return value
+    return field_validator(spec.name)(check)
+
+
+def _build_panel() -> type[_PanelBase]:
+    definitions: dict[str, Any] = {}
+    validators: dict[str, Any] = {}
+    # Units first: a value's validator reads its unit from the fields already validated.
+    for spec in NUMERIC:
+        definitions[f"{spec.name}_unit"] = (
+            str, Field(default=spec.unit, description=f"Unit of {spec.title}: {', '.join(spec.units)}"))
+        validators[f"_check_{spec.name}_unit"] = _unit_validator(spec)
+    definitions["sample_type"] = (
+        Literal[SAMPLE_TYPES], Field(default="unknown", description="Sample type."))
+    definitions["hco3_source"] = (
+        Literal[HCO3_SOURCES],
+        Field(default="unknown", description=(
+            "Where HCO3- comes from: 'analyser' (calculated by the blood-gas analyser "
+            "from its pH and pCO2) or 'chemistry' (measured total CO2).")))
+    for name in TEXT_FIELDS:
+        definitions[name] = (str | None, Field(default=None, max_length=200))
+    for spec in NUMERIC:
+        annotation = float if spec.required else float | None
+        default = ... if spec.required else None
+        definitions[spec.name] = (
+            annotation, Field(default=default, title=spec.title, description=spec.help,
+                              allow_inf_nan=False, json_schema_extra={
+                                  "accepted": spec.accepted, "unit": spec.unit,
+                                  "loinc": list(spec.loinc)}))
+        validators[f"_check_{spec.name}"] = _value_validator(spec)
+    return create_model("Panel", __base__=_PanelBase, __validators__=validators, **definitions)
+
+
+Panel = _build_panel()
+Panel.__doc__ = """One blood-gas and electrolyte panel, validated.
+
+Required: ph, pco2, hco3, na, cl.  Every numeric field has a ``<name>_unit``
+(UCUM) defaulting to its canonical unit; see ``acidbase.fields`` for the ranges.
+Construct with keywords or ``Panel.model_validate(mapping)``; invalid input
+raises ``pydantic.ValidationError`` with every problem.
+"""
+
+
+def describe(error: ValidationError) -> list[str]:
+    """Readable lines for a ValidationError from ``Panel`` (field first)."""
+    lines = []
+    for e in error.errors(include_url=False):
+        loc = ".".join(str(x) for x in e["loc"])
+        field = loc or "panel"
+        spec = BY_NAME.get(loc)
+        msg = e["msg"]
+        if e["type"] == "outside_accepted_range":
+            lines.append(msg)
+            continue
+        if spec is not None:
+            value = e.get("input")
+            lines.append(f"{spec.title} ({field}) {value!r}: {msg}")
+        else:
+            lines.append(f"{field}: {msg}")
+    return lines
+
+
+__all__ = ["Panel", "Screened", "screen", "describe", "REQUIRED"]

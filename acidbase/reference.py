@@ -1,0 +1,99 @@
+"""Reference intervals and the settings a laboratory may change.
+
+Intervals for pH, pCO2 and HCO3 depend on the sample type; the anion-gap
+interval depends on the analyser (Winter et al. 1990; Rastegar 2007), so it is a
+setting.  Every number names its source key (``acidbase.references``).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .fields import SAMPLE_TYPES
+
+
+@dataclass(frozen=True)
+class Interval:
+    low: float
+    high: float
+    source: tuple[str, ...]
+
+
+# Arterial blood, adults: pH 7.35-7.45, pCO2 35-45 mm[Hg], HCO3 22-26 mmol/L are
+# the textbook intervals that the compensation rules are anchored to
+# (reference point pCO2 40, HCO3 24) [narins_emmett_1980, berend_2014].
+# SBE -3.0 to +2.8 mmol/L [klaestrup_2011].
+#
+# Venous blood: the arterial intervals shifted by the weighted mean
+# arterial-venous differences of Kelly 2010 (pH -0.035, pCO2 +5.7 mm[Hg],
+# HCO3 +1.41 mmol/L) and rounded outward [kelly_2010, acidbase_design].
+#
+# Capillary (arterialised) and unknown samples use the arterial intervals;
+# an unknown sample is never read for oxygenation [aarc_2013].
+INTERVALS: dict[str, dict[str, Interval]] = {
+    "arterial": {
+        "ph": Interval(7.35, 7.45, ("narins_emmett_1980", "berend_2014")),
+        "pco2": Interval(35.0, 45.0, ("narins_emmett_1980", "berend_2014")),
+        "hco3": Interval(22.0, 26.0, ("narins_emmett_1980", "berend_2014")),
+        "sbe": Interval(-3.0, 2.8, ("klaestrup_2011",)),
+    },
+    "venous": {
+        "ph": Interval(7.31, 7.42, ("kelly_2010", "acidbase_design")),
+        "pco2": Interval(40.0, 51.0, ("kelly_2010", "acidbase_design")),
+        "hco3": Interval(23.0, 28.0, ("kelly_2010", "acidbase_design")),
+        "sbe": Interval(-3.0, 2.8, ("klaestrup_2011", "kelly_2010")),
+    },
+}
+INTERVALS["capillary"] = INTERVALS["arterial"]
+INTERVALS["unknown"] = INTERVALS["arterial"]
+
+#: Lactate upper reference limit, arterial, mmol/L [klaestrup_2011].
+LACTATE_HIGH = 2.5
+
+
+@dataclass(frozen=True)
+class Settings:
+    """Choices a laboratory makes for its own analysers and population.
+
+    Defaults are documented in docs/methods.md with their sources.
+    """
+
+    anion_gap_low: float = 6.0
+    """Lower reference limit of the anion gap without K+ (blood-gas analyser) [klaestrup_2011]."""
+    anion_gap_high: float = 12.0
+    """Upper reference limit of the anion gap without K+ [klaestrup_2011]."""
+    anion_gap_k_low: float = 10.0
+    """Lower limit of the anion gap with K+ [klaestrup_2011]."""
+    anion_gap_k_high: float = 16.0
+    """Upper limit of the anion gap with K+ [klaestrup_2011]."""
+    anion_gap_uses_k: bool = False
+    """Judge the gap with K+ included (needs K+); the default leaves K+ out."""
+    reference_albumin_g_l: float = 44.0
+    """Albumin to which the gap is corrected, g/L [figge_1998]."""
+    large_anion_gap: float = 20.0
+    """A corrected gap at or above this signals metabolic acidosis whatever the pH and HCO3 [gabow_1980]."""
+    osmolal_gap_high: float = 10.0
+    """Osmolal gap above this is raised, mosm/kg (common practice) [lynd_2008]."""
+    strong_ion_gap_high: float = 8.0
+    """Strong ion gap above this suggests unmeasured anions, mmol/L [plos_2013]."""
+
+    @property
+    def gap_interval(self) -> tuple[float, float]:
+        if self.anion_gap_uses_k:
+            return self.anion_gap_k_low, self.anion_gap_k_high
+        return self.anion_gap_low, self.anion_gap_high
+
+    @property
+    def gap_normal(self) -> float:
+        """The gap taken as 'normal' for the delta ratio: the interval's midpoint."""
+        lo, hi = self.gap_interval
+        return (lo + hi) / 2.0
+
+
+def interval_columns(sample_type: np.ndarray, name: str) -> tuple[np.ndarray, np.ndarray]:
+    """Per-row low and high limits of one quantity, from sample-type codes."""
+    low = np.array([INTERVALS[kind][name].low for kind in SAMPLE_TYPES])
+    high = np.array([INTERVALS[kind][name].high for kind in SAMPLE_TYPES])
+    return low[sample_type], high[sample_type]

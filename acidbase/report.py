@@ -1,0 +1,152 @@
+"""Rendering an Interpretation: a plain-text report, Markdown, and the JSON document.
+
+Every rendering starts with the caution.  Severity is always written as a word
+("critical", "caution", "info"), never carried by colour alone.
+"""
+
+from __future__ import annotations
+
+import textwrap
+from typing import TYPE_CHECKING, Any
+
+from .fields import BY_NAME
+
+if TYPE_CHECKING:
+    from .results import Interpretation
+
+SCHEMA = "acidbase.interpretation/1"
+
+QUESTIONS = {
+    "trust": "1. Can these numbers be trusted?",
+    "process": "2. Which acid-base processes are present?",
+    "detail": "3. What follows: derived values",
+}
+
+#: Labels of derived values for the text report (key, label, unit, format).
+DERIVED_LABELS: tuple[tuple[str, str, str, str], ...] = (
+    ("hco3_calculated", "HCO3- calculated (Henderson-Hasselbalch)", "mmol/L", ".1f"),
+    ("h_nmol_per_l", "[H+]", "nmol/L", ".1f"),
+    ("total_co2_calculated", "Total CO2 calculated", "mmol/L", ".1f"),
+    ("anion_gap", "Anion gap (without K+)", "mmol/L", ".1f"),
+    ("anion_gap_k", "Anion gap (with K+)", "mmol/L", ".1f"),
+    ("anion_gap_corrected", "Anion gap, albumin-corrected", "mmol/L", ".1f"),
+    ("delta_ratio", "Delta ratio", "", ".2f"),
+    ("delta_gap", "Delta gap", "mmol/L", "+.1f"),
+    ("standard_base_excess", "Standard base excess", "mmol/L", "+.1f"),
+    ("expected_pco2_low", "Expected pCO2, low", "mm[Hg]", ".1f"),
+    ("expected_pco2_high", "Expected pCO2, high", "mm[Hg]", ".1f"),
+    ("sid_apparent", "Strong ion difference, apparent", "mEq/L", ".1f"),
+    ("sid_effective", "Strong ion difference, effective", "mEq/L", ".1f"),
+    ("strong_ion_gap", "Strong ion gap", "mEq/L", ".1f"),
+    ("osmolality_calculated", "Osmolality, calculated", "mosm/kg", ".0f"),
+    ("osmolal_gap", "Osmolal gap", "mosm/kg", ".0f"),
+    ("alveolar_po2", "Alveolar pO2", "mm[Hg]", ".0f"),
+    ("aa_gradient", "A-a gradient", "mm[Hg]", ".0f"),
+    ("aa_expected", "A-a gradient, age-expected upper", "mm[Hg]", ".0f"),
+    ("pf_ratio", "PaO2/FiO2", "mm[Hg]", ".0f"),
+)
+
+
+def as_json_dict(it: Interpretation) -> dict[str, Any]:
+    """The ``check --json`` document."""
+    return {
+        "schema": SCHEMA,
+        "caution": it.caution,
+        "status": it.status,
+        "problems": list(it.problems),
+        "sample_type": it.sample_type,
+        "hco3_source": it.hco3_source,
+        "inputs": it.inputs,
+        "consistency": it.consistency.as_dict() if it.consistency else
+        {"status": "not assessable"},
+        "disorders": [d.as_dict() for d in it.disorders],
+        "derived": dict(it.derived),
+        "findings": [f.as_dict() for f in it.findings],
+        "settings": it.settings,
+    }
+
+
+def _wrap(text: str, indent: str, width: int = 88) -> list[str]:
+    return textwrap.wrap(text, width=width, initial_indent=indent, subsequent_indent=indent) or [indent]
+
+
+def as_text(it: Interpretation, width: int = 88, working: bool = True) -> str:
+    """A readable report: caution, the three questions in order, then sources."""
+    lines: list[str] = []
+    lines += _wrap(it.caution, "", width)
+    lines.append("")
+    if it.status == "refused":
+        lines.append("Panel refused; nothing was interpreted:")
+        for p in it.problems:
+            lines += _wrap(p, "  - ", width)
+        return "\n".join(lines) + "\n"
+    lines.append(f"Sample: {it.sample_type}; HCO3- source: {it.hco3_source}")
+    shown = []
+    for name, item in it.inputs.items():
+        spec = BY_NAME[name]
+        shown.append(f"{spec.title} {item['value']:.4g} {item['unit']}")
+    lines += _wrap("Inputs (canonical units): " + ", ".join(shown), "", width)
+    cited: dict[str, Any] = {}
+    for section, heading in QUESTIONS.items():
+        lines.append("")
+        lines.append(heading)
+        if section == "process":
+            labels = "; ".join(d.label() for d in it.disorders) or "none"
+            lines += _wrap(f"Disorders: {labels}", "  ", width)
+        if section == "detail":
+            for key, label, unit, fmt in DERIVED_LABELS:
+                value = it.derived.get(key)
+                if value is not None:
+                    lines.append(f"  {label:<44} {format(value, fmt):>8} {unit}")
+        for f in it.in_section(section):
+            lines += _wrap(f"[{f.severity}] {f.code}: {f.text}", "  ", width)
+            if working:
+                lines += _wrap(f"working: {f.working}", "      ", width)
+            lines += _wrap("source: " + "; ".join(c.short() for c in f.citations), "      ", width)
+            for c in f.citations:
+                cited[c.key] = c
+    lines.append("")
+    lines.append("Sources")
+    for c in cited.values():
+        lines += _wrap(c.full(), "  - ", width)
+    lines.append("")
+    lines += _wrap(it.caution, "", width)
+    return "\n".join(lines) + "\n"
+
+
+def as_markdown(it: Interpretation) -> str:
+    """The same report as Markdown (for saving from the terminal app)."""
+    out = [f"> {it.caution}", ""]
+    if it.status == "refused":
+        out.append("**Panel refused.**")
+        out += [f"- {p}" for p in it.problems]
+        return "\n".join(out) + "\n"
+    out.append(f"Sample: {it.sample_type}; HCO3- source: {it.hco3_source}")
+    out.append("")
+    out.append("| Input | Value | Unit |")
+    out.append("|---|---|---|")
+    for name, item in it.inputs.items():
+        out.append(f"| {BY_NAME[name].title} | {item['value']:.4g} | {item['unit']} |")
+    cited: dict[str, Any] = {}
+    for section, heading in QUESTIONS.items():
+        out += ["", f"## {heading}", ""]
+        if section == "process":
+            out.append("Disorders: " + ("; ".join(d.label() for d in it.disorders) or "none"))
+            out.append("")
+        if section == "detail":
+            out += ["| Derived value | Value | Unit |", "|---|---|---|"]
+            for key, label, unit, fmt in DERIVED_LABELS:
+                value = it.derived.get(key)
+                if value is not None:
+                    out.append(f"| {label} | {format(value, fmt)} | {unit} |")
+            out.append("")
+        for f in it.in_section(section):
+            out.append(f"- **{f.severity}** `{f.code}`: {f.text}  ")
+            out.append(f"  working: {f.working}  ")
+            out.append("  source: " + "; ".join(c.short() for c in f.citations))
+            for c in f.citations:
+                cited[c.key] = c
+    out += ["", "## Sources", ""]
+    out += [f"- {c.full()}" for c in cited.values()]
+    out += ["", f"> {it.caution}"]
+    return "\n".join(out) + "\n"

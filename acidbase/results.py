@@ -1,0 +1,261 @@
+"""Results of the kernel: columns for many panels, an Interpretation for one.
+
+``interpret_many`` returns ``Results``: the frame and the fired-rule matrix, with
+columnar output built on demand (``table``).  ``Results.interpretation(i)``
+builds the full object for row ``i``: normalised inputs, derived values, the
+consistency verdict, disorders, and findings ordered trust, process, detail,
+each with its working and resolved citations.  ``interpret(panel)`` is
+``interpret_many`` of a batch of one.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from . import engine
+from .engine import CONSISTENCY_NAMES, ROLE_NAMES, SLOTS, TIMING_NAMES, Frame
+from .fields import HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
+from .model import Screened
+from .reference import Settings
+from .references import Citation, cite
+from .rules import RULES, SECTIONS, render
+
+CAUTION = (
+    "Caution: acidbase supports, and does not replace, the judgement of licensed clinicians "
+    "and the local laboratory's protocols. It gives no treatment or dosing advice. Check every "
+    "result against the original report and the patient before acting on it."
+)
+
+#: Derived values reported by ``check --json`` and the batch output, in order.
+DERIVED: tuple[str, ...] = (
+    "hco3_calculated", "total_co2_calculated", "h_nmol_per_l", "anion_gap", "anion_gap_k",
+    "anion_gap_corrected", "delta_ratio", "delta_gap", "standard_base_excess",
+    "expected_pco2_low", "expected_pco2_high", "expected_hco3_acute_low",
+    "expected_hco3_acute_high", "expected_hco3_chronic_low", "expected_hco3_chronic_high",
+    "be_expected_pco2_low", "be_expected_pco2_high", "sid_apparent", "sid_effective",
+    "strong_ion_gap", "story_na_cl", "story_albumin", "story_lactate", "story_other",
+    "osmolality_calculated", "osmolal_gap", "alveolar_po2", "aa_gradient", "aa_expected",
+    "pf_ratio", "ph_at_temperature", "pco2_at_temperature", "po2_at_temperature",
+)
+
+
+@dataclass(frozen=True)
+class Finding:
+    code: str
+    section: str
+    severity: str
+    title: str
+    text: str
+    working: str
+    why: str
+    citations: tuple[Citation, ...]
+
+    def as_dict(self) -> dict[str, Any]:
+        return {
+            "code": self.code, "section": self.section, "severity": self.severity,
+            "title": self.title, "text": self.text, "working": self.working,
+            "citation": "; ".join(c.short() for c in self.citations),
+            "citations": [c.as_dict() for c in self.citations],
+        }
+
+
+@dataclass(frozen=True)
+class Disorder:
+    process: str
+    role: str
+    timing: str | None
+    anion_gap: str | None
+
+    def as_dict(self) -> dict[str, Any]:
+        return {"process": self.process, "role": self.role, "timing": self.timing,
+                "anion_gap": self.anion_gap}
+
+    def label(self) -> str:
+        extra = [x for x in (self.timing, f"{self.anion_gap} gap" if self.anion_gap else None) if x]
+        inner = ", ".join(extra + [self.role])
+        return f"{self.process} ({inner})"
+
+
+@dataclass(frozen=True)
+class Consistency:
+    status: str
+    source: str
+    hco3_entered: float | None
+    hco3_calculated: float | None
+    total_co2_calculated: float | None
+    difference: float | None
+    tolerance: float | None
+
+    def as_dict(self) -> dict[str, Any]:
+        return dict(self.__dict__)
+
+
+@dataclass(frozen=True)
+class Interpretation:
+    status: str
+    """"interpreted" or "refused"."""
+    problems: tuple[str, ...]
+    inputs: dict[str, dict[str, Any]]
+    sample_type: str
+    hco3_source: str
+    consistency: Consistency | None
+    disorders: tuple[Disorder, ...]
+    derived: dict[str, float | None]
+    findings: tuple[Finding, ...]
+    caution: str = CAUTION
+    settings: dict[str, Any] = field(default_factory=dict)
+
+    def codes(self) -> list[str]:
+        return [f.code for f in self.findings]
+
+    def in_section(self, section: str) -> list[Finding]:
+        return [f for f in self.findings if f.section == section]
+
+    def to_dict(self) -> dict[str, Any]:
+        from .report import as_json_dict
+
+        return as_json_dict(self)
+
+    def to_text(self) -> str:
+        from .report import as_text
+
+        return as_text(self)
+
+
+def _value(x: Any) -> Any:
+    if isinstance(x, np.generic):
+        x = x.item()
+    if isinstance(x, float) and not np.isfinite(x):
+        return None
+    return x
+
+
+class Results:
+    """The kernel's output for ``n`` panels."""
+
+    def __init__(self, screened: Screened, frame: Frame, fired: np.ndarray, settings: Settings):
+        self.screened = screened
+        self.frame = frame
+        self.fired = fired
+        self.settings = settings
+        self.n = screened.n
+        self.refused = screened.refused
+        self.reasons = screened.reasons
+
+    # -- one row --------------------------------------------------------------
+    def row(self, i: int) -> dict[str, Any]:
+        out: dict[str, Any] = {}
+        for key, col in self.frame.items():
+            out[key] = col.item() if np.ndim(col) == 0 else col[i].item()
+        return out
+
+    def interpretation(self, i: int) -> Interpretation:
+        r = self.row(i)
+        inputs = {s.name: {"value": _value(r[s.name]), "unit": s.unit}
+                  for s in NUMERIC if _value(r[s.name]) is not None}
+        st, src = SAMPLE_TYPES[r["sample_type"]], HCO3_SOURCES[r["hco3_source"]]
+        settings = dict(self.settings.__dict__)
+        if self.refused[i]:
+            probs = tuple(str(p) for p in self.screened.problems.get(i, []))
+            return Interpretation("refused", probs, inputs, st, src, None, (), {}, (),
+                                  settings=settings)
+        consistency = Consistency(
+            CONSISTENCY_NAMES[r["consistency"]], src, _value(r["hco3"]),
+            _value(r["hco3_calculated"]), _value(r["total_co2_calculated"]),
+            _value(r["consistency_difference"]), _value(r["consistency_tolerance"]))
+        disorders = self._disorders(r)
+        derived = {k: _value(r[k]) for k in DERIVED}
+        findings = []
+        for section in SECTIONS:
+            for j, rule in enumerate(RULES):
+                if rule.section == section and self.fired[j, i]:
+                    findings.append(Finding(
+                        rule.code, rule.section, rule.severity, rule.title,
+                        render(rule, rule.text, r), render(rule, rule.working, r), rule.why,
+                        cite(*rule.refs)))
+        return Interpretation("interpreted", (), inputs, st, src, consistency, disorders,
+                              derived, tuple(findings), settings=settings)
+
+    @staticmethod
+    def _disorders(r: dict[str, Any]) -> tuple[Disorder, ...]:
+        out = []
+        for slot, process, gap in SLOTS:
+            role = r[f"role_{slot}"]
+            if role == 0:
+                continue
+            timing = TIMING_NAMES[r["timing_resp"]] if slot.startswith("resp") else None
+            if slot.startswith("resp") and role == engine.ADDITIONAL:
+                timing = "indeterminate"
+            out.append(Disorder(process, ROLE_NAMES[role], timing, gap))
+        out.sort(key=lambda d: d.role != "primary")
+        return tuple(out)
+
+    # -- columns ----------------------------------------------------------------
+    def finding_codes(self) -> np.ndarray:
+        """Object array: the codes fired on each row, joined by ";"."""
+        return _combine(self.fired, [r.code for r in RULES])
+
+    def disorder_labels(self) -> np.ndarray:
+        """Object array: the disorders of each row as text ("" for none)."""
+        f = self.frame
+        key = np.zeros(self.n, dtype=np.int64)
+        for slot, _, _ in SLOTS:
+            key = key * 3 + f[f"role_{slot}"]
+        key = key * 4 + f["timing_resp"]
+        uniques, inverse = np.unique(key, return_inverse=True)
+        labels = []
+        for u in uniques.tolist():
+            timing = u % 4
+            rest = u // 4
+            roles = []
+            for _ in SLOTS:
+                roles.append(rest % 3)
+                rest //= 3
+            roles.reverse()
+            row = {f"role_{s}": roles[k] for k, (s, _, _) in enumerate(SLOTS)}
+            row["timing_resp"] = timing
+            labels.append("; ".join(d.label() for d in self._disorders(row)))
+        return np.array(labels, dtype=object)[inverse.reshape(-1)]
+
+    def table(self) -> dict[str, np.ndarray]:
+        """Output columns for the batch file, in their documented order."""
+        f = self.frame
+        cols: dict[str, np.ndarray] = {}
+        cols["status"] = np.where(self.refused, "refused", "interpreted").astype(object)
+        cols["reason"] = self.reasons
+        cons = np.array(CONSISTENCY_NAMES, dtype=object)[f["consistency"]]
+        cols["consistency"] = np.where(self.refused, "", cons)
+        cols["disorders"] = np.where(self.refused, "", self.disorder_labels())
+        for slot, _, _ in SLOTS:
+            cols[f"role_{slot}"] = np.array(["", "primary", "additional"], dtype=object)[f[f"role_{slot}"]]
+        cols["timing_respiratory"] = np.array(["", "acute", "chronic", "indeterminate"],
+                                              dtype=object)[f["timing_resp"]]
+        cols["finding_codes"] = self.finding_codes()
+        for k in DERIVED:
+            cols[k] = f[k]
+        return cols
+
+
+def _combine(mask: np.ndarray, names: list[str]) -> np.ndarray:
+    """Join the names whose mask is set, per column of ``mask`` (rules x rows)."""
+    n = mask.shape[1]
+    if n == 0:
+        return np.array([], dtype=object)
+    packed = np.packbits(mask, axis=0)  # (bytes, n)
+    width = packed.shape[0]
+    pad = (-width) % 8
+    if pad:
+        packed = np.concatenate([packed, np.zeros((pad, n), dtype=np.uint8)])
+    words = np.ascontiguousarray(packed.T).view(np.uint64)  # (n, k)
+    if words.shape[1] == 1:
+        uniques, inverse = np.unique(words[:, 0], return_inverse=True)
+        first = np.empty(len(uniques), dtype=np.int64)
+        first[inverse[::-1]] = np.arange(n)[::-1]
+    else:
+        view = words.view(np.dtype((np.void, words.shape[1] * 8))).reshape(-1)
+        uniques, first, inverse = np.unique(view, return_index=True, return_inverse=True)
+    labels = [";".join(name for name, on in zip(names, mask[:, j]) if on) for j in first.tolist()]
+    return np.array(labels, dtype=object)[inverse.reshape(-1)]
