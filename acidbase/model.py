@@ -49,7 +49,8 @@ def _hint(spec: FieldSpec, values: np.ndarray, unit: str) -> np.ndarray:
     for other, f in _units.FACTORS[spec.kind].items():
         if other == given:
             continue
-        fits = (values * f >= lo) & (values * f <= hi) & (hints == "")
+        with np.errstate(over="ignore", invalid="ignore"):
+            fits = (values * f >= lo) & (values * f <= hi) & (hints == "")
         hints[fits] = (
             f"{spec.title} would be ordinary at this value in {other}: if that is the unit, "
             f"state it ({spec.name} unit {other}); the value was not converted"
@@ -65,9 +66,9 @@ def range_problems(spec: FieldSpec, raw: np.ndarray, unit: str) -> tuple[np.ndar
     "not measured" and is not refused here.
     """
     f = _units.factor(spec.name, spec.kind, unit)
-    canonical = raw * f
     lo, hi = spec.accepted
-    with np.errstate(invalid="ignore"):
+    with np.errstate(over="ignore", invalid="ignore"):
+        canonical = raw * f
         bad = np.isinf(raw) | (canonical < lo) | (canonical > hi)
     return canonical, bad
 

@@ -1,0 +1,96 @@
+"""The `acidbase` command through a subprocess: exit codes, JSON shape, no tracebacks.
+
+Expected readings cite the published rule they follow.
+"""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def run(*args: str) -> subprocess.CompletedProcess[str]:
+    return subprocess.run([sys.executable, "-m", "acidbase", *args], capture_output=True,
+                          text=True, cwd=ROOT, timeout=120)
+
+
+BASE = ["--ph", "7.40", "--pco2", "40", "--hco3", "24.2", "--na", "140", "--cl", "104"]
+
+
+def test_check_prints_caution_and_the_three_questions():
+    r = run("check", *BASE)
+    assert r.returncode == 0, r.stderr
+    assert "does not replace" in r.stdout
+    for heading in ("1. Can these numbers be trusted?", "2. Which acid-base processes",
+                    "3. What follows"):
+        assert heading in r.stdout
+
+
+def test_check_json_has_the_documented_keys():
+    # Winter's formula (Albert, Dell & Winters, Ann Intern Med 1967): HCO3 10 -> pCO2 23 +/- 2,
+    # so pCO2 23 is compensation, not a second process.  pH from Henderson-Hasselbalch
+    # (CLSI C46): 6.105 + log10(10 / (0.0307 * 23)) = 7.256.
+    r = run("check", "--json", "--ph", "7.256", "--pco2", "23", "--hco3", "10", "--na", "140",
+            "--cl", "104", "--sample-type", "arterial", "--hco3-source", "analyser")
+    assert r.returncode == 0, r.stderr
+    doc = json.loads(r.stdout)
+    assert set(doc) >= {"disorders", "derived", "consistency", "findings", "caution"}
+    assert doc["disorders"] == [{"process": "metabolic acidosis", "role": "primary",
+                                 "timing": None, "anion_gap": "high"}]
+    for key in ("hco3_calculated", "h_nmol_per_l", "anion_gap", "anion_gap_corrected",
+                "delta_ratio", "standard_base_excess", "expected_pco2_low", "expected_pco2_high"):
+        assert key in doc["derived"]
+    assert doc["derived"]["expected_pco2_low"] == pytest.approx(21.0)
+    assert doc["derived"]["expected_pco2_high"] == pytest.approx(25.0)
+    assert doc["derived"]["anion_gap_corrected"] is None  # no albumin given
+    assert doc["consistency"]["status"] == "consistent"
+    for f in doc["findings"]:
+        assert set(f) >= {"code", "severity", "text", "citation"}
+        assert f["severity"] in ("info", "caution", "critical")
+    assert "licensed clinicians" in doc["caution"]
+
+
+def test_check_refuses_pco2_in_the_wrong_unit_with_a_hint_and_exit_2():
+    # 5.3 kPa is an ordinary pCO2 (1 kPa = 7.50062 mm[Hg], UCUM); as mm[Hg] it is impossible.
+    r = run("check", "--ph", "7.40", "--pco2", "5.3", "--hco3", "24", "--na", "140", "--cl", "104")
+    assert r.returncode == 2
+    assert "Traceback" not in r.stderr
+    assert "pCO2 (pco2) 5.3 mm[Hg] is outside the accepted range 8 to 200 mm[Hg]" in r.stderr
+    assert "kPa" in r.stderr
+    assert r.stdout == ""
+
+
+def test_check_accepts_the_same_pco2_in_kpa():
+    r = run("check", "--json", "--ph", "7.40", "--pco2", "5.3", "--pco2-unit", "kPa",
+            "--hco3", "24", "--na", "140", "--cl", "104")
+    assert r.returncode == 0, r.stderr
+    doc = json.loads(r.stdout)
+    assert doc["inputs"]["pco2"]["value"] == pytest.approx(5.3 * 7.50062, rel=1e-4)
+
+
+@pytest.mark.parametrize("args", [
+    ["--ph", "abc", "--pco2", "40", "--hco3", "24", "--na", "140", "--cl", "104"],
+    ["--ph", "7.4", "--pco2", "40", "--hco3", "24", "--na", "140"],
+    ["--ph", "nan", "--pco2", "40", "--hco3", "24", "--na", "140", "--cl", "104"],
+    ["--ph", "7.4", "--pco2", "40", "--pco2-unit", "bar", "--hco3", "24", "--na", "140",
+     "--cl", "104"],
+    ["--ph", "1e309", "--pco2", "40", "--hco3", "24", "--na", "140", "--cl", "104"],
+])
+def test_bad_input_exits_2_without_traceback(args):
+    r = run("check", *args)
+    assert r.returncode == 2
+    assert "Traceback" not in r.stderr
+    assert r.stderr.strip()
+
+
+def test_demo_runs_and_carries_the_caution():
+    r = run("demo")
+    assert r.returncode == 0, r.stderr
+    assert r.stdout.count("does not replace") >= 2
+    assert "refused" in r.stdout  # the demo includes a panel typed in the wrong unit
