@@ -1,0 +1,728 @@
+"""``acidbase batch``: check a file of panels, every row accounted for.
+
+Flow: file -> chunks of text columns (``fileio``) -> values with their
+qualifiers and flags -> ``interpret_many`` (the same kernel as ``check``) ->
+output columns -> file, one output row per input row, in input order.  Where
+``patient_id`` and ``collected_at`` are present, a first pass collects what the
+serial checks need (``serial``) and the second pass writes their result beside
+each row.
+
+Censored values (``<5``, ``>180``) never enter a formula as exact numbers: in a
+required field the row is refused naming the field; in an optional field the
+value is treated as not measured and recorded in the ``qualifiers`` column.  A
+laboratory flag after a value (``7.21 L``) is read off, recorded in
+``lab_flags``, and the number is used.
+"""
+
+from __future__ import annotations
+
+import argparse
+import html
+import json
+import os
+import re
+import sys
+import time
+from collections import Counter
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+
+import numpy as np
+import pyarrow as pa
+import pyarrow.compute as pc
+
+from . import fileio, serial
+from . import units as _units
+from .api import interpret_many
+from .engine import SLOTS
+from .errors import Problem
+from .fields import BY_NAME, NUMERIC, REQUIRED
+from .fileio import BatchInputError, Layout, Source
+from .results import CAUTION
+
+EXIT_OK, EXIT_CANNOT_RUN = 0, 2
+
+#: Columns the batch adds around the kernel's own (``Results.table``).
+ROW_COLUMN = "row"
+EXTRA_COLUMNS: tuple[str, ...] = ("needs_review", "qualifiers", "lab_flags",
+                                  *serial.COLUMNS, "caution")
+
+_DELIMS = {"tab": "\t", "\\t": "\t", "comma": ",", "semicolon": ";", "pipe": "|"}
+
+
+# ---------------------------------------------------------------------------
+# Command line
+
+
+def configure_parser(p: argparse.ArgumentParser) -> None:
+    """Options of ``acidbase batch``."""
+    p.description = (
+        "Check every panel in a file (CSV, JSON Lines or Parquet) and write one output row "
+        "per input row, in input order, with status, reason, findings and serial checks. "
+        + CAUTION)
+    p.add_argument("input", metavar="INPUT", help="panel file (.csv, .jsonl, .parquet)")
+    p.add_argument("-o", "--output", metavar="OUTPUT",
+                   help="output file (.csv, .jsonl, .parquet); default: CSV on stdout")
+    g = p.add_argument_group("reading")
+    g.add_argument("--format", choices=fileio.FORMATS, help="input format (default: from the name)")
+    g.add_argument("--delimiter", metavar="CHAR",
+                   help="CSV delimiter: , ; | or tab (default: detected)")
+    g.add_argument("--decimal", choices=(".", ","), help="decimal mark (default: detected)")
+    g.add_argument("--encoding", default="utf-8", help="text encoding (default utf-8, BOM or not)")
+    g.add_argument("--map", metavar="FILE", dest="mapping",
+                   help="mapping file: CSV with columns header,field[,unit] for a laboratory's "
+                        "own export headers")
+    g.add_argument("--unit", action="append", default=[], metavar="FIELD=UNIT",
+                   help="unit of a column, e.g. pco2=kPa (repeatable; default: the field's "
+                        "canonical unit)")
+    g.add_argument("--missing", action="append", default=[], metavar="TOKEN",
+                   help="a cell text that means 'not measured', e.g. --missing NA (repeatable; "
+                        "only empty cells by default)")
+    g.add_argument("--strict-columns", action="store_true",
+                   help="stop when a column is not recognised (default: pass it through)")
+    g.add_argument("--chunk-rows", type=int, default=1 << 18, metavar="N",
+                   help="rows per chunk (memory vs speed; default 262144)")
+    s = p.add_argument_group("serial checks (need patient_id and collected_at)")
+    s.add_argument("--window-hours", type=float, default=serial.DEFAULT_WINDOW_HOURS,
+                   metavar="H", help="compare panels of a patient at most H hours apart "
+                                     f"(default {serial.DEFAULT_WINDOW_HOURS:g})")
+    s.add_argument("--delta", action="append", default=[], metavar="FIELD=LIMIT",
+                   help="the laboratory's delta limit for a field, canonical unit, or 'off' "
+                        "(repeatable)")
+    s.add_argument("--no-serial", action="store_true", help="skip the serial checks")
+    o = p.add_argument_group("output")
+    o.add_argument("--output-format", choices=fileio.FORMATS, help="default: from the name")
+    o.add_argument("--output-delimiter", default=",", metavar="CHAR",
+                   help="CSV output delimiter (default ,)")
+    o.add_argument("--summary", metavar="FILE",
+                   help="write the summary here (.json for JSON) instead of stderr")
+    o.add_argument("--report", metavar="FILE",
+                   help="summary report with flagged rows and the pCO2-HCO3 plane (.md or .html)")
+    o.add_argument("--quiet", action="store_true", help="no progress bar")
+    lab = p.add_argument_group("laboratory settings")
+    lab.add_argument("--anion-gap-interval", nargs=2, type=float, metavar=("LOW", "HIGH"),
+                     help="local anion-gap reference interval, mmol/L (default 6 12 without K+)")
+    lab.add_argument("--anion-gap-with-k", action="store_true",
+                     help="judge the anion gap with K+ included (interval default 10 16)")
+    lab.add_argument("--reference-albumin", type=float, metavar="G_PER_L",
+                     help="albumin to correct the gap to, g/L (default 44)")
+
+
+def _pairs(items: list[str], what: str) -> dict[str, str]:
+    out: dict[str, str] = {}
+    for item in items:
+        if "=" not in item:
+            raise BatchInputError(f"--{what} {item!r}: write FIELD=VALUE")
+        k, v = item.split("=", 1)
+        k = k.strip().lower()
+        if k in out:
+            raise BatchInputError(f"--{what} given twice for {k}")
+        out[k] = v.strip()
+    return out
+
+
+def _delta_overrides(items: list[str]) -> dict[str, float | None]:
+    out: dict[str, float | None] = {}
+    for k, v in _pairs(items, "delta").items():
+        if k not in BY_NAME:
+            raise BatchInputError(f"--delta {k}=...: {k!r} is not a numeric field "
+                                  f"({', '.join(BY_NAME)})")
+        if v.lower() == "off":
+            out[k] = None
+            continue
+        try:
+            lim = float(v)
+        except ValueError:
+            lim = float("nan")
+        if not np.isfinite(lim) or lim <= 0:
+            raise BatchInputError(f"--delta {k}={v}: the limit must be a positive number in "
+                                  f"{BY_NAME[k].unit}, or 'off'")
+        out[k] = lim
+    return out
+
+
+# ---------------------------------------------------------------------------
+# Progress
+
+
+class Progress:
+    """A one-line bar on stderr, only on a terminal."""
+
+    def __init__(self, total: int, enabled: bool) -> None:
+        self.total = max(total, 1)
+        self.enabled = enabled and sys.stderr.isatty()
+        self.label = ""
+        self._last = 0.0
+        self._t0 = time.monotonic()
+
+    def update(self, done: int, rows: int, force: bool = False) -> None:
+        if not self.enabled:
+            return
+        now = time.monotonic()
+        if not force and now - self._last < 0.2:
+            return
+        self._last = now
+        frac = min(done / self.total, 1.0)
+        bar = "#" * int(frac * 30)
+        sys.stderr.write(f"\r{self.label} [{bar:<30}] {frac:4.0%} {rows:,} rows "
+                         f"{now - self._t0:5.1f} s")
+        sys.stderr.flush()
+
+    def end(self) -> None:
+        if self.enabled:
+            sys.stderr.write("\r" + " " * 78 + "\r")
+            sys.stderr.flush()
+
+
+# ---------------------------------------------------------------------------
+# One chunk
+
+
+@dataclass
+class ChunkValues:
+    """A chunk read into the kernel's columns, with what the reading found."""
+
+    columns: dict[str, np.ndarray]
+    parsed: dict[str, fileio.ParsedColumn]
+    problems: dict[int, list[str]]
+    """Row (in chunk) -> reading problems that refuse it."""
+    skip_missing: dict[int, set[str]]
+    """Row -> fields whose engine "missing" message the reading problem replaces."""
+
+
+def read_values(table: pa.Table, layout: Layout, decimal: str) -> ChunkValues:
+    n = table.num_rows
+    col_of = layout.column_of
+    columns: dict[str, np.ndarray] = {}
+    parsed: dict[str, fileio.ParsedColumn] = {}
+    problems: dict[int, list[str]] = {}
+    skip: dict[int, set[str]] = {}
+    for spec in NUMERIC:
+        h = col_of.get(spec.name)
+        if h is None:
+            continue
+        p = fileio.parse_numeric(table[h], decimal)
+        parsed[spec.name] = p
+        columns[spec.name] = p.values
+        unit = layout.units.get(spec.name, spec.unit)
+        if p.bad.any():
+            text = p.text.to_pylist()
+            for i in np.flatnonzero(p.bad).tolist():
+                problems.setdefault(i, []).append(
+                    f"{spec.title} ({spec.name}) {text[i]!r} is not a number (expected a number "
+                    f"in {unit}, optionally with < > <= >= before it or a flag "
+                    f"{' '.join(fileio.LAB_FLAGS)} after it)")
+                skip.setdefault(i, set()).add(spec.name)
+        if spec.required and p.comparator is not None:
+            cens = p.censored
+            if cens.any():
+                text = p.text.to_pylist()
+                f = _units.factor(spec.name, spec.kind, unit)
+                lo, hi = spec.accepted
+                for i in np.flatnonzero(cens).tolist():
+                    problems.setdefault(i, []).append(
+                        f"{spec.title} ({spec.name}) {text[i].strip()!r} {unit} is a censored "
+                        f"value (beyond the reporting limit), but a required field needs an exact "
+                        f"number (accepted range {lo / f:.4g} to {hi / f:.4g} {unit})")
+                    skip.setdefault(i, set()).add(spec.name)
+    for name in fileio.CHOICE_FIELDS:
+        h = col_of.get(name)
+        if h is not None:
+            columns[name] = fileio.parse_text(table[h])
+    return ChunkValues(columns, parsed, problems, skip)
+
+
+def _joined(pieces: list[pa.Array], n: int) -> pa.Array:
+    if not pieces:
+        return pa.array(np.full(n, "", dtype=object), type=pa.string())
+    if len(pieces) == 1:
+        return pc.fill_null(pieces[0], "")
+    # null_handling="skip" drops all-null rows in pyarrow 26 (the output is shorter
+    # than the input), so nulls become "" and the empty separators are removed.
+    out = pc.binary_join_element_wise(*pieces, "; ", null_handling="replace",
+                                      null_replacement="")
+    out = pc.replace_substring_regex(out, r"(; ){2,}", "; ")
+    return pc.replace_substring_regex(out, r"^(; )+|(; )+$", "")
+
+
+def qualifier_columns(cv: ChunkValues, n: int) -> tuple[pa.Array, pa.Array]:
+    """``qualifiers`` ("lactate <0.3") and ``lab_flags`` ("ph L") per row."""
+    quals, flags = [], []
+    for name, p in cv.parsed.items():
+        if p.comparator is not None:
+            trimmed = pc.utf8_trim_whitespace(p.text)
+            quals.append(pc.if_else(pc.is_valid(p.comparator),
+                                    pc.binary_join_element_wise(name, trimmed, " "),
+                                    pa.scalar(None, pa.string())))
+        if p.flag is not None:
+            flags.append(pc.binary_join_element_wise(name, p.flag, " "))
+    return _joined(quals, n), _joined(flags, n)
+
+
+def _missing_text(name: str) -> str:
+    spec = BY_NAME[name]
+    return str(Problem(spec.name, spec.title, None, spec.unit, kind="missing"))
+
+
+def merge_refusals(tab: dict[str, np.ndarray], cv: ChunkValues) -> None:
+    """Rows refused while reading: status refused, reasons first, no interpretation."""
+    if not cv.problems:
+        return
+    rows = np.fromiter(cv.problems, dtype=np.int64)
+    for key, col in tab.items():
+        if key in ("status", "reason"):
+            continue
+        if col.dtype == object:
+            col[rows] = ""
+        elif col.dtype.kind == "f":
+            col[rows] = np.nan
+    status = tab["status"]
+    reason = tab["reason"]
+    for i, mine in cv.problems.items():
+        drop = {_missing_text(f) for f in cv.skip_missing.get(i, ())}
+        theirs = [r for r in str(reason[i] or "").split("; ") if r and r not in drop]
+        status[i] = "refused"
+        reason[i] = "; ".join(mine + theirs)
+
+
+# ---------------------------------------------------------------------------
+# Summary and report
+
+
+@dataclass
+class Tally:
+    rows: int = 0
+    refused: int = 0
+    review: int = 0
+    processes: Counter = field(default_factory=Counter)
+    findings: Counter = field(default_factory=Counter)
+    lab_flags: Counter = field(default_factory=Counter)
+    qualifiers: Counter = field(default_factory=Counter)
+    serial_status: Counter = field(default_factory=Counter)
+    serial_codes: Counter = field(default_factory=Counter)
+    reasons: Counter = field(default_factory=Counter)
+    flagged: list[dict[str, str]] = field(default_factory=list)
+    plane: np.ndarray = field(default_factory=lambda: np.zeros((PLANE_ROWS, PLANE_COLS),
+                                                               dtype=np.int64))
+
+
+PLANE_PCO2 = (10.0, 100.0)  # mm[Hg], x axis
+PLANE_HCO3 = (0.0, 50.0)    # mmol/L, y axis
+PLANE_COLS, PLANE_ROWS = 60, 25
+FLAGGED_LISTED = 200
+
+
+def _counts(arr: pa.Array, split: str | None = None) -> Counter:
+    if split is not None:
+        arr = pc.list_flatten(pc.split_pattern(arr, split))
+    vc = pc.value_counts(arr)
+    return Counter({v: c for v, c in zip(vc.field("values").to_pylist(),
+                                         vc.field("counts").to_pylist()) if v})
+
+
+_NUMBERS = r"\b\d+(?:\.\d+)?\b"
+
+
+def tally_chunk(t: Tally, out: dict[str, pa.Array], pco2: np.ndarray, hco3: np.ndarray,
+                refused: np.ndarray, review: np.ndarray, start: int,
+                ids: dict[str, pa.Array | None]) -> None:
+    n = len(refused)
+    t.rows += n
+    t.refused += int(refused.sum())
+    t.review += int(review.sum())
+    for slot, process, gap in SLOTS:
+        name = f"{process}, {gap} gap" if gap else process
+        for role, c in _counts(out[f"role_{slot}"]).items():
+            t.processes[(name, role)] += c
+    t.findings.update(_counts(out["finding_codes"], ";"))
+    t.lab_flags.update(_counts(out["lab_flags"], "; "))
+    quals = _counts(out["qualifiers"], "; ")
+    t.qualifiers.update(Counter({re.sub(r"([<>]=?)\s*[\d.,]+", r"\1#", k): v
+                                 for k, v in quals.items()}))
+    t.serial_status.update(_counts(out["serial_status"]))
+    t.serial_codes.update(_counts(out["serial_codes"], ";"))
+    if refused.any():
+        parts = pc.list_flatten(pc.split_pattern(out["reason"].filter(pa.array(refused)), "; "))
+        parts = pc.replace_substring_regex(parts, r"'[^']*'", "'...'")
+        parts = pc.replace_substring_regex(parts, _NUMBERS, "#")
+        t.reasons.update(_counts(parts))
+    ok = ~refused & np.isfinite(pco2) & np.isfinite(hco3)
+    if ok.any():
+        h, _, _ = np.histogram2d(hco3[ok], pco2[ok], bins=(PLANE_ROWS, PLANE_COLS),
+                                 range=(PLANE_HCO3, PLANE_PCO2))
+        t.plane += h.astype(np.int64)
+    room = FLAGGED_LISTED - len(t.flagged)
+    if room > 0 and review.any():
+        idx = np.flatnonzero(review)[:room]
+        take = pa.array(idx)
+        cols = {"row": [str(start + i + 1) for i in idx.tolist()]}
+        for name, arr in ids.items():
+            cols[name] = arr.take(take).to_pylist() if arr is not None else [""] * len(idx)
+        for key in ("status", "reason", "finding_codes", "serial_codes"):
+            cols[key] = out[key].take(take).to_pylist()
+        for j in range(len(idx)):
+            t.flagged.append({k: (v[j] or "") for k, v in cols.items()})
+
+
+def plane_picture(plane: np.ndarray) -> str:
+    """The pCO2-HCO3 plane as text: panel density, expected bands, iso-pH lines."""
+    from .compensation import plane_bands
+
+    x_edges = np.linspace(*PLANE_PCO2, PLANE_COLS + 1)
+    y_edges = np.linspace(*PLANE_HCO3, PLANE_ROWS + 1)
+    xc = (x_edges[:-1] + x_edges[1:]) / 2
+    grid = [[" "] * PLANE_COLS for _ in range(PLANE_ROWS)]
+    bands = plane_bands(xc)
+    letters = {"metabolic acidosis": "a", "metabolic alkalosis": "k",
+               "acute respiratory acidosis": "r", "chronic respiratory acidosis": "R",
+               "acute respiratory alkalosis": "l", "chronic respiratory alkalosis": "L",
+               "pH 7.20": "2", "pH 7.40": "4", "pH 7.60": "6"}
+    for name, (lo, hi) in bands.items():
+        mark = letters.get(name)
+        if mark is None:
+            continue
+        for j in range(PLANE_COLS):
+            if not (np.isfinite(lo[j]) and np.isfinite(hi[j])):
+                continue
+            for i in range(PLANE_ROWS):
+                if hi[j] >= y_edges[i] and lo[j] < y_edges[i + 1]:
+                    grid[i][j] = mark
+    shades = ".:-=+*#%@"
+    top = plane.max()
+    if top > 0:
+        level = np.ceil(np.log1p(plane) / np.log1p(top) * len(shades)).astype(int)
+        for i, j in zip(*np.nonzero(plane)):
+            grid[i][j] = shades[min(level[i, j], len(shades)) - 1]
+    lines = []
+    for i in range(PLANE_ROWS - 1, -1, -1):
+        label = f"{y_edges[i + 1]:4.0f} |" if i % 5 == 4 else "     |"
+        lines.append(label + "".join(grid[i]))
+    lines.append("     +" + "-" * PLANE_COLS)
+    ticks = [" "] * PLANE_COLS
+    axis = "      "
+    for v in range(int(PLANE_PCO2[0]), int(PLANE_PCO2[1]) + 1, 15):
+        j = int((v - PLANE_PCO2[0]) / (PLANE_PCO2[1] - PLANE_PCO2[0]) * PLANE_COLS)
+        for k, ch in enumerate(str(v)):
+            if j + k < PLANE_COLS:
+                ticks[j + k] = ch
+    lines.append(axis + "".join(ticks))
+    lines.append(axis + "pCO2, mm[Hg] (x) against HCO3-, mmol/L (y)")
+    lines.append(
+        "Panels: . : - = + * # % @ (more panels, darker; log scale). Expected bands: "
+        "a metabolic acidosis, k metabolic alkalosis, r/R acute/chronic respiratory "
+        "acidosis, l/L acute/chronic respiratory alkalosis; 2 4 6 = pH 7.20, 7.40, 7.60.")
+    return "\n".join(lines)
+
+
+def summary_text(t: Tally, notes: list[str]) -> str:
+    lines = [f"acidbase batch: {t.rows:,} rows: {t.rows - t.refused:,} interpreted, "
+             f"{t.refused:,} refused; {t.review:,} need review"]
+    lines += [f"  note: {n}" for n in notes]
+    if t.processes:
+        by = Counter()
+        for (process, role), c in t.processes.items():
+            by[process] += c
+        lines.append("  processes: " + "; ".join(
+            f"{p} {c:,} (primary {t.processes[(p, 'primary')]:,})"
+            for p, c in by.most_common()))
+    for title, counter in (("finding codes", t.findings), ("laboratory flags", t.lab_flags),
+                           ("qualifiers", t.qualifiers), ("serial", t.serial_status),
+                           ("serial flags", t.serial_codes), ("refusal reasons", t.reasons)):
+        if counter:
+            lines.append(f"  {title}: " + "; ".join(f"{k} {c:,}" for k, c in counter.most_common()))
+    lines.append(CAUTION)
+    return "\n".join(lines)
+
+
+def summary_json(t: Tally, notes: list[str]) -> str:
+    doc = {
+        "rows": t.rows, "interpreted": t.rows - t.refused, "refused": t.refused,
+        "needs_review": t.review, "notes": notes,
+        "processes": {f"{p} {r}": c for (p, r), c in sorted(t.processes.items())},
+        "findings": dict(t.findings.most_common()), "lab_flags": dict(t.lab_flags.most_common()),
+        "qualifiers": dict(t.qualifiers.most_common()),
+        "serial_status": dict(t.serial_status.most_common()),
+        "serial_codes": dict(t.serial_codes.most_common()),
+        "refusal_reasons": dict(t.reasons.most_common()), "caution": CAUTION,
+    }
+    return json.dumps(doc, indent=2, ensure_ascii=False)
+
+
+def _md_cell(x: str) -> str:
+    return str(x).replace("|", "\\|").replace("\n", " ")
+
+
+def report_markdown(t: Tally, notes: list[str], source: str) -> str:
+    out = ["# Batch check report", "", f"Input: `{source}`", "", f"> {CAUTION}", "",
+           "## Counts", "", "| | rows |", "|---|---:|", f"| read | {t.rows:,} |",
+           f"| interpreted | {t.rows - t.refused:,} |", f"| refused | {t.refused:,} |",
+           f"| need review | {t.review:,} |", ""]
+    for n in notes:
+        out.append(f"- {n}")
+    sections = (("Processes", Counter({f"{p} ({r})": c
+                                       for (p, r), c in t.processes.items()})),
+                ("Findings", t.findings), ("Laboratory flags in values", t.lab_flags),
+                ("Qualifiers", t.qualifiers), ("Serial checks", t.serial_status),
+                ("Serial flags", t.serial_codes), ("Refusal reasons", t.reasons))
+    for title, counter in sections:
+        if counter:
+            out += ["", f"## {title}", "", "| | rows |", "|---|---:|"]
+            out += [f"| {_md_cell(k)} | {c:,} |" for k, c in counter.most_common()]
+    out += ["", f"## Rows that need review (first {FLAGGED_LISTED})", ""]
+    if t.flagged:
+        keys = list(t.flagged[0])
+        out.append("| " + " | ".join(keys) + " |")
+        out.append("|" + "---|" * len(keys))
+        out += ["| " + " | ".join(_md_cell(r[k]) for k in keys) + " |" for r in t.flagged]
+    else:
+        out.append("None.")
+    out += ["", "## Panels on the pCO2-HCO3 plane (interpreted rows)", "", "```",
+            plane_picture(t.plane), "```", "", f"> {CAUTION}", ""]
+    return "\n".join(out)
+
+
+def report_html(t: Tally, notes: list[str], source: str) -> str:
+    e = html.escape
+
+    def table(counter: Counter) -> str:
+        rows = "".join(f"<tr><td>{e(str(k))}</td><td>{c:,}</td></tr>"
+                       for k, c in counter.most_common())
+        return f"<table><tr><th></th><th>rows</th></tr>{rows}</table>"
+
+    parts = ["<!DOCTYPE html><html><head><meta charset='utf-8'><title>Batch check report</title>"
+             "<style>body{font-family:sans-serif;margin:2em}td,th{border:1px solid #999;"
+             "padding:2px 6px}table{border-collapse:collapse}.caution{border:2px solid #a00;"
+             "padding:8px}</style></head><body>",
+             "<h1>Batch check report</h1>", f"<p>Input: <code>{e(source)}</code></p>",
+             f"<p class='caution'>{e(CAUTION)}</p>",
+             table(Counter({"read": t.rows, "interpreted": t.rows - t.refused,
+                            "refused": t.refused, "need review": t.review}))]
+    if notes:
+        parts.append("<ul>" + "".join(f"<li>{e(n)}</li>" for n in notes) + "</ul>")
+    for title, counter in (("Processes", Counter({f"{p} ({r})": c
+                                                  for (p, r), c in t.processes.items()})),
+                           ("Findings", t.findings), ("Laboratory flags in values", t.lab_flags),
+                           ("Qualifiers", t.qualifiers), ("Serial checks", t.serial_status),
+                           ("Serial flags", t.serial_codes), ("Refusal reasons", t.reasons)):
+        if counter:
+            parts += [f"<h2>{e(title)}</h2>", table(counter)]
+    parts.append(f"<h2>Rows that need review (first {FLAGGED_LISTED})</h2>")
+    if t.flagged:
+        keys = list(t.flagged[0])
+        head = "".join(f"<th>{e(k)}</th>" for k in keys)
+        body = "".join("<tr>" + "".join(f"<td>{e(r[k])}</td>" for k in keys) + "</tr>"
+                       for r in t.flagged)
+        parts.append(f"<table><tr>{head}</tr>{body}</table>")
+    else:
+        parts.append("<p>None.</p>")
+    parts += ["<h2>Panels on the pCO2-HCO3 plane (interpreted rows)</h2>",
+              f"<pre>{e(plane_picture(t.plane))}</pre>",
+              f"<p class='caution'>{e(CAUTION)}</p></body></html>"]
+    return "\n".join(parts)
+
+
+# ---------------------------------------------------------------------------
+# The run
+
+
+def _settings(args: argparse.Namespace):
+    from .cli import settings_from_args
+
+    return settings_from_args(args)
+
+
+def _review_mask(res, tab: dict[str, np.ndarray]) -> np.ndarray:
+    from .rules import RULES
+
+    idx = [j for j, r in enumerate(RULES) if r.section == "trust" and r.severity != "info"]
+    trust = res.fired[idx].any(axis=0) if idx else np.zeros(res.n, dtype=bool)
+    return (tab["status"] == "refused") | trust
+
+
+def _output_names(headers: tuple[str, ...], engine_cols: list[str]) -> dict[str, str]:
+    """Input header -> output name (renamed only when it collides with ours)."""
+    ours = {ROW_COLUMN, *engine_cols, *EXTRA_COLUMNS}
+    return {h: (f"{h} (input)" if h in ours else h) for h in headers}
+
+
+def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.SerialChecker,
+                 progress: Progress) -> None:
+    col_of = layout.column_of
+    wanted = [col_of["patient_id"], col_of["collected_at"]]
+    if "sample_id" in col_of:
+        wanted.append(col_of["sample_id"])
+    fields_used = [r.field for r in checker.rules if r.field in col_of]
+    wanted += [col_of[f] for f in fields_used]
+    wanted = list(dict.fromkeys(wanted))
+    rows = 0
+    for table in src.chunks(wanted, on_progress=lambda b: progress.update(b, rows)):
+        values = {}
+        for f in fields_used:
+            spec = BY_NAME[f]
+            p = fileio.parse_numeric(table[col_of[f]], decimal)
+            unit = layout.units.get(f, spec.unit)
+            v = p.values * _units.factor(f, spec.kind, unit)
+            lo, hi = spec.accepted
+            with np.errstate(invalid="ignore"):
+                v[(v < lo) | (v > hi)] = np.nan  # refused values take no part
+            values[f] = v
+        secs, kind = fileio.parse_times(table[col_of["collected_at"]])
+        sample = table[col_of["sample_id"]] if "sample_id" in col_of else None
+        checker.add(table[col_of["patient_id"]], secs, kind, values, sample)
+        rows += table.num_rows
+    checker.finish()
+
+
+def _run(args: argparse.Namespace) -> int:
+    units = _pairs(args.unit, "unit")
+    deltas = _delta_overrides(args.delta)
+    delimiter = _DELIMS.get((args.delimiter or "").lower(), args.delimiter)
+    if delimiter is not None and len(delimiter) != 1:
+        raise BatchInputError(f"--delimiter {args.delimiter!r}: give one character, or 'tab'")
+    out_delim = _DELIMS.get(args.output_delimiter.lower(), args.output_delimiter)
+    if len(out_delim) != 1:
+        raise BatchInputError(f"--output-delimiter {args.output_delimiter!r}: give one character")
+    if args.chunk_rows < 1:
+        raise BatchInputError("--chunk-rows must be at least 1")
+    if not args.window_hours > 0:
+        raise BatchInputError("--window-hours must be a positive number")
+    if args.report and not args.report.lower().endswith((".md", ".html", ".htm")):
+        raise BatchInputError("--report: name a .md or .html file")
+    settings = _settings(args)
+    src = fileio.open_source(args.input, args.format, delimiter, args.encoding, args.missing,
+                             args.chunk_rows)
+    mapping = fileio.read_mapping(args.mapping) if args.mapping else None
+    layout = fileio.map_headers(src.headers, mapping, units, args.strict_columns)
+    if args.decimal:
+        decimal = args.decimal
+    elif src.format == "csv":
+        numeric_idx = [i for i, h in enumerate(src.headers) if layout.field_of.get(h) in BY_NAME]
+        decimal = fileio.detect_decimal(fileio.csv_sample(src), numeric_idx, src.delimiter)
+    else:
+        decimal = "."
+    notes = list(layout.notes)
+    if src.format == "csv" and (src.delimiter != "," or decimal != "."):
+        notes.append(f"read with delimiter {fileio._show_delims([src.delimiter])} and decimal "
+                     f"{decimal!r}")
+    out_fmt = fileio.output_format(args.output, args.output_format)
+    if args.output and os.path.abspath(args.output) == os.path.abspath(args.input):
+        raise BatchInputError("the output file would overwrite the input")
+    col_of = layout.column_of
+    do_serial = not args.no_serial and "patient_id" in col_of and "collected_at" in col_of
+    if not args.no_serial and not do_serial:
+        notes.append("serial checks not run: they need patient_id and collected_at columns")
+    checker = None
+    passes = 2 if do_serial else 1
+    if do_serial:
+        checker = serial.SerialChecker(serial.rules_with(deltas), args.window_hours,
+                                       serial.SerialChecker.partitions_for(src.size))
+        progress = Progress(src.size, not args.quiet)
+        progress.label = "serial 1/2"
+        try:
+            _serial_pass(src, layout, decimal, checker, progress)
+        finally:
+            progress.end()
+    writer = fileio.Writer(args.output, out_fmt, out_delim, metadata={"caution": CAUTION})
+    tally = Tally()
+    ok = False
+    progress = Progress(src.size, not args.quiet)
+    progress.label = f"check {passes}/{passes}" if passes == 2 else "check"
+    start = 0
+    try:
+        for table in src.chunks(on_progress=lambda b: progress.update(b, start)):
+            out, meta = _process(table, layout, decimal, settings, checker, start)
+            if start == 0:
+                names = _output_names(src.headers, meta["engine_cols"])
+                clash = [h for h, o in names.items() if o != h]
+                if clash:
+                    notes.append("input columns renamed to keep them apart from output columns: "
+                                 + ", ".join(f"{h!r} -> {names[h]!r}" for h in clash))
+            cols = {ROW_COLUMN: pa.array(np.arange(start + 1, start + table.num_rows + 1))}
+            for h in src.headers:
+                cols[names[h]] = table[h]
+            cols.update(out)
+            ids = {k: (table[col_of[k]].combine_chunks() if k in col_of else None)
+                   for k in ("sample_id", "patient_id")}
+            tally_chunk(tally, out, meta["pco2"], meta["hco3"], meta["refused"],
+                        meta["review"], start, ids)
+            writer.write(pa.table(cols))
+            start += table.num_rows
+        if start == 0:
+            raise BatchInputError(f"{args.input}: no rows")
+        ok = True
+    finally:
+        progress.end()
+        writer.close(ok)
+        if checker is not None:
+            checker.close()
+    text = summary_json(tally, notes) if (args.summary or "").endswith(".json") else \
+        summary_text(tally, notes)
+    if args.summary:
+        with open(args.summary, "w", encoding="utf-8") as f:
+            f.write(text + "\n")
+    else:
+        print(text, file=sys.stderr)
+    if args.report:
+        doc = report_html(tally, notes, args.input) if args.report.lower().endswith(
+            (".html", ".htm")) else report_markdown(tally, notes, args.input)
+        with open(args.report, "w", encoding="utf-8") as f:
+            f.write(doc)
+    return EXIT_OK
+
+
+def _process(table: pa.Table, layout: Layout, decimal: str, settings,
+             checker: serial.SerialChecker | None, start: int) -> tuple[dict[str, pa.Array], dict]:
+    n = table.num_rows
+    cv = read_values(table, layout, decimal)
+    units = {k: v for k, v in layout.units.items() if v != BY_NAME[k].unit}
+    res = interpret_many(cv.columns, units or None, settings)
+    tab = res.table()
+    tab["status"] = np.array(tab["status"], dtype=object)
+    tab["reason"] = np.array(tab["reason"], dtype=object)
+    merge_refusals(tab, cv)
+    refused = tab["status"] == "refused"
+    review = _review_mask(res, tab) | refused
+    out: dict[str, pa.Array] = {}
+    for key, col in tab.items():
+        if col.dtype == object:
+            out[key] = pa.array(col, type=pa.string())
+        else:
+            out[key] = pa.array(col, from_pandas=True)
+    quals, flags = qualifier_columns(cv, n)
+    if checker is not None:
+        scols = checker.columns(start, start + n)
+        review = review | (checker.status[start:start + n] == serial.FLAGGED)
+    else:
+        scols = {k: np.full(n, "", dtype=object) for k in serial.COLUMNS}
+        scols["serial_status"] = np.full(n, "not run", dtype=object)
+    out["needs_review"] = pa.array(np.where(review, "yes", "no").astype(object), type=pa.string())
+    out["qualifiers"] = quals
+    out["lab_flags"] = flags
+    for k in serial.COLUMNS:
+        out[k] = pa.array(scols[k], type=pa.string())
+    caution = np.full(n, None, dtype=object)
+    if start == 0 and n:
+        caution[0] = CAUTION
+    out["caution"] = pa.array(caution, type=pa.string())
+    frame = res.frame
+    meta = {"engine_cols": list(tab), "refused": refused, "review": review,
+            "pco2": np.asarray(frame["pco2"], dtype=np.float64),
+            "hco3": np.asarray(frame["hco3"], dtype=np.float64)}
+    return out, meta
+
+
+def run(args: argparse.Namespace) -> int:
+    """Run ``acidbase batch``; 0 when it ran, 2 when it could not (message on stderr)."""
+    try:
+        return _run(args)
+    except BatchInputError as e:
+        print(f"acidbase batch: could not run: {e}", file=sys.stderr)
+    except OSError as e:
+        where = f" {e.filename}" if getattr(e, "filename", None) else ""
+        print(f"acidbase batch: could not run:{where} {e.strerror or e}", file=sys.stderr)
+    except (pa.ArrowInvalid, pa.ArrowTypeError, UnicodeDecodeError) as e:
+        print(f"acidbase batch: could not run: the file could not be read ({e})", file=sys.stderr)
+    return EXIT_CANNOT_RUN
+
+
+__all__ = ["configure_parser", "run", "read_values", "merge_refusals", "plane_picture"]
