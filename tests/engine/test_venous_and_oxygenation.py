@@ -1,0 +1,117 @@
+"""Sample types and oxygenation, in every container.
+
+Venous intervals: the arterial ones moved by Kelly, Emerg Med Australas 2010 (pH -0.035,
+pCO2 +5.7, HCO3 +1.41).  Only arterial pO2 is read as oxygenation (AARC Clinical Practice
+Guideline, Respir Care 2013: venous pO2 is not a substitute for PaO2).
+"""
+
+from __future__ import annotations
+
+import pytest
+
+from .panels import edge_panel, normal_e3, venous_kelly
+
+
+def test_venous_sample_is_read_against_venous_intervals(interpret):
+    # Kelly 2010 shift of the E3 values: pH 7.365, pCO2 45.7, HCO3 25.63 is a normal venous gas.
+    r = interpret(venous_kelly("venous"))
+    assert r.disorders == ()
+    assert {"T-SAMPLE-VENOUS", "P-NONE"} <= set(r.codes())
+
+
+def test_the_same_numbers_labelled_arterial_read_a_respiratory_acidosis(interpret):
+    # pCO2 45.7 is above the arterial upper limit 45 (Narins & Emmett 1980; Berend 2014).
+    r = interpret(venous_kelly("arterial"))
+    assert [d.process for d in r.disorders] == ["respiratory acidosis"]
+
+
+def test_venous_respiratory_process_carries_a_caution(interpret):
+    # Methods E9 acute values (pCO2 60, HCO3 26) labelled venous: pCO2 above the venous limit 51;
+    # Kelly 2010 limits of agreement up to +/-20 mm[Hg], so the reading needs an arterial sample.
+    r = interpret(edge_panel(26.0, 60.0, sample_type="venous"))
+    assert "respiratory acidosis" in {d.process for d in r.disorders}
+    finding = next(f for f in r.findings if f.code == "P-VENOUS-RESPIRATORY")
+    assert finding.severity == "caution"
+
+
+@pytest.mark.parametrize("sample_type", ["venous", "capillary", "unknown"])
+def test_non_arterial_po2_is_not_read_as_oxygenation(interpret, sample_type):
+    # Methods E22 inputs (pO2 90, FiO2 0.50) on a sample that is not arterial (AARC 2013).
+    r = interpret(normal_e3(po2=90.0, fio2=0.50, sample_type=sample_type))
+    assert r.derived["alveolar_po2"] is None
+    assert r.derived["aa_gradient"] is None
+    assert r.derived["pf_ratio"] is None
+    assert "D-PO2-NOT-READ" in r.codes()
+    assert not {"D-AA-GRADIENT", "D-AA-GRADIENT-HIGH", "D-PF-RATIO"} & set(r.codes())
+
+
+def test_low_venous_po2_raises_no_hypoxaemia_call(interpret):
+    # Venous pO2 runs about 37 mm[Hg] below arterial (Byrne et al., Respirology 2014: 36.9); a venous
+    # pO2 of 39, just under the Iowa critical-call limit 40, is not an arterial critical value.
+    r = interpret(venous_kelly("venous").model_copy(update={"po2": 39.0}))
+    assert not {"T-CRITICAL", "T-POSSIBLE-VENOUS"} & set(r.codes())
+
+
+def test_arterial_po2_just_below_40_is_a_critical_call_and_possibly_venous(interpret):
+    # University of Iowa handbook critical call: arterial pO2 < 40 mm[Hg]; 39 is just outside.
+    # Baird 2013 / Byrne 2014: venous blood labelled arterial shows this pattern.
+    r = interpret(normal_e3(po2=39.0))
+    assert {"T-CRITICAL", "T-POSSIBLE-VENOUS"} <= set(r.codes())
+
+
+def test_arterial_oxygenation_values_match_the_e22_worked_values(interpret):
+    # Methods E22, derived (Merck alveolar gas equation; ARDS Definition Task Force, JAMA 2012):
+    # PAO2 306.5, A-a 216.5, P/F 180 -> the Berlin "moderate" range.
+    r = interpret(normal_e3(po2=90.0, fio2=0.50))
+    d = r.derived
+    assert (d["alveolar_po2"], d["aa_gradient"], d["pf_ratio"]) == pytest.approx((306.5, 216.5, 180.0))
+    pf = next(f for f in r.findings if f.code == "D-PF-RATIO")
+    assert "moderate" in pf.text
+
+
+def test_room_air_alveolar_po2_and_age_expected_gradient(interpret):
+    # Methods E21 (Merck): PAO2 99.7 on room air at PB 760 with pCO2 40; age/4 + 4 = 14 at age 40
+    # (common practice, no source).  pO2 90 from E22 gives A-a 9.7, inside the expected 14.
+    r = interpret(normal_e3(po2=90.0, fio2=0.21, age=40.0))
+    assert r.derived["alveolar_po2"] == pytest.approx(99.7, abs=0.05)
+    assert r.derived["aa_expected"] == pytest.approx(14.0)
+    assert "D-AA-GRADIENT" in r.codes() and "D-AA-GRADIENT-HIGH" not in r.codes()
+
+
+def test_age_expected_gradient_is_not_applied_off_room_air(interpret):
+    # The age/4 + 4 rule holds only at FiO2 0.21 (methods 8 and 14); E22 is at FiO2 0.50.
+    r = interpret(normal_e3(po2=90.0, fio2=0.50, age=40.0))
+    assert r.derived["aa_expected"] is None
+    assert "D-AA-GRADIENT-HIGH" not in r.codes()
+
+
+def test_po2_above_alveolar_po2_is_flagged(interpret):
+    # Methods 11.2 (design, from physics): pO2 > PAO2 + 10 is impossible in steady state.  On room
+    # air PAO2 is 99.7 (E21); pO2 110.5 sits just beyond 109.7.
+    r = interpret(normal_e3(po2=110.5, fio2=0.21))
+    assert "T-PO2-ABOVE-ALVEOLAR" in r.codes()
+
+
+def test_po2_just_under_the_alveolar_limit_is_not_flagged(interpret):
+    # 109.0: just inside PAO2 + 10 = 109.7 (E21).
+    assert "T-PO2-ABOVE-ALVEOLAR" not in interpret(normal_e3(po2=109.0, fio2=0.21)).codes()
+
+
+def test_temperature_corrected_values_match_e25_and_the_reading_stays_at_37(interpret):
+    # Methods E25, derived (Rosenthal 1948; Nunn 1965; Severinghaus 1979): at 33 degC pH 7.459,
+    # pCO2 33.6, pO2 70.0; interpretation uses the 37 degC values (alpha-stat), so no disorder.
+    r = interpret(normal_e3(po2=90.0, temperature=33.0))
+    d = r.derived
+    assert d["ph_at_temperature"] == pytest.approx(7.459, abs=0.0005)
+    assert d["pco2_at_temperature"] == pytest.approx(33.6, abs=0.05)
+    assert d["po2_at_temperature"] == pytest.approx(70.0, abs=0.05)
+    assert r.disorders == ()
+    assert "D-TEMPERATURE" in r.codes()
+
+
+def test_temperature_corrected_values_match_e26(interpret):
+    # Methods E26, derived: at 39 degC pH 7.371, pCO2 43.7, pO2 102.1.
+    d = interpret(normal_e3(po2=90.0, temperature=39.0)).derived
+    assert d["ph_at_temperature"] == pytest.approx(7.371, abs=0.0005)
+    assert d["pco2_at_temperature"] == pytest.approx(43.7, abs=0.05)
+    assert d["po2_at_temperature"] == pytest.approx(102.1, abs=0.05)
