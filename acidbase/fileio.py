@@ -121,7 +121,7 @@ def _read_text_sample(path: str | os.PathLike[str], encoding: str, size: int = 1
     try:
         text = raw.decode(codec)
     except UnicodeDecodeError as e:
-        if e.start >= len(raw) - 4:  # a character cut by the sample boundary
+        if len(raw) == size and e.start >= len(raw) - 4:  # cut by the sample boundary
             text = raw[: e.start].decode(codec)
         else:
             raise BatchInputError(
@@ -141,22 +141,22 @@ def sniff_csv(path: str | os.PathLike[str], delimiter: str | None = None,
         lines = lines[:-1]  # the last line of the sample may be cut
     lines = [ln for ln in lines if ln.strip()][:50]
     candidates = (delimiter,) if delimiter else DELIMITERS
-    best: tuple[int, str, list[list[str]]] | None = None
+    # The delimiter that gives the header at least two columns and most lines the
+    # header's width (a ragged line is reported later, by the reader, with its text).
+    best: tuple[float, int, str, list[list[str]]] | None = None
     for d in candidates:
         rows = list(csv.reader(lines, delimiter=d))
-        widths = {len(r) for r in rows}
-        if len(widths) == 1 and (n := widths.pop()) >= 2 and (best is None or n > best[0]):
-            best = (n, d, rows)
+        width = len(rows[0]) if rows else 0
+        if width < 2:
+            continue
+        agree = sum(len(r) == width for r in rows) / len(rows)
+        if agree >= 0.5 and (best is None or (agree, width) > best[:2]):
+            best = (agree, width, d, rows)
     if best is None:
-        if delimiter:
-            rows = list(csv.reader(lines[:1], delimiter=delimiter))
-            if rows and len(rows[0]) >= 2:
-                best = (len(rows[0]), delimiter, list(csv.reader(lines, delimiter=delimiter)))
-        if best is None:
-            raise BatchInputError(
-                f"{path}: could not tell the delimiter (tried {_show_delims(candidates)}): the "
-                "first lines do not split into the same number of columns; give --delimiter")
-    _, d, rows = best
+        raise BatchInputError(
+            f"{path}: could not tell the delimiter (tried {_show_delims(candidates)}): the "
+            "first lines do not split into the same number of columns; give --delimiter")
+    _, _, d, rows = best
     headers = tuple(h.strip() for h in rows[0])
     return Dialect(d, headers, tuple(tuple(r) for r in rows[1:]))
 
@@ -229,6 +229,12 @@ def split_unit(header: str) -> tuple[str, str | None]:
     return header.strip(), None
 
 
+def _is_unit_of(fld: str, unit: str | None) -> bool:
+    """True when ``unit`` is a unit the numeric field accepts ("pH (37C)" is no unit)."""
+    spec = BY_NAME.get(fld)
+    return spec is not None and unit is not None and _units.normalise(unit) in spec.units
+
+
 def read_mapping(path: str | os.PathLike[str]) -> dict[str, tuple[str, str | None]]:
     """A mapping file: CSV with columns ``header``, ``field`` and optionally ``unit``."""
     try:
@@ -286,9 +292,12 @@ def map_headers(headers: Sequence[str], mapping: Mapping[str, tuple[str, str | N
         if h in mapping:
             fld, unit = mapping[h]
             where = f"mapping file for column {h!r}"
-        elif base.lower() in ALL_FIELDS:
+        elif h.strip().lower() in ALL_FIELDS:
+            fld, where = h.strip().lower(), f"header {h!r}"
+        elif base.lower() in ALL_FIELDS and _is_unit_of(base.lower(), suffix):
             fld, unit, where = base.lower(), suffix, f"header {h!r}"
-        elif (code_field := loinc.field_for(base)) is not None:
+        elif (code_field := loinc.field_for(base)) is not None and (
+                suffix is None or _is_unit_of(code_field, suffix)):
             fld, where = code_field, f"header {h!r}"
             unit = suffix or loinc.IMPLIED_UNIT.get(base)
             if unit is None and base in loinc.UNIT_REQUIRED:

@@ -1,0 +1,340 @@
+"""``acidbase batch`` end to end: every row accounted for, in order, as ``check`` reads it.
+
+Input files are described, with the source of every number, in tests/data/batch/README.md.
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import shutil
+from pathlib import Path
+
+import pyarrow as pa
+import pyarrow.parquet as pq
+import pytest
+
+import acidbase
+from acidbase.cli import main
+from acidbase.fields import NUMERIC
+
+DATA = Path(__file__).parent / "data" / "batch"
+
+
+def batch(capsys, *args: str) -> tuple[int, str]:
+    rc = main(["batch", *map(str, args)])
+    return rc, capsys.readouterr().err
+
+
+def rows_of(path: Path) -> list[dict[str, str]]:
+    with path.open(newline="", encoding="utf-8") as f:
+        return list(csv.DictReader(f))
+
+
+# -- every row accounted for -------------------------------------------------------------
+
+def test_mixed_file_keeps_every_row_in_order_with_status_and_reason(tmp_path, capsys):
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, DATA / "mixed.csv", "-o", out)
+    assert rc == 0
+    rows = rows_of(out)
+    inputs = rows_of(DATA / "mixed.csv")
+    assert [r["sample_id"] for r in rows] == [r["sample_id"] for r in inputs]
+    assert [r["row"] for r in rows] == [str(i) for i in range(1, len(inputs) + 1)]
+    status = {r["sample_id"]: r["status"] for r in rows}
+    refused = {"M03", "M05", "M06", "M08", "M09", "M11"}
+    assert {k for k, v in status.items() if v == "refused"} == refused
+    for r in rows:
+        assert (r["reason"] != "") == (r["status"] == "refused")
+        assert r["needs_review"] == "yes" or r["status"] == "interpreted"
+    assert "12 rows: 6 interpreted, 6 refused" in err
+
+
+@pytest.mark.parametrize("sample,words", [
+    ("M03", ["pH (ph)", "9.4", "accepted range"]),
+    ("M05", ["pCO2 (pco2)", "5.3", "kPa"]),
+    ("M06", ["K+ (k)", "'haem'", "not a number"]),
+    ("M08", ["Na+ (na)", "required"]),
+    ("M09", ["pCO2 (pco2)", "'<10'", "censored"]),
+    ("M11", ["hco3_source", "plasma"]),
+])
+def test_refusal_reason_names_the_field_and_the_value(tmp_path, capsys, sample, words):
+    out = tmp_path / "out.csv"
+    batch(capsys, DATA / "mixed.csv", "-o", out)
+    reason = next(r["reason"] for r in rows_of(out) if r["sample_id"] == sample)
+    for w in words:
+        assert w in reason
+
+
+def test_refused_row_carries_no_reading(tmp_path, capsys):
+    out = tmp_path / "out.csv"
+    batch(capsys, DATA / "mixed.csv", "-o", out)
+    r = next(r for r in rows_of(out) if r["sample_id"] == "M06")
+    assert r["disorders"] == r["finding_codes"] == r["anion_gap"] == ""
+
+
+def test_censored_optional_value_is_not_measured_and_recorded(tmp_path, capsys):
+    out = tmp_path / "out.csv"
+    batch(capsys, DATA / "mixed.csv", "-o", out)
+    r = next(r for r in rows_of(out) if r["sample_id"] == "M07")
+    assert r["status"] == "interpreted" and r["qualifiers"] == "lactate <0.3"
+    assert r["lactate"] == "<0.3"  # the input cell passes through as written
+    assert "D-LACTATE-HIGH" not in r["finding_codes"]
+
+
+def test_trailing_flag_is_recorded_and_the_value_used(tmp_path, capsys):
+    out = tmp_path / "out.csv"
+    batch(capsys, DATA / "mixed.csv", "-o", out)
+    rows = {r["sample_id"]: r for r in rows_of(out)}
+    assert rows["M10"]["lab_flags"] == "ph L"
+    # E17 (Story 2016) read with the flag is read as E17 without it.
+    plain = acidbase.interpret(acidbase.Panel(ph=7.20, pco2=40, hco3=15, na=133, cl=110,
+                                              lactate=5, sample_type="arterial",
+                                              hco3_source="analyser"))
+    assert rows["M10"]["finding_codes"] == ";".join(plain.codes())
+
+
+def test_formula_in_a_passed_through_cell_is_escaped_and_numbers_are_not(tmp_path, capsys):
+    out = tmp_path / "out.csv"
+    batch(capsys, DATA / "mixed.csv", "-o", out)
+    rows = {r["sample_id"]: r for r in rows_of(out)}
+    assert rows["M12"]["comment"] == "'=1+2"  # OWASP CSV Injection: leading quote
+    assert rows["M02"]["comment"] == "-5.2"   # a number stays a number
+    assert rows["M01"]["standard_base_excess"].startswith("-")  # numeric output unescaped
+
+
+# -- batch and check agree ---------------------------------------------------------------
+
+def _panels_of_mixed() -> list[tuple[str, dict]]:
+    """The rows of mixed.csv that Python's float() reads in full, as Panels."""
+    out = []
+    for r in rows_of(DATA / "mixed.csv"):
+        try:
+            data = {s.name: float(r[s.name]) for s in NUMERIC if r.get(s.name)}
+        except ValueError:
+            continue
+        try:
+            panel = acidbase.Panel(**data, sample_type=r["sample_type"],
+                                   hco3_source=r["hco3_source"])
+        except Exception:
+            continue
+        out.append((r["sample_id"], panel))
+    return out
+
+
+def test_batch_and_check_agree_row_for_row(tmp_path, capsys):
+    out = tmp_path / "out.jsonl"
+    batch(capsys, DATA / "mixed.csv", "-o", out)
+    got = {r["sample_id"]: r for r in map(json.loads, out.read_text().splitlines())}
+    checked = 0
+    for sid, panel in _panels_of_mixed():
+        r = got[sid]
+        if r["qualifiers"] or r["lab_flags"]:
+            continue
+        it = acidbase.interpret(panel)
+        doc = it.to_dict()
+        assert r["status"] == it.status
+        assert r["finding_codes"] == ";".join(it.codes())
+        assert r["disorders"] == "; ".join(d.label() for d in it.disorders)
+        for key, value in it.derived.items():
+            if value is None:
+                assert r[key] is None, key
+            else:
+                assert r[key] == pytest.approx(value, rel=1e-12), key
+        assert doc["status"] == r["status"]
+        checked += 1
+    assert checked >= 4
+
+
+# -- locales, headers, formats -----------------------------------------------------------
+
+def _readings(path: Path) -> list[tuple[str, str, str, str]]:
+    return [(r["sample_id"], r["status"], r["finding_codes"], r["anion_gap"])
+            for r in rows_of(path)]
+
+
+@pytest.mark.parametrize("name", ["semicolon_comma_bom.csv", "tab.tsv"])
+def test_each_locale_variant_reads_as_the_comma_file(tmp_path, capsys, name):
+    ref, out = tmp_path / "ref.csv", tmp_path / "out.csv"
+    assert batch(capsys, DATA / "comma.csv", "-o", ref)[0] == 0
+    assert batch(capsys, DATA / name, "-o", out)[0] == 0
+    assert _readings(out) == _readings(ref)
+    assert all(r["status"] == "interpreted" for r in rows_of(out))
+
+
+def test_decimal_comma_can_be_set_by_option(tmp_path, capsys):
+    out = tmp_path / "out.csv"
+    rc, _ = batch(capsys, DATA / "semicolon_comma_bom.csv", "--delimiter", ";", "--decimal", ",",
+                  "-o", out)
+    assert rc == 0 and all(r["status"] == "interpreted" for r in rows_of(out))
+
+
+def test_loinc_headers_are_read(tmp_path, capsys):
+    out = tmp_path / "out.csv"
+    assert batch(capsys, DATA / "loinc_headers.csv", "-o", out)[0] == 0
+    rows = rows_of(out)
+    ref = acidbase.interpret(acidbase.Panel(ph=7.40, pco2=40, hco3=24.22, na=140, cl=106.78,
+                                            glucose=90, glucose_unit="mg/dL",
+                                            sample_type="arterial"))
+    assert rows[0]["status"] == "interpreted"
+    assert rows[0]["finding_codes"] == ";".join(ref.codes())
+    assert float(rows[0]["osmolality_calculated"] or "nan") == pytest.approx(
+        ref.derived["osmolality_calculated"] or float("nan"), nan_ok=True)
+
+
+def test_mapping_file_reads_a_laboratorys_headers_and_units(tmp_path, capsys):
+    out = tmp_path / "out.csv"
+    rc, _ = batch(capsys, DATA / "lab_export.csv", "--map", DATA / "lab_mapping.csv", "-o", out)
+    assert rc == 0
+    rows = rows_of(out)
+    assert [r["status"] for r in rows] == ["interpreted", "interpreted"]
+    ref = acidbase.interpret(acidbase.Panel(ph=7.40, pco2=5.333, pco2_unit="kPa", hco3=24.22,
+                                            na=140, cl=106.78, sample_type="arterial"))
+    assert rows[0]["finding_codes"] == ";".join(ref.codes())
+    assert rows[0]["PaCO2"] == "5.333"
+
+
+def test_unit_option_sets_a_column_unit(tmp_path, capsys):
+    f = tmp_path / "kpa.csv"
+    f.write_text("ph,pco2,hco3,na,cl\n7.40,5.333,24.22,140,106.78\n")
+    out = tmp_path / "out.csv"
+    assert batch(capsys, f, "--unit", "pco2=kPa", "-o", out)[0] == 0
+    assert rows_of(out)[0]["status"] == "interpreted"
+
+
+def test_json_lines_in_and_parquet_out(tmp_path, capsys):
+    out = tmp_path / "out.parquet"
+    assert batch(capsys, DATA / "panels.jsonl", "-o", out)[0] == 0
+    t = pq.read_table(out)
+    assert t["sample_id"].to_pylist() == ["J1", "J2", "J3"]
+    assert t["status"].to_pylist() == ["interpreted", "interpreted", "refused"]
+    assert t["lab_flags"].to_pylist()[1] == "ph L" and t["qualifiers"].to_pylist()[1] == \
+        "lactate <0.3"
+    assert t.schema.metadata[b"caution"].decode() == acidbase.CAUTION
+
+
+def test_parquet_in_with_native_numbers(tmp_path, capsys):
+    src = tmp_path / "in.parquet"
+    pq.write_table(pa.table({"ph": [7.40, 7.255], "pco2": [40.0, 60.0], "hco3": [24.22, 26.0],
+                             "na": [140.0, 140.0], "cl": [106.78, 105.0],
+                             "sample_type": ["arterial", "arterial"]}), src)
+    out = tmp_path / "out.csv"
+    assert batch(capsys, src, "-o", out)[0] == 0
+    assert [r["status"] for r in rows_of(out)] == ["interpreted", "interpreted"]
+
+
+# -- chunks ------------------------------------------------------------------------------
+
+def test_small_chunks_give_the_same_output_as_one_chunk(tmp_path, capsys):
+    big = tmp_path / "big.csv"
+    lines = (DATA / "serial_unsorted.csv").read_text().splitlines()
+    body = lines[1:] * 3  # 54 rows; repeated sample ids are fine, patients repeat too
+    big.write_text("\n".join([lines[0]] + body) + "\n")
+    one, many = tmp_path / "one.csv", tmp_path / "many.csv"
+    assert batch(capsys, big, "-o", one)[0] == 0
+    assert batch(capsys, big, "--chunk-rows", "5", "-o", many)[0] == 0
+    assert one.read_bytes() == many.read_bytes()
+    assert len(rows_of(many)) == 54
+
+
+# -- serial through the command -----------------------------------------------------------
+
+def test_serial_checks_on_an_unsorted_file(tmp_path, capsys):
+    out = tmp_path / "out.csv"
+    assert batch(capsys, DATA / "serial_unsorted.csv", "-o", out)[0] == 0
+    rows = {r["sample_id"]: r for r in rows_of(out)}
+    assert rows["S03"]["serial_codes"].split(";")[:2] == ["SERIAL-BREAK", "SERIAL-DELTA-NA"]
+    assert "SERIAL-DELTA-NA" in rows["S04"]["serial_codes"]
+    for sid in ("S01", "S02", "S05", "S06", "S07", "S08", "S09", "S12", "S14", "S15", "S16"):
+        assert rows[sid]["serial_codes"] == "", sid
+    assert rows["S13"]["serial_codes"] == "SERIAL-DELTA-K"
+    assert "SERIAL-DELTA-NA" in rows["S17"]["serial_codes"]
+    assert rows["S10"]["serial_status"].startswith("not assessable")
+    assert rows["S18"]["serial_status"] == "not assessable: no patient_id or collected_at"
+    assert rows["S03"]["needs_review"] == "yes" and rows["S01"]["needs_review"] == "no"
+
+
+def test_no_serial_option_and_missing_columns_say_not_run(tmp_path, capsys):
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, DATA / "comma.csv", "-o", out)
+    assert rc == 0 and "serial checks not run" in err
+    assert {r["serial_status"] for r in rows_of(out)} == {"not run"}
+
+
+# -- could not run ------------------------------------------------------------------------
+
+@pytest.mark.parametrize("args,words", [
+    (["missing.csv"], "no such file"),
+    ([DATA / "lab_export.csv"], "no column for required field"),
+    ([DATA / "comma.csv", "--unit", "pco2=bar"], "not accepted"),
+    ([DATA / "comma.csv", "--delta", "na=-3"], "positive number"),
+    ([DATA / "comma.csv", "--report", "r.pdf"], ".md or .html"),
+])
+def test_could_not_run_exits_2_with_one_clear_line(tmp_path, capsys, args, words):
+    rc, err = batch(capsys, *args, "-o", tmp_path / "o.csv")
+    assert rc == 2
+    assert words in err and "Traceback" not in err
+    assert err.startswith("acidbase batch: could not run:")
+    assert not (tmp_path / "o.csv").exists()
+
+
+def test_ragged_line_stops_the_run_and_leaves_no_output(tmp_path, capsys):
+    f = tmp_path / "ragged.csv"
+    f.write_text("ph,pco2,hco3,na,cl\n7.40,40,24.22,140,106.78\n7.40,40,24.22\n")
+    rc, err = batch(capsys, f, "-o", tmp_path / "o.csv")
+    assert rc == 2 and "3 fields where the header has 5" in err
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["ragged.csv"]
+
+
+# -- summary, report, caution -------------------------------------------------------------
+
+def test_summary_counts_processes_flags_and_reasons(tmp_path, capsys):
+    summary = tmp_path / "s.json"
+    batch(capsys, DATA / "mixed.csv", "-o", tmp_path / "o.csv", "--summary", summary)
+    doc = json.loads(summary.read_text())
+    assert doc["rows"] == 12 and doc["refused"] == 6 and doc["interpreted"] == 6
+    assert doc["lab_flags"] == {"ph L": 1}
+    assert doc["qualifiers"] == {"lactate <#": 1, "pco2 <#": 1}
+    assert sum(doc["refusal_reasons"].values()) >= 6
+    assert doc["caution"] == acidbase.CAUTION
+
+
+@pytest.mark.parametrize("name", ["r.md", "r.html"])
+def test_report_has_counts_flagged_rows_picture_and_caution(tmp_path, capsys, name):
+    report = tmp_path / name
+    assert batch(capsys, DATA / "mixed.csv", "-o", tmp_path / "o.csv", "--report", report)[0] == 0
+    text = report.read_text()
+    assert "pCO2, mm[Hg]" in text and "M03" in text
+    assert (acidbase.CAUTION if name.endswith(".md") else "licensed clinicians") in text
+
+
+def test_caution_is_in_the_output_file_and_on_stderr(tmp_path, capsys):
+    out = tmp_path / "o.csv"
+    _, err = batch(capsys, DATA / "comma.csv", "-o", out)
+    rows = rows_of(out)
+    assert rows[0]["caution"] == acidbase.CAUTION and acidbase.CAUTION in err
+
+
+def test_no_progress_bar_when_stderr_is_not_a_terminal(tmp_path, capsys):
+    _, err = batch(capsys, DATA / "serial_unsorted.csv", "-o", tmp_path / "o.csv")
+    assert "\r" not in err
+
+
+def test_input_column_named_like_an_output_column_is_kept_apart(tmp_path, capsys):
+    f = tmp_path / "clash.csv"
+    shutil.copy(DATA / "comma.csv", f)
+    text = f.read_text().splitlines()
+    f.write_text("\n".join([text[0] + ",status"] + [t + ",sent" for t in text[1:]]) + "\n")
+    out = tmp_path / "o.csv"
+    _, err = batch(capsys, f, "-o", out)
+    r = rows_of(out)[0]
+    assert r["status (input)"] == "sent" and r["status"] == "interpreted"
+    assert "renamed" in err
+
+
+def test_standard_output_by_default(capsys):
+    rc = main(["batch", str(DATA / "comma.csv"), "--quiet"])
+    cap = capsys.readouterr()
+    assert rc == 0
+    assert cap.out.splitlines()[0].startswith('"row","sample_id"')
+    assert len(cap.out.splitlines()) == 5

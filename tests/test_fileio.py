@@ -1,0 +1,264 @@
+"""Reading and writing panel files: values, headers, dialects, times, escaping."""
+
+from __future__ import annotations
+
+import csv
+import datetime as dt
+from pathlib import Path
+
+import numpy as np
+import pyarrow as pa
+import pytest
+
+from acidbase import fileio, loinc
+from acidbase.fields import NUMERIC
+from acidbase.fileio import BatchInputError
+
+DATA = Path(__file__).parent / "data" / "batch"
+
+
+# -- values -------------------------------------------------------------------
+
+def test_plain_numbers_are_read_exactly():
+    # Python's float() is the reference reading of a decimal string.
+    cells = ["7.40", "-5.2", "24.22", "1e2", ".5", "+3"]
+    p = fileio.parse_numeric(pa.array(cells))
+    assert p.values.tolist() == [float(c) for c in cells]
+    assert not p.bad.any() and p.comparator is None and p.flag is None
+
+
+def test_empty_and_blank_cells_are_not_measured_not_refused():
+    p = fileio.parse_numeric(pa.array(["", None, "   ", "7.4"]))
+    assert np.isnan(p.values[:3]).all() and p.values[3] == 7.4
+    assert not p.bad.any()
+
+
+@pytest.mark.parametrize("flag", ["L", "H", "LL", "HH", "A", "AA", "N"])
+def test_trailing_hl7_flag_is_read_off_and_the_number_used(flag):
+    # HL7 v2 table 0078 abnormal flags (interoperability notes A.5).
+    p = fileio.parse_numeric(pa.array([f"7.21 {flag}", "7.40"]))
+    assert p.values[0] == 7.21 and p.flag.to_pylist() == [flag, None]
+    assert not p.bad.any()
+
+
+def test_asterisk_flag_without_space_is_read_off():
+    # "*" as an abnormal mark: common laboratory practice, no source.
+    p = fileio.parse_numeric(pa.array(["8.4*"]))
+    assert p.values[0] == 8.4 and p.flag.to_pylist() == ["*"]
+
+
+@pytest.mark.parametrize("cell,cmp", [("<5", "<"), (">180", ">"), ("<=0.3", "<="),
+                                      (">= 15", ">=")])
+def test_censored_value_keeps_its_comparator_and_never_becomes_a_number(cell, cmp):
+    # FHIR Quantity.comparator <, <=, >=, > (interoperability notes A.5).
+    p = fileio.parse_numeric(pa.array([cell]))
+    assert np.isnan(p.values[0]) and p.comparator.to_pylist() == [cmp]
+    assert p.censored.tolist() == [True] and not p.bad.any()
+
+
+@pytest.mark.parametrize("cell", ["haem", "1,234", "7.2.1", "NA", "n/a", "7.21 X", "--"])
+def test_text_that_is_not_a_number_is_refused_not_guessed(cell):
+    # No silent guesses (interoperability notes A.5: reject thousands separators).
+    p = fileio.parse_numeric(pa.array([cell, "7.4"]))
+    assert p.bad.tolist() == [True, False] and np.isnan(p.values[0])
+
+
+def test_decimal_comma_is_read_and_a_point_is_then_refused():
+    # R read.csv2 / pandas decimal=',' convention; with a decimal comma "1.234" is a
+    # thousands separator, which is never guessed.
+    p = fileio.parse_numeric(pa.array(["7,21", "<0,3", "8,4 H", "1.234"]), decimal=",")
+    assert p.values[0] == 7.21 and p.values[2] == 8.4
+    assert p.comparator.to_pylist()[1] == "<" and p.flag.to_pylist()[2] == "H"
+    assert p.bad.tolist() == [False, False, False, True]
+
+
+def test_native_parquet_numbers_pass_straight_through():
+    p = fileio.parse_numeric(pa.array([7.4, None, 7.2], type=pa.float32()))
+    assert p.values[0] == pytest.approx(7.4, abs=1e-6) and np.isnan(p.values[1])
+
+
+def test_missing_token_is_only_missing_when_declared(tmp_path):
+    f = tmp_path / "m.csv"
+    f.write_text("ph,pco2,hco3,na,cl,k\n7.40,40,24.22,140,106.78,NA\n")
+    plain = next(fileio.open_source(f).chunks())
+    assert fileio.parse_numeric(plain["k"]).bad.tolist() == [True]
+    declared = next(fileio.open_source(f, missing=["NA"]).chunks())
+    assert fileio.parse_numeric(declared["k"]).bad.tolist() == [False]
+
+
+# -- dialects -----------------------------------------------------------------
+
+@pytest.mark.parametrize("name,delimiter", [("comma.csv", ","), ("semicolon_comma_bom.csv", ";"),
+                                            ("tab.tsv", "\t")])
+def test_delimiter_is_detected(name, delimiter):
+    d = fileio.sniff_csv(DATA / name)
+    assert d.delimiter == delimiter
+    assert d.headers[0] == "sample_id"  # the UTF-8 byte-order mark is not part of it
+
+
+def test_decimal_comma_is_detected_in_a_semicolon_file():
+    d = fileio.sniff_csv(DATA / "semicolon_comma_bom.csv")
+    assert fileio.detect_decimal(d.sample, [1, 2, 3, 4, 5], d.delimiter) == ","
+    d = fileio.sniff_csv(DATA / "comma.csv")
+    assert fileio.detect_decimal(d.sample, [1, 2, 3, 4, 5], d.delimiter) == "."
+
+
+def test_mixed_decimal_marks_stop_the_run():
+    with pytest.raises(BatchInputError, match="--decimal"):
+        fileio.detect_decimal([["7,40", "40.5"]], [0, 1], ";")
+
+
+def test_unreadable_encoding_names_the_byte(tmp_path):
+    f = tmp_path / "latin.csv"
+    f.write_bytes("ph,pco2,hco3,na,cl,note\n7.40,40,24.22,140,106.78,gr\xfc\xdfe\n"
+                  .encode("latin-1"))
+    with pytest.raises(BatchInputError, match="0xfc"):
+        fileio.sniff_csv(f)
+    assert fileio.sniff_csv(f, encoding="cp1252").headers[-1] == "note"
+
+
+def test_format_is_known_from_the_name_or_the_bytes(tmp_path):
+    assert fileio.detect_format(DATA / "panels.jsonl") == "jsonl"
+    f = tmp_path / "noext"
+    f.write_bytes(b"PAR1....")
+    assert fileio.detect_format(f) == "parquet"  # Parquet magic number "PAR1"
+
+
+# -- headers ------------------------------------------------------------------
+
+def test_our_field_names_map_case_insensitively_and_keep_units_in_parentheses():
+    layout = fileio.map_headers(["pH", "pCO2 (kPa)", "HCO3", "Na", "Cl", "ward"])
+    assert layout.field_of["pCO2 (kPa)"] == "pco2" and layout.units["pco2"] == "kPa"
+    assert layout.unread == ("ward",)
+
+
+def test_loinc_codes_map_to_their_fields():
+    # LOINC 2744-1 pH arterial, 2019-8 pCO2 arterial, 1960-4 HCO3 arterial,
+    # 2951-2 sodium serum/plasma, 2075-0 chloride (interoperability notes A.1).
+    layout = fileio.map_headers(["2744-1", "2019-8", "1960-4", "2951-2", "2075-0"])
+    assert [layout.field_of[h] for h in layout.headers] == ["ph", "pco2", "hco3", "na", "cl"]
+
+
+def test_loinc_mass_glucose_code_reads_mg_per_dl():
+    # LOINC 2345-7 is "Glucose [Mass/volume] in Serum or Plasma" (interoperability notes A.1).
+    layout = fileio.map_headers(["ph", "pco2", "hco3", "na", "cl", "2345-7"])
+    assert layout.units["glucose"] == "mg/dL"
+
+
+def test_loinc_code_of_uncertain_property_needs_a_stated_unit():
+    with pytest.raises(BatchInputError, match="state the unit"):
+        fileio.map_headers(["ph", "pco2", "hco3", "na", "cl", "2777-1"])
+    layout = fileio.map_headers(["ph", "pco2", "hco3", "na", "cl", "2777-1"],
+                                units={"phosphate": "mg/dL"})
+    assert layout.units["phosphate"] == "mg/dL"
+
+
+def test_mapping_file_maps_a_laboratorys_headers_with_units():
+    mapping = fileio.read_mapping(DATA / "lab_mapping.csv")
+    headers = fileio.sniff_csv(DATA / "lab_export.csv").headers
+    layout = fileio.map_headers(headers, mapping)
+    assert layout.field_of["PaCO2"] == "pco2" and layout.units["pco2"] == "kPa"
+    assert layout.field_of["Specimen"] == "sample_type"
+
+
+def test_mapping_file_with_unknown_field_names_the_line(tmp_path):
+    f = tmp_path / "map.csv"
+    f.write_text("header,field\nPaCO2,pco2\nSodium,sodium\n")
+    with pytest.raises(BatchInputError, match="line 3"):
+        fileio.read_mapping(f)
+
+
+def test_two_columns_for_one_field_stop_the_run():
+    with pytest.raises(BatchInputError, match="both map to ph"):
+        fileio.map_headers(["ph", "2744-1", "pco2", "hco3", "na", "cl"])
+
+
+def test_missing_required_field_names_it_and_the_columns_found():
+    with pytest.raises(BatchInputError, match=r"pCO2 \(pco2\).*'PaCO2'"):
+        fileio.map_headers(["ph", "PaCO2", "hco3", "na", "cl"])
+
+
+def test_unit_the_field_does_not_accept_stops_the_run():
+    with pytest.raises(BatchInputError, match="not accepted"):
+        fileio.map_headers(["ph", "pco2", "hco3", "na", "cl"], units={"pco2": "bar"})
+
+
+def test_conflicting_units_stop_the_run():
+    with pytest.raises(BatchInputError, match="state one unit"):
+        fileio.map_headers(["ph", "pco2 (kPa)", "hco3", "na", "cl"], units={"pco2": "mmHg"})
+
+
+def test_strict_columns_refuses_unknown_headers():
+    with pytest.raises(BatchInputError, match="'ward'"):
+        fileio.map_headers(["ph", "pco2", "hco3", "na", "cl", "ward"], strict=True)
+
+
+def test_loinc_table_is_built_from_the_field_table():
+    """Codes exist once (acidbase.fields); the header table inverts them."""
+    codes = {c: s.name for s in NUMERIC for c in s.loinc}
+    assert loinc.HEADER_CODES == codes
+    assert set(loinc.SPECIMEN) == set(codes)
+    assert set(loinc.IMPLIED_UNIT) <= set(codes) and loinc.UNIT_REQUIRED <= set(codes)
+
+
+# -- times --------------------------------------------------------------------
+
+@pytest.mark.parametrize("text", ["2026-01-01T10:00:00Z", "2026-01-01T10:00:00+01:00",
+                                  "2026-01-01T10:00:00-0530", "2026-03-01T00:30:00+02:00"])
+def test_iso_times_with_offsets_match_the_standard_library(text):
+    # ISO 8601; Python's datetime.fromisoformat is the reference.
+    secs, kind = fileio.parse_times(pa.array([text]))
+    ref = dt.datetime.fromisoformat(text.replace("Z", "+00:00").replace("-0530", "-05:30"))
+    assert kind[0] == fileio.TIME_ZONED and secs[0] == int(ref.timestamp())
+
+
+def test_iso_times_without_offset_are_wall_clock():
+    secs, kind = fileio.parse_times(pa.array(["2026-01-01T10:00", "2026-01-01 10:00:30"]))
+    ref = dt.datetime(2026, 1, 1, 10, 0, tzinfo=dt.timezone.utc).timestamp()
+    assert kind.tolist() == [fileio.TIME_NAIVE] * 2 and secs.tolist() == [ref, ref + 30]
+
+
+@pytest.mark.parametrize("text", ["2026-02-30T10:00:00Z", "2026-01-01", "yesterday",
+                                  "01/02/2026 10:00", "2026-13-01T10:00:00"])
+def test_invalid_or_dateless_times_are_invalid_not_rolled_over(text):
+    # 30 February does not exist (Gregorian calendar); a date alone has no time of day.
+    _, kind = fileio.parse_times(pa.array([text, None]))
+    assert kind.tolist() == [fileio.TIME_INVALID, fileio.TIME_MISSING]
+
+
+# -- writing ------------------------------------------------------------------
+
+@pytest.mark.parametrize("cell", ["=1+2", "+A1", "-cmd", "@SUM(A1)", "\tx", "\rx", "\nx"])
+def test_formula_cells_get_a_leading_quote(cell):
+    # OWASP "CSV Injection": prefix cells starting with = + - @ TAB CR LF with '.
+    assert fileio.escape_formula(pa.array([cell])).to_pylist() == ["'" + cell]
+
+
+@pytest.mark.parametrize("cell", ["-5.2", "+3", "-0,6", "7.40", "normal", "", None])
+def test_numbers_and_plain_text_are_not_escaped(cell):
+    # Numbers stay numbers (interoperability notes A.5, clinical caveat on base excess).
+    assert fileio.escape_formula(pa.array([cell], type=pa.string())).to_pylist() == [cell]
+
+
+def test_csv_writer_quotes_per_rfc4180_and_escapes(tmp_path):
+    out = tmp_path / "o.csv"
+    w = fileio.Writer(str(out), "csv")
+    w.write(pa.table({"a": pa.array(['=1+2";=1+2', "x,y"]), "b": pa.array([-5.2, 1.0])}))
+    w.close()
+    rows = list(csv.reader(out.open(newline="")))  # the standard library's RFC 4180 reader
+    assert rows == [["a", "b"], ["'=1+2\";=1+2", "-5.2"], ["x,y", "1"]]
+
+
+def test_writer_leaves_no_file_when_the_run_fails(tmp_path):
+    out = tmp_path / "o.csv"
+    w = fileio.Writer(str(out), "csv")
+    w.write(pa.table({"a": ["x"]}))
+    w.close(ok=False)
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_rechunk_keeps_every_row_in_order():
+    batches = [pa.record_batch({"i": list(range(s, s + n))}) for s, n in ((0, 5), (5, 1), (6, 9))]
+    tables = list(fileio.rechunk(iter(batches), 4))
+    assert [t.num_rows for t in tables] == [4, 4, 4, 3]
+    assert sum((t["i"].to_pylist() for t in tables), []) == list(range(15))

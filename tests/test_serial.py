@@ -1,0 +1,156 @@
+"""Serial checks: delta limits, series breaks, windows, unsorted input.
+
+The limits are those of ``acidbase.serial.DELTA_RULES`` (common laboratory practice, no
+source); each test puts a change just inside or just outside one of them.  Base values
+are the E3 normal panel of the methods sheet (Na+ 140 mmol/L from worked example E23).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pyarrow as pa
+import pytest
+
+from acidbase import fileio, serial
+
+LIMIT = {r.field: r.limit for r in serial.DELTA_RULES}
+HOUR = 3600
+
+
+def run(patients, hours, values, partitions=1, rules=serial.DELTA_RULES, window=24.0,
+        times=None):
+    checker = serial.SerialChecker(rules, window, partitions)
+    if times is None:
+        secs = np.array([int(h * HOUR) for h in hours], dtype=np.int64)
+        kind = np.full(len(secs), fileio.TIME_ZONED, dtype=np.int8)
+    else:
+        secs, kind = fileio.parse_times(pa.array(times))
+    vals = {k: np.asarray(v, dtype=np.float64) for k, v in values.items()}
+    checker.add(pa.array(patients, type=pa.string()), secs, kind, vals,
+                pa.array([f"S{i + 1}" for i in range(len(patients))]))
+    checker.finish()
+    return checker.columns(0, len(patients))
+
+
+def test_change_above_the_limit_is_flagged_on_the_later_panel():
+    na = 140.0 + LIMIT["na"] + 1
+    out = run(["P", "P"], [0, 2], {"na": [140.0, na]})
+    assert out["serial_codes"].tolist() == ["", "SERIAL-DELTA-NA"]
+    assert out["serial_status"].tolist() == ["within limits", "flagged"]
+    assert "row 1" in out["serial_detail"][1] and "sample S1" in out["serial_detail"][1]
+
+
+def test_change_equal_to_the_limit_is_not_flagged():
+    out = run(["P", "P"], [0, 2], {"k": [4.0, 4.0 + LIMIT["k"]]})
+    assert out["serial_codes"].tolist() == ["", ""]
+
+
+def test_panels_further_apart_than_the_window_are_not_compared():
+    out = run(["P", "P"], [0, 24.5], {"na": [140.0, 120.0]})
+    assert out["serial_codes"].tolist() == ["", ""]
+    assert out["serial_status"][0] == serial.STATUS_TEXT[serial.ALONE]
+
+
+def test_different_patients_are_never_compared():
+    out = run(["A", "B"], [0, 1], {"na": [140.0, 120.0]})
+    assert out["serial_codes"].tolist() == ["", ""]
+
+
+def test_a_one_panel_spike_breaks_the_series():
+    na = [140.0, 141.0, 128.0, 140.0, 139.0]
+    out = run(["P"] * 5, [0, 2, 4, 6, 8], {"na": na})
+    assert out["serial_codes"][2] == "SERIAL-BREAK;SERIAL-DELTA-NA"
+    assert out["serial_codes"][3] == "SERIAL-DELTA-NA"  # the return to the series
+    assert out["serial_codes"][[0, 1, 4]].tolist() == ["", "", ""]
+    assert "another patient" in out["serial_detail"][2]
+
+
+def test_a_steady_trend_below_the_limit_is_not_a_break():
+    out = run(["P"] * 4, [0, 6, 12, 18], {"na": [140.0, 134.0, 128.0, 122.0]})
+    assert out["serial_codes"].tolist() == ["", "", "", ""]
+
+
+def test_a_step_that_stays_is_a_delta_not_a_break():
+    out = run(["P"] * 3, [0, 2, 4], {"na": [140.0, 125.0, 126.0]})
+    assert out["serial_codes"].tolist() == ["", "SERIAL-DELTA-NA", ""]
+
+
+def test_unsorted_rows_give_the_same_flags_as_sorted_rows():
+    rng = np.random.default_rng(7)
+    pats = ["P"] * 5 + ["Q"] * 3
+    hours = [0, 2, 4, 6, 8, 0, 1, 2]
+    na = [140.0, 141.0, 128.0, 140.0, 139.0, 140.0, 152.0, 152.0]
+    ref = run(pats, hours, {"na": na})
+    perm = rng.permutation(len(pats))
+    out = run([pats[i] for i in perm], [hours[i] for i in perm], {"na": [na[i] for i in perm]})
+    assert out["serial_codes"].tolist() == ref["serial_codes"][perm].tolist()
+
+
+def test_partitioning_does_not_change_the_result():
+    rng = np.random.default_rng(3)
+    n = 400
+    pats = [f"P{i}" for i in rng.integers(0, 40, n)]
+    hours = rng.uniform(0, 72, n)
+    na = 140.0 + rng.normal(0, 6, n)
+    one = run(pats, hours, {"na": na}, partitions=1)
+    many = run(pats, hours, {"na": na}, partitions=7)
+    for key in serial.COLUMNS:
+        assert one[key].tolist() == many[key].tolist()
+    assert (one["serial_codes"] != "").any()
+
+
+def test_missing_value_takes_no_part():
+    out = run(["P", "P"], [0, 2], {"na": [140.0, np.nan]})
+    assert out["serial_codes"].tolist() == ["", ""]
+
+
+def test_rows_without_id_or_time_are_not_assessable():
+    out = run(["P", None, "P"], None, {"na": [140.0, 150.0, 150.0]},
+              times=["2026-01-01T08:00:00Z", "2026-01-01T09:00:00Z", "bad"])
+    assert out["serial_status"].tolist() == [serial.STATUS_TEXT[serial.ALONE],
+                                            serial.STATUS_TEXT[serial.NO_ID],
+                                            serial.STATUS_TEXT[serial.BAD_TIME]]
+
+
+def test_offsets_are_compared_in_utc():
+    # 10:00+01:00 is 09:00Z (ISO 8601), so the 09:30Z panel is the later one.
+    out = run(["P", "P"], None, {"na": [140.0, 152.0]},
+              times=["2026-01-01T10:00:00+01:00", "2026-01-01T09:30:00Z"])
+    assert out["serial_codes"].tolist() == ["", "SERIAL-DELTA-NA"]
+    assert "0.5 h" in out["serial_detail"][1]
+
+
+def test_times_without_offset_beside_times_with_one_are_not_assessable():
+    out = run(["P", "P", "P"], None, {"na": [140.0, 140.0, 140.0]},
+              times=["2026-01-01T08:00:00Z", "2026-01-01T09:00:00Z", "2026-01-01T10:00:00"])
+    assert out["serial_status"][2] == serial.STATUS_TEXT[serial.MIXED_ZONE]
+
+
+def test_laboratory_limits_replace_the_defaults():
+    rules = serial.rules_with({"na": 15.0, "k": None})
+    out = run(["P", "P"], [0, 2], {"na": [140.0, 152.0], "k": [4.0, 6.0]}, rules=rules)
+    assert out["serial_codes"].tolist() == ["", ""]
+
+
+def test_columns_answer_by_row_range_across_chunks():
+    checker = serial.SerialChecker(serial.DELTA_RULES, 24.0, 3)
+    for start in range(0, 6, 2):  # three chunks of two rows
+        secs = np.array([(start + j) * HOUR for j in range(2)], dtype=np.int64)
+        checker.add(pa.array(["P", "P"]), secs, np.full(2, fileio.TIME_ZONED, dtype=np.int8),
+                    {"na": np.array([140.0, 140.0 if start != 2 else 160.0])})
+    checker.finish()
+    codes = sum((checker.columns(s, s + 2)["serial_codes"].tolist() for s in range(0, 6, 2)), [])
+    assert codes == ["", "", "", "SERIAL-BREAK;SERIAL-DELTA-NA", "SERIAL-DELTA-NA", ""]
+
+
+def test_every_rule_names_a_source_and_a_known_field():
+    from acidbase.fields import BY_NAME
+
+    for r in serial.DELTA_RULES:
+        assert r.field in BY_NAME and r.limit > 0 and r.source
+
+
+@pytest.mark.parametrize("bad", [0.0, -1.0])
+def test_window_must_be_positive(bad):
+    with pytest.raises(ValueError):
+        serial.SerialChecker(window_hours=bad)
