@@ -1,0 +1,219 @@
+"""Unit confusion and out-of-range refusals, with their messages.
+
+Our own messages (type ``outside_accepted_range``, ``unit_not_accepted``) are asserted in
+full text: field, value, unit, allowed range and the hint.  For pydantic's own errors
+only ``type`` and ``loc`` are asserted.  Unit factors: UCUM (Regenstrief Institute),
+1 kPa = 7.50062 mm[Hg]; 1 g/dL = 10 g/L; glucose 180.16 g/mol (IUPAC atomic weights).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pydantic
+import pytest
+
+import acidbase
+
+from .panels import MMHG_PER_KPA, normal_e3
+
+E3 = dict(ph=7.40, pco2=40.0, hco3=24.22, na=140.0, cl=106.78)  # methods E3, normal-gap filler
+
+
+def refusal(**changes) -> list[dict]:
+    with pytest.raises(pydantic.ValidationError) as info:
+        acidbase.Panel(**(E3 | changes))
+    return info.value.errors(include_url=False)
+
+
+def only(errors: list[dict]) -> dict:
+    assert len(errors) == 1, errors
+    return errors[0]
+
+
+# ---------------------------------------------------------------- a value impossible in its unit
+
+
+def test_pco2_5_3_in_mmhg_is_refused_with_a_hint_naming_kpa():
+    # 5.3 is a normal pCO2 in kPa (5.3 x 7.50062 = 39.8 mm[Hg], UCUM) and impossible in mm[Hg].
+    e = only(refusal(pco2=5.3))
+    assert e["type"] == "outside_accepted_range" and e["loc"] == ("pco2",)
+    assert e["msg"] == (
+        "pCO2 (pco2) 5.3 mm[Hg] is outside the accepted range 8 to 200 mm[Hg]; pCO2 would be "
+        "ordinary at this value in kPa: if that is the unit, state it (pco2 unit kPa); the value "
+        "was not converted")
+
+
+def test_albumin_38_in_g_per_dl_is_refused_with_a_hint_naming_g_per_l():
+    # 38 g/L is an ordinary albumin (textbook 35-50 g/L, methods 12.1, value from memory); 38 g/dL
+    # is ten times any plasma protein.
+    e = only(refusal(albumin=38.0, albumin_unit="g/dL"))
+    assert e["type"] == "outside_accepted_range" and e["loc"] == ("albumin",)
+    assert e["msg"] == (
+        "Albumin (albumin) 38 g/dL is outside the accepted range 0.3 to 8 g/dL; Albumin would be "
+        "ordinary at this value in g/L: if that is the unit, state it (albumin unit g/L); the value "
+        "was not converted")
+
+
+def test_glucose_6_in_mg_per_dl_is_refused_with_a_hint_naming_mmol_per_l():
+    # 6 mmol/L is an ordinary glucose; 6 mg/dL is 0.33 mmol/L (6 x 10 / 180.16), not survivable.
+    e = only(refusal(glucose=6.0, glucose_unit="mg/dL"))
+    assert e["type"] == "outside_accepted_range" and e["loc"] == ("glucose",)
+    assert e["msg"].startswith("Glucose (glucose) 6 mg/dL is outside the accepted range ")
+    assert e["msg"].endswith(
+        " mg/dL; Glucose would be ordinary at this value in mmol/L: if that is the unit, state it "
+        "(glucose unit mmol/L); the value was not converted")
+
+
+def test_pco2_40_in_kpa_is_refused_with_a_hint_naming_mmhg():
+    """The hint works both ways: 40 kPa (300 mm[Hg]) is a normal pCO2 typed in the wrong unit."""
+    e = only(refusal(pco2=40.0, pco2_unit="kPa"))
+    assert "pCO2 (pco2) 40 kPa is outside the accepted range" in e["msg"]
+    assert "ordinary at this value in mm[Hg]" in e["msg"]
+
+
+def test_refusal_context_carries_field_value_unit_and_range():
+    ctx = only(refusal(pco2=5.3))["ctx"]
+    assert (ctx["field"], ctx["value"], ctx["unit"], ctx["low"], ctx["high"]) == (
+        "pco2", 5.3, "mm[Hg]", 8.0, 200.0)
+
+
+def test_a_value_is_never_converted_silently():
+    """No unit is guessed: the refused panel does not exist, so nothing downstream can read it."""
+    with pytest.raises(pydantic.ValidationError):
+        acidbase.Panel(**(E3 | {"pco2": 5.3}))
+
+
+# ---------------------------------------------------------------- kPa accepted and equivalent
+
+
+def test_pco2_in_kpa_is_normalised_with_the_ucum_factor():
+    # UCUM: 1 kPa = 7.50062 mm[Hg]; 5.3 kPa = 39.753 mm[Hg].
+    p = acidbase.Panel(**(E3 | {"pco2": 5.3, "pco2_unit": "kPa"}))
+    # Tolerance 1e-5 relative: UCUM's factor printed to 6 figures (7.50062) against the engine's
+    # 1 / 0.133322; both round 760 / 101.325 = 7.500617.
+    assert p.canonical()["pco2"] == pytest.approx(5.3 * 7.50062, rel=1e-5)
+
+
+def test_kpa_pco2_gives_the_same_reading_as_the_mmhg_value(interpret):
+    kpa = interpret(acidbase.Panel(**(E3 | {"pco2": 5.3, "pco2_unit": "kPa"})))
+    mmhg = interpret(acidbase.Panel(**(E3 | {"pco2": 5.3 * MMHG_PER_KPA})))
+    assert kpa.disorders == mmhg.disorders
+    assert kpa.codes() == mmhg.codes()
+    assert kpa.consistency.status == mmhg.consistency.status
+    for key, value in mmhg.derived.items():
+        if value is None:
+            assert kpa.derived[key] is None, key
+        else:
+            assert kpa.derived[key] == pytest.approx(value, rel=1e-5, abs=1e-4), key
+
+
+def test_albumin_in_g_per_dl_is_corrected_as_the_same_value_in_g_per_l(interpret):
+    # Methods E18: albumin 2.0 g/dL = 20 g/L; gap 9 corrects to 9 + 0.25 x (44 - 20) = 15 (Figge 1998).
+    r = interpret(normal_e3(albumin=2.0, albumin_unit="g/dL"))
+    assert r.derived["anion_gap_corrected"] == pytest.approx(15.0)
+
+
+def test_e23_osmolality_from_conventional_units(interpret):
+    # Methods E23: Na 140, glucose 90 mg/dL, BUN 14 mg/dL -> 290 with the rounded divisors 18 and
+    # 2.8 (Lynd et al. 2008 conversions); molar masses (IUPAC) give 289.99.  Measured 299.5 is
+    # just inside the > 10 mosm/kg threshold (methods 7.1 [S]).
+    r = interpret(normal_e3(glucose=90.0, glucose_unit="mg/dL", bun=14.0, osmolality=299.5))
+    assert r.derived["osmolality_calculated"] == pytest.approx(290.0, abs=0.1)
+    assert r.derived["osmolal_gap"] == pytest.approx(9.5, abs=0.1)
+
+
+@pytest.mark.parametrize(("measured", "code"), [(299.5, "D-OSMOLAL-GAP"),
+                                                (300.5, "D-OSMOLAL-GAP-HIGH")])
+def test_osmolal_gap_is_raised_just_above_10(interpret, measured, code):
+    # Raised above 10 mosm/kg (common threshold, methods 7.1 [S]; Lynd 2008): against E23's 290,
+    # measured 299.5 is just inside (gap 9.5), 300.5 just outside (gap 10.5).
+    r = interpret(normal_e3(glucose=90.0, glucose_unit="mg/dL", bun=14.0, osmolality=measured))
+    assert code in r.codes()
+
+
+# ---------------------------------------------------------------- out of the accepted range
+
+
+@pytest.mark.parametrize(
+    ("field", "value", "message"),
+    [
+        # Methods 11.2 suggested hard limits (design): pH 6.5-8.0, HCO3 2-60.
+        ("ph", 8.1, "pH (ph) 8.1 [pH] is outside the accepted range 6.5 to 8 [pH]"),
+        ("ph", 6.4, "pH (ph) 6.4 [pH] is outside the accepted range 6.5 to 8 [pH]"),
+        ("hco3", 61.0, "HCO3- (hco3) 61 mmol/L is outside the accepted range 2 to 60 mmol/L"),
+        ("hco3", 1.5, "HCO3- (hco3) 1.5 mmol/L is outside the accepted range 2 to 60 mmol/L"),
+    ],
+)
+def test_value_just_outside_the_measuring_range_is_refused_with_its_range(field, value, message):
+    e = only(refusal(**{field: value}))
+    assert e["type"] == "outside_accepted_range" and e["loc"] == (field,)
+    assert e["msg"] == message
+
+
+@pytest.mark.parametrize(("field", "value"), [("ph", 8.0), ("ph", 6.5), ("hco3", 60.0), ("hco3", 2.0)])
+def test_value_at_the_measuring_range_edge_is_accepted(field, value):
+    # Methods 11.2 limits are "< 6.5 or > 8.0", "< 2 or > 60": the edges themselves are measurable.
+    acidbase.Panel(**(E3 | {field: value}))
+
+
+def test_extreme_but_accepted_value_is_flagged(interpret):
+    # pH 6.79: just outside the traditional 6.8-7.8 "compatible with life" (common practice, no
+    # source), inside the measuring range: accepted, flagged critical, never refused.
+    r = interpret(acidbase.Panel(**(E3 | {"ph": 6.79, "hco3": 4.5})))
+    assert "T-PH-LIFE" in r.codes()
+
+
+def test_unknown_unit_is_refused_naming_the_accepted_units():
+    e = only(refusal(pco2_unit="psi"))
+    assert e["type"] == "unit_not_accepted" and e["loc"] == ("pco2_unit",)
+    assert e["msg"] == "unit 'psi' is not accepted for pCO2; use one of mm[Hg], kPa"
+
+
+def test_every_problem_is_collected_in_one_error():
+    errors = refusal(pco2=5.3, albumin=38.0, albumin_unit="g/dL")
+    assert {e["loc"] for e in errors} == {("pco2",), ("albumin",)}
+
+
+# ---------------------------------------------------------------- pydantic's own errors
+
+
+@pytest.mark.parametrize(
+    ("changes", "type_", "loc"),
+    [
+        ({"ph": "seven"}, "float_parsing", ("ph",)),
+        ({"ph": float("nan")}, "finite_number", ("ph",)),
+        ({"pco2": float("inf")}, "finite_number", ("pco2",)),
+        ({"colour": "red"}, "extra_forbidden", ("colour",)),
+        ({"sample_type": "arterialised"}, "literal_error", ("sample_type",)),
+    ],
+)
+def test_malformed_input_is_refused_by_pydantic(changes, type_, loc):
+    e = only(refusal(**changes))
+    assert (e["type"], e["loc"]) == (type_, loc)
+
+
+def test_missing_required_field_is_refused():
+    fields = {k: v for k, v in E3.items() if k != "na"}
+    with pytest.raises(pydantic.ValidationError) as info:
+        acidbase.Panel(**fields)
+    e = only(info.value.errors(include_url=False))
+    assert (e["type"], e["loc"]) == ("missing", ("na",))
+
+
+def test_urea_and_bun_together_are_refused_for_the_panel_as_a_whole():
+    e = only(refusal(urea=5.0, bun=14.0))
+    assert e["type"] == "urea_and_bun" and e["loc"] == ()
+    assert e["msg"] == "give urea or urea nitrogen (bun), not both"
+
+
+# ---------------------------------------------------------------- the batch path keeps the row
+
+
+def test_batch_keeps_a_refused_row_with_the_same_message():
+    cols = {k: np.array([v, v]) for k, v in E3.items()}
+    cols["pco2"] = np.array([40.0, 5.3])
+    res = acidbase.interpret_many(cols)
+    assert res.refused.tolist() == [False, True]
+    assert res.interpretation(0).status == "interpreted"
+    assert res.interpretation(1).status == "refused"
+    assert res.interpretation(1).problems == (only(refusal(pco2=5.3))["msg"],)
