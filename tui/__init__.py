@@ -1,0 +1,1 @@
+"""The keyboard-only terminal app over the acidbase library (``acidbase tui``)."""

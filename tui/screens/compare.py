@@ -1,0 +1,119 @@
+"""Two kept panels side by side, with what changed between them."""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING, ClassVar
+
+from textual.app import ComposeResult
+from textual.binding import Binding, BindingType
+from textual.screen import Screen
+from textual.widgets import DataTable, Footer, Static
+
+import acidbase
+from acidbase.fields import NUMERIC
+from acidbase.report import DERIVED_LABELS
+
+from ..widgets.chrome import CautionBar, TitleLine
+
+if TYPE_CHECKING:
+    from ..app import AcidBaseApp
+
+
+class CompareTable(DataTable):
+    """Rows: inputs, consistency, derived values; columns: A, B and B - A."""
+
+
+def _num(x: float | None, fmt: str = ".4g") -> str:
+    return "" if x is None else format(x, fmt)
+
+
+def _change(a: float | None, b: float | None, fmt: str = ".4g") -> str:
+    if a is None or b is None:
+        return "" if a is None and b is None else "only one"
+    return format(b - a, "+" + fmt.lstrip("+"))
+
+
+class CompareScreen(Screen[None]):
+    """Panel A (earlier) and panel B (later) of the series."""
+
+    BINDINGS: ClassVar[list[BindingType]] = [
+        Binding("f6", "step(-1)", "B earlier", tooltip="Compare with an earlier panel as B.",
+                id="compare-earlier"),
+        Binding("f7", "step(1)", "B later", tooltip="Compare with a later panel as B.",
+                id="compare-later"),
+        Binding("escape,f8", "app.pop_screen", "back", tooltip="Back.", id="compare-back"),
+    ]
+
+    app: AcidBaseApp
+
+    def __init__(self, a: int, b: int) -> None:
+        super().__init__()
+        self.a, self.b = a, b
+
+    def compose(self) -> ComposeResult:
+        yield TitleLine("", id="compare-title")
+        yield CompareTable(id="compare", zebra_stripes=True, cursor_type="row")
+        yield Static("", id="compare-processes", markup=False)
+        yield CautionBar()
+        yield Footer(compact=True)
+
+    def on_mount(self) -> None:
+        self.query_one(CompareTable).add_columns("", "A", "B", "B - A")
+        self.fill()
+        self.query_one(CompareTable).focus()
+
+    def action_step(self, step: int) -> None:
+        n = len(self.app.sitting.entries)
+        b = self.b + step
+        if b == self.a:
+            b += step
+        if 0 <= b < n:
+            self.b = b
+            self.fill()
+
+    def _read(self, i: int) -> tuple[acidbase.Panel | None, acidbase.Interpretation | None]:
+        panel = self.app.sitting.entries[i].panel()
+        return panel, (acidbase.interpret(panel, self.app.settings) if panel else None)
+
+    def fill(self) -> None:
+        entries = self.app.sitting.entries
+        (pa, ia), (pb, ib) = self._read(self.a), self._read(self.b)
+        self.query_one("#compare-title", TitleLine).update(
+            f"acidbase - compare - A: panel {self.a + 1} {entries[self.a].label()} - "
+            f"B: panel {self.b + 1} {entries[self.b].label()}")
+        table = self.query_one(CompareTable)
+        table.clear()
+        ca = pa.canonical() if pa else {}
+        cb = pb.canonical() if pb else {}
+        for spec in NUMERIC:
+            va, vb = ca.get(spec.name), cb.get(spec.name)
+            if va is not None or vb is not None:
+                table.add_row(f"{spec.title} {spec.unit}", _num(va), _num(vb), _change(va, vb))
+        sa = ia.consistency.status if ia and ia.consistency else "refused"
+        sb = ib.consistency.status if ib and ib.consistency else "refused"
+        table.add_row("consistency", sa, sb, "same" if sa == sb else "changed")
+        for key, label, unit, fmt in DERIVED_LABELS:
+            va = ia.derived.get(key) if ia else None
+            vb = ib.derived.get(key) if ib else None
+            if va is not None or vb is not None:
+                table.add_row(f"{label} {unit}".strip(), _num(va, fmt), _num(vb, fmt),
+                              _change(va, vb, fmt))
+        self.query_one("#compare-processes", Static).update("\n".join(self._words(ia, ib)))
+
+    @staticmethod
+    def _words(ia: acidbase.Interpretation | None,
+               ib: acidbase.Interpretation | None) -> list[str]:
+        def labels(it: acidbase.Interpretation | None) -> str:
+            if it is None:
+                return "refused by the engine"
+            return "; ".join(d.label() for d in it.disorders) or "none"
+
+        lines = [f"A processes: {labels(ia)}", f"B processes: {labels(ib)}"]
+        if ia and ib:
+            ta = {f.title for f in ia.findings}
+            tb = {f.title for f in ib.findings}
+            gone = [f.title for f in ia.findings if f.title not in tb]
+            new = [f.title for f in ib.findings if f.title not in ta]
+            lines.append("Only in A: " + ("; ".join(gone) or "nothing"))
+            lines.append("Only in B: " + ("; ".join(new) or "nothing"))
+        return lines

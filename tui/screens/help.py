@@ -1,0 +1,84 @@
+"""Every key, read from the bindings themselves so the list cannot drift."""
+
+from __future__ import annotations
+
+from typing import ClassVar
+
+from textual.app import ComposeResult
+from textual.binding import Binding, BindingType
+from textual.containers import VerticalScroll
+from textual.screen import Screen
+from textual.widgets import Footer, Static
+
+from ..widgets.chrome import CautionBar, TitleLine
+from ..widgets.form import ChoiceField
+from .compare import CompareScreen
+from .entry import EntryScreen
+from .files import LoadScreen, SaveScreen
+from .finding import FindingScreen
+from .plane import PlaneScreen
+from .series import SeriesScreen
+
+#: Keys that Textual's own widgets give (not bindings of ours), per place.
+MOVING: dict[str, list[tuple[str, str]]] = {
+    "Entry": [
+        ("Tab / Shift+Tab", ("next / previous field: pH, pCO2, HCO3-, Na+, Cl-, sample, "
+                             "HCO3- source, more values, time and ids")),
+        ("Enter", "on 'More values': fold or unfold it; on a finding: open it"),
+        ("Up / Down", "in the reading: move between findings"),
+    ],
+    "Series": [("Up / Down", "move between panels")],
+    "Compare": [("Up / Down", "move between rows")],
+    "Finding": [("Up / Down / Page keys", "scroll")],
+}
+
+PLACES: tuple[tuple[str, list[Binding]], ...] = (
+    ("Entry", EntryScreen.BINDINGS),
+    ("Sample, HCO3- source and other answer fields", ChoiceField.BINDINGS),
+    ("Finding", FindingScreen.BINDINGS),
+    ("Plane", PlaneScreen.BINDINGS),
+    ("Series", SeriesScreen.BINDINGS),
+    ("Compare", CompareScreen.BINDINGS),
+    ("Save", SaveScreen.BINDINGS),
+    ("Load", LoadScreen.BINDINGS),
+)
+
+
+def key_words(keys: str) -> str:
+    """``"escape,f4"`` -> ``"Esc / F4"``; ``"ctrl+s"`` -> ``"Ctrl+S"``."""
+    names = {"escape": "Esc", "enter": "Enter", "space": "Space", "left": "Left",
+             "right": "Right", "delete": "Delete"}
+    out = []
+    for key in keys.split(","):
+        parts = key.strip().split("+")
+        out.append("+".join(names.get(p, p.capitalize() if len(p) > 1 else p.upper())
+                            for p in parts))
+    return " / ".join(out)
+
+
+def help_lines(everywhere: list[Binding]) -> list[str]:
+    """The key list: everywhere first, then each place."""
+    lines = ["Everywhere"]
+    lines += [f"  {key_words(b.key):<16} {b.tooltip or b.description}" for b in everywhere]
+    for place, bindings in PLACES:
+        lines += ["", place]
+        lines += [f"  {key_words(b.key):<16} {b.tooltip or b.description}" for b in bindings]
+        lines += [f"  {k:<16} {text}" for k, text in MOVING.get(place, [])]
+    return lines
+
+
+class HelpScreen(Screen[None]):
+    """Every key of the app."""
+
+    BINDINGS: ClassVar[list[BindingType]] = [Binding("escape,f1", "app.pop_screen", "back", tooltip="Close the help.",
+                        id="help-back")]
+
+    def compose(self) -> ComposeResult:
+        yield TitleLine("acidbase - help - every key (printable keys always go into the field)")
+        with VerticalScroll(id="help"):
+            yield Static("\n".join(help_lines(self.app.BINDINGS)), markup=False, id="help-text")
+        yield CautionBar()
+        yield Footer(compact=True)
+
+    def on_mount(self) -> None:
+        self.query_one("#help").focus()

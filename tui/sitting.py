@@ -1,0 +1,202 @@
+"""The sitting's panels: a list of entries kept while the app runs, and their CSV file.
+
+An entry holds the panel as it was keyed in (the mapping given to
+``acidbase.Panel.model_validate``), so a panel the engine refuses can still be
+kept, shown and corrected.  Nothing here reads a value: validation and every
+number come from the library.
+
+The CSV columns (documented in docs/tui.md) are the field names of
+``acidbase.fields``, numeric fields first in their printed order, each in its
+canonical unit (``Panel.canonical()``), then ``sample_type``, ``hco3_source``
+and the text fields.  ``acidbase batch`` reads the same columns.
+"""
+
+from __future__ import annotations
+
+import csv
+import os
+from dataclasses import dataclass, field
+from typing import Any
+
+from pydantic import ValidationError
+
+import acidbase
+from acidbase.fields import NUMERIC, TEXT_FIELDS
+
+#: The columns of a sitting file, in order.
+COLUMNS: tuple[str, ...] = (
+    *(spec.name for spec in NUMERIC), "sample_type", "hco3_source", *TEXT_FIELDS)
+
+#: Keys of an entry's mapping that are not panel fields (shown, never saved).
+NOTE = "note"
+
+
+@dataclass
+class Entry:
+    """One panel of the sitting, as keyed in."""
+
+    data: dict[str, Any]
+    """The mapping for ``Panel.model_validate``: values, ``<name>_unit``, choices, text."""
+    note: str = ""
+    """A free note shown beside the entry (the demo panels carry one); not saved."""
+
+    def panel(self) -> acidbase.Panel | None:
+        """The validated panel, or None when the engine refuses it."""
+        try:
+            return acidbase.Panel.model_validate(self.data)
+        except ValidationError:
+            return None
+
+    def problems(self) -> list[str]:
+        """The engine's messages for what it refuses (empty when accepted)."""
+        try:
+            acidbase.Panel.model_validate(self.data)
+        except ValidationError as e:
+            return acidbase.describe(e)
+        return []
+
+    def label(self) -> str:
+        """How the entry is named in lists: its time, patient and sample id."""
+        parts = [str(self.data[k]) for k in ("collected_at", "patient_id", "sample_id")
+                 if self.data.get(k)]
+        return " ".join(parts) or "no time or id"
+
+
+@dataclass
+class Sitting:
+    """The panels kept during one run of the app, and which one the form shows."""
+
+    entries: list[Entry] = field(default_factory=list)
+    current: int | None = None
+    """Index of the entry the form is linked to (its accepted edits update it), or None."""
+
+    def keep(self, data: dict[str, Any], note: str = "") -> int:
+        """Add a copy of ``data`` as a new entry; the form is then linked to it."""
+        self.entries.append(Entry(dict(data), note))
+        self.current = len(self.entries) - 1
+        return self.current
+
+    def update_current(self, data: dict[str, Any]) -> None:
+        """The linked entry takes the form's accepted contents."""
+        if self.current is not None:
+            self.entries[self.current].data = dict(data)
+
+    def move(self, step: int) -> Entry | None:
+        """Link the form to the entry ``step`` places away; None at either end."""
+        if not self.entries:
+            return None
+        start = self.current if self.current is not None else (
+            len(self.entries) if step < 0 else -1)
+        target = start + step
+        if not 0 <= target < len(self.entries):
+            return None
+        self.current = target
+        return self.entries[target]
+
+    def remove(self, index: int) -> None:
+        del self.entries[index]
+        if self.current is not None:
+            if self.current == index:
+                self.current = None
+            elif self.current > index:
+                self.current -= 1
+
+
+def demo_entries() -> list[Entry]:
+    """The library's demo panels as entries (their notes kept for display)."""
+    from acidbase.demo import DEMO_PANELS
+
+    out = []
+    for panel in DEMO_PANELS:
+        data = {k: v for k, v in panel.items() if k != NOTE}
+        out.append(Entry(data, str(panel.get(NOTE, ""))))
+    return out
+
+
+# ---------------------------------------------------------------------------
+# The file
+
+
+def _cell(value: Any) -> str:
+    if value is None:
+        return ""
+    return repr(value) if isinstance(value, float) else str(value)
+
+
+def row_of(entry: Entry) -> dict[str, str] | None:
+    """One CSV row: canonical units for an accepted panel.
+
+    A refused entry is written as keyed in when every unit it names is the
+    canonical one (the batch run then refuses it with the same message);
+    otherwise it cannot be written in the file's units and None is returned.
+    """
+    panel = entry.panel()
+    row: dict[str, str] = {}
+    if panel is not None:
+        canonical = panel.canonical()
+        for spec in NUMERIC:
+            row[spec.name] = _cell(canonical[spec.name])
+        for name in ("sample_type", "hco3_source", *TEXT_FIELDS):
+            row[name] = _cell(getattr(panel, name))
+        return row
+    for spec in NUMERIC:
+        unit = entry.data.get(f"{spec.name}_unit")
+        if unit is not None and unit != spec.unit:
+            return None
+        row[spec.name] = _cell(entry.data.get(spec.name))
+    for name in ("sample_type", "hco3_source", *TEXT_FIELDS):
+        row[name] = _cell(entry.data.get(name))
+    return row
+
+
+def write_csv(path: str | os.PathLike[str], entries: list[Entry]) -> tuple[int, list[int]]:
+    """Write the entries; returns (rows written, 1-based numbers of entries left out)."""
+    left_out: list[int] = []
+    rows = []
+    for i, entry in enumerate(entries, start=1):
+        row = row_of(entry)
+        if row is None:
+            left_out.append(i)
+        else:
+            rows.append(row)
+    with open(path, "w", newline="", encoding="utf-8") as fh:
+        writer = csv.DictWriter(fh, fieldnames=COLUMNS)
+        writer.writeheader()
+        writer.writerows(rows)
+    return len(rows), left_out
+
+
+class SittingFileError(ValueError):
+    """A file that cannot be read as a sitting at all."""
+
+
+def read_csv(path: str | os.PathLike[str]) -> tuple[list[Entry], list[str]]:
+    """Entries from a file with our columns; returns (entries, notes for the user).
+
+    Cells are passed to the engine as text: it parses and checks them, so a
+    refused row becomes an entry that shows the engine's messages.  Columns
+    that are not ours are named in the notes and not read.
+    """
+    try:
+        with open(path, newline="", encoding="utf-8-sig") as fh:
+            reader = csv.DictReader(fh)
+            headers = [h.strip() for h in (reader.fieldnames or [])]
+            rows = list(reader)
+    except (OSError, UnicodeDecodeError, csv.Error) as e:
+        raise SittingFileError(f"{path}: {e}") from e
+    missing = [n for n in acidbase.fields.REQUIRED if n not in headers]
+    if missing:
+        raise SittingFileError(f"{path}: no column {', '.join(missing)}; see docs/tui.md")
+    notes = []
+    unread = [h for h in headers if h not in COLUMNS]
+    if unread:
+        notes.append("columns not read: " + ", ".join(unread))
+    entries = []
+    for row in rows:
+        data = {}
+        for key, cell in row.items():
+            name = (key or "").strip()
+            if name in COLUMNS and cell is not None and cell.strip():
+                data[name] = cell.strip()
+        entries.append(Entry(data))
+    return entries, notes

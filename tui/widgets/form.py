@@ -1,0 +1,208 @@
+"""The entry form: one row per panel field, in the order a blood-gas report prints.
+
+Titles, units and the order come from ``acidbase.fields``; the form never
+checks a value itself.  It gathers what is typed into the mapping that
+``acidbase.Panel.model_validate`` reads, and shows beside each field the
+engine's message for a refused value.
+"""
+
+from __future__ import annotations
+
+from typing import Any, ClassVar
+
+from textual import on
+from textual.app import ComposeResult
+from textual.binding import Binding, BindingType
+from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.message import Message
+from textual.reactive import reactive
+from textual.widget import Widget
+from textual.widgets import Collapsible, Input, Label, Static
+
+from acidbase.fields import HCO3_SOURCES, NUMERIC, SAMPLE_TYPES, TEXT_FIELDS, FieldSpec
+
+#: Plain names for the text fields (they carry no chemistry).
+TEXT_TITLES = {"collected_at": "Collected", "patient_id": "Patient", "sample_id": "Sample id"}
+
+
+class ValueInput(Input):
+    """The text box of one numeric field (its id is the field name)."""
+
+
+class ValueField(Vertical):
+    """One numeric field: title, value, unit, and the engine's message when refused."""
+
+    unit: reactive[str] = reactive("")
+    """The unit the typed number is read in (UCUM); F2 cycles it."""
+
+    class UnitChanged(Message):
+        """The unit of a field was switched."""
+
+        def __init__(self, field: ValueField) -> None:
+            self.field = field
+            super().__init__()
+
+        @property
+        def control(self) -> ValueField:
+            return self.field
+
+    def __init__(self, spec: FieldSpec) -> None:
+        super().__init__(id=f"field-{spec.name}", classes="field-row")
+        self.spec = spec
+        self.set_reactive(ValueField.unit, spec.unit)
+
+    def compose(self) -> ComposeResult:
+        with Horizontal(classes="field-line"):
+            yield Label(self.spec.title, classes="field-title", markup=False)
+            yield ValueInput(id=self.spec.name, compact=True, select_on_focus=False,
+                             tooltip=self.spec.help)
+            yield Label(self.unit, classes="field-unit", markup=False)
+        yield Static("", classes="field-message")
+
+    @property
+    def text(self) -> str:
+        return self.query_one(ValueInput).value.strip()
+
+    def watch_unit(self, unit: str) -> None:
+        self.query_one(".field-unit", Label).update(unit)
+
+    def next_unit(self) -> bool:
+        """Read the typed number in the field's next unit; False when it has only one."""
+        units = self.spec.units
+        if len(units) < 2:
+            return False
+        self.unit = units[(units.index(self.unit) + 1) % len(units)] if self.unit in units \
+            else units[0]
+        self.post_message(self.UnitChanged(self))
+        return True
+
+    def show_message(self, lines: list[str]) -> None:
+        """Show the engine's messages for this field (none: clear)."""
+        box = self.query_one(".field-message", Static)
+        box.update("\n".join(f"refused: {line}" for line in lines))
+        self.set_class(bool(lines), "-refused")
+
+
+class ChoiceField(Widget, can_focus=True):
+    """A field with a few fixed answers, cycled with the arrow keys or space."""
+
+    BINDINGS: ClassVar[list[BindingType]] = [
+        Binding("right,space", "step(1)", "next answer", show=False),
+        Binding("left", "step(-1)", "previous answer", show=False),
+    ]
+
+    value: reactive[str] = reactive("")
+
+    class Changed(Message):
+        def __init__(self, field: ChoiceField) -> None:
+            self.field = field
+            super().__init__()
+
+        @property
+        def control(self) -> ChoiceField:
+            return self.field
+
+    def __init__(self, name: str, title: str, choices: tuple[str, ...], value: str) -> None:
+        super().__init__(id=name, classes="choice")
+        self.title = title
+        self.choices = choices
+        self.set_reactive(ChoiceField.value, value)
+
+    def render(self) -> str:
+        # The brackets mark focus in words and shapes, not by colour alone.
+        shown = f"< {self.value} >" if self.has_focus else f"  {self.value}  "
+        return f"{self.title:<10}{shown}"
+
+    def on_focus(self) -> None:
+        self.refresh()
+
+    def on_blur(self) -> None:
+        self.refresh()
+
+    def action_step(self, step: int) -> None:
+        i = self.choices.index(self.value) if self.value in self.choices else 0
+        self.value = self.choices[(i + step) % len(self.choices)]
+        self.post_message(self.Changed(self))
+
+
+class TextInput(Input):
+    """A free-text field (time, patient, sample id)."""
+
+
+class EntryForm(VerticalScroll):
+    """All the panel's fields: the required ones, the sample, more values, the labels."""
+
+    class Edited(Message):
+        """Something in the form changed (a value, a unit or a choice)."""
+
+    def compose(self) -> ComposeResult:
+        required = [s for s in NUMERIC if s.required]
+        optional = [s for s in NUMERIC if not s.required]
+        for spec in required:
+            yield ValueField(spec)
+        yield ChoiceField("sample_type", "Sample", SAMPLE_TYPES, "unknown")
+        yield ChoiceField("hco3_source", "HCO3- from", HCO3_SOURCES, "unknown")
+        with Collapsible(title="More values (F3 folds)", collapsed=False, id="more",
+                         collapsed_symbol="+", expanded_symbol="-"):
+            for spec in optional:
+                yield ValueField(spec)
+        for name in TEXT_FIELDS:
+            with Horizontal(classes="field-line text-line"):
+                yield Label(TEXT_TITLES[name], classes="field-title", markup=False)
+                yield TextInput(id=name, compact=True, max_length=200)
+        yield Static("", id="panel-message")
+
+    # -- reading the form ----------------------------------------------------
+    def fields(self) -> list[ValueField]:
+        return list(self.query(ValueField))
+
+    def field(self, name: str) -> ValueField:
+        return self.query_one(f"#field-{name}", ValueField)
+
+    def data(self) -> dict[str, Any]:
+        """The mapping for ``Panel.model_validate``: typed text, units, choices, labels."""
+        out: dict[str, Any] = {}
+        for f in self.fields():
+            if f.text:
+                out[f.spec.name] = f.text
+            if f.unit != f.spec.unit:
+                out[f"{f.spec.name}_unit"] = f.unit
+        for choice in self.query(ChoiceField):
+            out[choice.id] = choice.value
+        for box in self.query(TextInput):
+            if box.value.strip():
+                out[box.id] = box.value.strip()
+        return out
+
+    def fill(self, data: dict[str, Any]) -> None:
+        """Show ``data`` in the form (as from an entry); posts one ``Edited``."""
+        with self.prevent(Input.Changed, ValueField.UnitChanged, ChoiceField.Changed):
+            for f in self.fields():
+                value = data.get(f.spec.name)
+                f.query_one(ValueInput).value = "" if value is None else str(value)
+                f.unit = str(data.get(f"{f.spec.name}_unit") or f.spec.unit)
+            for choice in self.query(ChoiceField):
+                value = str(data.get(choice.id) or "unknown")
+                choice.value = value if value in choice.choices else "unknown"
+            for box in self.query(TextInput):
+                box.value = str(data.get(box.id) or "")
+        self.post_message(self.Edited())
+
+    # -- showing what the engine said ----------------------------------------
+    def show_problems(self, by_field: dict[str, list[str]]) -> None:
+        """Messages beside their fields; those of the panel as a whole at the end."""
+        for f in self.fields():
+            f.show_message(by_field.get(f.spec.name, []))
+        rest = [line for name, lines in by_field.items()
+                if name not in {f.spec.name for f in self.fields()} for line in lines]
+        box = self.query_one("#panel-message", Static)
+        box.update("\n".join(f"refused: {line}" for line in rest))
+        box.set_class(bool(rest), "-refused")
+
+    # -- events ----------------------------------------------------------------
+    @on(Input.Changed)
+    @on(ValueField.UnitChanged)
+    @on(ChoiceField.Changed)
+    def _edited(self, event: Message) -> None:
+        event.stop()
+        self.post_message(self.Edited())

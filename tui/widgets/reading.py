@@ -1,0 +1,110 @@
+"""The reading: trust first, then the processes, then the derived values.
+
+Every line comes from the Interpretation: its consistency status, its
+disorders' labels and its findings' text.  Each finding is an option that opens
+its working and sources.  Severity is always written as a word.
+"""
+
+from __future__ import annotations
+
+from textual.app import ComposeResult
+from textual.containers import Vertical
+from textual.content import Content
+from textual.widgets import OptionList, Static
+from textual.widgets.option_list import Option
+
+import acidbase
+from acidbase.fields import NUMERIC
+
+#: The three questions, in the order they are answered.
+SECTIONS: tuple[tuple[str, str], ...] = (
+    ("trust", "Trust"),
+    ("process", "Processes"),
+    ("detail", "Derived values"),
+)
+
+#: Severity marks: the word itself, padded so the statements line up.
+MARKS = {"critical": "CRITICAL", "caution": "caution ", "info": "info    "}
+
+
+def heading(section: str, title: str, it: acidbase.Interpretation) -> str:
+    """The heading of one section, with the summary the Interpretation gives for it."""
+    if section == "trust":
+        status = it.consistency.status if it.consistency else "not assessable"
+        return f"{title}: consistency {status}"
+    if section == "process":
+        labels = "; ".join(d.label() for d in it.disorders) or "none"
+        return f"{title}: {labels}"
+    return title
+
+
+class ReadingState(Static):
+    """One sentence on the state of the reading (none when it is fresh)."""
+
+    def update(self, content="") -> None:  # type: ignore[override]
+        super().update(content)
+        self.set_class(not content, "-empty")
+
+
+class FindingList(OptionList):
+    """The reading's lines; a finding's option id is ``finding-<index>``."""
+
+
+class ReadingPane(Vertical):
+    """The current reading, or the last accepted one marked stale."""
+
+    def __init__(self, **kwargs) -> None:
+        super().__init__(**kwargs)
+        self.reading: acidbase.Interpretation | None = None
+        """The Interpretation shown (the last accepted one when stale)."""
+        self.stale = False
+        """True when the form now holds values the engine refuses."""
+
+    def compose(self) -> ComposeResult:
+        yield ReadingState("", id="reading-state", markup=False)
+        yield FindingList(id="findings")
+
+    def on_mount(self) -> None:
+        self.show(None)
+
+    def show(self, it: acidbase.Interpretation | None, stale_because: str = "") -> None:
+        """Show a fresh reading (``it``), or mark the shown one stale (``stale_because``)."""
+        state = self.query_one("#reading-state", ReadingState)
+        if stale_because:
+            self.stale = self.reading is not None
+            if self.stale:
+                state.update(f"STALE: the last accepted reading, not what the form holds now. "
+                             f"{stale_because}")
+            else:
+                state.update(stale_because)
+                self.query_one(FindingList).clear_options()
+            self.set_class(self.stale, "-stale")
+            return
+        self.stale = False
+        self.set_class(False, "-stale")
+        self.reading = it
+        options = self.query_one(FindingList)
+        options.clear_options()
+        if it is None:
+            state.update("No reading yet: key in "
+                         + ", ".join(s.title for s in NUMERIC if s.required) + ".")
+            return
+        if it.status == "refused":
+            state.update("Refused: " + "; ".join(it.problems))
+            return
+        state.update("")
+        found = list(enumerate(it.findings))
+        for section, title in SECTIONS:
+            options.add_option(Option(Content.from_markup("[b]$text[/b]",
+                                                          text=heading(section, title, it)),
+                                      id=section, disabled=True))
+            for i, f in found:
+                if f.section == section:
+                    options.add_option(Option(
+                        Content(f"{MARKS.get(f.severity, f.severity)} {f.text}"),
+                        id=f"finding-{i}"))
+
+    def lines(self) -> list[str]:
+        """The text of every line shown (for tests and the tmux check)."""
+        options = self.query_one(FindingList)
+        return [str(options.get_option_at_index(i).prompt) for i in range(options.option_count)]
