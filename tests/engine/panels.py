@@ -90,6 +90,11 @@ def catalogue() -> dict[str, acidbase.Panel]:
         "E25 hypothermia": normal_e3(po2=90.0, temperature=33.0),
         "E3 venous": venous_kelly(),
         "E3 in kPa": normal_e3(pco2=40.0 / MMHG_PER_KPA, pco2_unit="kPa"),
+        # Methods E23: glucose 90 mg/dL, BUN 14 mg/dL; one with a measured osmolality just
+        # above the > 10 mosm/kg gap threshold (methods 7.1 [S]), one without.
+        "E23 with measured osmolality": normal_e3(glucose=90.0, glucose_unit="mg/dL", bun=14.0,
+                                                  osmolality=300.5),
+        "E23 without measured osmolality": normal_e3(glucose=90.0, glucose_unit="mg/dL", bun=14.0),
     }
 
 
