@@ -306,3 +306,11 @@ def test_expected_aa_gradient_at_age_40_is_14():
     # Age/4 + 4 mm[Hg]: common practice, no source (methods 8, origin not identified): 40/4 + 4 = 14.
     assert oxy.expected_aa_gradient(a(40.0))[0] == pytest.approx(14.0)
 
+
+
+def test_story_partition_without_lactate_leaves_lactate_in_other_ions():
+    """A missing lactate is NaN in its own slot and counted within "other ions"."""
+    # Story 2016 constants on the E17 case without its lactate: other = -13.04 - (-12 + 5) = -6.04.
+    _, _, lac, other = gaps.story_partition(a(133.0), a(110.0), a(22.0), a(np.nan), a(-13.04))
+    assert np.isnan(lac[0])
+    assert other[0] == pytest.approx(-6.04)
