@@ -115,3 +115,29 @@ def test_temperature_corrected_values_match_e26(interpret):
     assert d["ph_at_temperature"] == pytest.approx(7.371, abs=0.0005)
     assert d["pco2_at_temperature"] == pytest.approx(43.7, abs=0.05)
     assert d["po2_at_temperature"] == pytest.approx(102.1, abs=0.05)
+
+
+@pytest.mark.parametrize(
+    ("po2", "band"),
+    [
+        (50.0, "severe"),     # P/F 100: the severe band's upper edge (<= 100)
+        (50.5, "moderate"),   # P/F 101: just inside moderate (100 < P/F <= 200)
+        (100.0, "moderate"),  # P/F 200: the moderate band's upper edge
+        (100.5, "mild"),      # P/F 201: just inside mild (200 < P/F <= 300)
+        (150.0, "mild"),      # P/F 300: the mild band's upper edge
+        (150.5, "outside"),   # P/F 301: just above every Berlin range
+    ],
+)
+def test_pf_ratio_bands_follow_the_berlin_definition(interpret, po2, band):
+    # ARDS Definition Task Force, JAMA 2012: mild 200 < P/F <= 300, moderate 100 < P/F <= 200,
+    # severe P/F <= 100 (each with PEEP >= 5); FiO2 0.50 as in methods E22.
+    r = interpret(normal_e3(po2=po2, fio2=0.50))
+    assert band in next(f for f in r.findings if f.code == "D-PF-RATIO").text
+
+
+@pytest.mark.parametrize(("po2", "raised"), [(85.0, True), (86.5, False)])
+def test_aa_gradient_is_raised_just_above_the_age_expected_value(interpret, po2, raised):
+    # Age/4 + 4 = 14 at age 40 (common practice, no source); room-air PAO2 99.7 (E21, Merck):
+    # pO2 85 gives A-a 14.7, just above; pO2 86.5 gives 13.2, just below.
+    codes = interpret(normal_e3(po2=po2, fio2=0.21, age=40.0)).codes()
+    assert ("D-AA-GRADIENT-HIGH" in codes) is raised
