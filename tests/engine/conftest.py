@@ -21,8 +21,9 @@ _POSITION = len(_NEIGHBOURS) // 2
 Interpreter = Callable[..., acidbase.Interpretation]
 
 
-def interpret_as(kind: str, panel: acidbase.Panel,
-                 settings: acidbase.Settings | None = None) -> acidbase.Interpretation:
+def interpret_as(
+    kind: str, panel: acidbase.Panel, settings: acidbase.Settings | None = None
+) -> acidbase.Interpretation:
     """Interpret ``panel`` through one container."""
     if kind == "single":
         return acidbase.interpret(panel, settings)

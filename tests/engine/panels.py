@@ -47,8 +47,15 @@ def edge_panel(hco3: float, pco2: float, gap: float = GAP_MIDPOINT, **extra) -> 
     Cl- is chosen so that the anion gap without K+ equals ``gap`` (default: the
     Klaestrup 2011 midpoint, a normal gap).
     """
-    fields = dict(ph=ph_for(hco3, pco2), pco2=pco2, hco3=hco3, na=NA_E23,
-                  cl=NA_E23 - hco3 - gap, sample_type="arterial", hco3_source="analyser")
+    fields = {
+        "ph": ph_for(hco3, pco2),
+        "pco2": pco2,
+        "hco3": hco3,
+        "na": NA_E23,
+        "cl": NA_E23 - hco3 - gap,
+        "sample_type": "arterial",
+        "hco3_source": "analyser",
+    }
     fields.update(extra)
     return acidbase.Panel(**fields)
 
@@ -57,15 +64,31 @@ def story_2016() -> acidbase.Panel:
     """Story DA, Anesth Analg 2016 bedside case (methods E17): Na 133, Cl 110, albumin
     22 g/L, lactate 5, pH 7.20, pCO2 40, HCO3 15.  Sample type and HCO3- source are not
     part of the case; arterial blood-gas values are assumed."""
-    return acidbase.Panel(ph=7.20, pco2=40.0, hco3=15.0, na=133.0, cl=110.0, albumin=22.0,
-                          albumin_unit="g/L", lactate=5.0, sample_type="arterial",
-                          hco3_source="analyser")
+    return acidbase.Panel(
+        ph=7.20,
+        pco2=40.0,
+        hco3=15.0,
+        na=133.0,
+        cl=110.0,
+        albumin=22.0,
+        albumin_unit="g/L",
+        lactate=5.0,
+        sample_type="arterial",
+        hco3_source="analyser",
+    )
 
 
 def normal_e3(**extra) -> acidbase.Panel:
     """Methods E3: pH 7.40, pCO2 40 gives CLSI HCO3 24.22 mmol/L; normal gap filler."""
-    fields = dict(ph=7.40, pco2=40.0, hco3=24.22, na=NA_E23, cl=NA_E23 - 24.22 - GAP_MIDPOINT,
-                  sample_type="arterial", hco3_source="analyser")
+    fields = {
+        "ph": 7.40,
+        "pco2": 40.0,
+        "hco3": 24.22,
+        "na": NA_E23,
+        "cl": NA_E23 - 24.22 - GAP_MIDPOINT,
+        "sample_type": "arterial",
+        "hco3_source": "analyser",
+    }
     return acidbase.Panel(**(fields | extra))
 
 
@@ -92,8 +115,9 @@ def catalogue() -> dict[str, acidbase.Panel]:
         "E3 in kPa": normal_e3(pco2=40.0 / MMHG_PER_KPA, pco2_unit="kPa"),
         # Methods E23: glucose 90 mg/dL, BUN 14 mg/dL; one with a measured osmolality just
         # above the > 10 mosm/kg gap threshold (methods 7.1 [S]), one without.
-        "E23 with measured osmolality": normal_e3(glucose=90.0, glucose_unit="mg/dL", bun=14.0,
-                                                  osmolality=300.5),
+        "E23 with measured osmolality": normal_e3(
+            glucose=90.0, glucose_unit="mg/dL", bun=14.0, osmolality=300.5
+        ),
         "E23 without measured osmolality": normal_e3(glucose=90.0, glucose_unit="mg/dL", bun=14.0),
     }
 
@@ -103,9 +127,15 @@ def venous_kelly(sample_type: str = "venous") -> acidbase.Panel:
     Kelly, Emerg Med Australas 2010 (pH -0.035, pCO2 +5.7 mm[Hg], HCO3 +1.41 mmol/L):
     pH 7.365, pCO2 45.7, HCO3 25.63; Cl- for the filler gap."""
     hco3 = 24.22 + 1.41
-    return acidbase.Panel(ph=7.40 - 0.035, pco2=40.0 + 5.7, hco3=hco3, na=NA_E23,
-                          cl=NA_E23 - hco3 - GAP_MIDPOINT, sample_type=sample_type,
-                          hco3_source="analyser")
+    return acidbase.Panel(
+        ph=7.40 - 0.035,
+        pco2=40.0 + 5.7,
+        hco3=hco3,
+        na=NA_E23,
+        cl=NA_E23 - hco3 - GAP_MIDPOINT,
+        sample_type=sample_type,
+        hco3_source="analyser",
+    )
 
 
 def columns_of(panels: list[acidbase.Panel]) -> dict[str, np.ndarray]:
@@ -114,7 +144,8 @@ def columns_of(panels: list[acidbase.Panel]) -> dict[str, np.ndarray]:
     cols: dict[str, np.ndarray] = {}
     for spec in NUMERIC:
         cols[spec.name] = np.array(
-            [np.nan if c[spec.name] is None else c[spec.name] for c in canon], dtype=np.float64)
+            [np.nan if c[spec.name] is None else c[spec.name] for c in canon], dtype=np.float64
+        )
     cols["sample_type"] = np.array([p.sample_type for p in panels], dtype=object)
     cols["hco3_source"] = np.array([p.hco3_source for p in panels], dtype=object)
     return cols

@@ -88,11 +88,11 @@ def test_metabolic_alkalosis_rule_flags_pco2_below_band(interpret):
 @pytest.mark.parametrize(
     ("hco3", "timing"),
     [
-        (24.5, "acute"),          # just inside the acute band's lower edge 24
-        (27.5, "acute"),          # just inside the acute band's upper edge 28
+        (24.5, "acute"),  # just inside the acute band's lower edge 24
+        (27.5, "acute"),  # just inside the acute band's upper edge 28
         (28.5, "indeterminate"),  # just outside acute (28) and short of chronic (29)
-        (29.5, "chronic"),        # just inside the chronic band's lower edge 29
-        (32.5, "chronic"),        # just inside the chronic band's upper edge 33
+        (29.5, "chronic"),  # just inside the chronic band's lower edge 29
+        (32.5, "chronic"),  # just inside the chronic band's upper edge 33
     ],
 )
 def test_respiratory_acidosis_timing_follows_the_acute_and_chronic_bands(interpret, hco3, timing):
@@ -129,11 +129,11 @@ def test_indeterminate_respiratory_acidosis_is_not_forced_to_a_label(interpret):
 @pytest.mark.parametrize(
     ("hco3", "timing"),
     [
-        (21.5, "acute"),          # just inside the acute band's upper edge 22
-        (18.5, "acute"),          # just inside the acute band's lower edge 18
+        (21.5, "acute"),  # just inside the acute band's upper edge 22
+        (18.5, "acute"),  # just inside the acute band's lower edge 18
         (18.0, "indeterminate"),  # the shared edge: inside both bands
-        (17.5, "chronic"),        # just inside the chronic band's upper edge 18
-        (14.5, "chronic"),        # just inside the chronic band's lower edge 14
+        (17.5, "chronic"),  # just inside the chronic band's upper edge 18
+        (14.5, "chronic"),  # just inside the chronic band's lower edge 14
     ],
 )
 def test_respiratory_alkalosis_timing_follows_the_acute_and_chronic_bands(interpret, hco3, timing):

@@ -48,9 +48,9 @@ def test_metabolic_alkalosis_rule_stays_inside_the_kidney360_band():
 @pytest.mark.parametrize(
     ("key", "pco2", "expected"),
     [
-        ("acute_respiratory_acidosis", 60.0, 26.0),    # methods E9
+        ("acute_respiratory_acidosis", 60.0, 26.0),  # methods E9
         ("chronic_respiratory_acidosis", 60.0, 31.0),  # methods E9
-        ("acute_respiratory_alkalosis", 20.0, 20.0),   # methods E10
+        ("acute_respiratory_alkalosis", 20.0, 20.0),  # methods E10
         ("chronic_respiratory_alkalosis", 20.0, 16.0),  # methods E10
     ],
 )
@@ -64,8 +64,12 @@ def test_every_bicarbonate_rule_is_anchored_at_pco2_40_and_hco3_24():
     # formula gives 1.5 x 24 + 8 = 44 at HCO3 24, which is its own regression, not an anchor.
     for key in ("metabolic_alkalosis",):
         assert BICARBONATE_RULES[key].expected(a(24.0))[0] == pytest.approx(40.0)
-    for key in ("acute_respiratory_acidosis", "chronic_respiratory_acidosis",
-                "acute_respiratory_alkalosis", "chronic_respiratory_alkalosis"):
+    for key in (
+        "acute_respiratory_acidosis",
+        "chronic_respiratory_acidosis",
+        "acute_respiratory_alkalosis",
+        "chronic_respiratory_alkalosis",
+    ):
         assert BICARBONATE_RULES[key].expected(a(40.0))[0] == pytest.approx(24.0)
 
 
@@ -74,7 +78,9 @@ def test_schlichtig_rules_follow_the_published_equations():
     # pCO2 = 40 + SBE; alkalosis 40 + 0.6 x SBE; acute respiratory SBE 0; chronic 0.4 x (pCO2 - 40).
     # SBE -13.04 is methods E13, +10.82 is E15.
     assert BASE_EXCESS_RULES["be_metabolic_acidosis"].expected(a(-13.04))[0] == pytest.approx(26.96)
-    assert BASE_EXCESS_RULES["be_metabolic_alkalosis"].expected(a(10.82))[0] == pytest.approx(46.492)
+    assert BASE_EXCESS_RULES["be_metabolic_alkalosis"].expected(a(10.82))[0] == pytest.approx(
+        46.492
+    )
     assert BASE_EXCESS_RULES["be_acute_respiratory"].expected(a(60.0))[0] == pytest.approx(0.0)
     assert BASE_EXCESS_RULES["be_chronic_respiratory"].expected(a(60.0))[0] == pytest.approx(8.0)
 

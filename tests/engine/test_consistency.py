@@ -18,8 +18,15 @@ CALC_TCO2 = 25.45  # CLSI C46: 24.22 + 1.228, derived
 
 
 def e3_with(hco3: float, source: str) -> acidbase.Panel:
-    return acidbase.Panel(ph=7.40, pco2=40.0, hco3=hco3, na=NA_E23, cl=NA_E23 - hco3 - GAP_MIDPOINT,
-                          sample_type="arterial", hco3_source=source)
+    return acidbase.Panel(
+        ph=7.40,
+        pco2=40.0,
+        hco3=hco3,
+        na=NA_E23,
+        cl=NA_E23 - hco3 - GAP_MIDPOINT,
+        sample_type="arterial",
+        hco3_source=source,
+    )
 
 
 def test_analyser_hco3_matching_henderson_hasselbalch_is_consistent(interpret):

@@ -22,9 +22,13 @@ CATALOGUE = catalogue()
 #: the osmolality block unless some row of the batch has a measured osmolality, so
 #: ``osmolality_calculated`` of a row without one is None alone and a number beside a row
 #: that has one.  (The same leak in ``story_na_cl``, keyed on albumin, was fixed meanwhile.)
-NEIGHBOUR_LEAK = pytest.mark.xfail(strict=True, reason=(
-    "engine bug: osmolality_calculated of a row without a measured osmolality depends on whether "
-    "another row of the batch has one (block skipped per batch, not per row)"))
+NEIGHBOUR_LEAK = pytest.mark.xfail(
+    strict=True,
+    reason=(
+        "engine bug: osmolality_calculated of a row without a measured osmolality depends on whether "
+        "another row of the batch has one (block skipped per batch, not per row)"
+    ),
+)
 
 
 def _leaks(panel: acidbase.Panel) -> bool:
@@ -74,7 +78,9 @@ def test_one_batch_of_the_whole_catalogue_matches_each_panel_alone():
 def test_a_row_does_not_borrow_a_neighbours_measured_osmolality():
     """A panel without measured osmolality reads the same alone and beside one that has it."""
     without = CATALOGUE["E23 without measured osmolality"]
-    beside = acidbase.interpret_many(columns_of([without, CATALOGUE["E23 with measured osmolality"]]))
+    beside = acidbase.interpret_many(
+        columns_of([without, CATALOGUE["E23 with measured osmolality"]])
+    )
     assert_same(beside.interpretation(0), acidbase.interpret(without))
 
 

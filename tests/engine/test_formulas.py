@@ -78,10 +78,10 @@ def test_kassirer_bleich_agrees_with_the_ph_definition_within_one_percent_at_nor
 @pytest.mark.parametrize(
     ("ph", "hco3", "expected"),
     [
-        (7.40, 24.8, 0.0),      # methods E12
-        (7.20, 15.0, -13.04),   # methods E13
-        (7.10, 10.0, -19.66),   # methods E14
-        (7.50, 34.0, 10.82),    # methods E15
+        (7.40, 24.8, 0.0),  # methods E12
+        (7.20, 15.0, -13.04),  # methods E13
+        (7.10, 10.0, -19.66),  # methods E14
+        (7.50, 34.0, 10.82),  # methods E15
     ],
 )
 def test_standard_base_excess_matches_the_van_slyke_worked_values(ph, hco3, expected):
@@ -259,7 +259,14 @@ def test_figge_fencl_effective_sid_at_normal_values_is_38_44():
 
 def test_apparent_sid_counts_divalent_ions_twice():
     # CJASN definitions table (methods 6.1 [C]): ionised Ca and Mg enter in mEq/L = 2 x mmol/L.
-    args = dict(na=a(140.0), k=a(4.0), ica=a(1.0), mg=a(1.0), cl=a(100.0), lactate=a(1.0))
+    args = {
+        "na": a(140.0),
+        "k": a(4.0),
+        "ica": a(1.0),
+        "mg": a(1.0),
+        "cl": a(100.0),
+        "lactate": a(1.0),
+    }
     base = gaps.sid_apparent(**args)[0]
     assert gaps.sid_apparent(**(args | {"ica": a(2.0)}))[0] - base == pytest.approx(2.0)
     assert gaps.sid_apparent(**(args | {"mg": a(2.0)}))[0] - base == pytest.approx(2.0)
@@ -305,7 +312,6 @@ def test_pf_ratio_of_90_on_one_half_is_180():
 def test_expected_aa_gradient_at_age_40_is_14():
     # Age/4 + 4 mm[Hg]: common practice, no source (methods 8, origin not identified): 40/4 + 4 = 14.
     assert oxy.expected_aa_gradient(a(40.0))[0] == pytest.approx(14.0)
-
 
 
 def test_story_partition_without_lactate_leaves_lactate_in_other_ions():

@@ -11,6 +11,8 @@ from __future__ import annotations
 
 import pytest
 
+import acidbase
+
 from .panels import GAP_MIDPOINT, edge_panel, story_2016
 
 
@@ -49,14 +51,14 @@ def test_story_case_partition_uses_the_bedside_constants(interpret):
     # Story 2016 bedside constants (methods 6.2 [S]), E17 derived: Na-Cl -12, albumin +5,
     # lactate -4; "other ions" is by definition SBE minus the three.
     d = interpret(story_2016()).derived
-    assert (d["story_na_cl"], d["story_albumin"], d["story_lactate"]) == pytest.approx((-12.0, 5.0, -4.0))
+    assert (d["story_na_cl"], d["story_albumin"], d["story_lactate"]) == pytest.approx(
+        (-12.0, 5.0, -4.0)
+    )
     assert d["story_other"] == pytest.approx(d["standard_base_excess"] + 11.0)
 
 
 def test_story_case_with_reference_albumin_40_still_reads_a_high_gap(interpret):
     # Figge 1998 with the common teaching reference 40 g/L (methods 14): 8 + 0.25 x 18 = 12.5 > 12.
-    import acidbase
-
     r = interpret(story_2016(), acidbase.Settings(reference_albumin_g_l=40.0))
     assert r.derived["anion_gap_corrected"] == pytest.approx(12.5)
     assert ("metabolic acidosis", "primary", None, "high") in disorders(r)
@@ -69,8 +71,10 @@ def test_story_case_with_reference_albumin_40_still_reads_a_high_gap(interpret):
 def test_delta_ratio_just_below_0_8_reveals_a_hidden_normal_gap_acidosis(interpret):
     # Gap 9 + 7.9 = 16.9: ratio 0.79, just outside the 0.8 edge of the uncomplicated band.
     r = interpret(edge_panel(14.0, 29.0, gap=GAP_MIDPOINT + 7.9))
-    assert disorders(r) == {("metabolic acidosis", "primary", None, "high"),
-                            ("metabolic acidosis", "additional", None, "normal")}
+    assert disorders(r) == {
+        ("metabolic acidosis", "primary", None, "high"),
+        ("metabolic acidosis", "additional", None, "normal"),
+    }
     assert "P-DELTA-NORMAL-GAP" in r.codes()
 
 
@@ -87,8 +91,10 @@ def test_delta_ratio_just_above_0_8_is_an_uncomplicated_high_gap_acidosis(interp
 def test_delta_ratio_just_above_2_reveals_a_metabolic_alkalosis(interpret):
     # Gap 9 + 8.1 = 17.1: ratio 2.03, just outside the 2.0 edge -> concurrent metabolic alkalosis.
     r = interpret(edge_panel(20.0, 38.0, gap=GAP_MIDPOINT + 8.1))
-    assert disorders(r) == {("metabolic acidosis", "primary", None, "high"),
-                            ("metabolic alkalosis", "additional", None, None)}
+    assert disorders(r) == {
+        ("metabolic acidosis", "primary", None, "high"),
+        ("metabolic alkalosis", "additional", None, None),
+    }
     assert "P-DELTA-ALKALOSIS" in r.codes()
 
 
@@ -103,9 +109,11 @@ def test_high_gap_acidosis_metabolic_alkalosis_and_respiratory_alkalosis_togethe
     # Triple: HCO3 20 with gap 17.1 (ratio 2.03, as above) and pCO2 35.5, just outside Winter's
     # lower edge 36 (1.5 x 20 + 8 - 2) -> additional respiratory alkalosis.
     r = interpret(edge_panel(20.0, 35.5, gap=GAP_MIDPOINT + 8.1))
-    assert disorders(r) == {("metabolic acidosis", "primary", None, "high"),
-                            ("metabolic alkalosis", "additional", None, None),
-                            ("respiratory alkalosis", "additional", "indeterminate", None)}
+    assert disorders(r) == {
+        ("metabolic acidosis", "primary", None, "high"),
+        ("metabolic alkalosis", "additional", None, None),
+        ("respiratory alkalosis", "additional", "indeterminate", None),
+    }
 
 
 # ---------------------------------------------------------------- metabolic + respiratory acidosis
@@ -114,8 +122,10 @@ def test_high_gap_acidosis_metabolic_alkalosis_and_respiratory_alkalosis_togethe
 def test_metabolic_acidosis_with_respiratory_acidosis_from_the_published_example(interpret):
     # Methods E6: HCO3 10, pCO2 28 above Winter's 21-25 -> concurrent respiratory acidosis.
     r = interpret(edge_panel(10.0, 28.0))
-    assert disorders(r) == {("metabolic acidosis", "primary", None, "normal"),
-                            ("respiratory acidosis", "additional", "indeterminate", None)}
+    assert disorders(r) == {
+        ("metabolic acidosis", "primary", None, "normal"),
+        ("respiratory acidosis", "additional", "indeterminate", None),
+    }
 
 
 def test_combined_acidosis_with_both_components_abnormal_is_flagged_combined(interpret):
@@ -123,8 +133,10 @@ def test_combined_acidosis_with_both_components_abnormal_is_flagged_combined(int
     # both lowering pH; compensation never moves the other component the same way
     # (Narins & Emmett 1980), so both are primary.
     r = interpret(edge_panel(10.0, 60.0))
-    assert {(d.process, d.role) for d in r.disorders} == {("metabolic acidosis", "primary"),
-                                                          ("respiratory acidosis", "primary")}
+    assert {(d.process, d.role) for d in r.disorders} == {
+        ("metabolic acidosis", "primary"),
+        ("respiratory acidosis", "primary"),
+    }
     assert "P-COMBINED" in r.codes()
 
 
@@ -163,9 +175,13 @@ def test_gap_just_below_the_gabow_threshold_does_not_read_an_acidosis(interpret)
     assert "P-GAP-RAISED-ONLY" in r.codes()
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "engine bug: P-NONE states 'anion gap not raised' while the gap is above the Klaestrup 2011 "
-    "upper limit 12 (P-GAP-RAISED-ONLY fires on the same panel)"))
+@pytest.mark.xfail(
+    strict=True,
+    reason=(
+        "engine bug: P-NONE states 'anion gap not raised' while the gap is above the Klaestrup 2011 "
+        "upper limit 12 (P-GAP-RAISED-ONLY fires on the same panel)"
+    ),
+)
 def test_no_disorder_statement_does_not_deny_a_raised_gap(interpret):
     # Gap 13: just outside Klaestrup's upper edge 12, on the E3 acid-base values.
     r = interpret(edge_panel(24.22, 40.0, gap=13.0))

@@ -14,6 +14,8 @@ from acidbase.compensation import BASE_EXCESS_RULES, BICARBONATE_RULES
 from acidbase.references import CITATIONS
 from acidbase.rules import RULES, SECTIONS, SEVERITIES
 
+from .panels import story_2016
+
 PACKAGE = Path(acidbase.__file__).parent
 
 
@@ -25,8 +27,7 @@ def test_every_rule_code_is_unique():
 def test_every_rule_code_is_a_stable_identifier():
     """Section letter, then upper-case words joined by hyphens (T-, P-, D-)."""
     prefix = {"trust": "T", "process": "P", "detail": "D"}
-    bad = [r.code for r in RULES
-           if not re.fullmatch(rf"{prefix[r.section]}(-[A-Z0-9]+)+", r.code)]
+    bad = [r.code for r in RULES if not re.fullmatch(rf"{prefix[r.section]}(-[A-Z0-9]+)+", r.code)]
     assert bad == []
 
 
@@ -44,8 +45,9 @@ def test_every_citation_key_of_a_rule_exists(rule):
     assert [k for k in rule.refs if k not in CITATIONS] == []
 
 
-@pytest.mark.parametrize("rule", [*BICARBONATE_RULES.values(), *BASE_EXCESS_RULES.values()],
-                         ids=lambda r: r.key)
+@pytest.mark.parametrize(
+    "rule", [*BICARBONATE_RULES.values(), *BASE_EXCESS_RULES.values()], ids=lambda r: r.key
+)
 def test_every_compensation_rule_cites_known_sources(rule):
     keys = (*rule.sources, *rule.band_sources)
     assert keys and [k for k in keys if k not in CITATIONS] == []
@@ -53,10 +55,12 @@ def test_every_compensation_rule_cites_known_sources(rule):
 
 def test_every_citation_is_used_somewhere_in_the_package():
     """Each key appears (as a word) in some module other than the bibliography itself."""
-    sources = [p.read_text(encoding="utf-8") for p in PACKAGE.rglob("*.py")
-               if p.name != "references.py"]
-    unused = [k for k in CITATIONS
-              if not any(re.search(rf"\b{re.escape(k)}\b", text) for text in sources)]
+    sources = [
+        p.read_text(encoding="utf-8") for p in PACKAGE.rglob("*.py") if p.name != "references.py"
+    ]
+    unused = [
+        k for k in CITATIONS if not any(re.search(rf"\b{re.escape(k)}\b", text) for text in sources)
+    ]
     assert unused == []
 
 
@@ -72,16 +76,12 @@ def test_every_citation_has_a_known_evidence_label():
 
 def test_findings_carry_the_resolved_citations_of_their_rule(interpret):
     # Any panel will do; the Story 2016 case (E17) fires rules in all three sections.
-    from .panels import story_2016
-
     by_code = {r.code: r for r in RULES}
     for f in interpret(story_2016()).findings:
         assert f.citations == tuple(CITATIONS[k] for k in by_code[f.code].refs)
 
 
 def test_every_output_carries_the_caution(interpret):
-    from .panels import story_2016
-
     r = interpret(story_2016())
     assert r.caution == acidbase.CAUTION
     assert "does not replace" in r.caution
@@ -89,7 +89,5 @@ def test_every_output_carries_the_caution(interpret):
 
 def test_findings_are_ordered_trust_then_process_then_detail(interpret):
     # Issue 2, section 4: findings ordered trust first, then processes, then details.
-    from .panels import story_2016
-
     order = [SECTIONS.index(f.section) for f in interpret(story_2016()).findings]
     assert order == sorted(order)

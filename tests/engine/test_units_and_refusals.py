@@ -16,7 +16,13 @@ import acidbase
 
 from .panels import MMHG_PER_KPA, normal_e3
 
-E3 = dict(ph=7.40, pco2=40.0, hco3=24.22, na=140.0, cl=106.78)  # methods E3, normal-gap filler
+E3 = {
+    "ph": 7.40,
+    "pco2": 40.0,
+    "hco3": 24.22,
+    "na": 140.0,
+    "cl": 106.78,
+}  # methods E3, normal-gap filler
 
 
 def refusal(**changes) -> list[dict]:
@@ -40,7 +46,8 @@ def test_pco2_5_3_in_mmhg_is_refused_with_a_hint_naming_kpa():
     assert e["msg"] == (
         "pCO2 (pco2) 5.3 mm[Hg] is outside the accepted range 8 to 200 mm[Hg]; pCO2 would be "
         "ordinary at this value in kPa: if that is the unit, state it (pco2 unit kPa); the value "
-        "was not converted")
+        "was not converted"
+    )
 
 
 def test_albumin_38_in_g_per_dl_is_refused_with_a_hint_naming_g_per_l():
@@ -51,7 +58,8 @@ def test_albumin_38_in_g_per_dl_is_refused_with_a_hint_naming_g_per_l():
     assert e["msg"] == (
         "Albumin (albumin) 38 g/dL is outside the accepted range 0.3 to 8 g/dL; Albumin would be "
         "ordinary at this value in g/L: if that is the unit, state it (albumin unit g/L); the value "
-        "was not converted")
+        "was not converted"
+    )
 
 
 def test_glucose_6_in_mg_per_dl_is_refused_with_a_hint_naming_mmol_per_l():
@@ -61,7 +69,8 @@ def test_glucose_6_in_mg_per_dl_is_refused_with_a_hint_naming_mmol_per_l():
     assert e["msg"].startswith("Glucose (glucose) 6 mg/dL is outside the accepted range ")
     assert e["msg"].endswith(
         " mg/dL; Glucose would be ordinary at this value in mmol/L: if that is the unit, state it "
-        "(glucose unit mmol/L); the value was not converted")
+        "(glucose unit mmol/L); the value was not converted"
+    )
 
 
 def test_pco2_40_in_kpa_is_refused_with_a_hint_naming_mmhg():
@@ -74,7 +83,12 @@ def test_pco2_40_in_kpa_is_refused_with_a_hint_naming_mmhg():
 def test_refusal_context_carries_field_value_unit_and_range():
     ctx = only(refusal(pco2=5.3))["ctx"]
     assert (ctx["field"], ctx["value"], ctx["unit"], ctx["low"], ctx["high"]) == (
-        "pco2", 5.3, "mm[Hg]", 8.0, 200.0)
+        "pco2",
+        5.3,
+        "mm[Hg]",
+        8.0,
+        200.0,
+    )
 
 
 def test_a_value_is_never_converted_silently():
@@ -122,8 +136,9 @@ def test_e23_osmolality_from_conventional_units(interpret):
     assert r.derived["osmolal_gap"] == pytest.approx(9.5, abs=0.1)
 
 
-@pytest.mark.parametrize(("measured", "code"), [(299.5, "D-OSMOLAL-GAP"),
-                                                (300.5, "D-OSMOLAL-GAP-HIGH")])
+@pytest.mark.parametrize(
+    ("measured", "code"), [(299.5, "D-OSMOLAL-GAP"), (300.5, "D-OSMOLAL-GAP-HIGH")]
+)
 def test_osmolal_gap_is_raised_just_above_10(interpret, measured, code):
     # Raised above 10 mosm/kg (common threshold, methods 7.1 [S]; Lynd 2008): against E23's 290,
     # measured 299.5 is just inside (gap 9.5), 300.5 just outside (gap 10.5).
@@ -150,7 +165,9 @@ def test_value_just_outside_the_measuring_range_is_refused_with_its_range(field,
     assert e["msg"] == message
 
 
-@pytest.mark.parametrize(("field", "value"), [("ph", 8.0), ("ph", 6.5), ("hco3", 60.0), ("hco3", 2.0)])
+@pytest.mark.parametrize(
+    ("field", "value"), [("ph", 8.0), ("ph", 6.5), ("hco3", 60.0), ("hco3", 2.0)]
+)
 def test_value_at_the_measuring_range_edge_is_accepted(field, value):
     # Methods 11.2 limits are "< 6.5 or > 8.0", "< 2 or > 60": the edges themselves are measurable.
     acidbase.Panel(**(E3 | {field: value}))

@@ -64,7 +64,9 @@ def test_arterial_oxygenation_values_match_the_e22_worked_values(interpret):
     # PAO2 306.5, A-a 216.5, P/F 180 -> the Berlin "moderate" range.
     r = interpret(normal_e3(po2=90.0, fio2=0.50))
     d = r.derived
-    assert (d["alveolar_po2"], d["aa_gradient"], d["pf_ratio"]) == pytest.approx((306.5, 216.5, 180.0))
+    assert (d["alveolar_po2"], d["aa_gradient"], d["pf_ratio"]) == pytest.approx(
+        (306.5, 216.5, 180.0)
+    )
     pf = next(f for f in r.findings if f.code == "D-PF-RATIO")
     assert "moderate" in pf.text
 
@@ -120,12 +122,12 @@ def test_temperature_corrected_values_match_e26(interpret):
 @pytest.mark.parametrize(
     ("po2", "band"),
     [
-        (50.0, "severe"),     # P/F 100: the severe band's upper edge (<= 100)
-        (50.5, "moderate"),   # P/F 101: just inside moderate (100 < P/F <= 200)
+        (50.0, "severe"),  # P/F 100: the severe band's upper edge (<= 100)
+        (50.5, "moderate"),  # P/F 101: just inside moderate (100 < P/F <= 200)
         (100.0, "moderate"),  # P/F 200: the moderate band's upper edge
-        (100.5, "mild"),      # P/F 201: just inside mild (200 < P/F <= 300)
-        (150.0, "mild"),      # P/F 300: the mild band's upper edge
-        (150.5, "outside"),   # P/F 301: just above every Berlin range
+        (100.5, "mild"),  # P/F 201: just inside mild (200 < P/F <= 300)
+        (150.0, "mild"),  # P/F 300: the mild band's upper edge
+        (150.5, "outside"),  # P/F 301: just above every Berlin range
     ],
 )
 def test_pf_ratio_bands_follow_the_berlin_definition(interpret, po2, band):
