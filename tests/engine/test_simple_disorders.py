@@ -2,7 +2,8 @@
 
 Expected disorders come from the bicarbonate rules (Narins & Emmett, Medicine 1980;
 Berend, de Vries & Gans, N Engl J Med 2014) applied to the methods sheet's worked values,
-with the arterial intervals pH 7.35-7.45, pCO2 35-45 mm[Hg], HCO3 22-26 mmol/L (same sources).
+against the textbook arterial intervals pH 7.35-7.45, pCO2 35-45 mm[Hg], HCO3 22-26 mmol/L
+(methods 12.1: textbook appendix [S]; pH also in the University of Iowa handbook [C]).
 """
 
 from __future__ import annotations

@@ -143,3 +143,12 @@ def test_aa_gradient_is_raised_just_above_the_age_expected_value(interpret, po2,
     # pO2 85 gives A-a 14.7, just above; pO2 86.5 gives 13.2, just below.
     codes = interpret(normal_e3(po2=po2, fio2=0.21, age=40.0)).codes()
     assert ("D-AA-GRADIENT-HIGH" in codes) is raised
+
+
+@pytest.mark.parametrize(("pco2", "acidosis"), [(50.5, False), (51.5, True)])
+def test_venous_pco2_limit_is_the_arterial_limit_moved_by_kelly(interpret, pco2, acidosis):
+    # Arterial upper limit 45 + Kelly 2010 mean difference 5.7 = 50.7, rounded outward to 51:
+    # 50.5 just inside, 51.5 just outside; HCO3 25.63 as in the Kelly-shifted E3 panel, pH by
+    # Henderson-Hasselbalch (CLSI).
+    r = interpret(edge_panel(25.63, pco2, sample_type="venous"))
+    assert ("respiratory acidosis" in {d.process for d in r.disorders}) is acidosis
