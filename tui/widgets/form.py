@@ -21,7 +21,7 @@ from textual.widgets import Collapsible, Input, Label, Static
 
 from acidbase.fields import HCO3_SOURCES, NUMERIC, SAMPLE_TYPES, TEXT_FIELDS, FieldSpec
 
-#: Plain names for the text fields (they carry no chemistry).
+#: Plain names for the text fields (they carry no chemistry), in the form's order.
 TEXT_TITLES = {"collected_at": "Collected", "patient_id": "Patient", "sample_id": "Sample id"}
 
 
@@ -57,7 +57,7 @@ class ValueField(Vertical):
             yield ValueInput(id=self.spec.name, compact=True, select_on_focus=False,
                              tooltip=self.spec.help)
             yield Label(self.unit, classes="field-unit", markup=False)
-        yield Static("", classes="field-message")
+        yield Static("", classes="field-message", markup=False)
 
     @property
     def text(self) -> str:
@@ -146,11 +146,11 @@ class EntryForm(VerticalScroll):
                          collapsed_symbol="+", expanded_symbol="-"):
             for spec in optional:
                 yield ValueField(spec)
-        for name in TEXT_FIELDS:
+        for name in sorted(TEXT_FIELDS, key=list(TEXT_TITLES).index):
             with Horizontal(classes="field-line text-line"):
                 yield Label(TEXT_TITLES[name], classes="field-title", markup=False)
                 yield TextInput(id=name, compact=True, max_length=200)
-        yield Static("", id="panel-message")
+        yield Static("", id="panel-message", markup=False)
 
     # -- reading the form ----------------------------------------------------
     def fields(self) -> list[ValueField]:

@@ -103,6 +103,10 @@ class ReadingPane(Vertical):
                     options.add_option(Option(
                         Content(f"{MARKS.get(f.severity, f.severity)} {f.text}"),
                         id=f"finding-{i}"))
+        first = next((k for k in range(options.option_count)
+                      if not options.get_option_at_index(k).disabled), None)
+        if first is not None:
+            options.highlighted = first
 
     def lines(self) -> list[str]:
         """The text of every line shown (for tests and the tmux check)."""

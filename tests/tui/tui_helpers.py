@@ -1,0 +1,51 @@
+"""Keying helpers shared by the terminal-app tests (keyboard only, never the mouse)."""
+
+from __future__ import annotations
+
+from textual.pilot import Pilot
+
+from acidbase.fields import REQUIRED
+
+#: Panels keyed in by the tests, in the order of the required fields
+#: (pH, pCO2 mm[Hg], HCO3- mmol/L, Na+ mmol/L, Cl- mmol/L).  Each is consistent by
+#: Henderson-Hasselbalch: HCO3 = 0.0307 x pCO2 x 10^(pH - 6.105) within 0.5 mmol/L
+#: (CLSI C46-A2 constants).
+PANELS: dict[str, tuple[str, ...]] = {
+    "normal": ("7.40", "40", "24.2", "140", "105"),
+    "metabolic acidosis": ("7.30", "29", "14.0", "140", "104"),
+    "acute respiratory acidosis": ("7.25", "60", "25.7", "140", "104"),
+    "chronic respiratory acidosis": ("7.33", "60", "31.0", "140", "98"),
+    "mixed": ("7.20", "40", "15.2", "140", "104"),
+}
+
+
+async def key_in(pilot: Pilot, values: tuple[str, ...]) -> None:
+    """Type the required values from pH onwards, Tab between them, as a user would."""
+    assert len(values) == len(REQUIRED)
+    for i, value in enumerate(values):
+        if i:
+            await pilot.press("tab")
+        await pilot.press(*value)
+    await pilot.pause()
+
+
+async def replace_value(pilot: Pilot, name: str, text: str) -> None:
+    """Focus field ``name`` with Tab from pH, clear it and type ``text``."""
+    app = pilot.app
+    app.screen.query_one("#ph").focus()
+    await pilot.pause()
+    while app.focused is not None and app.focused.id != name:
+        await pilot.press("tab")
+    await pilot.press("end", "ctrl+u", *text)
+    await pilot.pause()
+
+
+def processes_line(app) -> str:
+    """The heading of the processes section, as shown."""
+    options = app.screen.query_one("#findings")
+    return str(options.get_option("process").prompt)
+
+
+def trust_line(app) -> str:
+    options = app.screen.query_one("#findings")
+    return str(options.get_option("trust").prompt)
