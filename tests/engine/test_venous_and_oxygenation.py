@@ -152,3 +152,17 @@ def test_venous_pco2_limit_is_the_arterial_limit_moved_by_kelly(interpret, pco2,
     # Henderson-Hasselbalch (CLSI).
     r = interpret(edge_panel(25.63, pco2, sample_type="venous"))
     assert ("respiratory acidosis" in {d.process for d in r.disorders}) is acidosis
+
+
+def test_published_venous_values_read_no_disorder_as_venous(interpret):
+    # Methods E2 inputs (Silverthorn, Human Physiology 8e, ch. 20 problem 3): venous pCO2 46 with
+    # HCO3 24; pH 7.334 by CLSI Henderson-Hasselbalch (7.340 with the textbook constants).  Inside
+    # the Kelly-shifted venous intervals (pH 7.31-7.42, pCO2 40-51, HCO3 23-28).
+    r = interpret(edge_panel(24.0, 46.0, sample_type="venous"))
+    assert r.disorders == ()
+
+
+def test_published_venous_values_labelled_arterial_read_a_respiratory_acidosis(interpret):
+    # Same E2 values against the arterial intervals: pH 7.334 < 7.35 and pCO2 46 > 45.
+    r = interpret(edge_panel(24.0, 46.0, sample_type="arterial"))
+    assert [(d.process, d.role) for d in r.disorders] == [("respiratory acidosis", "primary")]
