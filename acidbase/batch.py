@@ -36,7 +36,7 @@ from . import units as _units
 from .api import interpret_many
 from .engine import SLOTS
 from .errors import Problem
-from .fields import BY_NAME, NUMERIC, REQUIRED
+from .fields import BY_NAME, HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
 from .fileio import BatchInputError, Layout, Source
 from .results import CAUTION
 
@@ -225,10 +225,19 @@ def read_values(table: pa.Table, layout: Layout, decimal: str) -> ChunkValues:
                         f"value (beyond the reporting limit), but a required field needs an exact "
                         f"number (accepted range {lo / f:.4g} to {hi / f:.4g} {unit})")
                     skip.setdefault(i, set()).add(spec.name)
-    for name in fileio.CHOICE_FIELDS:
+    for name, allowed, title in (("sample_type", SAMPLE_TYPES, "Sample type"),
+                                 ("hco3_source", HCO3_SOURCES, "HCO3- source")):
         h = col_of.get(name)
-        if h is not None:
-            columns[name] = fileio.parse_text(table[h])
+        if h is None:
+            continue
+        codes, bad, text = fileio.parse_choice(table[h], allowed, "unknown")
+        columns[name] = codes
+        if bad.any():
+            cells = text.to_pylist()
+            for i in np.flatnonzero(bad).tolist():
+                # The kernel's own message for a choice it does not know.
+                problems.setdefault(i, []).append(str(Problem(
+                    name, title, cells[i], "", kind=f"not one of {', '.join(allowed)}")))
     return ChunkValues(columns, parsed, problems, skip)
 
 
@@ -683,8 +692,13 @@ def _process(table: pa.Table, layout: Layout, decimal: str, settings,
     refused = tab["status"] == "refused"
     review = _review_mask(res, tab) | refused
     out: dict[str, pa.Array] = {}
+    rmask = pa.array(refused)
     for key, col in tab.items():
-        if col.dtype == object:
+        if key == "status":  # two values: built from the mask, not converted cell by cell
+            out[key] = pc.if_else(rmask, "refused", "interpreted")
+        elif key == "reason":
+            out[key] = _sparse_text(col, refused)
+        elif col.dtype == object:
             out[key] = pa.array(col, type=pa.string())
         else:
             out[key] = pa.array(col, from_pandas=True)
@@ -709,6 +723,17 @@ def _process(table: pa.Table, layout: Layout, decimal: str, settings,
             "pco2": np.asarray(frame["pco2"], dtype=np.float64),
             "hco3": np.asarray(frame["hco3"], dtype=np.float64)}
     return out, meta
+
+
+def _sparse_text(col: np.ndarray, where: np.ndarray) -> pa.Array:
+    """Text that is "" except on the rows of ``where`` (converted only there)."""
+    idx = np.flatnonzero(where)
+    if idx.size == 0:
+        return pa.repeat(pa.scalar("", pa.string()), len(col))
+    pos = np.full(len(col), -1, dtype=np.int64)
+    pos[idx] = np.arange(idx.size)
+    values = pa.array(col[idx], type=pa.string())
+    return pc.fill_null(pc.take(values, pa.array(pos, mask=pos < 0)), "")
 
 
 def run(args: argparse.Namespace) -> int:
