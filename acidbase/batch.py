@@ -38,7 +38,7 @@ from .engine import SLOTS
 from .errors import Problem
 from .fields import BY_NAME, HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
 from .fileio import BatchInputError, Layout, Source
-from .results import CAUTION
+from .results import CAUTION, DERIVED
 
 EXIT_OK, EXIT_CANNOT_RUN = 0, 2
 
@@ -98,6 +98,9 @@ def configure_parser(p: argparse.ArgumentParser) -> None:
                    help="write the summary here (.json for JSON) instead of stderr")
     o.add_argument("--report", metavar="FILE",
                    help="summary report with flagged rows and the pCO2-HCO3 plane (.md or .html)")
+    o.add_argument("--derived", default="all", metavar="all|none|NAME,...",
+                   help="derived-value columns to write (default all; formatting numbers is "
+                        "most of the time of writing CSV)")
     o.add_argument("--quiet", action="store_true", help="no progress bar")
     lab = p.add_argument_group("laboratory settings")
     lab.add_argument("--anion-gap-interval", nargs=2, type=float, metavar=("LOW", "HIGH"),
@@ -119,6 +122,21 @@ def _pairs(items: list[str], what: str) -> dict[str, str]:
             raise BatchInputError(f"--{what} given twice for {k}")
         out[k] = v.strip()
     return out
+
+
+def _derived_columns(spec: str) -> tuple[str, ...]:
+    """The derived-value columns to keep (``--derived``)."""
+    text = spec.strip().lower()
+    if text == "all":
+        return DERIVED
+    if text == "none":
+        return ()
+    names = tuple(x.strip() for x in text.split(",") if x.strip())
+    unknown = [x for x in names if x not in DERIVED]
+    if unknown:
+        raise BatchInputError(f"--derived: {', '.join(unknown)} not among the derived values "
+                              f"({', '.join(DERIVED)})")
+    return names
 
 
 def _delta_overrides(items: list[str]) -> dict[str, float | None]:
@@ -332,9 +350,13 @@ def _counts(arr: pa.Array, split: str | None = None) -> Counter:
 _NUMBERS = r"\b\d+(?:\.\d+)?\b"
 
 
+def _nonempty(arr: pa.Array) -> pa.Array:
+    return arr.filter(pc.not_equal(arr, ""))
+
+
 def tally_chunk(t: Tally, out: dict[str, pa.Array], pco2: np.ndarray, hco3: np.ndarray,
                 refused: np.ndarray, review: np.ndarray, start: int,
-                ids: dict[str, pa.Array | None]) -> None:
+                ids: dict[str, pa.Array | None], fired: np.ndarray) -> None:
     n = len(refused)
     t.rows += n
     t.refused += int(refused.sum())
@@ -343,13 +365,18 @@ def tally_chunk(t: Tally, out: dict[str, pa.Array], pco2: np.ndarray, hco3: np.n
         name = f"{process}, {gap} gap" if gap else process
         for role, c in _counts(out[f"role_{slot}"]).items():
             t.processes[(name, role)] += c
-    t.findings.update(_counts(out["finding_codes"], ";"))
-    t.lab_flags.update(_counts(out["lab_flags"], "; "))
-    quals = _counts(out["qualifiers"], "; ")
+    # Finding counts straight from the fired-rule matrix (rules x rows), interpreted
+    # rows only; the same codes as the finding_codes column, without splitting text.
+    from .rules import RULES
+
+    counts = fired[:, ~refused].sum(axis=1) if refused.any() else fired.sum(axis=1)
+    t.findings.update({r.code: int(c) for r, c in zip(RULES, counts.tolist()) if c})
+    t.lab_flags.update(_counts(_nonempty(out["lab_flags"]), "; "))
+    quals = _counts(_nonempty(out["qualifiers"]), "; ")
     t.qualifiers.update(Counter({re.sub(r"([<>]=?)\s*[\d.,]+", r"\1#", k): v
                                  for k, v in quals.items()}))
     t.serial_status.update(_counts(out["serial_status"]))
-    t.serial_codes.update(_counts(out["serial_codes"], ";"))
+    t.serial_codes.update(_counts(_nonempty(out["serial_codes"]), ";"))
     if refused.any():
         parts = pc.list_flatten(pc.split_pattern(out["reason"].filter(pa.array(refused)), "; "))
         parts = pc.replace_substring_regex(parts, r"'[^']*'", "'...'")
@@ -540,12 +567,13 @@ def _settings(args: argparse.Namespace):
     return settings_from_args(args)
 
 
-def _review_mask(res, tab: dict[str, np.ndarray]) -> np.ndarray:
+def _review_mask(fired: np.ndarray, refused: np.ndarray) -> np.ndarray:
+    """Refused, or a trust finding above "info" (the panel itself is in doubt)."""
     from .rules import RULES
 
     idx = [j for j, r in enumerate(RULES) if r.section == "trust" and r.severity != "info"]
-    trust = res.fired[idx].any(axis=0) if idx else np.zeros(res.n, dtype=bool)
-    return (tab["status"] == "refused") | trust
+    trust = fired[idx].any(axis=0) if idx else np.zeros(len(refused), dtype=bool)
+    return refused | trust
 
 
 def _output_names(headers: tuple[str, ...], engine_cols: list[str]) -> dict[str, str]:
@@ -597,6 +625,7 @@ def _run(args: argparse.Namespace) -> int:
         raise BatchInputError("--window-hours must be a positive number")
     if args.report and not args.report.lower().endswith((".md", ".html", ".htm")):
         raise BatchInputError("--report: name a .md or .html file")
+    keep = _derived_columns(args.derived)
     settings = _settings(args)
     src = fileio.open_source(args.input, args.format, delimiter, args.encoding, args.missing,
                              args.chunk_rows)
@@ -639,7 +668,7 @@ def _run(args: argparse.Namespace) -> int:
     start = 0
     try:
         for table in src.chunks(on_progress=lambda b: progress.update(b, start)):
-            out, meta = _process(table, layout, decimal, settings, checker, start)
+            out, meta = _process(table, layout, decimal, settings, checker, start, keep)
             if start == 0:
                 names = _output_names(src.headers, meta["engine_cols"])
                 clash = [h for h, o in names.items() if o != h]
@@ -653,7 +682,7 @@ def _run(args: argparse.Namespace) -> int:
             ids = {k: (table[col_of[k]].combine_chunks() if k in col_of else None)
                    for k in ("sample_id", "patient_id")}
             tally_chunk(tally, out, meta["pco2"], meta["hco3"], meta["refused"],
-                        meta["review"], start, ids)
+                        meta["review"], start, ids, meta["fired"])
             writer.write(pa.table(cols))
             start += table.num_rows
         if start == 0:
@@ -680,17 +709,24 @@ def _run(args: argparse.Namespace) -> int:
 
 
 def _process(table: pa.Table, layout: Layout, decimal: str, settings,
-             checker: serial.SerialChecker | None, start: int) -> tuple[dict[str, pa.Array], dict]:
+             checker: serial.SerialChecker | None, start: int,
+             keep: tuple[str, ...] = DERIVED) -> tuple[dict[str, pa.Array], dict]:
     n = table.num_rows
     cv = read_values(table, layout, decimal)
     units = {k: v for k, v in layout.units.items() if v != BY_NAME[k].unit}
     res = interpret_many(cv.columns, units or None, settings)
     tab = res.table()
+    for key in DERIVED:
+        if key not in keep:
+            tab.pop(key, None)
     tab["status"] = np.array(tab["status"], dtype=object)
     tab["reason"] = np.array(tab["reason"], dtype=object)
     merge_refusals(tab, cv)
-    refused = tab["status"] == "refused"
-    review = _review_mask(res, tab) | refused
+    refused = res.refused.copy()
+    if cv.problems:
+        refused[np.fromiter(cv.problems, dtype=np.int64)] = True
+    fired = res.fired
+    review = _review_mask(fired, refused)
     out: dict[str, pa.Array] = {}
     rmask = pa.array(refused)
     for key, col in tab.items():
@@ -718,11 +754,14 @@ def _process(table: pa.Table, layout: Layout, decimal: str, settings,
     if start == 0 and n:
         caution[0] = CAUTION
     out["caution"] = pa.array(caution, type=pa.string())
-    frame = res.frame
-    meta = {"engine_cols": list(tab), "refused": refused, "review": review,
-            "pco2": np.asarray(frame["pco2"], dtype=np.float64),
-            "hco3": np.asarray(frame["hco3"], dtype=np.float64)}
+    meta = {"engine_cols": list(tab), "refused": refused, "review": review, "fired": fired,
+            "pco2": _canonical(cv, layout, "pco2"), "hco3": _canonical(cv, layout, "hco3")}
     return out, meta
+
+
+def _canonical(cv: ChunkValues, layout: Layout, name: str) -> np.ndarray:
+    spec = BY_NAME[name]
+    return cv.columns[name] * _units.factor(name, spec.kind, layout.units.get(name, spec.unit))
 
 
 def _sparse_text(col: np.ndarray, where: np.ndarray) -> pa.Array:

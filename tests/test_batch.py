@@ -338,3 +338,24 @@ def test_standard_output_by_default(capsys):
     assert rc == 0
     assert cap.out.splitlines()[0].startswith('"row","sample_id"')
     assert len(cap.out.splitlines()) == 5
+
+
+def test_derived_option_limits_the_value_columns(tmp_path, capsys):
+    out = tmp_path / "o.csv"
+    assert batch(capsys, DATA / "comma.csv", "--derived", "anion_gap,standard_base_excess",
+                 "-o", out)[0] == 0
+    cols = set(rows_of(out)[0])
+    assert {"anion_gap", "standard_base_excess", "finding_codes"} <= cols
+    assert "hco3_calculated" not in cols
+    rc, err = batch(capsys, DATA / "comma.csv", "--derived", "gap", "-o", out)
+    assert rc == 2 and "gap" in err
+
+
+def test_bad_choice_message_is_the_kernels_own(tmp_path, capsys):
+    out = tmp_path / "o.csv"
+    batch(capsys, DATA / "mixed.csv", "-o", out)
+    reason = next(r["reason"] for r in rows_of(out) if r["sample_id"] == "M11")
+    kernel = acidbase.interpret_many({"ph": [7.40], "pco2": [40.0], "hco3": [24.22],
+                                      "na": [140.0], "cl": [106.78],
+                                      "sample_type": ["arterial"], "hco3_source": ["plasma"]})
+    assert reason == kernel.reasons[0]
