@@ -88,4 +88,20 @@ def from_memory(code: str) -> bool:
     return code in LOINC_FROM_MEMORY
 
 
-__all__ = ["HEADER_CODES", "IMPLIED_UNIT", "SPECIMEN", "UNIT_REQUIRED", "field_for", "from_memory"]
+__all__ = ["HEADER_CODES", "IMPLIED_UNIT", "SPECIMEN", "UNIT_REQUIRED", "field_for", "from_memory",
+           "header_table"]
+
+
+def header_table() -> str:
+    """The Markdown table of docs/batch.md ("LOINC codes read as headers")."""
+    from .fields import BY_NAME
+
+    lines = ["| field | code | specimen | unit when none is stated |", "|---|---|---|---|"]
+    for code, name in HEADER_CODES.items():
+        specimen = SPECIMEN[code] + (" (memory)" if from_memory(code) else "")
+        if code in UNIT_REQUIRED:
+            unit = "must be stated"
+        else:
+            unit = IMPLIED_UNIT.get(code, BY_NAME[name].unit)
+        lines.append(f"| {name} | {code} | {specimen} | {unit} |")
+    return "\n".join(lines)

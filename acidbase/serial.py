@@ -341,6 +341,15 @@ class SerialChecker:
         self._tmp.cleanup()
 
 
+def rules_table() -> str:
+    """The Markdown table of the default delta limits (docs/batch.md)."""
+    lines = ["| field | default limit | unit | source |", "|---|---|---|---|"]
+    for r in DELTA_RULES:
+        lines.append(f"| {r.field} | {r.limit:g} | {BY_NAME[r.field].unit} | {r.source} |")
+    lines.append(f"| window | {DEFAULT_WINDOW_HOURS:g} | h | {SOURCE_PRACTICE} |")
+    return "\n".join(lines)
+
+
 def _strings(x: pa.Array | pa.ChunkedArray | np.ndarray) -> pa.Array:
     if isinstance(x, pa.ChunkedArray):
         x = x.combine_chunks()
@@ -354,4 +363,4 @@ def _ref(row: int, sample: str | None) -> str:
 
 
 __all__ = ["COLUMNS", "DEFAULT_WINDOW_HOURS", "DELTA_RULES", "DeltaRule", "SerialChecker",
-           "STATUS_TEXT", "rules_with"]
+           "STATUS_TEXT", "rules_table", "rules_with"]
