@@ -164,7 +164,7 @@ def _delta_overrides(items: list[str]) -> dict[str, float | None]:
 
 
 class Progress:
-    """A one-line bar on stderr, only on a terminal."""
+    """A one-line bar on stderr, only on a terminal, by rows done of the estimated rows."""
 
     def __init__(self, total: int, enabled: bool) -> None:
         self.total = max(total, 1)
@@ -173,14 +173,15 @@ class Progress:
         self._last = 0.0
         self._t0 = time.monotonic()
 
-    def update(self, done: int, rows: int, force: bool = False) -> None:
+    def update(self, rows: int, force: bool = False) -> None:
+        """``rows`` done of about ``total`` (an estimate: the bar stops short of 100 %)."""
         if not self.enabled:
             return
         now = time.monotonic()
         if not force and now - self._last < 0.2:
             return
         self._last = now
-        frac = min(done / self.total, 1.0)
+        frac = min(rows / self.total, 0.99)
         bar = "#" * int(frac * 30)
         sys.stderr.write(f"\r{self.label} [{bar:<30}] {frac:4.0%} {rows:,} rows "
                          f"{now - self._t0:5.1f} s")
@@ -592,7 +593,7 @@ def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.Seri
     wanted += [col_of[f] for f in fields_used]
     wanted = list(dict.fromkeys(wanted))
     rows = 0
-    for table in src.chunks(wanted, on_progress=lambda b: progress.update(b, rows)):
+    for table in src.chunks(wanted):
         values = {}
         for f in fields_used:
             spec = BY_NAME[f]
@@ -607,6 +608,7 @@ def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.Seri
         sample = table[col_of["sample_id"]] if "sample_id" in col_of else None
         checker.add(table[col_of["patient_id"]], secs, kind, values, sample)
         rows += table.num_rows
+        progress.update(rows)
     checker.finish()
 
 
@@ -654,7 +656,7 @@ def _run(args: argparse.Namespace) -> int:
     if do_serial:
         checker = serial.SerialChecker(serial.rules_with(deltas), args.window_hours,
                                        serial.SerialChecker.partitions_for(src.size))
-        progress = Progress(src.size, not args.quiet)
+        progress = Progress(src.estimated_rows(), not args.quiet)
         progress.label = "serial 1/2"
         try:
             _serial_pass(src, layout, decimal, checker, progress)
@@ -663,11 +665,11 @@ def _run(args: argparse.Namespace) -> int:
     writer = fileio.Writer(args.output, out_fmt, out_delim, metadata={"caution": CAUTION})
     tally = Tally()
     ok = False
-    progress = Progress(src.size, not args.quiet)
+    progress = Progress(src.estimated_rows(), not args.quiet)
     progress.label = f"check {passes}/{passes}" if passes == 2 else "check"
     start = 0
     try:
-        for table in src.chunks(on_progress=lambda b: progress.update(b, start)):
+        for table in src.chunks():
             out, meta = _process(table, layout, decimal, settings, checker, start, keep)
             if start == 0:
                 names = _output_names(src.headers, meta["engine_cols"])
@@ -685,6 +687,7 @@ def _run(args: argparse.Namespace) -> int:
                         meta["review"], start, ids, meta["fired"])
             writer.write(pa.table(cols))
             start += table.num_rows
+            progress.update(start)
         if start == 0:
             raise BatchInputError(f"{args.input}: no rows")
         ok = True

@@ -413,6 +413,18 @@ class Source:
     def bytes_read(self) -> int:
         return self._progress[0]
 
+    def estimated_rows(self) -> int:
+        """Rows in the file: exact for Parquet, from the first lines' length otherwise."""
+        if self.total_rows is not None:
+            return self.total_rows
+        try:
+            with open(self.path, "rb") as f:
+                head = f.read(1 << 16)
+        except OSError:
+            return 1
+        lines = max(head.count(b"\n") - 1, 1)
+        return max(1, int(self.size / (len(head) / lines)))
+
     def chunks(self, columns: Sequence[str] | None = None,
                on_progress: Callable[[int], None] | None = None) -> Iterator[pa.Table]:
         """Tables of ``chunk_rows`` rows (the last may be shorter), in file order."""

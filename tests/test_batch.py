@@ -359,3 +359,10 @@ def test_bad_choice_message_is_the_kernels_own(tmp_path, capsys):
                                       "na": [140.0], "cl": [106.78],
                                       "sample_type": ["arterial"], "hco3_source": ["plasma"]})
     assert reason == kernel.reasons[0]
+
+
+def test_header_without_rows_could_not_run(tmp_path, capsys):
+    f = tmp_path / "empty.csv"
+    f.write_text("ph,pco2,hco3,na,cl\n")
+    rc, err = batch(capsys, f, "-o", tmp_path / "o.csv")
+    assert rc == 2 and "no rows" in err and not (tmp_path / "o.csv").exists()
