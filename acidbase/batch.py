@@ -300,10 +300,14 @@ def merge_refusals(tab: dict[str, np.ndarray], cv: ChunkValues) -> None:
     for key, col in tab.items():
         if key in ("status", "reason"):
             continue
+        # Copies: a column of the table may be the kernel's own array.
         if col.dtype == object:
+            col = col.copy()
             col[rows] = ""
         elif col.dtype.kind == "f":
+            col = col.astype(np.float64, copy=True)
             col[rows] = np.nan
+        tab[key] = col
     status = tab["status"]
     reason = tab["reason"]
     for i, mine in cv.problems.items():

@@ -112,6 +112,8 @@ class Dialect:
     headers: tuple[str, ...]
     sample: tuple[tuple[str, ...], ...]
     """The first data rows (for decimal detection)."""
+    multiline: bool = False
+    """A quoted cell of the first rows holds a line break (slower parsing needed)."""
 
 
 def _read_text_sample(path: str | os.PathLike[str], encoding: str, size: int = 1 << 16) -> str:
@@ -136,18 +138,22 @@ def _read_text_sample(path: str | os.PathLike[str], encoding: str, size: int = 1
 
 def sniff_csv(path: str | os.PathLike[str], delimiter: str | None = None,
               encoding: str = "utf-8") -> Dialect:
-    """The delimiter (given, or the one that splits the first lines evenly) and headers."""
+    """The delimiter (given, or the one that splits the first rows evenly) and headers."""
     text = _read_text_sample(path, encoding)
-    lines = text.splitlines()
-    if len(text) >= (1 << 16) - 4 and len(lines) > 1:
-        lines = lines[:-1]  # the last line of the sample may be cut
-    lines = [ln for ln in lines if ln.strip()][:50]
+    cut = len(text.encode("utf-8", "replace")) >= (1 << 16) - 4
     candidates = (delimiter,) if delimiter else DELIMITERS
-    # The delimiter that gives the header at least two columns and most lines the
+    # The delimiter that gives the header at least two columns and most rows the
     # header's width (a ragged line is reported later, by the reader, with its text).
     best: tuple[float, int, str, list[list[str]]] | None = None
     for d in candidates:
-        rows = list(csv.reader(lines, delimiter=d))
+        try:
+            rows = [r for r in csv.reader(io.StringIO(text, newline=""), delimiter=d)
+                    if any(c.strip() for c in r)]
+        except csv.Error:
+            continue
+        if cut and len(rows) > 1:
+            rows = rows[:-1]  # the last row of the sample may be cut
+        rows = rows[:50]
         width = len(rows[0]) if rows else 0
         if width < 2:
             continue
@@ -160,7 +166,8 @@ def sniff_csv(path: str | os.PathLike[str], delimiter: str | None = None,
             "first lines do not split into the same number of columns; give --delimiter")
     _, _, d, rows = best
     headers = tuple(h.strip() for h in rows[0])
-    return Dialect(d, headers, tuple(tuple(r) for r in rows[1:]))
+    multiline = any("\n" in c or "\r" in c for r in rows for c in r)
+    return Dialect(d, headers, tuple(tuple(r) for r in rows[1:]), multiline)
 
 
 def _show_delims(ds: Sequence[str]) -> str:
@@ -404,6 +411,7 @@ class Source:
     decimal: str = "."
     encoding: str = "utf-8"
     missing: tuple[str, ...] = ()
+    multiline: bool = False
     chunk_rows: int = 1 << 18
     size: int = 0
     total_rows: int | None = None
@@ -444,7 +452,8 @@ class Source:
             reader = pa_csv.open_csv(
                 io.BufferedReader(f, 1 << 20),
                 read_options=pa_csv.ReadOptions(block_size=block, encoding=self.encoding),
-                parse_options=pa_csv.ParseOptions(delimiter=self.delimiter),
+                parse_options=pa_csv.ParseOptions(delimiter=self.delimiter,
+                                                  newlines_in_values=self.multiline),
                 convert_options=pa_csv.ConvertOptions(
                     column_types={h: pa.string() for h in self.headers},
                     include_columns=cols, strings_can_be_null=True,
@@ -583,7 +592,7 @@ def open_source(path: str | os.PathLike[str], fmt: str | None = None, delimiter:
     size = os.path.getsize(p)
     if fmt == "csv":
         d = sniff_csv(p, delimiter, encoding)
-        src = Source(p, fmt, d.headers, d.delimiter, encoding=encoding)
+        src = Source(p, fmt, d.headers, d.delimiter, encoding=encoding, multiline=d.multiline)
         src._sample = d.sample  # type: ignore[attr-defined]
     elif fmt == "parquet":
         try:

@@ -262,3 +262,25 @@ def test_rechunk_keeps_every_row_in_order():
     tables = list(fileio.rechunk(iter(batches), 4))
     assert [t.num_rows for t in tables] == [4, 4, 4, 3]
     assert sum((t["i"].to_pylist() for t in tables), []) == list(range(15))
+
+
+def test_quoted_line_break_in_a_cell_is_one_row(tmp_path):
+    # RFC 4180 section 2.6: a quoted field may contain line breaks.
+    f = tmp_path / "nl.csv"
+    f.write_text('ph,pco2,hco3,na,cl,comment\n7.40,40,24.22,140,106.78,"two\nlines"\n'
+                 '7.255,60,26,140,105,one\n')
+    src = fileio.open_source(f)
+    t = next(src.chunks())
+    assert t.num_rows == 2 and t["comment"].to_pylist() == ["two\nlines", "one"]
+
+
+def test_one_odd_cell_does_not_change_how_the_others_read():
+    """The one-cast fast paths and the cell-by-cell paths give the same values."""
+    times = ["2026-01-01T10:00:00Z", "2026-06-30T23:59:59+02:00"]
+    fast, _ = fileio.parse_times(pa.array(times))
+    slow, kind = fileio.parse_times(pa.array(times + ["not a time"]))
+    assert slow[:2].tolist() == fast.tolist() and kind[2] == fileio.TIME_INVALID
+    cells = ["7.40", "-5.2", "24.22", "1e2"]
+    fast_v = fileio.parse_numeric(pa.array(cells)).values
+    slow_v = fileio.parse_numeric(pa.array(cells + ["7.21 L"])).values
+    assert slow_v[:4].tolist() == fast_v.tolist()
