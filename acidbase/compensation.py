@@ -15,7 +15,6 @@ verdict cannot drift apart.
 
 from __future__ import annotations
 
-from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -33,12 +32,18 @@ class CompensationRule:
     predicts: str
     """The compensating quantity: "pco2", "hco3" or "sbe"."""
     formula: str
-    expected: Callable[[Array], Array]
-    """Expected value of ``predicts`` from the driving quantity."""
+    slope: float
+    """Expected = at_anchor + slope x (driver - anchor): every rule here is linear."""
+    anchor: float
+    at_anchor: float
     band: float
     """Half-width of the expected band, in the unit of ``predicts``."""
     sources: tuple[str, ...]
     band_sources: tuple[str, ...]
+
+    def expected(self, driver: Array) -> Array:
+        """Expected value of ``predicts`` from the driving quantity."""
+        return self.at_anchor + self.slope * (driver - self.anchor)
 
     def limits(self, driver: Array) -> tuple[Array, Array]:
         centre = self.expected(driver)
@@ -51,32 +56,32 @@ BICARBONATE_RULES: dict[str, CompensationRule] = {
         CompensationRule(
             "winters", "metabolic acidosis", "pco2",
             "expected pCO2 = 1.5 x HCO3 + 8 +/- 2 mm[Hg] (Winter's formula)",
-            lambda hco3: 1.5 * hco3 + 8.0, 2.0,
+            1.5, 0.0, 8.0, 2.0,
             ("albert_1967",), ("albert_1967",)),
         CompensationRule(
             "metabolic_alkalosis", "metabolic alkalosis", "pco2",
             "expected pCO2 = 40 + 0.7 x (HCO3 - 24) +/- 5 mm[Hg]",
-            lambda hco3: 40.0 + 0.7 * (hco3 - 24.0), 5.0,
+            0.7, 24.0, 40.0, 5.0,
             ("berend_2014",), ("kidney360_2022",)),
         CompensationRule(
             "acute_respiratory_acidosis", "respiratory acidosis", "hco3",
             "expected HCO3 = 24 + 0.1 x (pCO2 - 40) +/- 2 mmol/L (acute)",
-            lambda pco2: 24.0 + 0.1 * (pco2 - 40.0), 2.0,
+            0.1, 40.0, 24.0, 2.0,
             ("narins_emmett_1980", "berend_2014"), ("acidbase_design",)),
         CompensationRule(
             "chronic_respiratory_acidosis", "respiratory acidosis", "hco3",
             "expected HCO3 = 24 + 0.35 x (pCO2 - 40) +/- 2 mmol/L (chronic)",
-            lambda pco2: 24.0 + 0.35 * (pco2 - 40.0), 2.0,
+            0.35, 40.0, 24.0, 2.0,
             ("narins_emmett_1980", "berend_2014"), ("acidbase_design",)),
         CompensationRule(
             "acute_respiratory_alkalosis", "respiratory alkalosis", "hco3",
             "expected HCO3 = 24 - 0.2 x (40 - pCO2) +/- 2 mmol/L (acute)",
-            lambda pco2: 24.0 - 0.2 * (40.0 - pco2), 2.0,
+            0.2, 40.0, 24.0, 2.0,
             ("narins_emmett_1980", "berend_2014"), ("acidbase_design",)),
         CompensationRule(
             "chronic_respiratory_alkalosis", "respiratory alkalosis", "hco3",
             "expected HCO3 = 24 - 0.4 x (40 - pCO2) +/- 2 mmol/L (chronic)",
-            lambda pco2: 24.0 - 0.4 * (40.0 - pco2), 2.0,
+            0.4, 40.0, 24.0, 2.0,
             ("berend_2014",), ("acidbase_design",)),
     )
 }
@@ -87,20 +92,20 @@ BASE_EXCESS_RULES: dict[str, CompensationRule] = {
         CompensationRule(
             "be_metabolic_acidosis", "metabolic acidosis", "pco2",
             "expected pCO2 = 40 + SBE +/- 2 mm[Hg]",
-            lambda sbe: 40.0 + sbe, 2.0, ("schlichtig_1998",), ("acidbase_design",)),
+            1.0, 0.0, 40.0, 2.0, ("schlichtig_1998",), ("acidbase_design",)),
         CompensationRule(
             "be_metabolic_alkalosis", "metabolic alkalosis", "pco2",
             "expected pCO2 = 40 + 0.6 x SBE +/- 5 mm[Hg]",
-            lambda sbe: 40.0 + 0.6 * sbe, 5.0, ("schlichtig_1998",), ("acidbase_design",)),
+            0.6, 0.0, 40.0, 5.0, ("schlichtig_1998",), ("acidbase_design",)),
         CompensationRule(
             "be_acute_respiratory", "respiratory", "sbe",
             "expected SBE = 0 +/- 3 mmol/L (acute)",
-            lambda pco2: np.zeros_like(pco2), 3.0, ("schlichtig_1998",),
+            0.0, 40.0, 0.0, 3.0, ("schlichtig_1998",),
             ("klaestrup_2011", "acidbase_design")),
         CompensationRule(
             "be_chronic_respiratory", "respiratory", "sbe",
             "expected SBE = 0.4 x (pCO2 - 40) +/- 3 mmol/L (chronic)",
-            lambda pco2: 0.4 * (pco2 - 40.0), 3.0, ("schlichtig_1998",),
+            0.4, 40.0, 0.0, 3.0, ("schlichtig_1998",),
             ("acidbase_design",)),
     )
 }
@@ -117,15 +122,15 @@ def plane_bands(pco2: Array) -> dict[str, tuple[Array, Array]]:
     """
     pco2 = np.asarray(pco2, dtype=np.float64)
     out: dict[str, tuple[Array, Array]] = {}
-    w = BICARBONATE_RULES["winters"]
-    # pCO2 = 1.5 HCO3 + 8 +/- 2  =>  HCO3 = (pCO2 - 8 -/+ 2) / 1.5
-    lo, hi = (pco2 - 8.0 - w.band) / 1.5, (pco2 - 8.0 + w.band) / 1.5
-    keep = pco2 <= 40.0
-    out["metabolic acidosis"] = (np.where(keep, lo, np.nan), np.where(keep, hi, np.nan))
-    a = BICARBONATE_RULES["metabolic_alkalosis"]
-    lo, hi = 24.0 + (pco2 - 40.0 - a.band) / 0.7, 24.0 + (pco2 - 40.0 + a.band) / 0.7
-    keep = pco2 >= 40.0
-    out["metabolic alkalosis"] = (np.where(keep, lo, np.nan), np.where(keep, hi, np.nan))
+    for key, keep in (("winters", pco2 <= 40.0), ("metabolic_alkalosis", pco2 >= 40.0)):
+        r = BICARBONATE_RULES[key]
+        # pCO2 = at_anchor + slope (HCO3 - anchor) +/- band, solved for HCO3
+        lo = r.anchor + (pco2 - r.at_anchor - r.band) / r.slope
+        hi = r.anchor + (pco2 - r.at_anchor + r.band) / r.slope
+        # each metabolic band lives on its own side of the reference HCO3 (24)
+        lo, hi = (lo, np.minimum(hi, 24.0)) if key == "winters" else (np.maximum(lo, 24.0), hi)
+        keep = keep & (lo <= hi)
+        out[r.process] = (np.where(keep, lo, np.nan), np.where(keep, hi, np.nan))
     for key in ("acute_respiratory_acidosis", "chronic_respiratory_acidosis"):
         r = BICARBONATE_RULES[key]
         lo, hi = r.limits(pco2)

@@ -98,10 +98,10 @@ def story_partition(na: Array, cl: Array, albumin: Array, lactate: Array, sbe: A
     Returns (Na-Cl effect, albumin effect, lactate effect, other ions), mmol/L:
     (Na - Cl) - 35; 0.25 x (42 - albumin g/L); 1 - lactate; SBE minus the three.
     A missing lactate is left out of the split (its effect NaN, "other ions"
-    then includes it).
+    then includes it); without albumin there is no split (all NaN).
     """
-    na_cl = (na - cl) - STORY_NA_CL
     alb = ALBUMIN_GAP_PER_G_L * (STORY_ALBUMIN_G_L - albumin)
-    lac = 1.0 - lactate
+    na_cl = (na - cl) - STORY_NA_CL + 0.0 * alb  # the split needs albumin: NaN without it
+    lac = 1.0 - lactate + 0.0 * alb
     other = sbe - na_cl - alb - np.nan_to_num(lac, nan=0.0)
     return na_cl, alb, lac, other

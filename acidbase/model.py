@@ -69,7 +69,7 @@ def range_problems(spec: FieldSpec, raw: np.ndarray, unit: str) -> tuple[np.ndar
     lo, hi = spec.accepted
     with np.errstate(over="ignore", invalid="ignore"):
         canonical = raw * f
-        bad = np.isinf(raw) | (canonical < lo) | (canonical > hi)
+        bad = (canonical < lo) | (canonical > hi)  # +/-inf fall outside too
     return canonical, bad
 
 
@@ -101,6 +101,8 @@ class Screened:
     """Object array: "" for accepted rows, the problems joined by "; " otherwise."""
     problems: dict[int, list[Problem]]
     """Refused row index -> its problems."""
+    present: frozenset[str] = frozenset()
+    """Numeric fields with at least one measured value; the kernel skips the rest."""
 
 
 def _as_float(name: str, raw: Any, n: int) -> tuple[np.ndarray, np.ndarray]:
@@ -145,6 +147,12 @@ def _choice(raw: Any, n: int, allowed: tuple[str, ...], default: str) -> tuple[n
     if arr.dtype.kind in "iu":
         bad = (arr < 0) | (arr >= len(allowed))
         return np.where(bad, default_code, arr).astype(np.int8), bad
+    first = arr.reshape(-1)[0] if n else None
+    if n and isinstance(first, str) and bool((arr == first).all()):
+        text = first.strip().lower()
+        code = allowed.index(text) if text in allowed else default_code
+        bad_all = text not in allowed and text not in ("", "none", "nan")
+        return np.full(n, code, dtype=np.int8), np.full(n, bad_all)
     uniques, inverse = np.unique(arr.astype(object).astype(str), return_inverse=True)
     codes = np.empty(len(uniques), dtype=np.int8)
     bad_unique = np.zeros(len(uniques), dtype=bool)
@@ -189,11 +197,13 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None) -
             problems.setdefault(i, []).append(make(i))
 
     values: dict[str, np.ndarray] = {}
+    present: set[str] = set()
+    absent = np.full(n, np.nan)  # shared by every missing column: never written to
     for spec in NUMERIC:
         unit = units.get(spec.name, spec.unit)
         _units.factor(spec.name, spec.kind, unit)  # an unknown unit fails the whole column
         if columns.get(spec.name) is None and not spec.required:
-            values[spec.name] = np.full(n, np.nan)
+            values[spec.name] = absent
             continue
         raw, not_number = _as_float(spec.name, columns.get(spec.name), n)
         canonical, bad = range_problems(spec, raw, unit)
@@ -208,6 +218,10 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None) -
             bad = bad | missing
         refused |= bad | not_number
         values[spec.name] = canonical
+        if spec.required or not np.isnan(canonical).all():
+            present.add(spec.name)
+        else:
+            values[spec.name] = absent
 
     both = ~np.isnan(values["urea"]) & ~np.isnan(values["bun"])
     add(both, lambda i: Problem("urea", "Urea", "urea and bun", "", kind=(
@@ -225,12 +239,20 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None) -
     refused |= bad_st | bad_src
 
     if refused.any():
-        for name in values:
-            values[name] = np.where(refused, np.nan, values[name])
+        blank = nan_unless_not(refused)
+        for name in present:
+            values[name] = values[name] + blank
     reasons = np.full(n, "", dtype=object)
     for i, plist in problems.items():
         reasons[i] = "; ".join(str(p) for p in plist)
-    return Screened(n, values, sample_type, hco3_source, refused, reasons, problems)
+    return Screened(n, values, sample_type, hco3_source, refused, reasons, problems,
+                    frozenset(present))
+
+
+def nan_unless_not(mask: np.ndarray) -> np.ndarray:
+    """NaN where ``mask`` holds, 0.0 elsewhere (added to a column, it blanks those rows)."""
+    with np.errstate(invalid="ignore"):
+        return np.divide(0.0, (~mask).astype(np.float64))
 
 
 # ---------------------------------------------------------------------------

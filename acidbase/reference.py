@@ -93,7 +93,14 @@ class Settings:
 
 
 def interval_columns(sample_type: np.ndarray, name: str) -> tuple[np.ndarray, np.ndarray]:
-    """Per-row low and high limits of one quantity, from sample-type codes."""
+    """Per-row low and high limits of one quantity, from sample-type codes.
+
+    When every row has the same sample type the limits come back as 0-d arrays,
+    which broadcast like columns at no cost.
+    """
     low = np.array([INTERVALS[kind][name].low for kind in SAMPLE_TYPES])
     high = np.array([INTERVALS[kind][name].high for kind in SAMPLE_TYPES])
+    if sample_type.shape[0] and sample_type.min() == sample_type.max():
+        code = int(sample_type[0])
+        return np.float64(low[code]), np.float64(high[code])
     return low[sample_type], high[sample_type]

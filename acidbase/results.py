@@ -11,12 +11,13 @@ each with its working and resolved citations.  ``interpret(panel)`` is
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
 
 from . import engine
-from .engine import CONSISTENCY_NAMES, ROLE_NAMES, SLOTS, TIMING_NAMES, Frame
+from .engine import CONSISTENCY_NAMES, ROLE_NAMES, SLOTS, TIMING_NAMES, VALID_WHEN, Frame
 from .fields import HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
 from .model import Screened
 from .reference import Settings
@@ -133,33 +134,69 @@ def _value(x: Any) -> Any:
     return x
 
 
-class Results:
-    """The kernel's output for ``n`` panels."""
+@dataclass(frozen=True)
+class Part:
+    """The kernel's output for one slice of rows (``start`` is its first row)."""
 
-    def __init__(self, screened: Screened, frame: Frame, fired: np.ndarray, settings: Settings):
-        self.screened = screened
-        self.frame = frame
-        self.fired = fired
+    start: int
+    screened: Screened
+    frame: Frame
+    fired: np.ndarray
+
+
+class Results:
+    """The kernel's output for ``n`` panels, computed in slices.
+
+    Columns are joined on demand (``table``, ``finding_codes``); one row is read
+    from its slice (``interpretation``).
+    """
+
+    def __init__(self, parts: list[Part], settings: Settings):
+        self.parts = parts
         self.settings = settings
-        self.n = screened.n
-        self.refused = screened.refused
-        self.reasons = screened.reasons
+        self.n = sum(p.screened.n for p in parts)
+        self.refused = _join([p.screened.refused for p in parts])
+        self.reasons = _join([p.screened.reasons for p in parts])
+        self._starts = np.array([p.start for p in parts])
+
+    def _locate(self, i: int) -> tuple[Part, int]:
+        if not 0 <= i < self.n:
+            raise IndexError(i)
+        k = int(np.searchsorted(self._starts, i, side="right")) - 1
+        part = self.parts[k]
+        return part, i - part.start
+
+    @property
+    def frame(self) -> Frame:
+        """The whole frame, joined (for inspection; the surfaces do not need it)."""
+        keys = self.parts[0].frame.keys()
+        return {k: _join([p.frame[k] for p in self.parts], p0=self.parts[0].frame[k])
+                for k in keys}
+
+    @property
+    def fired(self) -> np.ndarray:
+        return np.concatenate([p.fired for p in self.parts], axis=1)
 
     # -- one row --------------------------------------------------------------
     def row(self, i: int) -> dict[str, Any]:
+        part, j = self._locate(i)
         out: dict[str, Any] = {}
-        for key, col in self.frame.items():
-            out[key] = col.item() if np.ndim(col) == 0 else col[i].item()
+        for key, col in part.frame.items():
+            out[key] = col.item() if np.ndim(col) == 0 else col[j].item()
+        for key, mask in VALID_WHEN.items():
+            if not out[mask]:
+                out[key] = float("nan")
         return out
 
     def interpretation(self, i: int) -> Interpretation:
+        part, j = self._locate(i)
         r = self.row(i)
         inputs = {s.name: {"value": _value(r[s.name]), "unit": s.unit}
                   for s in NUMERIC if _value(r[s.name]) is not None}
         st, src = SAMPLE_TYPES[r["sample_type"]], HCO3_SOURCES[r["hco3_source"]]
         settings = dict(self.settings.__dict__)
-        if self.refused[i]:
-            probs = tuple(str(p) for p in self.screened.problems.get(i, []))
+        if part.screened.refused[j]:
+            probs = tuple(str(p) for p in part.screened.problems.get(j, []))
             return Interpretation("refused", probs, inputs, st, src, None, (), {}, (),
                                   settings=settings)
         consistency = Consistency(
@@ -170,8 +207,8 @@ class Results:
         derived = {k: _value(r[k]) for k in DERIVED}
         findings = []
         for section in SECTIONS:
-            for j, rule in enumerate(RULES):
-                if rule.section == section and self.fired[j, i]:
+            for k, rule in enumerate(RULES):
+                if rule.section == section and part.fired[k, j]:
                     findings.append(Finding(
                         rule.code, rule.section, rule.severity, rule.title,
                         render(rule, rule.text, r), render(rule, rule.working, r), rule.why,
@@ -180,7 +217,7 @@ class Results:
                               derived, tuple(findings), settings=settings)
 
     @staticmethod
-    def _disorders(r: dict[str, Any]) -> tuple[Disorder, ...]:
+    def _disorders(r: Mapping[str, Any]) -> tuple[Disorder, ...]:
         out = []
         for slot, process, gap in SLOTS:
             role = r[f"role_{slot}"]
@@ -196,12 +233,15 @@ class Results:
     # -- columns ----------------------------------------------------------------
     def finding_codes(self) -> np.ndarray:
         """Object array: the codes fired on each row, joined by ";"."""
-        return _combine(self.fired, [r.code for r in RULES])
+        names = [r.code for r in RULES]
+        return _join([_combine(p.fired, names) for p in self.parts])
 
     def disorder_labels(self) -> np.ndarray:
         """Object array: the disorders of each row as text ("" for none)."""
-        f = self.frame
-        key = np.zeros(self.n, dtype=np.int64)
+        return _join([self._labels(p.frame) for p in self.parts])
+
+    def _labels(self, f: Frame) -> np.ndarray:
+        key = np.zeros(f["ph"].shape[0], dtype=np.int64)
         for slot, _, _ in SLOTS:
             key = key * 3 + f[f"role_{slot}"]
         key = key * 4 + f["timing_resp"]
@@ -222,21 +262,41 @@ class Results:
 
     def table(self) -> dict[str, np.ndarray]:
         """Output columns for the batch file, in their documented order."""
-        f = self.frame
+        role_names = np.array(["", "primary", "additional"], dtype=object)
+        timing_names = np.array(["", "acute", "chronic", "indeterminate"], dtype=object)
+        cons_names = np.array(CONSISTENCY_NAMES, dtype=object)
+
+        def col(key: str) -> np.ndarray:
+            mask = VALID_WHEN.get(key)
+            return _join([
+                _full(p.frame[key], p.screened.n) if mask is None
+                else np.where(p.frame[mask], p.frame[key], np.nan) for p in self.parts])
+
+        refused = self.refused
         cols: dict[str, np.ndarray] = {}
-        cols["status"] = np.where(self.refused, "refused", "interpreted").astype(object)
+        cols["status"] = np.where(refused, "refused", "interpreted").astype(object)
         cols["reason"] = self.reasons
-        cons = np.array(CONSISTENCY_NAMES, dtype=object)[f["consistency"]]
-        cols["consistency"] = np.where(self.refused, "", cons)
-        cols["disorders"] = np.where(self.refused, "", self.disorder_labels())
+        cols["consistency"] = np.where(refused, "", cons_names[col("consistency")])
+        cols["disorders"] = np.where(refused, "", self.disorder_labels())
         for slot, _, _ in SLOTS:
-            cols[f"role_{slot}"] = np.array(["", "primary", "additional"], dtype=object)[f[f"role_{slot}"]]
-        cols["timing_respiratory"] = np.array(["", "acute", "chronic", "indeterminate"],
-                                              dtype=object)[f["timing_resp"]]
+            cols[f"role_{slot}"] = role_names[col(f"role_{slot}")]
+        cols["timing_respiratory"] = timing_names[col("timing_resp")]
         cols["finding_codes"] = self.finding_codes()
         for k in DERIVED:
-            cols[k] = f[k]
+            cols[k] = col(k)
         return cols
+
+
+def _full(col: np.ndarray, n: int) -> np.ndarray:
+    return np.full(n, col) if np.ndim(col) == 0 else col
+
+
+def _join(arrays: list[np.ndarray], p0: np.ndarray | None = None) -> np.ndarray:
+    if len(arrays) == 1:
+        return arrays[0]
+    if p0 is not None and np.ndim(p0) == 0:
+        return p0
+    return np.concatenate(arrays)
 
 
 def _combine(mask: np.ndarray, names: list[str]) -> np.ndarray:

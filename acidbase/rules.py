@@ -371,7 +371,8 @@ RULES: tuple[Rule, ...] = (
          "Compensation never moves the other component in the same direction as the primary.",
          ("narins_emmett_1980",)),
     Rule("P-WINTERS-MET", "process", "info", "Respiratory compensation as expected",
-         lambda f: f["prim_met_acid"] & (f["pco2"] >= f["expected_pco2_low"]) & (f["pco2"] <= f["expected_pco2_high"]),
+         lambda f: (f["metabolic_only"] & f["prim_met_acid"] & (f["pco2"] >= f["expected_pco2_low"])
+                    & (f["pco2"] <= f["expected_pco2_high"])),
          "Respiratory compensation as expected: pCO2 {pco2:.0f} mm[Hg] within "
          "{expected_pco2_low:.1f}-{expected_pco2_high:.1f} (Winter's formula).",
          "expected pCO2 = 1.5 x HCO3 + 8 +/- 2 = 1.5 x {hco3:.1f} + 8 = "
@@ -391,7 +392,8 @@ RULES: tuple[Rule, ...] = (
          "expected pCO2 = 1.5 x {hco3:.1f} + 8 +/- 2 = {expected_pco2_low:.1f}-{expected_pco2_high:.1f}",
          "Ventilation is more than the acidosis calls for.", ("albert_1967",)),
     Rule("P-MALK-EXPECTED", "process", "info", "Compensation of metabolic alkalosis as expected",
-         lambda f: f["prim_met_alk"] & (f["pco2"] >= f["expected_pco2_low"]) & (f["pco2"] <= f["expected_pco2_high"]),
+         lambda f: (f["metabolic_only"] & f["prim_met_alk"] & (f["pco2"] >= f["expected_pco2_low"])
+                    & (f["pco2"] <= f["expected_pco2_high"])),
          "Respiratory compensation as expected: pCO2 {pco2:.0f} mm[Hg] within "
          "{expected_pco2_low:.1f}-{expected_pco2_high:.1f}.",
          "expected pCO2 = 40 + 0.7 x (HCO3 - 24) +/- 5 = 40 + 0.7 x ({hco3:.1f} - 24) = "

@@ -68,3 +68,31 @@ def test_interpret_and_interpret_many_agree_on_every_panel(panels):
         assert one.codes() == row.codes()
         assert one.disorders == row.disorders
         assert all(_same(one.derived[k], row.derived[k]) for k in one.derived)
+
+
+@settings(max_examples=15, deadline=None)
+@given(st.lists(_panel_strategy(), min_size=5, max_size=30))
+def test_slicing_a_batch_changes_no_row(panels):
+    """interpret_many computes long batches in slices on threads; rows must not move."""
+    import acidbase.api as api
+
+    columns = {}
+    for spec in NUMERIC:
+        columns[spec.name] = np.array([p.get(spec.name, np.nan) for p in panels], dtype=float)
+    for name in ("sample_type", "hco3_source"):
+        columns[name] = np.array([p.get(name, "unknown") for p in panels], dtype=object)
+    whole = ab.interpret_many(columns)
+    saved = api.SLICE_ROWS
+    api.SLICE_ROWS = 4
+    try:
+        sliced = ab.interpret_many(columns)
+    finally:
+        api.SLICE_ROWS = saved
+    assert len(sliced.parts) > 1
+    a, b = whole.table(), sliced.table()
+    assert list(a) == list(b)
+    for key in a:
+        if a[key].dtype == object:
+            assert a[key].tolist() == b[key].tolist(), key
+        else:
+            np.testing.assert_array_equal(a[key], b[key], err_msg=key)
