@@ -28,8 +28,24 @@ class Citation:
     note: str = ""
 
     def short(self) -> str:
+        """Author-year form: "Figge et al. 1998", "Kassirer & Bleich 1965"."""
         year = f" {self.year}" if self.year else ""
-        return f"{self.authors}{year}"
+        people = [a.strip() for a in self.authors.split(",") if a.strip()]
+        if self.evidence in ("practice", "design"):
+            return f"{self.authors}{year}"
+
+        def surname(person: str) -> str:
+            head, _, tail = person.rpartition(" ")
+            return head if head and tail.isupper() and len(tail) <= 3 else person
+
+        surnames = [surname(p) for p in people]
+        if any(p == "et al." for p in people) or len(people) > 2:
+            return f"{surnames[0]} et al.{year}"
+        if len(people) == 1:
+            return f"{surnames[0]}{year}"
+        if len(people) == 2:
+            return f"{surnames[0]} & {surnames[1]}{year}"
+        return f"{surnames[0]} et al.{year}"
 
     def full(self) -> str:
         year = f" ({self.year})" if self.year else ""
@@ -41,10 +57,10 @@ class Citation:
 
 
 _ALL = [
-    Citation("clsi_c46", "CLSI (chairholder D'Orazio P)",
+    Citation("clsi_c46", "CLSI",
              "Blood Gas and pH Analysis and Related Measurements; Approved Guideline, 2nd ed. (C46-A2)",
-             "Clinical and Laboratory Standards Institute, Wayne PA", 2009, "secondary",
-             "equations read in reproductions of NCCLS C46-A (2001): HCO3 = 0.0307 pCO2 10^(pH-6.105); "
+             "Clinical and Laboratory Standards Institute, Wayne PA (chairholder D'Orazio P)", 2009,
+             "secondary", "equations read in reproductions of NCCLS C46-A (2001): HCO3 = 0.0307 pCO2 10^(pH-6.105); "
              "SBE = HCO3 - 24.8 + 16.2 (pH - 7.40)"),
     Citation("kassirer_bleich_1965", "Kassirer JP, Bleich HL",
              "Rapid estimation of plasma carbon dioxide tension from pH and total carbon dioxide content",
@@ -130,9 +146,9 @@ _ALL = [
     Citation("aa_age_rule", "Common practice, no source", "Age-expected A-a gradient = age/4 + 4 mmHg",
              "widely quoted bedside rule (origin not identified; valid on room air only)", None,
              "practice"),
-    Citation("berlin_2012", "ARDS Definition Task Force (Ranieri VM et al.)",
+    Citation("berlin_2012", "ARDS Definition Task Force",
              "Acute respiratory distress syndrome: the Berlin definition",
-             "JAMA 307:2526-2533, doi:10.1001/jama.2012.5669", 2012),
+             "JAMA 307:2526-2533, doi:10.1001/jama.2012.5669 (Ranieri VM et al.)", 2012),
     Citation("aarc_2013", "Davis MD, Walsh BK, Sittig SE, Restrepo RD",
              "AARC Clinical Practice Guideline: Blood Gas Analysis and Hemoximetry: 2013",
              "Respir Care 58:1694-1703", 2013, "seen",

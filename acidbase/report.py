@@ -66,8 +66,9 @@ def as_json_dict(it: Interpretation) -> dict[str, Any]:
     }
 
 
-def _wrap(text: str, indent: str, width: int = 88) -> list[str]:
-    return textwrap.wrap(text, width=width, initial_indent=indent, subsequent_indent=indent) or [indent]
+def _wrap(text: str, indent: str, width: int = 88, hang: str | None = None) -> list[str]:
+    rest = indent if hang is None else hang
+    return textwrap.wrap(text, width=width, initial_indent=indent, subsequent_indent=rest) or [indent]
 
 
 def as_text(it: Interpretation, width: int = 88, working: bool = True) -> str:
@@ -84,7 +85,8 @@ def as_text(it: Interpretation, width: int = 88, working: bool = True) -> str:
     shown = []
     for name, item in it.inputs.items():
         spec = BY_NAME[name]
-        shown.append(f"{spec.title} {item['value']:.4g} {item['unit']}")
+        unit = "" if item["unit"] in ("1", "[pH]") else f" {item['unit']}"
+        shown.append(f"{spec.title} {item['value']:.4g}{unit}")
     lines += _wrap("Inputs (canonical units): " + ", ".join(shown), "", width)
     cited: dict[str, Any] = {}
     for section, heading in QUESTIONS.items():
@@ -108,7 +110,7 @@ def as_text(it: Interpretation, width: int = 88, working: bool = True) -> str:
     lines.append("")
     lines.append("Sources")
     for c in cited.values():
-        lines += _wrap(c.full(), "  - ", width)
+        lines += _wrap(c.full(), "  - ", width, hang="    ")
     lines.append("")
     lines += _wrap(it.caution, "", width)
     return "\n".join(lines) + "\n"
