@@ -275,7 +275,26 @@ def compute(s: Screened, settings: Settings) -> Frame:
     # --- gaps -------------------------------------------------------------------
     f["anion_gap"] = gaps.anion_gap(v["na"], v["cl"], hco3)
     f["anion_gap_k"] = gaps.anion_gap_with_k(v["na"], v["k"], v["cl"], hco3) if "k" in has else nan
-    judged = f["anion_gap_k"] if settings.anion_gap_uses_k else f["anion_gap"]
+    # The gap is judged with K+ when the laboratory says so and K+ was measured; a row
+    # without K+ falls back to the gap without K+ and its own interval (and says so).
+    if settings.anion_gap_uses_k and "k" in has:
+        with_k = ~np.isnan(v["k"])
+        judged = np.where(with_k, f["anion_gap_k"], f["anion_gap"])
+        lo_k, hi_k, mid_k = settings.anion_gap_k_low, settings.anion_gap_k_high, settings.gap_normal
+        lo_n, hi_n = settings.anion_gap_low, settings.anion_gap_high
+        wk = with_k.astype(np.float64)
+        f["gap_low"] = lo_n + (lo_k - lo_n) * wk
+        f["gap_high_limit"] = hi_n + (hi_k - hi_n) * wk
+        f["gap_normal"] = (lo_n + hi_n) / 2 + (mid_k - (lo_n + hi_n) / 2) * wk
+    else:
+        with_k = false
+        judged = f["anion_gap"]
+        lo_n, hi_n = settings.anion_gap_low, settings.anion_gap_high
+        f["gap_low"] = np.float64(lo_n)
+        f["gap_high_limit"] = np.float64(hi_n)
+        f["gap_normal"] = np.float64((lo_n + hi_n) / 2)
+    f["gap_with_k"] = with_k
+    f["gap_k_fallback"] = (np.isnan(v["k"]) & ~f["refused"]) if settings.anion_gap_uses_k else false
     if "albumin" in has:
         corrected = gaps.albumin_corrected_gap(judged, v["albumin"], settings.reference_albumin_g_l)
         gap = np.where(np.isnan(v["albumin"]), judged, corrected)
@@ -283,15 +302,11 @@ def compute(s: Screened, settings: Settings) -> Frame:
         corrected, gap = nan, judged
     f["anion_gap_corrected"] = corrected
     f["gap_judged"] = gap
-    lo_gap, hi_gap = settings.gap_interval
-    f["gap_low"] = np.float64(lo_gap)
-    f["gap_high_limit"] = np.float64(hi_gap)
-    f["gap_normal"] = np.float64(settings.gap_normal)
-    gap_high = gap > hi_gap
+    gap_high = gap > f["gap_high_limit"]
     gap_large = gap >= settings.large_anion_gap
     f["gap_high"], f["gap_large"] = gap_high, gap_large
-    f["delta_ratio"] = gaps.delta_ratio(gap, hco3, settings.gap_normal)
-    f["delta_gap"] = gaps.delta_gap(gap, hco3, settings.gap_normal)
+    f["delta_ratio"] = gaps.delta_ratio(gap, hco3, f["gap_normal"])
+    f["delta_gap"] = gaps.delta_gap(gap, hco3, f["gap_normal"])
 
     # --- the disorder slots ---------------------------------------------------
     p, a = bic.prim, bic.add
@@ -319,8 +334,11 @@ def compute(s: Screened, settings: Settings) -> Frame:
     extra_met = a["met_acid"] | a["met_alk"] | f["delta_alkalosis"] | gap_only
     f["timing_resp"] = (bic.timing + (INDETERMINATE - bic.timing) * (
         (bic.timing > TIMING_NONE) & extra_met)).astype(np.int8)
-    f["no_disorder"] = ~(high_active | (role_normal > 0) | (f["role_met_alk"] > 0)
-                         | (f["role_resp_acid"] > 0) | (f["role_resp_alk"] > 0))
+    nothing = ~(high_active | (role_normal > 0) | (f["role_met_alk"] > 0)
+                | (f["role_resp_acid"] > 0) | (f["role_resp_alk"] > 0))
+    ph_outside = (ph < f["ph_lo"]) | (ph > f["ph_hi"])
+    f["ph_unexplained"] = nothing & ph_outside
+    f["no_disorder"] = nothing & ~ph_outside
 
     # --- the base-excess reading (independent) -------------------------------
     sbe = chem.standard_base_excess(ph, calc)

@@ -31,7 +31,8 @@ def albumin_corrected_gap(gap: Array, albumin: Array, reference_albumin: float) 
     return gap + ALBUMIN_GAP_PER_G_L * (reference_albumin - albumin)
 
 
-def delta_ratio(gap: Array, hco3: Array, gap_normal: float, hco3_normal: float = 24.0) -> Array:
+def delta_ratio(gap: Array, hco3: Array, gap_normal: float | Array,
+                hco3_normal: float = 24.0) -> Array:
     """(AG - AG normal) / (HCO3 normal - HCO3) [rastegar_2007].
 
     Undefined (NaN) when HCO3 is not below its normal value: the ratio then has
@@ -42,7 +43,8 @@ def delta_ratio(gap: Array, hco3: Array, gap_normal: float, hco3_normal: float =
         return np.where(denom > 0, (gap - gap_normal) / denom, np.nan)
 
 
-def delta_gap(gap: Array, hco3: Array, gap_normal: float, hco3_normal: float = 24.0) -> Array:
+def delta_gap(gap: Array, hco3: Array, gap_normal: float | Array,
+              hco3_normal: float = 24.0) -> Array:
     """(AG - AG normal) - (HCO3 normal - HCO3) [wrenn_1990]."""
     return (gap - gap_normal) - (hco3_normal - hco3)
 

@@ -333,12 +333,23 @@ RULES: tuple[Rule, ...] = (
     # ---------------------------------------------------------------- processes
     Rule("P-NONE", "process", "info", "No acid-base disorder",
          lambda f: f["no_disorder"] & ~f["refused"],
-         "No acid-base disorder found: pH {ph:.2f}, pCO2 {pco2:.0f} mm[Hg] and HCO3- "
-         "{hco3:.1f} mmol/L within their intervals, anion gap not raised.",
+         lambda r: (f"No acid-base disorder found: pH {r['ph']:.2f}, pCO2 {r['pco2']:.0f} mm[Hg] "
+                    f"and HCO3- {r['hco3']:.1f} mmol/L within their intervals"
+                    + (", anion gap not raised." if not r["gap_high"] else
+                       "; the anion gap is raised (see below).")),
          "pH {ph_lo:.2f}-{ph_hi:.2f}; pCO2 {pco2_lo:.0f}-{pco2_hi:.0f}; HCO3 {hco3_lo:.0f}-"
          "{hco3_hi:.0f}; gap {gap_judged:.1f} <= {gap_high_limit:.0f}",
          "Normal values do not exclude offsetting disorders; the gap and SBE are shown below.",
          ("narins_emmett_1980", "klaestrup_2011")),
+    Rule("P-PH-UNEXPLAINED", "process", "caution", "pH not explained by pCO2 or HCO3-",
+         lambda f: f["ph_unexplained"],
+         "pH {ph:.2f} is outside {ph_lo:.2f}-{ph_hi:.2f} while pCO2 {pco2:.0f} mm[Hg] and "
+         "HCO3- {hco3:.1f} mmol/L sit at their reference values: no process is assessable "
+         "from these numbers; check them (see the consistency verdict).",
+         "pH {ph:.3f}; pCO2 {pco2:.1f} vs {pco2_lo:.0f}-{pco2_hi:.0f}; HCO3 {hco3:.1f} vs "
+         "{hco3_lo:.0f}-{hco3_hi:.0f}",
+         "An acidaemia or alkalaemia needs a component that moved; none did.",
+         ("narins_emmett_1980", "clsi_c46")),
     Rule("P-PRIMARY-METABOLIC-ACIDOSIS", "process", "caution", "Primary metabolic acidosis",
          lambda f: f["prim_met_acid"],
          _primary_text("metabolic acidosis", "HCO3- {hco3:.1f} mmol/L below {hco3_lo:.0f}"),
@@ -526,6 +537,13 @@ RULES: tuple[Rule, ...] = (
          "AGc = AG + 0.25 x ({ref_albumin:.0f} - albumin g/L) = {anion_gap_corrected}",
          "Reference intervals differ between analysers: set the local one.",
          ("kraut_madias_2007", "figge_1998", "klaestrup_2011", "winter_1990")),
+    Rule("D-GAP-WITHOUT-K", "detail", "info", "Gap judged without K+",
+         lambda f: f["gap_k_fallback"],
+         "K+ not measured: the gap is judged without K+ against {gap_low:.0f}-"
+         "{gap_high_limit:.0f} mmol/L, not the with-K+ interval set for this laboratory.",
+         "AG = Na - (Cl + HCO3) = {anion_gap:.1f}",
+         "The with-K+ gap cannot be formed without K+; the without-K+ interval still applies.",
+         ("klaestrup_2011",)),
     Rule("D-GAP-UNCORRECTED", "detail", "caution", "Gap not corrected for albumin",
          lambda f: np.isnan(f["albumin"]) & ~f["gap_high"],
          "Albumin not measured: the gap is not corrected, and a low albumin would hide a raised "
