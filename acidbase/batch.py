@@ -292,29 +292,28 @@ def _missing_text(name: str) -> str:
     return str(Problem(spec.name, spec.title, None, spec.unit, kind="missing"))
 
 
-def merge_refusals(tab: dict[str, np.ndarray], cv: ChunkValues) -> None:
-    """Rows refused while reading: status refused, reasons first, no interpretation."""
-    if not cv.problems:
-        return
-    rows = np.fromiter(cv.problems, dtype=np.int64)
-    for key, col in tab.items():
-        if key in ("status", "reason"):
-            continue
-        # Copies: a column of the table may be the kernel's own array.
-        if col.dtype == object:
-            col = col.copy()
-            col[rows] = ""
-        elif col.dtype.kind == "f":
-            col = col.astype(np.float64, copy=True)
-            col[rows] = np.nan
-        tab[key] = col
-    status = tab["status"]
-    reason = tab["reason"]
+def merged_reasons(engine_reasons: np.ndarray, cv: ChunkValues) -> dict[int, str]:
+    """Reasons of the rows refused while reading: reading problems first, then the
+    kernel's own, less its "missing" message for a field the reading already named."""
+    out: dict[int, str] = {}
     for i, mine in cv.problems.items():
         drop = {_missing_text(f) for f in cv.skip_missing.get(i, ())}
-        theirs = [r for r in str(reason[i] or "").split("; ") if r and r not in drop]
-        status[i] = "refused"
-        reason[i] = "; ".join(mine + theirs)
+        theirs = [r for r in str(engine_reasons[i] or "").split("; ") if r and r not in drop]
+        out[i] = "; ".join(mine + theirs)
+    return out
+
+
+def _blank(arr: pa.Array, mask: pa.Array) -> pa.Array:
+    """``arr`` with the rows of ``mask`` emptied ("" for text, null otherwise)."""
+    if pa.types.is_string(arr.type):
+        return pc.if_else(mask, pa.scalar("", pa.string()), arr)
+    return pc.if_else(mask, pa.scalar(None, arr.type), arr)
+
+
+def _fixed_text(col: np.ndarray) -> pa.Array:
+    """A column of the kernel's fixed vocabulary as a dictionary array (few values,
+    many rows: one code per row instead of one string)."""
+    return pc.dictionary_encode(pa.array(col, type=pa.string()))
 
 
 # ---------------------------------------------------------------------------
@@ -666,7 +665,12 @@ def _run(args: argparse.Namespace) -> int:
             _serial_pass(src, layout, decimal, checker, progress)
         finally:
             progress.end()
-    writer = fileio.Writer(args.output, out_fmt, out_delim, metadata={"caution": CAUTION})
+    # Escaped: every passed-through input column, and our columns that quote input
+    # (reasons and serial details quote cell values; they start with a field's title).
+    escaped = [f"{h} (input)" for h in src.headers] + list(src.headers) + [
+        "reason", "serial_detail", "qualifiers", "lab_flags"]
+    writer = fileio.Writer(args.output, out_fmt, out_delim, metadata={"caution": CAUTION},
+                           escape=escaped)
     tally = Tally()
     ok = False
     progress = Progress(src.estimated_rows(), not args.quiet)
@@ -715,6 +719,10 @@ def _run(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+#: Kernel columns whose values come from a fixed vocabulary (never from the input).
+_VOCABULARY = ("consistency", "timing_respiratory")
+
+
 def _process(table: pa.Table, layout: Layout, decimal: str, settings,
              checker: serial.SerialChecker | None, start: int,
              keep: tuple[str, ...] = DERIVED) -> tuple[dict[str, pa.Array], dict]:
@@ -723,45 +731,54 @@ def _process(table: pa.Table, layout: Layout, decimal: str, settings,
     units = {k: v for k, v in layout.units.items() if v != BY_NAME[k].unit}
     res = interpret_many(cv.columns, units or None, settings)
     tab = res.table()
-    for key in DERIVED:
-        if key not in keep:
-            tab.pop(key, None)
-    tab["status"] = np.array(tab["status"], dtype=object)
-    tab["reason"] = np.array(tab["reason"], dtype=object)
-    merge_refusals(tab, cv)
-    refused = res.refused.copy()
-    if cv.problems:
-        refused[np.fromiter(cv.problems, dtype=np.int64)] = True
+    engine_refused = np.asarray(res.refused, dtype=bool)
+    refused = engine_refused.copy()
+    mine = merged_reasons(tab["reason"], cv)
+    if mine:
+        refused[np.fromiter(mine, dtype=np.int64)] = True
+    # Rows the reading refused but the kernel read (a bad optional value): no reading.
+    blank = refused & ~engine_refused
+    bmask = pa.array(blank) if blank.any() else None
     fired = res.fired
     review = _review_mask(fired, refused)
     out: dict[str, pa.Array] = {}
-    rmask = pa.array(refused)
     for key, col in tab.items():
+        if key in DERIVED and key not in keep:
+            continue
         if key == "status":  # two values: built from the mask, not converted cell by cell
-            out[key] = pc.if_else(rmask, "refused", "interpreted")
+            arr = pc.if_else(pa.array(refused), "refused", "interpreted")
         elif key == "reason":
-            out[key] = _sparse_text(col, refused)
+            reasons = col.copy() if mine else col
+            for i, text in mine.items():
+                reasons[i] = text
+            arr = _sparse_text(reasons, refused)
         elif col.dtype == object:
-            out[key] = pa.array(col, type=pa.string())
+            arr = _fixed_text(col) if key in _VOCABULARY or key.startswith("role_") else \
+                pa.array(col, type=pa.string())
         else:
-            out[key] = pa.array(col, from_pandas=True)
+            arr = pa.array(col, mask=np.isnan(col)) if col.dtype.kind == "f" else pa.array(col)
+        if bmask is not None and key not in ("status", "reason"):
+            arr = _blank(arr, bmask)
+        out[key] = arr
     quals, flags = qualifier_columns(cv, n)
     if checker is not None:
-        scols = checker.columns(start, start + n)
+        scols = checker.arrow_columns(start, start + n)
         review = review | (checker.status[start:start + n] == serial.FLAGGED)
     else:
-        scols = {k: np.full(n, "", dtype=object) for k in serial.COLUMNS}
-        scols["serial_status"] = np.full(n, "not run", dtype=object)
-    out["needs_review"] = pa.array(np.where(review, "yes", "no").astype(object), type=pa.string())
+        scols = {"serial_status": pa.repeat(pa.scalar("not run"), n),
+                 "serial_codes": pa.repeat(pa.scalar(""), n),
+                 "serial_detail": pa.repeat(pa.scalar(""), n)}
+    out["needs_review"] = pc.if_else(pa.array(review), "yes", "no")
     out["qualifiers"] = quals
     out["lab_flags"] = flags
     for k in serial.COLUMNS:
-        out[k] = pa.array(scols[k], type=pa.string())
-    caution = np.full(n, None, dtype=object)
-    if start == 0 and n:
-        caution[0] = CAUTION
-    out["caution"] = pa.array(caution, type=pa.string())
-    meta = {"engine_cols": list(tab), "refused": refused, "review": review, "fired": fired,
+        out[k] = scols[k]
+    first = CAUTION if start == 0 else None
+    out["caution"] = pa.concat_arrays([pa.array([first], type=pa.string()),
+                                       pa.nulls(n - 1, pa.string())]) if n else \
+        pa.array([], type=pa.string())
+    meta = {"engine_cols": [k for k in tab if not (k in DERIVED and k not in keep)],
+            "refused": refused, "review": review, "fired": fired,
             "pco2": _canonical(cv, layout, "pco2"), "hco3": _canonical(cv, layout, "hco3")}
     return out, meta
 
@@ -796,4 +813,4 @@ def run(args: argparse.Namespace) -> int:
     return EXIT_CANNOT_RUN
 
 
-__all__ = ["configure_parser", "run", "read_values", "merge_refusals", "plane_picture"]
+__all__ = ["configure_parser", "run", "read_values", "merged_reasons", "plane_picture"]

@@ -66,7 +66,7 @@ _VALUE = (
 )
 #: A cell that is a plain number in either decimal convention (escaping exempts it).
 _PLAIN_NUMBER = r"^[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?$"
-_FORMULA_CHARS = pa.array(["=", "+", "-", "@", "\t", "\r", "\n", "\x00"])
+_FORMULA_BYTES = pa.array([b"=", b"+", b"-", b"@", b"\t", b"\r", b"\n", b"\x00"])
 
 
 class BatchInputError(ValueError, AcidBaseError):
@@ -860,8 +860,9 @@ def escape_formula(column: pa.Array | pa.ChunkedArray) -> pa.Array | pa.ChunkedA
     """Prefix ``'`` to text cells a spreadsheet would run as a formula (OWASP)."""
     if not (pa.types.is_string(column.type) or pa.types.is_large_string(column.type)):
         return column
-    first = pc.utf8_slice_codeunits(column, 0, 1)
-    starts = pc.is_in(first, value_set=_FORMULA_CHARS)
+    # The first byte decides (all the characters in question are ASCII).
+    first = pc.binary_slice(column.cast(pa.binary()), 0, 1)
+    starts = pc.is_in(first, value_set=_FORMULA_BYTES)
     if not pc.any(starts).as_py():  # the common case, without a regular expression
         return column
     danger = pc.and_(starts, pc.invert(pc.match_substring_regex(column, _PLAIN_NUMBER)))
@@ -893,7 +894,11 @@ class Writer:
     """
 
     def __init__(self, path: str | None, fmt: str, delimiter: str = ",",
-                 metadata: Mapping[str, str] | None = None) -> None:
+                 metadata: Mapping[str, str] | None = None,
+                 escape: Sequence[str] | None = None) -> None:
+        """``escape``: the CSV columns that can carry text from the input (all when
+        None); the others hold only the tool's own vocabulary and numbers."""
+        self.escape = None if escape is None else frozenset(escape)
         if fmt == "parquet" and (path is None or path == "-"):
             raise BatchInputError("Parquet output needs a file: give -o OUTPUT.parquet")
         self.path = path if path not in (None, "-") else None
@@ -960,7 +965,9 @@ class Writer:
             table = table.cast(self.schema.remove_metadata()) if self.metadata else table.cast(
                 self.schema)
         if self.fmt == "csv":
-            table = pa.table([escape_formula(c) for c in table.columns], schema=table.schema)
+            table = pa.table([escape_formula(c) if self.escape is None or name in self.escape
+                              else c for name, c in zip(table.column_names, table.columns)],
+                             schema=table.schema)
             self._writer.write_table(table)
         elif self.fmt == "parquet":
             self._writer.write_table(table)

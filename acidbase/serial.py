@@ -334,6 +334,26 @@ class SerialChecker:
             detail[k] = self._flag_detail[j]
         return {"serial_status": labels, "serial_codes": codes, "serial_detail": detail}
 
+    def arrow_columns(self, start: int, stop: int) -> dict[str, pa.Array]:
+        """``columns`` as Arrow arrays; the status as a dictionary array of its texts."""
+        if self.status is None:
+            raise RuntimeError("finish() first")
+        st = self.status[start:stop]
+        status = pa.DictionaryArray.from_arrays(pa.array(st.astype(np.int8)),
+                                                pa.array(list(STATUS_TEXT)))
+        n = stop - start
+        lo, hi = np.searchsorted(self._flag_rows, [start, stop])
+        if hi == lo:
+            empty = pa.repeat(pa.scalar(""), n)
+            return {"serial_status": status, "serial_codes": empty, "serial_detail": empty}
+        where = np.full(n, -1, dtype=np.int64)
+        where[self._flag_rows[lo:hi] - start] = np.arange(hi - lo)
+        index = pa.array(where, mask=where < 0)
+        codes = pc.fill_null(pc.take(pa.array(self._flag_codes[lo:hi], type=pa.string()), index), "")
+        detail = pc.fill_null(pc.take(pa.array(self._flag_detail[lo:hi], type=pa.string()),
+                                      index), "")
+        return {"serial_status": status, "serial_codes": codes, "serial_detail": detail}
+
     def close(self) -> None:
         for w in self._writers:
             if w is not None:

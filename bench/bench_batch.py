@@ -131,6 +131,55 @@ def row_by_row(path: str, out: str, n: int) -> dict[str, float]:
     return {"rows_per_s": n / t, "seconds": t}
 
 
+def stages(path: str, chunk_rows: int = 16384) -> dict[str, float]:
+    """Seconds spent in each stage of the batch path, in this process, one thread.
+
+    read (pyarrow CSV), values (parsing cells), kernel (``interpret_many``), table
+    (``Results.table``), columns (the rest of a chunk's processing: to Arrow,
+    refusals, qualifiers, review; measured as the whole chunk step minus the three
+    before, run again on the same chunk), escape (formula escaping), write (CSV
+    formatting into memory).  Summed over the file; serial checks off.
+    """
+    import io
+
+    import pyarrow as pa
+    import pyarrow.csv as pa_csv
+
+    from acidbase import batch, fileio
+
+    src = fileio.open_source(path, chunk_rows=chunk_rows)
+    layout = fileio.map_headers(src.headers)
+    spent = dict.fromkeys(("read", "values", "kernel", "table", "columns", "escape", "write"),
+                          0.0)
+
+    def timed(key: str, fn):
+        t0 = time.perf_counter()
+        out = fn()
+        dt = time.perf_counter() - t0
+        spent[key] += dt
+        return out, dt
+
+    chunks = iter(src.chunks())
+    while True:
+        try:
+            table, _ = timed("read", lambda: next(chunks))
+        except StopIteration:
+            break
+        cv, a = timed("values", lambda: batch.read_values(table, layout, "."))
+        res, b = timed("kernel", lambda: acidbase.interpret_many(cv.columns))
+        _, c = timed("table", res.table)
+        t0 = time.perf_counter()
+        out, _ = batch._process(table, layout, ".", None, None, 0)
+        spent["columns"] += max(0.0, time.perf_counter() - t0 - (a + b + c))
+        cols = {h: table[h] for h in src.headers}
+        cols.update(out)
+        tab = pa.table(cols)
+        tab, _ = timed("escape", lambda: pa.table(
+            [fileio.escape_formula(col) for col in tab.columns], schema=tab.schema))
+        timed("write", lambda: pa_csv.write_csv(tab, io.BytesIO()))
+    return spent
+
+
 def profile_kernel(n: int, top: int = 15) -> str:
     cols = synthetic.panels(n)
     columns = {s.name: cols[s.name] for s in NUMERIC if s.name in cols}
@@ -171,6 +220,11 @@ def main() -> None:
         out = os.path.join(tmp, "out.csv")
         results["csv_serial"] = end_to_end(src, out, a.n, a.repeats, [])
         results["csv_no_serial"] = end_to_end(src, out, a.n, a.repeats, ["--no-serial"])
+        results["csv_no_serial_no_derived"] = end_to_end(
+            src, out, a.n, a.repeats, ["--no-serial", "--derived", "none"])
+        pq_out = os.path.join(tmp, "out.parquet")
+        results["csv_to_parquet"] = end_to_end(src, pq_out, a.n, a.repeats, ["--no-serial"])
+        results["stages_seconds"] = stages(src)
         results["row_by_row"] = row_by_row(src, out, a.baseline_n)
         if a.big_n:
             big = os.path.join(tmp, "big.csv")
@@ -188,7 +242,9 @@ def main() -> None:
         f"  kernel + output columns        {k['kernel_table_panels_per_s']:>12,.0f} panels/s",
     ]
     for key, label in (("csv_serial", "CSV -> CSV, serial checks on "),
-                       ("csv_no_serial", "CSV -> CSV, --no-serial       ")):
+                       ("csv_no_serial", "CSV -> CSV, --no-serial       "),
+                       ("csv_no_serial_no_derived", "  same, --derived none        "),
+                       ("csv_to_parquet", "CSV -> Parquet, --no-serial   ")):
         r = results[key]
         lines.append(f"  {label} {r['rows_per_s']:>12,.0f} rows/s    peak {r['peak_mb']:6.0f} MB"
                      f"   {r['rows_per_s'] / base:5.1f}x row by row")
@@ -199,6 +255,10 @@ def main() -> None:
         lines.append(f"  {a.big_n:,}-row file ({results['big_file_mb']:.0f} MB), serial on: "
                      f"{r['rows_per_s']:,.0f} rows/s, peak {r['peak_mb']:.0f} MB (target 300)")
     lines.append("  targets: CSV end to end >= 1,000,000 rows/s and >= 4x row by row")
+    st = results["stages_seconds"]
+    total = sum(st.values())
+    lines.append("  where the time goes (one thread, --no-serial, microseconds per row): " + ", ".join(
+        f"{k} {v / a.n * 1e6:.2f}" for k, v in st.items()) + f"; total {total / a.n * 1e6:.2f}")
     print("\n".join(lines))
     if a.profile:
         print(profile_kernel(min(a.n, 1_000_000)))

@@ -366,3 +366,16 @@ def test_header_without_rows_could_not_run(tmp_path, capsys):
     f.write_text("ph,pco2,hco3,na,cl\n")
     rc, err = batch(capsys, f, "-o", tmp_path / "o.csv")
     assert rc == 2 and "no rows" in err and not (tmp_path / "o.csv").exists()
+
+
+def test_columns_left_unescaped_never_start_like_a_formula(tmp_path, capsys):
+    """Only input-carrying columns are escaped; the others must never need it (OWASP)."""
+    out = tmp_path / "o.csv"
+    batch(capsys, DATA / "mixed.csv", "-o", out)
+    inputs = set(rows_of(DATA / "mixed.csv")[0])
+    for r in rows_of(out):
+        for key, cell in r.items():
+            if key in inputs or key in ("reason", "serial_detail", "qualifiers", "lab_flags"):
+                continue
+            if cell and cell[0] in "=+-@\t\r\n\0":
+                float(cell)  # only a number may start so
