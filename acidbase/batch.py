@@ -310,12 +310,6 @@ def _blank(arr: pa.Array, mask: pa.Array) -> pa.Array:
     return pc.if_else(mask, pa.scalar(None, arr.type), arr)
 
 
-def _fixed_text(col: np.ndarray) -> pa.Array:
-    """A column of the kernel's fixed vocabulary as a dictionary array (few values,
-    many rows: one code per row instead of one string)."""
-    return pc.dictionary_encode(pa.array(col, type=pa.string()))
-
-
 # ---------------------------------------------------------------------------
 # Summary and report
 
@@ -719,10 +713,6 @@ def _run(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-#: Kernel columns whose values come from a fixed vocabulary (never from the input).
-_VOCABULARY = ("consistency", "timing_respiratory")
-
-
 def _process(table: pa.Table, layout: Layout, decimal: str, settings,
              checker: serial.SerialChecker | None, start: int,
              keep: tuple[str, ...] = DERIVED) -> tuple[dict[str, pa.Array], dict]:
@@ -753,8 +743,7 @@ def _process(table: pa.Table, layout: Layout, decimal: str, settings,
                 reasons[i] = text
             arr = _sparse_text(reasons, refused)
         elif col.dtype == object:
-            arr = _fixed_text(col) if key in _VOCABULARY or key.startswith("role_") else \
-                pa.array(col, type=pa.string())
+            arr = pa.array(col, type=pa.string())
         else:
             arr = pa.array(col, mask=np.isnan(col)) if col.dtype.kind == "f" else pa.array(col)
         if bmask is not None and key not in ("status", "reason"):
