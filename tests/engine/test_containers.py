@@ -18,29 +18,11 @@ from .panels import catalogue, columns_of, normal_e3
 
 CATALOGUE = catalogue()
 
-#: Engine bug seen while writing these tests (working tree of 2 Dec 2026): the kernel skips
-#: the osmolality block unless some row of the batch has a measured osmolality, so
-#: ``osmolality_calculated`` of a row without one is None alone and a number beside a row
-#: that has one.  (The same leak in ``story_na_cl``, keyed on albumin, was fixed meanwhile.)
-NEIGHBOUR_LEAK = pytest.mark.xfail(
-    strict=True,
-    reason=(
-        "engine bug: osmolality_calculated of a row without a measured osmolality depends on whether "
-        "another row of the batch has one (block skipped per batch, not per row)"
-    ),
-)
-
-
-def _leaks(panel: acidbase.Panel) -> bool:
-    """The panel's own row has glucose and urea but no measured osmolality."""
-    return panel.glucose is not None and panel.osmolality is None
-
 
 def _cases():
-    for name, panel in CATALOGUE.items():
+    for name in CATALOGUE:
         for kind in CONTAINERS[1:]:
-            marks = [NEIGHBOUR_LEAK] if kind == "batch of many" and _leaks(panel) else []
-            yield pytest.param(name, kind, marks=marks, id=f"{name}-{kind}")
+            yield pytest.param(name, kind, id=f"{name}-{kind}")
 
 
 def same_number(x: float | None, y: float | None) -> bool:
@@ -66,7 +48,6 @@ def test_every_container_gives_the_single_panel_reading(name, kind):
     assert_same(interpret_as(kind, panel), interpret_as("single", panel))
 
 
-@NEIGHBOUR_LEAK
 def test_one_batch_of_the_whole_catalogue_matches_each_panel_alone():
     panels = list(CATALOGUE.values())
     res = acidbase.interpret_many(columns_of(panels))
@@ -74,7 +55,6 @@ def test_one_batch_of_the_whole_catalogue_matches_each_panel_alone():
         assert_same(res.interpretation(i), acidbase.interpret(panel))
 
 
-@NEIGHBOUR_LEAK
 def test_a_row_does_not_borrow_a_neighbours_measured_osmolality():
     """A panel without measured osmolality reads the same alone and beside one that has it."""
     without = CATALOGUE["E23 without measured osmolality"]

@@ -34,14 +34,6 @@ def test_gap_with_k_just_below_16_is_normal(interpret):
     assert gap_label(r) == "normal"
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason=(
-        "engine bug: with anion_gap_uses_k and K+ not measured the judged gap is NaN and the acidosis "
-        "is labelled 'normal gap' (P-NORMAL-GAP-ACIDOSIS, 'n/a mmol/L'), although the gap without K+ "
-        "is 25, above the with-K limit 16 whatever K+ is"
-    ),
-)
 def test_gap_with_k_setting_and_no_potassium_does_not_call_a_gap_of_25_normal(interpret):
     # Gap without K+ 25 (Gabow 1980 level, value from memory); AG(K) = 25 + K >= 25 > 16 for any
     # K+ >= 0 (Kraut & Madias 2007; Klaestrup 2011), so "normal gap" cannot be right.

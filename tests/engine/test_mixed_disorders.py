@@ -175,13 +175,6 @@ def test_gap_just_below_the_gabow_threshold_does_not_read_an_acidosis(interpret)
     assert "P-GAP-RAISED-ONLY" in r.codes()
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason=(
-        "engine bug: P-NONE states 'anion gap not raised' while the gap is above the Klaestrup 2011 "
-        "upper limit 12 (P-GAP-RAISED-ONLY fires on the same panel)"
-    ),
-)
 def test_no_disorder_statement_does_not_deny_a_raised_gap(interpret):
     # Gap 13: just outside Klaestrup's upper edge 12, on the E3 acid-base values.
     r = interpret(edge_panel(24.22, 40.0, gap=13.0))

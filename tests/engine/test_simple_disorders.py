@@ -117,13 +117,6 @@ def test_respiratory_bands_are_reported_as_expected_hco3(interpret):
     )
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason=(
-        "engine bug: pH 7.34 with pCO2 40 / HCO3 24 gets P-NONE 'No acid-base disorder found: pH 7.34 "
-        "... within their intervals', although 7.34 is below the arterial interval 7.35-7.45"
-    ),
-)
 @pytest.mark.parametrize("ph", [7.34, 7.46], ids=["just below 7.35", "just above 7.45"])
 def test_ph_outside_its_interval_is_never_read_as_no_disorder(interpret, ph):
     # Methods E4 components (pCO2 40, HCO3 24) with a pH just outside the arterial interval
