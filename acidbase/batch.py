@@ -24,7 +24,6 @@ import re
 import sys
 import time
 from collections import Counter
-from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -210,7 +209,7 @@ class ChunkValues:
 
 
 def read_values(table: pa.Table, layout: Layout, decimal: str) -> ChunkValues:
-    n = table.num_rows
+    """Parse one chunk's numeric and choice columns; collect the problems that refuse rows."""
     col_of = layout.column_of
     columns: dict[str, np.ndarray] = {}
     parsed: dict[str, fileio.ParsedColumn] = {}

@@ -45,7 +45,7 @@ import pyarrow.parquet as pq
 from . import loinc
 from . import units as _units
 from .errors import AcidBaseError, UnitError
-from .fields import BY_NAME, NUMERIC, REQUIRED, TEXT_FIELDS
+from .fields import BY_NAME, REQUIRED, TEXT_FIELDS
 
 #: Fields that are text, read as given: choices and identifiers.
 CHOICE_FIELDS: tuple[str, ...] = ("sample_type", "hco3_source")
@@ -921,8 +921,9 @@ class Writer:
             self._sink = sys.stdout.buffer
         self.schema = schema.with_metadata(self.metadata) if self.metadata else schema
         if self.fmt == "csv":
-            self._writer = pa_csv.CSVWriter(self._sink, self.schema, write_options=pa_csv.WriteOptions(
-                include_header=True, delimiter=self.delimiter, quoting_style="needed"))
+            options = pa_csv.WriteOptions(include_header=True, delimiter=self.delimiter,
+                                          quoting_style="needed")
+            self._writer = pa_csv.CSVWriter(self._sink, self.schema, write_options=options)
         elif self.fmt == "parquet":
             self._writer = pq.ParquetWriter(self._sink, self.schema)
 
@@ -1005,6 +1006,7 @@ __all__ = [
     "ALL_FIELDS", "BatchInputError", "Dialect", "LAB_FLAGS", "Layout", "ParsedColumn", "Source",
     "TIME_INVALID", "TIME_MISSING", "TIME_NAIVE", "TIME_ZONED", "Writer", "csv_sample",
     "detect_decimal", "detect_format", "escape_formula", "map_headers", "open_source",
-    "output_format", "parse_choice", "parse_numeric", "parse_text", "parse_times", "read_mapping", "rechunk",
+    "output_format", "parse_choice", "parse_numeric", "parse_text", "parse_times", "read_mapping",
+    "rechunk",
     "sniff_csv", "split_unit",
 ]

@@ -187,7 +187,8 @@ class SerialChecker:
             part = buckets[np.asarray(enc.indices.to_numpy(zero_copy_only=False))]
         else:
             part = np.zeros(len(idx), dtype=np.int64)
-        samp = _strings(sample).take(take) if sample is not None else pa.nulls(len(idx), pa.string())
+        samp = (_strings(sample).take(take) if sample is not None
+                else pa.nulls(len(idx), pa.string()))
         table = pa.table(
             [pa.array(rows[idx]), pat, pa.array(seconds[idx]), pa.array(kind[idx] == TIME_ZONED),
              samp] + [pa.array(np.asarray(values.get(r.field, np.full(n, np.nan)))[idx],
@@ -242,7 +243,8 @@ class SerialChecker:
             self._flag_detail = [detail_out[i] for i in order.tolist()]
         self._tmp.cleanup()
 
-    def _check(self, table: pa.Table, status: np.ndarray) -> tuple[np.ndarray, list[str], list[str]]:
+    def _check(self, table: pa.Table,
+               status: np.ndarray) -> tuple[np.ndarray, list[str], list[str]]:
         n = table.num_rows
         if n == 0:
             return np.zeros(0, dtype=np.int64), [], []
@@ -301,8 +303,9 @@ class SerialChecker:
                     f"{_fmt(vals[r.field][i - 1])} and {_fmt(vals[r.field][i + 1])}"
                     for r in broke)
                 text.append(
-                    f"breaks this patient's series ({parts}; panels {_ref(row[i - 1], samples[i - 1])}"
-                    f" and {_ref(row[i + 1], samples[i + 1])}): possible sample from another "
+                    f"breaks this patient's series ({parts}; panels "
+                    f"{_ref(row[i - 1], samples[i - 1])} and {_ref(row[i + 1], samples[i + 1])}): "
+                    "possible sample from another "
                     "patient or contaminated sample; check identity and collection")
             for r in self.rules:
                 if delta_hits[r.field][i]:
@@ -312,8 +315,9 @@ class SerialChecker:
                     text.append(
                         f"{spec.title} {_fmt(vals[r.field][i])} after {_fmt(vals[r.field][i - 1])} "
                         f"({'+' if d > 0 else ''}{_fmt(d)} {spec.unit} in "
-                        f"{_hours(float(t[i] - t[i - 1]))}, since {_ref(row[i - 1], samples[i - 1])});"
-                        f" delta limit {_fmt(r.limit)} {spec.unit}")
+                        f"{_hours(float(t[i] - t[i - 1]))}, since "
+                        f"{_ref(row[i - 1], samples[i - 1])}); "
+                        f"delta limit {_fmt(r.limit)} {spec.unit}")
             codes.append(";".join(c))
             details.append("; ".join(text))
         return row[flagged], codes, details
@@ -349,7 +353,8 @@ class SerialChecker:
         where = np.full(n, -1, dtype=np.int64)
         where[self._flag_rows[lo:hi] - start] = np.arange(hi - lo)
         index = pa.array(where, mask=where < 0)
-        codes = pc.fill_null(pc.take(pa.array(self._flag_codes[lo:hi], type=pa.string()), index), "")
+        codes = pc.fill_null(pc.take(pa.array(self._flag_codes[lo:hi], type=pa.string()),
+                                     index), "")
         detail = pc.fill_null(pc.take(pa.array(self._flag_detail[lo:hi], type=pa.string()),
                                       index), "")
         return {"serial_status": status, "serial_codes": codes, "serial_detail": detail}

@@ -257,8 +257,9 @@ def main() -> None:
     lines.append("  targets: CSV end to end >= 1,000,000 rows/s and >= 4x row by row")
     st = results["stages_seconds"]
     total = sum(st.values())
-    lines.append("  where the time goes (one thread, --no-serial, microseconds per row): " + ", ".join(
-        f"{k} {v / a.n * 1e6:.2f}" for k, v in st.items()) + f"; total {total / a.n * 1e6:.2f}")
+    per_row = ", ".join(f"{k} {v / a.n * 1e6:.2f}" for k, v in st.items())
+    lines.append("  where the time goes (one thread, --no-serial, microseconds per row): "
+                 f"{per_row}; total {total / a.n * 1e6:.2f}")
     print("\n".join(lines))
     if a.profile:
         print(profile_kernel(min(a.n, 1_000_000)))
