@@ -107,3 +107,10 @@ def test_inconsistency_is_reported_before_the_processes(interpret):
     codes = interpret(e3_with(CALC_HCO3 * 1.19, "analyser")).codes()
     first_process = min(i for i, c in enumerate(codes) if c.startswith("P-"))
     assert codes.index("T-HH-INCONSISTENT") < first_process
+
+
+def test_derived_hydrogen_ion_and_total_co2_at_e3(interpret):
+    # Methods E5: pH 7.40 is [H+] 39.8 nmol/L; CLSI C46 total CO2 24.22 + 0.0307 x 40 = 25.45.
+    d = interpret(e3_with(CALC_HCO3, "analyser")).derived
+    assert d["h_nmol_per_l"] == pytest.approx(39.8, abs=0.05)
+    assert d["total_co2_calculated"] == pytest.approx(CALC_TCO2, abs=0.005)

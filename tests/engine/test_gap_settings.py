@@ -40,3 +40,17 @@ def test_gap_with_k_setting_and_no_potassium_does_not_call_a_gap_of_25_normal(in
     r = interpret(edge_panel(10.0, 23.0, gap=25.0), WITH_K)
     assert gap_label(r) != "normal"
     assert "P-NORMAL-GAP-ACIDOSIS" not in r.codes()
+
+
+def test_a_laboratory_interval_of_3_to_11_reads_a_gap_of_11_5_as_high(interpret):
+    # Winter, Pearson, Gabow et al., Arch Intern Med 1990: ISE-era interval 3-11 mmol/L; 11.5 is
+    # just outside its upper edge (and inside Klaestrup's default 6-12).
+    ise = acidbase.Settings(anion_gap_low=3.0, anion_gap_high=11.0)
+    r = interpret(edge_panel(10.0, 23.0, gap=11.5), ise)
+    assert "high" in {d.anion_gap for d in r.disorders}
+
+
+def test_the_default_interval_reads_the_same_gap_of_11_5_as_normal(interpret):
+    # Klaestrup 2011 default 6-12: 11.5 just inside the upper edge.
+    r = interpret(edge_panel(10.0, 23.0, gap=11.5))
+    assert {d.anion_gap for d in r.disorders} == {"normal"}

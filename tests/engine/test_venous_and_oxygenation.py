@@ -166,3 +166,14 @@ def test_published_venous_values_labelled_arterial_read_a_respiratory_acidosis(i
     # Same E2 values against the arterial intervals: pH 7.334 < 7.35 and pCO2 46 > 45.
     r = interpret(edge_panel(24.0, 46.0, sample_type="arterial"))
     assert [(d.process, d.role) for d in r.disorders] == [("respiratory acidosis", "primary")]
+
+
+def test_winters_formula_on_venous_values_carries_the_venous_caution(interpret):
+    # Methods E6 at Winter's centre (HCO3 10, pCO2 23) moved by Kelly 2010 to venous (HCO3 11.41,
+    # pCO2 28.7): Winter's formula, derived from arterial blood (Albert, Dell & Winters 1967), puts
+    # 28.7 above 1.5 x 11.41 + 8 + 2 = 27.1.  The respiratory reading rests on venous pCO2, so the
+    # venous caution must accompany it.
+    r = interpret(edge_panel(10.0 + 1.41, 23.0 + 5.7, sample_type="venous"))
+    if "respiratory acidosis" in {d.process for d in r.disorders}:
+        assert "P-VENOUS-RESPIRATORY" in r.codes()
+    assert ("metabolic acidosis", "primary") in {(d.process, d.role) for d in r.disorders}
