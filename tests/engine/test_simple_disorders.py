@@ -136,3 +136,26 @@ def test_ph_outside_its_interval_is_never_read_as_no_disorder(interpret, ph):
     )
     assert "T-HH-INCONSISTENT" in r.codes()
     assert "P-NONE" not in r.codes()
+
+
+def test_derived_values_that_cannot_be_computed_are_null(interpret):
+    """Issue 2, section 5: null where not computable; a missing input is never guessed."""
+    # Methods E3 with no albumin, K+, lactate, phosphate, glucose, urea, pO2 or FiO2; HCO3 24.22 is
+    # not below 24, so the delta ratio has no fall to divide by (Rastegar 2007).
+    d = interpret(normal_e3()).derived
+    for key in (
+        "anion_gap_k",
+        "anion_gap_corrected",
+        "delta_ratio",
+        "sid_apparent",
+        "sid_effective",
+        "strong_ion_gap",
+        "story_albumin",
+        "osmolality_calculated",
+        "alveolar_po2",
+        "aa_gradient",
+        "pf_ratio",
+        "ph_at_temperature",
+    ):
+        assert d[key] is None, key
+    assert d["anion_gap"] == pytest.approx(9.0)

@@ -14,7 +14,7 @@ import pytest
 
 import acidbase
 
-from .panels import MMHG_PER_KPA, normal_e3
+from .panels import CLSI_ALPHA, CLSI_PK, MMHG_PER_KPA, normal_e3
 
 E3 = {
     "ph": 7.40,
@@ -173,11 +173,19 @@ def test_value_at_the_measuring_range_edge_is_accepted(field, value):
     acidbase.Panel(**(E3 | {field: value}))
 
 
-def test_extreme_but_accepted_value_is_flagged(interpret):
-    # pH 6.79: just outside the traditional 6.8-7.8 "compatible with life" (common practice, no
-    # source), inside the measuring range: accepted, flagged critical, never refused.
-    r = interpret(acidbase.Panel(**(E3 | {"ph": 6.79, "hco3": 4.5})))
-    assert "T-PH-LIFE" in r.codes()
+@pytest.mark.parametrize(("ph", "pco2"), [(6.79, 40.0), (7.81, 20.0)])
+def test_ph_beyond_the_traditional_limits_of_life_is_accepted_and_flagged(interpret, ph, pco2):
+    # pH just outside the traditional 6.8-7.8 "compatible with life" (common practice, no source),
+    # inside the measuring range 6.5-8.0: accepted, flagged critical, never refused.  HCO3 is put
+    # where Henderson-Hasselbalch (CLSI C46) places it, so the panel is consistent.
+    hco3 = round(CLSI_ALPHA * pco2 * 10 ** (ph - CLSI_PK), 2)
+    panel = acidbase.Panel(
+        **(E3 | {"ph": ph, "pco2": pco2, "hco3": hco3, "cl": 140.0 - hco3 - 9.0})
+    )
+    r = interpret(panel)
+    assert r.consistency.status == "consistent"
+    finding = next(f for f in r.findings if f.code == "T-PH-LIFE")
+    assert finding.severity == "critical"
 
 
 def test_unknown_unit_is_refused_naming_the_accepted_units():
