@@ -153,3 +153,42 @@ def test_respiratory_alkalosis_with_hco3_below_chronic_band_adds_metabolic_acido
     r = interpret(edge_panel(13.5, 20.0))
     assert processes(r) == {"respiratory alkalosis": "primary", "metabolic acidosis": "additional"}
     assert "P-RESP-MET-ACIDOSIS" in r.codes()
+
+
+# ---------------------------------------------------------------- published variants of the rules
+# The sources disagree on slopes (methods section 14); an expected value from any published
+# variant should still read as appropriate compensation, not as a second process.
+
+
+@pytest.mark.parametrize(
+    "pco2",
+    [
+        47.0,  # E11, 40 + 0.7 x 10 (Berend 2014 summary)
+        43.8,  # E11, 0.7 x 34 + 20 (Kidney360 2022 Table 3)
+        49.0,  # E11, HCO3 + 15 (physician.tw / wikidoc summary)
+        46.0,  # E11, 0.6 per mmol/L (Narins & Emmett 1980 via Weinberger appendix)
+    ],
+)
+def test_metabolic_alkalosis_variants_at_e11_read_as_compensated(interpret, pco2):
+    r = interpret(edge_panel(34.0, pco2))
+    assert processes(r) == {"metabolic alkalosis": "primary"}
+
+
+def test_original_winters_regression_at_e8_reads_as_compensated(interpret):
+    # Methods E8: HCO3 12; the original regression 1.54 x 12 + 8.36 = 26.8 (Kidney360 2022 Table 3,
+    # attributed to Albert, Dell & Winters 1967) lies inside the 1.5 x 12 + 8 +/- 2 band 24-28.
+    r = interpret(edge_panel(12.0, 26.8))
+    assert processes(r) == {"metabolic acidosis": "primary"}
+
+
+def test_chronic_respiratory_acidosis_at_four_per_ten_reads_chronic(interpret):
+    # Brandis "4 for 10" (methods 3.3 [S]): pCO2 60 gives HCO3 24 + 0.4 x 20 = 32, inside 29-33.
+    r = interpret(edge_panel(32.0, 60.0))
+    assert disorders(r) == {("respiratory acidosis", "primary", "chronic", None)}
+
+
+def test_chronic_respiratory_alkalosis_at_five_per_ten_reads_chronic(interpret):
+    # Narins & Emmett 1980 via the HK table, 0.5 per mm[Hg] (methods E10 variant): pCO2 20 gives
+    # HCO3 24 - 0.5 x 20 = 14, the lower edge of the 0.4-slope band 14-18.
+    r = interpret(edge_panel(14.0, 20.0))
+    assert disorders(r) == {("respiratory alkalosis", "primary", "chronic", None)}
