@@ -9,9 +9,11 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
 import pytest
 
 import acidbase
+from acidbase import api
 
 from .conftest import CONTAINERS, interpret_as
 from .panels import catalogue, columns_of, normal_e3
@@ -78,3 +80,16 @@ def test_settings_apply_equally_in_every_container():
     single = interpret_as("single", panel, settings)
     for kind in CONTAINERS[1:]:
         assert_same(interpret_as(kind, panel, settings), single)
+
+
+def test_a_batch_spanning_several_kernel_slices_matches_each_panel_alone():
+    """Rows on either side of every slice boundary read as they do alone."""
+    slice_rows = getattr(api, "SLICE_ROWS", 32768)
+    panels = list(CATALOGUE.values())
+    reps = (2 * slice_rows) // len(panels) + 2
+    cols = {k: np.tile(v, reps) for k, v in columns_of(panels).items()}
+    res = acidbase.interpret_many(cols)
+    n = res.n
+    rows = {0, n - 1} | {b + d for b in range(slice_rows, n, slice_rows) for d in (-1, 0, 1)}
+    for i in sorted(r for r in rows if 0 <= r < n):
+        assert_same(res.interpretation(i), acidbase.interpret(panels[i % len(panels)]))
