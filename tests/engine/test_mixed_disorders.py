@@ -188,3 +188,25 @@ def test_hypoalbuminaemia_unmasks_a_high_gap(interpret):
     r = interpret(edge_panel(14.0, 29.0, albumin=20.0))
     assert r.derived["anion_gap_corrected"] == pytest.approx(15.0)
     assert ("metabolic acidosis", "primary", None, "high") in disorders(r)
+
+
+def test_combined_alkalosis_with_both_components_abnormal_is_flagged_combined(interpret):
+    # Methods E11 HCO3 34 with the E10 pCO2 20: both beyond their intervals and both raising pH
+    # (Narins & Emmett 1980): two primary processes, nothing to compensate.
+    r = interpret(edge_panel(34.0, 20.0))
+    assert {(d.process, d.role) for d in r.disorders} == {
+        ("metabolic alkalosis", "primary"),
+        ("respiratory alkalosis", "primary"),
+    }
+    assert "P-COMBINED" in r.codes()
+
+
+def test_normal_ph_hides_a_respiratory_acidosis_with_a_metabolic_alkalosis(interpret):
+    # Methods E9 pCO2 60 with the E11 HCO3 34: pH 7.371 by Henderson-Hasselbalch (CLSI), inside
+    # 7.35-7.45.  pCO2 above 45 on the acid side of 7.40 is the primary process; HCO3 34 is above the
+    # chronic band's upper edge 24 + 0.35 x 20 + 2 = 33 (Narins & Emmett 1980; Berend 2014).
+    r = interpret(edge_panel(34.0, 60.0))
+    assert {(d.process, d.role) for d in r.disorders} == {
+        ("respiratory acidosis", "primary"),
+        ("metabolic alkalosis", "additional"),
+    }
