@@ -9,6 +9,8 @@ from __future__ import annotations
 
 import pytest
 
+import acidbase
+
 from .panels import edge_panel, normal_e3, venous_kelly
 
 
@@ -48,7 +50,7 @@ def test_non_arterial_po2_is_not_read_as_oxygenation(interpret, sample_type):
 def test_low_venous_po2_raises_no_hypoxaemia_call(interpret):
     # Venous pO2 runs about 37 mm[Hg] below arterial (Byrne et al., Respirology 2014: 36.9); a venous
     # pO2 of 39, just under the Iowa critical-call limit 40, is not an arterial critical value.
-    r = interpret(venous_kelly("venous").model_copy(update={"po2": 39.0}))
+    r = interpret(acidbase.Panel(**(venous_kelly("venous").model_dump() | {"po2": 39.0})))
     assert not {"T-CRITICAL", "T-POSSIBLE-VENOUS"} & set(r.codes())
 
 
