@@ -210,3 +210,12 @@ def test_normal_ph_hides_a_respiratory_acidosis_with_a_metabolic_alkalosis(inter
         ("respiratory acidosis", "primary"),
         ("metabolic alkalosis", "additional"),
     }
+
+
+def test_effective_sid_at_the_e27_values_uses_the_clsi_bicarbonate(interpret):
+    # Methods E27 inputs (pH 7.40, pCO2 40, albumin 42 g/L, phosphate 1.1 mmol/L): Figge-Fencl
+    # albumin 11.73 + phosphate 2.00 (Figge, Mydosh & Fencl 1992).  E27 prints 38.44 with the
+    # Stewart bicarbonate term 24.72; the engine's bicarbonate is CLSI's 24.22 (E3), so derived:
+    # 24.22 + 11.73 + 2.00 = 37.95.
+    r = interpret(edge_panel(24.22, 40.0, albumin=42.0, phosphate=1.1))
+    assert r.derived["sid_effective"] == pytest.approx(37.95, abs=0.01)
