@@ -264,6 +264,13 @@ def compute(s: Screened, settings: Settings) -> Frame:
     # --- 2. processes: the bicarbonate reading -------------------------------
     bic = _read(ph, pco2, hco3, ph_mid, f["ph_lo"], f["ph_hi"], f["pco2_lo"], f["pco2_hi"],
                 f["hco3_lo"], f["hco3_hi"], 24.0, BICARBONATE_RULES)
+    # The metabolic compensation rules were derived in arterial blood. Venous pCO2 runs
+    # higher by a variable amount [kelly_2010, byrne_2014], so a venous pCO2 above the
+    # expected band is not read as a respiratory acidosis (not assessable); one below it
+    # stays a respiratory alkalosis, since arterial pCO2 would be lower still.
+    venous = s.sample_type == VENOUS
+    f["venous_compensation_unassessable"] = venous & bic.add["resp_acid"]
+    bic.add["resp_acid"] = bic.add["resp_acid"] & ~venous
     for key in ("met_acid", "met_alk", "resp_acid", "resp_alk"):
         f[f"prim_{key}"] = bic.prim[key]
         f[f"add_{key}"] = bic.add[key]
@@ -319,9 +326,18 @@ def compute(s: Screened, settings: Settings) -> Frame:
     role_high = role_acid * gap_high
     ratio = f["delta_ratio"]
     high_active = role_high > ROLE_NONE
-    hidden_normal_gap = high_active & (ratio < 0.8)
+    # With a respiratory alkalosis, part of the fall in HCO3- is its compensation, so a
+    # low ratio against a baseline of 24 does not show a second acidosis (not assessable).
+    resp_alk_present = p["resp_alk"] | a["resp_alk"]
+    low_ratio = high_active & (ratio < 0.8)
+    hidden_normal_gap = low_ratio & ~resp_alk_present
+    f["delta_low_or_resp"] = low_ratio & resp_alk_present
     f["delta_hidden_normal_gap"] = hidden_normal_gap
     role_normal = role_acid * ~gap_high + ADDITIONAL * hidden_normal_gap
+    # Below 0.4 the acidosis is mostly normal-gap: that part leads [delta_bands].
+    mostly_normal = hidden_normal_gap & (ratio < 0.4) & (role_high == PRIMARY)
+    role_normal = role_normal + (PRIMARY - ADDITIONAL) * mostly_normal
+    role_high = role_high + (ADDITIONAL - PRIMARY) * mostly_normal
     resp_acid_present = p["resp_acid"] | a["resp_acid"]
     high_hco3_for_gap = high_active & ((ratio > 2.0) | ((hco3 >= 24.0) & (f["delta_gap"] > 6.0)))
     f["delta_alkalosis"] = high_hco3_for_gap & ~resp_acid_present

@@ -503,6 +503,23 @@ RULES: tuple[Rule, ...] = (
          "delta gap = (gap - {gap_normal:.0f}) - (24 - HCO3) = {delta_gap:+.1f}",
          "Pre-existing high HCO3- from compensated hypercapnia raises the ratio.",
          ("rastegar_2007", "wrenn_1990")),
+    Rule("P-DELTA-LOW-RESPIRATORY", "process", "info", "Low delta ratio with respiratory alkalosis",
+         lambda f: f["delta_low_or_resp"],
+         "Delta ratio {delta_ratio:.2f} is low, but with a respiratory alkalosis part of the fall "
+         "in HCO3- is its renal compensation: a second, normal-gap acidosis is not assessable "
+         "from one panel.",
+         "delta ratio = ({gap_judged:.1f} - {gap_normal:.0f}) / (24 - {hco3:.1f}) = {delta_ratio:.2f}",
+         "The ratio assumes HCO3- started at 24; compensation for hypocapnia lowers it.",
+         ("rastegar_2007", "delta_bands")),
+    Rule("P-VENOUS-COMPENSATION", "process", "caution", "Respiratory compensation not assessable",
+         lambda f: f["venous_compensation_unassessable"],
+         "Venous pCO2 {pco2:.0f} mm[Hg] is above the band {expected_pco2_low:.1f}-"
+         "{expected_pco2_high:.1f} expected of arterial blood, but venous pCO2 runs higher by a "
+         "variable amount: whether ventilation matches the metabolic process is not assessable "
+         "without an arterial sample.",
+         "expected (arterial) pCO2 {expected_pco2_low:.1f}-{expected_pco2_high:.1f}; venous pCO2 {pco2:.1f}",
+         "The compensation rules were derived in arterial blood.",
+         ("kelly_2010", "byrne_2014", "albert_1967")),
     Rule("P-VENOUS-RESPIRATORY", "process", "caution", "Respiratory process read from venous blood",
          lambda f: (f["sample_type"] == VENOUS) & ((f["role_resp_acid"] > 0) | (f["role_resp_alk"] > 0)),
          "Respiratory process read from venous blood: venous and arterial pCO2 can differ by up "
