@@ -26,18 +26,22 @@ from .results import CAUTION
 EXIT_OK, EXIT_REFUSED = 0, 2
 
 
+def _help(text: str) -> str:
+    return text.replace("%", "%%")  # argparse formats help strings with %
+
+
 def add_panel_options(p: argparse.ArgumentParser) -> None:
     """One option per panel field and one per unit (shared by check and tui)."""
     g = p.add_argument_group("panel values (required: --ph --pco2 --hco3 --na --cl)")
     for spec in NUMERIC:
         opt = spec.name.replace("_", "-")
         g.add_argument(f"--{opt}", dest=spec.name, metavar="X",
-                       help=f"{spec.title} [{spec.unit}]. {spec.help}")
+                       help=_help(f"{spec.title} [{spec.unit}]. {spec.help}"))
     u = p.add_argument_group("units (UCUM spellings; default is the first listed)")
     for spec in NUMERIC:
         if len(spec.units) > 1:
             u.add_argument(f"--{spec.name}-unit", dest=f"{spec.name}_unit", metavar="UNIT",
-                           help=f"unit of {spec.title}: {', '.join(spec.units)}")
+                           help=_help(f"unit of {spec.title}: {', '.join(spec.units)}"))
     c = p.add_argument_group("sample")
     c.add_argument("--sample-type", choices=SAMPLE_TYPES, help="default: unknown")
     c.add_argument("--hco3-source", choices=HCO3_SOURCES,
@@ -82,7 +86,7 @@ def settings_from_args(args: argparse.Namespace) -> Settings:
         kw["anion_gap_uses_k"] = True
     if getattr(args, "reference_albumin", None) is not None:
         kw["reference_albumin_g_l"] = args.reference_albumin
-    return Settings(**kw)
+    return Settings.checked(**kw)
 
 
 def _refuse(lines: Sequence[str]) -> int:
@@ -172,7 +176,7 @@ def cmd_tui(args: argparse.Namespace) -> int:
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="acidbase",
-        description="Check and interpret blood-gas and electrolyte panels. " + CAUTION)
+        description=_help("Check and interpret blood-gas and electrolyte panels. " + CAUTION))
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
     check = sub.add_parser("check", help="read one panel given as options",
                            description="Read one panel: trust, processes, derived values.")

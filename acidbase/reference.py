@@ -11,7 +11,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .errors import AcidBaseError
 from .fields import SAMPLE_TYPES
+
+
+class SettingsError(ValueError, AcidBaseError):
+    """A laboratory setting outside what the rules can use."""
 
 
 @dataclass(frozen=True)
@@ -78,6 +83,18 @@ class Settings:
     """Osmolal gap above this is raised, mosm/kg (common practice) [lynd_2008]."""
     strong_ion_gap_high: float = 8.0
     """Strong ion gap above this suggests unmeasured anions, mmol/L [plos_2013]."""
+
+    @classmethod
+    def checked(cls, **kw: float | bool) -> Settings:
+        """Settings from user input, refused with a clear message when they make no sense."""
+        s = cls(**kw)  # type: ignore[arg-type]
+        for name, lo, hi in (("anion gap interval", s.anion_gap_low, s.anion_gap_high),
+                             ("anion gap interval with K+", s.anion_gap_k_low, s.anion_gap_k_high)):
+            if not (0.0 <= lo < hi <= 40.0):
+                raise SettingsError(f"{name} {lo:g} to {hi:g} mmol/L: give LOW < HIGH within 0 to 40")
+        if not 20.0 <= s.reference_albumin_g_l <= 60.0:
+            raise SettingsError(f"reference albumin {s.reference_albumin_g_l:g} g/L: give 20 to 60 g/L")
+        return s
 
     @property
     def gap_interval(self) -> tuple[float, float]:

@@ -94,3 +94,25 @@ def test_demo_runs_and_carries_the_caution():
     assert r.returncode == 0, r.stderr
     assert r.stdout.count("does not replace") >= 2
     assert "refused" in r.stdout  # the demo includes a panel typed in the wrong unit
+
+
+@pytest.mark.parametrize("command", [[], ["check"], ["demo"], ["batch"], ["tui"]])
+def test_help_of_every_command_prints_without_error(command):
+    r = run(*command, "--help")
+    assert r.returncode == 0, r.stderr
+    assert "Traceback" not in r.stderr
+    assert "usage:" in r.stdout
+
+
+def test_a_reversed_anion_gap_interval_is_refused_with_exit_2():
+    r = run("check", *BASE, "--anion-gap-interval", "12", "6")
+    assert r.returncode == 2
+    assert "anion gap interval 12 to 6 mmol/L" in r.stderr
+    assert "Traceback" not in r.stderr
+
+
+def test_a_local_anion_gap_interval_changes_the_verdict():
+    # Gap 140 - 104 - 24.2 = 11.8: inside 6-12 (Klaestrup 2011) but above 3-11 (Winter 1990).
+    r = run("check", "--json", *BASE, "--anion-gap-interval", "3", "11", "--albumin", "44")
+    doc = json.loads(r.stdout)
+    assert "P-GAP-RAISED-ONLY" in [f["code"] for f in doc["findings"]]
