@@ -5,11 +5,11 @@ Public API: ``Panel``, ``interpret``, ``interpret_many``, ``Interpretation``,
 """
 
 from .api import interpret, interpret_many
+from .compensation import plane_bands
 from .errors import AcidBaseError, PanelError, Problem, UnitError
 from .model import Panel, describe
 from .reference import Settings
 from .results import CAUTION, Disorder, Finding, Interpretation, Results
-from .compensation import plane_bands
 
 __all__ = [
     "CAUTION", "AcidBaseError", "Disorder", "Finding", "Interpretation", "Panel", "PanelError",

@@ -19,7 +19,6 @@ from .reference import Settings
 from .results import Interpretation, Part, Results
 from .units import factor
 
-
 #: Rows per slice: small enough that a slice's columns stay in cache, large enough
 #: that Python's per-call overhead is negligible (measured in bench/).
 SLICE_ROWS = 32768

@@ -10,8 +10,8 @@ each with its working and resolved citations.  ``interpret(panel)`` is
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
 from collections.abc import Mapping
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np

@@ -27,7 +27,6 @@ from .engine import (
     CONSISTENT,
     CRITICAL,
     INCONSISTENT,
-    INDETERMINATE,
     PH_LIFE,
     SOURCE_ANALYSER,
     SOURCE_CHEMISTRY,
