@@ -71,10 +71,14 @@ class Sitting:
     """Index of the entry the form is linked to (its accepted edits update it), or None."""
 
     def keep(self, data: dict[str, Any], note: str = "") -> int:
-        """Add a copy of ``data`` as a new entry; the form is then linked to it."""
+        """Add a copy of ``data`` as a new entry and return its index.
+
+        The form is left unlinked, so the next panel of a series can be keyed over
+        this one without changing what was kept.
+        """
         self.entries.append(Entry(dict(data), note))
-        self.current = len(self.entries) - 1
-        return self.current
+        self.current = None
+        return len(self.entries) - 1
 
     def update_current(self, data: dict[str, Any]) -> None:
         """The linked entry takes the form's accepted contents."""

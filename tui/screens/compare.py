@@ -4,23 +4,28 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING, ClassVar
 
+from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.screen import Screen
-from textual.widgets import DataTable, Footer, Static
+from textual.widgets import DataTable, Static
 
 import acidbase
 from acidbase.fields import NUMERIC
 from acidbase.report import DERIVED_LABELS
 
-from ..widgets.chrome import CautionBar, TitleLine
+from ..widgets.chrome import CautionBar, KeyLine, TitleLine
 
 if TYPE_CHECKING:
     from ..app import AcidBaseApp
 
 
 class CompareTable(DataTable):
-    """Rows: inputs, consistency, derived values; columns: A, B and B - A."""
+    """Rows: inputs, consistency, derived values; columns: A, B, B - A and the unit."""
+
+    def add_row(self, *cells: str, **kwargs):  # type: ignore[override]
+        # plain text: units such as [pH] are not markup
+        return super().add_row(*(Text(c) for c in cells), **kwargs)
 
 
 def _num(x: float | None, fmt: str = ".4g") -> str:
@@ -55,10 +60,13 @@ class CompareScreen(Screen[None]):
         yield CompareTable(id="compare", zebra_stripes=True, cursor_type="row")
         yield Static("", id="compare-processes", markup=False)
         yield CautionBar()
-        yield Footer(compact=True)
+        yield KeyLine([*self.BINDINGS, *self.app.BINDINGS])
 
     def on_mount(self) -> None:
-        self.query_one(CompareTable).add_columns("", "A", "B", "B - A")
+        table = self.query_one(CompareTable)
+        # widths that fit 80 columns; a long label is cut, its unit has a column of its own
+        for label, width in (("", 27), ("A", 12), ("B", 12), ("B - A", 8), ("unit", 7)):
+            table.add_column(label, width=width)
         self.fill()
         self.query_one(CompareTable).focus()
 
@@ -88,16 +96,15 @@ class CompareScreen(Screen[None]):
         for spec in NUMERIC:
             va, vb = ca.get(spec.name), cb.get(spec.name)
             if va is not None or vb is not None:
-                table.add_row(f"{spec.title} {spec.unit}", _num(va), _num(vb), _change(va, vb))
+                table.add_row(spec.title, _num(va), _num(vb), _change(va, vb), spec.unit)
         sa = ia.consistency.status if ia and ia.consistency else "refused"
         sb = ib.consistency.status if ib and ib.consistency else "refused"
-        table.add_row("consistency", sa, sb, "same" if sa == sb else "changed")
+        table.add_row("consistency", sa, sb, "same" if sa == sb else "changed", "")
         for key, label, unit, fmt in DERIVED_LABELS:
             va = ia.derived.get(key) if ia else None
             vb = ib.derived.get(key) if ib else None
             if va is not None or vb is not None:
-                table.add_row(f"{label} {unit}".strip(), _num(va, fmt), _num(vb, fmt),
-                              _change(va, vb, fmt))
+                table.add_row(label, _num(va, fmt), _num(vb, fmt), _change(va, vb, fmt), unit)
         self.query_one("#compare-processes", Static).update("\n".join(self._words(ia, ib)))
 
     @staticmethod

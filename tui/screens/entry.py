@@ -10,14 +10,14 @@ from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import Horizontal
 from textual.screen import Screen
-from textual.widgets import Footer, Input, OptionList, Static
+from textual.widgets import Input, OptionList, Static
 
 import acidbase
 from acidbase.fields import BY_NAME, REQUIRED
 
 from ..sitting import Entry
-from ..widgets.chrome import CautionBar, TitleLine
-from ..widgets.form import EntryForm, ValueField
+from ..widgets.chrome import CautionBar, KeyLine, TitleLine
+from ..widgets.form import EntryForm, FoldTitle, MoreValues, ValueField
 from ..widgets.reading import FindingList, ReadingPane
 
 if TYPE_CHECKING:
@@ -54,11 +54,11 @@ class EntryScreen(Screen[None]):
                 id="fold"),
         Binding("f4", "plane", "plane", tooltip="Show the panel on the pCO2-HCO3- plane with "
                 "the expected band of each simple disorder.", id="plane"),
-        Binding("f5", "keep", "keep", tooltip="Keep this panel in the series (a new entry; "
-                "later accepted edits update it).", id="keep"),
-        Binding("f6", "move(-1)", "previous", tooltip="Show the previous panel of the series.",
-                id="previous", show=False),
-        Binding("f7", "move(1)", "next", tooltip="Show the next panel of the series.",
+        Binding("f5", "keep", "keep", tooltip="Keep a copy of this panel in the series; the "
+                "form stays filled for the next panel.", id="keep"),
+        Binding("f6", "move(-1)", "previous", tooltip="Open the previous kept panel (its "
+                "accepted edits then update it).", id="previous", show=False),
+        Binding("f7", "move(1)", "next", tooltip="Open the next kept panel.",
                 id="next", show=False),
         Binding("f8", "compare", "compare", tooltip="Compare this panel with the one before it, "
                 "side by side with the differences.", id="compare", show=False),
@@ -84,7 +84,7 @@ class EntryScreen(Screen[None]):
             yield ReadingPane(id="reading")
         yield Static("", id="status", markup=False, classes="-empty")
         yield CautionBar()
-        yield Footer(compact=True)
+        yield KeyLine([*self.BINDINGS, *self.app.BINDINGS])
 
     @property
     def form(self) -> EntryForm:
@@ -131,7 +131,7 @@ class EntryScreen(Screen[None]):
 
     def load_entry(self, entry: Entry) -> None:
         """Show a kept entry in the form; the reading starts afresh (nothing stale)."""
-        self.pane.reading = None
+        self.pane.forget()
         self.form.fill(entry.data)
         self.say(f"note: {entry.note}" if entry.note else "")
 
@@ -146,7 +146,8 @@ class EntryScreen(Screen[None]):
         if s.current is None:
             where = "new panel, not kept (F5 keeps it)"
         else:
-            where = f"panel {s.current + 1} of {len(s.entries)}: {s.entries[s.current].label()}"
+            where = (f"kept panel {s.current + 1} of {len(s.entries)} (edits update it): "
+                     f"{s.entries[s.current].label()}")
         self.query_one("#title", TitleLine).update(
             f"acidbase - entry - {where} - series: {len(s.entries)} kept")
 
@@ -165,8 +166,10 @@ class EntryScreen(Screen[None]):
             self.say(f"{field.spec.title} is now read in {field.unit}.")
 
     def action_fold(self) -> None:
-        more = self.query_one("#more")
-        more.collapsed = not more.collapsed
+        more = self.query_one(MoreValues)
+        more.folded = not more.folded
+        if more.folded and self.focused is not None and more in self.focused.ancestors:
+            self.query_one(FoldTitle).focus()
 
     def action_keep(self) -> None:
         data = self.form.data()
@@ -174,8 +177,8 @@ class EntryScreen(Screen[None]):
             self.say("Nothing to keep yet: the form is empty.")
             return
         n = self.app.sitting.keep(data)
-        self.say(f"Kept as panel {n + 1}." + ("" if self.app.panel else
-                                               " (The engine refuses it as it stands.)"))
+        refused = "" if self.app.panel else " The engine refuses it as it stands."
+        self.say(f"Kept as panel {n + 1}.{refused} The form stays as it is for the next panel.")
 
     def action_move(self, step: int) -> None:
         entry = self.app.sitting.move(step)
@@ -187,7 +190,7 @@ class EntryScreen(Screen[None]):
 
     def action_new(self) -> None:
         self.app.sitting.current = None
-        self.pane.reading = None
+        self.pane.forget()
         self.form.fill({})
         self.query_one("#ph", Input).focus()
         self.say("New panel.")

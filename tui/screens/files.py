@@ -9,9 +9,9 @@ from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import Vertical
 from textual.screen import ModalScreen
-from textual.widgets import Footer, Input, Label
+from textual.widgets import Input, Label
 
-from ..widgets.chrome import CautionBar
+from ..widgets.chrome import CautionBar, KeyLine
 from ..widgets.form import ChoiceField
 
 #: What can be saved, and the file name offered for it.
@@ -45,7 +45,7 @@ class SaveScreen(ModalScreen[tuple[str, str] | None]):
             yield Label("File (Enter saves; an existing file is replaced):")
             yield PathInput(KINDS["text"], id="path")
         yield CautionBar()
-        yield Footer(compact=True)
+        yield KeyLine([*self.BINDINGS, *self.app.BINDINGS])
 
     def on_mount(self) -> None:
         self.query_one(ChoiceField).focus()
@@ -81,7 +81,7 @@ class LoadScreen(ModalScreen[str | None]):
             yield Label("File (Enter loads; its panels are added after those kept):")
             yield PathInput(KINDS["csv"], id="path")
         yield CautionBar()
-        yield Footer(compact=True)
+        yield KeyLine([*self.BINDINGS, *self.app.BINDINGS])
 
     def on_mount(self) -> None:
         self.query_one(PathInput).focus()

@@ -8,11 +8,11 @@ from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import VerticalScroll
 from textual.screen import Screen
-from textual.widgets import Footer, Static
+from textual.widgets import Static
 
 import acidbase
 
-from ..widgets.chrome import CautionBar, TitleLine
+from ..widgets.chrome import CautionBar, KeyLine, TitleLine
 from ..widgets.reading import MARKS
 
 
@@ -50,7 +50,7 @@ class FindingScreen(Screen[None]):
             yield Static("\n".join(f"- {c.full()}" for c in f.citations), markup=False,
                          id="finding-sources")
         yield CautionBar()
-        yield Footer(compact=True)
+        yield KeyLine([*self.BINDINGS, *self.app.BINDINGS])
 
     def on_mount(self) -> None:
         self.query_one(FindingText).focus()

@@ -2,15 +2,16 @@
 
 from __future__ import annotations
 
+import textwrap
 from typing import ClassVar
 
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import VerticalScroll
 from textual.screen import Screen
-from textual.widgets import Footer, Static
+from textual.widgets import Static
 
-from ..widgets.chrome import CautionBar, TitleLine
+from ..widgets.chrome import CautionBar, KeyLine, TitleLine, key_words
 from ..widgets.form import ChoiceField
 from .compare import CompareScreen
 from .entry import EntryScreen
@@ -44,26 +45,21 @@ PLACES: tuple[tuple[str, list[Binding]], ...] = (
 )
 
 
-def key_words(keys: str) -> str:
-    """``"escape,f4"`` -> ``"Esc / F4"``; ``"ctrl+s"`` -> ``"Ctrl+S"``."""
-    names = {"escape": "Esc", "enter": "Enter", "space": "Space", "left": "Left",
-             "right": "Right", "delete": "Delete"}
-    out = []
-    for key in keys.split(","):
-        parts = key.strip().split("+")
-        out.append("+".join(names.get(p, p.capitalize() if len(p) > 1 else p.upper())
-                            for p in parts))
-    return " / ".join(out)
+def _row(keys: str, text: str, width: int) -> list[str]:
+    return textwrap.wrap(f"  {keys:<16} {text}", width=width, subsequent_indent=" " * 19)
 
 
-def help_lines(everywhere: list[Binding]) -> list[str]:
+def help_lines(everywhere: list[Binding], width: int = 76) -> list[str]:
     """The key list: everywhere first, then each place."""
     lines = ["Everywhere"]
-    lines += [f"  {key_words(b.key):<16} {b.tooltip or b.description}" for b in everywhere]
+    for b in everywhere:
+        lines += _row(key_words(b.key), b.tooltip or b.description, width)
     for place, bindings in PLACES:
         lines += ["", place]
-        lines += [f"  {key_words(b.key):<16} {b.tooltip or b.description}" for b in bindings]
-        lines += [f"  {k:<16} {text}" for k, text in MOVING.get(place, [])]
+        for b in bindings:
+            lines += _row(key_words(b.key), b.tooltip or b.description, width)
+        for keys, text in MOVING.get(place, []):
+            lines += _row(keys, text, width)
     return lines
 
 
@@ -78,7 +74,7 @@ class HelpScreen(Screen[None]):
         with VerticalScroll(id="help"):
             yield Static("\n".join(help_lines(self.app.BINDINGS)), markup=False, id="help-text")
         yield CautionBar()
-        yield Footer(compact=True)
+        yield KeyLine([*self.BINDINGS, *self.app.BINDINGS])
 
     def on_mount(self) -> None:
         self.query_one("#help").focus()

@@ -7,12 +7,12 @@ from typing import ClassVar
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.screen import Screen
-from textual.widgets import Footer, Static
+from textual.widgets import Static
 
 import acidbase
 from acidbase.fields import BY_NAME
 
-from ..widgets.chrome import CautionBar, TitleLine
+from ..widgets.chrome import CautionBar, KeyLine, TitleLine
 from ..widgets.plane import PlaneView, legend_lines
 
 
@@ -45,7 +45,7 @@ class PlaneScreen(Screen[None]):
         yield PlaneView(self.point, id="plane")
         yield Static("", id="legend", markup=False)
         yield CautionBar()
-        yield Footer(compact=True)
+        yield KeyLine([*self.BINDINGS, *self.app.BINDINGS])
 
     def on_resize(self) -> None:
         self.call_after_refresh(self.show_legend)

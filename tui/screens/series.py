@@ -4,14 +4,15 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING, ClassVar
 
+from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.screen import Screen
-from textual.widgets import DataTable, Footer, Static
+from textual.widgets import DataTable, Static
 
 import acidbase
 
-from ..widgets.chrome import CautionBar, TitleLine
+from ..widgets.chrome import CautionBar, KeyLine, TitleLine
 
 if TYPE_CHECKING:
     from ..app import AcidBaseApp
@@ -21,6 +22,10 @@ SHOWN = ("ph", "pco2", "hco3")
 
 class SeriesTable(DataTable):
     """One row per kept panel, in the order kept."""
+
+    def add_row(self, *cells: str, **kwargs):  # type: ignore[override]
+        # plain text: what the engine says may hold brackets, which are not markup
+        return super().add_row(*(Text(str(c)) for c in cells), **kwargs)
 
 
 class SeriesScreen(Screen[int | None]):
@@ -43,7 +48,7 @@ class SeriesScreen(Screen[int | None]):
         yield SeriesTable(id="series", cursor_type="row", zebra_stripes=True)
         yield Static("", id="series-note", markup=False)
         yield CautionBar()
-        yield Footer(compact=True)
+        yield KeyLine([*self.BINDINGS, *self.app.BINDINGS])
 
     def on_mount(self) -> None:
         table = self.query_one(SeriesTable)

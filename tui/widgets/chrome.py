@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from textual.binding import Binding
 from textual.widgets import Static
 
 import acidbase
@@ -19,3 +20,26 @@ class TitleLine(Static):
 
     def __init__(self, text: str = "", **kwargs) -> None:
         super().__init__(text, markup=False, classes="title-line", **kwargs)
+
+
+def key_words(keys: str, short: bool = False) -> str:
+    """``"escape,f4"`` -> ``"Esc / F4"``; ``"ctrl+s"`` -> ``"Ctrl+S"`` (short: ``"^S"``)."""
+    names = {"escape": "Esc", "enter": "Enter", "space": "Space", "left": "Left",
+             "right": "Right", "delete": "Delete"}
+    out = []
+    for key in keys.split(","):
+        parts = key.strip().split("+")
+        word = "+".join(names.get(p, p.capitalize() if len(p) > 1 else p.upper())
+                        for p in parts)
+        out.append(word.replace("Ctrl+", "^") if short else word)
+    return " / ".join(out)
+
+
+class KeyLine(Static):
+    """The screen's main keys in one line (a plain line: it does not follow the focus)."""
+
+    def __init__(self, bindings: list[Binding], **kwargs) -> None:
+        shown = [b for b in bindings if b.show]
+        text = "  ".join(f"{key_words(b.key.split(',')[0], short=True)} {b.description}"
+                         for b in shown)
+        super().__init__(text, markup=False, classes="key-line", **kwargs)

@@ -17,7 +17,7 @@ from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.message import Message
 from textual.reactive import reactive
 from textual.widget import Widget
-from textual.widgets import Collapsible, Input, Label, Static
+from textual.widgets import Input, Label, Static
 
 from acidbase.fields import HCO3_SOURCES, NUMERIC, SAMPLE_TYPES, TEXT_FIELDS, FieldSpec
 
@@ -49,6 +49,7 @@ class ValueField(Vertical):
     def __init__(self, spec: FieldSpec) -> None:
         super().__init__(id=f"field-{spec.name}", classes="field-row")
         self.spec = spec
+        self._message = ""
         self.set_reactive(ValueField.unit, spec.unit)
 
     def compose(self) -> ComposeResult:
@@ -78,9 +79,11 @@ class ValueField(Vertical):
 
     def show_message(self, lines: list[str]) -> None:
         """Show the engine's messages for this field (none: clear)."""
-        box = self.query_one(".field-message", Static)
-        box.update("\n".join(f"refused: {line}" for line in lines))
-        self.set_class(bool(lines), "-refused")
+        text = "\n".join(f"refused: {line}" for line in lines)
+        if text != self._message:  # unchanged: no restyle, no new layout
+            self._message = text
+            self.query_one(".field-message", Static).update(text)
+            self.set_class(bool(lines), "-refused")
 
 
 class ChoiceField(Widget, can_focus=True):
@@ -125,6 +128,34 @@ class ChoiceField(Widget, can_focus=True):
         self.post_message(self.Changed(self))
 
 
+class FoldTitle(Widget, can_focus=True):
+    """The title of the group of more values; Enter folds or unfolds it."""
+
+    BINDINGS: ClassVar[list[BindingType]] = [
+        Binding("enter,space", "fold", "fold", show=False),
+    ]
+
+    def render(self) -> str:
+        group = self.parent
+        folded = isinstance(group, MoreValues) and group.folded
+        return "+ More values (folded: F3)" if folded else "- More values (F3 folds)"
+
+    def action_fold(self) -> None:
+        if isinstance(self.parent, MoreValues):
+            self.parent.folded = not self.parent.folded
+
+
+class MoreValues(Vertical):
+    """The optional values, as a group that can be folded away (then Tab skips them)."""
+
+    folded: reactive[bool] = reactive(False)
+
+    def watch_folded(self, folded: bool) -> None:
+        for child in self.query_children(ValueField):
+            child.display = not folded
+        self.query_one(FoldTitle).refresh()
+
+
 class TextInput(Input):
     """A free-text field (time, patient, sample id)."""
 
@@ -142,8 +173,8 @@ class EntryForm(VerticalScroll):
             yield ValueField(spec)
         yield ChoiceField("sample_type", "Sample", SAMPLE_TYPES, "unknown")
         yield ChoiceField("hco3_source", "HCO3- from", HCO3_SOURCES, "unknown")
-        with Collapsible(title="More values (F3 folds)", collapsed=False, id="more",
-                         collapsed_symbol="+", expanded_symbol="-"):
+        with MoreValues(id="more"):
+            yield FoldTitle(id="fold")
             for spec in optional:
                 yield ValueField(spec)
         for name in sorted(TEXT_FIELDS, key=list(TEXT_TITLES).index):
@@ -195,9 +226,10 @@ class EntryForm(VerticalScroll):
             f.show_message(by_field.get(f.spec.name, []))
         rest = [line for name, lines in by_field.items()
                 if name not in {f.spec.name for f in self.fields()} for line in lines]
+        text = "\n".join(f"refused: {line}" for line in rest)
         box = self.query_one("#panel-message", Static)
-        box.update("\n".join(f"refused: {line}" for line in rest))
-        box.set_class(bool(rest), "-refused")
+        if str(box.render()) != text:
+            box.update(text)
 
     # -- events ----------------------------------------------------------------
     @on(Input.Changed)

@@ -41,9 +41,15 @@ def heading(section: str, title: str, it: acidbase.Interpretation) -> str:
 class ReadingState(Static):
     """One sentence on the state of the reading (none when it is fresh)."""
 
-    def update(self, content="") -> None:  # type: ignore[override]
-        super().update(content)
-        self.set_class(not content, "-empty")
+    def __init__(self, *args, **kwargs) -> None:
+        super().__init__(*args, **kwargs)
+        self._text = None
+
+    def update(self, content: str = "") -> None:  # type: ignore[override]
+        if content != self._text:  # unchanged: no new layout
+            self._text = content
+            super().update(content)
+            self.set_class(not content, "-empty")
 
 
 class FindingList(OptionList):
@@ -59,6 +65,7 @@ class ReadingPane(Vertical):
         """The Interpretation shown (the last accepted one when stale)."""
         self.stale = False
         """True when the form now holds values the engine refuses."""
+        self._shown = False
 
     def compose(self) -> ComposeResult:
         yield ReadingState("", id="reading-state", markup=False)
@@ -77,12 +84,17 @@ class ReadingPane(Vertical):
                              f"{stale_because}")
             else:
                 state.update(stale_because)
-                self.query_one(FindingList).clear_options()
+                if self._shown:
+                    self.query_one(FindingList).clear_options()
+                    self._shown = False
             self.set_class(self.stale, "-stale")
             return
         self.stale = False
         self.set_class(False, "-stale")
+        if it is not None and it == self.reading and self._shown:
+            return  # the same reading again (e.g. a trailing zero typed): nothing to redraw
         self.reading = it
+        self._shown = it is not None
         options = self.query_one(FindingList)
         options.clear_options()
         if it is None:
@@ -107,6 +119,10 @@ class ReadingPane(Vertical):
                       if not options.get_option_at_index(k).disabled), None)
         if first is not None:
             options.highlighted = first
+
+    def forget(self) -> None:
+        """Drop the shown reading: the next one is a new panel's, so nothing can be stale."""
+        self.reading = None
 
     def lines(self) -> list[str]:
         """The text of every line shown (for tests and the tmux check)."""

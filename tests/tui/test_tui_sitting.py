@@ -1,0 +1,218 @@
+"""The sitting's panels: keep, move, compare, save and load, by the keyboard alone."""
+
+from __future__ import annotations
+
+import csv
+
+import pytest
+from textual.widgets import Input
+from tui_helpers import PANELS, key_in, processes_line, replace_value
+
+import acidbase
+from acidbase.demo import DEMO_PANELS
+from acidbase.fields import NUMERIC, TEXT_FIELDS
+from acidbase.report import as_markdown, as_text
+from tui.app import make_app
+from tui.screens.compare import CompareScreen, CompareTable
+from tui.screens.series import SeriesScreen, SeriesTable
+from tui.sitting import COLUMNS, Entry, read_csv, write_csv
+from tui.widgets.reading import ReadingPane
+
+
+async def keep_two(pilot) -> None:
+    """Key in and keep an acute, then a chronic respiratory acidosis (serial gases)."""
+    await key_in(pilot, PANELS["acute respiratory acidosis"])
+    await pilot.press("f5", "ctrl+n")
+    await key_in(pilot, PANELS["chronic respiratory acidosis"])
+    await pilot.press("f5")
+    await pilot.pause()
+
+
+async def test_keeping_adds_the_panel_and_moving_shows_each_in_turn():
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await keep_two(pilot)
+        assert len(app.sitting.entries) == 2 and app.sitting.current is None
+        await pilot.press("f6", "f6")  # the last kept, then the one before it
+        await pilot.pause()
+        assert app.sitting.current == 0
+        assert app.screen.query_one("#pco2", Input).value == "60"
+        assert app.screen.query_one("#hco3", Input).value == "25.7"
+        # Narins & Emmett 1980: HCO3 25.7 at pCO2 60 is in the acute band (26 +/- 2)
+        assert processes_line(app) == "Processes: respiratory acidosis (acute, primary)"
+        await pilot.press("f7")
+        await pilot.pause()
+        assert app.screen.query_one("#hco3", Input).value == "31.0"
+        assert processes_line(app) == "Processes: respiratory acidosis (chronic, primary)"
+        await pilot.press("f7")  # past the last: stays, and says so
+        await pilot.pause()
+        assert app.sitting.current == 1
+        assert "No panel that way" in str(app.screen.query_one("#status").render())
+
+
+async def test_keying_over_a_kept_panel_leaves_it_as_kept():
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in(pilot, PANELS["normal"])
+        await pilot.press("f5")
+        await replace_value(pilot, "na", "142")
+        assert app.sitting.entries[0].data["na"] == "140"
+
+
+async def test_an_accepted_edit_updates_an_opened_kept_panel_a_refused_one_does_not():
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in(pilot, PANELS["normal"])
+        await pilot.press("f5", "f6")  # keep it, then open it
+        await replace_value(pilot, "na", "142")
+        assert app.sitting.entries[0].data["na"] == "142"
+        await replace_value(pilot, "na", "20")  # below the accepted range: refused
+        assert app.sitting.entries[0].data["na"] == "142"
+        assert app.screen.query_one(ReadingPane).stale
+
+
+async def test_compare_shows_two_panels_side_by_side_with_their_differences():
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await keep_two(pilot)
+        await pilot.press("f8")
+        await pilot.pause()
+        assert isinstance(app.screen, CompareScreen)
+        table = app.screen.query_one(CompareTable)
+        rows = {str(table.get_row_at(i)[0]): [str(c) for c in table.get_row_at(i)[1:]]
+                for i in range(table.row_count)}
+        assert rows["pH"] == ["7.25", "7.33", "+0.08", "[pH]"]
+        assert rows["HCO3-"] == ["25.7", "31", "+5.3", "mmol/L"]
+        assert rows["consistency"] == ["consistent", "consistent", "same", ""]
+        words = str(app.screen.query_one("#compare-processes").render())
+        assert "A processes: respiratory acidosis (acute, primary)" in words
+        assert "B processes: respiratory acidosis (chronic, primary)" in words
+        await pilot.press("escape")
+        assert not isinstance(app.screen, CompareScreen)
+
+
+async def test_compare_needs_two_panels_and_says_so():
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in(pilot, PANELS["normal"])
+        await pilot.press("f5", "f8")
+        await pilot.pause()
+        assert not isinstance(app.screen, CompareScreen)
+        assert "two kept panels" in str(app.screen.query_one("#status").render())
+
+
+async def test_the_series_list_opens_and_removes_panels():
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await keep_two(pilot)
+        await pilot.press("f9")
+        await pilot.pause()
+        assert isinstance(app.screen, SeriesScreen)
+        table = app.screen.query_one(SeriesTable)
+        assert table.row_count == 2
+        assert str(table.get_row_at(0)[-1]) == "respiratory acidosis (acute, primary)"
+        await pilot.press("enter")  # the cursor starts on the first panel
+        await pilot.pause()
+        assert app.sitting.current == 0
+        assert app.screen.query_one("#hco3", Input).value == "25.7"
+        await pilot.press("f9", "delete")
+        await pilot.pause()
+        assert len(app.sitting.entries) == 1
+        assert app.sitting.current is None
+
+
+async def save_as(pilot, kind_steps: int, path) -> None:
+    """Ctrl+S, step the kind with the right arrow, type the path, Enter."""
+    await pilot.press("ctrl+s")
+    await pilot.pause()
+    for _ in range(kind_steps):
+        await pilot.press("right")
+    await pilot.press("tab", "ctrl+u", *str(path), "enter")
+    await pilot.pause()
+
+
+async def test_saving_the_series_and_loading_it_back_gives_the_same_readings(tmp_path):
+    path = tmp_path / "series.csv"
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await keep_two(pilot)
+        await pilot.press("f6")  # open the second kept panel
+        await replace_value(pilot, "pco2", "8")  # 8 kPa = 60.0 mm[Hg]
+        await pilot.press("f2")  # the second panel's pCO2 is now read in kPa
+        await pilot.pause()
+        assert app.sitting.entries[1].data["pco2_unit"] == "kPa"
+        before = [acidbase.interpret(e.panel()) for e in app.sitting.entries]
+        await save_as(pilot, 2, path)  # text -> markdown -> csv
+        assert "Saved 2 panels" in str(app.screen.query_one("#status").render())
+
+    with path.open(newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    assert tuple(rows[0]) == COLUMNS
+    # canonical unit: 8 kPa x 7.50062 = 60.005 mm[Hg] (UCUM: 1 mm[Hg] = 0.133322 kPa)
+    assert float(rows[1]["pco2"]) == pytest.approx(60.005, abs=0.001)
+
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await pilot.press("ctrl+o")
+        await pilot.pause()
+        await pilot.press("ctrl+u", *str(path), "enter")
+        await pilot.pause()
+        assert len(app.sitting.entries) == 2 and app.sitting.current == 0
+        after = [acidbase.interpret(e.panel()) for e in app.sitting.entries]
+        assert [a.disorders for a in after] == [b.disorders for b in before]
+        assert [a.codes() for a in after] == [b.codes() for b in before]
+        for a, b in zip(after, before):
+            for key, value in b.derived.items():
+                assert a.derived[key] == pytest.approx(value, rel=1e-12) if value is not None \
+                    else a.derived[key] is None
+        assert processes_line(app) == "Processes: respiratory acidosis (acute, primary)"
+
+
+@pytest.mark.parametrize(("steps", "render"), [(0, as_text), (1, as_markdown)])
+async def test_saving_the_reading_writes_the_librarys_report(tmp_path, steps, render):
+    path = tmp_path / "reading"
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in(pilot, PANELS["mixed"])
+        await save_as(pilot, steps, path)
+    panel = acidbase.Panel(**dict(zip(("ph", "pco2", "hco3", "na", "cl"), PANELS["mixed"])))
+    assert path.read_text(encoding="utf-8") == render(acidbase.interpret(panel))
+
+
+async def test_the_demo_opens_with_the_demo_panels_kept():
+    app = make_app(demo=True)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await pilot.pause()
+        assert len(app.sitting.entries) == len(DEMO_PANELS)
+        assert app.sitting.current == 0
+        assert app.screen.query_one("#ph", Input).value == str(DEMO_PANELS[0]["ph"])
+
+
+# -- the file, without the app ---------------------------------------------------
+
+
+def test_the_file_columns_are_the_field_names_then_the_choices_and_labels():
+    assert COLUMNS == (*(s.name for s in NUMERIC), "sample_type", "hco3_source", *TEXT_FIELDS)
+
+
+def test_a_refused_entry_is_written_as_keyed_and_read_back_refused(tmp_path):
+    refused = Entry({"ph": "7.40", "pco2": "5.3", "hco3": "24", "na": "140", "cl": "104"})
+    written, left_out = write_csv(tmp_path / "f.csv", [refused])
+    assert (written, left_out) == (1, [])
+    entries, _ = read_csv(tmp_path / "f.csv")
+    assert entries[0].panel() is None
+    assert entries[0].problems() == refused.problems()
+
+
+def test_a_refused_entry_in_another_unit_is_left_out_and_named(tmp_path):
+    entry = Entry({"ph": "9", "pco2": "5.3", "pco2_unit": "kPa", "hco3": "24", "na": "140",
+                   "cl": "104"})
+    assert write_csv(tmp_path / "f.csv", [entry]) == (0, [1])
+
+
+def test_columns_that_are_not_ours_are_named_and_not_read(tmp_path):
+    path = tmp_path / "f.csv"
+    path.write_text("ph,pco2,hco3,na,cl,ward\n7.40,40,24.2,140,105,B2\n", encoding="utf-8")
+    entries, notes = read_csv(path)
+    assert notes == ["columns not read: ward"]
+    assert entries[0].panel() is not None
