@@ -330,6 +330,8 @@ class Tally:
                                                                dtype=np.int64))
 
 
+#: The picture's axes and size, and how many rows the report lists: display choices
+#: (design, no source), wide enough for the accepted ranges of most panels.
 PLANE_PCO2 = (10.0, 100.0)  # mm[Hg], x axis
 PLANE_HCO3 = (0.0, 50.0)    # mmol/L, y axis
 PLANE_COLS, PLANE_ROWS = 60, 25
@@ -448,7 +450,8 @@ def plane_picture(plane: np.ndarray) -> str:
 
 
 def summary_text(t: Tally, notes: list[str]) -> str:
-    lines = [f"acidbase batch: {t.rows:,} rows: {t.rows - t.refused:,} interpreted, "
+    lines = [f"acidbase batch: {t.rows:,} row{'' if t.rows == 1 else 's'}: "
+             f"{t.rows - t.refused:,} interpreted, "
              f"{t.refused:,} refused; {t.review:,} need review"]
     lines += [f"  note: {n}" for n in notes]
     if t.processes:

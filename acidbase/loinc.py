@@ -9,7 +9,7 @@ with one code whatever the specimen of each row.
 
 Specimens are those of the LOINC long common names in the project's
 interoperability notes (Regenstrief Institute, LOINC, https://loinc.org), read
-there from LOINC term pages and value-set transcriptions; codes listed in
+there from LOINC term pages and published value sets; codes listed in
 ``acidbase.fields.LOINC_FROM_MEMORY`` are from memory and must be verified
 against a LOINC release file before they are relied on for anything but
 column matching.

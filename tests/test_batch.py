@@ -380,3 +380,15 @@ def test_columns_left_unescaped_never_start_like_a_formula(tmp_path, capsys):
                 continue
             if cell and cell[0] in "=+-@\t\r\n\0":
                 float(cell)  # only a number may start so
+
+
+def test_other_encoding_is_read_when_named(tmp_path, capsys):
+    # cp1252 (Windows-1252) encodes ü as 0xFC and ß as 0xDF.
+    f = tmp_path / "cp1252.csv"
+    f.write_bytes("ph;pco2;hco3;na;cl;ward\n7,40;40;24,22;140;106,78;Grüße\n".encode("cp1252"))
+    out = tmp_path / "o.csv"
+    rc, err = batch(capsys, f, "-o", out)
+    assert rc == 2 and "0xfc" in err
+    assert batch(capsys, f, "--encoding", "cp1252", "-o", out)[0] == 0
+    r = rows_of(out)[0]
+    assert r["ward"] == "Grüße" and r["status"] == "interpreted"
