@@ -576,6 +576,14 @@ def _review_mask(fired: np.ndarray, refused: np.ndarray) -> np.ndarray:
     return refused | trust
 
 
+def escaped_columns(headers: tuple[str, ...]) -> list[str]:
+    """Output columns that can carry text from the input, so are formula-escaped: every
+    passed-through column, and ours that quote cell values (they start with a field's
+    title, but the escaping does not rely on it)."""
+    return [f"{h} (input)" for h in headers] + list(headers) + [
+        "reason", "serial_detail", "qualifiers", "lab_flags"]
+
+
 def _output_names(headers: tuple[str, ...], engine_cols: list[str]) -> dict[str, str]:
     """Input header -> output name (renamed only when it collides with ours)."""
     ours = {ROW_COLUMN, *engine_cols, *EXTRA_COLUMNS}
@@ -661,12 +669,8 @@ def _run(args: argparse.Namespace) -> int:
             _serial_pass(src, layout, decimal, checker, progress)
         finally:
             progress.end()
-    # Escaped: every passed-through input column, and our columns that quote input
-    # (reasons and serial details quote cell values; they start with a field's title).
-    escaped = [f"{h} (input)" for h in src.headers] + list(src.headers) + [
-        "reason", "serial_detail", "qualifiers", "lab_flags"]
     writer = fileio.Writer(args.output, out_fmt, out_delim, metadata={"caution": CAUTION},
-                           escape=escaped)
+                           escape=escaped_columns(src.headers))
     tally = Tally()
     ok = False
     progress = Progress(src.estimated_rows(), not args.quiet)

@@ -174,8 +174,10 @@ def stages(path: str, chunk_rows: int = 8192) -> dict[str, float]:
         cols = {h: table[h] for h in src.headers}
         cols.update(out)
         tab = pa.table(cols)
+        escaped = set(batch.escaped_columns(src.headers))
         tab, _ = timed("escape", lambda: pa.table(
-            [fileio.escape_formula(col) for col in tab.columns], schema=tab.schema))
+            [fileio.escape_formula(col) if name in escaped else col
+             for name, col in zip(tab.column_names, tab.columns)], schema=tab.schema))
         timed("write", lambda: pa_csv.write_csv(tab, io.BytesIO()))
     return spent
 
