@@ -392,3 +392,19 @@ def test_other_encoding_is_read_when_named(tmp_path, capsys):
     assert batch(capsys, f, "--encoding", "cp1252", "-o", out)[0] == 0
     r = rows_of(out)[0]
     assert r["ward"] == "Grüße" and r["status"] == "interpreted"
+
+
+def test_parquet_with_integer_ids_and_timestamps_runs_serial_checks(tmp_path, capsys):
+    import datetime as dt
+
+    src = tmp_path / "ser.parquet"
+    times = [dt.datetime(2026, 1, 1, h, tzinfo=dt.timezone.utc) for h in (8, 10, 12)]
+    # E3 panels; Na+ 128 in the middle (Cl- moved with it, gap 9): a one-panel spike.
+    pq.write_table(pa.table({
+        "patient_id": [1, 1, 1], "collected_at": pa.array(times, type=pa.timestamp("s", "UTC")),
+        "ph": [7.40] * 3, "pco2": [40.0] * 3, "hco3": [24.22] * 3,
+        "na": [140.0, 128.0, 140.0], "cl": [106.78, 94.78, 106.78]}), src)
+    out = tmp_path / "o.csv"
+    assert batch(capsys, src, "-o", out)[0] == 0
+    codes = [r["serial_codes"] for r in rows_of(out)]
+    assert codes[0] == "" and codes[1].startswith("SERIAL-BREAK") and "SERIAL-DELTA-NA" in codes[2]
