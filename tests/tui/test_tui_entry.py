@@ -112,6 +112,7 @@ async def test_a_refused_value_shows_the_engines_message_and_keeps_the_reading_s
         field = app.screen.query_one("#field-pco2", ValueField)
         assert field.has_class("-refused")
         shown = str(field.query_one(".field-message").render())
+        assert shown == field.message
         with pytest.raises(ValidationError) as refused:
             acidbase.Panel(ph=7.25, pco2="5.3", hco3=25.7, na=140, cl=104)
         assert shown == f"refused: {acidbase.describe(refused.value)[0]}"

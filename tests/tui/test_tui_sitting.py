@@ -131,8 +131,10 @@ async def save_as(pilot, kind_steps: int, path) -> None:
     await pilot.pause()
 
 
-async def test_saving_the_series_and_loading_it_back_gives_the_same_readings(tmp_path):
-    path = tmp_path / "series.csv"
+async def test_saving_the_series_and_loading_it_back_gives_the_same_readings(tmp_path,
+                                                                          monkeypatch):
+    monkeypatch.chdir(tmp_path)  # a short relative name to type
+    path = tmp_path / "s.csv"
     app = make_app()
     async with app.run_test(size=(80, 24)) as pilot:
         await keep_two(pilot)
@@ -142,7 +144,7 @@ async def test_saving_the_series_and_loading_it_back_gives_the_same_readings(tmp
         await pilot.pause()
         assert app.sitting.entries[1].data["pco2_unit"] == "kPa"
         before = [acidbase.interpret(e.panel()) for e in app.sitting.entries]
-        await save_as(pilot, 2, path)  # text -> markdown -> csv
+        await save_as(pilot, 2, "s.csv")  # text -> markdown -> csv
         assert "Saved 2 panels" in str(app.screen.query_one("#status").render())
 
     with path.open(newline="") as fh:
@@ -155,7 +157,7 @@ async def test_saving_the_series_and_loading_it_back_gives_the_same_readings(tmp
     async with app.run_test(size=(80, 24)) as pilot:
         await pilot.press("ctrl+o")
         await pilot.pause()
-        await pilot.press("ctrl+u", *str(path), "enter")
+        await pilot.press("ctrl+u", *"s.csv", "enter")
         await pilot.pause()
         assert len(app.sitting.entries) == 2 and app.sitting.current == 0
         after = [acidbase.interpret(e.panel()) for e in app.sitting.entries]
@@ -169,12 +171,14 @@ async def test_saving_the_series_and_loading_it_back_gives_the_same_readings(tmp
 
 
 @pytest.mark.parametrize(("steps", "render"), [(0, as_text), (1, as_markdown)])
-async def test_saving_the_reading_writes_the_librarys_report(tmp_path, steps, render):
-    path = tmp_path / "reading"
+async def test_saving_the_reading_writes_the_librarys_report(tmp_path, monkeypatch, steps,
+                                                            render):
+    monkeypatch.chdir(tmp_path)
+    path = tmp_path / "r"
     app = make_app()
     async with app.run_test(size=(80, 24)) as pilot:
         await key_in(pilot, PANELS["mixed"])
-        await save_as(pilot, steps, path)
+        await save_as(pilot, steps, "r")
     panel = acidbase.Panel(**dict(zip(("ph", "pco2", "hco3", "na", "cl"), PANELS["mixed"])))
     assert path.read_text(encoding="utf-8") == render(acidbase.interpret(panel))
 

@@ -29,8 +29,12 @@ class ValueInput(Input):
     """The text box of one numeric field (its id is the field name)."""
 
 
-class ValueField(Vertical):
-    """One numeric field: title, value, unit, and the engine's message when refused."""
+class ValueField(Widget):
+    """One numeric field: title, value, unit, and the engine's message when refused.
+
+    A grid of three cells (title, value, unit) and, only while a value is refused, a
+    message across all three: few widgets per field keep each keystroke's layout cheap.
+    """
 
     unit: reactive[str] = reactive("")
     """The unit the typed number is read in (UCUM); F2 cycles it."""
@@ -53,19 +57,23 @@ class ValueField(Vertical):
         self.set_reactive(ValueField.unit, spec.unit)
 
     def compose(self) -> ComposeResult:
-        with Horizontal(classes="field-line"):
-            yield Label(self.spec.title, classes="field-title", markup=False)
-            yield ValueInput(id=self.spec.name, compact=True, select_on_focus=False,
-                             tooltip=self.spec.help)
-            yield Label(self.unit, classes="field-unit", markup=False)
-        yield Static("", classes="field-message", markup=False)
+        yield Label(self.spec.title, classes="field-title", markup=False)
+        yield ValueInput(id=self.spec.name, compact=True, select_on_focus=False,
+                         tooltip=self.spec.help)
+        yield Label(self.unit, classes="field-unit", markup=False)
+
+    def on_mount(self) -> None:
+        self.input = self.query_one(ValueInput)
+        self._unit_label = self.query_one(".field-unit", Label)
+        self._message_box: Static | None = None
 
     @property
     def text(self) -> str:
-        return self.query_one(ValueInput).value.strip()
+        return self.input.value.strip()
 
     def watch_unit(self, unit: str) -> None:
-        self.query_one(".field-unit", Label).update(unit)
+        if self.is_mounted:
+            self._unit_label.update(unit)
 
     def next_unit(self) -> bool:
         """Read the typed number in the field's next unit; False when it has only one."""
@@ -82,8 +90,17 @@ class ValueField(Vertical):
         text = "\n".join(f"refused: {line}" for line in lines)
         if text != self._message:  # unchanged: no restyle, no new layout
             self._message = text
-            self.query_one(".field-message", Static).update(text)
+            if self._message_box is None:
+                self._message_box = Static(text, classes="field-message", markup=False)
+                self.mount(self._message_box)
+            else:
+                self._message_box.update(text)
             self.set_class(bool(lines), "-refused")
+
+    @property
+    def message(self) -> str:
+        """The engine's messages shown beside the field ("" when none)."""
+        return self._message
 
 
 class ChoiceField(Widget, can_focus=True):
@@ -183,9 +200,18 @@ class EntryForm(VerticalScroll):
                 yield TextInput(id=name, compact=True, max_length=200)
         yield Static("", id="panel-message", markup=False)
 
+    _panel_text = ""
+
+    def on_mount(self) -> None:
+        # the form's widgets never change: look them up once, not on every keystroke
+        self._fields = list(self.query(ValueField))
+        self._choices = list(self.query(ChoiceField))
+        self._texts = list(self.query(TextInput))
+        self._panel_message = self.query_one("#panel-message", Static)
+
     # -- reading the form ----------------------------------------------------
     def fields(self) -> list[ValueField]:
-        return list(self.query(ValueField))
+        return self._fields
 
     def field(self, name: str) -> ValueField:
         return self.query_one(f"#field-{name}", ValueField)
@@ -198,9 +224,9 @@ class EntryForm(VerticalScroll):
                 out[f.spec.name] = f.text
             if f.unit != f.spec.unit:
                 out[f"{f.spec.name}_unit"] = f.unit
-        for choice in self.query(ChoiceField):
+        for choice in self._choices:
             out[choice.id] = choice.value
-        for box in self.query(TextInput):
+        for box in self._texts:
             if box.value.strip():
                 out[box.id] = box.value.strip()
         return out
@@ -210,12 +236,12 @@ class EntryForm(VerticalScroll):
         with self.prevent(Input.Changed, ValueField.UnitChanged, ChoiceField.Changed):
             for f in self.fields():
                 value = data.get(f.spec.name)
-                f.query_one(ValueInput).value = "" if value is None else str(value)
+                f.input.value = "" if value is None else str(value)
                 f.unit = str(data.get(f"{f.spec.name}_unit") or f.spec.unit)
-            for choice in self.query(ChoiceField):
+            for choice in self._choices:
                 value = str(data.get(choice.id) or "unknown")
                 choice.value = value if value in choice.choices else "unknown"
-            for box in self.query(TextInput):
+            for box in self._texts:
                 box.value = str(data.get(box.id) or "")
         self.post_message(self.Edited())
 
@@ -224,12 +250,12 @@ class EntryForm(VerticalScroll):
         """Messages beside their fields; those of the panel as a whole at the end."""
         for f in self.fields():
             f.show_message(by_field.get(f.spec.name, []))
-        rest = [line for name, lines in by_field.items()
-                if name not in {f.spec.name for f in self.fields()} for line in lines]
+        names = {f.spec.name for f in self._fields}
+        rest = [line for name, lines in by_field.items() if name not in names for line in lines]
         text = "\n".join(f"refused: {line}" for line in rest)
-        box = self.query_one("#panel-message", Static)
-        if str(box.render()) != text:
-            box.update(text)
+        if text != self._panel_text:
+            self._panel_text = text
+            self._panel_message.update(text)
 
     # -- events ----------------------------------------------------------------
     @on(Input.Changed)
