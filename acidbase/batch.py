@@ -34,7 +34,7 @@ from . import fileio, serial
 from . import units as _units
 from .api import interpret_many
 from .engine import SLOTS
-from .errors import Problem
+from .errors import AcidBaseError, Problem
 from .fields import BY_NAME, HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
 from .fileio import BatchInputError, Layout, Source
 from .results import CAUTION, DERIVED
@@ -798,7 +798,7 @@ def run(args: argparse.Namespace) -> int:
     """Run ``acidbase batch``; 0 when it ran, 2 when it could not (message on stderr)."""
     try:
         return _run(args)
-    except BatchInputError as e:
+    except AcidBaseError as e:  # BatchInputError, and the library's own (settings, units)
         print(f"acidbase batch: could not run: {e}", file=sys.stderr)
     except OSError as e:
         where = f" {e.filename}" if getattr(e, "filename", None) else ""

@@ -408,3 +408,9 @@ def test_parquet_with_integer_ids_and_timestamps_runs_serial_checks(tmp_path, ca
     assert batch(capsys, src, "-o", out)[0] == 0
     codes = [r["serial_codes"] for r in rows_of(out)]
     assert codes[0] == "" and codes[1].startswith("SERIAL-BREAK") and "SERIAL-DELTA-NA" in codes[2]
+
+
+def test_settings_that_make_no_sense_could_not_run(tmp_path, capsys):
+    rc, err = batch(capsys, DATA / "comma.csv", "--anion-gap-interval", "12", "6",
+                    "-o", tmp_path / "o.csv")
+    assert rc == 2 and err.startswith("acidbase batch: could not run: anion gap interval")
