@@ -688,21 +688,12 @@ def parse_numeric(column: pa.Array | pa.ChunkedArray, decimal: str = ".") -> Par
     # Only the cells that are not plain numbers go through the full pattern (the
     # extracting regular expression costs about ten times the matching one).
     present = _mask(pc.is_valid(work))
-    # Cheap screen first: digits once signs and points are taken out.  A cell that
-    # passes but is no number ("7.2.1") makes the cast fail, and then the exact
-    # pattern decides.
-    digits = pc.replace_substring(pc.replace_substring(pc.replace_substring(
-        work, ".", ""), "-", ""), "+", "")
-    plain = _mask(pc.ascii_is_decimal(digits))
+    # The anchored matching pattern costs about 40 ns a cell (measured on an idle
+    # minute; three substring replacements and a digit test cost three times that).
+    plain = _mask(pc.match_substring_regex(work, "^" + _NUMBER + "$"))
     if foreign is not None:
         plain &= ~foreign
-    try:
-        vals = _floats(pc.if_else(pa.array(plain), work, pa.scalar(None, pa.string())))
-    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
-        plain = _mask(pc.match_substring_regex(work, "^" + _NUMBER + "$"))
-        if foreign is not None:
-            plain &= ~foreign
-        vals = _floats(pc.if_else(pa.array(plain), work, pa.scalar(None, pa.string())))
+    vals = _floats(pc.if_else(pa.array(plain), work, pa.scalar(None, pa.string())))
     rest = np.flatnonzero(present & ~plain)
     bad = np.zeros(n, dtype=bool)
     cmp = flag = None
