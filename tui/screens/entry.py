@@ -75,6 +75,9 @@ class EntryScreen(Screen[None]):
                 show=False),
     ]
 
+    #: At 100 columns and more the form widens so that long titles fit on one line.
+    HORIZONTAL_BREAKPOINTS: ClassVar[list[tuple[int, str]]] = [(0, "-narrow"), (100, "-wide")]
+
     app: AcidBaseApp
 
     def compose(self) -> ComposeResult:
