@@ -142,21 +142,24 @@ def _read(
     rl, ml = alk_side & r_alk, alk_side & m_alk
     none = ~(ra | ma | rl | ml)
     # Abnormal pH with both components inside their intervals: the larger
-    # relative deviation in pH's direction is primary.
-    rdev = (pco2 - 40.0) / 40.0
-    mdev = (met_ref - metabolic) / 24.0
+    # relative deviation in pH's direction is primary.  (Rare: skipped when absent.)
     acidaemia = none & (ph < ph_lo)
     alkalaemia = none & (ph > ph_hi)
-    ra |= acidaemia & (rdev >= mdev) & (rdev > 0)
-    ma |= acidaemia & (mdev > rdev) & (mdev > 0)
-    rl |= alkalaemia & (rdev <= mdev) & (rdev < 0)
-    ml |= alkalaemia & (mdev < rdev) & (mdev < 0)
+    if acidaemia.any() or alkalaemia.any():
+        rdev = (pco2 - 40.0) / 40.0
+        mdev = (met_ref - metabolic) / 24.0
+        ra = ra | (acidaemia & (rdev >= mdev) & (rdev > 0))
+        ma = ma | (acidaemia & (mdev > rdev) & (mdev > 0))
+        rl = rl | (alkalaemia & (rdev <= mdev) & (rdev < 0))
+        ml = ml | (alkalaemia & (mdev < rdev) & (mdev < 0))
+        none = ~(ra | ma | rl | ml)
     # Normal pH, a component abnormal against pH's side: read it as primary.
-    none = ~(ra | ma | rl | ml)
-    ra |= none & r_acid
-    ma |= none & m_acid
-    rl |= none & r_alk
-    ml |= none & m_alk
+    odd = none & (r_acid | m_acid | r_alk | m_alk)
+    if odd.any():
+        ra = ra | (odd & r_acid)
+        ma = ma | (odd & m_acid)
+        rl = rl | (odd & r_alk)
+        ml = ml | (odd & m_alk)
     prim = {"resp_acid": ra, "met_acid": ma, "resp_alk": rl, "met_alk": ml}
 
     count = ra.view(np.int8) + ma.view(np.int8) + rl.view(np.int8) + ml.view(np.int8)
