@@ -4,28 +4,24 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING, ClassVar
 
-from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.screen import Screen
-from textual.widgets import DataTable, Static
+from textual.widgets import Static
 
 import acidbase
 from acidbase.fields import NUMERIC
 from acidbase.report import DERIVED_LABELS
 
-from ..widgets.chrome import CautionBar, KeyLine, TitleLine
+from ..widgets.chrome import CautionBar, KeyLine, PlainTable, TitleLine
 
 if TYPE_CHECKING:
     from ..app import AcidBaseApp
 
 
-class CompareTable(DataTable):
+class CompareTable(PlainTable):
     """Rows: inputs, consistency, derived values; columns: A, B, B - A and the unit."""
 
-    def add_row(self, *cells: str, **kwargs):  # type: ignore[override]
-        # plain text: units such as [pH] are not markup
-        return super().add_row(*(Text(c) for c in cells), **kwargs)
 
 
 def _num(x: float | None, fmt: str = ".4g") -> str:

@@ -4,15 +4,14 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING, ClassVar
 
-from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.screen import Screen
-from textual.widgets import DataTable, Static
+from textual.widgets import Static
 
 import acidbase
 
-from ..widgets.chrome import CautionBar, KeyLine, TitleLine
+from ..widgets.chrome import CautionBar, KeyLine, PlainTable, TitleLine
 
 if TYPE_CHECKING:
     from ..app import AcidBaseApp
@@ -20,12 +19,9 @@ if TYPE_CHECKING:
 SHOWN = ("ph", "pco2", "hco3")
 
 
-class SeriesTable(DataTable):
+class SeriesTable(PlainTable):
     """One row per kept panel, in the order kept."""
 
-    def add_row(self, *cells: str, **kwargs):  # type: ignore[override]
-        # plain text: what the engine says may hold brackets, which are not markup
-        return super().add_row(*(Text(str(c)) for c in cells), **kwargs)
 
 
 class SeriesScreen(Screen[int | None]):

@@ -2,8 +2,9 @@
 
 from __future__ import annotations
 
+from rich.text import Text
 from textual.binding import Binding
-from textual.widgets import Static
+from textual.widgets import DataTable, Static
 
 import acidbase
 
@@ -43,3 +44,10 @@ class KeyLine(Static):
         text = "  ".join(f"{key_words(b.key.split(',')[0], short=True)} {b.description}"
                          for b in shown)
         super().__init__(text, markup=False, classes="key-line", **kwargs)
+
+
+class PlainTable(DataTable):
+    """A table whose cells are plain text: units such as [pH] are not markup."""
+
+    def add_row(self, *cells: object, **kwargs):  # type: ignore[override]
+        return super().add_row(*(Text(str(c)) for c in cells), **kwargs)
