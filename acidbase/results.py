@@ -233,14 +233,20 @@ class Results:
     # -- columns ----------------------------------------------------------------
     def finding_codes(self) -> np.ndarray:
         """Object array: the codes fired on each row, joined by ";"."""
-        names = [r.code for r in RULES]
-        return _join([_combine(p.fired, names) for p in self.parts])
+        return _materialise(*self._encoded_codes())
 
     def disorder_labels(self) -> np.ndarray:
         """Object array: the disorders of each row as text ("" for none)."""
-        return _join([self._labels(p.frame) for p in self.parts])
+        return _materialise(*self._encoded_disorders())
 
-    def _labels(self, f: Frame) -> np.ndarray:
+    def _encoded_codes(self) -> tuple[np.ndarray, list[str]]:
+        names = [r.code for r in RULES]
+        return _merge([_combine(p.fired, names) for p in self.parts])
+
+    def _encoded_disorders(self) -> tuple[np.ndarray, list[str]]:
+        return _merge([self._labels(p.frame) for p in self.parts])
+
+    def _labels(self, f: Frame) -> tuple[np.ndarray, list[str]]:
         key = np.zeros(f["ph"].shape[0], dtype=np.int64)
         for slot, _, _ in SLOTS:
             key = key * 3 + f[f"role_{slot}"]
@@ -258,13 +264,16 @@ class Results:
             row = {f"role_{s}": roles[k] for k, (s, _, _) in enumerate(SLOTS)}
             row["timing_resp"] = timing
             labels.append("; ".join(d.label() for d in self._disorders(row)))
-        return np.array(labels, dtype=object)[inverse.reshape(-1)]
+        return inverse.reshape(-1).astype(np.int32), labels
 
-    def table(self) -> dict[str, np.ndarray]:
-        """Output columns for the batch file, in their documented order."""
-        role_names = np.array(["", "primary", "additional"], dtype=object)
-        timing_names = np.array(["", "acute", "chronic", "indeterminate"], dtype=object)
-        cons_names = np.array(CONSISTENCY_NAMES, dtype=object)
+    def encoded(self) -> dict[str, np.ndarray | tuple[np.ndarray, list[str]]]:
+        """The output columns of ``table``, with every text column except ``reason`` as
+        ``(indices, labels)``: row i reads ``labels[indices[i]]``.
+
+        The batch writer turns these into dictionary arrays without converting text
+        cell by cell; ``table`` materialises the same columns as object arrays.
+        """
+        refused = self.refused
 
         def col(key: str) -> np.ndarray:
             mask = VALID_WHEN.get(key)
@@ -272,19 +281,47 @@ class Results:
                 _full(p.frame[key], p.screened.n) if mask is None
                 else np.where(p.frame[mask], p.frame[key], np.nan) for p in self.parts])
 
-        refused = self.refused
-        cols: dict[str, np.ndarray] = {}
-        cols["status"] = np.where(refused, "refused", "interpreted").astype(object)
+        def blanked(indices: np.ndarray, labels: list[str]) -> tuple[np.ndarray, list[str]]:
+            """Refused rows read "" (an extra label)."""
+            if not refused.any():
+                return indices.astype(np.int32), list(labels)
+            out = np.where(refused, len(labels), indices).astype(np.int32)
+            return out, [*labels, ""]
+
+        cols: dict[str, np.ndarray | tuple[np.ndarray, list[str]]] = {}
+        cols["status"] = (refused.astype(np.int32), ["interpreted", "refused"])
         cols["reason"] = self.reasons
-        cols["consistency"] = np.where(refused, "", cons_names[col("consistency")])
-        cols["disorders"] = np.where(refused, "", self.disorder_labels())
+        cols["consistency"] = blanked(col("consistency"), list(CONSISTENCY_NAMES))
+        cols["disorders"] = blanked(*self._encoded_disorders())
         for slot, _, _ in SLOTS:
-            cols[f"role_{slot}"] = role_names[col(f"role_{slot}")]
-        cols["timing_respiratory"] = timing_names[col("timing_resp")]
-        cols["finding_codes"] = self.finding_codes()
+            cols[f"role_{slot}"] = (col(f"role_{slot}").astype(np.int32), ["", "primary", "additional"])
+        cols["timing_respiratory"] = (col("timing_resp").astype(np.int32),
+                                      ["", "acute", "chronic", "indeterminate"])
+        cols["finding_codes"] = self._encoded_codes()
         for k in DERIVED:
             cols[k] = col(k)
         return cols
+
+    def table(self) -> dict[str, np.ndarray]:
+        """Output columns for the batch file, in their documented order."""
+        return {k: (_materialise(*v) if isinstance(v, tuple) else v)
+                for k, v in self.encoded().items()}
+
+
+def _materialise(indices: np.ndarray, labels: list[str]) -> np.ndarray:
+    return np.array(labels, dtype=object)[indices]
+
+
+def _merge(parts: list[tuple[np.ndarray, list[str]]]) -> tuple[np.ndarray, list[str]]:
+    """One (indices, labels) pair from several, with one label list."""
+    if len(parts) == 1:
+        return parts[0]
+    labels: dict[str, int] = {}
+    out = []
+    for indices, names in parts:
+        remap = np.array([labels.setdefault(x, len(labels)) for x in names], dtype=np.int32)
+        out.append(remap[indices] if len(names) else indices.astype(np.int32))
+    return np.concatenate(out), list(labels)
 
 
 def _full(col: np.ndarray, n: int) -> np.ndarray:
@@ -299,11 +336,12 @@ def _join(arrays: list[np.ndarray], p0: np.ndarray | None = None) -> np.ndarray:
     return np.concatenate(arrays)
 
 
-def _combine(mask: np.ndarray, names: list[str]) -> np.ndarray:
-    """Join the names whose mask is set, per column of ``mask`` (rules x rows)."""
+def _combine(mask: np.ndarray, names: list[str]) -> tuple[np.ndarray, list[str]]:
+    """The names whose mask is set, joined by ";", per column of ``mask`` (rules x rows),
+    as (indices, labels)."""
     n = mask.shape[1]
     if n == 0:
-        return np.array([], dtype=object)
+        return np.zeros(0, dtype=np.int32), []
     packed = np.packbits(mask, axis=0)  # (bytes, n)
     width = packed.shape[0]
     pad = (-width) % 8
@@ -318,4 +356,4 @@ def _combine(mask: np.ndarray, names: list[str]) -> np.ndarray:
         view = words.view(np.dtype((np.void, words.shape[1] * 8))).reshape(-1)
         uniques, first, inverse = np.unique(view, return_index=True, return_inverse=True)
     labels = [";".join(name for name, on in zip(names, mask[:, j]) if on) for j in first.tolist()]
-    return np.array(labels, dtype=object)[inverse.reshape(-1)]
+    return inverse.reshape(-1).astype(np.int32), labels
