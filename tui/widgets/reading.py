@@ -105,18 +105,16 @@ class ReadingPane(Vertical):
             state.update("Refused: " + "; ".join(it.problems))
             return
         state.update("")
-        found = list(enumerate(it.findings))
+        lines = []
         for section, title in SECTIONS:
-            options.add_option(Option(Content.from_markup("[b]$text[/b]",
-                                                          text=heading(section, title, it)),
-                                      id=section, disabled=True))
-            for i, f in found:
-                if f.section == section:
-                    options.add_option(Option(
-                        Content(f"{MARKS.get(f.severity, f.severity)} {f.text}"),
-                        id=f"finding-{i}"))
-        first = next((k for k in range(options.option_count)
-                      if not options.get_option_at_index(k).disabled), None)
+            lines.append(Option(Content.from_markup("[b]$text[/b]",
+                                                    text=heading(section, title, it)),
+                                id=section, disabled=True))
+            lines += [Option(Content(f"{MARKS.get(f.severity, f.severity)} {f.text}"),
+                             id=f"finding-{i}")
+                      for i, f in enumerate(it.findings) if f.section == section]
+        options.add_options(lines)  # one update of the list, not one per line
+        first = next((k for k, line in enumerate(lines) if not line.disabled), None)
         if first is not None:
             options.highlighted = first
 
