@@ -101,13 +101,9 @@ def configure_parser(p: argparse.ArgumentParser) -> None:
                    help="derived-value columns to write (default all; formatting numbers is "
                         "most of the time of writing CSV)")
     o.add_argument("--quiet", action="store_true", help="no progress bar")
-    lab = p.add_argument_group("laboratory settings")
-    lab.add_argument("--anion-gap-interval", nargs=2, type=float, metavar=("LOW", "HIGH"),
-                     help="local anion-gap reference interval, mmol/L (default 6 12 without K+)")
-    lab.add_argument("--anion-gap-with-k", action="store_true",
-                     help="judge the anion gap with K+ included (interval default 10 16)")
-    lab.add_argument("--reference-albumin", type=float, metavar="G_PER_L",
-                     help="albumin to correct the gap to, g/L (default 44)")
+    from .cli import add_settings_options
+
+    add_settings_options(p)
 
 
 def _pairs(items: list[str], what: str) -> dict[str, str]:

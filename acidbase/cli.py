@@ -49,6 +49,11 @@ def add_panel_options(p: argparse.ArgumentParser) -> None:
                         "measured total CO2 (default: unknown)")
     for name in TEXT_FIELDS:
         c.add_argument(f"--{name.replace('_', '-')}", dest=name, metavar="TEXT")
+    add_settings_options(p)
+
+
+def add_settings_options(p: argparse.ArgumentParser) -> None:
+    """The laboratory settings (shared by check, tui and batch)."""
     s = p.add_argument_group("laboratory settings")
     s.add_argument("--anion-gap-interval", nargs=2, type=float, metavar=("LOW", "HIGH"),
                    help="local anion-gap reference interval, mmol/L (default 6 12 without K+)")

@@ -72,11 +72,11 @@ NUMERIC: tuple[FieldSpec, ...] = (
               ("2075-0", "41650-3", "2069-3"), "Chloride."),
     FieldSpec("k", "K+", "electrolyte", (0.5, 15.0), (1.5, 8.0), False,
               ("2823-3", "6298-4", "32713-0", "39789-3"), "Potassium."),
-    FieldSpec("albumin", "Albumin", "albumin", (3.0, 80.0), (10.0, 60.0), False,
+    FieldSpec("albumin", "Albumin", "albumin", (8.0, 80.0), (10.0, 60.0), False,
               ("1751-7",), "Serum or plasma albumin."),
     FieldSpec("lactate", "Lactate", "electrolyte", (0.0, 40.0), (0.0, 25.0), False,
               ("2524-7", "32693-4", "2518-9", "2519-7"), "Lactate."),
-    FieldSpec("glucose", "Glucose", "glucose", (0.6, 111.0), (1.5, 60.0), False,
+    FieldSpec("glucose", "Glucose", "glucose", (0.6, 70.0), (1.5, 60.0), False,
               ("2345-7", "14749-6", "2339-0", "15074-8"), "Glucose."),
     FieldSpec("urea", "Urea", "urea", (0.3, 100.0), (0.5, 80.0), False,
               ("22664-7",), "Urea (not urea nitrogen; for urea nitrogen use bun)."),
@@ -86,10 +86,10 @@ NUMERIC: tuple[FieldSpec, ...] = (
               ("2692-2",), "Measured serum osmolality (freezing point)."),
     FieldSpec("ica", "Ionised Ca2+", "electrolyte", (0.2, 4.0), (0.5, 2.5), False,
               ("1994-3",), "Ionised calcium."),
-    FieldSpec("mg", "Mg2+", "electrolyte", (0.1, 5.0), (0.3, 3.0), False,
-              ("19123-9",), "Magnesium (total), used as an approximation in the apparent SID."),
+    FieldSpec("mg", "Mg2+", "magnesium", (0.1, 5.0), (0.3, 3.0), False,
+              ("2601-3", "19123-9"), "Magnesium (total), used as an approximation in the apparent SID."),
     FieldSpec("phosphate", "Phosphate", "phosphate", (0.1, 6.0), (0.2, 4.0), False,
-              ("2777-1",), "Inorganic phosphate."),
+              ("14879-1", "2777-1"), "Inorganic phosphate."),
     FieldSpec("hb", "Haemoglobin", "haemoglobin", (2.0, 25.0), (4.0, 22.0), False,
               ("718-7",), "Total haemoglobin."),
     FieldSpec("po2", "pO2", "pressure", (5.0, 800.0), (20.0, 700.0), False,
@@ -110,7 +110,7 @@ REQUIRED: tuple[str, ...] = tuple(f.name for f in NUMERIC if f.required)
 #: LOINC codes above that are from memory, not from the checked notes (verify
 #: against a LOINC release before relying on them).
 LOINC_FROM_MEMORY: frozenset[str] = frozenset(
-    {"1994-3", "19123-9", "2777-1", "8310-5", "30525-0", "2746-6", "11558-4", "2021-4",
+    {"1994-3", "19123-9", "2601-3", "2777-1", "14879-1", "8310-5", "30525-0", "2746-6", "11558-4", "2021-4",
      "2705-2", "11556-8", "2069-3", "22664-7", "3150-0", "2519-7", "32693-4"}
 )
 

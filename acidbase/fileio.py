@@ -11,12 +11,14 @@ through; no row is parsed by a Python loop on the CSV path.
   A unit may follow a header in parentheses, ``pCO2 (kPa)``.
 * Values: a number, optionally preceded by a comparator (``<5``, ``>=180``:
   censored, below or above a reporting limit) and optionally followed by a
-  laboratory flag from HL7 v2 table 0078 (``L H LL HH A AA N``, and ``*``).
+  laboratory flag from HL7 v2 table 0078 (``L H LL HH A AA N``, and ``*``)
+  [hl7_0078]; comparators as FHIR ``Quantity.comparator`` [fhir_quantity].
   Anything else is "not a number" and refuses its row; nothing is guessed
   (``1,234`` is not read as a thousand, ``NA`` is not read as missing unless
   declared with ``--missing``).
 * CSV output escapes cells a spreadsheet would run as a formula (OWASP, "CSV
-  Injection", owasp.org/www-community/attacks/CSV_Injection; OWASP ASVS 1.2.10):
+  Injection", owasp.org/www-community/attacks/CSV_Injection; OWASP ASVS 1.2.10)
+  [owasp_csv]:
   a text cell starting with ``= + - @``, tab, carriage return, line feed or NUL
   gets a leading single quote, unless the whole cell is a plain number, so a
   base excess of ``-5.2`` stays a number.  Quoting follows RFC 4180 (pyarrow's

@@ -48,8 +48,9 @@ SPECIMEN: dict[str, str] = {
     "3094-0": "serum or plasma (mass)", "14937-7": "serum or plasma (molar)",
     "6299-2": "blood (mass)",
     "2692-2": "serum or plasma",
-    "1994-3": "blood (ionised calcium)", "19123-9": "serum or plasma",
-    "2777-1": "serum or plasma", "718-7": "blood",
+    "1994-3": "blood (ionised calcium)", "19123-9": "serum or plasma (mass)",
+    "2601-3": "serum or plasma (molar)",
+    "2777-1": "serum or plasma (mass)", "14879-1": "serum or plasma (molar)", "718-7": "blood",
     # oxygenation and context
     "2703-7": "arterial blood", "2705-2": "venous blood", "11556-8": "blood",
     "3150-0": "inhaled gas", "8310-5": "body temperature", "30525-0": "age",
@@ -68,11 +69,12 @@ IMPLIED_UNIT: dict[str, str] = {
     "3094-0": "mg/dL", "6299-2": "mg/dL",     # urea nitrogen, mass
     "14937-7": "mmol/L",                        # urea nitrogen, molar
     "22664-7": "mmol/L",                        # urea, molar
+    "2601-3": "mmol/L", "14879-1": "mmol/L",    # magnesium, phosphate, molar (from memory)
 }
 
 #: Codes whose property we hold only from memory to be a mass concentration
-#: (phosphate 2777-1, magnesium 19123-9: value from memory) while the field's
-#: canonical unit is molar.  Reading mg/dL as mmol/L would be wrong by a factor
+#: (phosphate 2777-1, magnesium 19123-9: value from memory; their molar twins
+#: 14879-1 and 2601-3 likewise from memory) while the field's canonical unit is molar.  Reading mg/dL as mmol/L would be wrong by a factor
 #: of 2.4 to 3.1 and still look plausible, so a column under these headers must
 #: state its unit (``--unit``, a header suffix, or the mapping file).
 UNIT_REQUIRED: frozenset[str] = frozenset({"2777-1", "19123-9"})

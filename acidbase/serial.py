@@ -10,7 +10,7 @@ Two checks, over every patient with a ``patient_id`` and a ``collected_at``:
   Kim SY, Lee W, Chun S, Min WK, "New decision criteria for selecting delta
   check methods...", Ann Lab Med 2012;32:345-354, doi:10.3343/alm.2012.32.5.345;
   Randell EW, Yenice S, "Delta checks in the clinical laboratory", Crit Rev Clin
-  Lab Sci 2019, doi:10.1080/10408363.2018.1540536).  The limits themselves are
+  Lab Sci 2019, doi:10.1080/10408363.2018.1540536) [park_2012, randell_2019].  The limits themselves are
   common laboratory practice, no source: laboratories set their own, and can
   here (``--delta FIELD=LIMIT``).
 * **series break** (``SERIAL-BREAK``): a panel whose value jumps away from the

@@ -17,11 +17,13 @@ MMHG_PER_KPA = 1.0 / KPA_PER_MMHG
 
 #: Molar masses used for mass <-> substance conversions.
 #: Glucose C6H12O6 180.16 g/mol; urea CH4N2O 60.06 g/mol; urea nitrogen 2 x 14.007
-#: = 28.01 g per mol of urea; phosphorus 30.97 g/mol (IUPAC standard atomic weights).
+#: = 28.01 g per mol of urea; phosphorus 30.97 g/mol; magnesium 24.305 g/mol (IUPAC
+#: standard atomic weights).
 GLUCOSE_G_PER_MOL = 180.16
 UREA_G_PER_MOL = 60.06
 UREA_N_G_PER_MOL = 28.014
 PHOSPHORUS_G_PER_MOL = 30.974
+MAGNESIUM_G_PER_MOL = 24.305
 
 #: Spellings accepted on input and the UCUM code they mean.
 ALIASES: dict[str, str] = {
@@ -63,6 +65,7 @@ FACTORS: dict[str, dict[str, float]] = {
     "urea": {"mmol/L": 1.0, "mg/dL": 10.0 / UREA_G_PER_MOL},
     "bun": {"mg/dL": 1.0, "mmol/L": UREA_N_G_PER_MOL / 10.0},
     "phosphate": {"mmol/L": 1.0, "mg/dL": 10.0 / PHOSPHORUS_G_PER_MOL},
+    "magnesium": {"mmol/L": 1.0, "mg/dL": 10.0 / MAGNESIUM_G_PER_MOL},
     "osmolality": {"mosm/kg": 1.0},
     "fraction": {"1": 1.0, "%": 0.01},
     "temperature": {"Cel": 1.0},

@@ -56,7 +56,7 @@ def test_albumin_38_in_g_per_dl_is_refused_with_a_hint_naming_g_per_l():
     e = only(refusal(albumin=38.0, albumin_unit="g/dL"))
     assert e["type"] == "outside_accepted_range" and e["loc"] == ("albumin",)
     assert e["msg"] == (
-        "Albumin (albumin) 38 g/dL is outside the accepted range 0.3 to 8 g/dL; Albumin would be "
+        "Albumin (albumin) 38 g/dL is outside the accepted range 0.8 to 8 g/dL; Albumin would be "
         "ordinary at this value in g/L: if that is the unit, state it (albumin unit g/L); the value "
         "was not converted"
     )
