@@ -722,7 +722,7 @@ def _process(table: pa.Table, layout: Layout, decimal: str, settings,
     cv = read_values(table, layout, decimal)
     units = {k: v for k, v in layout.units.items() if v != BY_NAME[k].unit}
     res = interpret_many(cv.columns, units or None, settings)
-    tab = res.table()
+    tab = res.encoded()  # text columns as (indices, labels): no cell-by-cell conversion
     engine_refused = np.asarray(res.refused, dtype=bool)
     refused = engine_refused.copy()
     mine = merged_reasons(tab["reason"], cv)
@@ -744,6 +744,11 @@ def _process(table: pa.Table, layout: Layout, decimal: str, settings,
             for i, text in mine.items():
                 reasons[i] = text
             arr = _sparse_text(reasons, refused)
+        elif isinstance(col, tuple):
+            indices, labels = col
+            arr = pa.DictionaryArray.from_arrays(
+                pa.array(indices, type=pa.int32()), pa.array(labels, type=pa.string())
+            ).cast(pa.string())
         elif col.dtype == object:
             arr = pa.array(col, type=pa.string())
         else:

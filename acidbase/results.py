@@ -352,8 +352,23 @@ def _combine(mask: np.ndarray, names: list[str]) -> tuple[np.ndarray, list[str]]
         uniques, inverse = np.unique(words[:, 0], return_inverse=True)
         first = np.empty(len(uniques), dtype=np.int64)
         first[inverse[::-1]] = np.arange(n)[::-1]
+        keys = uniques.tolist()
     else:
         view = words.view(np.dtype((np.void, words.shape[1] * 8))).reshape(-1)
         uniques, first, inverse = np.unique(view, return_index=True, return_inverse=True)
-    labels = [";".join(name for name, on in zip(names, mask[:, j]) if on) for j in first.tolist()]
+        keys = [u.tobytes() for u in uniques]
+    if len(_LABELS) > 100_000:  # bounded: a pathological file cannot grow it for ever
+        _LABELS.clear()
+    labels = []
+    for key, j in zip(keys, first.tolist()):
+        label = _LABELS.get(key)
+        if label is None:
+            label = ";".join(name for name, on in zip(names, mask[:, j]) if on)
+            _LABELS[key] = label
+        labels.append(label)
     return inverse.reshape(-1).astype(np.int32), labels
+
+
+#: Packed fired-rule pattern -> its codes joined, shared by every call (the rule
+#: table is fixed for the life of the process).
+_LABELS: dict[object, str] = {}
