@@ -13,8 +13,8 @@ from typing import Any
 import numpy as np
 
 from . import engine, rules
-from .fields import BY_NAME
-from .model import Panel, column_length, screen
+from .fields import BY_NAME, HCO3_SOURCES, SAMPLE_TYPES
+from .model import Panel, choice_codes, column_length, screen
 from .reference import Settings
 from .results import Interpretation, Part, Results
 from .units import factor
@@ -59,6 +59,15 @@ def interpret_many(
     if n <= SLICE_ROWS:
         return Results([_part(columns, units, settings, 0)], settings)
     arrays = {k: (np.asarray(v) if v is not None and np.ndim(v) else v) for k, v in columns.items()}
+    # Text choices are encoded once for the whole column, here: per slice, on the
+    # threads, their Python-level look-ups would hold the GIL.  A column with bad cells
+    # is left as text, so each slice can name the cell in its refusal.
+    for name, allowed in (("sample_type", SAMPLE_TYPES), ("hco3_source", HCO3_SOURCES)):
+        col = arrays.get(name)
+        if isinstance(col, np.ndarray) and col.dtype.kind in "OUS":
+            codes, bad = choice_codes(col, n, allowed, "unknown")
+            if not bad.any():
+                arrays[name] = codes
     starts = range(0, n, SLICE_ROWS)
 
     def run(start: int) -> Part:

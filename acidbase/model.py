@@ -131,12 +131,12 @@ def _as_float(name: str, raw: Any, n: int) -> tuple[np.ndarray, np.ndarray]:
     return out, bad
 
 
-def _choice(raw: Any, n: int, allowed: tuple[str, ...], default: str) -> tuple[np.ndarray, np.ndarray]:
+def choice_codes(raw: Any, n: int, allowed: tuple[str, ...], default: str) -> tuple[np.ndarray, np.ndarray]:
     """Codes (int8 index into ``allowed``) for a text column, and a mask of bad cells.
 
     Accepts strings (any case, surrounding spaces) or integer codes already
-    encoded.  Empty cells take the default.  Vectorised over unique values, so a
-    column of millions costs one sort.
+    encoded.  Empty cells take the default.  A uniform column costs one
+    comparison; a mixed one, one dictionary look-up per cell.
     """
     default_code = allowed.index(default)
     if raw is None:
@@ -149,23 +149,37 @@ def _choice(raw: Any, n: int, allowed: tuple[str, ...], default: str) -> tuple[n
         return np.where(bad, default_code, arr).astype(np.int8), bad
     first = arr.reshape(-1)[0] if n else None
     if n and isinstance(first, str) and bool((arr == first).all()):
-        text = first.strip().lower()
-        code = allowed.index(text) if text in allowed else default_code
-        bad_all = text not in allowed and text not in ("", "none", "nan")
-        return np.full(n, code, dtype=np.int8), np.full(n, bad_all)
-    uniques, inverse = np.unique(arr.astype(object).astype(str), return_inverse=True)
-    codes = np.empty(len(uniques), dtype=np.int8)
-    bad_unique = np.zeros(len(uniques), dtype=bool)
-    for j, cell in enumerate(uniques.tolist()):
-        text = cell.strip().lower()
-        if text in ("", "none", "nan"):
-            codes[j] = default_code
-        elif text in allowed:
-            codes[j] = allowed.index(text)
-        else:
-            codes[j] = default_code
-            bad_unique[j] = True
-    return codes[inverse.reshape(-1)], bad_unique[inverse.reshape(-1)]
+        code, bad = _choice_code(first, allowed, default_code)
+        return np.full(n, code, dtype=np.int8), np.full(n, bad)
+    # One dictionary look-up per cell: the vocabulary is tiny and text columns repeat it.
+    table = _CHOICE_CACHE.setdefault(allowed, {})
+    if len(table) > 10_000:  # bounded: a column of free text cannot grow it for ever
+        table.clear()
+    cells = arr.reshape(-1).tolist()
+    try:
+        for cell in set(cells) - table.keys():
+            table[cell] = _choice_code(cell, allowed, default_code)
+        pairs = [table[c] for c in cells]
+    except TypeError:  # unhashable cells (lists and the like): no cache
+        pairs = [_choice_code(c, allowed, default_code) for c in cells]
+    codes = np.fromiter((p[0] for p in pairs), dtype=np.int8, count=len(pairs))
+    bad = np.fromiter((p[1] for p in pairs), dtype=bool, count=len(pairs))
+    return codes, bad
+
+
+#: Cell -> (code, refused) per vocabulary.
+_CHOICE_CACHE: dict[tuple[str, ...], dict[object, tuple[int, bool]]] = {}
+
+
+def _choice_code(cell: object, allowed: tuple[str, ...], default_code: int) -> tuple[int, bool]:
+    if cell is None or (isinstance(cell, float) and np.isnan(cell)):
+        return default_code, False
+    text = str(cell).strip().lower()
+    if text in ("", "none", "nan"):
+        return default_code, False
+    if text in allowed:
+        return allowed.index(text), False
+    return default_code, True
 
 
 def column_length(columns: Mapping[str, Any]) -> int:
@@ -228,11 +242,11 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None) -
         "give urea or urea nitrogen (bun), not both")))
     refused |= both
 
-    sample_type, bad_st = _choice(columns.get("sample_type"), n, SAMPLE_TYPES, "unknown")
+    sample_type, bad_st = choice_codes(columns.get("sample_type"), n, SAMPLE_TYPES, "unknown")
     add(bad_st, lambda i: Problem("sample_type", "Sample type",
         np.asarray(columns["sample_type"], dtype=object).reshape(-1)[i], "",
         kind=f"not one of {', '.join(SAMPLE_TYPES)}"))
-    hco3_source, bad_src = _choice(columns.get("hco3_source"), n, HCO3_SOURCES, "unknown")
+    hco3_source, bad_src = choice_codes(columns.get("hco3_source"), n, HCO3_SOURCES, "unknown")
     add(bad_src, lambda i: Problem("hco3_source", "HCO3- source",
         np.asarray(columns["hco3_source"], dtype=object).reshape(-1)[i], "",
         kind=f"not one of {', '.join(HCO3_SOURCES)}"))
