@@ -7,13 +7,13 @@ Public API: ``Panel``, ``interpret``, ``interpret_many``, ``Interpretation``,
 from .api import interpret, interpret_many
 from .compensation import plane_bands
 from .errors import AcidBaseError, PanelError, Problem, UnitError
-from .model import Panel, describe
+from .model import Panel, describe, describe_fields
 from .reference import Settings
 from .results import CAUTION, Disorder, Finding, Interpretation, Results
 
 __all__ = [
     "CAUTION", "AcidBaseError", "Disorder", "Finding", "Interpretation", "Panel", "PanelError",
-    "Problem", "Results", "Settings", "UnitError", "describe", "interpret", "interpret_many",
+    "Problem", "Results", "Settings", "UnitError", "describe", "describe_fields", "interpret", "interpret_many",
     "plane_bands",
 ]
 __version__ = "0.1.0"

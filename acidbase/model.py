@@ -380,23 +380,32 @@ raises ``pydantic.ValidationError`` with every problem.
 """
 
 
-def describe(error: ValidationError) -> list[str]:
-    """Readable lines for a ValidationError from ``Panel`` (field first)."""
-    lines = []
+def describe_fields(error: ValidationError) -> list[tuple[str, str]]:
+    """(field, readable line) for each problem of a ValidationError from ``Panel``.
+
+    ``field`` is the field name ("" for a problem of the panel as a whole), so a form
+    can put each message beside its field.
+    """
+    out: list[tuple[str, str]] = []
     for e in error.errors(include_url=False):
         loc = ".".join(str(x) for x in e["loc"])
-        field = loc or "panel"
         spec = BY_NAME.get(loc)
         msg = e["msg"]
         if e["type"] == "outside_accepted_range":
-            lines.append(msg)
-            continue
-        if spec is not None:
-            value = e.get("input")
-            lines.append(f"{spec.title} ({field}) {value!r}: {msg}")
+            line = msg
+        elif e["type"] == "missing" and spec is not None:
+            line = str(Problem(spec.name, spec.title, None, spec.unit, kind="missing"))
+        elif spec is not None:
+            line = f"{spec.title} ({loc}) {e.get('input')!r}: {msg}"
         else:
-            lines.append(f"{field}: {msg}")
-    return lines
+            line = f"{loc or 'panel'}: {msg}"
+        out.append((loc, line))
+    return out
 
 
-__all__ = ["Panel", "Screened", "screen", "describe", "REQUIRED"]
+def describe(error: ValidationError) -> list[str]:
+    """Readable lines for a ValidationError from ``Panel`` (field first)."""
+    return [line for _, line in describe_fields(error)]
+
+
+__all__ = ["Panel", "Screened", "screen", "describe", "describe_fields", "REQUIRED"]

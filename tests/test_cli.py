@@ -116,3 +116,10 @@ def test_a_local_anion_gap_interval_changes_the_verdict():
     r = run("check", "--json", *BASE, "--anion-gap-interval", "3", "11", "--albumin", "44")
     doc = json.loads(r.stdout)
     assert "P-GAP-RAISED-ONLY" in [f["code"] for f in doc["findings"]]
+
+
+def test_a_missing_required_value_is_named_not_dumped():
+    r = run("check", "--ph", "7.4", "--pco2", "40", "--hco3", "24", "--na", "140")
+    assert r.returncode == 2
+    assert "Cl- (cl) is required and was not given" in r.stderr
+    assert "{" not in r.stderr
