@@ -45,6 +45,16 @@ def _panel_strategy():
     })
 
 
+def _columns(panels):
+    """Panels (dicts) as the columns interpret_many takes."""
+    columns = {}
+    for spec in NUMERIC:
+        columns[spec.name] = np.array([p.get(spec.name, np.nan) for p in panels], dtype=float)
+    for name in ("sample_type", "hco3_source"):
+        columns[name] = np.array([p.get(name, "unknown") for p in panels], dtype=object)
+    return columns
+
+
 def _same(a, b):
     if a is None or b is None:
         return a is None and b is None
@@ -55,12 +65,7 @@ def _same(a, b):
 @given(st.lists(_panel_strategy(), min_size=1, max_size=12))
 def test_interpret_and_interpret_many_agree_on_every_panel(panels):
     """Row i of a batch equals interpret(panel_i): one code path for both."""
-    columns = {}
-    for spec in NUMERIC:
-        columns[spec.name] = np.array([p.get(spec.name, np.nan) for p in panels], dtype=float)
-    for name in ("sample_type", "hco3_source"):
-        columns[name] = np.array([p.get(name, "unknown") for p in panels], dtype=object)
-    many = ab.interpret_many(columns)
+    many = ab.interpret_many(_columns(panels))
     for i, p in enumerate(panels):
         one = ab.interpret(ab.Panel(**p))
         row = many.interpretation(i)
@@ -76,11 +81,7 @@ def test_slicing_a_batch_changes_no_row(panels):
     """interpret_many computes long batches in slices on threads; rows must not move."""
     import acidbase.api as api
 
-    columns = {}
-    for spec in NUMERIC:
-        columns[spec.name] = np.array([p.get(spec.name, np.nan) for p in panels], dtype=float)
-    for name in ("sample_type", "hco3_source"):
-        columns[name] = np.array([p.get(name, "unknown") for p in panels], dtype=object)
+    columns = _columns(panels)
     whole = ab.interpret_many(columns)
     saved = api.SLICE_ROWS
     api.SLICE_ROWS = 4
