@@ -62,13 +62,3 @@ def _num(x: object) -> str:
     if isinstance(x, float):
         return f"{x:.4g}" if abs(x) < 1e5 else f"{x:.6g}"
     return str(x)
-
-
-@dataclass
-class PanelError(ValueError, AcidBaseError):
-    """A panel refused as a whole: every problem found, not just the first."""
-
-    problems: list[Problem]
-
-    def __str__(self) -> str:
-        return "; ".join(str(p) for p in self.problems)
