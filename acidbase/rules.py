@@ -169,12 +169,30 @@ def _be_disagree_text(r: Row) -> str:
              "resp_acid": "respiratory acidosis", "resp_alk": "respiratory alkalosis"}
     bic = [n for k, n in names.items() if r[f"bic_{k}"]] or ["none"]
     be = [n for k, n in names.items() if r[f"be_{k}"]] or ["none"]
-    why = ("SBE is independent of pCO2 by construction, whereas plasma HCO3- moves with pCO2 "
-           "(about 1 mmol/L per 10 mm[Hg] acutely), so near the interval edges and in acute "
-           "respiratory changes the two families can fall on different sides")
+    reasons = []
+    if r["consistency"] == INCONSISTENT:
+        reasons.append("SBE is computed from the HCO3- calculated from pH and pCO2, which "
+                       "disagrees with the HCO3- entered (see the consistency verdict)")
+    metabolic_differs = any(r[f"bic_{k}"] != r[f"be_{k}"] for k in ("met_acid", "met_alk"))
+    if metabolic_differs:
+        reasons.append(
+            f"HCO3- {r['hco3']:.1f} against its interval {r['hco3_lo']:.0f}-{r['hco3_hi']:.0f} "
+            f"and SBE {r['standard_base_excess']:+.1f} against {r['sbe_lo']:.1f} to "
+            f"{r['sbe_hi']:+.1f} fall on different sides: plasma HCO3- also moves with pCO2 "
+            f"(about 1 mmol/L per 10 mm[Hg] acutely), SBE does not")
+    if any(r[f"bic_{k}"] != r[f"be_{k}"] for k in ("resp_acid", "resp_alk")):
+        if np.isfinite(r["expected_pco2_low"]) and np.isfinite(r["be_expected_pco2_low"]):
+            reasons.append(
+                f"the expected pCO2 differs between the families (bicarbonate "
+                f"{r['expected_pco2_low']:.1f}-{r['expected_pco2_high']:.1f}, base excess "
+                f"{r['be_expected_pco2_low']:.1f}-{r['be_expected_pco2_high']:.1f} mm[Hg]) and "
+                f"pCO2 {r['pco2']:.1f} lies inside one band only")
+        elif not metabolic_differs:
+            reasons.append("the two families' bands for the respiratory component part here")
+    why = "; ".join(reasons) or "the two families' bands part here"
     return (f"The two readings disagree: bicarbonate rules give {', '.join(bic)}; base-excess "
-            f"rules (SBE {r['standard_base_excess']:+.1f} mmol/L) give {', '.join(be)}. {why}. "
-            f"Read the panel with both in view.")
+            f"rules (SBE {r['standard_base_excess']:+.1f} mmol/L) give {', '.join(be)}. Why: "
+            f"{why}. Read the panel with both in view.")
 
 
 def _pf_text(r: Row) -> str:

@@ -73,3 +73,21 @@ def test_delta_ratio_below_0_4_puts_the_normal_gap_acidosis_first():
              sample_type="arterial")
     assert ("metabolic acidosis", "primary", "normal") in processes(r)
     assert ("metabolic acidosis", "additional", "high") in processes(r)
+
+
+def test_readings_that_part_on_compensation_say_which_bands_differ():
+    # HCO3 11: Winter's 1.5 x 11 + 8 = 24.5 +/- 2 -> 22.5-26.5 (Albert, Dell & Winters 1967);
+    # SBE (CLSI C46) about -16.4 -> Schlichtig 1998 expected pCO2 40 + SBE = 23.6, band +/- 2
+    # (a design choice) -> 21.6-25.6. pCO2 26.3 sits in the first band only.
+    r = read(ph=round(hh_ph(11.0, 26.3), 3), pco2=26.3, hco3=11, na=140, cl=104,
+             sample_type="arterial")
+    text = next(f.text for f in r.findings if f.code == "P-BE-DISAGREES")
+    assert "expected pCO2 differs between the families" in text
+    assert "22.5-26.5" in text
+
+
+def test_an_inconsistent_panel_names_the_inconsistency_when_the_readings_part():
+    # pH 7.40 / pCO2 41 give HCO3 24.8 (CLSI C46); an entered 42.0 is a transcription slip.
+    r = read(ph=7.40, pco2=41, hco3=42.0, na=139, cl=102, sample_type="arterial")
+    text = next(f.text for f in r.findings if f.code == "P-BE-DISAGREES")
+    assert "see the consistency verdict" in text
