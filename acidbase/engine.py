@@ -67,6 +67,7 @@ VALID_WHEN: dict[str, str] = {
     "be_expected_sbe_acute_high": "be_respiratory_only",
     "be_expected_sbe_chronic_low": "be_respiratory_only",
     "be_expected_sbe_chronic_high": "be_respiratory_only",
+    "delta_ratio": "delta_applies", "delta_gap": "delta_applies",
 }
 
 #: FiO2 read as room air (the age rule for the A-a gradient holds only there).
@@ -346,6 +347,7 @@ def compute(s: Screened, settings: Settings) -> Frame:
     f["delta_alkalosis"] = high_hco3_for_gap & ~resp_acid_present
     f["delta_alkalosis_or_resp"] = high_hco3_for_gap & resp_acid_present
     f["role_met_acid_high"] = role_high.astype(np.int8)
+    f["delta_applies"] = role_high > ROLE_NONE  # the delta ratio and gap mean nothing else
     f["role_met_acid_normal"] = role_normal.astype(np.int8)
     f["role_met_alk"] = _role(p["met_alk"], a["met_alk"] | f["delta_alkalosis"])
     f["role_resp_acid"] = _role(p["resp_acid"], a["resp_acid"])

@@ -91,3 +91,13 @@ def test_an_inconsistent_panel_names_the_inconsistency_when_the_readings_part():
     r = read(ph=7.40, pco2=41, hco3=42.0, na=139, cl=102, sample_type="arterial")
     text = next(f.text for f in r.findings if f.code == "P-BE-DISAGREES")
     assert "see the consistency verdict" in text
+
+
+def test_delta_ratio_and_gap_are_null_without_a_high_gap_acidosis():
+    # Chronic respiratory acidosis (Narins & Emmett 1980: HCO3 24 + 0.35 x 20 = 31 +/- 2 at
+    # pCO2 60) with a normal gap: the delta ratio compares a gap rise with an HCO3 fall in a
+    # high-gap acidosis (Rastegar 2007) and has no meaning here.
+    r = read(ph=round(hh_ph(30.0, 60.0), 3), pco2=60, hco3=30, na=140, cl=100,
+             sample_type="arterial")
+    assert r.derived["delta_ratio"] is None
+    assert r.derived["delta_gap"] is None
