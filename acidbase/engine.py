@@ -353,8 +353,9 @@ def compute(s: Screened, settings: Settings) -> Frame:
     f["role_resp_acid"] = _role(p["resp_acid"], a["resp_acid"])
     f["role_resp_alk"] = _role(p["resp_alk"], a["resp_alk"])
     extra_met = a["met_acid"] | a["met_alk"] | f["delta_alkalosis"] | gap_only
-    f["timing_resp"] = (bic.timing + (INDETERMINATE - bic.timing) * (
-        (bic.timing > TIMING_NONE) & extra_met)).astype(np.int8)
+    blurred = (bic.timing > TIMING_NONE) & extra_met
+    f["timing_blurred"] = blurred  # a second metabolic process also moves HCO3-
+    f["timing_resp"] = (bic.timing + (INDETERMINATE - bic.timing) * blurred).astype(np.int8)
     nothing = ~(high_active | (role_normal > 0) | (f["role_met_alk"] > 0)
                 | (f["role_resp_acid"] > 0) | (f["role_resp_alk"] > 0))
     ph_outside = (ph < f["ph_lo"]) | (ph > f["ph_hi"])

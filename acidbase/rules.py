@@ -160,6 +160,9 @@ def _timing_text(r: Row) -> str:
         return f"The {word} reads as acute: {bands}."
     if t == CHRONIC:
         return f"The {word} reads as chronic (renal compensation in place): {bands}."
+    if r["timing_blurred"]:
+        return (f"The {word} cannot be timed: a concurrent metabolic process also moves "
+                f"HCO3- ({bands}).")
     return (f"The {word} cannot be timed: {bands}; between or across the bands (acute on "
             f"chronic, still adapting, or a small change where the bands overlap).")
 

@@ -101,3 +101,15 @@ def test_delta_ratio_and_gap_are_null_without_a_high_gap_acidosis():
              sample_type="arterial")
     assert r.derived["delta_ratio"] is None
     assert r.derived["delta_gap"] is None
+
+
+def test_timing_text_names_the_concurrent_metabolic_process():
+    # pH 7.45, pCO2 20, HCO3 14 (a salicylate-like pattern): respiratory alkalosis primary;
+    # the gap 140 - 104 - 14 = 22 is at least 20, a metabolic acidosis (Gabow 1980, value from
+    # memory), which moves HCO3- too, so the acute/chronic bands (Narins & Emmett 1980)
+    # cannot time the respiratory process.
+    r = read(ph=7.45, pco2=20, hco3=14, na=140, cl=104, sample_type="arterial")
+    text = next(f.text for f in r.findings if f.code == "P-RESP-TIMING")
+    assert "concurrent metabolic process" in text
+    assert ("respiratory alkalosis", "primary", None) in processes(r)
+    assert ("metabolic acidosis", "additional", "high") in processes(r)
