@@ -55,7 +55,8 @@ class Problem:
             text = f"{self.title} ({self.field}) is required and was not given"
         else:
             text = f"{self.title} ({self.field}) {self.value!r}: {self.kind}"
-        return text + (f"; {self.hint}" if self.hint else "")
+        # " - ", not "; ": a row's reasons are joined with "; ", one per problem
+        return text + (f" - {self.hint}" if self.hint else "")
 
 
 def _num(x: object) -> str:

@@ -53,7 +53,7 @@ def _hint(spec: FieldSpec, values: np.ndarray, unit: str) -> np.ndarray:
             fits = (values * f >= lo) & (values * f <= hi) & (hints == "")
         hints[fits] = (
             f"{spec.title} would be ordinary at this value in {other}: if that is the unit, "
-            f"state it ({spec.name} unit {other}); the value was not converted"
+            f"state it ({spec.name} unit {other}), the value was not converted"
         )
     return hints
 

@@ -44,8 +44,8 @@ def test_pco2_5_3_in_mmhg_is_refused_with_a_hint_naming_kpa():
     e = only(refusal(pco2=5.3))
     assert e["type"] == "outside_accepted_range" and e["loc"] == ("pco2",)
     assert e["msg"] == (
-        "pCO2 (pco2) 5.3 mm[Hg] is outside the accepted range 8 to 200 mm[Hg]; pCO2 would be "
-        "ordinary at this value in kPa: if that is the unit, state it (pco2 unit kPa); the value "
+        "pCO2 (pco2) 5.3 mm[Hg] is outside the accepted range 8 to 200 mm[Hg] - pCO2 would be "
+        "ordinary at this value in kPa: if that is the unit, state it (pco2 unit kPa), the value "
         "was not converted"
     )
 
@@ -56,8 +56,8 @@ def test_albumin_38_in_g_per_dl_is_refused_with_a_hint_naming_g_per_l():
     e = only(refusal(albumin=38.0, albumin_unit="g/dL"))
     assert e["type"] == "outside_accepted_range" and e["loc"] == ("albumin",)
     assert e["msg"] == (
-        "Albumin (albumin) 38 g/dL is outside the accepted range 0.8 to 8 g/dL; Albumin would be "
-        "ordinary at this value in g/L: if that is the unit, state it (albumin unit g/L); the value "
+        "Albumin (albumin) 38 g/dL is outside the accepted range 0.8 to 8 g/dL - Albumin would be "
+        "ordinary at this value in g/L: if that is the unit, state it (albumin unit g/L), the value "
         "was not converted"
     )
 
@@ -68,8 +68,8 @@ def test_glucose_6_in_mg_per_dl_is_refused_with_a_hint_naming_mmol_per_l():
     assert e["type"] == "outside_accepted_range" and e["loc"] == ("glucose",)
     assert e["msg"].startswith("Glucose (glucose) 6 mg/dL is outside the accepted range ")
     assert e["msg"].endswith(
-        " mg/dL; Glucose would be ordinary at this value in mmol/L: if that is the unit, state it "
-        "(glucose unit mmol/L); the value was not converted"
+        " mg/dL - Glucose would be ordinary at this value in mmol/L: if that is the unit, state it "
+        "(glucose unit mmol/L), the value was not converted"
     )
 
 
