@@ -30,10 +30,6 @@ def _part(columns: Mapping[str, Any], units: Mapping[str, str] | None, settings:
           start: int) -> Part:
     screened = screen(columns, units)
     frame = engine.compute(screened, settings)
-    frame["large_gap"] = np.float64(settings.large_anion_gap)
-    frame["ref_albumin"] = np.float64(settings.reference_albumin_g_l)
-    frame["sig_high"] = np.float64(settings.strong_ion_gap_high)
-    frame["osm_gap_high"] = np.float64(settings.osmolal_gap_high)
     return Part(start, screened, frame, rules.evaluate(frame))
 
 

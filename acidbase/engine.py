@@ -228,6 +228,11 @@ def compute(s: Screened, settings: Settings) -> Frame:
     ph, pco2, hco3 = v["ph"], v["pco2"], v["hco3"]
     f["sample_type"], f["hco3_source"] = s.sample_type, s.hco3_source
     f["refused"] = s.refused
+    # the settings the rules compare against, as 0-d columns
+    f["large_gap"] = np.float64(settings.large_anion_gap)
+    f["ref_albumin"] = np.float64(settings.reference_albumin_g_l)
+    f["sig_high"] = np.float64(settings.strong_ion_gap_high)
+    f["osm_gap_high"] = np.float64(settings.osmolal_gap_high)
     if "urea" in has and "bun" in has:
         f["urea_used"] = np.fmax(v["urea"], v["bun"] * (10.0 / 28.014))  # never both (model)
     elif "bun" in has:
