@@ -106,18 +106,13 @@ def _pick(m1: np.ndarray, r1: CompensationRule, m2: np.ndarray, r2: Compensation
 
     Rows in neither mask get meaningless numbers: the caller keeps the masks and
     blanks those rows on output (``VALID_WHEN``), which is cheaper than NaN here.
+    Each rule's expected value is its own ``expected``; only the choice between
+    the two is arithmetic here.
     """
     f1 = m1.astype(np.float64)
-
-    def choose(a1: float, a2: float) -> np.ndarray | float:
-        # exact where m1 or m2; the other rows are blanked below
-        return a1 if a1 == a2 else a2 + (a1 - a2) * f1
-
-    slope = choose(r1.slope, r2.slope)
-    anchor = choose(r1.anchor, r2.anchor)
-    at_anchor = choose(r1.at_anchor, r2.at_anchor)
-    band = choose(r1.band, r2.band)
-    centre = at_anchor + slope * (driver - anchor)
+    c1, c2 = r1.expected(driver), r2.expected(driver)
+    centre = c2 + (c1 - c2) * f1
+    band = r1.band if r1.band == r2.band else r2.band + (r1.band - r2.band) * f1
     return centre - band, centre + band
 
 

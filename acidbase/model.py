@@ -16,6 +16,7 @@ number would be ordinary in another unit of the field, the message says so.
 
 from __future__ import annotations
 
+import functools
 from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any, Literal
@@ -97,12 +98,19 @@ class Screened:
     """int8 codes: index into ``HCO3_SOURCES``."""
     refused: np.ndarray
     """Boolean mask of refused rows."""
-    reasons: np.ndarray
-    """Object array: "" for accepted rows, the problems joined by "; " otherwise."""
     problems: dict[int, list[Problem]]
     """Refused row index -> its problems."""
     present: frozenset[str] = frozenset()
     """Numeric fields with at least one measured value; the kernel skips the rest."""
+
+    @functools.cached_property
+    def reasons(self) -> np.ndarray:
+        """Object array: "" for accepted rows, the problems joined by "; " otherwise
+        (built when first asked for: the kernel itself never needs it)."""
+        out = np.full(self.n, "", dtype=object)
+        for i, plist in self.problems.items():
+            out[i] = "; ".join(str(p) for p in plist)
+        return out
 
 
 def _as_float(name: str, raw: Any, n: int) -> tuple[np.ndarray, np.ndarray]:
@@ -136,7 +144,8 @@ def choice_codes(raw: Any, n: int, allowed: tuple[str, ...], default: str) -> tu
 
     Accepts strings (any case, surrounding spaces) or integer codes already
     encoded.  Empty cells take the default.  A uniform column costs one
-    comparison; a mixed one, one dictionary look-up per cell.
+    comparison; a mixed one, one comparison per allowed spelling, and a dictionary
+    look-up for each cell that is not spelled exactly as allowed.
     """
     default_code = allowed.index(default)
     if raw is None:
@@ -151,11 +160,38 @@ def choice_codes(raw: Any, n: int, allowed: tuple[str, ...], default: str) -> tu
     if n and isinstance(first, str) and bool((arr == first).all()):
         code, bad = _choice_code(first, allowed, default_code)
         return np.full(n, code, dtype=np.int8), np.full(n, bad)
-    # One dictionary look-up per cell: the vocabulary is tiny and text columns repeat it.
+    flat = arr.reshape(-1)
+    if flat.dtype.kind in "OU" and n:
+        # The vocabulary is tiny: one vectorised comparison per canonical spelling
+        # settles the usual cells; only the others are looked up one by one.
+        # Each pass compares only the cells still unsettled, so a column that is
+        # mostly one word costs little more than one pass.
+        codes = np.full(n, default_code, dtype=np.int8)
+        rest = np.arange(n)
+        cells = flat
+        for code, word in enumerate(allowed):
+            hit = cells == word
+            if hit.any():
+                codes[rest[hit]] = code
+                rest = rest[~hit]
+                if rest.size == 0:
+                    return codes, np.zeros(n, dtype=bool)
+                cells = flat[rest]
+        sub, sub_bad = _choice_lookup(cells, allowed, default_code)
+        codes[rest] = sub
+        bad = np.zeros(n, dtype=bool)
+        bad[rest] = sub_bad
+        return codes, bad
+    return _choice_lookup(flat, allowed, default_code)
+
+
+def _choice_lookup(flat: np.ndarray, allowed: tuple[str, ...],
+                   default_code: int) -> tuple[np.ndarray, np.ndarray]:
+    """Codes and bad cells, one dictionary look-up per cell."""
     table = _CHOICE_CACHE.setdefault(allowed, {})
     if len(table) > 10_000:  # bounded: a column of free text cannot grow it for ever
         table.clear()
-    cells = arr.reshape(-1).tolist()
+    cells = flat.tolist()
     try:
         for cell in set(cells) - table.keys():
             table[cell] = _choice_code(cell, allowed, default_code)
@@ -256,11 +292,7 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None) -
         blank = nan_unless_not(refused)
         for name in present:
             values[name] = values[name] + blank
-    reasons = np.full(n, "", dtype=object)
-    for i, plist in problems.items():
-        reasons[i] = "; ".join(str(p) for p in plist)
-    return Screened(n, values, sample_type, hco3_source, refused, reasons, problems,
-                    frozenset(present))
+    return Screened(n, values, sample_type, hco3_source, refused, problems, frozenset(present))
 
 
 def nan_unless_not(mask: np.ndarray) -> np.ndarray:

@@ -120,4 +120,4 @@ def interval_columns(sample_type: np.ndarray, name: str) -> tuple[np.ndarray, np
     if sample_type.shape[0] and sample_type.min() == sample_type.max():
         code = int(sample_type[0])
         return np.float64(low[code]), np.float64(high[code])
-    return low[sample_type], high[sample_type]
+    return np.take(low, sample_type), np.take(high, sample_type)
