@@ -23,7 +23,8 @@ import os
 import re
 import sys
 import time
-from collections import Counter
+from collections import Counter, deque
+from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -37,7 +38,7 @@ from .engine import SLOTS
 from .errors import AcidBaseError, Problem
 from .fields import BY_NAME, HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
 from .fileio import BatchInputError, Layout, Source
-from .results import CAUTION, DERIVED
+from .results import CAUTION, DECIMALS, DERIVED
 
 EXIT_OK, EXIT_CANNOT_RUN = 0, 2
 
@@ -45,6 +46,9 @@ EXIT_OK, EXIT_CANNOT_RUN = 0, 2
 ROW_COLUMN = "row"
 EXTRA_COLUMNS: tuple[str, ...] = ("needs_review", "qualifiers", "lab_flags",
                                   *serial.COLUMNS, "caution")
+
+#: Worker threads that check and format chunks (the machine's two cores).
+WORKERS = max(1, min(2, os.cpu_count() or 1))
 
 _DELIMS = {"tab": "\t", "\\t": "\t", "comma": ",", "semicolon": ";", "pipe": "|"}
 
@@ -211,11 +215,9 @@ def read_values(table: pa.Table, layout: Layout, decimal: str) -> ChunkValues:
     parsed: dict[str, fileio.ParsedColumn] = {}
     problems: dict[int, list[str]] = {}
     skip: dict[int, set[str]] = {}
-    for spec in NUMERIC:
-        h = col_of.get(spec.name)
-        if h is None:
-            continue
-        p = fileio.parse_numeric(table[h], decimal)
+    specs = [spec for spec in NUMERIC if spec.name in col_of]
+    many = fileio.parse_numeric_many([table[col_of[spec.name]] for spec in specs], decimal)
+    for spec, p in zip(specs, many):
         parsed[spec.name] = p
         columns[spec.name] = p.values
         unit = layout.units.get(spec.name, spec.unit)
@@ -325,6 +327,17 @@ class Tally:
     plane: np.ndarray = field(default_factory=lambda: np.zeros((PLANE_ROWS, PLANE_COLS),
                                                                dtype=np.int64))
 
+    def merge(self, other: Tally) -> None:
+        """Add the counts of ``other``, a later part of the same file."""
+        self.rows += other.rows
+        self.refused += other.refused
+        self.review += other.review
+        for name in ("processes", "findings", "lab_flags", "qualifiers", "serial_status",
+                     "serial_codes", "reasons"):
+            getattr(self, name).update(getattr(other, name))
+        self.flagged.extend(other.flagged[:max(0, FLAGGED_LISTED - len(self.flagged))])
+        self.plane += other.plane
+
 
 #: The picture's axes and size, and how many rows the report lists: display choices
 #: (design, no source), wide enough for the accepted ranges of most panels.
@@ -351,7 +364,9 @@ def _nonempty(arr: pa.Array) -> pa.Array:
 
 def tally_chunk(t: Tally, out: dict[str, pa.Array], pco2: np.ndarray, hco3: np.ndarray,
                 refused: np.ndarray, review: np.ndarray, start: int,
-                ids: dict[str, pa.Array | None], fired: np.ndarray) -> None:
+                ids: dict[str, pa.Array | None], fired: np.ndarray,
+                listed: int = FLAGGED_LISTED) -> None:
+    """Count one chunk into ``t``; list at most ``listed`` more flagged rows."""
     n = len(refused)
     t.rows += n
     t.refused += int(refused.sum())
@@ -382,7 +397,7 @@ def tally_chunk(t: Tally, out: dict[str, pa.Array], pco2: np.ndarray, hco3: np.n
         h, _, _ = np.histogram2d(hco3[ok], pco2[ok], bins=(PLANE_ROWS, PLANE_COLS),
                                  range=(PLANE_HCO3, PLANE_PCO2))
         t.plane += h.astype(np.int64)
-    room = FLAGGED_LISTED - len(t.flagged)
+    room = min(listed, FLAGGED_LISTED - len(t.flagged))
     if room > 0 and review.any():
         idx = np.flatnonzero(review)[:room]
         take = pa.array(idx)
@@ -666,36 +681,64 @@ def _run(args: argparse.Namespace) -> int:
         finally:
             progress.end()
     writer = fileio.Writer(args.output, out_fmt, out_delim, metadata={"caution": CAUTION},
-                           escape=escaped_columns(src.headers))
+                           escape=escaped_columns(src.headers),
+                           decimals={k: DECIMALS[k] for k in keep})
     tally = Tally()
     ok = False
     progress = Progress(src.estimated_rows(), not args.quiet)
     progress.label = f"check {passes}/{passes}" if passes == 2 else "check"
-    start = 0
+
+    def work(table: pa.Table, start: int, listed: int):
+        """One chunk, on a worker thread: its output rows encoded for the writer, and
+        its counts."""
+        out, meta = _process(table, layout, decimal, settings, checker, start, keep)
+        names = _output_names(src.headers, meta["engine_cols"])
+        cols = {ROW_COLUMN: pa.array(np.arange(start + 1, start + table.num_rows + 1))}
+        for h in src.headers:
+            cols[names[h]] = table[h]
+        cols.update(out)
+        ids = {k: (table[col_of[k]].combine_chunks() if k in col_of else None)
+               for k in ("sample_id", "patient_id")}
+        part = Tally()
+        tally_chunk(part, out, meta["pco2"], meta["hco3"], meta["refused"], meta["review"],
+                    start, ids, meta["fired"], listed)
+        return writer.encode(pa.table(cols)), part, names, table.num_rows
+
+    done = 0
+
+    def finish(result) -> None:
+        """The next chunk in file order: counted, then written."""
+        nonlocal done
+        encoded, part, names, rows = result
+        if done == 0:
+            clash = [h for h, o in names.items() if o != h]
+            if clash:
+                notes.append("input columns renamed to keep them apart from output columns: "
+                             + ", ".join(f"{h!r} -> {names[h]!r}" for h in clash))
+        tally.merge(part)
+        writer.put(encoded)
+        done += rows
+        progress.update(done)
+
+    # Chunks are checked and formatted on WORKERS threads (numpy and pyarrow release
+    # the GIL inside each operation) and written here in file order; at most
+    # WORKERS + 1 chunks are in hand at once, so memory stays bounded.
+    pool = ThreadPoolExecutor(WORKERS, thread_name_prefix="acidbase-batch")
+    pending: deque[Future] = deque()
     try:
+        start = 0
         for table in src.chunks():
-            out, meta = _process(table, layout, decimal, settings, checker, start, keep)
-            if start == 0:
-                names = _output_names(src.headers, meta["engine_cols"])
-                clash = [h for h, o in names.items() if o != h]
-                if clash:
-                    notes.append("input columns renamed to keep them apart from output columns: "
-                                 + ", ".join(f"{h!r} -> {names[h]!r}" for h in clash))
-            cols = {ROW_COLUMN: pa.array(np.arange(start + 1, start + table.num_rows + 1))}
-            for h in src.headers:
-                cols[names[h]] = table[h]
-            cols.update(out)
-            ids = {k: (table[col_of[k]].combine_chunks() if k in col_of else None)
-                   for k in ("sample_id", "patient_id")}
-            tally_chunk(tally, out, meta["pco2"], meta["hco3"], meta["refused"],
-                        meta["review"], start, ids, meta["fired"])
-            writer.write(pa.table(cols))
+            pending.append(pool.submit(work, table, start, FLAGGED_LISTED - len(tally.flagged)))
             start += table.num_rows
-            progress.update(start)
-        if start == 0:
+            while len(pending) > WORKERS:
+                finish(pending.popleft().result())
+        while pending:
+            finish(pending.popleft().result())
+        if done == 0:
             raise BatchInputError(f"{args.input}: no rows")
         ok = True
     finally:
+        pool.shutdown(wait=True, cancel_futures=True)
         progress.end()
         writer.close(ok)
         if checker is not None:

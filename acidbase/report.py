@@ -10,6 +10,7 @@ import textwrap
 from typing import TYPE_CHECKING, Any
 
 from .fields import BY_NAME
+from .results import DECIMALS
 
 if TYPE_CHECKING:
     from .results import Interpretation
@@ -22,28 +23,31 @@ QUESTIONS = {
     "detail": "3. What follows: derived values",
 }
 
-#: Labels of derived values for the text report (key, label, unit, format).
-DERIVED_LABELS: tuple[tuple[str, str, str, str], ...] = (
-    ("hco3_calculated", "HCO3- calculated (Henderson-Hasselbalch)", "mmol/L", ".1f"),
-    ("h_nmol_per_l", "[H+]", "nmol/L", ".1f"),
-    ("total_co2_calculated", "Total CO2 calculated", "mmol/L", ".1f"),
-    ("anion_gap", "Anion gap (without K+)", "mmol/L", ".1f"),
-    ("anion_gap_k", "Anion gap (with K+)", "mmol/L", ".1f"),
-    ("anion_gap_corrected", "Anion gap, albumin-corrected", "mmol/L", ".1f"),
-    ("delta_ratio", "Delta ratio", "", ".2f"),
-    ("delta_gap", "Delta gap", "mmol/L", "+.1f"),
-    ("standard_base_excess", "Standard base excess", "mmol/L", "+.1f"),
-    ("expected_pco2_low", "Expected pCO2, low", "mm[Hg]", ".1f"),
-    ("expected_pco2_high", "Expected pCO2, high", "mm[Hg]", ".1f"),
-    ("sid_apparent", "Strong ion difference, apparent", "mEq/L", ".1f"),
-    ("sid_effective", "Strong ion difference, effective", "mEq/L", ".1f"),
-    ("strong_ion_gap", "Strong ion gap", "mEq/L", ".1f"),
-    ("osmolality_calculated", "Osmolality, calculated", "mosm/kg", ".0f"),
-    ("osmolal_gap", "Osmolal gap", "mosm/kg", ".0f"),
-    ("alveolar_po2", "Alveolar pO2", "mm[Hg]", ".0f"),
-    ("aa_gradient", "A-a gradient", "mm[Hg]", ".0f"),
-    ("aa_expected", "A-a gradient, age-expected upper", "mm[Hg]", ".0f"),
-    ("pf_ratio", "PaO2/FiO2", "mm[Hg]", ".0f"),
+#: Labels of derived values for the text report (key, label, unit, format); the
+#: decimals are ``results.DECIMALS``, the one precision table of every surface.
+DERIVED_LABELS: tuple[tuple[str, str, str, str], ...] = tuple(
+    (key, label, unit, f"{sign}.{DECIMALS[key]}f") for key, label, unit, sign in (
+        ("hco3_calculated", "HCO3- calculated (Henderson-Hasselbalch)", "mmol/L", ""),
+        ("h_nmol_per_l", "[H+]", "nmol/L", ""),
+        ("total_co2_calculated", "Total CO2 calculated", "mmol/L", ""),
+        ("anion_gap", "Anion gap (without K+)", "mmol/L", ""),
+        ("anion_gap_k", "Anion gap (with K+)", "mmol/L", ""),
+        ("anion_gap_corrected", "Anion gap, albumin-corrected", "mmol/L", ""),
+        ("delta_ratio", "Delta ratio", "", ""),
+        ("delta_gap", "Delta gap", "mmol/L", "+"),
+        ("standard_base_excess", "Standard base excess", "mmol/L", "+"),
+        ("expected_pco2_low", "Expected pCO2, low", "mm[Hg]", ""),
+        ("expected_pco2_high", "Expected pCO2, high", "mm[Hg]", ""),
+        ("sid_apparent", "Strong ion difference, apparent", "mEq/L", ""),
+        ("sid_effective", "Strong ion difference, effective", "mEq/L", ""),
+        ("strong_ion_gap", "Strong ion gap", "mEq/L", ""),
+        ("osmolality_calculated", "Osmolality, calculated", "mosm/kg", ""),
+        ("osmolal_gap", "Osmolal gap", "mosm/kg", ""),
+        ("alveolar_po2", "Alveolar pO2", "mm[Hg]", ""),
+        ("aa_gradient", "A-a gradient", "mm[Hg]", ""),
+        ("aa_expected", "A-a gradient, age-expected upper", "mm[Hg]", ""),
+        ("pf_ratio", "PaO2/FiO2", "mm[Hg]", ""),
+    )
 )
 
 

@@ -10,6 +10,7 @@ each with its working and resolved citations.  ``interpret(panel)`` is
 
 from __future__ import annotations
 
+import functools
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
@@ -41,6 +42,18 @@ DERIVED: tuple[str, ...] = (
     "osmolality_calculated", "osmolal_gap", "alveolar_po2", "aa_gradient", "aa_expected",
     "pf_ratio", "ph_at_temperature", "pco2_at_temperature", "po2_at_temperature",
 )
+
+#: Decimals each derived value is shown with (text and Markdown reports, the terminal
+#: app, batch CSV): the precision laboratories print the measured quantities with, two
+#: for the delta ratio, three for pH (common laboratory practice, no source).  ``check
+#: --json`` and batch JSON Lines and Parquet carry the unrounded value.
+DECIMALS: dict[str, int] = {
+    **dict.fromkeys(DERIVED, 1),
+    "delta_ratio": 2,
+    "ph_at_temperature": 3,
+    **dict.fromkeys(("osmolality_calculated", "osmolal_gap", "alveolar_po2", "aa_gradient",
+                     "aa_expected", "pf_ratio", "po2_at_temperature"), 0),
+}
 
 
 @dataclass(frozen=True)
@@ -156,8 +169,12 @@ class Results:
         self.settings = settings
         self.n = sum(p.screened.n for p in parts)
         self.refused = _join([p.screened.refused for p in parts])
-        self.reasons = _join([p.screened.reasons for p in parts])
         self._starts = np.array([p.start for p in parts])
+
+    @functools.cached_property
+    def reasons(self) -> np.ndarray:
+        """Object array: "" for accepted rows, the refusal reasons otherwise."""
+        return _join([p.screened.reasons for p in self.parts])
 
     def _locate(self, i: int) -> tuple[Part, int]:
         if not 0 <= i < self.n:
