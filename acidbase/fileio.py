@@ -649,6 +649,17 @@ def _floats(arr: pa.Array) -> np.ndarray:
     return np.asarray(pc.cast(arr, pa.float64()).to_numpy(zero_copy_only=False), dtype=np.float64)
 
 
+def _text_floats(arr: pa.Array) -> np.ndarray:
+    """Text cells cast to floats in one go; ``ArrowInvalid`` unless every cell is a
+    plain number.  Arrow's cast also reads the words "nan", "inf" and "infinity",
+    which are not laboratory values: a cell that gave a non-finite number counts as
+    not plain, so it goes through the value pattern and is refused."""
+    vals = _floats(arr)
+    if not np.isfinite(vals).all() and (~np.isfinite(vals) & _mask(pc.is_valid(arr))).any():
+        raise pa.ArrowInvalid("a cell is not a plain number")
+    return vals
+
+
 def parse_numeric(column: pa.Array | pa.ChunkedArray, decimal: str = ".") -> ParsedColumn:
     """Read a column of laboratory values (see the module docstring)."""
     if isinstance(column, pa.ChunkedArray):
@@ -671,7 +682,8 @@ def parse_numeric(column: pa.Array | pa.ChunkedArray, decimal: str = ".") -> Par
         return parse_numeric_many([column])[0]
     if decimal == ".":
         try:  # the common case: every cell a plain number, no spaces
-            return ParsedColumn(_floats(column), None, None, np.zeros(n, dtype=bool), column)
+            return ParsedColumn(_text_floats(column), None, None, np.zeros(n, dtype=bool),
+                                column)
         except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
             pass
     return _parse_cells(column, decimal)
@@ -696,7 +708,8 @@ def parse_numeric_many(columns: Sequence[pa.Array | pa.ChunkedArray],
             continue
         n = len(column)
         try:  # the common case: every cell a plain number, no spaces
-            out[i] = ParsedColumn(_floats(column), None, None, np.zeros(n, dtype=bool), column)
+            out[i] = ParsedColumn(_text_floats(column), None, None, np.zeros(n, dtype=bool),
+                                  column)
             continue
         except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
             pass
@@ -745,7 +758,7 @@ def _parse_cells(column: pa.Array, decimal: str) -> ParsedColumn:
         work = pc.replace_substring(work, ",", ".")
     if foreign is None or not foreign.any():
         try:  # the common case: every cell a plain number
-            return ParsedColumn(_floats(work), None, None, np.zeros(n, dtype=bool), text)
+            return ParsedColumn(_text_floats(work), None, None, np.zeros(n, dtype=bool), text)
         except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
             pass
     # Only the cells that are not plain numbers go through the full pattern (the

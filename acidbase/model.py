@@ -136,6 +136,10 @@ def _as_float(name: str, raw: Any, n: int) -> tuple[np.ndarray, np.ndarray]:
             out[i] = float(cell)
         except (TypeError, ValueError):
             bad[i] = True
+            continue
+        if isinstance(cell, str) and not np.isfinite(out[i]):  # "nan", "inf": not a value
+            out[i] = np.nan
+            bad[i] = True
     return out, bad
 
 

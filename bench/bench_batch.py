@@ -47,6 +47,7 @@ import synthetic  # noqa: E402
 
 import acidbase  # noqa: E402
 from acidbase.fields import NUMERIC  # noqa: E402
+from acidbase.results import DECIMALS  # noqa: E402
 
 
 def _median_time(fn, repeats: int) -> float:
@@ -138,7 +139,8 @@ def stages(path: str, chunk_rows: int = 8192) -> dict[str, float]:
     (``Results.table``), columns (the rest of a chunk's processing: to Arrow,
     refusals, qualifiers, review; measured as the whole chunk step minus the three
     before, run again on the same chunk), escape (formula escaping), write (CSV
-    formatting into memory).  Summed over the file; serial checks off.
+    formatting into memory); decimals (derived values as fixed-point text) before
+    escaping.  Summed over the file; serial checks off.
     """
     import io
 
@@ -149,8 +151,8 @@ def stages(path: str, chunk_rows: int = 8192) -> dict[str, float]:
 
     src = fileio.open_source(path, chunk_rows=chunk_rows)
     layout = fileio.map_headers(src.headers)
-    spent = dict.fromkeys(("read", "values", "kernel", "table", "columns", "escape", "write"),
-                          0.0)
+    spent = dict.fromkeys(("read", "values", "kernel", "table", "columns", "decimals", "escape",
+                           "write"), 0.0)
 
     def timed(key: str, fn):
         t0 = time.perf_counter()
@@ -174,6 +176,7 @@ def stages(path: str, chunk_rows: int = 8192) -> dict[str, float]:
         cols = {h: table[h] for h in src.headers}
         cols.update(out)
         tab = pa.table(cols)
+        tab, _ = timed("decimals", lambda: fileio.fixed_columns(tab, DECIMALS))
         escaped = set(batch.escaped_columns(src.headers))
         tab, _ = timed("escape", lambda: pa.table(
             [fileio.escape_formula(col) if name in escaped else col

@@ -284,3 +284,24 @@ def test_one_odd_cell_does_not_change_how_the_others_read():
     fast_v = fileio.parse_numeric(pa.array(cells)).values
     slow_v = fileio.parse_numeric(pa.array(cells + ["7.21 L"])).values
     assert slow_v[:4].tolist() == fast_v.tolist()
+
+
+@pytest.mark.parametrize("word", ["NaN", "nan", "inf", "-Infinity"])
+def test_number_words_are_refused_however_the_column_reads(word):
+    """Arrow's one-shot cast reads "nan" and "inf"; a laboratory value never is one. The
+    cell is refused whether the rest of its column is plain (one cast) or not."""
+    for cells in ([word, "7.40"], [word, "7.40", "7.21 L"], [word]):
+        p = fileio.parse_numeric(pa.array(cells))
+        assert p.bad.tolist()[0], cells
+        assert not p.bad[1:].any() and p.values[1] == 7.40 if len(cells) > 1 else True
+
+
+def test_number_words_are_refused_by_the_library_too():
+    import acidbase
+
+    r = acidbase.interpret_many({"ph": np.array(["nan", "7.4"], dtype=object), "pco2": [40, 40],
+                                 "hco3": [24, 24], "na": [140, 140], "cl": [104, 104],
+                                 "lactate": np.array(["inf", "1"], dtype=object)})
+    assert r.refused.tolist() == [True, False]
+    assert "'nan' is not a finite number" in r.reasons[0]
+    assert "'inf' is not a finite number" in r.reasons[0]
