@@ -300,13 +300,6 @@ def merged_reasons(engine_reasons: np.ndarray, cv: ChunkValues) -> dict[int, str
     return out
 
 
-def _blank(arr: pa.Array, mask: pa.Array) -> pa.Array:
-    """``arr`` with the rows of ``mask`` emptied ("" for text, null otherwise)."""
-    if pa.types.is_string(arr.type):
-        return pc.if_else(mask, pa.scalar("", pa.string()), arr)
-    return pc.if_else(mask, pa.scalar(None, arr.type), arr)
-
-
 # ---------------------------------------------------------------------------
 # Summary and report
 
@@ -773,7 +766,7 @@ def _process(table: pa.Table, layout: Layout, decimal: str, settings,
         refused[np.fromiter(mine, dtype=np.int64)] = True
     # Rows the reading refused but the kernel read (a bad optional value): no reading.
     blank = refused & ~engine_refused
-    bmask = pa.array(blank) if blank.any() else None
+    blanking = bool(blank.any())
     fired = res.fired
     review = _review_mask(fired, refused)
     out: dict[str, pa.Array] = {}
@@ -787,17 +780,21 @@ def _process(table: pa.Table, layout: Layout, decimal: str, settings,
             for i, text in mine.items():
                 reasons[i] = text
             arr = _sparse_text(reasons, refused)
-        elif isinstance(col, tuple):
+        elif isinstance(col, tuple):  # blanked rows read "" (text), as refused ones do
             indices, labels = col
+            if blanking:
+                labels = labels if "" in labels else [*labels, ""]
+                indices = np.where(blank, labels.index(""), indices)
             arr = pa.DictionaryArray.from_arrays(
                 pa.array(indices, type=pa.int32()), pa.array(labels, type=pa.string())
             ).cast(pa.string())
         elif col.dtype == object:
-            arr = pa.array(col, type=pa.string())
+            arr = pa.array(np.where(blank, "", col) if blanking else col, type=pa.string())
+        elif col.dtype.kind == "f":  # blanked rows are empty (null)
+            col = np.where(blank, np.nan, col) if blanking else col
+            arr = pa.array(col, mask=np.isnan(col))
         else:
-            arr = pa.array(col, mask=np.isnan(col)) if col.dtype.kind == "f" else pa.array(col)
-        if bmask is not None and key not in ("status", "reason"):
-            arr = _blank(arr, bmask)
+            arr = pa.array(col, mask=blank if blanking else None)
         out[key] = arr
     quals, flags = qualifier_columns(cv, n)
     if checker is not None:

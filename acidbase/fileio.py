@@ -46,6 +46,7 @@ from . import loinc
 from . import units as _units
 from .errors import AcidBaseError, UnitError
 from .fields import BY_NAME, REQUIRED, TEXT_FIELDS
+from .model import choice_code
 
 #: Fields that are text, read as given: choices and identifiers.
 CHOICE_FIELDS: tuple[str, ...] = ("sample_type", "hco3_source")
@@ -814,20 +815,20 @@ def parse_choice(column: pa.Array | pa.ChunkedArray, allowed: Sequence[str],
 
     Returns ``(codes, bad, text)``: int8 codes (empty cells take ``default``), a mask
     of cells that are none of ``allowed`` (they get ``default`` and refuse the row),
-    and the cells as text for messages.  Case and surrounding spaces are ignored;
-    "none" and "nan" count as empty, as in ``acidbase.model.screen``.
+    and the cells as text for messages.  Each distinct cell text is read once, by
+    the library's own rule (``acidbase.model.choice_code``: case and surrounding
+    spaces ignored, "none" and "nan" empty), so a file and ``check`` agree.
     """
     if isinstance(column, pa.ChunkedArray):
         column = column.combine_chunks()
     text = column if pa.types.is_string(column.type) else pc.cast(column, pa.string())
-    work = pc.utf8_lower(pc.utf8_trim_whitespace(text))
-    empty = _mask(pc.or_kleene(pc.is_null(work), pc.is_in(work, value_set=pa.array(
-        ["", "none", "nan"]))))
-    idx = pc.index_in(work, value_set=pa.array(list(allowed)))
-    found = _mask(pc.is_valid(idx))
-    codes = np.asarray(pc.fill_null(idx, allowed.index(default)).to_numpy(zero_copy_only=False))
-    codes = np.where(found, codes, allowed.index(default)).astype(np.int8)
-    return codes, ~found & ~empty, text
+    encoded = pc.dictionary_encode(text)
+    default_code = list(allowed).index(default)
+    pairs = [choice_code(v, tuple(allowed), default_code) for v in encoded.dictionary.to_pylist()]
+    lookup = np.array([c for c, _ in pairs] + [default_code], dtype=np.int8)
+    refused = np.array([b for _, b in pairs] + [False], dtype=bool)
+    idx = np.asarray(pc.fill_null(encoded.indices, len(pairs)).to_numpy(zero_copy_only=False))
+    return lookup[idx], refused[idx], text
 
 
 _ISO = (r"^(?P<date>\d{4}-\d{2}-\d{2})[T ](?P<hm>\d{2}:\d{2})(?::(?P<s>\d{2})(?:[.,]\d+)?)?"

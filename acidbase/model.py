@@ -162,7 +162,7 @@ def choice_codes(raw: Any, n: int, allowed: tuple[str, ...], default: str) -> tu
         return np.where(bad, default_code, arr).astype(np.int8), bad
     first = arr.reshape(-1)[0] if n else None
     if n and isinstance(first, str) and bool((arr == first).all()):
-        code, bad = _choice_code(first, allowed, default_code)
+        code, bad = choice_code(first, allowed, default_code)
         return np.full(n, code, dtype=np.int8), np.full(n, bad)
     flat = arr.reshape(-1)
     if flat.dtype.kind in "OU" and n:
@@ -198,10 +198,10 @@ def _choice_lookup(flat: np.ndarray, allowed: tuple[str, ...],
     cells = flat.tolist()
     try:
         for cell in set(cells) - table.keys():
-            table[cell] = _choice_code(cell, allowed, default_code)
+            table[cell] = choice_code(cell, allowed, default_code)
         pairs = [table[c] for c in cells]
     except TypeError:  # unhashable cells (lists and the like): no cache
-        pairs = [_choice_code(c, allowed, default_code) for c in cells]
+        pairs = [choice_code(c, allowed, default_code) for c in cells]
     codes = np.fromiter((p[0] for p in pairs), dtype=np.int8, count=len(pairs))
     bad = np.fromiter((p[1] for p in pairs), dtype=bool, count=len(pairs))
     return codes, bad
@@ -211,7 +211,9 @@ def _choice_lookup(flat: np.ndarray, allowed: tuple[str, ...],
 _CHOICE_CACHE: dict[tuple[str, ...], dict[object, tuple[int, bool]]] = {}
 
 
-def _choice_code(cell: object, allowed: tuple[str, ...], default_code: int) -> tuple[int, bool]:
+def choice_code(cell: object, allowed: tuple[str, ...], default_code: int) -> tuple[int, bool]:
+    """(code, refused) of one choice cell: case and surrounding spaces ignored;
+    empty, "none" and "nan" take the default; any other word is refused."""
     if cell is None or (isinstance(cell, float) and np.isnan(cell)):
         return default_code, False
     text = str(cell).strip().lower()
