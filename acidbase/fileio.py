@@ -28,6 +28,7 @@ through; no row is parsed by a Python loop on the CSV path.
 from __future__ import annotations
 
 import csv
+import functools
 import io
 import json
 import os
@@ -631,6 +632,9 @@ class ParsedColumn:
     """Rows whose cell is not a number (the row is refused)."""
     text: pa.Array
     """The cells as text (for messages)."""
+    plain: bool = False
+    """Every cell is empty or a bare number (read by one cast of the raw text): formula
+    escaping would change none of them."""
 
     @property
     def censored(self) -> np.ndarray:
@@ -670,10 +674,11 @@ def parse_numeric(column: pa.Array | pa.ChunkedArray, decimal: str = ".") -> Par
     if pa.types.is_floating(t) or pa.types.is_integer(t) or pa.types.is_decimal(t):
         vals = _floats(column)
         vals = np.where(np.isnan(vals), np.nan, vals)
-        return ParsedColumn(vals, None, None, np.zeros(n, dtype=bool), pc.cast(column, pa.string()))
+        return ParsedColumn(vals, None, None, np.zeros(n, dtype=bool), pc.cast(column, pa.string()),
+                            plain=True)
     if pa.types.is_null(t):
         return ParsedColumn(np.full(n, np.nan), None, None, np.zeros(n, dtype=bool),
-                            pa.nulls(n, pa.string()))
+                            pa.nulls(n, pa.string()), plain=True)
     if not (pa.types.is_string(t) or pa.types.is_large_string(t)):
         text = pc.cast(column, pa.string()) if not pa.types.is_boolean(t) else \
             pc.if_else(column, "true", "false")
@@ -684,7 +689,7 @@ def parse_numeric(column: pa.Array | pa.ChunkedArray, decimal: str = ".") -> Par
     if decimal == ".":
         try:  # the common case: every cell a plain number, no spaces
             return ParsedColumn(_text_floats(column), None, None, np.zeros(n, dtype=bool),
-                                column)
+                                column, plain=True)
         except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
             pass
     return _parse_cells(column, decimal)
@@ -710,7 +715,7 @@ def parse_numeric_many(columns: Sequence[pa.Array | pa.ChunkedArray],
         n = len(column)
         try:  # the common case: every cell a plain number, no spaces
             out[i] = ParsedColumn(_text_floats(column), None, None, np.zeros(n, dtype=bool),
-                                  column)
+                                  column, plain=True)
             continue
         except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
             pass
@@ -723,7 +728,7 @@ def parse_numeric_many(columns: Sequence[pa.Array | pa.ChunkedArray],
             continue
         rest = np.flatnonzero(_mask(pc.is_valid(column)) & ~quick)
         if rest.size == 0:
-            out[i] = ParsedColumn(vals, None, None, np.zeros(n, dtype=bool), column)
+            out[i] = ParsedColumn(vals, None, None, np.zeros(n, dtype=bool), column, plain=True)
         else:
             pending.append((i, column, vals, rest))
     if pending:
@@ -810,12 +815,13 @@ def parse_text(column: pa.Array | pa.ChunkedArray) -> np.ndarray:
 
 
 def parse_choice(column: pa.Array | pa.ChunkedArray, allowed: Sequence[str],
-                 default: str) -> tuple[np.ndarray, np.ndarray, pa.Array]:
+                 default: str) -> tuple[np.ndarray, np.ndarray, pa.Array, bool]:
     """A choice column as integer codes into ``allowed`` (the kernel's encoding).
 
-    Returns ``(codes, bad, text)``: int8 codes (empty cells take ``default``), a mask
-    of cells that are none of ``allowed`` (they get ``default`` and refuse the row),
-    and the cells as text for messages.  Each distinct cell text is read once, by
+    Returns ``(codes, bad, text, plain)``: int8 codes (empty cells take ``default``),
+    a mask of cells that are none of ``allowed`` (they get ``default`` and refuse the
+    row), the cells as text for messages, and whether no distinct text is one that
+    formula escaping would change.  Each distinct cell text is read once, by
     the library's own rule (``acidbase.model.choice_code``: case and surrounding
     spaces ignored, "none" and "nan" empty), so a file and ``check`` agree.
     """
@@ -828,7 +834,8 @@ def parse_choice(column: pa.Array | pa.ChunkedArray, allowed: Sequence[str],
     lookup = np.array([c for c, _ in pairs] + [default_code], dtype=np.int8)
     refused = np.array([b for _, b in pairs] + [False], dtype=bool)
     idx = np.asarray(pc.fill_null(encoded.indices, len(pairs)).to_numpy(zero_copy_only=False))
-    return lookup[idx], refused[idx], text
+    plain = not pc.any(pc.is_valid(escape_danger(encoded.dictionary))).as_py()
+    return lookup[idx], refused[idx], text, plain
 
 
 _ISO = (r"^(?P<date>\d{4}-\d{2}-\d{2})[T ](?P<hm>\d{2}:\d{2})(?::(?P<s>\d{2})(?:[.,]\d+)?)?"
@@ -963,6 +970,12 @@ def _round_scaled(a: np.ndarray, scale: float) -> np.ndarray:
     return k
 
 
+@functools.lru_cache(maxsize=8)
+def _nulls(n: int) -> pa.Array:
+    """An all-null text column (immutable, so one per length is shared)."""
+    return pa.nulls(n, pa.string())
+
+
 def format_fixed(values: np.ndarray, decimals: int) -> pa.Array:
     """Numbers as text with exactly ``decimals`` decimals (``12.3``), NaN as null.
 
@@ -977,7 +990,7 @@ def format_fixed(values: np.ndarray, decimals: int) -> pa.Array:
     finite = np.isfinite(x)
     count = int(np.count_nonzero(finite))
     if count == 0:
-        return pa.nulls(n, pa.string())
+        return _nulls(n)
     v = x[finite] if count < n else x
     scaled = _round_scaled(np.abs(v), 10.0 ** decimals)
     if scaled.max() >= _FIXED_LIMIT:
@@ -1023,35 +1036,54 @@ def format_fixed(values: np.ndarray, decimals: int) -> pa.Array:
 
 
 def fixed_columns(table: pa.Table, decimals: Mapping[str, int]) -> pa.Table:
-    """``table`` with its floating-point columns named in ``decimals`` as fixed text."""
-    if not decimals:
-        return table
-    cols, fields = [], []
-    for name, col in zip(table.column_names, table.columns):
+    """``table`` with its floating-point columns named in ``decimals`` as fixed text.
+
+    Columns with the same decimals are formatted in one ``format_fixed`` call on
+    their values end to end, then sliced apart (slices share the text buffers):
+    the fixed cost of a call is paid once per group, not once per column.
+    """
+    groups: dict[int, list[str]] = {}
+    for name in table.column_names:
         d = decimals.get(name)
-        if d is not None and pa.types.is_floating(col.type):
-            arr = col.combine_chunks() if isinstance(col, pa.ChunkedArray) else col
-            col = format_fixed(np.asarray(arr.to_numpy(zero_copy_only=False), dtype=np.float64), d)
-            fields.append(pa.field(name, pa.string()))
-        else:
-            fields.append(table.schema.field(name))
-        cols.append(col)
+        if d is not None and pa.types.is_floating(table.schema.field(name).type):
+            groups.setdefault(d, []).append(name)
+    if not groups:
+        return table
+    n = table.num_rows
+    text: dict[str, pa.Array] = {}
+    for d, names in groups.items():
+        values = np.concatenate([
+            np.asarray(table[name].combine_chunks().to_numpy(zero_copy_only=False),
+                       dtype=np.float64) for name in names]) if n else np.zeros(0)
+        joined = format_fixed(values, d)
+        for k, name in enumerate(names):
+            text[name] = joined.slice(k * n, n)
+    cols = [text.get(name, col) for name, col in zip(table.column_names, table.columns)]
+    fields = [pa.field(name, pa.string()) if name in text else table.schema.field(name)
+              for name in table.column_names]
     return pa.table(cols, schema=pa.schema(fields))
+
+
+def escape_danger(column: pa.Array | pa.ChunkedArray) -> pa.Array:
+    """True where a text cell is one a spreadsheet would run as a formula (OWASP); null
+    (never true) elsewhere, so ``is_valid`` of the result says "some cell is"."""
+    # The first byte decides (all the characters in question are ASCII).
+    first = pc.binary_slice(column.cast(pa.binary()), 0, 1)
+    starts = pc.is_in(first, value_set=_FORMULA_BYTES)
+    if not pc.any(starts).as_py():  # the common case, without a regular expression
+        return pa.nulls(len(column), pa.bool_())
+    danger = pc.and_(starts, pc.invert(pc.match_substring_regex(column, _PLAIN_NUMBER)))
+    return pc.if_else(danger, True, pa.scalar(None, pa.bool_()))
 
 
 def escape_formula(column: pa.Array | pa.ChunkedArray) -> pa.Array | pa.ChunkedArray:
     """Prefix ``'`` to text cells a spreadsheet would run as a formula (OWASP)."""
     if not (pa.types.is_string(column.type) or pa.types.is_large_string(column.type)):
         return column
-    # The first byte decides (all the characters in question are ASCII).
-    first = pc.binary_slice(column.cast(pa.binary()), 0, 1)
-    starts = pc.is_in(first, value_set=_FORMULA_BYTES)
-    if not pc.any(starts).as_py():  # the common case, without a regular expression
+    danger = escape_danger(column)
+    if not pc.any(pc.is_valid(danger)).as_py():
         return column
-    danger = pc.and_(starts, pc.invert(pc.match_substring_regex(column, _PLAIN_NUMBER)))
-    if not pc.any(danger).as_py():
-        return column
-    return pc.if_else(danger, pc.binary_join_element_wise("'", column, ""), column)
+    return pc.if_else(pc.is_valid(danger), pc.binary_join_element_wise("'", column, ""), column)
 
 
 def output_format(path: str | None, given: str | None) -> str:
@@ -1118,12 +1150,18 @@ class Writer:
         elif self.fmt == "parquet":
             self._writer = pq.ParquetWriter(self._sink, self.schema)
 
-    def encode(self, table: pa.Table) -> tuple[pa.Schema, bytes | pa.Table]:
-        """``table`` made ready for ``put``: CSV or JSON Lines as bytes, Parquet as is."""
+    def encode(self, table: pa.Table,
+               plain: frozenset[str] = frozenset()) -> tuple[pa.Schema, bytes | pa.Table]:
+        """``table`` made ready for ``put``: CSV or JSON Lines as bytes, Parquet as is.
+
+        ``plain``: columns of this table the caller has read cell by cell and found
+        to hold only numbers or its own vocabulary, so escaping would change nothing.
+        """
         if self.fmt == "csv":
             table = fixed_columns(table, self.decimals)
-            table = pa.table([escape_formula(c) if self.escape is None or name in self.escape
-                              else c for name, c in zip(table.column_names, table.columns)],
+            table = pa.table([escape_formula(c) if (self.escape is None or name in self.escape)
+                              and name not in plain else c
+                              for name, c in zip(table.column_names, table.columns)],
                              schema=table.schema)
             sink = pa.BufferOutputStream()
             pa_csv.write_csv(table, sink, self._csv_options(False))
@@ -1169,7 +1207,7 @@ class Writer:
 __all__ = [
     "ALL_FIELDS", "BatchInputError", "Dialect", "LAB_FLAGS", "Layout", "ParsedColumn", "Source",
     "TIME_INVALID", "TIME_MISSING", "TIME_NAIVE", "TIME_ZONED", "Writer", "csv_sample",
-    "detect_decimal", "detect_format", "escape_formula", "fixed_columns", "format_fixed",
+    "detect_decimal", "detect_format", "escape_danger", "escape_formula", "fixed_columns", "format_fixed",
     "map_headers", "open_source", "output_format", "parse_choice", "parse_numeric",
     "parse_numeric_many", "parse_text", "parse_times", "read_mapping",
     "rechunk",

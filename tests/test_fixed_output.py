@@ -197,3 +197,22 @@ def test_every_numeric_field_has_a_parse_path():
     # parse_numeric_many keeps the order of the columns it is given
     arrays = [pa.array(["1", "x"]) for _ in NUMERIC]
     assert len(fileio.parse_numeric_many(arrays)) == len(NUMERIC)
+
+
+def test_columns_read_as_plain_still_escape_every_dangerous_cell(tmp_path):
+    """Escaping is skipped only for columns read in full as bare numbers or allowed
+    words; a tab before a value or a choice, or a formula, is still escaped (OWASP)."""
+    src = tmp_path / "in.csv"
+    src.write_text("ph,pco2,hco3,na,cl,sample_type\n"
+                   "7.40,40,24.2,140,104,arterial\n"
+                   '"\t7.38",41,24.1,140,104,"\tvenous"\n'
+                   "=1+2,40,24,140,104,arterial\n"
+                   "7.41,-40,24,140,104,arterial\n")
+    out = tmp_path / "out.csv"
+    assert cli.main(["batch", str(src), "-o", str(out), "--quiet",
+                     "--summary", str(tmp_path / "s.txt")]) == 0
+    rows = list(csv.DictReader(out.open(newline="")))
+    assert [r["ph"] for r in rows] == ["7.40", "'\t7.38", "'=1+2", "7.41"]
+    assert rows[1]["sample_type"] == "'\tvenous"
+    assert rows[3]["pco2"] == "-40"  # a plain negative number is left alone
+    assert rows[0]["sample_type"] == "arterial"
