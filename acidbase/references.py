@@ -193,6 +193,11 @@ _ALL = [
              "title from memory"),
     Citation("owasp_csv", "OWASP Foundation", "CSV Injection; ASVS requirement 1.2.10",
              "OWASP Community pages and Application Security Verification Standard", None),
+    Citation("dekker_1971", "Dekker TJ",
+             "A floating-point technique for extending the available precision",
+             "Numerische Mathematik 18:224-242", 1971, "secondary",
+             "the error-free product used to round derived values for CSV output; title and "
+             "pages from memory"),
     Citation("hl7_0078", "Health Level Seven International",
              "HL7 Version 2 table 0078, interpretation codes (abnormal flags)",
              "HL7 v2.x standard", None, "secondary"),
