@@ -226,22 +226,22 @@ def read_values(table: pa.Table, layout: Layout, decimal: str) -> ChunkValues:
         columns[spec.name] = p.values
         unit = layout.units.get(spec.name, spec.unit)
         if p.bad.any():
-            text = p.text.to_pylist()
-            for i in np.flatnonzero(p.bad).tolist():
+            rows = np.flatnonzero(p.bad)
+            for i, cell in zip(rows.tolist(), p.text.take(pa.array(rows)).to_pylist()):
                 problems.setdefault(i, []).append(
-                    f"{spec.title} ({spec.name}) {text[i]!r} is not a number (expected a number "
+                    f"{spec.title} ({spec.name}) {cell!r} is not a number (expected a number "
                     f"in {unit}, optionally with < > <= >= before it or a flag "
                     f"{' '.join(fileio.LAB_FLAGS)} after it)")
                 skip.setdefault(i, set()).add(spec.name)
         if spec.required and p.comparator is not None:
             cens = p.censored
             if cens.any():
-                text = p.text.to_pylist()
+                rows = np.flatnonzero(cens)
                 f = _units.factor(spec.name, spec.kind, unit)
                 lo, hi = spec.accepted
-                for i in np.flatnonzero(cens).tolist():
+                for i, cell in zip(rows.tolist(), p.text.take(pa.array(rows)).to_pylist()):
                     problems.setdefault(i, []).append(
-                        f"{spec.title} ({spec.name}) {text[i].strip()!r} {unit} is a censored "
+                        f"{spec.title} ({spec.name}) {cell.strip()!r} {unit} is a censored "
                         f"value (beyond the reporting limit), but a required field needs an exact "
                         f"number (accepted range {lo / f:.4g} to {hi / f:.4g} {unit})")
                     skip.setdefault(i, set()).add(spec.name)
@@ -255,11 +255,11 @@ def read_values(table: pa.Table, layout: Layout, decimal: str) -> ChunkValues:
         if plain:
             plain_fields.add(name)
         if bad.any():
-            cells = text.to_pylist()
-            for i in np.flatnonzero(bad).tolist():
+            rows = np.flatnonzero(bad)
+            for i, cell in zip(rows.tolist(), text.take(pa.array(rows)).to_pylist()):
                 # The kernel's own message for a choice it does not know.
                 problems.setdefault(i, []).append(str(Problem(
-                    name, title, cells[i], "", kind=f"not one of {', '.join(allowed)}")))
+                    name, title, cell, "", kind=f"not one of {', '.join(allowed)}")))
     plain_fields |= {name for name, p in parsed.items() if p.plain}
     return ChunkValues(columns, parsed, problems, skip, plain_fields)
 
@@ -800,6 +800,7 @@ def _process(table: pa.Table, layout: Layout, decimal: str, settings,
     # Rows the reading refused but the kernel read (a bad optional value): no reading.
     blank = refused & ~engine_refused
     blanking = bool(blank.any())
+    blank_rows = np.flatnonzero(blank)
     fired = res.fired
     review = _review_mask(fired, refused)
     out: dict[str, pa.Array] = {}
@@ -817,14 +818,17 @@ def _process(table: pa.Table, layout: Layout, decimal: str, settings,
             indices, labels = col
             if blanking:
                 labels = labels if "" in labels else [*labels, ""]
-                indices = np.where(blank, labels.index(""), indices)
+                indices = indices.copy()
+                indices[blank_rows] = labels.index("")
             arr = pa.DictionaryArray.from_arrays(
                 pa.array(indices, type=pa.int32()), pa.array(labels, type=pa.string())
             ).cast(pa.string())
         elif col.dtype == object:
             arr = pa.array(np.where(blank, "", col) if blanking else col, type=pa.string())
         elif col.dtype.kind == "f":  # blanked rows are empty (null)
-            col = np.where(blank, np.nan, col) if blanking else col
+            if blanking:
+                col = col.copy()
+                col[blank_rows] = np.nan
             arr = pa.array(col, mask=np.isnan(col))
         else:
             arr = pa.array(col, mask=blank if blanking else None)

@@ -952,9 +952,8 @@ def _round_scaled(a: np.ndarray, scale: float) -> np.ndarray:
 
     The product in floating point can land exactly on a half (37.45 x 10 gives
     374.5, though the double nearest 37.45 lies just above it); there the exact
-    product's rounding error, from Dekker's error-free product (Dekker, "A
-    floating-point technique for extending the available precision", Numerische
-    Mathematik 18, 1971), says which way, and only an exact tie is rounded half to
+    product's rounding error, from Dekker's error-free product [dekker_1971], says
+    which way, and only an exact tie is rounded half to
     even, as Python's ``format`` does.  ``scale`` is a small power of ten.
     """
     p = a * scale

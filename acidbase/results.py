@@ -359,12 +359,15 @@ def _combine(mask: np.ndarray, names: list[str]) -> tuple[np.ndarray, list[str]]
     n = mask.shape[1]
     if n == 0:
         return np.zeros(0, dtype=np.int32), []
-    packed = np.packbits(mask, axis=0)  # (bytes, n)
-    width = packed.shape[0]
-    pad = (-width) % 8
-    if pad:
-        packed = np.concatenate([packed, np.zeros((pad, n), dtype=np.uint8)])
-    words = np.ascontiguousarray(packed.T).view(np.uint64)  # (n, k)
+    # One 64-bit word per 64 names: bit r of word r // 64 is name r (a shift and an or
+    # per name; packbits along the short axis costs several times more).
+    cols = []
+    for w in range(0, mask.shape[0], 64):
+        word = np.zeros(n, dtype=np.uint64)
+        for r in range(w, min(w + 64, mask.shape[0])):
+            word |= mask[r].astype(np.uint64) << np.uint64(r - w)
+        cols.append(word)
+    words = np.stack(cols, axis=1)  # (n, k)
     if words.shape[1] == 1:
         uniques, inverse = np.unique(words[:, 0], return_inverse=True)
         first = np.empty(len(uniques), dtype=np.int64)
