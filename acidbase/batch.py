@@ -471,12 +471,12 @@ def summary_text(t: Tally, notes: list[str]) -> str:
             by[process] += c
         lines.append("  processes: " + "; ".join(
             f"{p} {c:,} (primary {t.processes[(p, 'primary')]:,})"
-            for p, c in by.most_common()))
+            for p, c in _ranked(by)))
     for title, counter in (("finding codes", t.findings), ("laboratory flags", t.lab_flags),
                            ("qualifiers", t.qualifiers), ("serial", t.serial_status),
                            ("serial flags", t.serial_codes), ("refusal reasons", t.reasons)):
         if counter:
-            lines.append(f"  {title}: " + "; ".join(f"{k} {c:,}" for k, c in counter.most_common()))
+            lines.append(f"  {title}: " + "; ".join(f"{k} {c:,}" for k, c in _ranked(counter)))
     lines.append(CAUTION)
     return "\n".join(lines)
 
@@ -486,13 +486,19 @@ def summary_json(t: Tally, notes: list[str]) -> str:
         "rows": t.rows, "interpreted": t.rows - t.refused, "refused": t.refused,
         "needs_review": t.review, "notes": notes,
         "processes": {f"{p} {r}": c for (p, r), c in sorted(t.processes.items())},
-        "findings": dict(t.findings.most_common()), "lab_flags": dict(t.lab_flags.most_common()),
-        "qualifiers": dict(t.qualifiers.most_common()),
-        "serial_status": dict(t.serial_status.most_common()),
-        "serial_codes": dict(t.serial_codes.most_common()),
-        "refusal_reasons": dict(t.reasons.most_common()), "caution": CAUTION,
+        "findings": dict(_ranked(t.findings)), "lab_flags": dict(_ranked(t.lab_flags)),
+        "qualifiers": dict(_ranked(t.qualifiers)),
+        "serial_status": dict(_ranked(t.serial_status)),
+        "serial_codes": dict(_ranked(t.serial_codes)),
+        "refusal_reasons": dict(_ranked(t.reasons)), "caution": CAUTION,
     }
     return json.dumps(doc, indent=2, ensure_ascii=False)
+
+
+def _ranked(counter: Counter) -> list[tuple]:
+    """Most common first, ties by name: the same file gives the same summary whatever
+    the chunk size or the order in which chunks were counted."""
+    return sorted(counter.items(), key=lambda kv: (-kv[1], str(kv[0])))
 
 
 def _md_cell(x: str) -> str:
@@ -514,7 +520,7 @@ def report_markdown(t: Tally, notes: list[str], source: str) -> str:
     for title, counter in sections:
         if counter:
             out += ["", f"## {title}", "", "| | rows |", "|---|---:|"]
-            out += [f"| {_md_cell(k)} | {c:,} |" for k, c in counter.most_common()]
+            out += [f"| {_md_cell(k)} | {c:,} |" for k, c in _ranked(counter)]
     out += ["", f"## Rows that need review (first {FLAGGED_LISTED})", ""]
     if t.flagged:
         keys = list(t.flagged[0])
@@ -533,7 +539,7 @@ def report_html(t: Tally, notes: list[str], source: str) -> str:
 
     def table(counter: Counter) -> str:
         rows = "".join(f"<tr><td>{e(str(k))}</td><td>{c:,}</td></tr>"
-                       for k, c in counter.most_common())
+                       for k, c in _ranked(counter))
         return f"<table><tr><th></th><th>rows</th></tr>{rows}</table>"
 
     parts = ["<!DOCTYPE html><html><head><meta charset='utf-8'><title>Batch check report</title>"

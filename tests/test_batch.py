@@ -238,6 +238,21 @@ def test_small_chunks_give_the_same_output_as_one_chunk(tmp_path, capsys):
     assert len(rows_of(many)) == 54
 
 
+def test_chunks_on_worker_threads_keep_rows_counts_and_report_as_one_chunk(tmp_path, capsys):
+    """Chunks are worked on two threads and put back in file order: the rows, the
+    summary's counts and the report's flagged rows are those of a one-chunk run."""
+    outs = {}
+    for label, extra in (("one", []), ("many", ["--chunk-rows", "2"])):
+        out, summary, report = (tmp_path / f"{label}.csv", tmp_path / f"{label}.json",
+                                tmp_path / f"{label}.md")
+        assert batch(capsys, DATA / "mixed.csv", "-o", out, "--summary", summary,
+                     "--report", report, *extra)[0] == 0
+        outs[label] = (out.read_bytes(), json.loads(summary.read_text()), report.read_text())
+    assert outs["one"][0] == outs["many"][0]
+    assert outs["one"][1] == outs["many"][1]
+    assert outs["one"][2] == outs["many"][2].replace(str(tmp_path / "many"), str(tmp_path / "one"))
+
+
 # -- serial through the command -----------------------------------------------------------
 
 def test_serial_checks_on_an_unsorted_file(tmp_path, capsys):
