@@ -216,3 +216,48 @@ def test_columns_read_as_plain_still_escape_every_dangerous_cell(tmp_path):
     assert rows[1]["sample_type"] == "'\tvenous"
     assert rows[3]["pco2"] == "-40"  # a plain negative number is left alone
     assert rows[0]["sample_type"] == "arterial"
+
+
+# -- JSON Lines built column by column ---------------------------------------------------
+
+TEXT = st.text(alphabet=st.characters(codec="utf-8", exclude_categories=("Cs",)), max_size=12)
+
+
+@settings(max_examples=150, deadline=None)
+@given(st.lists(st.tuples(st.none() | TEXT,
+                          st.none() | st.floats(allow_infinity=False),
+                          st.none() | st.integers(-10**12, 10**12),
+                          st.none() | st.booleans()), min_size=1, max_size=20))
+def test_jsonl_rows_read_back_as_pythons_json_of_the_same_rows(rows):
+    """The reference is Python's json module: each line json.loads to the row (NaN as
+    null), and for numbers of the size derived values have (Arrow and Python choose
+    different forms for very small or large ones: 1e-05, 1e+10) the text is
+    json.dumps's, byte for byte."""
+    import json
+
+    table = pa.table({"text": pa.array([r[0] for r in rows], type=pa.string()),
+                      "number": pa.array([r[1] for r in rows], type=pa.float64()),
+                      "count": pa.array([r[2] for r in rows], type=pa.int64()),
+                      "flag": pa.array([r[3] for r in rows], type=pa.bool_())})
+    lines = fileio.jsonl_bytes(table).decode("utf-8").split("\n")
+    assert lines[-1] == "" and len(lines) == len(rows) + 1
+    for line, (text, number, count, flag) in zip(lines, rows):
+        want = {"text": text, "number": None if number is None or math.isnan(number) else number,
+                "count": count, "flag": flag}
+        assert json.loads(line) == want
+        if want["number"] is None or 1e-3 <= abs(want["number"]) < 1e6:
+            assert line == json.dumps(want, ensure_ascii=False)
+
+
+def test_jsonl_of_other_types_goes_through_json_dumps():
+    import datetime as dt
+    import json
+
+    table = pa.table({"when": pa.array([dt.datetime(2026, 1, 1, 8, 30)]), "v": [1.5]})
+    assert fileio.jsonl_bytes(table).decode() == json.dumps(
+        {"when": "2026-01-01 08:30:00", "v": 1.5}) + "\n"
+
+
+def test_jsonl_of_one_column_and_of_no_rows():
+    assert fileio.jsonl_bytes(pa.table({"a": ["x"]})) == b'{"a": "x"}\n'
+    assert fileio.jsonl_bytes(pa.table({"a": pa.array([], type=pa.string())})) == b""
