@@ -619,9 +619,9 @@ def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.Seri
     rows = 0
     for table in src.chunks(wanted):
         values = {}
-        for f in fields_used:
+        many = fileio.parse_numeric_many([table[col_of[f]] for f in fields_used], decimal)
+        for f, p in zip(fields_used, many):
             spec = BY_NAME[f]
-            p = fileio.parse_numeric(table[col_of[f]], decimal)
             unit = layout.units.get(f, spec.unit)
             v = p.values * _units.factor(f, spec.kind, unit)
             lo, hi = spec.accepted
