@@ -22,7 +22,9 @@ import html
 import json
 import os
 import re
+import shutil
 import sys
+import tempfile
 import time
 from collections import Counter, deque
 from concurrent.futures import Future, ThreadPoolExecutor
@@ -64,7 +66,8 @@ def configure_parser(p: argparse.ArgumentParser) -> None:
         "Check every panel in a file (CSV, JSON Lines or Parquet) and write one output row "
         "per input row, in input order, with status, reason, findings and serial checks. "
         + CAUTION)
-    p.add_argument("input", metavar="INPUT", help="panel file (.csv, .jsonl, .parquet)")
+    p.add_argument("input", metavar="INPUT",
+                   help="panel file (.csv, .jsonl, .parquet), or - for standard input")
     p.add_argument("-o", "--output", metavar="OUTPUT",
                    help="output file (.csv, .jsonl, .parquet); default: CSV on stdout")
     g = p.add_argument_group("reading")
@@ -660,7 +663,8 @@ def _lean_allocators() -> None:
             pass
 
 
-def _run(args: argparse.Namespace) -> int:
+def _run(args: argparse.Namespace, label: str) -> int:
+    """The run; ``label`` names the input in messages and the report."""
     _lean_allocators()
     units = _pairs(args.unit, "unit")
     deltas = _delta_overrides(args.delta)
@@ -767,7 +771,7 @@ def _run(args: argparse.Namespace) -> int:
         while pending:
             finish(pending.popleft().result())
         if done == 0:
-            raise BatchInputError(f"{args.input}: no rows")
+            raise BatchInputError(f"{label}: no rows")
         ok = True
     finally:
         pool.shutdown(wait=True, cancel_futures=True)
@@ -783,8 +787,8 @@ def _run(args: argparse.Namespace) -> int:
     else:
         print(text, file=sys.stderr)
     if args.report:
-        doc = report_html(tally, notes, args.input) if args.report.lower().endswith(
-            (".html", ".htm")) else report_markdown(tally, notes, args.input)
+        doc = report_html(tally, notes, label) if args.report.lower().endswith(
+            (".html", ".htm")) else report_markdown(tally, notes, label)
         with open(args.report, "w", encoding="utf-8") as f:
             f.write(doc)
     return EXIT_OK
@@ -882,17 +886,43 @@ def _sparse_text(col: np.ndarray, where: np.ndarray) -> pa.Array:
     return pc.fill_null(pc.take(values, pa.array(pos, mask=pos < 0)), "")
 
 
+STDIN_LABEL = "standard input"
+
+
+def _spool_stdin(folder: str) -> str:
+    """Standard input copied to a file in ``folder`` (the serial checks read the input
+    twice, and format and dialect are sniffed from its start); its path."""
+    path = os.path.join(folder, "stdin")
+    with open(path, "wb") as f:
+        shutil.copyfileobj(sys.stdin.buffer, f, 1 << 20)
+    return path
+
+
 def run(args: argparse.Namespace) -> int:
-    """Run ``acidbase batch``; 0 when it ran, 2 when it could not (message on stderr)."""
+    """Run ``acidbase batch``; 0 when it ran, 2 when it could not (message on stderr).
+
+    INPUT ``-`` reads standard input, spooled to a temporary file first."""
+    spool = None
+    shown = args.input
     try:
-        return _run(args)
+        if args.input == "-":
+            spool = tempfile.TemporaryDirectory(prefix="acidbase-stdin-")
+            args.input = _spool_stdin(spool.name)
+        return _run(args, STDIN_LABEL if spool else args.input)
     except AcidBaseError as e:  # BatchInputError, and the library's own (settings, units)
-        print(f"acidbase batch: could not run: {e}", file=sys.stderr)
+        message = str(e)
     except OSError as e:
         where = f" {e.filename}" if getattr(e, "filename", None) else ""
-        print(f"acidbase batch: could not run:{where} {e.strerror or e}", file=sys.stderr)
+        message = f"{where.strip()} {e.strerror or e}".strip()
     except (pa.ArrowInvalid, pa.ArrowTypeError, UnicodeDecodeError) as e:
-        print(f"acidbase batch: could not run: the file could not be read ({e})", file=sys.stderr)
+        message = f"the file could not be read ({e})"
+    finally:
+        if spool is not None:
+            spool.cleanup()
+    if spool is not None:
+        message = message.replace(args.input, STDIN_LABEL)
+        args.input = shown
+    print(f"acidbase batch: could not run: {message}", file=sys.stderr)
     return EXIT_CANNOT_RUN
 
 

@@ -429,3 +429,31 @@ def test_settings_that_make_no_sense_could_not_run(tmp_path, capsys):
     rc, err = batch(capsys, DATA / "comma.csv", "--anion-gap-interval", "12", "6",
                     "-o", tmp_path / "o.csv")
     assert rc == 2 and err.startswith("acidbase batch: could not run: anion gap interval")
+
+
+# -- standard input -----------------------------------------------------------------------
+
+def _run_stdin(data: bytes, *args: str):
+    import os
+    import subprocess
+    import sys
+
+    env = dict(os.environ, PYTHONPATH=str(Path(__file__).resolve().parents[1]))
+    return subprocess.run([sys.executable, "-m", "acidbase", "batch", "-", "--quiet", *args],
+                          input=data, capture_output=True, env=env, timeout=120)
+
+
+def test_standard_input_gives_the_same_output_as_the_file(tmp_path, capsys):
+    src = DATA / "serial_unsorted.csv"
+    out = tmp_path / "out.csv"
+    assert batch(capsys, src, "-o", out)[0] == 0
+    done = _run_stdin(src.read_bytes())
+    assert done.returncode == 0, done.stderr
+    assert done.stdout == out.read_bytes()
+
+
+def test_standard_input_problems_name_standard_input(tmp_path):
+    done = _run_stdin(b"")
+    assert done.returncode == 2
+    assert b"could not run: standard input: the file is empty" in done.stderr
+    assert b"Traceback" not in done.stderr
