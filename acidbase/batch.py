@@ -812,9 +812,12 @@ def _process(table: pa.Table, layout: Layout, decimal: str, settings,
     blanking = bool(blank.any())
     blank_rows = np.flatnonzero(blank)
     fired = res.fired
+    del res  # the kernel's frame (about 150 columns) is not needed past here
     review = _review_mask(fired, refused)
     out: dict[str, pa.Array] = {}
-    for key, col in tab.items():
+    engine_cols = [k for k in tab if not (k in DERIVED and k not in keep)]
+    for key in engine_cols:
+        col = tab.pop(key)  # each numpy column is let go once it is an Arrow one
         if key in DERIVED and key not in keep:
             continue
         if key == "status":  # two values: built from the mask, not converted cell by cell
@@ -864,7 +867,7 @@ def _process(table: pa.Table, layout: Layout, decimal: str, settings,
     # spreadsheet would run: their escaping is skipped (it would change no cell).
     col_of = layout.column_of
     plain = frozenset(col_of[f] for f in cv.plain)
-    meta = {"engine_cols": [k for k in tab if not (k in DERIVED and k not in keep)],
+    meta = {"engine_cols": engine_cols,
             "plain": plain, "refused": refused, "review": review, "fired": fired,
             "pco2": _canonical(cv, layout, "pco2"), "hco3": _canonical(cv, layout, "hco3")}
     return out, meta
