@@ -214,6 +214,14 @@ class ChunkValues:
     """Fields whose every cell is a bare number or an allowed word, as written."""
 
 
+def _cells_at(text: pa.Array, mask: np.ndarray) -> list[tuple[int, str | None]]:
+    """(row, cell) for the rows of ``mask``: only those cells become Python text."""
+    rows = np.flatnonzero(mask)
+    if rows.size == 0:
+        return []
+    return list(zip(rows.tolist(), text.take(pa.array(rows)).to_pylist()))
+
+
 def read_values(table: pa.Table, layout: Layout, decimal: str) -> ChunkValues:
     """Parse one chunk's numeric and choice columns; collect the problems that refuse rows."""
     col_of = layout.column_of
@@ -224,30 +232,28 @@ def read_values(table: pa.Table, layout: Layout, decimal: str) -> ChunkValues:
     plain_fields: set[str] = set()
     specs = [spec for spec in NUMERIC if spec.name in col_of]
     many = fileio.parse_numeric_many([table[col_of[spec.name]] for spec in specs], decimal)
+
+    def refuse(i: int, name: str, message: str) -> None:
+        problems.setdefault(i, []).append(message)
+        skip.setdefault(i, set()).add(name)
+
     for spec, p in zip(specs, many):
         parsed[spec.name] = p
         columns[spec.name] = p.values
         unit = layout.units.get(spec.name, spec.unit)
-        if p.bad.any():
-            rows = np.flatnonzero(p.bad)
-            for i, cell in zip(rows.tolist(), p.text.take(pa.array(rows)).to_pylist()):
-                problems.setdefault(i, []).append(
-                    f"{spec.title} ({spec.name}) {cell!r} is not a number (expected a number "
-                    f"in {unit}, optionally with < > <= >= before it or a flag "
-                    f"{' '.join(fileio.LAB_FLAGS)} after it)")
-                skip.setdefault(i, set()).add(spec.name)
+        for i, cell in _cells_at(p.text, p.bad):
+            refuse(i, spec.name,
+                   f"{spec.title} ({spec.name}) {cell!r} is not a number (expected a number "
+                   f"in {unit}, optionally with < > <= >= before it or a flag "
+                   f"{' '.join(fileio.LAB_FLAGS)} after it)")
         if spec.required and p.comparator is not None:
-            cens = p.censored
-            if cens.any():
-                rows = np.flatnonzero(cens)
-                f = _units.factor(spec.name, spec.kind, unit)
-                lo, hi = spec.accepted
-                for i, cell in zip(rows.tolist(), p.text.take(pa.array(rows)).to_pylist()):
-                    problems.setdefault(i, []).append(
-                        f"{spec.title} ({spec.name}) {cell.strip()!r} {unit} is a censored "
-                        f"value (beyond the reporting limit), but a required field needs an exact "
-                        f"number (accepted range {lo / f:.4g} to {hi / f:.4g} {unit})")
-                    skip.setdefault(i, set()).add(spec.name)
+            f = _units.factor(spec.name, spec.kind, unit)
+            lo, hi = spec.accepted
+            for i, cell in _cells_at(p.text, p.censored):
+                refuse(i, spec.name,
+                       f"{spec.title} ({spec.name}) {cell.strip()!r} {unit} is a censored "
+                       f"value (beyond the reporting limit), but a required field needs an exact "
+                       f"number (accepted range {lo / f:.4g} to {hi / f:.4g} {unit})")
     for name, allowed, title in (("sample_type", SAMPLE_TYPES, "Sample type"),
                                  ("hco3_source", HCO3_SOURCES, "HCO3- source")):
         h = col_of.get(name)
@@ -257,12 +263,10 @@ def read_values(table: pa.Table, layout: Layout, decimal: str) -> ChunkValues:
         columns[name] = codes
         if plain:
             plain_fields.add(name)
-        if bad.any():
-            rows = np.flatnonzero(bad)
-            for i, cell in zip(rows.tolist(), text.take(pa.array(rows)).to_pylist()):
-                # The kernel's own message for a choice it does not know.
-                problems.setdefault(i, []).append(str(Problem(
-                    name, title, cell, "", kind=f"not one of {', '.join(allowed)}")))
+        for i, cell in _cells_at(text, bad):
+            # The kernel's own message for a choice it does not know.
+            problems.setdefault(i, []).append(str(Problem(
+                name, title, cell, "", kind=f"not one of {', '.join(allowed)}")))
     plain_fields |= {name for name, p in parsed.items() if p.plain}
     return ChunkValues(columns, parsed, problems, skip, plain_fields)
 
