@@ -22,9 +22,24 @@ PK_PRIME = 6.105
 KASSIRER_BLEICH_K = 24.0
 
 
+#: ln(10), for powers of ten as exponentials.
+LN10 = float(np.log(10.0))
+
+
+def exp10(x: Array) -> Array:
+    """10^x as exp(x ln 10).
+
+    numpy's exponential is vectorised; ``np.power`` calls the C library's pow once
+    per element, about seven times slower here (bench/).  The two agree to within a
+    few units in the last place (about 1e-15 relative over pH 6.5 to 8), far below
+    any printed digit.
+    """
+    return np.exp(x * LN10)
+
+
 def h_ion_nmol(ph: Array) -> Array:
     """[H+] in nmol/L: 10^(9 - pH) (definition of pH)."""
-    return np.power(10.0, 9.0 - ph)
+    return exp10(9.0 - ph)
 
 
 def hco3_from_ph_pco2(ph: Array, pco2: Array) -> Array:
@@ -32,7 +47,7 @@ def hco3_from_ph_pco2(ph: Array, pco2: Array) -> Array:
 
     HCO3 = 0.0307 x pCO2 x 10^(pH - 6.105); mmol/L, pCO2 in mm[Hg], 37 degC.
     """
-    return CO2_SOLUBILITY * pco2 * np.power(10.0, ph - PK_PRIME)
+    return CO2_SOLUBILITY * pco2 * exp10(ph - PK_PRIME)
 
 
 def total_co2(hco3: Array, pco2: Array) -> Array:
@@ -90,7 +105,7 @@ CLIA_TOTAL_CO2_FRACTION = 0.20
 def consistency_tolerance_analyser(pco2: Array, hco3_calc: Array) -> Array:
     """Largest |entered - calculated| HCO3 explained by printing and convention (mmol/L)."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        rel = (np.log(10.0) * ROUNDING_PH + ROUNDING_PCO2 / pco2 + CONVENTION_SPREAD)
+        rel = (LN10 * ROUNDING_PH + ROUNDING_PCO2 / pco2 + CONVENTION_SPREAD)
     return hco3_calc * rel + ROUNDING_HCO3
 
 
@@ -98,7 +113,7 @@ def consistency_tolerance_chemistry(pco2: Array, tco2_calc: Array) -> Array:
     """Largest |measured - calculated| total CO2 explained by analytic error (mmol/L)."""
     with np.errstate(divide="ignore", invalid="ignore"):
         pco2_rel = np.maximum(CLIA_PCO2_FRACTION, CLIA_PCO2_MMHG / pco2)
-        rel = np.sqrt((np.log(10.0) * CLIA_PH) ** 2 + pco2_rel**2 + CLIA_TOTAL_CO2_FRACTION**2)
+        rel = np.sqrt((LN10 * CLIA_PH) ** 2 + pco2_rel**2 + CLIA_TOTAL_CO2_FRACTION**2)
     return tco2_calc * rel
 
 
@@ -115,7 +130,7 @@ def ph_at_temperature(ph: Array, temperature: Array) -> Array:
 
 def pco2_at_temperature(pco2: Array, temperature: Array) -> Array:
     """pCO2(T) = pCO2(37) x 10^(0.019 (T - 37)) [nunn_1965]."""
-    return pco2 * np.power(10.0, 0.019 * (temperature - 37.0))
+    return pco2 * exp10(0.019 * (temperature - 37.0))
 
 
 def po2_at_temperature(po2: Array, temperature: Array) -> Array:
@@ -125,4 +140,4 @@ def po2_at_temperature(po2: Array, temperature: Array) -> Array:
     """
     p = np.power(po2, 3.88)
     f = (5.49e-11 * p + 0.071) / (9.72e-9 * p + 2.30)
-    return po2 * np.power(10.0, f * (temperature - 37.0))
+    return po2 * exp10(f * (temperature - 37.0))
