@@ -109,6 +109,9 @@ def _pick(m1: np.ndarray, r1: CompensationRule, m2: np.ndarray, r2: Compensation
     Each rule's expected value is its own ``expected``; only the choice between
     the two is arithmetic here.
     """
+    if r1 == r2:  # one rule for both sides (the base-excess respiratory rules)
+        centre = r1.expected(driver)
+        return centre - r1.band, centre + r1.band
     f1 = m1.astype(np.float64)
     c1, c2 = r1.expected(driver), r2.expected(driver)
     centre = c2 + (c1 - c2) * f1
@@ -235,8 +238,8 @@ def compute(s: Screened, settings: Settings) -> Frame:
     else:
         f["urea_used"] = v["urea"]
 
-    for name in ("ph", "pco2", "hco3", "sbe"):
-        f[f"{name}_lo"], f[f"{name}_hi"] = interval_columns(s.sample_type, name)
+    for name, (lo, hi) in interval_columns(s.sample_type, ("ph", "pco2", "hco3", "sbe")).items():
+        f[f"{name}_lo"], f[f"{name}_hi"] = lo, hi
     ph_mid = (f["ph_lo"] + f["ph_hi"]) * 0.5
 
     # --- 1. trust: internal consistency (Henderson-Hasselbalch) ---------------

@@ -109,15 +109,23 @@ class Settings:
         return (lo + hi) / 2.0
 
 
-def interval_columns(sample_type: np.ndarray, name: str) -> tuple[np.ndarray, np.ndarray]:
-    """Per-row low and high limits of one quantity, from sample-type codes.
+def interval_columns(sample_type: np.ndarray,
+                     names: tuple[str, ...]) -> dict[str, tuple[np.ndarray, np.ndarray]]:
+    """Per-row low and high limits of each quantity in ``names``, from sample-type codes.
 
     When every row has the same sample type the limits come back as 0-d arrays,
-    which broadcast like columns at no cost.
+    which broadcast like columns at no cost.  Otherwise the codes are widened to
+    the platform index type once: ``np.take`` with int8 indices converts them on
+    every call, several times slower than the look-up itself.
     """
-    low = np.array([INTERVALS[kind][name].low for kind in SAMPLE_TYPES])
-    high = np.array([INTERVALS[kind][name].high for kind in SAMPLE_TYPES])
     if sample_type.shape[0] and sample_type.min() == sample_type.max():
-        code = int(sample_type[0])
-        return np.float64(low[code]), np.float64(high[code])
-    return np.take(low, sample_type), np.take(high, sample_type)
+        code = SAMPLE_TYPES[int(sample_type[0])]
+        return {name: (np.float64(INTERVALS[code][name].low), np.float64(INTERVALS[code][name].high))
+                for name in names}
+    index = sample_type.astype(np.intp)
+    out = {}
+    for name in names:
+        low = np.array([INTERVALS[kind][name].low for kind in SAMPLE_TYPES])
+        high = np.array([INTERVALS[kind][name].high for kind in SAMPLE_TYPES])
+        out[name] = (np.take(low, index), np.take(high, index))
+    return out

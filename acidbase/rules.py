@@ -678,7 +678,7 @@ def evaluate(frame: Frame) -> np.ndarray:
     Refused rows fire nothing (their values are NaN, and the masks are cleared).
     """
     n = frame["ph"].shape[0]
-    out = np.zeros((len(RULES), n), dtype=bool)
+    out = np.empty((len(RULES), n), dtype=bool)  # every row is written below
     with np.errstate(invalid="ignore"):
         for i, rule in enumerate(RULES):
             out[i] = rule.when(frame)
