@@ -19,9 +19,11 @@ from .reference import Settings
 from .results import Interpretation, Part, Results
 from .units import factor
 
-#: Rows per slice: small enough that a slice's columns stay in cache, large enough
-#: that Python's per-call overhead is negligible (measured in bench/).
-SLICE_ROWS = 32768
+#: Rows per slice: large enough that Python's per-call overhead and the threads'
+#: hand-overs of the interpreter lock (one per numpy call) are small against the
+#: work, small enough that the two threads share the slices evenly.  On the 2-core
+#: benchmark machine 65,536 beat 32,768 by about a fifth (docs/performance.md).
+SLICE_ROWS = 65536
 #: Slices run on this many threads: numpy releases the GIL inside each operation.
 THREADS = min(2, os.cpu_count() or 1)
 
