@@ -62,9 +62,9 @@ def _hint(spec: FieldSpec, values: np.ndarray, unit: str) -> np.ndarray:
 def range_problems(spec: FieldSpec, raw: np.ndarray, unit: str) -> tuple[np.ndarray, np.ndarray]:
     """Check values of one field given in ``unit``.
 
-    Returns ``(canonical, bad)``: the values in the canonical unit, and a mask of
-    refused values (not finite, or outside the accepted range).  NaN is
-    "not measured" and is not refused here.
+    Returns ``(canonical, bad)``: the values in the canonical unit (always a new
+    array, never the caller's), and a mask of refused values (not finite, or
+    outside the accepted range).  NaN is "not measured" and is not refused here.
     """
     f = _units.factor(spec.name, spec.kind, unit)
     lo, hi = spec.accepted
@@ -295,16 +295,10 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None) -
     refused |= bad_st | bad_src
 
     if refused.any():
-        blank = nan_unless_not(refused)
+        rows = np.flatnonzero(refused)
         for name in present:
-            values[name] = values[name] + blank
+            values[name][rows] = np.nan  # each is range_problems' own new array
     return Screened(n, values, sample_type, hco3_source, refused, problems, frozenset(present))
-
-
-def nan_unless_not(mask: np.ndarray) -> np.ndarray:
-    """NaN where ``mask`` holds, 0.0 elsewhere (added to a column, it blanks those rows)."""
-    with np.errstate(invalid="ignore"):
-        return np.divide(0.0, (~mask).astype(np.float64))
 
 
 # ---------------------------------------------------------------------------
