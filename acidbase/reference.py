@@ -113,19 +113,25 @@ def interval_columns(sample_type: np.ndarray,
                      names: tuple[str, ...]) -> dict[str, tuple[np.ndarray, np.ndarray]]:
     """Per-row low and high limits of each quantity in ``names``, from sample-type codes.
 
-    When every row has the same sample type the limits come back as 0-d arrays,
-    which broadcast like columns at no cost.  Otherwise the codes are widened to
-    the platform index type once: ``np.take`` with int8 indices converts them on
-    every call, several times slower than the look-up itself.
+    A limit that is the same for every sample type (SBE), or for every row of this
+    call, comes back as a 0-d array, which broadcasts like a column at no cost.
+    Otherwise the codes are widened to the platform index type once: ``np.take``
+    with int8 indices converts them on every call, several times slower than the
+    look-up itself.
     """
-    if sample_type.shape[0] and sample_type.min() == sample_type.max():
-        code = SAMPLE_TYPES[int(sample_type[0])]
-        return {name: (np.float64(INTERVALS[code][name].low), np.float64(INTERVALS[code][name].high))
-                for name in names}
-    index = sample_type.astype(np.intp)
+    uniform = bool(sample_type.shape[0]) and sample_type.min() == sample_type.max()
+    kinds = (SAMPLE_TYPES[int(sample_type[0])],) if uniform else SAMPLE_TYPES
+    index = None
     out = {}
     for name in names:
-        low = np.array([INTERVALS[kind][name].low for kind in SAMPLE_TYPES])
-        high = np.array([INTERVALS[kind][name].high for kind in SAMPLE_TYPES])
-        out[name] = (np.take(low, index), np.take(high, index))
+        limits = []
+        for side in ("low", "high"):
+            table = np.array([getattr(INTERVALS[kind][name], side) for kind in kinds])
+            if (table == table[0]).all():
+                limits.append(np.float64(table[0]))
+                continue
+            if index is None:
+                index = sample_type.astype(np.intp)
+            limits.append(np.take(table, index))
+        out[name] = (limits[0], limits[1])
     return out
