@@ -87,8 +87,8 @@ def configure_parser(p: argparse.ArgumentParser) -> None:
                         "only empty cells by default)")
     g.add_argument("--strict-columns", action="store_true",
                    help="stop when a column is not recognised (default: pass it through)")
-    g.add_argument("--chunk-rows", type=int, default=1 << 13, metavar="N",
-                   help="rows per chunk (memory vs speed; default 8192)")
+    g.add_argument("--chunk-rows", type=int, default=1 << 14, metavar="N",
+                   help="rows per chunk (memory vs speed; default 16384)")
     s = p.add_argument_group("serial checks (need patient_id and collected_at)")
     s.add_argument("--window-hours", type=float, default=serial.DEFAULT_WINDOW_HOURS,
                    metavar="H", help="compare panels of a patient at most H hours apart "

@@ -448,7 +448,7 @@ class Source:
         yield from rechunk(raw, self.chunk_rows)
 
     def _csv_batches(self, cols: list[str], on_progress) -> Iterator[pa.RecordBatch]:
-        block = int(min(max(self.chunk_rows * 96, 1 << 16), 1 << 24))
+        block = int(min(max(self.chunk_rows * 96, 1 << 16), CSV_BLOCK_MAX))
         f = _CountingReader(open(self.path, "rb"))
         try:
             reader = pa_csv.open_csv(
@@ -562,6 +562,12 @@ def jsonl_headers(path: str | os.PathLike[str]) -> tuple[str, ...]:
     if not keys:
         raise BatchInputError(f"{path}: no records")
     return tuple(keys)
+
+
+#: Largest block the CSV reader parses at once.  The reader's memory grows with its
+#: block (about 40 MB more at 1.5 MB than at 768 KB, reading the benchmark file),
+#: while larger chunks need only more blocks, which ``rechunk`` joins.
+CSV_BLOCK_MAX = 768 << 10
 
 
 def rechunk(batches: Iterator[pa.RecordBatch], rows: int) -> Iterator[pa.Table]:
@@ -1034,12 +1040,19 @@ def format_fixed(values: np.ndarray, decimals: int) -> pa.Array:
                                        null_count=n - count)
 
 
+#: At most this many values go through one ``format_fixed`` call: its working
+#: arrays take about 70 bytes per finite value, so a call on all of a large chunk's
+#: derived values at once set the batch run's peak memory.
+FIXED_CALL_VALUES = 1 << 17
+
+
 def fixed_columns(table: pa.Table, decimals: Mapping[str, int]) -> pa.Table:
     """``table`` with its floating-point columns named in ``decimals`` as fixed text.
 
-    Columns with the same decimals are formatted in one ``format_fixed`` call on
-    their values end to end, then sliced apart (slices share the text buffers):
-    the fixed cost of a call is paid once per group, not once per column.
+    Columns with the same decimals are formatted in ``format_fixed`` calls on
+    their values end to end (up to ``FIXED_CALL_VALUES`` values a call), then
+    sliced apart (slices share the text buffers): the fixed cost of a call is paid
+    once per few columns, not once per column, and its memory stays bounded.
     """
     groups: dict[int, list[str]] = {}
     for name in table.column_names:
@@ -1050,13 +1063,16 @@ def fixed_columns(table: pa.Table, decimals: Mapping[str, int]) -> pa.Table:
         return table
     n = table.num_rows
     text: dict[str, pa.Array] = {}
+    per_call = max(1, FIXED_CALL_VALUES // max(n, 1))  # columns per call
     for d, names in groups.items():
-        values = np.concatenate([
-            np.asarray(table[name].combine_chunks().to_numpy(zero_copy_only=False),
-                       dtype=np.float64) for name in names]) if n else np.zeros(0)
-        joined = format_fixed(values, d)
-        for k, name in enumerate(names):
-            text[name] = joined.slice(k * n, n)
+        for at in range(0, len(names), per_call):
+            batch = names[at:at + per_call]
+            values = np.concatenate([
+                np.asarray(table[name].combine_chunks().to_numpy(zero_copy_only=False),
+                           dtype=np.float64) for name in batch]) if n else np.zeros(0)
+            joined = format_fixed(values, d)
+            for k, name in enumerate(batch):
+                text[name] = joined.slice(k * n, n)
     cols = [text.get(name, col) for name, col in zip(table.column_names, table.columns)]
     fields = [pa.field(name, pa.string()) if name in text else table.schema.field(name)
               for name in table.column_names]
@@ -1220,7 +1236,7 @@ class Writer:
             self._writer = pq.ParquetWriter(self._sink, self.schema)
 
     def encode(self, table: pa.Table,
-               plain: frozenset[str] = frozenset()) -> tuple[pa.Schema, bytes | pa.Table]:
+               plain: frozenset[str] = frozenset()) -> tuple[pa.Schema, bytes | pa.Buffer | pa.Table]:
         """``table`` made ready for ``put``: CSV or JSON Lines as bytes, Parquet as is.
 
         ``plain``: columns of this table the caller has read cell by cell and found
@@ -1234,12 +1250,12 @@ class Writer:
                              schema=table.schema)
             sink = pa.BufferOutputStream()
             pa_csv.write_csv(table, sink, self._csv_options(False))
-            return table.schema, sink.getvalue().to_pybytes()
+            return table.schema, sink.getvalue()  # Arrow's buffer: no copy into bytes
         if self.fmt == "jsonl":
             return table.schema, jsonl_bytes(table)
         return table.schema, table
 
-    def put(self, encoded: tuple[pa.Schema, bytes | pa.Table]) -> None:
+    def put(self, encoded: tuple[pa.Schema, bytes | pa.Buffer | pa.Table]) -> None:
         """Append one ``encode``d table to the output."""
         schema, payload = encoded
         if self.schema is None:

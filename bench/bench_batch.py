@@ -145,7 +145,7 @@ def row_by_row(path: str, out: str, n: int) -> dict[str, float]:
     return {"rows_per_s": n / t, "seconds": t}
 
 
-def stages(path: str, chunk_rows: int = 8192) -> dict[str, float]:
+def stages(path: str, chunk_rows: int = 16384) -> dict[str, float]:
     """Seconds spent in each stage of the batch path, in this process, one thread.
 
     read (pyarrow CSV), values (parsing cells), kernel (``interpret_many``), table

@@ -238,6 +238,25 @@ def test_small_chunks_give_the_same_output_as_one_chunk(tmp_path, capsys):
     assert len(rows_of(many)) == 54
 
 
+def test_a_chunk_joined_from_several_reader_blocks_gives_the_same_output(tmp_path, capsys,
+                                                                        monkeypatch):
+    """The CSV reader parses blocks of at most CSV_BLOCK_MAX bytes and chunks are joined
+    from them: with a block of 1 KB the 54-row file (about 4 KB) is read in several
+    blocks, one chunk, and gives the same bytes as when read in one block."""
+    from acidbase import fileio
+
+    big = tmp_path / "big.csv"
+    lines = (DATA / "serial_unsorted.csv").read_text().splitlines()
+    big.write_text("\n".join([lines[0]] + lines[1:] * 3) + "\n")
+    assert big.stat().st_size > 3 * 1024
+    whole, blocks = tmp_path / "whole.csv", tmp_path / "blocks.csv"
+    assert batch(capsys, big, "-o", whole)[0] == 0
+    monkeypatch.setattr(fileio, "CSV_BLOCK_MAX", 1024)
+    assert batch(capsys, big, "-o", blocks)[0] == 0
+    assert whole.read_bytes() == blocks.read_bytes()
+    assert len(rows_of(blocks)) == 54
+
+
 def test_chunks_on_worker_threads_keep_rows_counts_and_report_as_one_chunk(tmp_path, capsys):
     """Chunks are worked on two threads and put back in file order: the rows, the
     summary's counts and the report's flagged rows are those of a one-chunk run."""
