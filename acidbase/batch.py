@@ -411,10 +411,29 @@ def tally_chunk(t: Tally, out: dict[str, pa.Array], pco2: np.ndarray, hco3: np.n
         cols = {"row": [str(start + i + 1) for i in idx.tolist()]}
         for name, arr in ids.items():
             cols[name] = arr.take(take).to_pylist() if arr is not None else [""] * len(idx)
-        for key in ("status", "reason", "finding_codes", "serial_codes"):
+        cols["status"] = out["status"].take(take).to_pylist()
+        cols["review because"] = _review_because(fired[:, idx], refused[idx],
+                                                 out["serial_codes"].take(take).to_pylist())
+        for key in ("reason", "serial_detail"):
             cols[key] = out[key].take(take).to_pylist()
         for j in range(len(idx)):
             t.flagged.append({k: (v[j] or "") for k, v in cols.items()})
+
+
+def _review_because(fired: np.ndarray, refused: np.ndarray, serial_codes: list) -> list[str]:
+    """For each listed row, what put it on the review list: "refused" (a refused row
+    has no reading, so no findings), else the trust findings above "info"
+    (``_review_rules``); then the serial flags."""
+    from .rules import RULES
+
+    rules = _review_rules()
+    out = []
+    for j in range(fired.shape[1]):
+        why = ["refused"] if refused[j] else [RULES[i].code for i in rules if fired[i, j]]
+        if serial_codes[j]:
+            why += serial_codes[j].split(";")
+        out.append("; ".join(why))
+    return out
 
 
 def plane_picture(plane: np.ndarray) -> str:
@@ -512,6 +531,21 @@ def _md_cell(x: str) -> str:
     return str(x).replace("|", "\\|").replace("\n", " ")
 
 
+def _report_sections(t: Tally) -> tuple[tuple[str, Counter], ...]:
+    """The report's count tables, in order; findings named by code and title, each
+    trust finding that puts a row up for review marked so."""
+    from .rules import BY_CODE, RULES
+
+    review = {RULES[i].code for i in _review_rules()}
+    findings = Counter({
+        f"{code}: {BY_CODE[code].title} ({BY_CODE[code].severity}"
+        f"{', review' if code in review else ''})": c for code, c in t.findings.items()})
+    return (("Processes", Counter({f"{p} ({r})": c for (p, r), c in t.processes.items()})),
+            ("Findings", findings), ("Laboratory flags in values", t.lab_flags),
+            ("Qualifiers", t.qualifiers), ("Serial checks", t.serial_status),
+            ("Serial flags", t.serial_codes), ("Refusal reasons", t.reasons))
+
+
 def report_markdown(t: Tally, notes: list[str], source: str) -> str:
     out = ["# Batch check report", "", f"Input: `{source}`", "", f"> {CAUTION}", "",
            "## Counts", "", "| | rows |", "|---|---:|", f"| read | {t.rows:,} |",
@@ -519,12 +553,7 @@ def report_markdown(t: Tally, notes: list[str], source: str) -> str:
            f"| need review | {t.review:,} |", ""]
     for n in notes:
         out.append(f"- {n}")
-    sections = (("Processes", Counter({f"{p} ({r})": c
-                                       for (p, r), c in t.processes.items()})),
-                ("Findings", t.findings), ("Laboratory flags in values", t.lab_flags),
-                ("Qualifiers", t.qualifiers), ("Serial checks", t.serial_status),
-                ("Serial flags", t.serial_codes), ("Refusal reasons", t.reasons))
-    for title, counter in sections:
+    for title, counter in _report_sections(t):
         if counter:
             out += ["", f"## {title}", "", "| | rows |", "|---|---:|"]
             out += [f"| {_md_cell(k)} | {c:,} |" for k, c in _ranked(counter)]
@@ -559,11 +588,7 @@ def report_html(t: Tally, notes: list[str], source: str) -> str:
                             "refused": t.refused, "need review": t.review}))]
     if notes:
         parts.append("<ul>" + "".join(f"<li>{e(n)}</li>" for n in notes) + "</ul>")
-    for title, counter in (("Processes", Counter({f"{p} ({r})": c
-                                                  for (p, r), c in t.processes.items()})),
-                           ("Findings", t.findings), ("Laboratory flags in values", t.lab_flags),
-                           ("Qualifiers", t.qualifiers), ("Serial checks", t.serial_status),
-                           ("Serial flags", t.serial_codes), ("Refusal reasons", t.reasons)):
+    for title, counter in _report_sections(t):
         if counter:
             parts += [f"<h2>{e(title)}</h2>", table(counter)]
     parts.append(f"<h2>Rows that need review (first {FLAGGED_LISTED})</h2>")
@@ -591,11 +616,17 @@ def _settings(args: argparse.Namespace):
     return settings_from_args(args)
 
 
-def _review_mask(fired: np.ndarray, refused: np.ndarray) -> np.ndarray:
-    """Refused, or a trust finding above "info" (the panel itself is in doubt)."""
+def _review_rules() -> list[int]:
+    """Indices of the rules that put a row up for review: the trust findings above
+    "info" (the panel itself is in doubt)."""
     from .rules import RULES
 
-    idx = [j for j, r in enumerate(RULES) if r.section == "trust" and r.severity != "info"]
+    return [j for j, r in enumerate(RULES) if r.section == "trust" and r.severity != "info"]
+
+
+def _review_mask(fired: np.ndarray, refused: np.ndarray) -> np.ndarray:
+    """Refused, or a trust finding above "info" (the serial flags are added later)."""
+    idx = _review_rules()
     trust = fired[idx].any(axis=0) if idx else np.zeros(len(refused), dtype=bool)
     return refused | trust
 

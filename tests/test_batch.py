@@ -476,3 +476,28 @@ def test_standard_input_problems_name_standard_input(tmp_path):
     assert done.returncode == 2
     assert b"could not run: standard input: the file is empty" in done.stderr
     assert b"Traceback" not in done.stderr
+
+
+def test_report_says_why_each_listed_row_needs_review(tmp_path, capsys):
+    """Each row the report lists names what put it there: "refused" for a refused row
+    (which has no reading, so no findings), else the trust findings above "info" among
+    the row's finding codes in the output, then its serial flags; the findings table
+    gives each code its title."""
+    from acidbase.rules import BY_CODE
+
+    out, report = tmp_path / "o.csv", tmp_path / "r.md"
+    assert batch(capsys, DATA / "mixed.csv", "-o", out, "--report", report)[0] == 0
+    by_row = {r["row"]: r for r in rows_of(out)}
+    lines = report.read_text().split("## Rows that need review")[1].splitlines()
+    head = [c.strip() for c in lines[2].strip("|").split("|")]
+    listed = [dict(zip(head, (c.strip() for c in ln.strip("|").split("|"))))
+              for ln in lines[4:] if ln.startswith("| ")]
+    assert listed and len(listed) == sum(r["needs_review"] == "yes" for r in by_row.values())
+    for item in listed:
+        row = by_row[item["row"]]
+        trust = [c for c in row["finding_codes"].split(";")
+                 if c and BY_CODE[c].section == "trust" and BY_CODE[c].severity != "info"]
+        first = ["refused"] if row["status"] == "refused" else trust
+        serial = [c for c in row["serial_codes"].split(";") if c]
+        assert first and item["review because"].split("; ") == first + serial
+    assert "T-CRITICAL: " + BY_CODE["T-CRITICAL"].title in report.read_text()
