@@ -20,7 +20,7 @@ HEADINGS = {
 
 def _template(t: object) -> str:
     if callable(t):
-        doc = (t.__doc__ or "").strip()
+        doc = " ".join((t.__doc__ or "").split())  # one line, as in the list
         return doc or "(worded from the row's values)"
     return str(t)
 

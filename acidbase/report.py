@@ -11,6 +11,7 @@ from typing import TYPE_CHECKING, Any
 
 from .fields import BY_NAME
 from .results import DECIMALS
+from .rules import number_text
 
 if TYPE_CHECKING:
     from .results import Interpretation
@@ -103,7 +104,7 @@ def as_text(it: Interpretation, width: int = 88, working: bool = True) -> str:
             for key, label, unit, fmt in DERIVED_LABELS:
                 value = it.derived.get(key)
                 if value is not None:
-                    lines.append(f"  {label:<44} {format(value, fmt):>8} {unit}")
+                    lines.append(f"  {label:<44} {number_text(value, fmt):>8} {unit}")
         for f in it.in_section(section):
             lines += _wrap(f"[{f.severity}] {f.code}: {f.text}", "  ", width)
             if working:
@@ -144,7 +145,7 @@ def as_markdown(it: Interpretation) -> str:
             for key, label, unit, fmt in DERIVED_LABELS:
                 value = it.derived.get(key)
                 if value is not None:
-                    out.append(f"| {label} | {format(value, fmt)} | {unit} |")
+                    out.append(f"| {label} | {number_text(value, fmt)} | {unit} |")
             out.append("")
         for f in it.in_section(section):
             out.append(f"- **{f.severity}** `{f.code}`: {f.text}  ")

@@ -59,8 +59,18 @@ def _process_word(r: Row) -> str:
     return "respiratory acidosis" if r["prim_resp_acid"] else "respiratory alkalosis"
 
 
+def number_text(x: float, spec: str) -> str:
+    """``format(x, spec)``, except that a value that rounds to zero carries no minus
+    sign: -0.01 with ".1f" is "0.0" ("+0.0" with "+.1f"), as in the batch CSV, since
+    "-0.0" reads as a value below zero."""
+    text = format(x, spec)
+    if text.lstrip().startswith("-") and float(text) == 0.0:
+        return format(0.0, spec)
+    return text
+
+
 def _fmt(x: float, spec: str = ".1f") -> str:
-    return "n/a" if x is None or not np.isfinite(x) else format(x, spec)
+    return "n/a" if x is None or not np.isfinite(x) else number_text(x, spec)
 
 
 def _extreme_mask(f: Frame) -> np.ndarray:
@@ -196,6 +206,18 @@ def _be_disagree_text(r: Row) -> str:
     return (f"The two readings disagree: bicarbonate rules give {', '.join(bic)}; base-excess "
             f"rules (SBE {r['standard_base_excess']:+.1f} mmol/L) give {', '.join(be)}. Why: "
             f"{why}. Read the panel with both in view.")
+
+
+def _be_agrees_working(r: Row) -> str:
+    """SBE = HCO3 - 24.8 + 16.2 x (pH - 7.40) = {hco3_calculated:.1f} - 24.8 + 16.2 x
+    ({ph:.3f} - 7.40) = {standard_base_excess:+.1f}; beside a single metabolic process,
+    expected pCO2 (metabolic) {be_expected_pco2_low:.1f}-{be_expected_pco2_high:.1f}"""
+    text = (f"SBE = HCO3 - 24.8 + 16.2 x (pH - 7.40) = {r['hco3_calculated']:.1f} - 24.8 + "
+            f"16.2 x ({r['ph']:.3f} - 7.40) = {r['standard_base_excess']:+.1f}")
+    if np.isfinite(r["be_expected_pco2_low"]):  # only beside a single metabolic process
+        text += (f"; expected pCO2 (metabolic) {r['be_expected_pco2_low']:.1f}-"
+                 f"{r['be_expected_pco2_high']:.1f}")
+    return text
 
 
 def _pf_text(r: Row) -> str:
@@ -551,9 +573,7 @@ RULES: tuple[Rule, ...] = (
          lambda f: f["readings_agree"] & np.isfinite(f["standard_base_excess"]),
          "The base-excess reading agrees (SBE {standard_base_excess:+.1f} mmol/L, interval "
          "{sbe_lo:.1f} to {sbe_hi:+.1f}).",
-         "SBE = HCO3 - 24.8 + 16.2 x (pH - 7.40) = {hco3_calculated:.1f} - 24.8 + 16.2 x "
-         "({ph:.3f} - 7.40) = {standard_base_excess:+.1f}; expected pCO2 (metabolic) "
-         "{be_expected_pco2_low:.1f}-{be_expected_pco2_high:.1f}",
+         _be_agrees_working,
          "A second, independent family of compensation rules.", ("clsi_c46", "schlichtig_1998")),
     Rule("P-BE-DISAGREES", "process", "caution", "Base-excess reading disagrees",
          lambda f: ~f["readings_agree"] & np.isfinite(f["standard_base_excess"]),
@@ -687,9 +707,12 @@ def evaluate(frame: Frame) -> np.ndarray:
 
 
 def render(rule: Rule, template: Text, row: Row) -> str:
+    """A rule's text or working for one row: numbers print through ``number_text``
+    (NaN as n/a) whether the template is a format string or a function of the row."""
+    formatted = _Formatted(row)
     if callable(template):
-        return template(row)
-    return template.format_map(_Formatted(row))
+        return template(formatted)
+    return template.format_map(formatted)
 
 
 class _Formatted(dict):
@@ -707,4 +730,4 @@ class _Num(float):
     def __format__(self, spec: str) -> str:
         if not np.isfinite(self):
             return "n/a"
-        return format(float(self), spec or ".4g")
+        return number_text(float(self), spec or ".4g")

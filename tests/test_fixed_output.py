@@ -68,6 +68,33 @@ def test_fixed_text_beyond_the_integer_range_falls_back_to_python():
     assert fileio.format_fixed(x, 1).to_pylist() == [python_text(v, 1) for v in x.tolist()]
 
 
+@settings(max_examples=300, deadline=None)
+@given(st.floats(min_value=-1e6, max_value=1e6), st.integers(min_value=0, max_value=3),
+       st.sampled_from(["", "+"]))
+def test_report_number_text_is_pythons_format_without_a_negative_zero(x, decimals, sign):
+    """The text report, the terminal app and the rule texts print numbers through
+    ``number_text``: Python's format, the CSV's text, and "+0.0" for "+.1f"."""
+    from acidbase.rules import number_text
+
+    got = number_text(x, f"{sign}.{decimals}f")
+    want = python_text(x, decimals)
+    assert got == (("+" + want if not want.startswith("-") else want) if sign else want)
+
+
+def test_a_base_excess_that_rounds_to_zero_prints_without_a_minus_sign():
+    # CLSI C46: HCO3 calc = 0.0307 x 39.75 x 10^(7.41 - 6.105) = 24.631; SBE = 24.631 -
+    # 24.8 + 16.2 x (7.41 - 7.40) = -0.007, shown to one decimal as +0.0, never -0.0
+    panel = acidbase.Panel(ph=7.41, pco2=39.75, hco3=24.3, na=139, cl=104)
+    it = acidbase.interpret(panel)
+    assert -0.05 < it.derived["standard_base_excess"] < 0
+    from acidbase.report import as_markdown, as_text
+
+    import re
+
+    for text in (as_text(it, working=True), as_markdown(it)):
+        assert not re.search(r"-0\.0+(?![0-9])", text) and "SBE +0.0" in text
+
+
 def test_decimals_cover_every_derived_value_and_the_report_uses_them():
     from acidbase.report import DERIVED_LABELS
 

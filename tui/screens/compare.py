@@ -12,6 +12,7 @@ from textual.widgets import Static
 import acidbase
 from acidbase.fields import NUMERIC
 from acidbase.report import DERIVED_LABELS
+from acidbase.rules import number_text
 
 from ..widgets.chrome import CautionBar, KeyLine, PlainTable, TitleLine
 
@@ -25,13 +26,13 @@ class CompareTable(PlainTable):
 
 
 def _num(x: float | None, fmt: str = ".4g") -> str:
-    return "" if x is None else format(x, fmt)
+    return "" if x is None else number_text(x, fmt)
 
 
 def _change(a: float | None, b: float | None, fmt: str = ".4g") -> str:
     if a is None or b is None:
         return "" if a is None and b is None else "only one"
-    return format(b - a, "+" + fmt.lstrip("+"))
+    return number_text(b - a, "+" + fmt.lstrip("+"))
 
 
 class CompareScreen(Screen[None]):
