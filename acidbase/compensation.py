@@ -86,6 +86,11 @@ BICARBONATE_RULES: dict[str, CompensationRule] = {
     )
 }
 
+#: Respiratory compensation for a metabolic alkalosis rarely takes pCO2 above about 55
+#: mm[Hg]; teaching tables quote 55 to 60 [malk_pco2_ceiling].  Above it, a pCO2 inside
+#: the expected band is not taken as compensation alone (a caution, not a verdict).
+METABOLIC_ALKALOSIS_PCO2_CEILING = 55.0
+
 BASE_EXCESS_RULES: dict[str, CompensationRule] = {
     r.key: r
     for r in (

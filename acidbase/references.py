@@ -210,6 +210,11 @@ _ALL = [
              "https://loinc.org", None),
     Citation("acidbase_design", "acidbase project", "Design choice argued in docs/methods.md",
              "this project's documentation", None, "design"),
+    Citation("malk_pco2_ceiling", "Common practice, no source",
+             "Respiratory compensation for metabolic alkalosis rarely raises pCO2 above about "
+             "55 mm[Hg]",
+             "teaching tables quote 55 to 60 mm[Hg]; seen only in secondary teaching pages, "
+             "the primary source not identified", None, "practice"),
     Citation("delta_bands", "Common practice, no source",
              "Delta ratio bands < 0.4, 0.4-0.8, 0.8-2, > 2",
              "widely copied teaching bands; see the cautions of Rastegar 2007", None, "practice"),

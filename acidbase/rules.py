@@ -33,6 +33,7 @@ from .engine import (
     VENOUS,
     Frame,
 )
+from .compensation import METABOLIC_ALKALOSIS_PCO2_CEILING
 from .fields import HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
 
 Row = Mapping[str, Any]
@@ -453,6 +454,20 @@ RULES: tuple[Rule, ...] = (
          "{expected_pco2_low:.1f}-{expected_pco2_high:.1f} mm[Hg]",
          "pCO2 rises about 0.7 mm[Hg] per mmol/L of HCO3- above 24; the band is wide.",
          ("berend_2014", "kidney360_2022")),
+    Rule("P-MALK-CEILING", "process", "caution", "pCO2 beyond usual compensation",
+         lambda f: (f["metabolic_only"] & f["prim_met_alk"] & ~f["add_resp_acid"]
+                    & (f["pco2"] > METABOLIC_ALKALOSIS_PCO2_CEILING)
+                    & (f["sample_type"] != VENOUS)),
+         "pCO2 {pco2:.0f} mm[Hg] lies in the expected band but above about "
+         f"{METABOLIC_ALKALOSIS_PCO2_CEILING:.0f} mm[Hg], which respiratory compensation for a "
+         "metabolic alkalosis rarely exceeds: an additional respiratory acidosis cannot be "
+         "excluded.",
+         f"pCO2 {{pco2:.1f}} > {METABOLIC_ALKALOSIS_PCO2_CEILING:.0f} mm[Hg]; expected band "
+         "{expected_pco2_low:.1f}-{expected_pco2_high:.1f}",
+         "The 0.7 slope keeps rising with HCO3-; hypoventilation does not. A rule of thumb "
+         "(55 to 60 mm[Hg] in teaching tables), so a caution, not a verdict; venous pCO2 runs "
+         "higher and is not read against it.",
+         ("malk_pco2_ceiling", "berend_2014", "kidney360_2022")),
     Rule("P-MALK-ABOVE", "process", "caution", "pCO2 above the metabolic-alkalosis band",
          lambda f: f["prim_met_alk"] & f["add_resp_acid"],
          "pCO2 {pco2:.0f} mm[Hg] is above the expected {expected_pco2_low:.1f}-"

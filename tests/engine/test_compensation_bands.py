@@ -80,6 +80,35 @@ def test_metabolic_alkalosis_rule_flags_pco2_below_band(interpret):
     assert "P-MALK-BELOW" in r.codes()
 
 
+# Beyond usual compensation: pCO2 rarely above about 55 mm[Hg] from compensation alone
+# (common practice, no source; teaching tables quote 55 to 60).  At HCO3 45 the band is
+# 40 + 0.7 x 21 +/- 5 = 49.7-59.7, so pCO2 58 is inside it and above 55.
+
+
+def test_pco2_inside_the_band_but_above_55_is_a_caution_not_a_new_disorder(interpret):
+    r = interpret(edge_panel(45.0, 58.0))
+    assert processes(r) == {"metabolic alkalosis": "primary"}
+    assert {"P-MALK-EXPECTED", "P-MALK-CEILING"} <= set(r.codes())
+
+
+@pytest.mark.parametrize("hco3, pco2", [(45.0, 54.5), (34.0, 51.5)],
+                         ids=["in band, below 55", "lower HCO3, band below 55"])
+def test_pco2_at_or_below_55_in_the_band_is_not_flagged(interpret, hco3, pco2):
+    r = interpret(edge_panel(hco3, pco2))
+    assert "P-MALK-EXPECTED" in r.codes() and "P-MALK-CEILING" not in r.codes()
+
+
+def test_pco2_above_the_band_is_the_additional_process_not_the_ceiling(interpret):
+    r = interpret(edge_panel(45.0, 60.5))  # above 59.7
+    assert "P-MALK-ABOVE" in r.codes() and "P-MALK-CEILING" not in r.codes()
+
+
+def test_venous_pco2_is_not_read_against_the_ceiling(interpret):
+    # Venous pCO2 runs higher than arterial by a variable amount (Kelly 2010).
+    r = interpret(edge_panel(45.0, 58.0, sample_type="venous"))
+    assert "P-MALK-CEILING" not in r.codes()
+
+
 # ---------------------------------------------------------------- respiratory acidosis
 # Methods E9, pCO2 60: acute 24 + 0.1 x 20 = 26 (band 24-28); chronic 24 + 0.35 x 20 = 31 (29-33).
 # Between 28 and 29 neither band holds: indeterminate (acute on chronic, or still adapting).
