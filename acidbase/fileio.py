@@ -1237,7 +1237,8 @@ class Writer:
 
     def encode(self, table: pa.Table,
                plain: frozenset[str] = frozenset()) -> tuple[pa.Schema, bytes | pa.Buffer | pa.Table]:
-        """``table`` made ready for ``put``: CSV or JSON Lines as bytes, Parquet as is.
+        """``table`` made ready for ``put``: CSV as Arrow's buffer of its text, JSON Lines
+        as bytes, Parquet as is.
 
         ``plain``: columns of this table the caller has read cell by cell and found
         to hold only numbers or its own vocabulary, so escaping would change nothing.

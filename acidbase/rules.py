@@ -19,6 +19,7 @@ from typing import Any
 
 import numpy as np
 
+from .compensation import METABOLIC_ALKALOSIS_PCO2_CEILING
 from .engine import (
     ACUTE,
     ARTERIAL,
@@ -33,7 +34,6 @@ from .engine import (
     VENOUS,
     Frame,
 )
-from .compensation import METABOLIC_ALKALOSIS_PCO2_CEILING
 from .fields import HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
 
 Row = Mapping[str, Any]
@@ -455,7 +455,8 @@ RULES: tuple[Rule, ...] = (
          "pCO2 rises about 0.7 mm[Hg] per mmol/L of HCO3- above 24; the band is wide.",
          ("berend_2014", "kidney360_2022")),
     Rule("P-MALK-CEILING", "process", "caution", "pCO2 beyond usual compensation",
-         lambda f: (f["metabolic_only"] & f["prim_met_alk"] & ~f["add_resp_acid"]
+         lambda f: (f["metabolic_only"] & f["prim_met_alk"] & (f["pco2"] >= f["expected_pco2_low"])
+                    & (f["pco2"] <= f["expected_pco2_high"])
                     & (f["pco2"] > METABOLIC_ALKALOSIS_PCO2_CEILING)
                     & (f["sample_type"] != VENOUS)),
          "pCO2 {pco2:.0f} mm[Hg] lies in the expected band but above about "

@@ -103,6 +103,12 @@ def test_pco2_above_the_band_is_the_additional_process_not_the_ceiling(interpret
     assert "P-MALK-ABOVE" in r.codes() and "P-MALK-CEILING" not in r.codes()
 
 
+def test_pco2_below_a_band_that_lies_above_55_is_the_additional_process(interpret):
+    # HCO3 55: band 40 + 0.7 x 31 +/- 5 = 56.7-66.7; pCO2 56 is above 55 but below the band.
+    r = interpret(edge_panel(55.0, 56.0))
+    assert "P-MALK-BELOW" in r.codes() and "P-MALK-CEILING" not in r.codes()
+
+
 def test_venous_pco2_is_not_read_against_the_ceiling(interpret):
     # Venous pCO2 runs higher than arterial by a variable amount (Kelly 2010).
     r = interpret(edge_panel(45.0, 58.0, sample_type="venous"))
