@@ -1235,8 +1235,8 @@ class Writer:
         elif self.fmt == "parquet":
             self._writer = pq.ParquetWriter(self._sink, self.schema)
 
-    def encode(self, table: pa.Table,
-               plain: frozenset[str] = frozenset()) -> tuple[pa.Schema, bytes | pa.Buffer | pa.Table]:
+    def encode(self, table: pa.Table, plain: frozenset[str] = frozenset()
+               ) -> tuple[pa.Schema, bytes | pa.Buffer | pa.Table]:
         """``table`` made ready for ``put``: CSV as Arrow's buffer of its text, JSON Lines
         as bytes, Parquet as is.
 

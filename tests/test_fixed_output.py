@@ -9,6 +9,7 @@ from __future__ import annotations
 import csv
 import io
 import math
+import re
 
 import numpy as np
 import pyarrow as pa
@@ -88,8 +89,6 @@ def test_a_base_excess_that_rounds_to_zero_prints_without_a_minus_sign():
     it = acidbase.interpret(panel)
     assert -0.05 < it.derived["standard_base_excess"] < 0
     from acidbase.report import as_markdown, as_text
-
-    import re
 
     for text in (as_text(it, working=True), as_markdown(it)):
         assert not re.search(r"-0\.0+(?![0-9])", text) and "SBE +0.0" in text
