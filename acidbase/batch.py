@@ -34,7 +34,7 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from . import fileio, serial
+from . import audit, config, fileio, hl7, serial
 from . import units as _units
 from .api import interpret_many
 from .engine import SLOTS
@@ -67,11 +67,13 @@ def configure_parser(p: argparse.ArgumentParser) -> None:
         "per input row, in input order, with status, reason, findings and serial checks. "
         + CAUTION)
     p.add_argument("input", metavar="INPUT",
-                   help="panel file (.csv, .jsonl, .parquet), or - for standard input")
+                   help="panel file (.csv, .jsonl, .parquet, or .hl7: HL7 v2 ORU^R01 messages), "
+                        "or - for standard input")
     p.add_argument("-o", "--output", metavar="OUTPUT",
                    help="output file (.csv, .jsonl, .parquet); default: CSV on stdout")
     g = p.add_argument_group("reading")
-    g.add_argument("--format", choices=fileio.FORMATS, help="input format (default: from the name)")
+    g.add_argument("--format", choices=(*fileio.FORMATS, hl7.FORMAT),
+                   help="input format (default: from the name and the first bytes)")
     g.add_argument("--delimiter", metavar="CHAR",
                    help="CSV delimiter: , ; | or tab (default: detected)")
     g.add_argument("--decimal", choices=(".", ","), help="decimal mark (default: detected)")
@@ -90,15 +92,18 @@ def configure_parser(p: argparse.ArgumentParser) -> None:
     g.add_argument("--chunk-rows", type=int, default=1 << 14, metavar="N",
                    help="rows per chunk (memory vs speed; default 16384)")
     s = p.add_argument_group("serial checks (need patient_id and collected_at)")
-    s.add_argument("--window-hours", type=float, default=serial.DEFAULT_WINDOW_HOURS,
+    s.add_argument("--window-hours", type=float, default=None,
                    metavar="H", help="compare panels of a patient at most H hours apart "
-                                     f"(default {serial.DEFAULT_WINDOW_HOURS:g})")
+                                     f"(default: the site file, else "
+                                     f"{serial.DEFAULT_WINDOW_HOURS:g})")
     s.add_argument("--delta", action="append", default=[], metavar="FIELD=LIMIT",
                    help="the laboratory's delta limit for a field, canonical unit, or 'off' "
                         "(repeatable)")
     s.add_argument("--no-serial", action="store_true", help="skip the serial checks")
     o = p.add_argument_group("output")
-    o.add_argument("--output-format", choices=fileio.FORMATS, help="default: from the name")
+    o.add_argument("--output-format", choices=(*fileio.FORMATS, "fhir"),
+                   help="default: from the name; fhir: one FHIR R4 Bundle per panel, one per "
+                        "line (needs acidbase[fhir])")
     o.add_argument("--output-delimiter", default=",", metavar="CHAR",
                    help="CSV output delimiter (default ,)")
     o.add_argument("--summary", metavar="FILE",
@@ -486,7 +491,7 @@ def plane_picture(plane: np.ndarray) -> str:
     return "\n".join(lines)
 
 
-def summary_text(t: Tally, notes: list[str]) -> str:
+def summary_text(t: Tally, notes: list[str], record: dict | None = None) -> str:
     lines = [f"acidbase batch: {t.rows:,} row{'' if t.rows == 1 else 's'}: "
              f"{t.rows - t.refused:,} interpreted, "
              f"{t.refused:,} refused; {t.review:,} need review"]
@@ -503,11 +508,13 @@ def summary_text(t: Tally, notes: list[str]) -> str:
                            ("serial flags", t.serial_codes), ("refusal reasons", t.reasons)):
         if counter:
             lines.append(f"  {title}: " + "; ".join(f"{k} {c:,}" for k, c in _ranked(counter)))
+    if record is not None:
+        lines += [f"  audit: {line}" for line in audit.lines(record)]
     lines.append(CAUTION)
     return "\n".join(lines)
 
 
-def summary_json(t: Tally, notes: list[str]) -> str:
+def summary_json(t: Tally, notes: list[str], record: dict | None = None) -> str:
     doc = {
         "rows": t.rows, "interpreted": t.rows - t.refused, "refused": t.refused,
         "needs_review": t.review, "notes": notes,
@@ -518,6 +525,8 @@ def summary_json(t: Tally, notes: list[str]) -> str:
         "serial_codes": dict(_ranked(t.serial_codes)),
         "refusal_reasons": dict(_ranked(t.reasons)), "caution": CAUTION,
     }
+    if record is not None:
+        doc["audit"] = record
     return json.dumps(doc, indent=2, ensure_ascii=False)
 
 
@@ -546,7 +555,7 @@ def _report_sections(t: Tally) -> tuple[tuple[str, Counter], ...]:
             ("Serial flags", t.serial_codes), ("Refusal reasons", t.reasons))
 
 
-def report_markdown(t: Tally, notes: list[str], source: str) -> str:
+def report_markdown(t: Tally, notes: list[str], source: str, record: dict | None = None) -> str:
     out = ["# Batch check report", "", f"Input: `{source}`", "", f"> {CAUTION}", "",
            "## Counts", "", "| | rows |", "|---|---:|", f"| read | {t.rows:,} |",
            f"| interpreted | {t.rows - t.refused:,} |", f"| refused | {t.refused:,} |",
@@ -566,11 +575,14 @@ def report_markdown(t: Tally, notes: list[str], source: str) -> str:
     else:
         out.append("None.")
     out += ["", "## Panels on the pCO2-HCO3 plane (interpreted rows)", "", "```",
-            plane_picture(t.plane), "```", "", f"> {CAUTION}", ""]
+            plane_picture(t.plane), "```", ""]
+    if record is not None:
+        out += ["## Audit record", ""] + [f"- {_md_cell(x)}" for x in audit.lines(record)] + [""]
+    out += [f"> {CAUTION}", ""]
     return "\n".join(out)
 
 
-def report_html(t: Tally, notes: list[str], source: str) -> str:
+def report_html(t: Tally, notes: list[str], source: str, record: dict | None = None) -> str:
     e = html.escape
 
     def table(counter: Counter) -> str:
@@ -601,19 +613,16 @@ def report_html(t: Tally, notes: list[str], source: str) -> str:
     else:
         parts.append("<p>None.</p>")
     parts += ["<h2>Panels on the pCO2-HCO3 plane (interpreted rows)</h2>",
-              f"<pre>{e(plane_picture(t.plane))}</pre>",
-              f"<p class='caution'>{e(CAUTION)}</p></body></html>"]
+              f"<pre>{e(plane_picture(t.plane))}</pre>"]
+    if record is not None:
+        parts += ["<h2>Audit record</h2>",
+                  "<ul>" + "".join(f"<li>{e(x)}</li>" for x in audit.lines(record)) + "</ul>"]
+    parts.append(f"<p class='caution'>{e(CAUTION)}</p></body></html>")
     return "\n".join(parts)
 
 
 # ---------------------------------------------------------------------------
 # The run
-
-
-def _settings(args: argparse.Namespace):
-    from .cli import settings_from_args
-
-    return settings_from_args(args)
 
 
 def _review_rules() -> list[int]:
@@ -701,8 +710,9 @@ def _lean_allocators() -> None:
 def _run(args: argparse.Namespace, label: str) -> int:
     """The run; ``label`` names the input in messages and the report."""
     _lean_allocators()
+    started = audit.now()
     units = _pairs(args.unit, "unit")
-    deltas = _delta_overrides(args.delta)
+    site = config.resolve(args, deltas=_delta_overrides(args.delta))
     delimiter = _DELIMS.get((args.delimiter or "").lower(), args.delimiter)
     if delimiter is not None and len(delimiter) != 1:
         raise BatchInputError(f"--delimiter {args.delimiter!r}: give one character, or 'tab'")
@@ -711,16 +721,26 @@ def _run(args: argparse.Namespace, label: str) -> int:
         raise BatchInputError(f"--output-delimiter {args.output_delimiter!r}: give one character")
     if args.chunk_rows < 1:
         raise BatchInputError("--chunk-rows must be at least 1")
-    if not args.window_hours > 0:
+    if not site.window_hours > 0:
         raise BatchInputError("--window-hours must be a positive number")
     if args.report and not args.report.lower().endswith((".md", ".html", ".htm")):
         raise BatchInputError("--report: name a .md or .html file")
     keep = _derived_columns(args.derived)
-    settings = _settings(args)
-    src = fileio.open_source(args.input, args.format, delimiter, args.encoding, args.missing,
-                             args.chunk_rows)
-    mapping = fileio.read_mapping(args.mapping) if args.mapping else None
-    layout = fileio.map_headers(src.headers, mapping, units, args.strict_columns)
+    settings = site.settings
+    fhir_out = args.output_format == "fhir"
+    if fhir_out:
+        from . import fhir
+
+        fhir.require()
+    if hl7.looks_like_hl7(args.input, args.format):
+        src = hl7.open_source(args.input, args.encoding, args.chunk_rows)
+    else:
+        src = fileio.open_source(args.input, args.format, delimiter, args.encoding, args.missing,
+                                 args.chunk_rows)
+    input_sha256 = audit.file_sha256(args.input)  # the audit record names the bytes read
+    mapping = fileio.read_mapping(site.mapping) if site.mapping else None
+    layout = fileio.map_headers(src.headers, mapping, units, args.strict_columns,
+                                defaults=site.units)
     if args.decimal:
         decimal = args.decimal
     elif src.format == "csv":
@@ -728,11 +748,11 @@ def _run(args: argparse.Namespace, label: str) -> int:
         decimal = fileio.detect_decimal(fileio.csv_sample(src), numeric_idx, src.delimiter)
     else:
         decimal = "."
-    notes = list(layout.notes)
+    notes = [*getattr(src, "notes", ()), *layout.notes]
     if src.format == "csv" and (src.delimiter != "," or decimal != "."):
         notes.append(f"read with delimiter {fileio._show_delims([src.delimiter])} and decimal "
                      f"{decimal!r}")
-    out_fmt = fileio.output_format(args.output, args.output_format)
+    out_fmt = "jsonl" if fhir_out else fileio.output_format(args.output, args.output_format)
     if args.output and os.path.abspath(args.output) == os.path.abspath(args.input):
         raise BatchInputError("the output file would overwrite the input")
     col_of = layout.column_of
@@ -742,7 +762,7 @@ def _run(args: argparse.Namespace, label: str) -> int:
     checker = None
     passes = 2 if do_serial else 1
     if do_serial:
-        checker = serial.SerialChecker(serial.rules_with(deltas), args.window_hours,
+        checker = serial.SerialChecker(serial.rules_with(site.deltas), site.window_hours,
                                        serial.SerialChecker.partitions_for(src.size))
         progress = Progress(src.estimated_rows(), not args.quiet)
         progress.label = "serial 1/2"
@@ -761,7 +781,8 @@ def _run(args: argparse.Namespace, label: str) -> int:
     def work(table: pa.Table, start: int, listed: int):
         """One chunk, on a worker thread: its output rows encoded for the writer, and
         its counts."""
-        out, meta = _process(table, layout, decimal, settings, checker, start, keep)
+        out, meta = _process(table, layout, decimal, settings, checker, start, keep,
+                             keep_results=fhir_out)
         names = _output_names(src.headers, meta["engine_cols"])
         cols = {ROW_COLUMN: pa.array(np.arange(start + 1, start + table.num_rows + 1))}
         for h in src.headers:
@@ -772,6 +793,10 @@ def _run(args: argparse.Namespace, label: str) -> int:
         part = Tally()
         tally_chunk(part, out, meta["pco2"], meta["hco3"], meta["refused"], meta["review"],
                     start, ids, meta["fired"], listed)
+        if fhir_out:
+            lines = fhir.chunk_bundles(table, layout, decimal, out, meta, site, start,
+                                       label, input_sha256)
+            return (fhir.LINE_SCHEMA, lines), part, names, table.num_rows
         plain = frozenset(names[h] for h in meta["plain"])
         return writer.encode(pa.table(cols), plain), part, names, table.num_rows
 
@@ -814,16 +839,20 @@ def _run(args: argparse.Namespace, label: str) -> int:
         writer.close(ok)
         if checker is not None:
             checker.close()
-    text = summary_json(tally, notes) if (args.summary or "").endswith(".json") else \
-        summary_text(tally, notes)
+    record = audit.record(site, started, input_name=label, input_path=args.input,
+                          input_sha256=input_sha256,
+                          rows={"read": tally.rows, "interpreted": tally.rows - tally.refused,
+                                "refused": tally.refused})
+    text = summary_json(tally, notes, record) if (args.summary or "").endswith(".json") else \
+        summary_text(tally, notes, record)
     if args.summary:
         with open(args.summary, "w", encoding="utf-8") as f:
             f.write(text + "\n")
     else:
         print(text, file=sys.stderr)
     if args.report:
-        doc = report_html(tally, notes, label) if args.report.lower().endswith(
-            (".html", ".htm")) else report_markdown(tally, notes, label)
+        doc = report_html(tally, notes, label, record) if args.report.lower().endswith(
+            (".html", ".htm")) else report_markdown(tally, notes, label, record)
         with open(args.report, "w", encoding="utf-8") as f:
             f.write(doc)
     return EXIT_OK
@@ -831,9 +860,11 @@ def _run(args: argparse.Namespace, label: str) -> int:
 
 def _process(table: pa.Table, layout: Layout, decimal: str, settings,
              checker: serial.SerialChecker | None, start: int,
-             keep: tuple[str, ...] = DERIVED) -> tuple[dict[str, pa.Array], dict]:
+             keep: tuple[str, ...] = DERIVED,
+             keep_results: bool = False) -> tuple[dict[str, pa.Array], dict]:
     n = table.num_rows
     cv = read_values(table, layout, decimal)
+    hl7.add_problems(table, cv.problems, cv.skip_missing)  # refusals the messages carry
     units = {k: v for k, v in layout.units.items() if v != BY_NAME[k].unit}
     res = interpret_many(cv.columns, units or None, settings)
     tab = res.encoded()  # text columns as (indices, labels): no cell-by-cell conversion
@@ -847,6 +878,7 @@ def _process(table: pa.Table, layout: Layout, decimal: str, settings,
     blanking = bool(blank.any())
     blank_rows = np.flatnonzero(blank)
     fired = res.fired
+    results = res if keep_results else None  # the FHIR output reads each row's reading
     del res  # the kernel's frame (about 150 columns) is not needed past here
     review = _review_mask(fired, refused)
     out: dict[str, pa.Array] = {}
@@ -904,7 +936,8 @@ def _process(table: pa.Table, layout: Layout, decimal: str, settings,
     plain = frozenset(col_of[f] for f in cv.plain)
     meta = {"engine_cols": engine_cols,
             "plain": plain, "refused": refused, "review": review, "fired": fired,
-            "pco2": _canonical(cv, layout, "pco2"), "hco3": _canonical(cv, layout, "hco3")}
+            "pco2": _canonical(cv, layout, "pco2"), "hco3": _canonical(cv, layout, "hco3"),
+            "results": results, "values": cv if keep_results else None}
     return out, meta
 
 

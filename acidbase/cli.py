@@ -15,11 +15,14 @@ from typing import Any
 
 from pydantic import ValidationError
 
+from . import audit
 from .api import interpret, interpret_many
+from .config import OBSERVATION_STATUSES, add_config_option, cmd_config
+from .config import resolve as resolve_site
 from .errors import AcidBaseError
 from .fields import HCO3_SOURCES, NUMERIC, SAMPLE_TYPES, TEXT_FIELDS
 from .model import Panel, describe
-from .reference import Settings
+from .reference import Settings  # noqa: TC001 (the settings_from_args annotation)
 from .report import as_text
 from .results import CAUTION
 
@@ -61,6 +64,9 @@ def add_settings_options(p: argparse.ArgumentParser) -> None:
                    help="judge the anion gap with K+ included (interval default 10 16)")
     s.add_argument("--reference-albumin", type=float, metavar="G_PER_L",
                    help="albumin to correct the gap to, g/L (default 44)")
+    s.add_argument("--fhir-status", choices=OBSERVATION_STATUSES,
+                   help="FHIR Observation status of machine readings (default preliminary)")
+    add_config_option(s)
 
 
 def panel_from_args(args: argparse.Namespace) -> dict[str, Any]:
@@ -80,18 +86,8 @@ def panel_from_args(args: argparse.Namespace) -> dict[str, Any]:
 
 
 def settings_from_args(args: argparse.Namespace) -> Settings:
-    kw: dict[str, Any] = {}
-    if getattr(args, "anion_gap_interval", None):
-        lo, hi = args.anion_gap_interval
-        if args.anion_gap_with_k:
-            kw["anion_gap_k_low"], kw["anion_gap_k_high"] = lo, hi
-        else:
-            kw["anion_gap_low"], kw["anion_gap_high"] = lo, hi
-    if getattr(args, "anion_gap_with_k", False):
-        kw["anion_gap_uses_k"] = True
-    if getattr(args, "reference_albumin", None) is not None:
-        kw["reference_albumin_g_l"] = args.reference_albumin
-    return Settings.checked(**kw)
+    """The laboratory settings: built-in defaults, the site file, then the options."""
+    return resolve_site(args).settings
 
 
 def _refuse(lines: Sequence[str]) -> int:
@@ -102,14 +98,25 @@ def _refuse(lines: Sequence[str]) -> int:
 
 
 def cmd_check(args: argparse.Namespace) -> int:
+    started = audit.now()
+    site = resolve_site(args)
+    data = panel_from_args(args)
+    for name, unit in site.units.items():  # the site's default units, where none is given
+        if name in data:
+            data.setdefault(f"{name}_unit", unit)
     try:
-        panel = Panel.model_validate(panel_from_args(args))
+        panel = Panel.model_validate(data)
     except ValidationError as e:
         return _refuse(describe(e))
-    settings = settings_from_args(args)
-    it = interpret(panel, settings)
-    if args.json:
-        print(json.dumps(it.to_dict(), indent=2, ensure_ascii=False, allow_nan=False))
+    it = interpret(panel, site.settings)
+    if args.fhir:
+        from .fhir import check_bundle_json
+
+        print(check_bundle_json(panel, it, site, started))
+    elif args.json:
+        doc = it.to_dict()
+        doc["audit"] = audit.record(site, started)
+        print(json.dumps(doc, indent=2, ensure_ascii=False, allow_nan=False))
     else:
         print(as_text(it, working=not args.brief), end="")
     return EXIT_OK
@@ -188,6 +195,8 @@ def build_parser() -> argparse.ArgumentParser:
     add_panel_options(check)
     check.add_argument("--json", action="store_true", help="print the JSON document")
     check.add_argument("--brief", action="store_true", help="leave out the working")
+    check.add_argument("--fhir", action="store_true",
+                       help="print the reading as a FHIR R4 Bundle (JSON; needs acidbase[fhir])")
     check.set_defaults(func=cmd_check)
     demo = sub.add_parser("demo", help="read the built-in demo panels")
     demo.add_argument("--json", action="store_true")
@@ -204,6 +213,15 @@ def build_parser() -> argparse.ArgumentParser:
     add_panel_options(tui)
     tui.add_argument("--demo", action="store_true", help="open with the demo panels loaded")
     tui.set_defaults(func=cmd_tui)
+    config = sub.add_parser("config", help="the site configuration in force",
+                            description="Show the settings in force and where each came from "
+                                        "(built-in default, configuration file, option).")
+    config_sub = config.add_subparsers(dest="action", required=True, metavar="ACTION")
+    show = config_sub.add_parser("show", help="print every setting and its origin")
+    add_settings_options(show)
+    show.set_defaults(func=cmd_config)
+    for p in (parser, check, demo, batch, tui, config, show):
+        p.add_argument("--version", action="version", version=f"acidbase {audit.version()}")
     return parser
 
 

@@ -238,7 +238,8 @@ def compute(s: Screened, settings: Settings) -> Frame:
     else:
         f["urea_used"] = v["urea"]
 
-    for name, (lo, hi) in interval_columns(s.sample_type, ("ph", "pco2", "hco3", "sbe")).items():
+    for name, (lo, hi) in interval_columns(s.sample_type, ("ph", "pco2", "hco3", "sbe"),
+                                                settings).items():
         f[f"{name}_lo"], f[f"{name}_hi"] = lo, hi
     ph_mid = (f["ph_lo"] + f["ph_hi"]) * 0.5
 
