@@ -34,7 +34,8 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from . import audit, config, fileio, hl7, serial
+from . import audit, config, fileio, serial
+from .files import hl7
 from . import units as _units
 from .api import interpret_many
 from .engine import SLOTS

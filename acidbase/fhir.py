@@ -378,7 +378,7 @@ def chunk_bundles(table: pa.Table, layout, decimal: str, out: Mapping[str, pa.Ar
     """The Bundles of one batch chunk, one JSON document per line, in row order."""
     from . import loinc
     from .fileio import split_unit
-    from .hl7 import CODES_COLUMN
+    from .files.hl7 import CODES_COLUMN
 
     cv, res, refused = meta["values"], meta["results"], meta["refused"]
     col_of = layout.column_of

@@ -36,10 +36,11 @@ from dataclasses import dataclass, field
 
 import pyarrow as pa
 
-from . import loinc
-from . import units as _units
-from .fields import BY_NAME, REQUIRED
-from .fileio import BatchInputError, Source
+from .. import loinc
+from .. import units as _units
+from ..errors import BatchInputError
+from ..fields import BY_NAME, REQUIRED
+from .source import Source
 
 FORMAT = "hl7"
 REFUSAL_COLUMN = "hl7_refusal"
