@@ -361,15 +361,29 @@ LINE_SCHEMA = pa.schema([("bundle", pa.string())])
 _CENSORED = re.compile(r"(<=|>=|<|>)\s*([+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?)")
 
 
-def _row_codes(cell: str | None) -> dict[str, tuple[str, str]]:
-    """``hl7_codes`` cell ``ph=2744-1/F;pco2=2019-8/F`` -> field -> (LOINC code, status)."""
-    out: dict[str, tuple[str, str]] = {}
+def _row_codes(cell: str | None) -> dict[str, tuple[str, str, str]]:
+    """``hl7_codes`` cell ``ph=2744-1/F/[pH];pco2=2019-8/F/kPa`` -> field -> (LOINC code,
+    OBX-11 status, unit as sent)."""
+    out: dict[str, tuple[str, str, str]] = {}
     for item in (cell or "").split(";"):
         name, _, rest = item.partition("=")
-        code, _, status = rest.partition("/")
+        code, _, rest = rest.partition("/")
+        status, _, unit = rest.partition("/")
         if name:
-            out[name] = (code, status)
+            out[name] = (code, status, unit)
     return out
+
+
+def _as_sent(name: str, value: float, column_unit: str, sent_unit: str) -> float:
+    """A value the reader took in the column's unit, back in the unit it was sent in
+    (HL7 panels of one field in mixed units share a column in the canonical unit)."""
+    from .units import factor
+
+    if not sent_unit or sent_unit == column_unit:
+        return value
+    kind = BY_NAME[name].kind
+    back = value * factor(name, kind, column_unit) / factor(name, kind, sent_unit)
+    return float(f"{back:.12g}")  # the round trip's last-digit noise, not the data
 
 
 def chunk_bundles(table: pa.Table, layout, decimal: str, out: Mapping[str, pa.Array],
@@ -411,10 +425,13 @@ def chunk_bundles(table: pa.Table, layout, decimal: str, out: Mapping[str, pa.Ar
                 value = float(m[2].replace(",", ".")) if m else math.nan
             if not math.isfinite(value):
                 continue
-            code, status = row_codes.get(name, (header_code.get(name), ""))
-            inputs.append(InputValue(name, value, layout.units.get(name, BY_NAME[name].unit),
-                                     comparator or None, flags[i] if flags else None,
-                                     code or None, OBX_STATUS.get(status, "unknown")))
+            code, status, sent = row_codes.get(name, (header_code.get(name), "", ""))
+            unit = layout.units.get(name, BY_NAME[name].unit)
+            if sent:
+                value, unit = _as_sent(name, value, unit, sent), sent
+            inputs.append(InputValue(name, value, unit, comparator or None,
+                                     flags[i] if flags else None, code or None,
+                                     OBX_STATUS.get(status, "unknown")))
         row = start + i + 1
         it = None if refused[i] else res.interpretation(i)
         ctx = Context(str(pids[i] or ""), str(ids[i] or ""), str(times[i] or ""),

@@ -356,7 +356,7 @@ def to_table(reading: Reading) -> tuple[pa.Table, list[str]]:
             notes.append(f"HL7: {spec.title} came in {', '.join(sorted(seen))}; read in {unit} "
                          "(converted with the UCUM factors)")
         cols[f"{name} ({unit})"] = cells
-    cols[CODES_COLUMN] = [";".join(f"{k}={v[2]}/{p.status[k]}" for k, v in p.values.items())
+    cols[CODES_COLUMN] = [";".join(f"{k}={v[2]}/{p.status[k]}/{v[1]}" for k, v in p.values.items())
                           for p in panels]
     cols[NOTES_COLUMN] = ["; ".join(p.notes) for p in panels]
     cols[REFUSAL_COLUMN] = ["; ".join(p.problems) for p in panels]
