@@ -214,7 +214,7 @@ def load(path: Path) -> tuple[SiteFile, str]:
         site = SiteFile.model_validate(data)
     except ValidationError as e:
         err = e.errors()[0]
-        key = ".".join(str(x) for x in err["loc"] if not str(x).startswith("function-"))
+        key = ".".join(str(x) for x in err["loc"] if str(x) != "[key]")
         reason = "unknown key" if err["type"] == "extra_forbidden" else err["msg"]
         more = f" (and {len(e.errors()) - 1} more)" if len(e.errors()) > 1 else ""
         raise ConfigError(f"configuration file {path}: key {key!r}: {reason}{more}") from None
