@@ -35,13 +35,13 @@ import pyarrow as pa
 import pyarrow.compute as pc
 
 from . import audit, config, fileio, serial
-from .files import hl7
 from . import units as _units
 from .api import interpret_many
 from .engine import SLOTS
 from .errors import AcidBaseError, Problem
 from .fields import BY_NAME, HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
 from .fileio import BatchInputError, Layout, Source
+from .files import hl7
 from .results import CAUTION, DECIMALS, DERIVED
 
 EXIT_OK, EXIT_CANNOT_RUN = 0, 2

@@ -22,7 +22,7 @@ from .config import resolve as resolve_site
 from .errors import AcidBaseError
 from .fields import HCO3_SOURCES, NUMERIC, SAMPLE_TYPES, TEXT_FIELDS
 from .model import Panel, describe
-from .reference import Settings  # noqa: TC001 (the settings_from_args annotation)
+from .reference import Settings
 from .report import as_text
 from .results import CAUTION
 

@@ -1,8 +1,8 @@
 """FHIR R4 out: one reading as a collection Bundle (HL7 FHIR R4 4.0.1, 2019).
 
-Per panel: the input Observations (LOINC where known, UCUM ``valueQuantity``, the
-comparator of a censored value, the interpretation from the laboratory flag), one
-Observation per derived value (``derivedFrom`` the inputs), one per finding (the
+Per panel: the input Observations (LOINC where known [loinc], UCUM ``valueQuantity``
+[ucum], the comparator of a censored value [fhir_quantity], the interpretation from
+the laboratory flag), one Observation per derived value (``derivedFrom`` the inputs), one per finding (the
 rule code and title in the project's code system, the statement as the value, the
 working and sources as notes, interpretation A or AA by severity), a
 DiagnosticReport whose conclusion holds the disorders and the caution, a Device
@@ -42,8 +42,15 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
 from . import audit
-from .codes import (DERIVED_INFO, DERIVED_SYSTEM, PROCESS_SYSTEM, READING_CODE,
-                    REPORT_SYSTEM, RULE_SYSTEM, process_code)
+from .codes import (
+    DERIVED_INFO,
+    DERIVED_SYSTEM,
+    PROCESS_SYSTEM,
+    READING_CODE,
+    REPORT_SYSTEM,
+    RULE_SYSTEM,
+    process_code,
+)
 from .errors import AcidBaseError
 from .fields import BY_NAME, NUMERIC
 from .results import CAUTION
@@ -355,7 +362,7 @@ __all__ = ["Context", "FhirError", "InputValue", "bundle", "check_bundle_json", 
 # ---------------------------------------------------------------------------
 # Batch: one Bundle per row, one per line (newline-delimited JSON)
 
-import pyarrow as pa  # noqa: E402  (only the batch half needs Arrow)
+import pyarrow as pa  # only the batch half needs Arrow
 
 LINE_SCHEMA = pa.schema([("bundle", pa.string())])
 _CENSORED = re.compile(r"(<=|>=|<|>)\s*([+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?)")

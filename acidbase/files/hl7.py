@@ -9,7 +9,7 @@ The wire format is read with the ``hl7`` package (python-hl7; optional extra
   the field through the one LOINC table (``acidbase.loinc``);
 * OBX-5 with OBX-2 ``NM`` or ``SN`` gives the value: an SN comparator is kept
   (``<^0.3`` -> ``<0.3``), so the reader treats it as a censored value; OBX-6
-  gives the unit, OBX-8 the abnormal flag (HL7 table 0078), written after the value
+  gives the unit, OBX-8 the abnormal flag (HL7 table 0078) [hl7_0078], written after the value
   (``7.21 L``) as a laboratory export would;
 * OBX-11 ``X`` (cannot be obtained), ``D`` (deleted) and ``W`` (wrong) results
   are skipped and counted (HL7 table 0085);
@@ -185,7 +185,7 @@ def read_message(hl7mod, number: int, position: int, segments: list[str],
                              f"segment {seg[:20]!r} has no valid segment id")]
     try:
         m = _Message(hl7mod, segments)
-    except Exception as e:  # the library's ParseException and its index errors alike
+    except Exception as e:  # noqa: BLE001  the library raises ParseException, IndexError...
         return [_refused(number, "", position, f"not a readable HL7 v2 message ({e})")]
     msg_id = m.get(0, 10)
     kind = f"{m.get(0, 9, 1)}^{m.get(0, 9, 2)}"
@@ -282,7 +282,8 @@ def _read_obx(m: _Message, k: int, where: int, p: Panel, status: str, skipped: C
 def read_spool(path: str, encoding: str = "utf-8") -> Reading:
     """Every message of the file; a malformed one becomes one refused row."""
     hl7mod = _require_library()
-    raw = open(path, "rb").read()
+    with open(path, "rb") as f:
+        raw = f.read()
     try:
         text = raw.decode(encoding).lstrip("\ufeff")
     except UnicodeDecodeError as e:

@@ -34,7 +34,7 @@ def test_version_everywhere(capsys, args):
 
 
 def test_check_json_carries_the_audit_record(capsys):
-    rc, out, _ = run(capsys, "check", *PANEL, "--json")
+    _, out, _ = run(capsys, "check", *PANEL, "--json")
     audit = json.loads(out)["audit"]
     assert (audit["tool"], audit["version"]) == ("acidbase", __version__)
     assert STAMP.match(audit["started"]) and STAMP.match(audit["ended"])
@@ -46,13 +46,13 @@ def test_check_json_carries_the_audit_record(capsys):
 def test_equal_settings_give_an_equal_hash_and_a_change_changes_it(capsys):
     digests = []
     for extra in ((), (), ("--reference-albumin", "40")):
-        rc, out, _ = run(capsys, "check", *PANEL, "--json", *extra)
+        _, out, _ = run(capsys, "check", *PANEL, "--json", *extra)
         digests.append(json.loads(out)["audit"]["settings_sha256"])
     assert digests[0] == digests[1] != digests[2]
 
 
 def test_derived_values_in_json_carry_their_units(capsys):
-    rc, out, _ = run(capsys, "check", *PANEL, "--json")
+    _, out, _ = run(capsys, "check", *PANEL, "--json")
     doc = json.loads(out)
     assert set(doc["derived_units"]) == set(doc["derived"])
     assert doc["derived_units"]["anion_gap"] == "mmol/L"

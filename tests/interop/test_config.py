@@ -41,7 +41,7 @@ def test_a_site_interval_changes_the_verdict_it_should(tmp_path, capsys):
 
 def test_the_site_interval_shows_in_the_working(tmp_path, capsys):
     path = site_file(tmp_path, "[intervals.venous]\npco2 = [41, 55]\n")
-    rc, out, _ = run(capsys, *VENOUS_52, "--config", path, "--json")
+    _, out, _ = run(capsys, *VENOUS_52, "--config", path, "--json")
     venous = next(f for f in json.loads(out)["findings"] if f["code"] == "T-SAMPLE-VENOUS")
     assert "pCO2 41-55 mm[Hg]" in venous["text"]
 
@@ -63,15 +63,15 @@ def test_the_file_is_found_by_option_then_variable_then_config_folder(tmp_path, 
 
 def test_options_override_the_file(tmp_path, capsys):
     path = site_file(tmp_path, "[anion_gap]\nlow = 3\nhigh = 11\n")
-    rc, out, _ = run(capsys, *VENOUS_52, "--config", path, "--anion-gap-interval", "4", "10",
+    _, out, _ = run(capsys, *VENOUS_52, "--config", path, "--anion-gap-interval", "4", "10",
                      "--json")
     settings = json.loads(out)["settings"]
     assert (settings["anion_gap_low"], settings["anion_gap_high"]) == (4.0, 10.0)
 
 
 @pytest.mark.parametrize("text, words", [
-    ("[intervals.venous]\npco2 = [55, 41]\n", "key 'intervals.venous.pco2': venous pco2 interval "
-                                              "55 to 41: give LOW < HIGH within 8 to 200"),
+    ("[intervals.venous]\npco2 = [55, 41]\n",
+     "key 'intervals.venous.pco2': venous pco2 interval 55 to 41: give LOW < HIGH within 8 to 200"),
     ("[intervals.venus]\npco2 = [41, 55]\n", "key 'intervals.venus'"),
     ("[anion_gap]\nlowest = 3\n", "key 'anion_gap.lowest': unknown key"),
     ("[units]\npco2 = \"bar\"\n", "key 'units.pco2': 'bar' is not a unit of pCO2"),
@@ -132,7 +132,7 @@ def test_batch_reads_window_and_deltas_from_the_file(tmp_path, capsys):
 
 def test_the_config_file_is_shown_in_the_outputs(tmp_path, capsys):
     path = site_file(tmp_path, "[intervals.venous]\npco2 = [41, 55]\n")
-    rc, out, _ = run(capsys, *VENOUS_52, "--config", path, "--json")
+    _, out, _ = run(capsys, *VENOUS_52, "--config", path, "--json")
     audit = json.loads(out)["audit"]
     assert audit["config_file"] == str(path)
     assert audit["settings"]["intervals.venous.pco2"] == [41.0, 55.0]

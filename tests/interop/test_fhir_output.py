@@ -160,7 +160,7 @@ def test_check_fhir_prints_one_valid_bundle(capsys):
 
 
 def test_observation_status_of_machine_readings_is_a_setting(capsys):
-    rc, out, _ = run(capsys, "check", "--ph", "7.4", "--pco2", "40", "--hco3", "24", "--na",
+    _, out, _ = run(capsys, "check", "--ph", "7.4", "--pco2", "40", "--hco3", "24", "--na",
                      "140", "--cl", "104", "--fhir", "--fhir-status", "final")
     doc = json.loads(out)
     assert resources(doc, "DiagnosticReport")[0]["status"] == "final"
@@ -219,7 +219,7 @@ def test_every_emitted_unit_is_valid_ucum():
 
 def test_a_critical_finding_is_interpreted_aa_and_a_caution_a(capsys):
     """pH 6.75 is outside 6.80-7.80 (T-PH-LIFE, critical)."""
-    rc, out, _ = run(capsys, "check", "--ph", "6.75", "--pco2", "60", "--hco3", "8.1", "--na",
+    _, out, _ = run(capsys, "check", "--ph", "6.75", "--pco2", "60", "--hco3", "8.1", "--na",
                      "140", "--cl", "100", "--fhir")
     doc = json.loads(out)
     got = {o["code"]["coding"][0]["code"]: o.get("interpretation", [{"coding": [{}]}])[0]

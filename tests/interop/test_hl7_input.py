@@ -101,8 +101,8 @@ def test_a_malformed_message_is_refused_with_its_position_and_the_others_read(tm
 
 
 @pytest.mark.parametrize("segment, words", [
-    ("OB|1|NM|2744-1^pH^LN||7.40|[pH]|||||F", "segment 'OB|1|NM|2744-1^pH^LN' has no valid "
-                                             "segment id"),
+    ("OB|1|NM|2744-1^pH^LN||7.40|[pH]|||||F",
+     "segment 'OB|1|NM|2744-1^pH^LN' has no valid segment id"),
     ("ZZZ", None),  # a site's own Z segment is allowed and passed over
 ])
 def test_segment_ids_are_checked(tmp_path, capsys, segment, words):
