@@ -38,12 +38,12 @@ from __future__ import annotations
 import argparse
 import hashlib
 import os
-import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Literal
+from typing import TYPE_CHECKING, Any
 
-from pydantic import BaseModel, ConfigDict, ValidationError, field_validator
+if TYPE_CHECKING:
+    from .sitefile import SiteFile
 
 from . import units as _units
 from .errors import AcidBaseError
@@ -59,61 +59,6 @@ DEFAULT_OBSERVATION_STATUS = "preliminary"  # until a person signs the reading o
 
 class ConfigError(ValueError, AcidBaseError):
     """A site configuration file that cannot be used; names the file and the key."""
-
-
-class _Strict(BaseModel):
-    model_config = ConfigDict(extra="forbid")
-
-
-class IntervalTable(_Strict):
-    ph: tuple[float, float] | None = None
-    pco2: tuple[float, float] | None = None
-    hco3: tuple[float, float] | None = None
-    sbe: tuple[float, float] | None = None
-
-
-class AnionGapSection(_Strict):
-    low: float | None = None
-    high: float | None = None
-    k_low: float | None = None
-    k_high: float | None = None
-    with_k: bool | None = None
-
-
-class AlbuminSection(_Strict):
-    reference_g_l: float | None = None
-
-
-class SerialSection(_Strict):
-    window_hours: float | None = None
-    delta: dict[str, float | Literal["off"]] = {}
-
-    @field_validator("window_hours")
-    @classmethod
-    def _positive(cls, v: float | None) -> float | None:
-        if v is not None and not v > 0:
-            raise ValueError("give a positive number of hours")
-        return v
-
-
-class BatchSection(_Strict):
-    mapping: str | None = None
-
-
-class FhirSection(_Strict):
-    observation_status: Literal["preliminary", "final", "registered", "amended"] | None = None
-
-
-class SiteFile(_Strict):
-    """The file's layout: unknown keys are refused, so a misspelt key never passes unseen."""
-
-    intervals: dict[Literal["arterial", "venous", "capillary", "unknown"], IntervalTable] = {}
-    anion_gap: AnionGapSection = AnionGapSection()
-    albumin: AlbuminSection = AlbuminSection()
-    serial: SerialSection = SerialSection()
-    units: dict[str, str] = {}
-    batch: BatchSection = BatchSection()
-    fhir: FhirSection = FhirSection()
 
 
 @dataclass(frozen=True)
@@ -201,7 +146,16 @@ def find(option: str | None) -> tuple[Path | None, str]:
 
 
 def load(path: Path) -> tuple[SiteFile, str]:
-    """Read and check one file; ``ConfigError`` names the file, the key and the reason."""
+    """Read and check one file; ``ConfigError`` names the file, the key and the reason.
+
+    The TOML parser and the file's models are imported here, not at start-up: most
+    runs have no file.
+    """
+    import tomllib
+
+    from pydantic import ValidationError
+
+    from .sitefile import SiteFile
     try:
         raw = path.read_bytes()
     except OSError as e:
