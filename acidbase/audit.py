@@ -39,12 +39,20 @@ def file_sha256(path: str, block: int = 1 << 20) -> str:
     return h.hexdigest()
 
 
-def record(site: Site, started: str, ended: str | None = None, *,
+_NOW = object()
+
+
+def record(site: Site, started: str, ended: str | None | object = _NOW, *,
            input_name: str | None = None, input_path: str | None = None,
            input_sha256: str | None = None, rows: dict[str, int] | None = None) -> dict[str, Any]:
-    """The audit record as a JSON-ready dict (keys in a fixed order)."""
-    doc: dict[str, Any] = {"tool": TOOL, "version": version(), "started": started,
-                           "ended": ended or now()}
+    """The audit record as a JSON-ready dict (keys in a fixed order).
+
+    ``ended`` defaults to now; None leaves it out (a record written before the end, as
+    in a Parquet file's metadata).
+    """
+    doc: dict[str, Any] = {"tool": TOOL, "version": version(), "started": started}
+    if ended is not None:
+        doc["ended"] = now() if ended is _NOW else ended
     if input_name is not None or input_path is not None:
         item: dict[str, Any] = {"name": input_name or input_path}
         if input_path is not None:
@@ -67,7 +75,8 @@ def record(site: Site, started: str, ended: str | None = None, *,
 
 def lines(doc: dict[str, Any]) -> list[str]:
     """The record as short text lines (the batch text summary and reports)."""
-    out = [f"made by {doc['tool']} {doc['version']}, {doc['started']} to {doc['ended']}"]
+    out = [f"made by {doc['tool']} {doc['version']}, {doc['started']} to "
+           f"{doc.get('ended', 'the end of the run')}"]
     if "input" in doc:
         i = doc["input"]
         size = f", {i['bytes']:,} bytes" if "bytes" in i else ""

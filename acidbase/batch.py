@@ -771,7 +771,10 @@ def _run(args: argparse.Namespace, label: str) -> int:
             _serial_pass(src, layout, decimal, checker, progress)
         finally:
             progress.end()
-    writer = fileio.Writer(args.output, out_fmt, out_delim, metadata={"caution": CAUTION},
+    writer = fileio.Writer(args.output, out_fmt, out_delim,
+                           metadata={"caution": CAUTION, "audit": json.dumps(audit.record(
+                               site, started, None, input_name=label, input_path=args.input,
+                               input_sha256=input_sha256))},
                            escape=escaped_columns(src.headers),
                            decimals={k: DECIMALS[k] for k in keep})
     tally = Tally()

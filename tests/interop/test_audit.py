@@ -86,3 +86,15 @@ def test_batch_report_and_text_summary_carry_the_audit_record(tmp_path, capsys, 
     text = report.read_text(encoding="utf-8")
     assert "Audit record" in text and digest in text and f"acidbase {__version__}" in text
     assert f"SHA-256 {digest}" in err  # the text summary on stderr
+
+
+def test_parquet_output_carries_the_audit_record_in_its_metadata(tmp_path, capsys):
+    import pyarrow.parquet as pq
+
+    out = tmp_path / "o.parquet"
+    rc, _, err = run(capsys, "batch", CSV, "-o", out)
+    assert rc == 0, err
+    record = json.loads(pq.read_schema(out).metadata[b"audit"])
+    assert record["version"] == __version__
+    assert record["input"]["sha256"] == hashlib.sha256(CSV.read_bytes()).hexdigest()
+    assert "ended" not in record  # written at the start; the summary has the end
