@@ -75,8 +75,8 @@ def record(site: Site, started: str, ended: str | None | object = _NOW, *,
 
 def lines(doc: dict[str, Any]) -> list[str]:
     """The record as short text lines (the batch text summary and reports)."""
-    out = [f"made by {doc['tool']} {doc['version']}, {doc['started']} to "
-           f"{doc.get('ended', 'the end of the run')}"]
+    end = doc.get("ended", "the end of the run")
+    out = [f"made by {doc['tool']} {doc['version']}, {doc['started']} to {end}"]
     if "input" in doc:
         i = doc["input"]
         size = f", {i['bytes']:,} bytes" if "bytes" in i else ""
