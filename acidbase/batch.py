@@ -740,7 +740,8 @@ def _run(args: argparse.Namespace, label: str) -> int:
                                  args.chunk_rows)
     input_sha256 = audit.file_sha256(args.input)  # the audit record names the bytes read
     mapping = fileio.read_mapping(site.mapping) if site.mapping else None
-    layout = fileio.map_headers(src.headers, mapping, units, args.strict_columns,
+    layout = fileio.map_headers(src.headers, mapping, units,
+                                args.strict_columns and src.format != hl7.FORMAT,
                                 defaults=site.units)
     if args.decimal:
         decimal = args.decimal

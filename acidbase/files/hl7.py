@@ -169,8 +169,13 @@ class _Message:
         return (v or "").strip()
 
 
-def _refused(message: int, message_id: str, position: int, reason: str) -> Panel:
+def _refused(message: int, message_id: str, position: int, reason: str,
+             known: Panel | None = None) -> Panel:
+    """One refused row for a whole message, with the ids read before the fault."""
     p = Panel(message, message_id, position)
+    if known is not None:
+        p.patient_id, p.sample_id, p.collected_at = (known.patient_id, known.sample_id,
+                                                     known.collected_at)
     p.problems.append(f"HL7 message {message} (segment {position} of the file) not read: "
                       f"{reason}")
     return p
@@ -220,7 +225,7 @@ def read_message(hl7mod, number: int, position: int, segments: list[str],
             status = m.get(k, 11).upper()
             if not status:
                 return [_refused(number, msg_id, where,
-                                 "OBX-11 (result status, required) is empty")]
+                                 "OBX-11 (result status, required) is empty", panels[-1])]
             _read_obx(m, k, where, panels[-1], status, skipped)
     if not panels:
         return [_refused(number, msg_id, position, "no OBR segment (no order to read)")]

@@ -47,7 +47,7 @@ def test_one_bundle_per_panel_in_file_order(spool_bundles):
     assert len(spool_bundles) == 5
     ids = [resources(b, "DiagnosticReport")[0].get("identifier", [{}])[0].get("value")
            for b in spool_bundles]
-    assert ids == ["SPC-1", "SPC-2", "SPC-3", None, "SPC-5"]
+    assert ids == ["SPC-1", "SPC-2", "SPC-3", "SPC-4", "SPC-5"]
 
 
 def test_every_bundle_validates_and_every_reference_resolves(spool_bundles):

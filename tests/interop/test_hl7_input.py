@@ -64,7 +64,7 @@ def test_a_spool_reads_to_the_same_readings_as_the_equivalent_csv(tmp_path, caps
 
 def test_each_order_group_is_one_row_in_file_order(tmp_path, capsys):
     rows, _ = _batch(capsys, tmp_path, SPOOL, "o")
-    assert [r["sample_id"] for r in rows] == ["SPC-1", "SPC-2", "SPC-3", "", "SPC-5"]
+    assert [r["sample_id"] for r in rows] == ["SPC-1", "SPC-2", "SPC-3", "SPC-4", "SPC-5"]
     assert [r["message"] for r in rows] == ["1", "2", "3", "4", "5"]
 
 
@@ -97,6 +97,7 @@ def test_a_malformed_message_is_refused_with_its_position_and_the_others_read(tm
     assert bad["reason"] == ("HL7 message 4 (segment 34 of the file) not read: OBX-11 (result "
                              "status, required) is empty")
     assert [r["status"] for r in rows].count("interpreted") == 4
+    assert (bad["patient_id"], bad["sample_id"]) == ("PT-1004", "SPC-4")  # read before the fault
     assert "Traceback" not in err
 
 
