@@ -147,3 +147,19 @@ def test_the_config_file_is_shown_in_the_outputs(tmp_path, capsys):
     assert doc["audit"]["config_file"] == str(path)
     assert doc["audit"]["settings"]["intervals.venous.pco2"] == [41.0, 55.0]
     assert doc["processes"] == {}  # the site's interval: no respiratory acidosis
+
+
+def test_the_default_mapping_file_is_found_beside_the_config_file(tmp_path, capsys):
+    import shutil
+
+    from .helpers import DATA, rows_of
+
+    batch_data = DATA.parent / "batch"
+    shutil.copy(batch_data / "lab_mapping.csv", tmp_path / "lab_mapping.csv")
+    path = site_file(tmp_path, "[batch]\nmapping = \"lab_mapping.csv\"\n")
+    out = tmp_path / "o.csv"
+    rc, _, err = run(capsys, "batch", batch_data / "lab_export.csv", "-o", out)
+    assert rc == 2 and "no column for required field" in err  # without the file
+    rc, _, err = run(capsys, "batch", batch_data / "lab_export.csv", "-o", out, "--config", path)
+    assert rc == 0, err
+    assert rows_of(out)[0]["sample_id"] == "X1"
