@@ -162,4 +162,4 @@ def test_the_default_mapping_file_is_found_beside_the_config_file(tmp_path, caps
     assert rc == 2 and "no column for required field" in err  # without the file
     rc, _, err = run(capsys, "batch", batch_data / "lab_export.csv", "-o", out, "--config", path)
     assert rc == 0, err
-    assert rows_of(out)[0]["sample_id"] == "X1"
+    assert rows_of(out)[0]["status"] == "interpreted"
