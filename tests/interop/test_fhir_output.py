@@ -228,3 +228,18 @@ def test_a_critical_finding_is_interpreted_aa_and_a_caution_a(capsys):
     assert got["T-PH-LIFE"] == "AA"
     assert {got[c] for c in got if SEVERITY[c] == "caution"} <= {"A"}
     assert {got[c] for c in got if SEVERITY[c] == "info"} <= {None}
+
+
+def test_a_csv_with_loinc_headers_gives_those_codes_and_units_back(tmp_path, capsys):
+    """Glucose under 2345-7 (mass concentration) is read, and written, in mg/dL."""
+    src = DATA.parent / "batch" / "loinc_headers.csv"
+    out = tmp_path / "o.ndjson"
+    rc, _, err = run(capsys, "batch", src, "--output-format", "fhir", "-o", out)
+    assert rc == 0, err
+    doc = json.loads(out.read_text(encoding="utf-8").splitlines()[0])
+    Bundle.model_validate(doc)
+    got = {o["code"]["coding"][0]["code"]: o["valueQuantity"]
+           for o in resources(doc, "Observation") if o.get("category")}
+    assert set(got) == {"2744-1", "2019-8", "1960-4", "2951-2", "2075-0", "2345-7"}
+    assert (got["2345-7"]["value"], got["2345-7"]["code"]) == (90.0, "mg/dL")
+    assert got["1960-4"]["value"] == 24.22
