@@ -417,33 +417,70 @@ def chunk_bundles(table: pa.Table, layout, decimal: str, out: Mapping[str, pa.Ar
     codes = (table[CODES_COLUMN].to_pylist() if CODES_COLUMN in table.column_names
              else [None] * n)
     reasons = out["reason"].to_pylist()
-    columns = {name: (p.values, p.comparator.to_pylist() if p.comparator is not None else None,
-                      p.flag.to_pylist() if p.flag is not None else None, p.text)
-               for name, p in cv.parsed.items()}
+    read = _reader_rows(cv, n) if cv is not None else None
     lines = []
     for i in range(n):
         row_codes = _row_codes(codes[i])
+        reading = res.interpretation(i)
+        raw = read[i] if read is not None else _interpretation_row(reading, layout)
         inputs = []
-        for name, (values, comparators, flags, text) in columns.items():
-            value = float(values[i])
-            comparator = comparators[i] if comparators is not None else None
-            if comparator:
-                m = _CENSORED.search(str(text[i].as_py() or ""))
-                value = float(m[2].replace(",", ".")) if m else math.nan
-            if not math.isfinite(value):
-                continue
+        for name, (value, comparator, flag) in raw.items():
             code, status, sent = row_codes.get(name, (header_code.get(name), "", ""))
             unit = layout.units.get(name, BY_NAME[name].unit)
             if sent:
                 value, unit = _as_sent(name, value, unit, sent), sent
-            inputs.append(InputValue(name, value, unit, comparator or None,
-                                     flags[i] if flags else None, code or None,
+            inputs.append(InputValue(name, value, unit, comparator, flag, code or None,
                                      OBX_STATUS.get(status, "unknown")))
         row = start + i + 1
-        it = None if refused[i] else res.interpretation(i)
+        it = None if refused[i] else reading
         ctx = Context(str(pids[i] or ""), str(ids[i] or ""), str(times[i] or ""),
                       reasons[i] or "", row)
         doc = bundle(it, inputs, site, ctx, input_name=input_name, input_sha256=input_sha256,
                      seed=f"{input_sha256}/{row}")
         lines.append(dumps(checked(doc)))
     return ("\n".join(lines) + "\n").encode("utf-8") if lines else b""
+
+
+Raw = dict[str, tuple[float, str | None, str | None]]
+"""Per field: the value in the column's unit, its comparator and its laboratory flag."""
+
+
+def _censored(text: str) -> tuple[str, float] | None:
+    m = _CENSORED.search(text or "")
+    return (m[1], float(m[2].replace(",", "."))) if m else None
+
+
+def _reader_rows(cv, n: int) -> list[Raw]:
+    """The reader's parsed columns (``ChunkValues``) as one ``Raw`` per row."""
+    rows: list[Raw] = [{} for _ in range(n)]
+    for name, p in cv.parsed.items():
+        comparators = p.comparator.to_pylist() if p.comparator is not None else [None] * n
+        flags = p.flag.to_pylist() if p.flag is not None else [None] * n
+        for i in range(n):
+            value = float(p.values[i])
+            if comparators[i]:
+                got = _censored(str(p.text[i].as_py() or ""))
+                value = got[1] if got else math.nan
+            if math.isfinite(value):
+                rows[i][name] = (value, comparators[i] or None, flags[i] or None)
+    return rows
+
+
+def _interpretation_row(it: Interpretation, layout) -> Raw:
+    """The same from one Interpretation: canonical inputs taken back to the column's unit,
+    censored values and flags from its marks ("lactate <0.3 L", "ph L")."""
+    from .units import factor
+
+    flags = dict(m.split(" ", 1) for m in getattr(it, "lab_flags", ()) if " " in m)
+    raw: Raw = {}
+    for name, item in it.inputs.items():
+        spec = BY_NAME[name]
+        unit = layout.units.get(name, spec.unit)
+        value = item["value"] / factor(name, spec.kind, unit)
+        raw[name] = (float(f"{value:.12g}"), None, flags.get(name))
+    for mark in getattr(it, "qualifiers", ()):
+        name, _, text = mark.partition(" ")
+        got = _censored(text)
+        if name in BY_NAME and got is not None:
+            raw[name] = (got[1], got[0], flags.get(name))
+    return raw
