@@ -733,6 +733,9 @@ def _run(args: argparse.Namespace, label: str) -> int:
         from . import fhir
 
         fhir.require()
+        if args.output and not args.output.lower().endswith((".ndjson", ".jsonl", ".json")):
+            raise BatchInputError("--output-format fhir writes one Bundle per line "
+                                  "(newline-delimited JSON): name the output .ndjson")
     if hl7.looks_like_hl7(args.input, args.format):
         src = hl7.open_source(args.input, args.encoding, args.chunk_rows)
     else:

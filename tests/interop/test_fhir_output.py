@@ -243,3 +243,10 @@ def test_a_csv_with_loinc_headers_gives_those_codes_and_units_back(tmp_path, cap
     assert set(got) == {"2744-1", "2019-8", "1960-4", "2951-2", "2075-0", "2345-7"}
     assert (got["2345-7"]["value"], got["2345-7"]["code"]) == (90.0, "mg/dL")
     assert got["1960-4"]["value"] == 24.22
+
+
+def test_fhir_output_to_a_file_named_for_another_format_could_not_run(tmp_path, capsys):
+    rc, _, err = run(capsys, "batch", SPOOL, "--output-format", "fhir",
+                     "-o", tmp_path / "o.parquet")
+    assert rc == 2 and "name the output .ndjson" in err
+    assert not (tmp_path / "o.parquet").exists()
