@@ -220,3 +220,26 @@ def test_hl7_without_the_optional_library_says_how_to_install_it(tmp_path, capsy
     monkeypatch.setattr(builtins, "__import__", no_hl7)
     rc, _, err = run(capsys, "batch", SPOOL, "-o", tmp_path / "o.csv")
     assert rc == 2 and "acidbase[hl7]" in err
+
+
+@pytest.mark.parametrize("ph_code, pco2_code, kind", [
+    ("2746-6", "2021-4", "venous"),      # pH and pCO2 of Venous blood
+    ("2745-8", "11557-6", "capillary"),  # pH of Capillary blood; pCO2 of Blood says nothing
+    ("2744-1", "2021-4", "unknown"),     # arterial and venous codes disagree
+])
+def test_without_spm4_the_gas_codes_set_the_sample_type(tmp_path, capsys, ph_code, pco2_code,
+                                                        kind):
+    segs = _simple([])
+    segs[3] = obx(1, "NM", f"{ph_code}^pH^LN", "7.36", "[pH]")
+    segs[4] = obx(2, "NM", f"{pco2_code}^pCO2^LN", "46", "mm[Hg]")
+    rows, _ = _batch(capsys, tmp_path, write_spool(tmp_path / "s.hl7", segs), "o")
+    assert rows[0]["sample_type"] == kind
+
+
+def test_deleted_and_wrong_results_are_skipped_and_counted(tmp_path, capsys):
+    segs = _simple([obx(6, "NM", "2823-3^K^LN", "9.9", "mmol/L", status="D"),
+                    obx(7, "NM", "2524-7^Lactate^LN", "8.0", "mmol/L", status="W")])
+    rows, err = _batch(capsys, tmp_path, write_spool(tmp_path / "dw.hl7", segs), "o")
+    assert rows[0]["status"] == "interpreted"
+    assert "k (mmol/L)" not in rows[0] and "lactate (mmol/L)" not in rows[0]
+    assert "2 result(s) skipped by status (X/D/W) D 1, W 1" in err
