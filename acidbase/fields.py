@@ -25,6 +25,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from . import units as _units
+from .inputs.vocab import CHOICE_BY_NAME, CHOICES  # noqa: F401  (re-exported)
 
 
 @dataclass(frozen=True)
@@ -114,8 +115,9 @@ LOINC_FROM_MEMORY: frozenset[str] = frozenset(
      "2705-2", "11556-8", "2069-3", "22664-7", "3150-0", "2519-7", "32693-4"}
 )
 
-SAMPLE_TYPES: tuple[str, ...] = ("arterial", "venous", "capillary", "unknown")
-HCO3_SOURCES: tuple[str, ...] = ("analyser", "chemistry", "unknown")
+#: The words of the choice inputs (declared once, in ``acidbase.inputs.vocab``).
+SAMPLE_TYPES: tuple[str, ...] = CHOICE_BY_NAME["sample_type"].words
+HCO3_SOURCES: tuple[str, ...] = CHOICE_BY_NAME["hco3_source"].words
 
 #: Text fields carried with a panel; they do not enter the chemistry.
 TEXT_FIELDS: tuple[str, ...] = ("sample_id", "patient_id", "collected_at")

@@ -58,7 +58,7 @@ def as_json_dict(it: Interpretation) -> dict[str, Any]:
         "schema": SCHEMA,
         "caution": it.caution,
         "status": it.status,
-        "problems": list(it.problems),
+        "problems": [str(p) for p in it.problems],
         "sample_type": it.sample_type,
         "hco3_source": it.hco3_source,
         "inputs": it.inputs,

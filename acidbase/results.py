@@ -20,6 +20,7 @@ import numpy as np
 from . import engine
 from .engine import CONSISTENCY_NAMES, ROLE_NAMES, SLOTS, TIMING_NAMES, VALID_WHEN, Frame
 from .fields import HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
+from .errors import Problem
 from .model import Screened
 from .reference import Settings
 from .references import Citation, cite
@@ -111,7 +112,8 @@ class Consistency:
 class Interpretation:
     status: str
     """"interpreted" or "refused"."""
-    problems: tuple[str, ...]
+    problems: tuple[Problem, ...]
+    """Why the panel was refused: structured (``str(p)`` is the sentence)."""
     inputs: dict[str, dict[str, Any]]
     sample_type: str
     hco3_source: str
@@ -121,6 +123,10 @@ class Interpretation:
     findings: tuple[Finding, ...]
     caution: str = CAUTION
     settings: dict[str, Any] = field(default_factory=dict)
+    qualifiers: tuple[str, ...] = ()
+    """Censored values read and treated as not measured ("lactate <0.3")."""
+    lab_flags: tuple[str, ...] = ()
+    """Laboratory flags read off values ("ph L")."""
 
     def codes(self) -> list[str]:
         return [f.code for f in self.findings]
@@ -171,6 +177,61 @@ class Results:
         self.refused = _join([p.screened.refused for p in parts])
         self._starts = np.array([p.start for p in parts])
 
+    # -- the sequence protocol: one Interpretation per panel --------------------
+    def __len__(self) -> int:
+        return self.n
+
+    def __getitem__(self, i: int) -> Interpretation:
+        if isinstance(i, (bool, np.bool_)) or not isinstance(i, (int, np.integer)):
+            raise TypeError(f"Results index must be an integer, not {type(i).__name__}")
+        i = int(i)
+        if i < 0:
+            i += self.n
+        return self.interpretation(i)
+
+    def __iter__(self):
+        return (self.interpretation(i) for i in range(self.n))
+
+    def __repr__(self) -> str:
+        refused = int(np.count_nonzero(self.refused))
+        return f"<Results: {self.n} panel(s), {self.n - refused} interpreted, {refused} refused>"
+
+    # -- what the reader found, structured ------------------------------------
+    def problems(self) -> dict[int, list[Problem]]:
+        """Refused row -> its problems (row numbers over the whole input)."""
+        return {p.start + i: plist for p in self.parts for i, plist in p.screened.problems.items()}
+
+    def problem_counts(self) -> dict[str, int]:
+        """How many times each kind of problem refused a row, by ``Problem.label``."""
+        out: dict[str, int] = {}
+        for p in self.parts:
+            for plist in p.screened.problems.values():
+                for prob in plist:
+                    out[prob.label] = out.get(prob.label, 0) + 1
+        return out
+
+    def qualifiers(self) -> list[tuple[str, ...]]:
+        """Per row: censored values read and treated as not measured ("lactate <0.3")."""
+        return [q for p in self.parts for q in p.screened.qualifiers()]
+
+    def lab_flags(self) -> list[tuple[str, ...]]:
+        """Per row: laboratory flags read off values ("ph L")."""
+        return [f for p in self.parts for f in p.screened.lab_flags()]
+
+    def has_marks(self) -> bool:
+        """True when some value carried a comparator or a laboratory flag."""
+        return any(p.screened.readings for p in self.parts)
+
+    def values(self, name: str) -> np.ndarray:
+        """A numeric input in its canonical unit (NaN where not measured or refused)."""
+        return _join([p.screened.values[name] for p in self.parts])
+
+    @property
+    def plain(self) -> frozenset[str]:
+        """Input fields read in full as bare numbers or allowed words (every part)."""
+        sets = [p.screened.plain for p in self.parts]
+        return frozenset.intersection(*sets) if sets else frozenset()
+
     @functools.cached_property
     def reasons(self) -> np.ndarray:
         """Object array: "" for accepted rows, the refusal reasons otherwise."""
@@ -212,10 +273,12 @@ class Results:
                   for s in NUMERIC if _value(r[s.name]) is not None}
         st, src = SAMPLE_TYPES[r["sample_type"]], HCO3_SOURCES[r["hco3_source"]]
         settings = dict(self.settings.__dict__)
+        marks = {"qualifiers": part.screened.qualifiers()[j] if part.screened.readings else (),
+                 "lab_flags": part.screened.lab_flags()[j] if part.screened.readings else ()}
         if part.screened.refused[j]:
-            probs = tuple(str(p) for p in part.screened.problems.get(j, []))
+            probs = tuple(part.screened.problems.get(j, []))
             return Interpretation("refused", probs, inputs, st, src, None, (), {}, (),
-                                  settings=settings)
+                                  settings=settings, **marks)
         consistency = Consistency(
             CONSISTENCY_NAMES[r["consistency"]], src, _value(r["hco3"]),
             _value(r["hco3_calculated"]), _value(r["total_co2_calculated"]),
@@ -231,7 +294,7 @@ class Results:
                         render(rule, rule.text, r), render(rule, rule.working, r), rule.why,
                         cite(*rule.refs)))
         return Interpretation("interpreted", (), inputs, st, src, consistency, disorders,
-                              derived, tuple(findings), settings=settings)
+                              derived, tuple(findings), settings=settings, **marks)
 
     @staticmethod
     def _disorders(r: Mapping[str, Any]) -> tuple[Disorder, ...]:

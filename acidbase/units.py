@@ -75,6 +75,8 @@ FACTORS: dict[str, dict[str, float]] = {
 
 def normalise(unit: str) -> str:
     """The UCUM code for a unit label, accepting the common aliases."""
+    if not isinstance(unit, str):
+        return repr(unit)
     text = unit.strip()
     return ALIASES.get(text.lower(), text)
 
@@ -84,8 +86,10 @@ def factor(field: str, kind: str, unit: str) -> float:
 
     Raises ``UnitError`` naming the field and the units it accepts.
     """
-    code = normalise(unit)
     table = FACTORS[kind]
+    if not isinstance(unit, str):
+        raise UnitError(field=field, unit=repr(unit), accepted=tuple(table))
+    code = normalise(unit)
     if code not in table:
         raise UnitError(field=field, unit=unit, accepted=tuple(table))
     return table[code]

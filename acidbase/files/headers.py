@@ -34,6 +34,8 @@ class Layout:
     """Numeric field -> unit label (UCUM), for every numeric field present."""
     notes: tuple[str, ...] = ()
     """Things the user should know (columns passed through unread...)."""
+    missing: tuple[str, ...] = ()
+    """Cell texts that mean "not measured" (``--missing``)."""
 
     @property
     def column_of(self) -> dict[str, str]:

@@ -1,0 +1,194 @@
+"""``check_table``: one Arrow batch of panels in, the same rows checked out.
+
+What ``acidbase batch`` does for one chunk, as a library function with no
+command line inside: any engine that maps a function over Arrow batches can call
+it.  Each cell is read by the one cell reader (``acidbase.inputs``) inside
+``interpret_many``, so a row's refusal is decided once, there, and travels as
+``Problem`` objects until the ``reason`` column is written.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+import numpy as np
+import pyarrow as pa
+import pyarrow.compute as pc
+
+from .. import serial
+from ..api import interpret_many
+from ..fields import BY_NAME
+from ..reference import Settings
+from ..results import CAUTION, DERIVED
+from .headers import Layout, map_headers
+
+#: Columns ``check_table`` adds around the kernel's own (``Results.encoded``).
+ROW_COLUMN = "row"
+EXTRA_COLUMNS: tuple[str, ...] = ("needs_review", "qualifiers", "lab_flags",
+                                  *serial.COLUMNS, "caution")
+
+
+def review_rules() -> list[int]:
+    """Indices of the rules that put a row up for review: the trust findings above
+    "info" (the panel itself is in doubt)."""
+    from ..rules import RULES
+
+    return [j for j, r in enumerate(RULES) if r.section == "trust" and r.severity != "info"]
+
+
+def review_mask(fired: np.ndarray, refused: np.ndarray) -> np.ndarray:
+    """Refused, or a trust finding above "info" (the serial flags are added later)."""
+    idx = review_rules()
+    trust = fired[idx].any(axis=0) if idx else np.zeros(len(refused), dtype=bool)
+    return refused | trust
+
+
+def sparse_text(col: np.ndarray, where: np.ndarray) -> pa.Array:
+    """Text that is "" except on the rows of ``where`` (converted only there)."""
+    idx = np.flatnonzero(where)
+    if idx.size == 0:
+        return pa.repeat(pa.scalar("", pa.string()), len(col))
+    pos = np.full(len(col), -1, dtype=np.int64)
+    pos[idx] = np.arange(idx.size)
+    values = pa.array(col[idx], type=pa.string())
+    return pc.fill_null(pc.take(values, pa.array(pos, mask=pos < 0)), "")
+
+
+def _marks_column(marks: list[tuple[str, ...]] | None, n: int) -> pa.Array:
+    """Per-row marks ("lactate <0.3") written as one text cell, "; " between them."""
+    if marks is None:
+        return pa.repeat(pa.scalar("", pa.string()), n)
+    return pa.array(["; ".join(m) for m in marks], type=pa.string())
+
+
+def chunk_columns(table: pa.Table | pa.RecordBatch, layout: Layout) -> dict[str, Any]:
+    """The input columns the kernel reads, by field name (Arrow columns, as read)."""
+    return {fld: table.column(h) for h, fld in layout.field_of.items()
+            if fld in BY_NAME or fld in ("sample_type", "hco3_source")}
+
+
+def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
+                settings: Settings | None, checker: serial.SerialChecker | None, start: int,
+                keep: tuple[str, ...] = DERIVED, missing: Sequence[str] = ()
+                ) -> tuple[dict[str, pa.Array], dict]:
+    """The output columns of one chunk (kernel, review, marks, serial, caution) and what
+    the summary needs (``meta``: refused and review masks, fired rules, counts)."""
+    n = table.num_rows
+    units = {k: v for k, v in layout.units.items() if v != BY_NAME[k].unit}
+    res = interpret_many(chunk_columns(table, layout), units or None, settings,
+                         decimal=decimal, missing=tuple(missing) or layout_missing(layout))
+    tab = res.encoded()  # text columns as (indices, labels): no cell-by-cell conversion
+    refused = np.asarray(res.refused, dtype=bool)
+    counts = {"reasons": Counter(res.problem_counts())}
+    marks = res.has_marks()
+    quals = res.qualifiers() if marks else None
+    flags = res.lab_flags() if marks else None
+    counts["qualifiers"] = _qualifier_counts(res) if marks else Counter()
+    counts["lab_flags"] = Counter(f for row in flags for f in row) if marks else Counter()
+    fired = res.fired
+    pco2, hco3 = res.values("pco2"), res.values("hco3")
+    plain_fields = res.plain
+    del res  # the kernel's frame (about 150 columns) is not needed past here
+    review = review_mask(fired, refused)
+    out: dict[str, pa.Array] = {}
+    engine_cols = [k for k in tab if not (k in DERIVED and k not in keep)]
+    for key in engine_cols:
+        col = tab.pop(key)  # each numpy column is let go once it is an Arrow one
+        if key == "status":  # two values: built from the mask, not converted cell by cell
+            arr = pc.if_else(pa.array(refused), "refused", "interpreted")
+        elif key == "reason":
+            arr = sparse_text(col, refused)
+        elif isinstance(col, tuple):
+            indices, labels = col
+            arr = pa.DictionaryArray.from_arrays(
+                pa.array(indices, type=pa.int32()), pa.array(labels, type=pa.string())
+            ).cast(pa.string())
+        elif col.dtype == object:
+            arr = pa.array(col, type=pa.string())
+        elif col.dtype.kind == "f":
+            arr = pa.array(col, mask=np.isnan(col))
+        else:
+            arr = pa.array(col)
+        out[key] = arr
+    if checker is not None:
+        scols = checker.arrow_columns(start, start + n)
+        review = review | (checker.status[start:start + n] == serial.FLAGGED)
+    else:
+        scols = {"serial_status": pa.repeat(pa.scalar("not run"), n),
+                 "serial_codes": pa.repeat(pa.scalar(""), n),
+                 "serial_detail": pa.repeat(pa.scalar(""), n)}
+    out["needs_review"] = pc.if_else(pa.array(review), "yes", "no")
+    out["qualifiers"] = _marks_column(quals, n)
+    out["lab_flags"] = _marks_column(flags, n)
+    for k in serial.COLUMNS:
+        out[k] = scols[k]
+    first = CAUTION if start == 0 else None
+    out["caution"] = pa.concat_arrays([pa.array([first], type=pa.string()),
+                                       pa.nulls(n - 1, pa.string())]) if n else \
+        pa.array([], type=pa.string())
+    # Input columns read in full as numbers (or as allowed words) carry nothing a
+    # spreadsheet would run: their escaping is skipped (it would change no cell).
+    col_of = layout.column_of
+    plain = frozenset(col_of[f] for f in plain_fields if f in col_of)
+    meta = {"engine_cols": engine_cols, "plain": plain, "refused": refused, "review": review,
+            "fired": fired, "pco2": pco2, "hco3": hco3, "counts": counts}
+    return out, meta
+
+
+def layout_missing(layout: Layout) -> tuple[str, ...]:
+    return tuple(getattr(layout, "missing", ()) or ())
+
+
+def _qualifier_counts(res) -> Counter:
+    """Censored values by field and comparator ("lactate <#"), from the structured reading."""
+    out: Counter = Counter()
+    for part in res.parts:
+        for name, p in part.screened.readings.items():
+            if p.comparator is None:
+                continue
+            vc = pc.value_counts(p.comparator.drop_null())
+            for cmp, c in zip(vc.field("values").to_pylist(), vc.field("counts").to_pylist()):
+                out[f"{name} {cmp}#"] += c
+    return out
+
+
+def output_names(headers: Sequence[str], engine_cols: Sequence[str]) -> dict[str, str]:
+    """Input header -> output name (renamed only when it collides with ours)."""
+    ours = {ROW_COLUMN, *engine_cols, *EXTRA_COLUMNS}
+    return {h: (f"{h} (input)" if h in ours else h) for h in headers}
+
+
+def check_table(table: pa.Table | pa.RecordBatch, settings: Settings | None = None, *,
+                units: Mapping[str, str] | None = None,
+                mapping: Mapping[str, tuple[str, str | None]] | None = None,
+                decimal: str = ".", missing: Sequence[str] = (),
+                derived: Sequence[str] = DERIVED, start: int = 0) -> pa.Table:
+    """Check every panel of one Arrow batch: the batch file's rows for it.
+
+    Headers are read as ``acidbase batch`` reads them (field names, LOINC codes with
+    their specimen, ``mapping``: header -> (field, unit)); ``units`` as ``--unit``.
+    The result has one row per input row, in order: ``row`` (``start`` + 1 onwards),
+    every input column passed through (renamed "<name> (input)" where it collides
+    with ours), then status, reason, the reading, derived values, review, marks,
+    serial columns ("not run": they need the whole file) and the caution.
+
+    Raises ``BatchInputError`` when the headers cannot be read as panels (a required
+    field without a column, two columns for one field...).
+    """
+    if isinstance(table, pa.RecordBatch):
+        table = pa.Table.from_batches([table])
+    layout = map_headers(table.schema.names, mapping, units)
+    out, meta = check_chunk(table, layout, decimal, settings, None, start,
+                            tuple(derived), missing)
+    names = output_names(layout.headers, meta["engine_cols"])
+    cols: dict[str, Any] = {ROW_COLUMN: pa.array(np.arange(start + 1, start + table.num_rows + 1))}
+    for h in layout.headers:
+        cols[names[h]] = table.column(h)
+    cols.update(out)
+    return pa.table(cols)
+
+
+__all__ = ["EXTRA_COLUMNS", "ROW_COLUMN", "check_chunk", "check_table", "output_names",
+           "review_mask", "review_rules"]
