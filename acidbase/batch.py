@@ -16,7 +16,7 @@ laboratory flag after a value (``7.21 L``) is read off, recorded in
 
 from __future__ import annotations
 
-import argparse
+from typing import TYPE_CHECKING
 import dataclasses
 import ctypes
 import html
@@ -44,6 +44,9 @@ from .files.check import (EXTRA_COLUMNS, ROW_COLUMN, check_chunk, output_names, 
                           review_mask, review_rules)
 from .results import CAUTION, DECIMALS, DERIVED
 
+if TYPE_CHECKING:  # the command line (argparse) lives in acidbase.cli only
+    import argparse
+
 EXIT_OK, EXIT_CANNOT_RUN = 0, 2
 
 # Columns the batch adds around the kernel's own, and one chunk's check: acidbase.files.check.
@@ -60,60 +63,6 @@ _DELIMS = {"tab": "\t", "\\t": "\t", "comma": ",", "semicolon": ";", "pipe": "|"
 
 # ---------------------------------------------------------------------------
 # Command line
-
-
-def configure_parser(p: argparse.ArgumentParser) -> None:
-    """Options of ``acidbase batch``."""
-    p.description = (
-        "Check every panel in a file (CSV, JSON Lines or Parquet) and write one output row "
-        "per input row, in input order, with status, reason, findings and serial checks. "
-        + CAUTION)
-    p.add_argument("input", metavar="INPUT",
-                   help="panel file (.csv, .jsonl, .parquet), or - for standard input")
-    p.add_argument("-o", "--output", metavar="OUTPUT",
-                   help="output file (.csv, .jsonl, .parquet); default: CSV on stdout")
-    g = p.add_argument_group("reading")
-    g.add_argument("--format", choices=fileio.FORMATS, help="input format (default: from the name)")
-    g.add_argument("--delimiter", metavar="CHAR",
-                   help="CSV delimiter: , ; | or tab (default: detected)")
-    g.add_argument("--decimal", choices=(".", ","), help="decimal mark (default: detected)")
-    g.add_argument("--encoding", default="utf-8", help="text encoding (default utf-8, BOM or not)")
-    g.add_argument("--map", metavar="FILE", dest="mapping",
-                   help="mapping file: CSV with columns header,field[,unit] for a laboratory's "
-                        "own export headers")
-    g.add_argument("--unit", action="append", default=[], metavar="FIELD=UNIT",
-                   help="unit of a column, e.g. pco2=kPa (repeatable; default: the field's "
-                        "canonical unit)")
-    g.add_argument("--missing", action="append", default=[], metavar="TOKEN",
-                   help="a cell text that means 'not measured', e.g. --missing NA (repeatable; "
-                        "only empty cells by default)")
-    g.add_argument("--strict-columns", action="store_true",
-                   help="stop when a column is not recognised (default: pass it through)")
-    g.add_argument("--chunk-rows", type=int, default=1 << 14, metavar="N",
-                   help="rows per chunk (memory vs speed; default 16384)")
-    s = p.add_argument_group("serial checks (need patient_id and collected_at)")
-    s.add_argument("--window-hours", type=float, default=serial.DEFAULT_WINDOW_HOURS,
-                   metavar="H", help="compare panels of a patient at most H hours apart "
-                                     f"(default {serial.DEFAULT_WINDOW_HOURS:g})")
-    s.add_argument("--delta", action="append", default=[], metavar="FIELD=LIMIT",
-                   help="the laboratory's delta limit for a field, canonical unit, or 'off' "
-                        "(repeatable)")
-    s.add_argument("--no-serial", action="store_true", help="skip the serial checks")
-    o = p.add_argument_group("output")
-    o.add_argument("--output-format", choices=fileio.FORMATS, help="default: from the name")
-    o.add_argument("--output-delimiter", default=",", metavar="CHAR",
-                   help="CSV output delimiter (default ,)")
-    o.add_argument("--summary", metavar="FILE",
-                   help="write the summary here (.json for JSON) instead of stderr")
-    o.add_argument("--report", metavar="FILE",
-                   help="summary report with flagged rows and the pCO2-HCO3 plane (.md or .html)")
-    o.add_argument("--derived", default="all", metavar="all|none|NAME,...",
-                   help="derived-value columns to write (default all; formatting numbers is "
-                        "most of the time of writing CSV)")
-    o.add_argument("--quiet", action="store_true", help="no progress bar")
-    from .cli import add_settings_options
-
-    add_settings_options(p)
 
 
 def _pairs(items: list[str], what: str) -> dict[str, str]:
@@ -493,9 +442,10 @@ def report_html(t: Tally, notes: list[str], source: str) -> str:
 
 
 def _settings(args: argparse.Namespace):
-    from .cli import settings_from_args
+    """The laboratory settings the command line built (``acidbase.cli`` sets them)."""
+    from .reference import Settings
 
-    return settings_from_args(args)
+    return getattr(args, "settings", None) or Settings()
 
 
 def escaped_columns(headers: tuple[str, ...]) -> list[str]:
@@ -731,4 +681,4 @@ def run(args: argparse.Namespace) -> int:
     return EXIT_CANNOT_RUN
 
 
-__all__ = ["configure_parser", "run", "plane_picture"]
+__all__ = ["run", "plane_picture"]
