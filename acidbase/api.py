@@ -14,7 +14,7 @@ import numpy as np
 import pyarrow as pa
 
 from . import engine, rules
-from .errors import ColumnError, UnitError
+from .errors import ColumnError, Problem, UnitError
 from .fields import BY_NAME, TEXT_FIELDS
 from .inputs.cells import read_choices
 from .inputs.vocab import CHOICES
@@ -33,8 +33,10 @@ THREADS = min(2, os.cpu_count() or 1)
 
 
 def _part(columns: Mapping[str, Any], units: Mapping[str, str] | None, settings: Settings,
-          start: int, decimal: str, missing: Sequence[str]) -> Part:
-    screened = screen(columns, units, decimal=decimal, missing=missing)
+          start: int, decimal: str, missing: Sequence[str],
+          row_problems: Mapping[int, Sequence[Problem]] | None = None) -> Part:
+    screened = screen(columns, units, decimal=decimal, missing=missing,
+                      row_problems=row_problems)
     frame = engine.compute(screened, settings)
     return Part(start, screened, frame, rules.evaluate(frame))
 
@@ -99,6 +101,7 @@ def interpret_many(
     *,
     decimal: str = ".",
     missing: Sequence[str] = (),
+    row_problems: Mapping[int, Sequence[Problem]] | None = None,
 ) -> Results:
     """Check and interpret many panels at once.
 
@@ -109,7 +112,8 @@ def interpret_many(
     alone.  ``sample_type`` and ``hco3_source`` hold words (or, as a numpy integer
     array, their codes).  ``units`` maps field names to UCUM unit labels (default:
     each field's canonical unit).  ``decimal`` is "." or ","; ``missing`` lists cell
-    texts that mean "not measured".
+    texts that mean "not measured".  ``row_problems`` (row -> Problems found before
+    the cells, such as a file's specimen conflicts) refuses those rows too.
 
     Rows that fail the input checks are kept, marked refused with their problems;
     nothing is dropped or reordered.  Raises only ``ColumnError`` (unknown column,
@@ -126,7 +130,8 @@ def interpret_many(
     check_units(units)
     columns = {k: v for k, v in columns.items() if k in KNOWN_COLUMNS}
     if n <= SLICE_ROWS:
-        return Results([_part(columns, units, settings, 0, decimal, missing)], settings)
+        return Results([_part(columns, units, settings, 0, decimal, missing, row_problems)],
+                       settings)
     arrays = {k: _sliceable(v, n) for k, v in columns.items()}
     # Choice columns are encoded once for the whole column, here: per slice, on the
     # threads, their Python-level look-ups would hold the GIL.  A column with refused
@@ -143,7 +148,8 @@ def interpret_many(
         stop = start + SLICE_ROWS
         cols = {k: (v[start:stop] if v is not None and not np.isscalar(v) else v)
                 for k, v in arrays.items()}
-        return _part(cols, units, settings, start, decimal, missing)
+        mine = {i - start: p for i, p in (row_problems or {}).items() if start <= i < stop}
+        return _part(cols, units, settings, start, decimal, missing, mine)
 
     if THREADS > 1:
         with ThreadPoolExecutor(THREADS) as pool:

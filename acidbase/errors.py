@@ -70,7 +70,7 @@ class Problem:
         "censored": "censored value in a required field",
         "not_a_choice": "not one of the allowed words",
         "urea_and_bun": "urea and urea nitrogen both given",
-        "specimen_conflict": "sample type contradicts the column's LOINC specimen",
+        "specimen_conflict": "specimens disagree (LOINC-coded columns or sample type)",
         "duplicate_key": "a key given twice in one record",
     }
 

@@ -189,7 +189,8 @@ def cell_text(p: ParsedColumn, i: int) -> str | None:
 
 
 def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None, *,
-           decimal: str = ".", missing: Sequence[str] = ()) -> Screened:
+           decimal: str = ".", missing: Sequence[str] = (),
+           row_problems: Mapping[int, Sequence[Problem]] | None = None) -> Screened:
     """Apply the boundary checks to columns of panels.
 
     ``columns`` maps field names to columns of any kind the cell reader takes
@@ -203,7 +204,11 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None, *
         raise UnitError(field=", ".join(sorted(unknown)), unit="(any)", accepted=tuple(BY_NAME))
     n = column_length(columns)
     refused = np.zeros(n, dtype=bool)
-    problems: dict[int, list[Problem]] = {}
+    # Problems found before the cells (a file's specimen conflicts) come first.
+    problems: dict[int, list[Problem]] = {int(i): list(p) for i, p in (row_problems or {}).items()
+                                          if p and 0 <= int(i) < n}
+    if problems:
+        refused[np.fromiter(problems, dtype=np.int64)] = True
 
     def add(rows: np.ndarray, make) -> None:
         for i in np.flatnonzero(rows).tolist():

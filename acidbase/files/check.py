@@ -17,9 +17,11 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from .. import serial
+from .. import loinc, serial
 from ..api import interpret_many
+from ..errors import Problem
 from ..fields import BY_NAME
+from ..inputs.vocab import normalise_word
 from ..reference import Settings
 from ..results import CAUTION, DERIVED
 from .headers import Layout, map_headers
@@ -65,8 +67,134 @@ def _marks_column(marks: list[tuple[str, ...]] | None, n: int) -> pa.Array:
 
 def chunk_columns(table: pa.Table | pa.RecordBatch, layout: Layout) -> dict[str, Any]:
     """The input columns the kernel reads, by field name (Arrow columns, as read)."""
-    return {fld: table.column(h) for h, fld in layout.field_of.items()
-            if fld in BY_NAME or fld in ("sample_type", "hco3_source")}
+    return panel_columns(table, layout)[0]
+
+
+def _filled(column: pa.Array | pa.ChunkedArray, missing: Sequence[str]) -> np.ndarray:
+    """Rows whose cell holds something (not null, not blank, not a missing token)."""
+    if isinstance(column, pa.ChunkedArray):
+        column = column.combine_chunks()
+    if pa.types.is_dictionary(column.type):
+        column = column.dictionary_decode()
+    valid = np.asarray(pc.is_valid(column).to_numpy(zero_copy_only=False), dtype=bool)
+    if pa.types.is_string(column.type) or pa.types.is_large_string(column.type):
+        text = pc.utf8_trim_whitespace(column)
+        blank = pc.equal(text, "")
+        if missing:
+            blank = pc.or_(blank, pc.is_in(text, value_set=pa.array(list(missing), pa.string())))
+        valid &= ~np.asarray(pc.fill_null(blank, True).to_numpy(zero_copy_only=False), dtype=bool)
+    elif pa.types.is_floating(column.type):
+        valid &= ~np.isnan(np.asarray(pc.fill_null(column, 0.0).to_numpy(zero_copy_only=False),
+                                      dtype=np.float64))
+    return valid
+
+
+def _as_text(column: pa.Array | pa.ChunkedArray) -> pa.Array:
+    if isinstance(column, pa.ChunkedArray):
+        column = column.combine_chunks()
+    if pa.types.is_dictionary(column.type):
+        column = column.dictionary_decode()
+    return column if pa.types.is_string(column.type) else column.cast(pa.string())
+
+
+def panel_columns(table: pa.Table | pa.RecordBatch, layout: Layout,
+                  missing: Sequence[str] = ()) -> tuple[dict[str, Any], dict[int, list[Problem]]]:
+    """The kernel's columns of one table (by field name), and the rows refused before any
+    cell is read: what a LOINC-coded table's specimens imply (``acidbase.loinc``).
+
+    * A field with one column per specimen reads, row by row, the column that is
+      filled; a row with two filled is refused (``specimen_conflict``).
+    * A row's sample type comes from its ``sample_type`` cell or, when that is empty
+      or absent, from the specimen of the LOINC-coded columns filled on the row; a
+      cell that contradicts them, or columns naming two specimens, refuse the row.
+    * ``hco3_source`` is set the same way from a bicarbonate or total CO2 code.
+
+    The columns stay Arrow (or text) for the one cell reader; this function reads
+    no value.  Also the entry point for other inputs with LOINC-coded columns (HL7).
+    """
+    missing = tuple(missing) or layout_missing(layout)
+    n = table.num_rows
+    problems: dict[int, list[Problem]] = {}
+    cols: dict[str, Any] = {}
+    specimen = np.full(n, None, dtype=object)  # sample type named by the filled columns
+    source = np.full(n, None, dtype=object)    # HCO3- source named by the filled columns
+
+    def conflict(rows: np.ndarray, name: str, title: str, value: str, hint: str) -> None:
+        for i in np.flatnonzero(rows).tolist():
+            problems.setdefault(i, []).append(Problem(name, title, value, "",
+                                                      kind="specimen_conflict", hint=hint))
+
+    for fld, headers in layout.columns_of.items():
+        if fld not in BY_NAME and fld not in ("sample_type", "hco3_source"):
+            continue
+        if len(headers) == 1 and not any(_implies(layout, h) for h in headers):
+            cols[fld] = table.column(headers[0])
+            continue
+        filled = {h: _filled(table.column(h), missing) for h in headers}
+        if len(headers) > 1:
+            count = np.sum([f for f in filled.values()], axis=0)
+            title = BY_NAME[fld].title if fld in BY_NAME else fld
+            conflict(count > 1, fld, title, " and ".join(headers),
+                     "a row may fill one specimen's column of a field, not two")
+            merged = None
+            for h in headers:
+                text = _as_text(table.column(h))
+                merged = text if merged is None else pc.if_else(pa.array(filled[h]), text, merged)
+            cols[fld] = merged
+        else:
+            cols[fld] = table.column(headers[0])
+        for h in headers:
+            code = layout.code_of.get(h, "")
+            st = loinc.sample_type_for(code) if code and fld in SPECIMEN_FIELDS else None
+            if st is not None:
+                rows = filled[h]
+                clash = rows & (specimen != None) & (specimen != st)  # noqa: E711
+                conflict(clash, "sample_type", "Sample type", f"{h} ({loinc.SPECIMEN[code]})",
+                         "the row's LOINC-coded columns name different specimens")
+                specimen[rows & (specimen == None)] = st  # noqa: E711
+            src = loinc.HCO3_SOURCE_OF_CODE.get(code)
+            if src is not None:
+                source[filled[h]] = src
+    for name, implied, title in (("sample_type", specimen, "Sample type"),
+                                 ("hco3_source", source, "HCO3- source")):
+        if not any(v is not None for v in implied.tolist()):
+            continue
+        given = cols.get(name)
+        words = np.full(n, None, dtype=object)
+        if given is not None:
+            text = _as_text(given).to_pylist()
+            for i, cell in enumerate(text):
+                if cell is not None and cell.strip() and cell.strip() not in missing:
+                    words[i] = cell
+        out = words.copy()
+        for i in range(n):
+            want = implied[i]
+            if want is None:
+                continue
+            if words[i] is None:
+                out[i] = want
+            elif normalise_word(words[i]) != want and normalise_word(words[i]) != "unknown":
+                problems.setdefault(i, []).append(Problem(
+                    name, title, words[i], "", kind="specimen_conflict",
+                    hint=f"the row's LOINC-coded columns say {want}; correct the {name} cell "
+                         "or the column"))
+        cols[name] = out
+    return cols, problems
+
+
+#: The fields whose LOINC specimen sets the row's sample type: the blood-gas values,
+#: whose reference intervals depend on it.  Electrolytes, lactate, haemoglobin...
+#: keep their own specimens (a serum sodium beside an arterial gas is ordinary).
+SPECIMEN_FIELDS: tuple[str, ...] = ("ph", "pco2", "po2", "hco3")
+
+
+def _implies(layout: Layout, header: str) -> bool:
+    """True when the header's LOINC code sets a sample type or an HCO3- source."""
+    code = layout.code_of.get(header)
+    if not code:
+        return False
+    return (layout.field_of.get(header) in SPECIMEN_FIELDS
+            and loinc.sample_type_for(code) is not None) or code in loinc.HCO3_SOURCE_OF_CODE
 
 
 def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
@@ -77,8 +205,10 @@ def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
     the summary needs (``meta``: refused and review masks, fired rules, counts)."""
     n = table.num_rows
     units = {k: v for k, v in layout.units.items() if v != BY_NAME[k].unit}
-    res = interpret_many(chunk_columns(table, layout), units or None, settings,
-                         decimal=decimal, missing=tuple(missing) or layout_missing(layout))
+    missing = tuple(missing) or layout_missing(layout)
+    columns, row_problems = panel_columns(table, layout, missing)
+    res = interpret_many(columns, units or None, settings, decimal=decimal, missing=missing,
+                         row_problems=row_problems)
     tab = res.encoded()  # text columns as (indices, labels): no cell-by-cell conversion
     refused = np.asarray(res.refused, dtype=bool)
     counts = {"reasons": Counter(res.problem_counts())}
