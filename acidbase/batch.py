@@ -445,7 +445,8 @@ def _settings(args: argparse.Namespace):
     """The laboratory settings the command line built (``acidbase.cli`` sets them)."""
     from .reference import Settings
 
-    return getattr(args, "settings", None) or Settings()
+    make = getattr(args, "make_settings", None)
+    return make() if make is not None else Settings()
 
 
 def escaped_columns(headers: tuple[str, ...]) -> list[str]:

@@ -220,7 +220,8 @@ def cmd_demo(args: argparse.Namespace) -> int:
 def cmd_batch(args: argparse.Namespace) -> int:
     from . import batch
 
-    args.settings = settings_from_args(args)
+    # Built inside the run, so a bad setting is reported as the run's own failure.
+    args.make_settings = lambda: settings_from_args(args)
     return batch.run(args)
 
 
