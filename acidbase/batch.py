@@ -533,7 +533,8 @@ def _run(args: argparse.Namespace, label: str) -> int:
                              args.chunk_rows)
     mapping = fileio.read_mapping(args.mapping) if args.mapping else None
     layout = fileio.map_headers(src.headers, mapping, units, args.strict_columns)
-    layout = dataclasses.replace(layout, missing=src.missing)
+    layout = dataclasses.replace(layout, missing=src.missing, notes=src.notes + layout.notes,
+                                 duplicates=src.duplicates)
     if args.decimal:
         decimal = args.decimal
     elif src.format == "csv":

@@ -20,6 +20,7 @@ import numpy as np
 from . import engine
 from .engine import CONSISTENCY_NAMES, ROLE_NAMES, SLOTS, TIMING_NAMES, VALID_WHEN, Frame
 from .fields import HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
+from .inputs.vocab import CHOICES
 from .errors import Problem
 from .model import Screened
 from .reference import Settings
@@ -381,6 +382,44 @@ class Results:
         for k in DERIVED:
             cols[k] = col(k)
         return cols
+
+    def to_arrow(self):
+        """The results as a ``pyarrow.Table``, one row per panel, typed: every text
+        category (status, consistency, disorders, roles, timing, sample type, HCO3-
+        source, finding codes) a dictionary column, ``reason`` text, one boolean per
+        process (``has_<slot>``), derived values float64 (null where not computed)."""
+        import pyarrow as pa
+
+        enc = self.encoded()
+        cols: dict[str, Any] = {}
+
+        def dictionary(indices: np.ndarray, labels: list[str]):
+            return pa.DictionaryArray.from_arrays(pa.array(indices, type=pa.int32()),
+                                                  pa.array(labels, type=pa.string()))
+
+        refused = np.asarray(self.refused, dtype=bool)
+        for key, col in enc.items():
+            if key == "reason":
+                cols[key] = pa.array(col, type=pa.string())
+            elif isinstance(col, tuple):
+                cols[key] = dictionary(*col)
+            elif col.dtype.kind == "f":
+                cols[key] = pa.array(col, mask=np.isnan(col))
+            else:
+                cols[key] = pa.array(col)
+            if key == "status":
+                for choice in CHOICES:
+                    codes = _join([p.screened.choices[choice.name] for p in self.parts])
+                    cols[choice.name] = dictionary(codes.astype(np.int32), list(choice.words))
+        for slot, _, _ in SLOTS:
+            role = enc[f"role_{slot}"][0]
+            cols[f"has_{slot}"] = pa.array((role != 0) & ~refused)
+        return pa.table(cols)
+
+    def to_pandas(self):
+        """``to_arrow()`` as a pandas DataFrame (categoricals for the dictionary columns);
+        pandas is an optional dependency, imported here."""
+        return self.to_arrow().to_pandas()
 
     def table(self) -> dict[str, np.ndarray]:
         """Output columns for the batch file, in their documented order."""

@@ -207,6 +207,11 @@ def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
     units = {k: v for k, v in layout.units.items() if v != BY_NAME[k].unit}
     missing = tuple(missing) or layout_missing(layout)
     columns, row_problems = panel_columns(table, layout, missing)
+    for row, keys in getattr(layout, "duplicates", {}).items():
+        if start <= row < start + n:
+            row_problems.setdefault(row - start, []).insert(0, Problem(
+                "record", "JSON record", ", ".join(keys), "", kind="duplicate_key",
+                hint="a record gives each key once; which value was meant cannot be told"))
     res = interpret_many(columns, units or None, settings, decimal=decimal, missing=missing,
                          row_problems=row_problems)
     tab = res.encoded()  # text columns as (indices, labels): no cell-by-cell conversion

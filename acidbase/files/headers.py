@@ -38,6 +38,9 @@ class Layout:
     """Cell texts that mean "not measured" (``--missing``)."""
     code_of: dict[str, str] = field(default_factory=dict)
     """Input header -> its LOINC code, for the columns named by one."""
+    duplicates: Mapping[int, tuple[str, ...]] = field(default_factory=dict)
+    """Row (from 0, over the file) -> keys its JSON record gave twice (the source fills
+    it as it reads; each such row is refused)."""
 
     @property
     def column_of(self) -> dict[str, str]:
