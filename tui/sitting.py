@@ -192,15 +192,19 @@ def read_csv(path: str | os.PathLike[str]) -> tuple[list[Entry], list[str]]:
     try:
         src = source.open_source(path)
         layout = headers.map_headers(src.headers)
-        decimal = "."
+        decimal, notes = ".", []
         if src.format == "csv":
             numeric = [i for i, h in enumerate(src.headers)
                        if layout.field_of.get(h) in acidbase.fields.BY_NAME]
-            decimal = formats.detect_decimal(source.csv_sample(src), numeric, src.delimiter)
+            try:
+                decimal = formats.detect_decimal(source.csv_sample(src), numeric,
+                                                 src.delimiter)
+            except AcidBaseError:  # the app has no --decimal: a point, and say so
+                notes.append("numbers with a decimal comma and with a point: read with a "
+                             "decimal point (cells with a comma are refused)")
         tables = list(src.chunks())
     except (AcidBaseError, OSError, UnicodeDecodeError) as e:
         raise SittingFileError(f"{path}: {e}") from e
-    notes = []
     if layout.unread:
         notes.append("columns not read: " + ", ".join(layout.unread))
     units = {f"{name}_unit": unit for name, unit in layout.units.items()

@@ -86,7 +86,8 @@ def _mask(arr: pa.Array | pa.ChunkedArray) -> np.ndarray:
 
 
 def _floats(arr: pa.Array) -> np.ndarray:
-    return np.asarray(pc.cast(arr, pa.float64()).to_numpy(zero_copy_only=False), dtype=np.float64)
+    out = np.asarray(pc.cast(arr, pa.float64()).to_numpy(zero_copy_only=False), dtype=np.float64)
+    return out if out.flags.writeable else out.copy()
 
 
 def _text_floats(arr: pa.Array) -> np.ndarray:
