@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from acidbase import batch, cli, loinc, serial
+from acidbase import cli, loinc, serial
 from acidbase.results import CAUTION
 
 DOC = (Path(__file__).resolve().parents[1] / "docs" / "batch.md").read_text(encoding="utf-8")
