@@ -10,7 +10,7 @@ import textwrap
 from typing import TYPE_CHECKING, Any
 
 from .fields import BY_NAME
-from .results import DECIMALS
+from .precision import DECIMALS
 from .rules import number_text
 
 if TYPE_CHECKING:
