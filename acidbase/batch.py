@@ -469,7 +469,8 @@ def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.Seri
     rows = 0
     for table in src.chunks(wanted):
         values = {}
-        many = fileio.parse_numeric_many([table[col_of[f]] for f in fields_used], decimal)
+        many = fileio.parse_numeric_many([table[col_of[f]] for f in fields_used], decimal,
+                                         layout.missing)
         for f, p in zip(fields_used, many):
             spec = BY_NAME[f]
             unit = layout.units.get(f, spec.unit)
