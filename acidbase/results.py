@@ -354,9 +354,10 @@ class Results:
         cols["consistency"] = blanked(col("consistency"), list(CONSISTENCY_NAMES))
         cols["disorders"] = blanked(*self._encoded_disorders())
         for slot, _, _ in SLOTS:
-            cols[f"role_{slot}"] = (col(f"role_{slot}").astype(np.int32), ["", "primary", "additional"])
+            cols[f"role_{slot}"] = (col(f"role_{slot}").astype(np.int32),
+                                      [w or "" for w in ROLE_NAMES])
         cols["timing_respiratory"] = (col("timing_resp").astype(np.int32),
-                                      ["", "acute", "chronic", "indeterminate"])
+                                      [w or "" for w in TIMING_NAMES])
         cols["finding_codes"] = self._encoded_codes()
         for k in DERIVED:
             cols[k] = col(k)
