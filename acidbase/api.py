@@ -5,6 +5,7 @@ Both run the same code: ``interpret`` is ``interpret_many`` of a batch of one.
 
 from __future__ import annotations
 
+import dataclasses
 import os
 from collections.abc import Mapping, Sequence
 from concurrent.futures import ThreadPoolExecutor
@@ -171,4 +172,6 @@ def _sliceable(value: Any, n: int) -> Any:
 def interpret(panel: Panel, settings: Settings | None = None) -> Interpretation:
     """Check and interpret one validated panel."""
     columns, units = panel.columns()
-    return interpret_many(columns, units, settings).interpretation(0)
+    it = interpret_many(columns, units, settings).interpretation(0)
+    # The panel was read from its cells already: its marks are the panel's own.
+    return dataclasses.replace(it, qualifiers=panel.qualifiers, lab_flags=panel.lab_flags)

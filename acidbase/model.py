@@ -24,7 +24,6 @@ from typing import Any, Literal
 
 import numpy as np
 import pyarrow as pa
-import pyarrow.compute as pc
 from pydantic import (
     BaseModel,
     ConfigDict,
@@ -142,14 +141,8 @@ class Screened:
     def _marks(self, part, with_text: bool) -> list[tuple[str, ...]]:
         out: list[tuple[str, ...]] = [()] * self.n
         for name, p in self.readings.items():
-            col = part(p)
-            if col is None:
-                continue
-            rows = np.flatnonzero(np.asarray(pc.is_valid(col).to_numpy(zero_copy_only=False)))
-            marks = col.take(pa.array(rows)).to_pylist()
-            texts = p.text.take(pa.array(rows)).to_pylist() if with_text else marks
-            for i, t in zip(rows.tolist(), texts):
-                out[i] = (*out[i], f"{name} {t.strip()}")
+            for i, mark in p.marks("comparator" if with_text else "flag"):
+                out[i] = (*out[i], f"{name} {mark.strip()}")
         return out
 
 
@@ -185,7 +178,7 @@ def _length(value: Any) -> int | None:
 
 
 def cell_text(p: ParsedColumn, i: int) -> str | None:
-    return p.text[i].as_py() if i < len(p.text) else None
+    return p.cell(i)
 
 
 def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None, *,
@@ -264,7 +257,7 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None, *
         if c.plain and not c.bad.any():
             plain.add(choice.name)
         add(c.bad, lambda i, ch=choice, c=c: Problem(
-            ch.name, ch.title, c.text[i].as_py() if c.text is not None else None, "",
+            ch.name, ch.title, c.cell(i), "",
             kind="not_a_choice", choices=ch.words))
         refused |= c.bad
 

@@ -283,9 +283,9 @@ def _qualifier_counts(res) -> Counter:
         for name, p in part.screened.readings.items():
             if p.comparator is None:
                 continue
-            vc = pc.value_counts(p.comparator.drop_null())
-            for cmp, c in zip(vc.field("values").to_pylist(), vc.field("counts").to_pylist()):
-                out[f"{name} {cmp}#"] += c
+            marks = p.comparator
+            cells = marks.tolist() if isinstance(marks, np.ndarray) else marks.to_pylist()
+            out.update(f"{name} {cmp}#" for cmp in cells if cmp is not None)
     return out
 
 

@@ -59,14 +59,15 @@ class ParsedColumn:
 
     values: np.ndarray
     """float64; NaN where empty, censored or not a number."""
-    comparator: pa.Array | None
-    """Per row "<", ">", "<=", ">=" or null; None when the column has none."""
-    flag: pa.Array | None
+    comparator: pa.Array | np.ndarray | None
+    """Per row "<", ">", "<=", ">=" or null; None when the column has none (an object
+    array with None for the object path, an Arrow array for Arrow columns)."""
+    flag: pa.Array | np.ndarray | None
     """Per row laboratory flag or null; None when the column has none."""
     bad: np.ndarray
     """Rows whose cell is not a number (the row is refused)."""
-    text: pa.Array
-    """The cells as text (for messages)."""
+    text: pa.Array | np.ndarray
+    """The cells as text (for messages; use ``cell(i)``)."""
     plain: bool = False
     """Every cell is empty or a bare number (read by one cast of the raw text): formula
     escaping would change none of them."""
@@ -75,7 +76,34 @@ class ParsedColumn:
     def censored(self) -> np.ndarray:
         if self.comparator is None:
             return np.zeros(len(self.values), dtype=bool)
-        return _mask(pc.is_valid(self.comparator))
+        return _present(self.comparator)
+
+    def cell(self, i: int) -> str | None:
+        """The text of cell ``i`` as given (None when empty)."""
+        return _item(self.text, i)
+
+    def marks(self, which: str) -> list[tuple[int, str]]:
+        """(row, mark) for each row with a comparator (``which="comparator"``, the mark
+        being the cell's text) or a laboratory flag (``"flag"``)."""
+        col = self.comparator if which == "comparator" else self.flag
+        if col is None:
+            return []
+        rows = np.flatnonzero(_present(col)).tolist()
+        return [(i, (self.cell(i) if which == "comparator" else _item(col, i)) or "")
+                for i in rows]
+
+
+def _present(col: pa.Array | np.ndarray) -> np.ndarray:
+    """Rows holding a value: Arrow's validity, or not None in an object array."""
+    if isinstance(col, np.ndarray):
+        return np.array([x is not None for x in col.tolist()], dtype=bool)
+    return _mask(pc.is_valid(col))
+
+
+def _item(col: pa.Array | np.ndarray | None, i: int) -> Any:
+    if col is None or i >= len(col):
+        return None
+    return col[i] if isinstance(col, np.ndarray) else col[i].as_py()
 
 
 def _mask(arr: pa.Array | pa.ChunkedArray) -> np.ndarray:
@@ -293,14 +321,41 @@ def _is_missing_object(cell: object) -> bool:
     return type(cell).__name__ in ("NAType", "NaTType")  # pandas' missing markers
 
 
+_VALUE_RE = re.compile(_VALUE, re.ASCII)
+
+
+def _text_cell(text: str, decimal: str, missing: Sequence[str]
+               ) -> tuple[float, str | None, str | None, bool]:
+    """One text cell: (value, comparator, flag, refused), by the same pattern as the column
+    reader (``_VALUE``, ASCII digits only); ``tests/test_one_gate.py`` holds the two to
+    one result.  No Arrow call: reading one cell (``Panel``) stays cheap."""
+    t = text.strip()
+    if t == "" or t in missing:
+        return math.nan, None, None, False
+    if decimal == ",":
+        if "." in t:  # with a decimal comma a point can only be grouping: not read
+            return math.nan, None, None, True
+        t = t.replace(",", ".")
+    m = _VALUE_RE.match(t)
+    if m is None:
+        return math.nan, None, None, True
+    v = float(m["num"])
+    if math.isinf(v):
+        return math.nan, None, None, True
+    cmp, flag = m["cmp"] or None, m["flag"] or None
+    return (math.nan if cmp else v), cmp, flag, False
+
+
 def _object_numbers(cells: list[Any], decimal: str, missing: Sequence[str]) -> ParsedColumn:
-    """Python objects, each read alone: numbers as numbers, text through the text reader,
-    None/NaN as not measured, anything else (yes/no values, lists...) refused."""
+    """Python objects, each read alone: numbers as numbers, text by the text pattern,
+    None/NaN as not measured, anything else (yes/no values, lists...) refused.  The
+    marks and texts are object arrays (``None`` for none), not Arrow ones."""
     n = len(cells)
     vals = np.full(n, np.nan)
     bad = np.zeros(n, dtype=bool)
-    texts: list[str | None] = [None] * n
-    text_rows: list[int] = []
+    texts = np.full(n, None, dtype=object)
+    cmps = np.full(n, None, dtype=object)
+    flags = np.full(n, None, dtype=object)
     for i, c in enumerate(cells):
         if isinstance(c, (bool, np.bool_)):
             bad[i], texts[i] = True, str(bool(c))
@@ -308,7 +363,7 @@ def _object_numbers(cells: list[Any], decimal: str, missing: Sequence[str]) -> P
             continue
         elif isinstance(c, str):
             texts[i] = c
-            text_rows.append(i)
+            vals[i], cmps[i], flags[i], bad[i] = _text_cell(c, decimal, missing)
         elif isinstance(c, (int, np.integer, float, np.floating)):
             texts[i] = repr(c) if isinstance(c, float) else str(c)[:40]
             try:
@@ -321,19 +376,10 @@ def _object_numbers(cells: list[Any], decimal: str, missing: Sequence[str]) -> P
                 bad[i] = True
         else:
             bad[i], texts[i] = True, repr(c)[:60]
-    cmp = flag = None
-    if text_rows:
-        rows = np.array(text_rows)
-        sub = parse_numeric(pa.array([cells[i] for i in text_rows], pa.string()), decimal,
-                            missing)
-        vals[rows] = sub.values
-        bad[rows] = sub.bad
-        where = np.full(n, -1, dtype=np.int64)
-        where[rows] = np.arange(rows.size)
-        index = pa.array(where, mask=where < 0)
-        cmp = pc.take(sub.comparator, index) if sub.comparator is not None else None
-        flag = pc.take(sub.flag, index) if sub.flag is not None else None
-    return ParsedColumn(vals, cmp, flag, bad, pa.array(texts, pa.string()))
+    has = [x is not None for x in cmps]
+    cmp = cmps if any(has) else None
+    flag = flags if any(x is not None for x in flags) else None
+    return ParsedColumn(vals, cmp, flag, bad, texts)
 
 
 def _objects(seq: Any) -> np.ndarray:
@@ -378,7 +424,7 @@ def read_numbers(column: Any, decimal: str = ".", missing: Sequence[str] = (),
         infinite = np.isinf(vals)
         if not infinite.any():
             return ParsedColumn(vals, None, None, np.zeros(len(vals), dtype=bool),
-                                pa.nulls(len(vals), pa.string()), plain=True)
+                                np.full(len(vals), None, dtype=object), plain=True)
         return _object_numbers(arr.tolist(), decimal, missing)
     if arr.dtype.kind in "US":
         return parse_numeric(pa.array(arr.astype(str).tolist(), pa.string()), decimal, missing)
@@ -406,9 +452,8 @@ def read_number(cell: object, decimal: str = ".", missing: Sequence[str] = ()) -
     """One cell through ``read_numbers`` (the same reading as in any column)."""
     p = read_numbers(_one(cell), decimal, missing)
     v = float(p.values[0])
-    cmp = p.comparator[0].as_py() if p.comparator is not None else None
-    flag = p.flag[0].as_py() if p.flag is not None else None
-    return NumberCell(None if math.isnan(v) else v, cmp, flag, bool(p.bad[0]), p.text[0].as_py())
+    return NumberCell(None if math.isnan(v) else v, _item(p.comparator, 0), _item(p.flag, 0),
+                      bool(p.bad[0]), p.cell(0))
 
 
 def number_hint(cell: object, decimal: str, unit: str) -> str:
@@ -446,10 +491,13 @@ class ChoiceColumn:
 
     codes: np.ndarray
     bad: np.ndarray
-    text: pa.Array | None
-    """The cells as text (for messages); None for a column of integer codes."""
+    text: pa.Array | np.ndarray | None
+    """The cells as text (for messages, ``cell(i)``); None for integer codes."""
     plain: bool = True
     """No cell is one that formula escaping would change."""
+
+    def cell(self, i: int) -> str | None:
+        return _item(self.text, i)
 
 
 _FORMULA_START = tuple("=+-@\t\r\n\x00")
@@ -496,22 +544,25 @@ def read_choices(column: Any, choice: Choice, missing: Sequence[str] = (),
                 pass
         arr = column if isinstance(column, np.ndarray) else _objects(column)
         cells = [arr.item()] * (1 if n is None else n) if arr.ndim == 0 else list(arr)
-    texts: list[str | None] = []
-    forced_bad = np.zeros(len(cells), dtype=bool)
+    # Python cells, read here without Arrow (one cell for a Panel stays cheap); each
+    # distinct text once, by the same rule as an Arrow column's dictionary.
+    n_cells = len(cells)
+    codes = np.full(n_cells, default, dtype=np.int8)
+    bad = np.zeros(n_cells, dtype=bool)
+    texts = np.full(n_cells, None, dtype=object)
+    seen: dict[str, tuple[int, bool]] = {}
     for i, c in enumerate(cells):
         if isinstance(c, str):
-            texts.append(c)
-        elif _is_missing_object(c):
-            texts.append(None)
-        else:  # a number or a yes/no value is no choice
-            texts.append(str(c)[:60])
-            forced_bad[i] = True
-    out = _choices_of_text(pa.array(texts, pa.string()), words, default, missing)
-    if forced_bad.any():
-        out.bad = out.bad | forced_bad
-        out.codes = np.where(forced_bad, default, out.codes).astype(np.int8)
-        out.plain = False
-    return out
+            texts[i] = c
+            got = seen.get(c)
+            if got is None:
+                got = seen[c] = _choice_of_text(c, words, default, missing)
+            codes[i], bad[i] = got
+        elif not _is_missing_object(c):  # a number or a yes/no value is no choice
+            texts[i] = str(c)[:60]
+            bad[i] = True
+    plain = not bad.any() and not any(t.startswith(_FORMULA_START) for t in seen)
+    return ChoiceColumn(codes, bad, texts, plain)
 
 
 def _choices_of_text(text: pa.Array, words: tuple[str, ...], default: int,
