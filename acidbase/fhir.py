@@ -401,7 +401,7 @@ def chunk_bundles(table: pa.Table, layout, decimal: str, out: Mapping[str, pa.Ar
     from .fileio import split_unit
     from .files.hl7 import CODES_COLUMN
 
-    cv, res, refused = meta["values"], meta["results"], meta["refused"]
+    cv, res, refused = meta.get("values"), meta["results"], meta["refused"]
     col_of = layout.column_of
     header_code = {}
     for name, header in col_of.items():

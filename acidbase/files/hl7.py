@@ -33,17 +33,17 @@ import re
 from collections import Counter
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
+from typing import ClassVar
 
 import pyarrow as pa
 
 from .. import loinc
 from .. import units as _units
-from ..errors import BatchInputError
+from ..errors import BatchInputError, Problem
 from ..fields import BY_NAME, REQUIRED
 from .source import Source
 
 FORMAT = "hl7"
-REFUSAL_COLUMN = "hl7_refusal"
 CODES_COLUMN = "hl7_codes"
 NOTES_COLUMN = "hl7_notes"
 TEXT_COLUMNS = ("message", "message_id", "sample_id", "patient_id", "collected_at",
@@ -122,6 +122,34 @@ def hl7_time(value: str) -> str:
 
 
 @dataclass
+class Hl7Problem(Problem):
+    """A refusal the messages themselves carry, as data until a surface prints it."""
+
+    text: str = ""
+    """The sentence, naming the message, the segment or the field."""
+
+    HL7_KINDS: ClassVar[dict[str, str]] = {
+        "hl7_message": "HL7 message not read",
+        "hl7_two_results": "two results in one order",
+        "hl7_unit": "a unit the field does not take",
+        "hl7_unit_missing": "no unit for a code that may be a mass concentration",
+    }
+
+    @property
+    def label(self) -> str:
+        head = "HL7" if self.field == "message" else f"{self.title} ({self.field})"
+        return f"{head}: {self.HL7_KINDS.get(self.kind, self.kind)}"
+
+    def __str__(self) -> str:
+        return self.text
+
+
+def _problem(kind: str, name: str, text: str) -> Hl7Problem:
+    title = BY_NAME[name].title if name in BY_NAME else "HL7 message"
+    return Hl7Problem(name, title, None, "", kind=kind, text=text)
+
+
+@dataclass
 class Panel:
     """One OBR group as read: cells by field, and what the reader must know."""
 
@@ -134,7 +162,7 @@ class Panel:
     specimen: str = ""
     values: dict[str, tuple[str, str, str, int]] = field(default_factory=dict)
     """field -> (value text, unit, LOINC code, OBX position)."""
-    problems: list[str] = field(default_factory=list)
+    problems: list[Hl7Problem] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
     hco3_source: str = ""
     status: dict[str, str] = field(default_factory=dict)
@@ -176,8 +204,8 @@ def _refused(message: int, message_id: str, position: int, reason: str,
     if known is not None:
         p.patient_id, p.sample_id, p.collected_at = (known.patient_id, known.sample_id,
                                                      known.collected_at)
-    p.problems.append(f"HL7 message {message} (segment {position} of the file) not read: "
-                      f"{reason}")
+    p.problems.append(_problem("hl7_message", "message", f"HL7 message {message} (segment "
+                               f"{position} of the file) not read: {reason}"))
     return p
 
 
@@ -266,17 +294,20 @@ def _read_obx(m: _Message, k: int, where: int, p: Panel, status: str, skipped: C
     unit = m.get(k, 6)
     if not unit:
         if code in loinc.UNIT_REQUIRED:
-            p.problems.append(f"{spec.title} ({name}) OBX {label}: no unit in OBX-6, and this "
-                              f"LOINC code may be a mass concentration (accepted: "
-                              f"{', '.join(spec.units)})")
+            p.problems.append(_problem(
+                "hl7_unit_missing", name,
+                f"{spec.title} ({name}) OBX {label}: no unit in OBX-6, and this LOINC code may "
+                f"be a mass concentration (accepted: {', '.join(spec.units)})"))
         unit = loinc.IMPLIED_UNIT.get(code, spec.unit)
     elif _units.normalise(unit) not in spec.units:
-        p.problems.append(f"{spec.title} ({name}) {text!r} OBX {label}: unit {unit!r} is not "
-                          f"one of {', '.join(spec.units)}")
+        p.problems.append(_problem(
+            "hl7_unit", name, f"{spec.title} ({name}) {text!r} OBX {label}: unit {unit!r} is "
+                              f"not one of {', '.join(spec.units)}"))
         return
     if name in p.values:
-        p.problems.append(f"{spec.title} ({name}): two results in one order (segments "
-                          f"{p.values[name][3]} and {where})")
+        p.problems.append(_problem(
+            "hl7_two_results", name, f"{spec.title} ({name}): two results in one order "
+                                     f"(segments {p.values[name][3]} and {where})"))
         return
     p.values[name] = (text, _units.normalise(unit), code, where)
     p.status[name] = status
@@ -333,8 +364,9 @@ def _number(text: str) -> tuple[str, float, str] | None:
     return cmp, float(num), flag
 
 
-def to_table(reading: Reading) -> tuple[pa.Table, list[str]]:
-    """The panels as one table of text cells for the reader, and notes for the summary."""
+def to_table(reading: Reading) -> tuple[pa.Table, list[str], dict[int, tuple[Problem, ...]]]:
+    """The panels as one table of text cells for the reader, notes for the summary, and
+    the problems the messages carry, by row."""
     panels = reading.panels
     n = len(panels)
     cols: dict[str, list[str | None]] = {name: [] for name in TEXT_COLUMNS}
@@ -365,7 +397,6 @@ def to_table(reading: Reading) -> tuple[pa.Table, list[str]]:
     cols[CODES_COLUMN] = [";".join(f"{k}={v[2]}/{p.status[k]}/{v[1]}" for k, v in p.values.items())
                           for p in panels]
     cols[NOTES_COLUMN] = ["; ".join(p.notes) for p in panels]
-    cols[REFUSAL_COLUMN] = ["; ".join(p.problems) for p in panels]
     table = pa.table({k: pa.array(v, type=pa.string()) for k, v in cols.items()})
     skipped = sum(reading.skipped.values())
     notes.insert(0, f"HL7: {reading.messages:,} message(s), {n:,} panel(s); "
@@ -373,11 +404,12 @@ def to_table(reading: Reading) -> tuple[pa.Table, list[str]]:
                     f"{skipped:,} result(s) skipped by status (X/D/W)"
                  + (" " + ", ".join(f"{k} {v}" for k, v in sorted(reading.skipped.items()))
                     if skipped else ""))
-    return table, notes
+    problems = {i: tuple(p.problems) for i, p in enumerate(panels) if p.problems}
+    return table, notes, problems
 
 
 def _refused_whole(p: Panel) -> bool:
-    return bool(p.problems) and p.problems[0].startswith("HL7 message")
+    return bool(p.problems) and p.problems[0].kind == "hl7_message"
 
 
 def _canonical_cell(p: Panel, name: str) -> str | None:
@@ -397,7 +429,7 @@ class Hl7Source(Source):
     """A spool of ORU^R01 messages, read once into a table of text cells."""
 
     table: pa.Table | None = None
-    notes: tuple[str, ...] = ()
+    row_problems: dict[int, tuple[Problem, ...]] = {}  # noqa: RUF012 (set per instance)
 
     def estimated_rows(self) -> int:
         return self.table.num_rows if self.table is not None else 1
@@ -418,31 +450,15 @@ def open_source(path: str, encoding: str = "utf-8", chunk_rows: int = 1 << 14) -
     reading = read_spool(path, encoding)
     if not reading.panels:
         raise BatchInputError(f"{path}: no HL7 v2 messages (a message starts with MSH|)")
-    table, notes = to_table(reading)
+    table, notes, problems = to_table(reading)
     src = Hl7Source(path, FORMAT, tuple(table.column_names), encoding=encoding,
                     chunk_rows=max(1, int(chunk_rows)), size=os.path.getsize(path),
                     total_rows=table.num_rows)
     src.table = table
     src.notes = tuple(notes)
+    src.row_problems = problems
     return src
 
 
-def add_problems(table: pa.Table, problems: dict[int, list[str]],
-                 skip: dict[int, set[str]]) -> None:
-    """Refuse the rows whose ``hl7_refusal`` cell names a problem (batch reading step).
-
-    A refused message has no values, so the reader's own "missing" messages for the
-    required fields would only repeat it: they are left out of the reason.
-    """
-    if REFUSAL_COLUMN not in table.column_names:
-        return
-    cells = table[REFUSAL_COLUMN].to_pylist()
-    for i, text in enumerate(cells):
-        if text:
-            problems.setdefault(i, []).insert(0, text)
-            if text.startswith("HL7 message"):
-                skip.setdefault(i, set()).update(REQUIRED)
-
-
-__all__ = ["FORMAT", "Hl7Source", "Reading", "add_problems", "hl7_time", "looks_like_hl7",
+__all__ = ["FORMAT", "Hl7Source", "Reading", "hl7_time", "looks_like_hl7",
            "open_source", "read_spool", "split_messages", "to_table"]
