@@ -16,13 +16,13 @@ from typing import Any
 from pydantic import ValidationError
 
 from . import audit
+from . import serial as serial_defaults
 from .api import interpret, interpret_many
-from .config import OBSERVATION_STATUSES, add_config_option, cmd_config
+from .config import ENV_VAR, OBSERVATION_STATUSES
 from .config import resolve as resolve_site
 from .errors import AcidBaseError
-from . import serial as serial_defaults
-from .files.formats import FORMATS
 from .fields import NUMERIC, TEXT_FIELDS
+from .files.formats import FORMATS
 from .inputs.vocab import CHOICES
 from .model import Panel, describe
 from .reference import Settings
@@ -131,6 +131,20 @@ def configure_batch_parser(p: argparse.ArgumentParser) -> None:
                         "most of the time of writing CSV)")
     o.add_argument("--quiet", action="store_true", help="no progress bar")
     add_settings_options(p)
+
+
+def add_config_option(p: argparse.ArgumentParser) -> None:
+    """``--config FILE`` (check, batch, tui and config show)."""
+    p.add_argument("--config", metavar="FILE",
+                   help=f"site configuration (TOML); default: ${ENV_VAR}, else "
+                        "$XDG_CONFIG_HOME/acidbase/config.toml if it exists. Options "
+                        "override the file")
+
+
+def cmd_config(args: argparse.Namespace) -> int:
+    """``acidbase config show``: every setting in force and where it came from."""
+    print(resolve_site(args).show())
+    return EXIT_OK
 
 
 def panel_from_args(args: argparse.Namespace) -> dict[str, Any]:

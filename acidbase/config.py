@@ -35,7 +35,6 @@ albumin g/L)::
 
 from __future__ import annotations
 
-import argparse
 import hashlib
 import os
 from dataclasses import dataclass, field
@@ -223,7 +222,7 @@ def _file_values(site: SiteFile, path: Path) -> dict[str, Any]:
     return out
 
 
-def _option_values(args: argparse.Namespace | None) -> dict[str, Any]:
+def _option_values(args: Any) -> dict[str, Any]:
     """Settings given as options (``None`` where an option was not given)."""
     if args is None:
         return {}
@@ -252,7 +251,7 @@ _KERNEL = {"anion_gap.low": "anion_gap_low", "anion_gap.high": "anion_gap_high",
            "albumin.reference_g_l": "reference_albumin_g_l"}
 
 
-def resolve(args: argparse.Namespace | None = None, *, config: str | None = None,
+def resolve(args: Any = None, *, config: str | None = None,
             deltas: dict[str, float | None] | None = None) -> Site:
     """The settings in force: built-in defaults, then the file, then the options.
 
@@ -299,19 +298,5 @@ def resolve(args: argparse.Namespace | None = None, *, config: str | None = None
         origins=origins)
 
 
-def add_config_option(p: argparse.ArgumentParser) -> None:
-    """``--config FILE`` (shared by check, batch, tui and config show)."""
-    p.add_argument("--config", metavar="FILE",
-                   help=f"site configuration (TOML); default: ${ENV_VAR}, else "
-                        "$XDG_CONFIG_HOME/acidbase/config.toml if it exists. Options "
-                        "override the file")
-
-
-def cmd_config(args: argparse.Namespace) -> int:
-    """``acidbase config show``."""
-    print(resolve(args).show())
-    return 0
-
-
-__all__ = ["ENV_VAR", "ConfigError", "Site", "add_config_option", "cmd_config", "default_path",
+__all__ = ["ENV_VAR", "ConfigError", "Site", "default_path",
            "find", "load", "resolve"]

@@ -41,6 +41,8 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
+import pyarrow as pa
+
 from . import audit
 from .codes import (
     DERIVED_INFO,
@@ -362,7 +364,6 @@ __all__ = ["Context", "FhirError", "InputValue", "bundle", "check_bundle_json", 
 # ---------------------------------------------------------------------------
 # Batch: one Bundle per row, one per line (newline-delimited JSON)
 
-import pyarrow as pa  # only the batch half needs Arrow
 
 LINE_SCHEMA = pa.schema([("bundle", pa.string())])
 _CENSORED = re.compile(r"(<=|>=|<|>)\s*([+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?)")
@@ -390,7 +391,7 @@ def _as_sent(name: str, value: float, column_unit: str, sent_unit: str) -> float
         return value
     kind = BY_NAME[name].kind
     back = value * factor(name, kind, column_unit) / factor(name, kind, sent_unit)
-    return float(f"{back:.12g}")  # the round trip's last-digit noise, not the data
+    return float(f"{back:.10g}")  # the round trip's last-digit noise, not the data
 
 
 def chunk_bundles(table: pa.Table, layout, decimal: str, out: Mapping[str, pa.Array],
@@ -477,7 +478,7 @@ def _interpretation_row(it: Interpretation, layout) -> Raw:
         spec = BY_NAME[name]
         unit = layout.units.get(name, spec.unit)
         value = item["value"] / factor(name, spec.kind, unit)
-        raw[name] = (float(f"{value:.12g}"), None, flags.get(name))
+        raw[name] = (float(f"{value:.10g}"), None, flags.get(name))
     for mark in getattr(it, "qualifiers", ()):
         name, _, text = mark.partition(" ")
         got = _censored(text)
