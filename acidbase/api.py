@@ -13,7 +13,7 @@ from typing import Any
 import numpy as np
 
 from . import engine, rules
-from .fields import BY_NAME, HCO3_SOURCES, SAMPLE_TYPES
+from .fields import BY_NAME, HCO3_SOURCES, PREGNANCY_STATES, SAMPLE_TYPES
 from .model import Panel, choice_codes, column_length, screen
 from .reference import Settings
 from .results import Interpretation, Part, Results
@@ -60,7 +60,8 @@ def interpret_many(
     # Text choices are encoded once for the whole column, here: per slice, on the
     # threads, their Python-level look-ups would hold the GIL.  A column with bad cells
     # is left as text, so each slice can name the cell in its refusal.
-    for name, allowed in (("sample_type", SAMPLE_TYPES), ("hco3_source", HCO3_SOURCES)):
+    for name, allowed in (("sample_type", SAMPLE_TYPES), ("hco3_source", HCO3_SOURCES),
+                          ("pregnancy", PREGNANCY_STATES)):
         col = arrays.get(name)
         if isinstance(col, np.ndarray) and col.dtype.kind in "OUS":
             codes, bad = choice_codes(col, n, allowed, "unknown")

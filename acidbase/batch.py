@@ -39,7 +39,7 @@ from . import units as _units
 from .api import interpret_many
 from .engine import SLOTS
 from .errors import AcidBaseError, Problem
-from .fields import BY_NAME, HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
+from .fields import BY_NAME, HCO3_SOURCES, NUMERIC, PREGNANCY_STATES, SAMPLE_TYPES
 from .fileio import BatchInputError, Layout, Source
 from .results import CAUTION, DECIMALS, DERIVED
 
@@ -255,7 +255,8 @@ def read_values(table: pa.Table, layout: Layout, decimal: str) -> ChunkValues:
                        f"value (beyond the reporting limit), but a required field needs an exact "
                        f"number (accepted range {lo / f:.4g} to {hi / f:.4g} {unit})")
     for name, allowed, title in (("sample_type", SAMPLE_TYPES, "Sample type"),
-                                 ("hco3_source", HCO3_SOURCES, "HCO3- source")):
+                                 ("hco3_source", HCO3_SOURCES, "HCO3- source"),
+                                 ("pregnancy", PREGNANCY_STATES, "Pregnancy")):
         h = col_of.get(name)
         if h is None:
             continue

@@ -17,7 +17,7 @@ from pydantic import ValidationError
 
 from .api import interpret, interpret_many
 from .errors import AcidBaseError
-from .fields import HCO3_SOURCES, NUMERIC, SAMPLE_TYPES, TEXT_FIELDS
+from .fields import HCO3_SOURCES, NUMERIC, PREGNANCY_STATES, SAMPLE_TYPES, TEXT_FIELDS
 from .model import Panel, describe
 from .reference import Settings
 from .report import as_text
@@ -32,7 +32,8 @@ def _help(text: str) -> str:
 
 def add_panel_options(p: argparse.ArgumentParser) -> None:
     """One option per panel field and one per unit (shared by check and tui)."""
-    g = p.add_argument_group("panel values (required: --ph --pco2 --hco3 --na --cl)")
+    g = p.add_argument_group("panel values (required: --ph --pco2 --hco3; without --na and "
+                             "--cl the gap-based readings are not assessable)")
     for spec in NUMERIC:
         opt = spec.name.replace("_", "-")
         g.add_argument(f"--{opt}", dest=spec.name, metavar="X",
@@ -47,6 +48,9 @@ def add_panel_options(p: argparse.ArgumentParser) -> None:
     c.add_argument("--hco3-source", choices=HCO3_SOURCES,
                    help="analyser: HCO3- calculated by the blood-gas analyser; chemistry: "
                         "measured total CO2 (default: unknown)")
+    c.add_argument("--pregnancy", choices=PREGNANCY_STATES,
+                   help="third_trimester: read pH, pCO2 and HCO3- against published "
+                        "third-trimester intervals (default: unknown, adult intervals)")
     for name in TEXT_FIELDS:
         c.add_argument(f"--{name.replace('_', '-')}", dest=name, metavar="TEXT")
     add_settings_options(p)
@@ -72,7 +76,7 @@ def panel_from_args(args: argparse.Namespace) -> dict[str, Any]:
         unit = getattr(args, f"{spec.name}_unit", None)
         if unit is not None:
             data[f"{spec.name}_unit"] = unit
-    for name in ("sample_type", "hco3_source", *TEXT_FIELDS):
+    for name in ("sample_type", "hco3_source", "pregnancy", *TEXT_FIELDS):
         value = getattr(args, name, None)
         if value is not None:
             data[name] = value

@@ -50,7 +50,7 @@ from .fields import BY_NAME, REQUIRED, TEXT_FIELDS
 from .model import choice_code
 
 #: Fields that are text, read as given: choices and identifiers.
-CHOICE_FIELDS: tuple[str, ...] = ("sample_type", "hco3_source")
+CHOICE_FIELDS: tuple[str, ...] = ("sample_type", "hco3_source", "pregnancy")
 ALL_FIELDS: tuple[str, ...] = tuple(BY_NAME) + CHOICE_FIELDS + TEXT_FIELDS
 
 DELIMITERS: tuple[str, ...] = (",", ";", "\t", "|")

@@ -36,7 +36,16 @@ from pydantic_core import PydanticCustomError
 
 from . import units as _units
 from .errors import Problem, UnitError
-from .fields import BY_NAME, HCO3_SOURCES, NUMERIC, REQUIRED, SAMPLE_TYPES, TEXT_FIELDS, FieldSpec
+from .fields import (
+    BY_NAME,
+    HCO3_SOURCES,
+    NUMERIC,
+    PREGNANCY_STATES,
+    REQUIRED,
+    SAMPLE_TYPES,
+    TEXT_FIELDS,
+    FieldSpec,
+)
 
 # ---------------------------------------------------------------------------
 # The one range check, over arrays
@@ -102,6 +111,8 @@ class Screened:
     """Refused row index -> its problems."""
     present: frozenset[str] = frozenset()
     """Numeric fields with at least one measured value; the kernel skips the rest."""
+    pregnancy: np.ndarray | None = None
+    """int8 codes: index into ``PREGNANCY_STATES`` (None: not given for any row)."""
 
     @functools.cached_property
     def reasons(self) -> np.ndarray:
@@ -293,12 +304,18 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None) -
         np.asarray(columns["hco3_source"], dtype=object).reshape(-1)[i], "",
         kind=f"not one of {', '.join(HCO3_SOURCES)}"))
     refused |= bad_st | bad_src
+    pregnancy, bad_preg = choice_codes(columns.get("pregnancy"), n, PREGNANCY_STATES, "unknown")
+    add(bad_preg, lambda i: Problem("pregnancy", "Pregnancy",
+        np.asarray(columns["pregnancy"], dtype=object).reshape(-1)[i], "",
+        kind=f"not one of {', '.join(PREGNANCY_STATES)}"))
+    refused |= bad_preg
 
     if refused.any():
         rows = np.flatnonzero(refused)
         for name in present:
             values[name][rows] = np.nan  # each is range_problems' own new array
-    return Screened(n, values, sample_type, hco3_source, refused, problems, frozenset(present))
+    return Screened(n, values, sample_type, hco3_source, refused, problems, frozenset(present),
+                    pregnancy)
 
 
 # ---------------------------------------------------------------------------
@@ -324,6 +341,7 @@ class _PanelBase(BaseModel):
             cols[spec.name] = np.array([np.nan if v is None else v], dtype=np.float64)
         cols["sample_type"] = np.array([self.sample_type], dtype=object)
         cols["hco3_source"] = np.array([self.hco3_source], dtype=object)
+        cols["pregnancy"] = np.array([self.pregnancy], dtype=object)
         unit_map = {s.name: getattr(self, f"{s.name}_unit") for s in NUMERIC}
         return cols, unit_map
 
@@ -388,6 +406,11 @@ def _build_panel() -> type[_PanelBase]:
         Field(default="unknown", description=(
             "Where HCO3- comes from: 'analyser' (calculated by the blood-gas analyser "
             "from its pH and pCO2) or 'chemistry' (measured total CO2).")))
+    definitions["pregnancy"] = (
+        Literal[PREGNANCY_STATES],
+        Field(default="unknown", description=(
+            "'third_trimester' reads pH, pCO2 and HCO3- against published third-trimester "
+            "intervals; 'no' and 'unknown' use the adult intervals.")))
     for name in TEXT_FIELDS:
         definitions[name] = (str | None, Field(default=None, max_length=200))
     for spec in NUMERIC:
@@ -405,7 +428,8 @@ def _build_panel() -> type[_PanelBase]:
 Panel = _build_panel()
 Panel.__doc__ = """One blood-gas and electrolyte panel, validated.
 
-Required: ph, pco2, hco3, na, cl.  Every numeric field has a ``<name>_unit``
+Required: ph, pco2, hco3 (a bare blood gas is read; without Na+ and Cl- the
+gap-based readings are not assessable).  Every numeric field has a ``<name>_unit``
 (UCUM) defaulting to its canonical unit; see ``acidbase.fields`` for the ranges.
 Construct with keywords or ``Panel.model_validate(mapping)``; invalid input
 raises ``pydantic.ValidationError`` with every problem.
