@@ -862,6 +862,17 @@ RULES: tuple[Rule, ...] = (
          ("klaestrup_2011",)),
 )
 
+def _with_examples(rules: tuple[Rule, ...]) -> tuple[Rule, ...]:
+    """Each rule with its fires/quiet example panels (``acidbase.rule_examples``)."""
+    from dataclasses import replace
+
+    from .rule_examples import EXAMPLES
+
+    return tuple(replace(r, fires=EXAMPLES[r.code][0], quiet=EXAMPLES[r.code][1])
+                 if r.code in EXAMPLES else r for r in rules)
+
+
+RULES = _with_examples(RULES)
 BY_CODE: dict[str, Rule] = {r.code: r for r in RULES}
 
 
