@@ -213,6 +213,14 @@ def _timing_text(r: Row) -> str:
             f"chronic, still adapting, or a small change where the bands overlap).")
 
 
+def _within_text(r: Row, rule_name: str) -> str:
+    """pCO2 inside the expected band, printed at the precision that shows it inside."""
+    lo, hi = r["expected_pco2_low"], r["expected_pco2_high"]
+    edge = lo if abs(r["pco2"] - lo) < abs(r["pco2"] - hi) else hi
+    return (f"Respiratory compensation as expected: pCO2 {shown(r['pco2'], edge)} mm[Hg] within "
+            f"{shown(lo, r['pco2'], '.1f')}-{shown(hi, r['pco2'], '.1f')}{rule_name}.")
+
+
 def _above_band_text(r: Row, rule_name: str) -> str:
     """pCO2 above the expected band: an additional respiratory acidosis; for venous blood
     only beyond the band widened by the largest published venous-arterial difference."""
@@ -541,8 +549,7 @@ RULES: tuple[Rule, ...] = (
     Rule("P-WINTERS-MET", "process", "info", "Respiratory compensation as expected",
          lambda f: (f["metabolic_only"] & f["prim_met_acid"] & (f["pco2"] >= f["expected_pco2_low"])
                     & (f["pco2"] <= f["expected_pco2_high"])),
-         "Respiratory compensation as expected: pCO2 {pco2:.1f} mm[Hg] within "
-         "{expected_pco2_low:.2f}-{expected_pco2_high:.2f} (Winter's formula).",
+         lambda r: _within_text(r, " (Winter's formula)"),
          "expected pCO2 = 1.5 x HCO3 + 8 +/- 2 = 1.5 x {hco3_reading:.2f} + 8 = "
          "{expected_pco2_low:.2f}-{expected_pco2_high:.2f} mm[Hg]",
          "Winter's formula is the regression of pCO2 on HCO3- in metabolic acidosis with its "
@@ -563,8 +570,7 @@ RULES: tuple[Rule, ...] = (
     Rule("P-MALK-EXPECTED", "process", "info", "Compensation of metabolic alkalosis as expected",
          lambda f: (f["metabolic_only"] & f["prim_met_alk"] & (f["pco2"] >= f["expected_pco2_low"])
                     & (f["pco2"] <= f["expected_pco2_high"])),
-         "Respiratory compensation as expected: pCO2 {pco2:.1f} mm[Hg] within "
-         "{expected_pco2_low:.2f}-{expected_pco2_high:.2f}.",
+         lambda r: _within_text(r, ""),
          "expected pCO2 = 40 + 0.7 x (HCO3 - 24) +/- 5 = 40 + 0.7 x ({hco3_reading:.2f} - 24) = "
          "{expected_pco2_low:.2f}-{expected_pco2_high:.2f} mm[Hg]",
          "pCO2 rises about 0.7 mm[Hg] per mmol/L of HCO3- above 24; the band is wide.",
