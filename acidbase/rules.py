@@ -129,11 +129,14 @@ def _critical_text(r: Row) -> str:
     c_lo, c_hi = CRITICAL["pco2"]
     items = []
     if r["ph"] < lo or r["ph"] > hi:
-        items.append(f"pH {r['ph']:.2f} (limits {lo:.2f}, {hi:.2f})")
+        items.append(f"pH {shown(r['ph'], lo if r['ph'] < lo else hi, '.2f')} (limits {lo:.2f}, "
+                     f"{hi:.2f})")
     if r["pco2"] < c_lo or r["pco2"] > c_hi:
-        items.append(f"pCO2 {r['pco2']:.0f} mm[Hg] (limits {c_lo:.0f}, {c_hi:.0f})")
+        items.append(f"pCO2 {shown(r['pco2'], c_lo if r['pco2'] < c_lo else c_hi)} mm[Hg] "
+                     f"(limits {c_lo:.0f}, {c_hi:.0f})")
     if r["sample_type"] == ARTERIAL and r["po2"] < CRITICAL["po2_low"]:
-        items.append(f"arterial pO2 {r['po2']:.0f} mm[Hg] (limit {CRITICAL['po2_low']:.0f})")
+        items.append(f"arterial pO2 {shown(r['po2'], CRITICAL['po2_low'])} mm[Hg] (limit "
+                     f"{CRITICAL['po2_low']:.0f})")
     return ("In the critical-call range of a published laboratory handbook: " + "; ".join(items)
             + ". Follow the local critical-result procedure.")
 
@@ -345,7 +348,10 @@ def _aa_text(r: Row) -> str:
     base = (f"A-a gradient {r['aa_gradient']:.0f} mm[Hg] (alveolar pO2 {r['alveolar_po2']:.0f}, "
             f"FiO2 {r['fio2']:.2f}, PB {r['pb_used']:.0f})")
     if np.isfinite(r["aa_expected"]):
-        return base + f"; expected at most {r['aa_expected']:.0f} for age {r['age']:.0f} on room air."
+        base = base.replace(f"A-a gradient {r['aa_gradient']:.0f}",
+                            f"A-a gradient {shown(r['aa_gradient'], r['aa_expected'])}", 1)
+        return base + (f"; expected at most {r['aa_expected']:.1f} for age {r['age']:.0f} on "
+                       f"room air.")
     if r["age"] < ADULT_AGE:
         return base + f"; no age-expected value below {ADULT_AGE:.0f} years (an adult rule)."
     if not r["room_air"]:
@@ -375,7 +381,7 @@ RULES: tuple[Rule, ...] = (
          ("clsi_c46", "clia_2024", "chittamma_2008")),
     Rule("T-PH-LIFE", "trust", "critical", "pH at the limit of life",
          lambda f: (f["ph"] < PH_LIFE[0]) | (f["ph"] > PH_LIFE[1]),
-         "pH {ph:.2f} is outside 6.80-7.80, the range traditionally compatible with life: "
+         "pH {ph@6.8:.2f} is outside 6.80-7.80, the range traditionally compatible with life: "
          "verify the sample and the measurement at once.",
          "pH {ph:.3f}; [H+] {h_nmol_per_l:.0f} nmol/L",
          "Survivals outside the range are reported, so the value is not refused, but it calls "
@@ -390,8 +396,9 @@ RULES: tuple[Rule, ...] = (
          ("acidbase_design",)),
     Rule("T-PO2-ABOVE-ALVEOLAR", "trust", "caution", "pO2 above alveolar pO2",
          lambda f: f["po2_above_alveolar"],
-         "pO2 {po2:.0f} mm[Hg] exceeds the alveolar pO2 {alveolar_po2:.0f} for FiO2 {fio2:.2f}: "
-         "impossible in steady state. Possible air in the sample, or the FiO2 is wrong.",
+         "pO2 {po2:.1f} mm[Hg] exceeds the alveolar pO2 {alveolar_po2:.1f} for FiO2 {fio2:.2f} "
+         "by more than 10: impossible in steady state. Possible air in the sample, or the FiO2 "
+         "is wrong.",
          "PAO2 = FiO2 x (PB - 47) - pCO2 x (FiO2 + (1 - FiO2) / 0.8) = {fio2:.2f} x "
          "({pb_used:.0f} - 47) - {pco2:.1f} x ({fio2:.2f} + (1 - {fio2:.2f}) / 0.8) = "
          "{alveolar_po2:.1f} mm[Hg]",
@@ -399,23 +406,23 @@ RULES: tuple[Rule, ...] = (
          ("baird_2013", "merck_alveolar")),
     Rule("T-POSSIBLE-VENOUS", "trust", "caution", "Arterial label, venous-like pO2",
          lambda f: (f["sample_type"] == ARTERIAL) & (f["po2"] < 40.0),
-         "Arterial pO2 {po2:.0f} mm[Hg] is either severe hypoxaemia or venous blood labelled "
+         "Arterial pO2 {po2@40:.0f} mm[Hg] is either severe hypoxaemia or venous blood labelled "
          "arterial: check the sample, an oximetry saturation and the patient.",
-         "pO2 {po2:.0f} mm[Hg] < 40", "Venous pO2 runs about 37 mm[Hg] below arterial.",
+         "pO2 {po2@40:.0f} mm[Hg] < 40", "Venous pO2 runs about 37 mm[Hg] below arterial.",
          ("baird_2013", "byrne_2014")),
     Rule("T-POSSIBLE-DELAY", "trust", "caution", "Possible delayed analysis",
          lambda f: (f["glucose"] < 3.0) & (f["lactate"] > 4.0),
-         "Possible delayed analysis: glucose {glucose:.1f} low with lactate {lactate:.1f} "
+         "Possible delayed analysis: glucose {glucose@3:.1f} low with lactate {lactate@4:.1f} "
          "mmol/L high, the pattern of glycolysis in a sample left standing (also seen in real "
          "disease); check the time from draw to analysis.",
-         "glucose {glucose:.1f} < 3.0 and lactate {lactate:.1f} > 4.0 mmol/L",
+         "glucose {glucose@3:.1f} < 3.0 and lactate {lactate@4:.1f} > 4.0 mmol/L",
          "Cells keep consuming glucose and producing lactate at room temperature; pCO2 rises "
          "and pH falls after about 30 minutes.", ("baird_2013", "cuhadar_2022")),
     Rule("T-POSSIBLE-DILUTION", "trust", "caution", "Possible dilution",
          lambda f: ((f["cl"] > 110.0) & (f["hco3"] < f["hco3_lo"]) & (f["pco2"] < f["pco2_lo"])
                     & (((f["k"] < 3.3).astype(np.int8) + (f["glucose"] < 3.5)
                         + (f["hb"] < 8.0) + (f["albumin"] < 25.0)) >= 2)),
-         "Possible dilution by saline or a line flush: chloride {cl:.0f} high with pCO2, HCO3- "
+         "Possible dilution by saline or a line flush: chloride {cl@110:.0f} high with pCO2, HCO3- "
          "and at least two of K+, glucose, haemoglobin, albumin low; ask how the sample was "
          "drawn before reading the acid-base picture.",
          "Cl {cl:.0f}; HCO3 {hco3:.1f}; pCO2 {pco2:.1f}; K {k}; glucose {glucose}; Hb {hb}; "
@@ -580,11 +587,11 @@ RULES: tuple[Rule, ...] = (
                     & (f["pco2"] <= f["expected_pco2_high"])
                     & (f["pco2"] > METABOLIC_ALKALOSIS_PCO2_CEILING)
                     & (f["sample_type"] != VENOUS)),
-         "pCO2 {pco2:.0f} mm[Hg] lies in the expected band but above about "
+         "pCO2 {pco2@55:.0f} mm[Hg] lies in the expected band but above about "
          f"{METABOLIC_ALKALOSIS_PCO2_CEILING:.0f} mm[Hg], which respiratory compensation for a "
          "metabolic alkalosis rarely exceeds: an additional respiratory acidosis cannot be "
          "excluded.",
-         f"pCO2 {{pco2:.1f}} > {METABOLIC_ALKALOSIS_PCO2_CEILING:.0f} mm[Hg]; expected band "
+         f"pCO2 {{pco2@55:.1f}} > {METABOLIC_ALKALOSIS_PCO2_CEILING:.0f} mm[Hg]; expected band "
          "{expected_pco2_low:.1f}-{expected_pco2_high:.1f}",
          "The 0.7 slope keeps rising with HCO3-; hypoventilation does not. A rule of thumb "
          "(55 to 60 mm[Hg] in teaching tables), so a caution, not a verdict; venous pCO2 runs "
@@ -614,7 +621,8 @@ RULES: tuple[Rule, ...] = (
          ("narins_emmett_1980", "berend_2014")),
     Rule("P-RESP-MET-ACIDOSIS", "process", "caution", "HCO3- below the respiratory bands",
          lambda f: (f["prim_resp_acid"] | f["prim_resp_alk"]) & f["add_met_acid"],
-         lambda r: (f"HCO3- {r['hco3']:.1f} mmol/L is below what the {_process_word(r)} explains "
+         lambda r: (f"HCO3- {shown(r['hco3'], min(r['expected_hco3_acute_low'], r['expected_hco3_chronic_low']), '.1f')} "
+                    f"mmol/L is below what the {_process_word(r)} explains "
                     f"(lowest expected {min(r['expected_hco3_acute_low'], r['expected_hco3_chronic_low']):.1f}): "
                     f"an additional metabolic acidosis."),
          "acute band {expected_hco3_acute_low:.1f}-{expected_hco3_acute_high:.1f}; chronic band "
@@ -623,7 +631,8 @@ RULES: tuple[Rule, ...] = (
          ("narins_emmett_1980", "berend_2014")),
     Rule("P-RESP-MET-ALKALOSIS", "process", "caution", "HCO3- above the respiratory bands",
          lambda f: (f["prim_resp_acid"] | f["prim_resp_alk"]) & f["add_met_alk"],
-         lambda r: (f"HCO3- {r['hco3']:.1f} mmol/L is above what the {_process_word(r)} explains "
+         lambda r: (f"HCO3- {shown(r['hco3'], max(r['expected_hco3_acute_high'], r['expected_hco3_chronic_high']), '.1f')} "
+                    f"mmol/L is above what the {_process_word(r)} explains "
                     f"(highest expected {max(r['expected_hco3_acute_high'], r['expected_hco3_chronic_high']):.1f}): "
                     f"an additional metabolic alkalosis."),
          "acute band {expected_hco3_acute_low:.1f}-{expected_hco3_acute_high:.1f}; chronic band "
@@ -914,7 +923,11 @@ class _Formatted(dict):
     def __getitem__(self, key: str) -> Any:
         if "@" in key:  # "x@limit": x printed at the precision that shows its side of limit
             name, limit = key.split("@")
-            return _Cmp(super().__getitem__(name), super().__getitem__(limit))
+            try:
+                edge = float(limit)  # a number written in the template
+            except ValueError:
+                edge = super().__getitem__(limit)
+            return _Cmp(super().__getitem__(name), edge)
         value = super().__getitem__(key)
         return _Num(value) if isinstance(value, float | np.floating) else value
 
