@@ -381,8 +381,9 @@ RULES: tuple[Rule, ...] = (
          ("clsi_c46", "clia_2024", "chittamma_2008")),
     Rule("T-PH-LIFE", "trust", "critical", "pH at the limit of life",
          lambda f: (f["ph"] < PH_LIFE[0]) | (f["ph"] > PH_LIFE[1]),
-         "pH {ph@6.8:.2f} is outside 6.80-7.80, the range traditionally compatible with life: "
-         "verify the sample and the measurement at once.",
+         lambda r: (f"pH {shown(r['ph'], PH_LIFE[0] if r['ph'] < PH_LIFE[0] else PH_LIFE[1], '.2f')}"
+                    f" is outside {PH_LIFE[0]:.2f}-{PH_LIFE[1]:.2f}, the range traditionally "
+                    f"compatible with life: verify the sample and the measurement at once."),
          "pH {ph:.3f}; [H+] {h_nmol_per_l:.0f} nmol/L",
          "Survivals outside the range are reported, so the value is not refused, but it calls "
          "for immediate verification.", ("life_limits",)),
@@ -924,7 +925,8 @@ class _Formatted(dict):
         if "@" in key:  # "x@limit": x printed at the precision that shows its side of limit
             name, limit = key.split("@")
             try:
-                edge = float(limit)  # a number written in the template
+                edge = float(limit)  # a whole number written in the template (no ".": format
+                # would read it as an attribute)
             except ValueError:
                 edge = super().__getitem__(limit)
             return _Cmp(super().__getitem__(name), edge)
