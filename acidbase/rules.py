@@ -15,13 +15,12 @@ from __future__ import annotations
 
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Self
 
 import numpy as np
 
 from .compensation import METABOLIC_ALKALOSIS_PCO2_CEILING
 from .engine import (
-    VENOUS_PCO2_EXCESS,
     ACUTE,
     ARTERIAL,
     CAPILLARY,
@@ -33,6 +32,7 @@ from .engine import (
     SOURCE_ANALYSER,
     SOURCE_CHEMISTRY,
     VENOUS,
+    VENOUS_PCO2_EXCESS,
     Frame,
 )
 from .fields import HCO3_SOURCES, NUMERIC, PREGNANCY_STATES, SAMPLE_TYPES
@@ -944,7 +944,9 @@ class _Num(float):
 class _Cmp(float):
     """A value with the limit it was compared against (see ``shown``)."""
 
-    def __new__(cls, value: float, limit: float) -> _Cmp:
+    limit: float
+
+    def __new__(cls, value: float, limit: float) -> Self:
         obj = super().__new__(cls, value)
         obj.limit = float(limit)
         return obj

@@ -213,7 +213,7 @@ def test_third_trimester_means_read_no_disorder_with_the_pregnancy_intervals(int
     # Hankins et al. 1996 means at 36-38 weeks: pH 7.46, PaCO2 26.6, HCO3 18.2.  With the
     # third-trimester intervals (Abbassi-Ghanavati 2009, value from memory) no disorder; with
     # adult intervals the same numbers read as a respiratory alkalosis.
-    panel = dict(ph=7.46, pco2=26.6, hco3=18.2, sample_type="arterial")
+    panel = {"ph": 7.46, "pco2": 26.6, "hco3": 18.2, "sample_type": "arterial"}
     r = interpret(acidbase.Panel(**panel, pregnancy="third_trimester"))
     assert r.disorders == () and "T-PREGNANCY-INTERVALS" in r.codes()
     r = interpret(acidbase.Panel(**panel))
