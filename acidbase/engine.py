@@ -349,8 +349,6 @@ def compute(s: Screened, settings: Settings) -> Frame:
     gap_large = gap >= settings.large_anion_gap
     f["gap_known"], f["gap_high"], f["gap_large"] = gap_known, gap_high, gap_large
     f["gap_not_assessable"] = ~gap_known & ~s.refused
-    # The gap's rise above its baseline that the measured lactate can account for.
-    f["lactate_share"] = np.minimum(v["lactate"], gap - f["gap_normal"])
     f["delta_ratio"] = gaps.delta_ratio(gap, hco3, f["gap_normal"])
     f["delta_gap"] = gaps.delta_gap(gap, hco3, f["gap_normal"])
     f["delta_min_fall"] = np.float64(gaps.DELTA_MIN_HCO3_FALL)
@@ -372,7 +370,6 @@ def compute(s: Screened, settings: Settings) -> Frame:
     ratio_ok = ~np.isnan(ratio)
     dgap = f["delta_gap"]
     high_active = role_high > ROLE_NONE
-    f["delta_ratio_unassessable"] = high_active & ~ratio_ok
     # With a respiratory alkalosis, part of the fall in HCO3- is its compensation, so a
     # low ratio against a baseline of 24 does not show a second acidosis (not assessable).
     # Below the minimum fall the delta gap (band +/-6) is read in place of the ratio.
