@@ -253,3 +253,13 @@ def test_effective_sid_at_the_e27_values_uses_the_clsi_bicarbonate(interpret):
     # 24.22 + 11.73 + 2.00 = 37.95.
     r = interpret(edge_panel(24.22, 40.0, albumin=42.0, phosphate=1.1))
     assert r.derived["sid_effective"] == pytest.approx(37.95, abs=0.01)
+
+
+def test_below_the_minimum_fall_a_delta_gap_beyond_plus_6_still_reads_an_alkalosis(interpret):
+    # HCO3 21 (a fall of 3, too small for a ratio), gap 19.5: delta gap (19.5 - 9) - 3 = +7.5,
+    # beyond Wrenn's +6 (Ann Emerg Med 1990) -> concurrent metabolic alkalosis; no ratio printed.
+    r = interpret(edge_panel(21.0, 39.5, gap=19.5))
+    assert ("metabolic alkalosis", "additional", None, None) in disorders(r)
+    assert r.derived["delta_ratio"] is None
+    text = next(f.text for f in r.findings if f.code == "P-DELTA-ALKALOSIS")
+    assert "delta gap +7.5" in text and "not assessable" in text
