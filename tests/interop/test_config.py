@@ -71,7 +71,7 @@ def test_options_override_the_file(tmp_path, capsys):
 
 @pytest.mark.parametrize("text, words", [
     ("[intervals.venous]\npco2 = [55, 41]\n",
-     "key 'intervals.venous.pco2': venous pco2 interval 55 to 41: give LOW < HIGH within 8 to 200"),
+     "key 'intervals.venous.pco2': venous pco2 interval 55 to 41: give LOW < HIGH within 8 to 250"),
     ("[intervals.venus]\npco2 = [41, 55]\n", "key 'intervals.venus'"),
     ("[anion_gap]\nlowest = 3\n", "key 'anion_gap.lowest': unknown key"),
     ("[units]\npco2 = \"bar\"\n", "key 'units.pco2': 'bar' is not a unit of pCO2"),
