@@ -16,8 +16,9 @@ from acidbase import config
 
 from .helpers import run
 
+#: Anion gap 141 - (104 + 26.5) = 10.5 mmol/L, inside 6-12: no metabolic process.
 VENOUS_52 = ("check", "--ph", "7.33", "--pco2", "52", "--hco3", "26.5", "--na", "141",
-             "--cl", "101", "--sample-type", "venous")
+             "--cl", "104", "--sample-type", "venous")
 
 
 def site_file(tmp_path, text: str, name: str = "site.toml"):
@@ -137,7 +138,7 @@ def test_the_config_file_is_shown_in_the_outputs(tmp_path, capsys):
     assert audit["config_file"] == str(path)
     assert audit["settings"]["intervals.venous.pco2"] == [41.0, 55.0]
     csv_file = tmp_path / "p.csv"
-    csv_file.write_text("ph,pco2,hco3,na,cl,sample_type\n7.33,52,26.5,141,101,venous\n",
+    csv_file.write_text("ph,pco2,hco3,na,cl,sample_type\n7.33,52,26.5,141,104,venous\n",
                         encoding="utf-8")
     summary = tmp_path / "s.json"
     rc, _, err = run(capsys, "batch", csv_file, "-o", tmp_path / "o.csv", "--config", path,
