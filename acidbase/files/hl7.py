@@ -21,8 +21,9 @@ The wire format is read with the ``hl7`` package (python-hl7; optional extra
 The table goes to the same reader as a CSV file: its headers are field names with
 the unit (``pco2 (kPa)``), its cells the values as text.  What the messages say
 that the reader must refuse (a malformed message, two results for one field, a
-unit the field does not take) travels in the ``hl7_refusal`` column and refuses
-that row; the other rows are read.  MLLP framing (HL7 Version 2 Minimal Lower Layer
+unit the field does not take) travels as ``Problem`` objects by row
+(``Layout.row_problems``), which the batch check puts first among the row's
+reasons; the other rows are read.  MLLP framing (HL7 Version 2 Minimal Lower Layer
 Protocol: start byte 0x0B, end bytes 0x1C 0x0D) is tolerated.
 """
 
