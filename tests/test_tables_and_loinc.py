@@ -98,6 +98,16 @@ def test_results_are_a_sequence_of_interpretations():
     assert repr(r) == "<Results: 2 panel(s), 1 interpreted, 1 refused>"
     with pytest.raises(IndexError):
         r[2]
+    assert "K+ (k) 'abc' is not a number" in r[1].to_text()
+    assert r[1].to_dict()["problems"] == [str(r[1].problems[0])]
+
+
+def test_the_report_says_what_the_reader_read_off_the_cells():
+    it = acidbase.interpret(acidbase.Panel(ph="7.25 L", pco2="60", hco3="25.7", na="140",
+                                           cl="104", lactate="<0.3"))
+    text = it.to_text()
+    assert "read as not measured: lactate <0.3" in text and "values: ph L" in text
+    assert it.to_dict()["qualifiers"] == ["lactate <0.3"]
 
 
 def test_to_arrow_types_categories_as_dictionaries_and_processes_as_booleans():
