@@ -423,8 +423,9 @@ def read_numbers(column: Any, decimal: str = ".", missing: Sequence[str] = (),
         vals = arr.astype(np.float64)
         infinite = np.isinf(vals)
         if not infinite.any():
+            # no cell is refused, so no cell's text is ever asked for (``cell`` -> None)
             return ParsedColumn(vals, None, None, np.zeros(len(vals), dtype=bool),
-                                np.full(len(vals), None, dtype=object), plain=True)
+                                np.empty(0, dtype=object), plain=True)
         return _object_numbers(arr.tolist(), decimal, missing)
     if arr.dtype.kind in "US":
         return parse_numeric(pa.array(arr.astype(str).tolist(), pa.string()), decimal, missing)
