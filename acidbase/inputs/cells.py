@@ -467,7 +467,9 @@ def number_hint(cell: object, decimal: str, unit: str) -> str:
             isinstance(cell, (float, int, np.number)) and not isinstance(cell, bool)):
         return ("NaN, infinity and words are not laboratory values; leave the cell empty "
                 "when not measured (or declare the token with --missing)")
-    if re.fullmatch(r"[+-]?[0-9]+(\.[0-9]*)?([eE][+-]?[0-9]+)?", text):
+    number = text.replace(",", ".") if decimal == "," else text
+    if re.fullmatch(r"[+-]?[0-9]+(\.[0-9]*)?([eE][+-]?[0-9]+)?", number) and (
+            decimal == "." or "." not in text) and math.isinf(float(number)):
         return "a number beyond the floating-point range is no measurement"
     if any(ch.isdigit() and not "0" <= ch <= "9" for ch in text):
         return "only the digits 0-9 are read; digits of other scripts are refused, not converted"
