@@ -17,3 +17,12 @@ __all__ = [
     "plane_bands",
 ]
 __version__ = "0.1.0"
+
+
+def __getattr__(name: str):
+    """``check_table`` and ``panel_table`` (the file layer) load on first use."""
+    if name in ("check_table", "panel_table"):
+        from .files import check
+
+        return getattr(check, name)
+    raise AttributeError(f"module 'acidbase' has no attribute {name!r}")

@@ -300,3 +300,35 @@ def test_a_list_column_is_refused_by_name(tmp_path):
 def test_map_headers_still_stops_on_two_plain_columns_for_one_field():
     with pytest.raises(BatchInputError, match="both map to ph"):
         map_headers(["ph", "2744-1", "pco2", "hco3", "na", "cl"])
+
+
+def test_panel_table_is_the_entry_for_a_table_of_coded_cells():
+    """What an HL7 v2 reader hands over: text cells under LOINC codes."""
+    pt = acidbase.panel_table(pa.table({
+        "2746-6": ["7.36"], "2021-4": ["46"], "1959-6": ["25"], "2951-2": ["140"],
+        "2075-0": ["104"], "3150-0": ["40"]}))
+    r = pt.interpret()
+    assert (r[0].sample_type, r[0].hco3_source) == ("venous", "analyser")
+    assert r[0].inputs["fio2"]["value"] == pytest.approx(0.40)  # 40 % under 3150-0
+
+
+def test_a_new_choice_input_is_one_row_of_the_vocabulary(monkeypatch):
+    """The clinical helper's pregnancy input: one enum and one Choice row give the Panel
+    field, its reader and its refusal message, with nothing else written."""
+    from enum import StrEnum
+
+    from acidbase import model
+    from acidbase.inputs.vocab import CHOICES, Choice
+
+    class Pregnancy(StrEnum):
+        YES = "yes"
+        NO = "no"
+        UNKNOWN = "unknown"
+
+    monkeypatch.setattr(model, "CHOICES", (*CHOICES, Choice("pregnancy", "Pregnancy",
+                                                            Pregnancy, "unknown")))
+    panel_class = model._build_panel()
+    base = {k: v[0] for k, v in BASE.items()}
+    assert panel_class(**base, pregnancy=" Yes ").pregnancy == "yes"
+    with pytest.raises(Exception, match="is not one of yes, no, unknown"):
+        panel_class(**base, pregnancy="maybe")

@@ -9,7 +9,9 @@ it.  Each cell is read by the one cell reader (``acidbase.inputs``) inside
 
 from __future__ import annotations
 
+import dataclasses
 from collections import Counter
+from dataclasses import dataclass
 from collections.abc import Mapping, Sequence
 from typing import Any
 
@@ -188,6 +190,43 @@ def panel_columns(table: pa.Table | pa.RecordBatch, layout: Layout,
 SPECIMEN_FIELDS: tuple[str, ...] = ("ph", "pco2", "po2", "hco3")
 
 
+@dataclass(frozen=True)
+class PanelTable:
+    """A table of cells under field or LOINC headers, made ready for ``interpret_many``."""
+
+    columns: dict[str, Any]
+    """The kernel's columns by field name (cells as given: the reader reads them)."""
+    units: dict[str, str]
+    """Field -> unit, where not the field's canonical unit."""
+    problems: dict[int, list[Problem]]
+    """Row -> problems found before any cell is read (specimen conflicts)."""
+    layout: Layout
+    """Which column feeds which field, in which unit, and the notes."""
+
+    def interpret(self, settings: Settings | None = None, *, decimal: str = "."):
+        """``interpret_many`` of these columns (the ``Results``)."""
+        return interpret_many(self.columns, self.units or None, settings, decimal=decimal,
+                              missing=self.layout.missing, row_problems=self.problems)
+
+
+def panel_table(table: pa.Table | pa.RecordBatch,
+                mapping: Mapping[str, tuple[str, str | None]] | None = None,
+                units: Mapping[str, str] | None = None,
+                missing: Sequence[str] = ()) -> PanelTable:
+    """Headers mapped (field names, LOINC codes with their specimens, a mapping) and the
+    kernel's columns built: the entry point for any input that arrives as a table of text
+    cells (an HL7 v2 message turned into one row per panel, for example).  Raises
+    ``BatchInputError`` when the headers cannot be read as panels."""
+    if isinstance(table, pa.RecordBatch):
+        table = pa.Table.from_batches([table])
+    layout = map_headers(table.schema.names, mapping, units)
+    if missing:
+        layout = dataclasses.replace(layout, missing=tuple(missing))
+    columns, problems = panel_columns(table, layout)
+    unit_map = {k: v for k, v in layout.units.items() if v != BY_NAME[k].unit}
+    return PanelTable(columns, unit_map, problems, layout)
+
+
 def _implies(layout: Layout, header: str) -> bool:
     """True when the header's LOINC code sets a sample type or an HCO3- source."""
     code = layout.code_of.get(header)
@@ -325,5 +364,5 @@ def check_table(table: pa.Table | pa.RecordBatch, settings: Settings | None = No
     return pa.table(cols)
 
 
-__all__ = ["EXTRA_COLUMNS", "ROW_COLUMN", "check_chunk", "check_table", "output_names",
-           "review_mask", "review_rules"]
+__all__ = ["EXTRA_COLUMNS", "PanelTable", "ROW_COLUMN", "check_chunk", "check_table",
+           "output_names", "panel_columns", "panel_table", "review_mask", "review_rules"]
