@@ -7,7 +7,7 @@ Public API: ``Panel``, ``interpret``, ``interpret_many``, ``Interpretation``,
 from .api import interpret, interpret_many
 from .compensation import plane_bands
 from .errors import AcidBaseError, BatchInputError, ColumnError, Problem, UnitError
-from .model import Panel, describe, describe_fields
+from .inputs.panel import Panel, describe, describe_fields
 from .reference import Settings
 from .results import CAUTION, Disorder, Finding, Interpretation, Results
 

@@ -19,7 +19,7 @@ from .errors import ColumnError, Problem, UnitError
 from .fields import BY_NAME, TEXT_FIELDS
 from .inputs.cells import read_choices
 from .inputs.vocab import CHOICES
-from .model import Panel, _length, screen
+from .inputs.panel import Panel, _length, screen
 from .reference import Settings
 from .results import Interpretation, Part, Results
 from .units import factor

@@ -22,7 +22,7 @@ import pytest
 
 import acidbase
 from acidbase import cli
-from acidbase.model import describe_fields
+from acidbase.inputs.panel import describe_fields
 
 BASE = {"ph": "7.40", "pco2": "40", "hco3": "24", "na": "140", "cl": "104"}
 GAP_K_AT_4 = 140 + 4 - 104 - 24  # anion gap with K+ when K+ reads 4.0 mmol/L

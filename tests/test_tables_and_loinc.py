@@ -317,7 +317,7 @@ def test_a_new_choice_input_is_one_row_of_the_vocabulary(monkeypatch):
     field, its reader and its refusal message, with nothing else written."""
     from enum import StrEnum
 
-    from acidbase import model
+    from acidbase.inputs import panel as model
     from acidbase.inputs.vocab import CHOICES, Choice
 
     class Pregnancy(StrEnum):
