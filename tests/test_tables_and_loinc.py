@@ -12,6 +12,7 @@ import io
 import json
 from contextlib import redirect_stderr
 
+import numpy as np
 import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
@@ -59,6 +60,22 @@ def test_a_unit_that_is_not_a_unit_is_a_unit_error(unit):
         acidbase.interpret_many(BASE, units={"pco2": unit})
 
 
+@pytest.mark.parametrize("column", [
+    np.array([b"7.4", b"\xff"]), np.array(["2020-01-01", "2020-01-02"], dtype="datetime64[D]"),
+    np.array([1 + 2j, 3j]), np.array([True, False]), pa.array([[1], [2]])])
+def test_columns_of_odd_types_refuse_their_cells_not_the_call(column):
+    r = acidbase.interpret_many({**BASE, "k": column})
+    assert r.refused.tolist() == [True, True]
+    assert all(p.kind == "not_a_number" for it in r for p in it.problems)
+
+
+def test_a_lone_value_of_any_type_is_one_cell_for_every_row():
+    import datetime
+
+    r = acidbase.interpret_many({**BASE, "k": datetime.date(2020, 1, 1)})
+    assert len(r) == 2 and r.refused.tolist() == [True, True]
+
+
 def test_something_that_is_not_columns_is_a_column_error():
     with pytest.raises(ColumnError):
         acidbase.interpret_many([1, 2, 3])
@@ -69,7 +86,8 @@ CELL = st.one_of(
                      "abc", "1e400", "40", "-1"]),
     st.floats(allow_nan=True, allow_infinity=True), st.integers(min_value=-10 ** 400,
                                                                 max_value=10 ** 400),
-    st.none(), st.booleans(), st.text(max_size=6))
+    st.none(), st.booleans(), st.text(max_size=6), st.binary(max_size=3),
+    st.dates(), st.complex_numbers(max_magnitude=10), st.decimals(allow_nan=False))
 
 
 @settings(max_examples=60, deadline=None)

@@ -39,7 +39,7 @@ from pydantic_core import PydanticCustomError
 from .. import units as _units
 from ..errors import Problem, UnitError
 from ..fields import BY_NAME, NUMERIC, REQUIRED, TEXT_FIELDS, FieldSpec
-from .cells import (ParsedColumn, number_hint, read_choice, read_choices, read_number,
+from .cells import (ParsedColumn, is_column, number_hint, read_choice, read_choices, read_number,
                     read_numbers)
 from .vocab import CHOICES, Choice
 
@@ -164,7 +164,7 @@ def column_length(columns: Mapping[str, Any]) -> int:
 
 
 def _length(value: Any) -> int | None:
-    if value is None or isinstance(value, (str, bytes, int, float, np.generic)):
+    if not is_column(value):
         return None
     if isinstance(value, (pa.Array, pa.ChunkedArray)):
         return len(value)
