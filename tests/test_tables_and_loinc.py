@@ -350,3 +350,15 @@ def test_a_new_choice_input_is_one_row_of_the_vocabulary(monkeypatch):
     assert panel_class(**base, pregnancy=" Yes ").pregnancy == "yes"
     with pytest.raises(Exception, match="is not one of yes, no, unknown"):
         panel_class(**base, pregnancy="maybe")
+
+
+def test_serial_checks_read_one_column_per_specimen_as_the_reading_does(tmp_path):
+    """pH 7.40 (arterial column) then 7.10 (venous column) an hour later: the serial
+    check sees both values (a change of 0.30, beyond the default pH delta limit)."""
+    path = tmp_path / "ser.csv"
+    path.write_text("patient_id,collected_at,2744-1,2746-6,2019-8,2021-4,hco3,na,cl\n"
+                    "p1,2026-01-01T10:00Z,7.40,,40,,24,140,104\n"
+                    "p1,2026-01-01T11:00Z,,7.10,,60,18,140,104\n")
+    rc, rows, err = _batch(tmp_path, path)
+    assert rc == 0, err
+    assert "SERIAL-DELTA-PH" in rows[1]["serial_codes"]

@@ -99,6 +99,20 @@ def _as_text(column: pa.Array | pa.ChunkedArray) -> pa.Array:
     return column if pa.types.is_string(column.type) else column.cast(pa.string())
 
 
+def field_column(table: pa.Table | pa.RecordBatch, headers: Sequence[str],
+                 missing: Sequence[str] = ()) -> tuple[Any, dict[str, np.ndarray]]:
+    """One field's column from its input columns (one per specimen: each row takes the
+    one filled), and each column's filled rows."""
+    filled = {h: _filled(table.column(h), missing) for h in headers}
+    if len(headers) == 1:
+        return table.column(headers[0]), filled
+    merged = None
+    for h in headers:
+        text = _as_text(table.column(h))
+        merged = text if merged is None else pc.if_else(pa.array(filled[h]), text, merged)
+    return merged, filled
+
+
 def panel_columns(table: pa.Table | pa.RecordBatch, layout: Layout,
                   missing: Sequence[str] = ()) -> tuple[dict[str, Any], dict[int, list[Problem]]]:
     """The kernel's columns of one table (by field name), and the rows refused before any
@@ -132,19 +146,12 @@ def panel_columns(table: pa.Table | pa.RecordBatch, layout: Layout,
         if len(headers) == 1 and not any(_implies(layout, h) for h in headers):
             cols[fld] = table.column(headers[0])
             continue
-        filled = {h: _filled(table.column(h), missing) for h in headers}
+        cols[fld], filled = field_column(table, headers, missing)
         if len(headers) > 1:
             count = np.sum([f for f in filled.values()], axis=0)
             title = BY_NAME[fld].title if fld in BY_NAME else fld
             conflict(count > 1, fld, title, " and ".join(headers),
                      "a row may fill one specimen's column of a field, not two")
-            merged = None
-            for h in headers:
-                text = _as_text(table.column(h))
-                merged = text if merged is None else pc.if_else(pa.array(filled[h]), text, merged)
-            cols[fld] = merged
-        else:
-            cols[fld] = table.column(headers[0])
         for h in headers:
             code = layout.code_of.get(h, "")
             st = loinc.sample_type_for(code) if code and fld in SPECIMEN_FIELDS else None
@@ -365,4 +372,5 @@ def check_table(table: pa.Table | pa.RecordBatch, settings: Settings | None = No
 
 
 __all__ = ["EXTRA_COLUMNS", "PanelTable", "ROW_COLUMN", "check_chunk", "check_table",
+           "field_column",
            "output_names", "panel_columns", "panel_table", "review_mask", "review_rules"]
