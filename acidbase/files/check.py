@@ -23,7 +23,7 @@ from .. import loinc, serial
 from ..api import interpret_many
 from ..errors import Problem
 from ..fields import BY_NAME
-from ..inputs.vocab import normalise_word
+from ..inputs.vocab import CHOICE_BY_NAME, normalise_word
 from ..reference import Settings
 from ..results import CAUTION, DERIVED
 from .headers import Layout, map_headers
@@ -132,8 +132,10 @@ def panel_columns(table: pa.Table | pa.RecordBatch, layout: Layout,
     n = table.num_rows
     problems: dict[int, list[Problem]] = {}
     cols: dict[str, Any] = {}
-    specimen = np.full(n, None, dtype=object)  # sample type named by the filled columns
-    source = np.full(n, None, dtype=object)    # HCO3- source named by the filled columns
+    # What the filled coded columns say, as codes into each choice's words (-1: nothing).
+    st_words, src_words = CHOICE_BY_NAME["sample_type"].words, CHOICE_BY_NAME["hco3_source"].words
+    specimen = np.full(n, -1, dtype=np.int16)
+    source = np.full(n, -1, dtype=np.int16)
 
     def conflict(rows: np.ndarray, name: str, title: str, value: str, hint: str) -> None:
         for i in np.flatnonzero(rows).tolist():
@@ -156,38 +158,42 @@ def panel_columns(table: pa.Table | pa.RecordBatch, layout: Layout,
             code = layout.code_of.get(h, "")
             st = loinc.sample_type_for(code) if code and fld in SPECIMEN_FIELDS else None
             if st is not None:
-                rows = filled[h]
-                clash = rows & (specimen != None) & (specimen != st)  # noqa: E711
+                rows, k = filled[h], st_words.index(st)
+                clash = rows & (specimen >= 0) & (specimen != k)
                 conflict(clash, "sample_type", "Sample type", f"{h} ({loinc.SPECIMEN[code]})",
                          "the row's LOINC-coded columns name different specimens")
-                specimen[rows & (specimen == None)] = st  # noqa: E711
+                specimen[rows & (specimen < 0)] = k
             src = loinc.HCO3_SOURCE_OF_CODE.get(code)
             if src is not None:
-                source[filled[h]] = src
-    for name, implied, title in (("sample_type", specimen, "Sample type"),
-                                 ("hco3_source", source, "HCO3- source")):
-        if not any(v is not None for v in implied.tolist()):
+                source[filled[h]] = src_words.index(src)
+    for name, implied, title, vocab in (("sample_type", specimen, "Sample type", st_words),
+                                        ("hco3_source", source, "HCO3- source", src_words)):
+        has = implied >= 0
+        if not has.any():
             continue
+        implied_words = np.array([*vocab, None], dtype=object)[implied]  # -1 -> None
         given = cols.get(name)
-        words = np.full(n, None, dtype=object)
-        if given is not None:
-            text = _as_text(given).to_pylist()
-            for i, cell in enumerate(text):
-                if cell is not None and cell.strip() and cell.strip() not in missing:
-                    words[i] = cell
-        out = words.copy()
-        for i in range(n):
-            want = implied[i]
-            if want is None:
-                continue
-            if words[i] is None:
-                out[i] = want
-            elif normalise_word(words[i]) != want and normalise_word(words[i]) != "unknown":
-                problems.setdefault(i, []).append(Problem(
-                    name, title, words[i], "", kind="specimen_conflict",
-                    hint=f"the row's LOINC-coded columns say {want}; correct the {name} cell "
-                         "or the column"))
-        cols[name] = out
+        if given is None:  # no column: the codes say it
+            cols[name] = implied_words
+            continue
+        # Column-wise: each distinct cell text is normalised once, to a code of the
+        # vocabulary (-2: not one of its words, so a conflict too; the reader refuses it).
+        text = _as_text(given)
+        filled = _filled(text, missing)
+        encoded = pc.dictionary_encode(text)
+        said_of = [vocab.index(w) if (w := normalise_word(t or "")) in vocab else -2
+                   for t in encoded.dictionary.to_pylist()] + [-1]
+        idx = np.asarray(pc.fill_null(encoded.indices, len(said_of) - 1)
+                         .to_numpy(zero_copy_only=False))
+        said = np.array(said_of, dtype=np.int16)[idx]
+        clash = has & filled & (said != implied) & (said != vocab.index("unknown"))
+        cells = np.asarray(text.to_numpy(zero_copy_only=False), dtype=object)
+        for i in np.flatnonzero(clash).tolist():
+            problems.setdefault(i, []).append(Problem(
+                name, title, cells[i], "", kind="specimen_conflict",
+                hint=f"the row's LOINC-coded columns say {vocab[implied[i]]}; correct the "
+                     f"{name} cell or the column"))
+        cols[name] = np.where(filled, cells, implied_words)
     return cols, problems
 
 
