@@ -40,8 +40,8 @@ from .engine import SLOTS
 from .errors import AcidBaseError
 from .fields import BY_NAME
 from .fileio import BatchInputError, Layout, Source
-from .files.check import (EXTRA_COLUMNS, ROW_COLUMN, check_chunk, output_names,  # noqa: F401
-                          review_mask, review_rules)
+from .files.check import (EXTRA_COLUMNS, ROW_COLUMN, check_chunk, field_column,  # noqa: F401
+                          output_names, review_mask, review_rules)
 from .results import CAUTION, DECIMALS, DERIVED
 
 if TYPE_CHECKING:  # the command line (argparse) lives in acidbase.cli only
@@ -464,13 +464,15 @@ def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.Seri
     if "sample_id" in col_of:
         wanted.append(col_of["sample_id"])
     fields_used = [r.field for r in checker.rules if r.field in col_of]
-    wanted += [col_of[f] for f in fields_used]
+    columns_of = layout.columns_of  # one column per specimen: a row reads the filled one
+    wanted += [h for f in fields_used for h in columns_of[f]]
     wanted = list(dict.fromkeys(wanted))
     rows = 0
     for table in src.chunks(wanted):
         values = {}
-        many = fileio.parse_numeric_many([table[col_of[f]] for f in fields_used], decimal,
-                                         layout.missing)
+        many = fileio.parse_numeric_many(
+            [field_column(table, columns_of[f], layout.missing)[0] for f in fields_used],
+            decimal, layout.missing)
         for f, p in zip(fields_used, many):
             spec = BY_NAME[f]
             unit = layout.units.get(f, spec.unit)

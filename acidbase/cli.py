@@ -21,7 +21,7 @@ from . import serial as serial_defaults
 from .files.formats import FORMATS
 from .fields import NUMERIC, TEXT_FIELDS
 from .inputs.vocab import CHOICES
-from .model import Panel, describe
+from .inputs.panel import Panel, describe
 from .reference import Settings
 from .report import as_text
 from .results import CAUTION
