@@ -651,7 +651,7 @@ def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.Seri
     wanted = [col_of["patient_id"], col_of["collected_at"]]
     if "sample_id" in col_of:
         wanted.append(col_of["sample_id"])
-    fields_used = [r.field for r in checker.rules if r.field in col_of]
+    fields_used = [f for f in checker.fields if f in col_of]
     wanted += [col_of[f] for f in fields_used]
     wanted = list(dict.fromkeys(wanted))
     rows = 0
@@ -748,6 +748,9 @@ def _run(args: argparse.Namespace, label: str) -> int:
         progress.label = "serial 1/2"
         try:
             _serial_pass(src, layout, decimal, checker, progress)
+        except BaseException:
+            checker.close()  # its scratch folder goes on every exit path
+            raise
         finally:
             progress.end()
     writer = fileio.Writer(args.output, out_fmt, out_delim, metadata={"caution": CAUTION},
