@@ -168,6 +168,11 @@ class SerialChecker:
         self._n = 0
         self._naive = self._zoned = 0
         self._earlier = 0
+        self.tmin: int | None = None
+        self.tmax: int | None = None
+        """Earliest and latest collection time of this file's usable panels (seconds)."""
+        self.interpreted: np.ndarray | None = None
+        """Per row, set by the second pass: the panel was interpreted (not refused)."""
         self.status: np.ndarray | None = None
         self.known: np.ndarray | None = None
         """Per row: a panel with this patient, time and sample id was already stored."""
@@ -208,6 +213,9 @@ class SerialChecker:
         if not usable.any():
             return
         idx = np.flatnonzero(usable)
+        lo, hi = int(seconds[idx].min()), int(seconds[idx].max())
+        self.tmin = lo if self.tmin is None else min(self.tmin, lo)
+        self.tmax = hi if self.tmax is None else max(self.tmax, hi)
         take = pa.array(idx)
         samp = (_strings(sample).take(take) if sample is not None
                 else pa.nulls(len(idx), pa.string()))
@@ -275,9 +283,19 @@ class SerialChecker:
                 with pa.memory_map(self._part_path(b)) as src:
                     table = ipc.open_file(src).read_all()
                 row = np.asarray(table["row"].to_numpy(), dtype=np.int64)
+                if (row < 0).any():
+                    keep = self._drop_stored_copies(
+                        _codes(table["patient"]), np.asarray(table["t"].to_numpy()),
+                        _codes(table["sample"]), row)
+                    table, row = table.filter(pa.array(keep)), row[keep]
                 zoned = np.asarray(table["zoned"].to_numpy(zero_copy_only=False), dtype=bool)
                 earlier = row < 0
                 drop = earlier & (zoned != (self._zoned > 0))  # other clock: not comparable
+                if earlier.any():  # patients with no panel in this file: not needed
+                    pid = _codes(table["patient"])
+                    mine = np.zeros(pid.max() + 2, dtype=bool)
+                    mine[pid[~earlier]] = True
+                    drop |= earlier & ~mine[pid]
                 if mixed:
                     naive = ~zoned & ~earlier
                     status[row[naive]] = MIXED_ZONE
@@ -295,6 +313,7 @@ class SerialChecker:
                 w.close()
         self._writers = [None] * self.k
         self.status = status
+        self.interpreted = np.zeros(len(status), dtype=bool)
 
     def _check(self, table: pa.Table, status: np.ndarray
                ) -> tuple[np.ndarray, pa.Array, pa.Array] | None:
@@ -304,9 +323,6 @@ class SerialChecker:
         pid = _codes(table["patient"])
         row = np.asarray(table["row"].to_numpy(), dtype=np.int64)
         t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
-        if (row < 0).any():
-            keep = self._drop_stored_copies(pid, t, _codes(table["sample"]), row)
-            table, pid, row, t = table.filter(pa.array(keep)), pid[keep], row[keep], t[keep]
         order = np.lexsort((row, t, pid))
         pid, row, t = pid[order], row[order], t[order]
         ours = row >= 0
@@ -316,7 +332,11 @@ class SerialChecker:
         prev_ok = np.concatenate([[False], pair])
         next_ok = np.concatenate([pair, [False]])
         status[row[(prev_ok | next_ok) & ours]] = WITHIN
-        self.earlier_used += int(np.count_nonzero((prev_ok | next_ok) & ~ours))
+        # An earlier panel "used" is a neighbour of one of this file's panels.
+        near = np.zeros(n, dtype=bool)
+        near[:-1] |= pair & ours[1:]
+        near[1:] |= pair & ours[:-1]
+        self.earlier_used += int(np.count_nonzero(near & ~ours))
         vals = {r.field: np.asarray(table[r.field].to_numpy(zero_copy_only=False),
                                     dtype=np.float64)[order] for r in self.rules}
         delta, brk = {}, {}
@@ -419,6 +439,24 @@ class SerialChecker:
                 with pa.memory_map(path) as src:
                     table = ipc.open_file(src).read_all()
                 yield table.filter(pc.greater_equal(table["row"], 0))
+
+    def new_panels(self, fields: Sequence[str] = STORED_FIELDS) -> Iterator[pa.Table]:
+        """This file's interpreted panels not already stored (``known``), each identity
+        (patient, time, sample id) once: columns ``patient``, ``t``, ``zoned``,
+        ``sample`` and ``fields``, one partition at a time (``keep=True``)."""
+        names = ["patient", "t", "zoned", "sample", *fields]
+        for table in self.panels():
+            row = np.asarray(table["row"].to_numpy(), dtype=np.int64)
+            table = table.filter(pa.array(self.interpreted[row] & ~self.known[row]))
+            if table.num_rows == 0:
+                continue
+            pid, sid = _codes(table["patient"]), _codes(table["sample"])
+            t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
+            o = np.lexsort((np.asarray(table["row"].to_numpy()), sid, t, pid))
+            first = np.concatenate([[True], (pid[o][1:] != pid[o][:-1]) | (t[o][1:] != t[o][:-1])
+                                    | (sid[o][1:] != sid[o][:-1])])
+            table = table.take(pa.array(np.sort(o[first])))
+            yield table.select(names)
 
     def arrow_columns(self, start: int, stop: int) -> dict[str, pa.Array]:
         """The serial output columns for rows ``start`` to ``stop`` (file order); the
