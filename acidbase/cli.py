@@ -164,6 +164,12 @@ def cmd_batch(args: argparse.Namespace) -> int:
     return batch.run(args)
 
 
+def cmd_history(args: argparse.Namespace) -> int:
+    from . import history_command
+
+    return history_command.run(args)
+
+
 def cmd_tui(args: argparse.Namespace) -> int:
     data = panel_from_args(args)
     panel = None
@@ -200,6 +206,11 @@ def build_parser() -> argparse.ArgumentParser:
     except ImportError:  # pragma: no cover - the batch module ships with the package
         pass
     batch.set_defaults(func=cmd_batch)
+    hist = sub.add_parser("history", help="what a history store holds; export or purge a patient")
+    from . import history_command
+
+    history_command.configure_parser(hist)
+    hist.set_defaults(func=cmd_history)
     tui = sub.add_parser("tui", help="the keyboard-only terminal app")
     add_panel_options(tui)
     tui.add_argument("--demo", action="store_true", help="open with the demo panels loaded")

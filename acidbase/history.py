@@ -445,6 +445,13 @@ def earlier_panels(store: str, patient_id: str, key: str | bytes | None = None,
         if when.tzinfo is None:
             when = when.replace(tzinfo=_dt.timezone.utc)
         table = table.filter(pc.less(table["t"], int(when.timestamp())))
+    return table_rows(table)
+
+
+def table_rows(table: pa.Table) -> list[dict[str, object]]:
+    """Stored panels as dictionaries: ``collected_at`` (ISO 8601; ``Z`` when the time
+    had an offset, compared in UTC), ``sample_id``, the stored fields (NaN where not
+    measured)."""
     out = []
     for r in table.to_pylist():
         stamp = _dt.datetime.fromtimestamp(r["t"], _dt.timezone.utc)
@@ -453,8 +460,6 @@ def earlier_panels(store: str, patient_id: str, key: str | bytes | None = None,
         row.update({f: (float("nan") if r[f] is None else r[f]) for f in STORED_FIELDS})
         out.append(row)
     return out
-
-
 
 
 # -- the batch run's use of the store (kept here so that batch.py only calls) --------
@@ -503,4 +508,4 @@ def commit_run(store: Store, checker, input_path: str, settings: Mapping[str, ob
 
 __all__ = ["DEFAULT_RETENTION_DAYS", "HistoryError", "KEY_ENV", "RunRecord", "SCHEMA_VERSION",
            "SETTINGS", "Store", "commit_run", "earlier_panels", "feed_earlier", "hash_id",
-           "hash_ids", "open_for_run", "site_key"]
+           "hash_ids", "open_for_run", "site_key", "table_rows"]
