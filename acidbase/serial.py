@@ -196,7 +196,7 @@ class SerialChecker:
         ``patient`` object array (None when absent); ``seconds`` and ``kind`` from
         ``fileio.parse_times``; ``values`` in canonical units, NaN when not usable.
         """
-        from .fileio import TIME_INVALID, TIME_NAIVE, TIME_ZONED
+        from .files.times import TIME_INVALID, TIME_NAIVE, TIME_ZONED
 
         n = len(patient)
         first = self._n
