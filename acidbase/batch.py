@@ -676,7 +676,7 @@ def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.Seri
         sample = table[col_of["sample_id"]] if "sample_id" in col_of else None
         patient = table[col_of["patient_id"]]
         if store is not None:  # compared, and stored, as keyed hashes only
-            patient = history.hash_ids(patient, store.key)
+            patient = store.hash_ids(patient, secs)
         checker.add(patient, secs, kind, values, sample)
         rows += table.num_rows
         progress.update(rows)
@@ -765,9 +765,10 @@ def _run(args: argparse.Namespace, label: str) -> int:
         if args.history:
             store = history.open_for_run(args.history, args.history_retention_days
                                          or history.DEFAULT_RETENTION_DAYS)
+        # With a store, earlier panels join the partitions: twice as many of them.
         checker = serial.SerialChecker(serial.rules_with(deltas), args.window_hours,
-                                       serial.SerialChecker.partitions_for(src.size),
-                                       keep=store is not None)
+                                       serial.SerialChecker.partitions_for(src.size)
+                                       * (2 if store else 1), keep=store is not None)
         progress = Progress(src.estimated_rows(), not args.quiet)
         progress.label = "serial 1/2"
         try:

@@ -163,7 +163,8 @@ class SerialChecker:
             [("row", pa.int64()), ("patient", pa.string()), ("t", pa.int64()),
              ("zoned", pa.bool_()), ("sample", pa.string())]
             + [(f, pa.float64()) for f in self.fields])
-        self._writers: list[ipc.RecordBatchFileWriter | None] = [None] * self.k
+        # This file's rows ("p") and earlier panels ("e"), each by partition.
+        self._writers: dict[tuple[str, int], ipc.RecordBatchFileWriter] = {}
         self._status: list[np.ndarray] = []
         self._n = 0
         self._naive = self._zoned = 0
@@ -225,7 +226,7 @@ class SerialChecker:
             v = values.get(f)
             cols.append(pa.array(np.asarray(v, dtype=np.float64)[idx]) if v is not None
                         else pa.nulls(len(idx), pa.float64()))
-        self._spill(pa.table(cols, schema=self.schema))
+        self._spill(pa.table(cols, schema=self.schema), "p")
 
     def add_earlier(self, table: pa.Table) -> None:
         """Add panels stored by earlier runs: columns ``patient``, ``t``, ``zoned``,
@@ -240,9 +241,9 @@ class SerialChecker:
         cols = [pa.array(rows)]
         for name, typ in zip(self.schema.names[1:], self.schema.types[1:]):
             cols.append(table[name].cast(typ) if name in names else pa.nulls(n, typ))
-        self._spill(pa.table(cols, schema=self.schema))
+        self._spill(pa.table(cols, schema=self.schema), "e")
 
-    def _spill(self, table: pa.Table) -> None:
+    def _spill(self, table: pa.Table, kind: str) -> None:
         """Append rows to the partition files, by a hash of the patient."""
         if self.k > 1:
             enc = pc.dictionary_encode(table["patient"]).combine_chunks()
@@ -257,14 +258,21 @@ class SerialChecker:
         for b in range(self.k):
             lo, hi = bounds[b], bounds[b + 1]
             if hi > lo:
-                w = self._writers[b]
+                w = self._writers.get((kind, b))
                 if w is None:
-                    w = ipc.new_file(self._part_path(b), self.schema)
-                    self._writers[b] = w
+                    w = ipc.new_file(self._part_path(b, kind), self.schema)
+                    self._writers[kind, b] = w
                 w.write_table(table.slice(lo, hi - lo))
 
-    def _part_path(self, b: int) -> str:
-        return os.path.join(self._tmp.name, f"p{b}.arrow")
+    def _part_path(self, b: int, kind: str = "p") -> str:
+        return os.path.join(self._tmp.name, f"{kind}{b}.arrow")
+
+    def _read_part(self, b: int, kind: str) -> pa.Table | None:
+        path = self._part_path(b, kind)
+        if not os.path.exists(path):
+            return None
+        with pa.memory_map(path) as src:
+            return ipc.open_file(src).read_all()
 
     # -- checks -----------------------------------------------------------------
     def finish(self) -> None:
@@ -272,27 +280,31 @@ class SerialChecker:
         status = np.concatenate(self._status) if self._status else np.zeros(0, dtype=np.uint8)
         self._status = []
         self.known = np.zeros(len(status), dtype=bool)
+        self.twins = np.zeros(len(status), dtype=bool)
         mixed = self._naive > 0 and self._zoned > 0
         self._bucket_rows = max(_BUCKET_ROWS, -(-self._n // _MAX_BUCKETS))
         spill: dict[int, ipc.RecordBatchFileWriter] = {}
+        for w in self._writers.values():
+            w.close()
+        self._writers = {}
         try:
-            for b, w in enumerate(self._writers):
-                if w is None:
+            for b in range(self.k):
+                parts = [t for t in (self._read_part(b, "p"), self._read_part(b, "e"))
+                         if t is not None]
+                if not parts:
                     continue
-                w.close()
-                with pa.memory_map(self._part_path(b)) as src:
-                    table = ipc.open_file(src).read_all()
+                table = pa.concat_tables(parts) if len(parts) > 1 else parts[0]
+                del parts
                 row = np.asarray(table["row"].to_numpy(), dtype=np.int64)
-                if (row < 0).any():
-                    keep = self._drop_stored_copies(
-                        _codes(table["patient"]), np.asarray(table["t"].to_numpy()),
-                        _codes(table["sample"]), row)
-                    table, row = table.filter(pa.array(keep)), row[keep]
+                pid = _codes(table["patient"])
+                if (row < 0).any() or self.keep:
+                    keep = self._identities(table, pid, row)
+                    if keep is not None:
+                        table, row, pid = table.filter(pa.array(keep)), row[keep], pid[keep]
                 zoned = np.asarray(table["zoned"].to_numpy(zero_copy_only=False), dtype=bool)
                 earlier = row < 0
                 drop = earlier & (zoned != (self._zoned > 0))  # other clock: not comparable
                 if earlier.any():  # patients with no panel in this file: not needed
-                    pid = _codes(table["patient"])
                     mine = np.zeros(pid.max() + 2, dtype=bool)
                     mine[pid[~earlier]] = True
                     drop |= earlier & ~mine[pid]
@@ -301,26 +313,26 @@ class SerialChecker:
                     status[row[naive]] = MIXED_ZONE
                     drop |= naive
                 if drop.any():
-                    table = table.filter(pa.array(~drop))
-                found = self._check(table, status)
+                    table, pid = table.filter(pa.array(~drop)), pid[~drop]
+                found = self._check(table, pid, status)
                 if found is not None:
                     self._spill_text(*found, spill)
                 del table
-                if not self.keep:
-                    os.remove(self._part_path(b))
+                for kind in ("p", "e"):
+                    if (kind == "e" or not self.keep) and os.path.exists(self._part_path(b, kind)):
+                        os.remove(self._part_path(b, kind))
         finally:
             for w in spill.values():
                 w.close()
-        self._writers = [None] * self.k
         self.status = status
         self.interpreted = np.zeros(len(status), dtype=bool)
 
-    def _check(self, table: pa.Table, status: np.ndarray
+    def _check(self, table: pa.Table, pid: np.ndarray, status: np.ndarray
                ) -> tuple[np.ndarray, pa.Array, pa.Array] | None:
-        """Flag one partition's rows; the flagged rows with their codes and detail."""
+        """Flag one partition's rows (``pid``: equal codes for equal patients); the
+        flagged rows with their codes and detail."""
         if table.num_rows == 0:
             return None
-        pid = _codes(table["patient"])
         row = np.asarray(table["row"].to_numpy(), dtype=np.int64)
         t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
         order = np.lexsort((row, t, pid))
@@ -367,6 +379,24 @@ class SerialChecker:
                                lambda at: samples.take(pa.array(order[at])), vals, delta, brk)
         return row[flagged], codes, detail
 
+    def _identities(self, table: pa.Table, pid: np.ndarray,
+                    row: np.ndarray) -> np.ndarray | None:
+        """``_drop_stored_copies`` over the rows that share a patient and a time with
+        another (few, unless a file is read again); None when none do."""
+        t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
+        o = np.lexsort((t, pid))
+        same = (pid[o][1:] == pid[o][:-1]) & (t[o][1:] == t[o][:-1])
+        if not same.any():
+            return None
+        shared = np.zeros(len(row), dtype=bool)
+        shared[o[1:][same]] = True
+        shared[o[:-1][same]] = True
+        at = np.flatnonzero(shared)
+        keep = np.ones(len(row), dtype=bool)
+        keep[at] = self._drop_stored_copies(pid[at], t[at], _codes(table["sample"].take(
+            pa.array(at))), row[at])
+        return keep
+
     def _drop_stored_copies(self, pid: np.ndarray, t: np.ndarray, sid: np.ndarray,
                             row: np.ndarray) -> np.ndarray:
         """Rows to keep: an earlier panel with the patient, time and sample id of one of
@@ -382,6 +412,9 @@ class SerialChecker:
         has_ours[gid[~early]] = True
         dup = has_early[gid] & has_ours[gid]
         self.known[row[o][dup & ~early]] = True
+        if self.keep:  # this file's rows sharing an identity: stored once (new_panels)
+            size = np.bincount(gid[~early], minlength=gid[-1] + 1)
+            self.twins[row[o][~early & (size[gid] > 1)]] = True
         keep = np.ones(len(row), dtype=bool)
         keep[o[dup & early]] = False
         return keep
@@ -434,11 +467,9 @@ class SerialChecker:
         if not self.keep or self.status is None:
             raise RuntimeError("panels() needs keep=True and finish()")
         for b in range(self.k):
-            path = self._part_path(b)
-            if os.path.exists(path):
-                with pa.memory_map(path) as src:
-                    table = ipc.open_file(src).read_all()
-                yield table.filter(pc.greater_equal(table["row"], 0))
+            table = self._read_part(b, "p")
+            if table is not None:
+                yield table
 
     def new_panels(self, fields: Sequence[str] = STORED_FIELDS) -> Iterator[pa.Table]:
         """This file's interpreted panels not already stored (``known``), each identity
@@ -447,16 +478,18 @@ class SerialChecker:
         names = ["patient", "t", "zoned", "sample", *fields]
         for table in self.panels():
             row = np.asarray(table["row"].to_numpy(), dtype=np.int64)
-            table = table.filter(pa.array(self.interpreted[row] & ~self.known[row]))
-            if table.num_rows == 0:
-                continue
-            pid, sid = _codes(table["patient"]), _codes(table["sample"])
-            t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
-            o = np.lexsort((np.asarray(table["row"].to_numpy()), sid, t, pid))
-            first = np.concatenate([[True], (pid[o][1:] != pid[o][:-1]) | (t[o][1:] != t[o][:-1])
-                                    | (sid[o][1:] != sid[o][:-1])])
-            table = table.take(pa.array(np.sort(o[first])))
-            yield table.select(names)
+            new = self.interpreted[row] & ~self.known[row]
+            twin = new & self.twins[row]
+            if twin.any():  # rare: rows sharing an identity; the first interpreted one
+                sub = table.filter(pa.array(twin))
+                pid, sid = _codes(sub["patient"]), _codes(sub["sample"])
+                t = np.asarray(sub["t"].to_numpy(), dtype=np.int64)
+                o = np.lexsort((row[twin], sid, t, pid))
+                first = np.concatenate([[True], (pid[o][1:] != pid[o][:-1])
+                                        | (t[o][1:] != t[o][:-1]) | (sid[o][1:] != sid[o][:-1])])
+                new[np.flatnonzero(twin)[o[~first]]] = False
+            if new.any():
+                yield table.filter(pa.array(new)).select(names)
 
     def arrow_columns(self, start: int, stop: int) -> dict[str, pa.Array]:
         """The serial output columns for rows ``start`` to ``stop`` (file order); the
@@ -496,13 +529,12 @@ class SerialChecker:
 
     def close(self) -> None:
         """Close and remove the temporary files (also after a failed run)."""
-        for w in self._writers:
-            if w is not None:
-                try:
-                    w.close()
-                except (OSError, pa.ArrowException):
-                    pass
-        self._writers = [None] * self.k
+        for w in self._writers.values():
+            try:
+                w.close()
+            except (OSError, pa.ArrowException):
+                pass
+        self._writers = {}
         self._cache.clear()
         self._tmp.cleanup()
 
@@ -626,8 +658,9 @@ def _strings(x: pa.Array | pa.ChunkedArray | np.ndarray) -> pa.Array:
 
 
 def _codes(x: pa.ChunkedArray | pa.Array) -> np.ndarray:
-    """Equal texts get equal integers (missing is -1): for grouping, not ordering."""
-    enc = pc.dictionary_encode(x)
+    """Equal texts get equal integers (missing or empty is -1): for grouping, not
+    ordering."""
+    enc = pc.dictionary_encode(pc.if_else(pc.equal(x, ""), pa.scalar(None, x.type), x))
     if isinstance(enc, pa.ChunkedArray):
         enc = enc.combine_chunks()
     return np.asarray(pc.fill_null(enc.indices, -1).to_numpy(zero_copy_only=False),

@@ -286,11 +286,43 @@ def test_hash_ids_hashes_each_id_and_keeps_blank_ids_empty():
     got = history.hash_ids(pa.array(["A", None, " ", "A", "B"]), key).to_pylist()
     assert got[0] == got[3] == history.hash_id("A", key) != got[4]
     assert got[1] == got[2] == ""
-    # RFC 4231 test case 2: HMAC-SHA256 with key "Jefe".
+    # RFC 4231 test case 2 (HMAC-SHA256, key "Jefe"), truncated to its first 128 bits
+    # as RFC 2104 section 5 allows: 5bdcc146bf60754e6a042426089575c7 5a003f08...
     assert history.hash_id("what do ya want for nothing?", b"Jefe") == (
-        "5bdcc146bf60754e6a042426089575c75a003f089d2739839dec58b964ec3843")
+        "5bdcc146bf60754e6a042426089575c7")
 
 
 def test_a_short_key_is_refused():
     with pytest.raises(history.HistoryError, match="at least"):
         history.site_key("short")
+
+
+@pytest.mark.parametrize("key", [b"Jefe", b"k" * 64, b"long-" * 40])
+def test_many_ids_are_hashed_as_one_id_is(key):
+    """The per-id shortcut (copied hash states) gives the standard library's HMAC,
+    also for keys of one block and longer than a block (RFC 2104 section 2)."""
+    ids = ["what do ya want for nothing?", "MRN-1", "é-accent"]
+    assert history.hash_ids(pa.array(ids), key).to_pylist() == [
+        history.hash_id(i, key) for i in ids]
+
+
+def test_a_sample_listed_twice_in_one_file_is_stored_once(tmp_path, capsys):
+    store = tmp_path / "store.db"
+    src = tmp_path / "day.csv"
+    row = f"S1,P-1,{stamp(1)},7.40,40,24,140,104,4.0\n"
+    src.write_text(HEADER + row + f"S2,P-1,{stamp(0.5)},7.40,40,24,140,104,4.0\n" + row)
+    assert run(capsys, src, store)[0] == 0
+    assert count(store) == (2, 1)
+
+
+def test_the_latest_stored_panel_is_the_one_compared(tmp_path, capsys):
+    """Of a patient's several stored panels before the file's first, the latest is
+    the neighbour (the earlier ones are left aside by the store's read)."""
+    store = tmp_path / "store.db"
+    run(capsys, panels(tmp_path / "day1.csv", [("S1", "P-1", 1.9, 140), ("S2", "P-1", 1.8, 141),
+                                               ("S3", "P-1", 1.7, 128)]), store)
+    rc, rows, err = run(capsys, panels(tmp_path / "day2.csv", [("S4", "P-1", 1.5, 140)]), store)
+    assert rc == 0 and rows[0]["serial_codes"] == "SERIAL-DELTA-NA"
+    assert "Na+ 140 after 128" in rows[0]["serial_detail"] and "(sample S3)" in \
+        rows[0]["serial_detail"]
+    assert "1 earlier panels compared" in err
