@@ -26,6 +26,7 @@ from __future__ import annotations
 import datetime as _dt
 import hashlib
 import hmac
+import itertools
 import json
 import os
 import sqlite3
@@ -36,7 +37,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
-import pyarrow.ipc as ipc
+from pyarrow import ipc
 
 from .errors import AcidBaseError
 from .serial import STORED_FIELDS
@@ -368,7 +369,7 @@ class Store:
         edges = np.r_[0, np.flatnonzero(np.diff(idx)) + 1, len(idx)]
         names = enc.dictionary.to_pylist()
         rows = []
-        for lo, hi in zip(edges[:-1], edges[1:]):
+        for lo, hi in itertools.pairwise(edges):
             part = table.slice(lo, hi - lo)
             t = part["t"]
             rows.append((run_id, names[idx[lo]], part.num_rows, pc.min(t).as_py(),
@@ -526,13 +527,13 @@ _COMPRESSION = _codec()
 
 
 def _now_text() -> str:
-    return _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+    return _dt.datetime.now(_dt.UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
 def _stamp(t: int | None) -> str | None:
     if t is None:
         return None
-    return _dt.datetime.fromtimestamp(int(t), _dt.timezone.utc).strftime("%Y-%m-%dT%H:%MZ")
+    return _dt.datetime.fromtimestamp(int(t), _dt.UTC).strftime("%Y-%m-%dT%H:%MZ")
 
 
 def earlier_panels(store: str, patient_id: str, key: str | bytes | None = None,
@@ -547,9 +548,9 @@ def earlier_panels(store: str, patient_id: str, key: str | bytes | None = None,
         s.close()
     if before is not None:
         when = before if isinstance(before, _dt.datetime) else _dt.datetime.fromisoformat(
-            str(before).replace("Z", "+00:00"))
-        if when.tzinfo is None:
-            when = when.replace(tzinfo=_dt.timezone.utc)
+            str(before))
+        if when.tzinfo is None:  # a time without an offset is read as UTC
+            when = when.replace(tzinfo=_dt.UTC)
         table = table.filter(pc.less(table["t"], int(when.timestamp())))
     return table_rows(table)
 
@@ -560,7 +561,7 @@ def table_rows(table: pa.Table) -> list[dict[str, object]]:
     measured)."""
     out = []
     for r in table.to_pylist():
-        stamp = _dt.datetime.fromtimestamp(r["t"], _dt.timezone.utc)
+        stamp = _dt.datetime.fromtimestamp(r["t"], _dt.UTC)
         text = stamp.strftime("%Y-%m-%dT%H:%M:%S") + ("Z" if r["zoned"] else "")
         row: dict[str, object] = {"collected_at": text, "sample_id": r["sample"]}
         row.update({f: (float("nan") if r[f] is None else r[f]) for f in STORED_FIELDS})
@@ -612,6 +613,20 @@ def commit_run(store: Store, checker, input_path: str, settings: Mapping[str, ob
     return line
 
 
-__all__ = ["DEFAULT_RETENTION_DAYS", "HistoryError", "KEY_ENV", "RunRecord", "SCHEMA_VERSION",
-           "SETTINGS", "Store", "commit_run", "earlier_panels", "feed_earlier", "hash_id",
-           "hash_ids", "open_for_run", "site_key", "table_rows"]
+__all__ = [
+    "DEFAULT_RETENTION_DAYS",
+    "KEY_ENV",
+    "SCHEMA_VERSION",
+    "SETTINGS",
+    "HistoryError",
+    "RunRecord",
+    "Store",
+    "commit_run",
+    "earlier_panels",
+    "feed_earlier",
+    "hash_id",
+    "hash_ids",
+    "open_for_run",
+    "site_key",
+    "table_rows",
+]

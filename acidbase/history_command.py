@@ -7,6 +7,7 @@ import csv
 import io
 import json
 import os
+import sqlite3
 import sys
 
 from . import history
@@ -43,7 +44,7 @@ def run(args: argparse.Namespace) -> int:
         message = str(e)
     except OSError as e:
         message = f"{e.filename or args.store}: {e.strerror or e}"
-    except Exception as e:  # sqlite3.DatabaseError: a damaged file
+    except sqlite3.DatabaseError as e:  # a damaged file
         message = f"{args.store}: the store could not be read ({e})"
     print(f"acidbase history: could not run: {message}", file=sys.stderr)
     return EXIT_CANNOT_RUN

@@ -50,7 +50,7 @@ from dataclasses import dataclass
 import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
-import pyarrow.ipc as ipc
+from pyarrow import ipc
 
 from .fields import BY_NAME
 
@@ -671,5 +671,14 @@ def _mask(x: pa.Array | pa.ChunkedArray) -> np.ndarray:
     return np.asarray(pc.fill_null(x, False).to_numpy(zero_copy_only=False), dtype=bool)
 
 
-__all__ = ["COLUMNS", "DEFAULT_WINDOW_HOURS", "DELTA_RULES", "DeltaRule", "SerialChecker",
-           "STATUS_TEXT", "STORED_FIELDS", "rules_table", "rules_with"]
+__all__ = [
+    "COLUMNS",
+    "DEFAULT_WINDOW_HOURS",
+    "DELTA_RULES",
+    "STATUS_TEXT",
+    "STORED_FIELDS",
+    "DeltaRule",
+    "SerialChecker",
+    "rules_table",
+    "rules_with",
+]

@@ -33,7 +33,7 @@ def site_key(monkeypatch):
 
 def stamp(days_ago: float) -> str:
     """A collection time ``days_ago`` before now (inside the 30-day retention)."""
-    t = dt.datetime.now(dt.timezone.utc) - dt.timedelta(days=days_ago)
+    t = dt.datetime.now(dt.UTC) - dt.timedelta(days=days_ago)
     return t.strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
