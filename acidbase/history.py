@@ -571,9 +571,11 @@ def table_rows(table: pa.Table) -> list[dict[str, object]]:
 
 # -- the batch run's use of the store (kept here so that batch.py only calls) --------
 def open_for_run(path: str, retention_days: float = DEFAULT_RETENTION_DAYS,
-                 key: str | bytes | None = None) -> Store:
-    """Open (or create) the store for a batch run and take its write lock."""
-    store = Store(path, site_key(key), retention_days)
+                 key: str | bytes | None = None, key_env: str = KEY_ENV) -> Store:
+    """Open (or create) the store for a batch run and take its write lock; the key is
+    ``key``, else the environment variable ``key_env`` (a site configuration's
+    ``[history]`` settings map onto these arguments: see ``SETTINGS``)."""
+    store = Store(path, site_key(key, key_env), retention_days)
     try:
         store.begin()
     except BaseException:
