@@ -2,13 +2,13 @@
 
 from __future__ import annotations
 
-import argparse
 import csv
 import io
 import json
 import os
 import sqlite3
 import sys
+from typing import Any
 
 from . import history
 from .errors import AcidBaseError
@@ -17,27 +17,8 @@ from .results import CAUTION
 EXIT_OK, EXIT_CANNOT_RUN = 0, 2
 
 
-def configure_parser(p: argparse.ArgumentParser) -> None:
-    p.description = ("Show what a history store holds (panels, patients, collection dates, "
-                     "runs recorded), export one patient's stored panels, or purge them. "
-                     + CAUTION)
-    p.add_argument("store", metavar="STORE", help="the history store (acidbase batch --history)")
-    p.add_argument("--patient", metavar="ID",
-                   help="a patient id (hashed with the site key in "
-                        f"{history.KEY_ENV}; never stored)")
-    what = p.add_mutually_exclusive_group()
-    what.add_argument("--export", action="store_true",
-                      help="write the patient's stored panels as CSV (-o FILE or standard output)")
-    what.add_argument("--purge", action="store_true", help="remove the patient's stored panels")
-    what.add_argument("--prune", action="store_true",
-                      help="remove panels collected before the retention period now")
-    p.add_argument("--retention-days", type=float, default=history.DEFAULT_RETENTION_DAYS,
-                   metavar="DAYS", help="retention period for --prune (default 30)")
-    p.add_argument("-o", "--output", metavar="FILE", help="file for --export")
-    p.add_argument("--json", action="store_true", help="the summary as JSON")
-
-
-def run(args: argparse.Namespace) -> int:
+def run(args: Any) -> int:
+    """Run ``acidbase history`` with the options of ``cli.configure_history_parser``."""
     try:
         return _run(args)
     except AcidBaseError as e:
@@ -50,7 +31,7 @@ def run(args: argparse.Namespace) -> int:
     return EXIT_CANNOT_RUN
 
 
-def _run(args: argparse.Namespace) -> int:
+def _run(args: Any) -> int:
     if (args.export or args.purge) and not args.patient:
         raise history.HistoryError("--export and --purge need --patient ID")
     if args.patient and not (args.export or args.purge):

@@ -326,3 +326,13 @@ def test_the_latest_stored_panel_is_the_one_compared(tmp_path, capsys):
     assert "Na+ 140 after 128" in rows[0]["serial_detail"] and "(sample S3)" in \
         rows[0]["serial_detail"]
     assert "1 earlier panels compared" in err
+
+
+def test_the_command_lines_defaults_are_the_stores():
+    """cli.py keeps no import of the store: its defaults are written out, and kept equal."""
+    from acidbase.cli import build_parser
+
+    args = build_parser().parse_args(["history", "x.db"])
+    assert args.retention_days == history.DEFAULT_RETENTION_DAYS
+    batch_help = build_parser()._subparsers._group_actions[0].choices["batch"].format_help()
+    assert history.KEY_ENV in " ".join(batch_help.split())
