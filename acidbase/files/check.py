@@ -302,6 +302,7 @@ def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
     if checker is not None:
         scols = checker.arrow_columns(start, start + n)
         review = review | (checker.status[start:start + n] == serial.FLAGGED)
+        checker.interpreted[start:start + n] = ~refused  # what a history store keeps
     else:
         scols = {"serial_status": pa.repeat(pa.scalar("not run"), n),
                  "serial_codes": pa.repeat(pa.scalar(""), n),
