@@ -1243,15 +1243,12 @@ class Writer:
         ``plain``: columns of this table the caller has read cell by cell and found
         to hold only numbers or its own vocabulary, so escaping would change nothing.
         """
-        if self.fmt == "csv":
-            table = fixed_columns(table, self.decimals)
-            table = pa.table([escape_formula(c) if (self.escape is None or name in self.escape)
-                              and name not in plain else c
-                              for name, c in zip(table.column_names, table.columns)],
-                             schema=table.schema)
-            sink = pa.BufferOutputStream()
-            pa_csv.write_csv(table, sink, self._csv_options(False))
-            return table.schema, sink.getvalue()  # Arrow's buffer: no copy into bytes
+        if self.fmt == "csv":  # derived values as fixed text: the schema says text
+            from .csvtext import csv_text
+
+            schema = pa.schema([pa.field(f.name, pa.string()) if f.name in self.decimals
+                                and pa.types.is_floating(f.type) else f for f in table.schema])
+            return schema, csv_text(table, self.decimals, self.escape, plain, self.delimiter)
         if self.fmt == "jsonl":
             return table.schema, jsonl_bytes(table)
         return table.schema, table
