@@ -41,7 +41,8 @@ from .engine import SLOTS
 from .errors import AcidBaseError, Problem
 from .fields import BY_NAME, HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
 from .fileio import BatchInputError, Layout, Source
-from .results import CAUTION, DECIMALS, DERIVED
+from .profile import ALL_DERIVED, FULL, Profile, add_profile_options, profile_from_args
+from .results import CAUTION, DERIVED
 
 EXIT_OK, EXIT_CANNOT_RUN = 0, 2
 
@@ -105,9 +106,7 @@ def configure_parser(p: argparse.ArgumentParser) -> None:
                    help="write the summary here (.json for JSON) instead of stderr")
     o.add_argument("--report", metavar="FILE",
                    help="summary report with flagged rows and the pCO2-HCO3 plane (.md or .html)")
-    o.add_argument("--derived", default="all", metavar="all|none|NAME,...",
-                   help="derived-value columns to write (default all; formatting numbers is "
-                        "most of the time of writing CSV)")
+    add_profile_options(o)
     o.add_argument("--quiet", action="store_true", help="no progress bar")
     from .cli import add_settings_options
 
@@ -125,21 +124,6 @@ def _pairs(items: list[str], what: str) -> dict[str, str]:
             raise BatchInputError(f"--{what} given twice for {k}")
         out[k] = v.strip()
     return out
-
-
-def _derived_columns(spec: str) -> tuple[str, ...]:
-    """The derived-value columns to keep (``--derived``)."""
-    text = spec.strip().lower()
-    if text == "all":
-        return DERIVED
-    if text == "none":
-        return ()
-    names = tuple(x.strip() for x in text.split(",") if x.strip())
-    unknown = [x for x in names if x not in DERIVED]
-    if unknown:
-        raise BatchInputError(f"--derived: {', '.join(unknown)} not among the derived values "
-                              f"({', '.join(DERIVED)})")
-    return names
 
 
 def _delta_overrides(items: list[str]) -> dict[str, float | None]:
@@ -715,7 +699,7 @@ def _run(args: argparse.Namespace, label: str) -> int:
         raise BatchInputError("--window-hours must be a positive number")
     if args.report and not args.report.lower().endswith((".md", ".html", ".htm")):
         raise BatchInputError("--report: name a .md or .html file")
-    keep = _derived_columns(args.derived)
+    profile = profile_from_args(args)
     settings = _settings(args)
     src = fileio.open_source(args.input, args.format, delimiter, args.encoding, args.missing,
                              args.chunk_rows)
@@ -752,7 +736,7 @@ def _run(args: argparse.Namespace, label: str) -> int:
             progress.end()
     writer = fileio.Writer(args.output, out_fmt, out_delim, metadata={"caution": CAUTION},
                            escape=escaped_columns(src.headers),
-                           decimals={k: DECIMALS[k] for k in keep})
+                           decimals=profile.decimals)
     tally = Tally()
     ok = False
     progress = Progress(src.estimated_rows(), not args.quiet)
@@ -761,7 +745,7 @@ def _run(args: argparse.Namespace, label: str) -> int:
     def work(table: pa.Table, start: int, listed: int):
         """One chunk, on a worker thread: its output rows encoded for the writer, and
         its counts."""
-        out, meta = _process(table, layout, decimal, settings, checker, start, keep)
+        out, meta = _process(table, layout, decimal, settings, checker, start, profile)
         names = _output_names(src.headers, meta["engine_cols"])
         cols = {ROW_COLUMN: pa.array(np.arange(start + 1, start + table.num_rows + 1))}
         for h in src.headers:
@@ -773,6 +757,8 @@ def _run(args: argparse.Namespace, label: str) -> int:
         tally_chunk(part, out, meta["pco2"], meta["hco3"], meta["refused"], meta["review"],
                     start, ids, meta["fired"], listed)
         plain = frozenset(names[h] for h in meta["plain"])
+        # the output profile (acidbase/profile.py): counted above, not all written
+        cols = {k: v for k, v in cols.items() if k in names.values() or profile.keeps(k)}
         return writer.encode(pa.table(cols), plain), part, names, table.num_rows
 
     done = 0
@@ -831,12 +817,13 @@ def _run(args: argparse.Namespace, label: str) -> int:
 
 def _process(table: pa.Table, layout: Layout, decimal: str, settings,
              checker: serial.SerialChecker | None, start: int,
-             keep: tuple[str, ...] = DERIVED) -> tuple[dict[str, pa.Array], dict]:
+             profile: Profile = FULL) -> tuple[dict[str, pa.Array], dict]:
     n = table.num_rows
     cv = read_values(table, layout, decimal)
     units = {k: v for k, v in layout.units.items() if v != BY_NAME[k].unit}
     res = interpret_many(cv.columns, units or None, settings)
-    tab = res.encoded()  # text columns as (indices, labels): no cell-by-cell conversion
+    # text columns as (indices, labels): no cell-by-cell conversion
+    tab = res.encoded(profile.severities, "hco3_difference" in profile.derived)
     engine_refused = np.asarray(res.refused, dtype=bool)
     refused = engine_refused.copy()
     mine = merged_reasons(tab["reason"], cv)
@@ -850,11 +837,9 @@ def _process(table: pa.Table, layout: Layout, decimal: str, settings,
     del res  # the kernel's frame (about 150 columns) is not needed past here
     review = _review_mask(fired, refused)
     out: dict[str, pa.Array] = {}
-    engine_cols = [k for k in tab if not (k in DERIVED and k not in keep)]
+    engine_cols = [k for k in tab if not (k in ALL_DERIVED and k not in profile.derived)]
     for key in engine_cols:
         col = tab.pop(key)  # each numpy column is let go once it is an Arrow one
-        if key in DERIVED and key not in keep:
-            continue
         if key == "status":  # two values: built from the mask, not converted cell by cell
             arr = pc.if_else(pa.array(refused), "refused", "interpreted")
         elif key == "reason":
