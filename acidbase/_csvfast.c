@@ -73,8 +73,12 @@ static const double POW10[MAX_DECIMALS + 1] = {1e0, 1e1, 1e2,  1e3,  1e4,  1e5, 
  * (Dekker 1971's error-free product), and only an exact tie goes to even. */
 static double round_scaled(double a, double scale) {
     double p = a * scale;
-    double k = nearbyint(p);
-    double base = floor(p);
+    if (!(p < FIXED_LIMIT)) return p; /* printf's job (below); also infinities */
+    /* p in [0, 1e15): adding and taking away 2**52 rounds to an integer, ties to even,
+     * exactly as nearbyint in the default rounding mode (no library call) */
+    volatile double two52 = 4503599627370496.0;
+    double k = (p + two52) - two52;
+    double base = k > p ? k - 1.0 : k;
     if (p - base == 0.5) {
         double split = a * 134217729.0; /* 2**27 + 1 */
         double hi = split - (split - a);
@@ -173,15 +177,11 @@ static int cell(Out *o, Column *c, int64_t row) {
         char *q = o->p + o->len;
         *q++ = '"';
         if (c->param && formula(s, n)) *q++ = '\'';
-        const uint8_t *quote = n ? memchr(s, '"', (size_t)n) : NULL;
-        if (!quote) {
-            if (n) memcpy(q, s, (size_t)n);
-            q += n;
-        } else {
-            for (int64_t j = 0; j < n; j++) {
-                if (s[j] == '"') *q++ = '"';
-                *q++ = (char)s[j];
-            }
+        /* cells are short: one pass that doubles quotes beats memchr and memcpy calls */
+        for (int64_t j = 0; j < n; j++) {
+            uint8_t byte = s[j];
+            if (byte == '"') *q++ = '"';
+            *q++ = (char)byte;
         }
         *q++ = '"';
         o->len = (size_t)(q - o->p);
@@ -189,8 +189,18 @@ static int cell(Out *o, Column *c, int64_t row) {
     }
     case K_INT64: {
         if (grow(o, 24)) return -2;
-        o->len += (size_t)snprintf(o->p + o->len, 24, "%lld",
-                                   (long long)((const int64_t *)ch->b1)[i]);
+        int64_t v = ((const int64_t *)ch->b1)[i];
+        uint64_t u = v < 0 ? (uint64_t)0 - (uint64_t)v : (uint64_t)v;
+        char digits[24];
+        int nd = 0;
+        do {
+            digits[nd++] = (char)('0' + u % 10);
+            u /= 10;
+        } while (u);
+        char *q = o->p + o->len;
+        if (v < 0) *q++ = '-';
+        while (nd) *q++ = digits[--nd];
+        o->len = (size_t)(q - o->p);
         return 0;
     }
     case K_FIXED: {

@@ -72,8 +72,9 @@ class Profile:
 
     @property
     def decimals(self) -> dict[str, int]:
-        """Decimals of the derived columns written (``results.DECIMALS``)."""
-        return {k: DECIMALS[k] for k in self.derived}
+        """Decimals of the derived columns written (``results.DECIMALS``); the HCO3-
+        difference at the precision of the calculated HCO3- it is taken from."""
+        return {k: DECIMALS.get(k, DECIMALS["hco3_calculated"]) for k in self.derived}
 
 
 FULL = Profile(ALL_DERIVED, "all", True, True)

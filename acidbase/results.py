@@ -51,7 +51,6 @@ DECIMALS: dict[str, int] = {
     **dict.fromkeys(DERIVED, 1),
     "delta_ratio": 2,
     "ph_at_temperature": 3,
-    "hco3_difference": 1,  # batch files only: the consistency difference
     **dict.fromkeys(("osmolality_calculated", "osmolal_gap", "alveolar_po2", "aa_gradient",
                      "aa_expected", "pf_ratio", "po2_at_temperature"), 0),
 }
