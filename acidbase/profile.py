@@ -129,5 +129,15 @@ def profile_from_args(args: argparse.Namespace) -> Profile:
     return profile_from_options(args.profile, args.derived, args.findings)
 
 
-__all__ = ["add_profile_options", "profile_from_args", "ALL_DERIVED", "FINDINGS", "FULL", "LAB_DERIVED", "PROFILES", "Profile",
-           "ProfileError", "profile_from_options"]
+__all__ = [
+    "ALL_DERIVED",
+    "FINDINGS",
+    "FULL",
+    "LAB_DERIVED",
+    "PROFILES",
+    "Profile",
+    "ProfileError",
+    "add_profile_options",
+    "profile_from_args",
+    "profile_from_options",
+]

@@ -50,12 +50,11 @@ HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE))
 sys.path.insert(0, str(HERE.parent))
 
-import synthetic  # noqa: E402
+import synthetic
 
-import acidbase  # noqa: E402
-from acidbase.fields import HCO3_SOURCES, NUMERIC, SAMPLE_TYPES  # noqa: E402
-from acidbase.model import choice_codes  # noqa: E402
-from acidbase.results import DECIMALS  # noqa: E402
+import acidbase
+from acidbase.fields import HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
+from acidbase.model import choice_codes
 
 
 def _median_time(fn, repeats: int) -> float:
@@ -322,17 +321,17 @@ def main() -> None:
     k = results["kernel"]
     cs = results["cold_start"]
     lines = [
-        f"acidbase batch benchmark, {results['date']}; {results['machine']}; compiled CSV "
-        f"writer {'on' if results['compiled_writer'] else 'OFF'}",
-        f"{a.n:,} synthetic panels ({results['file_mb']:.0f} MB CSV); medians of {a.repeats}; "
-        f"load average {results['load_average_start'][0]:.1f} at start, "
-        f"{results['load_average_end'][0]:.1f} at end",
+        (f"acidbase batch benchmark, {results['date']}; {results['machine']}; compiled CSV "
+         f"writer {'on' if results['compiled_writer'] else 'OFF'}"),
+        (f"{a.n:,} synthetic panels ({results['file_mb']:.0f} MB CSV); medians of "
+         f"{a.repeats}; load average {results['load_average_start'][0]:.1f} at start, "
+         f"{results['load_average_end'][0]:.1f} at end"),
         f"  kernel interpret_many, coded   {k['kernel_panels_per_s']:>12,.0f} panels/s",
         f"  kernel, choices as text        {k['kernel_text_panels_per_s']:>12,.0f} panels/s",
         f"  kernel + output columns        {k['kernel_table_panels_per_s']:>12,.0f} panels/s",
-        f"  plain script (csv module, a handful of rules per row) {base:,.0f} rows/s "
-        f"({results['plain_script']['rows_per_s']:,.0f} before, "
-        f"{results['plain_script_again']['rows_per_s']:,.0f} after the runs below)",
+        (f"  plain script (csv module, a handful of rules per row) {base:,.0f} rows/s "
+         f"({results['plain_script']['rows_per_s']:,.0f} before, "
+         f"{results['plain_script_again']['rows_per_s']:,.0f} after the runs below)"),
     ]
     for key, label, _, _ in RUNS:
         r = results[key]

@@ -29,10 +29,10 @@ HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE))
 sys.path.insert(0, str(HERE.parent))
 
-import pyarrow.parquet as pq  # noqa: E402
-import synthetic  # noqa: E402
+import pyarrow.parquet as pq
+import synthetic
 
-from acidbase import scale  # noqa: E402
+from acidbase import scale
 
 
 def one_process(folder: str) -> float:

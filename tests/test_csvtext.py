@@ -172,3 +172,20 @@ def test_fixed_text_columns_are_declared_as_text_in_the_writer_schema():
     w = fileio.Writer(None, "csv", decimals={"x": 1})
     schema, _ = w.encode(pa.table({"x": [1.0], "n": [1]}))
     assert schema.field("x").type == pa.string() and schema.field("n").type == pa.int64()
+
+
+@compiled
+@pytest.mark.parametrize("spec, rows", [
+    ([(1, 0, [(5, 0, None, b"\0" * 4, b"")])], 5),  # offsets for 0 of 5 cells
+    ([(1, 0, [(1, 0, None, np.array([0, 9], np.int32).tobytes(), b"abc")])], 1),  # past data
+    ([(3, 0, [(2, 0, None, b"\0" * 8, None)])], 2),  # one int64 for two cells
+    ([(4, 99, [(0, 0, None, b"", None)])], 0),  # decimals out of range
+    ([(9, 0, [])], 0),  # no such kind
+    ([(3, 0, [(1, 0, None, b"\0" * 8, None)])], 2),  # chunks short of the rows
+])
+def test_compiled_writer_refuses_buffers_that_do_not_hold_their_cells(spec, rows):
+    """Bad buffers are a ValueError, never a read out of bounds."""
+    from acidbase import _csvfast
+
+    with pytest.raises(ValueError):
+        _csvfast.encode(spec, rows, b",")

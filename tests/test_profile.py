@@ -7,9 +7,8 @@ from pathlib import Path
 
 import pytest
 
-import acidbase
 from acidbase.cli import main
-from acidbase.profile import (ALL_DERIVED, LAB_DERIVED, ProfileError, profile_from_options)
+from acidbase.profile import ALL_DERIVED, LAB_DERIVED, ProfileError, profile_from_options
 from acidbase.results import CAUTION
 from acidbase.rules import RULES
 

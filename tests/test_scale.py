@@ -63,6 +63,7 @@ def test_dask_cluster_gives_the_rows_of_one_process(tmp_path):
     read_parquet(...).map_partitions(check_partition): the same rows, cell for cell,
     as checking the whole file as one table."""
     dd = pytest.importorskip("dask.dataframe")
+    pd = pytest.importorskip("pandas")
     distributed = pytest.importorskip("dask.distributed")
     src = tmp_path / "archive.csv"
     _archive(src)
@@ -88,4 +89,5 @@ def test_dask_cluster_gives_the_rows_of_one_process(tmp_path):
         if a.dtype.kind == "f":
             assert np.array_equal(a, b, equal_nan=True), col
         else:
-            assert [x if x == x else None for x in a] == [x if x == x else None for x in b], col
+            assert [None if pd.isna(x) else x for x in a] == \
+                [None if pd.isna(x) else x for x in b], col
