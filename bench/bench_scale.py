@@ -6,8 +6,8 @@ Writes ``--n`` synthetic panels (bench/synthetic.py) as CSV, shards them by pati
 (``acidbase.scale.shard``, timed), then checks the shards, alternating, in
 ``--repeats`` rounds:
 
-* one process: each shard read with pyarrow and checked with ``scale.check_arrow``,
-  one after the other;
+* one process: each shard read with pyarrow and checked with ``scale.check_shard``
+  (``acidbase batch`` on the shard, serial checks included), one after the other;
 * Dask, a local cluster of 2 workers (threads of one process, then 2 processes):
   ``read_parquet(folder).map_partitions(check_partition, meta=...).compute()``,
   cluster start-up included and reported apart.
@@ -38,7 +38,7 @@ from acidbase import scale
 def one_process(folder: str) -> float:
     t0 = time.perf_counter()
     for f in sorted(os.listdir(folder)):
-        scale.check_arrow(pq.read_table(os.path.join(folder, f)))
+        scale.check_shard(pq.read_table(os.path.join(folder, f)))
     return time.perf_counter() - t0
 
 
