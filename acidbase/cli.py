@@ -164,6 +164,18 @@ def cmd_batch(args: argparse.Namespace) -> int:
     return batch.run(args)
 
 
+def cmd_shard(args: argparse.Namespace) -> int:
+    from .scale import shard
+
+    try:
+        files = shard(args.input, args.folder, args.shards, patient_column=args.patient_column)
+    except OSError as e:
+        print(f"acidbase shard: could not run: {e}", file=sys.stderr)
+        return EXIT_REFUSED
+    print(f"{len(files)} shard files in {args.folder}", file=sys.stderr)
+    return EXIT_OK
+
+
 def cmd_tui(args: argparse.Namespace) -> int:
     data = panel_from_args(args)
     panel = None
@@ -200,6 +212,17 @@ def build_parser() -> argparse.ArgumentParser:
     except ImportError:  # pragma: no cover - the batch module ships with the package
         pass
     batch.set_defaults(func=cmd_batch)
+    shard = sub.add_parser("shard", help="split a file into Parquet shards by patient",
+                           description="Split INPUT into Parquet files, a patient's rows always "
+                                       "in the same one, for checking shard by shard "
+                                       "(docs/scale.md).")
+    shard.add_argument("input", metavar="INPUT")
+    shard.add_argument("folder", metavar="FOLDER", help="where the shard files go (created)")
+    shard.add_argument("--shards", type=int, default=16, metavar="N",
+                       help="number of shards (default 16)")
+    shard.add_argument("--patient-column", metavar="HEADER",
+                       help="the patient id column (default: the one read as patient_id)")
+    shard.set_defaults(func=cmd_shard)
     tui = sub.add_parser("tui", help="the keyboard-only terminal app")
     add_panel_options(tui)
     tui.add_argument("--demo", action="store_true", help="open with the demo panels loaded")

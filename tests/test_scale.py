@@ -116,3 +116,16 @@ def test_check_arrow_is_the_library_table_check_on_one_shard(tmp_path):
     b = scale.check_shard(t, ("--profile", "full", "--no-serial"))
     for col in ("status", "reason", "disorders", "finding_codes", "anion_gap"):
         assert a[col].to_pylist() == b[col].to_pylist(), col
+
+
+def test_shard_command_writes_the_files_and_refuses_a_bad_count(tmp_path, capsys):
+    from acidbase.cli import main
+
+    src = tmp_path / "archive.csv"
+    _archive(src, n=50)
+    assert main(["shard", str(src), str(tmp_path / "s"), "--shards", "3"]) == 0
+    files = sorted((tmp_path / "s").glob("part-*.parquet"))
+    assert 1 <= len(files) <= 3
+    assert sum(pq.read_metadata(f).num_rows for f in files) == 50
+    assert main(["shard", str(src), str(tmp_path / "t"), "--shards", "0"]) == 2
+    assert "shards" in capsys.readouterr().err
