@@ -2,7 +2,7 @@
  * acidbase._csvfast: the CSV text of an output table, in one pass over its rows.
  *
  * An edge, not a rule: it formats what the numpy kernel computed and never decides
- * anything about a panel.  The Python writer (acidbase/csvtext.py, python_csv) is the
+ * anything about a panel.  The Python writer (acidbase/fileio.py, csv_rows) is the
  * reference; tests/test_csvtext.py asserts the same bytes from both on generated
  * tables.  What it reproduces:
  *   - Arrow's CSV writer with quoting "needed": every non-null text cell in double

@@ -18,12 +18,12 @@ summary and report count every finding whatever the file shows.
 
 from __future__ import annotations
 
-import argparse
 from dataclasses import dataclass
+from typing import Any
 
 from .engine import SLOTS
 from .errors import AcidBaseError
-from .results import DECIMALS, DERIVED
+from .precision import DECIMALS, DERIVED
 
 PROFILES = ("lean", "full")
 FINDINGS = ("caution", "all")
@@ -111,21 +111,9 @@ def profile_from_options(profile: str = "lean", derived: str | None = None,
                    base.serial_text)
 
 
-def add_profile_options(group: argparse._ActionsContainer) -> None:
-    """``--profile``, ``--derived`` and ``--findings`` of ``acidbase batch``."""
-    group.add_argument("--profile", default="lean", choices=PROFILES,
-                       help="output columns: lean (default; see docs/batch.md) or full (every "
-                            "finding, derived value, role and serial sentence)")
-    group.add_argument("--derived", default=None, metavar="lab|all|none|NAME,...",
-                       help="derived-value columns to write (default: lab, the calculated "
-                            "HCO3- and its difference, anion gap, corrected gap, SBE)")
-    group.add_argument("--findings", default=None, choices=FINDINGS,
-                       help="finding codes to write: caution (caution and critical; default) "
-                            "or all")
-
-
-def profile_from_args(args: argparse.Namespace) -> Profile:
-    """The profile the options ask for."""
+def profile_from_args(args: Any) -> Profile:
+    """The profile ``acidbase batch``'s options ask for (``--profile``, ``--derived``,
+    ``--findings``; declared in acidbase.cli)."""
     return profile_from_options(args.profile, args.derived, args.findings)
 
 
@@ -137,7 +125,6 @@ __all__ = [
     "PROFILES",
     "Profile",
     "ProfileError",
-    "add_profile_options",
     "profile_from_args",
     "profile_from_options",
 ]

@@ -10,8 +10,8 @@ machine's patience is:
    id: CRC-32, the same on every machine and Python).  Each row keeps its number in
    the input as the column ``input_row``, so the output can be put back in order
    and no row is lost unseen.
-2. ``check_partition`` on each shard, wherever it runs: with Dask,
-   ``dask.dataframe.read_parquet(folder).map_partitions(check_partition,
+2. ``acidbase.partitions.check_partition`` on each shard, wherever it runs: with
+   Dask, ``dask.dataframe.read_parquet(folder).map_partitions(check_partition,
    meta=output_meta(folder))`` (docs/scale.md), or one ``acidbase batch`` per shard
    file on a job array.
 
@@ -24,8 +24,6 @@ from __future__ import annotations
 
 import os
 import zlib
-from collections.abc import Sequence
-from typing import Any
 
 import numpy as np
 import pyarrow as pa
@@ -110,30 +108,6 @@ def shard(path: str | os.PathLike[str], folder: str | os.PathLike[str], shards: 
     return [names[k] for k in sorted(names)]
 
 
-def _check_table() -> Any:
-    """The library's table check (``acidbase batch``'s per-chunk work)."""
-    try:
-        from .files.check import check_table  # the one-gate library function
-    except ImportError:  # pragma: no cover - until it lands beside this module
-        check_table = _check_table_shim
-    return check_table
-
-
-def _check_table_shim(table: pa.Table, settings=None, **_: Any) -> pa.Table:
-    """The batch's per-chunk work on one table (serial checks not run), as the
-    library's ``check_table`` will give it."""
-    from . import batch, fileio
-
-    layout = fileio.map_headers(table.schema.names)
-    out, meta = batch._process(table, layout, ".", settings, None, 0)
-    names = batch._output_names(layout.headers, meta["engine_cols"])
-    cols: dict[str, Any] = {batch.ROW_COLUMN: pa.array(np.arange(1, table.num_rows + 1))}
-    for h in layout.headers:
-        cols[names[h]] = table.column(h)
-    cols.update(out)
-    return pa.table(cols)
-
-
 def check_arrow(table: pa.Table, settings=None) -> pa.Table:
     """One shard (or any Arrow table of text cells) checked: the batch output's rows,
     in the table's order, with ``input_row`` passed through."""
@@ -141,56 +115,9 @@ def check_arrow(table: pa.Table, settings=None) -> pa.Table:
                       else c.cast(pa.string())  # large_string, or a null column from pandas
                       for name, c in zip(table.column_names, table.columns)],
                      names=table.column_names)
-    return _check_table()(table, settings)
+    from .files.check import check_table
+
+    return check_table(table, settings)
 
 
-def check_shard(table: pa.Table, options: Sequence[str] = ()) -> pa.Table:
-    """One shard checked by ``acidbase batch`` itself, serial checks included (a
-    patient's panels are all in the shard): the output rows, in the shard's order,
-    with ``input_row`` passed through.  ``options``: more ``acidbase batch`` options
-    (``--profile full``, ``--window-hours 12``, laboratory settings...).
-
-    The shard goes through a temporary Parquet file, so the run is exactly the
-    command's, with its checks and its refusals; a run that cannot finish raises
-    ``ShardError`` with the command's message."""
-    import contextlib
-    import io
-    import tempfile
-
-    from .cli import main
-
-    with tempfile.TemporaryDirectory(prefix="acidbase-shard-") as tmp:
-        src, out = os.path.join(tmp, "in.parquet"), os.path.join(tmp, "out.parquet")
-        pq.write_table(table, src)
-        err = io.StringIO()
-        with contextlib.redirect_stderr(err):
-            rc = main(["batch", src, "-o", out, "--quiet", "--summary",
-                       os.path.join(tmp, "summary.txt"), *options])
-        if rc != 0:
-            raise ShardError(err.getvalue().strip() or f"acidbase batch ended with {rc}")
-        return pq.read_table(out)
-
-
-def check_partition(frame, options: Sequence[str] = ()):
-    """A Dask partition (a pandas DataFrame of one shard's rows) checked by
-    ``check_shard``: the output rows as a DataFrame.  For ``map_partitions``."""
-    table = pa.Table.from_pandas(frame, preserve_index=False)
-    table = pa.table([c if name == INPUT_ROW or pa.types.is_string(c.type)
-                      else c.cast(pa.string()) for name, c in zip(table.column_names,
-                                                                  table.columns)],
-                     names=table.column_names)
-    return check_shard(table, options).to_pandas()
-
-
-def output_meta(folder: str | os.PathLike[str], options: Sequence[str] = ()):
-    """The empty DataFrame ``map_partitions`` needs as ``meta``: the output of the
-    first row of the first shard file in ``folder``, emptied."""
-    files = sorted(f for f in os.listdir(folder) if f.endswith(".parquet"))
-    if not files:
-        raise ShardError(f"{folder}: no shard files")
-    first = pq.ParquetFile(os.path.join(os.fspath(folder), files[0])).read_row_group(0)
-    return check_shard(first.slice(0, 1), options).to_pandas().iloc[:0]
-
-
-__all__ = ["INPUT_ROW", "ShardError", "check_arrow", "check_partition", "check_shard",
-           "output_meta", "shard", "shard_of"]
+__all__ = ["INPUT_ROW", "ShardError", "check_arrow", "shard", "shard_of"]

@@ -223,7 +223,8 @@ def stages(path: str, chunk_rows: int = 16384) -> dict[str, float]:
             except StopIteration:
                 break
             t1 = time.perf_counter()
-            out, meta = batch._process(table, layout, ".", None, None, start, profile)
+            out, meta = batch._process(table, layout, ".", None, None, start, profile.derived,
+                                       severities=profile.severities)
             cols = {"row": pa.array(np.arange(start + 1, start + table.num_rows + 1))}
             cols.update({h: table[h] for h in src.headers})
             cols.update({k: v for k, v in out.items() if profile.keeps(k)})
@@ -232,7 +233,7 @@ def stages(path: str, chunk_rows: int = 16384) -> dict[str, float]:
             plain = meta["plain"]
             compiled = csvtext.compiled_csv(tab, profile.decimals, escape, plain, ",")
             t3 = time.perf_counter()
-            csvtext.python_csv(tab, profile.decimals, escape, plain, ",")
+            fileio.csv_rows(tab, profile.decimals, escape, plain, ",")
             t4 = time.perf_counter()
             spent["read"] += t1 - t0
             spent["check"] += t2 - t1

@@ -6,7 +6,7 @@ Writes ``--n`` synthetic panels (bench/synthetic.py) as CSV, shards them by pati
 (``acidbase.scale.shard``, timed), then checks the shards, alternating, in
 ``--repeats`` rounds:
 
-* one process: each shard read with pyarrow and checked with ``scale.check_shard``
+* one process: each shard read with pyarrow and checked with ``partitions.check_shard``
   (``acidbase batch`` on the shard, serial checks included), one after the other;
 * Dask, a local cluster of 2 workers (threads of one process, then 2 processes):
   ``read_parquet(folder).map_partitions(check_partition, meta=...).compute()``,
@@ -32,13 +32,13 @@ sys.path.insert(0, str(HERE.parent))
 import pyarrow.parquet as pq
 import synthetic
 
-from acidbase import scale
+from acidbase import partitions, scale
 
 
 def one_process(folder: str) -> float:
     t0 = time.perf_counter()
     for f in sorted(os.listdir(folder)):
-        scale.check_shard(pq.read_table(os.path.join(folder, f)))
+        partitions.check_shard(pq.read_table(os.path.join(folder, f)))
     return time.perf_counter() - t0
 
 
@@ -51,7 +51,8 @@ def with_dask(folder: str, processes: bool) -> tuple[float, float]:
                       dashboard_address=None) as cluster, Client(cluster):
         t1 = time.perf_counter()
         ddf = dd.read_parquet(folder)
-        ddf.map_partitions(scale.check_partition, meta=scale.output_meta(folder)).compute()
+        meta = partitions.output_meta(folder)
+        ddf.map_partitions(partitions.check_partition, meta=meta).compute()
         t2 = time.perf_counter()
     return t2 - t1, t1 - t0
 

@@ -11,7 +11,7 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
 
-from acidbase import scale
+from acidbase import partitions, scale
 
 DATA = Path(__file__).parent / "data" / "batch"
 
@@ -81,8 +81,8 @@ def test_dask_cluster_gives_the_rows_of_one_batch_run(tmp_path):
             distributed.Client(cluster):
         ddf = dd.read_parquet(str(folder))
         assert ddf.npartitions == 4
-        got = ddf.map_partitions(scale.check_partition, options,
-                                 meta=scale.output_meta(folder, options)).compute()
+        got = ddf.map_partitions(partitions.check_partition, options,
+                                 meta=partitions.output_meta(folder, options)).compute()
     # each shard's output carries the caution in its first row, as each batch file does
     assert got["caution"].notna().sum() == 4
     got = got.sort_values(scale.INPUT_ROW).reset_index(drop=True)
@@ -113,7 +113,7 @@ def test_check_arrow_is_the_library_table_check_on_one_shard(tmp_path):
     files = scale.shard(src, tmp_path / "shards", 2)
     t = pq.read_table(files[0])
     a = scale.check_arrow(t)
-    b = scale.check_shard(t, ("--profile", "full", "--no-serial"))
+    b = partitions.check_shard(t, ("--profile", "full", "--no-serial"))
     for col in ("status", "reason", "disorders", "finding_codes", "anion_gap"):
         assert a[col].to_pylist() == b[col].to_pylist(), col
 
