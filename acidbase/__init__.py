@@ -16,4 +16,4 @@ __all__ = [
     "Problem", "Results", "Settings", "UnitError", "describe", "describe_fields", "interpret", "interpret_many",
     "plane_bands",
 ]
-__version__ = "0.1.0"
+__version__ = "0.2.0"
