@@ -68,7 +68,7 @@ def test_refusal_reason_names_the_field_and_the_value(tmp_path, capsys, sample, 
 
 def test_a_row_without_sodium_is_read_with_the_gap_not_assessable(tmp_path, capsys):
     out = tmp_path / "out.csv"
-    batch(capsys, DATA / "mixed.csv", "-o", out)
+    batch(capsys, DATA / "mixed.csv", "-o", out, "--findings", "all")
     r = next(r for r in rows_of(out) if r["sample_id"] == "M08")
     assert r["status"] == "interpreted" and r["anion_gap"] == ""
     assert "P-GAP-NOT-ASSESSABLE" in r["finding_codes"]
