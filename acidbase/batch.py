@@ -43,7 +43,8 @@ from .fileio import BatchInputError, Layout, Source
 from .files import hl7
 from .files.check import (EXTRA_COLUMNS, ROW_COLUMN, check_chunk, field_column,  # noqa: F401
                           output_names, review_mask, review_rules)
-from .results import CAUTION, DECIMALS, DERIVED
+from .profile import profile_from_args
+from .results import CAUTION
 
 if TYPE_CHECKING:  # the command line (argparse) lives in acidbase.cli only
     import argparse
@@ -77,21 +78,6 @@ def _pairs(items: list[str], what: str) -> dict[str, str]:
             raise BatchInputError(f"--{what} given twice for {k}")
         out[k] = v.strip()
     return out
-
-
-def _derived_columns(spec: str) -> tuple[str, ...]:
-    """The derived-value columns to keep (``--derived``)."""
-    text = spec.strip().lower()
-    if text == "all":
-        return DERIVED
-    if text == "none":
-        return ()
-    names = tuple(x.strip() for x in text.split(",") if x.strip())
-    unknown = [x for x in names if x not in DERIVED]
-    if unknown:
-        raise BatchInputError(f"--derived: {', '.join(unknown)} not among the derived values "
-                              f"({', '.join(DERIVED)})")
-    return names
 
 
 def _delta_overrides(items: list[str]) -> dict[str, float | None]:
@@ -554,7 +540,7 @@ def _run(args: argparse.Namespace, label: str) -> int:
         raise BatchInputError("--window-hours must be a positive number")
     if args.report and not args.report.lower().endswith((".md", ".html", ".htm")):
         raise BatchInputError("--report: name a .md or .html file")
-    keep = _derived_columns(args.derived)
+    profile = profile_from_args(args)
     settings = site.settings
     fhir_out = args.output_format == "fhir"
     if fhir_out:
@@ -623,7 +609,7 @@ def _run(args: argparse.Namespace, label: str) -> int:
                                site, started, None, input_name=label, input_path=args.input,
                                input_sha256=input_sha256))},
                            escape=escaped_columns(src.headers),
-                           decimals={k: DECIMALS[k] for k in keep})
+                           decimals=profile.decimals)
     tally = Tally()
     ok = False
     progress = Progress(src.estimated_rows(), not args.quiet)
@@ -632,8 +618,8 @@ def _run(args: argparse.Namespace, label: str) -> int:
     def work(table: pa.Table, start: int, listed: int):
         """One chunk, on a worker thread: its output rows encoded for the writer, and
         its counts."""
-        out, meta = _process(table, layout, decimal, settings, checker, start, keep,
-                             keep_results=fhir_out)
+        out, meta = _process(table, layout, decimal, settings, checker, start, profile.derived,
+                             severities=profile.severities, keep_results=fhir_out)
         names = _output_names(src.headers, meta["engine_cols"])
         cols = {ROW_COLUMN: pa.array(np.arange(start + 1, start + table.num_rows + 1))}
         for h in src.headers:
@@ -649,6 +635,8 @@ def _run(args: argparse.Namespace, label: str) -> int:
                                        label, input_sha256)
             return (fhir.LINE_SCHEMA, lines), part, names, table.num_rows
         plain = frozenset(names[h] for h in meta["plain"])
+        # the output profile (acidbase/profile.py): counted above, not all written
+        cols = {k: v for k, v in cols.items() if k in names.values() or profile.keeps(k)}
         return writer.encode(pa.table(cols), plain), part, names, table.num_rows
 
     done = 0
