@@ -38,7 +38,7 @@ CLOSE = ("anion_gap", "standard_base_excess", "hco3_calculated", "expected_pco2_
 
 def _batch(capsys, tmp_path, source, name, *extra):
     out = tmp_path / f"{name}.csv"
-    rc, _, err = run(capsys, "batch", source, "-o", out, *extra)
+    rc, _, err = run(capsys, "batch", source, "-o", out, "--profile", "full", *extra)
     assert rc == 0, err
     return rows_of(out), err
 
