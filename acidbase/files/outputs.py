@@ -24,6 +24,7 @@ import contextlib
 import os
 import signal
 import stat
+import sys
 import tempfile
 import threading
 from collections.abc import Iterator, Sequence
@@ -137,7 +138,7 @@ def check_paths(inputs: Sequence[tuple[str, str]], outputs: Sequence[tuple[str, 
             other_option, other = seen[key]
             what = "the input" if other_option == "INPUT" else f"the {other_option} file"
             same = "" if other == path else f" ({other}, the same file by another name)"
-            raise OutputPathError(option, path, f"is {what}{same}; nothing was written")
+            raise OutputPathError(option, path, f"is {what}{same}")
         seen[key] = (option, path)
 
 
@@ -160,6 +161,7 @@ class Staged:
     target: str
     """The real path written (symbolic links followed: a link keeps pointing at it)."""
     temp: str
+    """The temporary file; "" for a device or pipe, written directly."""
     file: BinaryIO
     done: bool = False
 
@@ -172,32 +174,53 @@ class Staged:
         if not os.path.isdir(folder):
             raise OutputPathError(option, path, "the folder does not exist")
         try:
+            st = os.stat(target)
+        except OSError:
+            st = None
+        if st is not None and not stat.S_ISREG(st.st_mode):
+            # A device or a pipe (/dev/null, a named pipe) is written to, never replaced.
+            try:
+                return cls(option, target, "", open(target, "wb"))
+            except OSError as e:
+                raise OutputPathError(option, path, f"cannot be written ({e.strerror or e})"
+                                      ) from None
+        try:
             fd, temp = tempfile.mkstemp(prefix=f".{name}.", suffix=INCOMPLETE, dir=folder)
         except OSError as e:
             raise OutputPathError(option, path, f"the folder cannot be written "
                                                 f"({e.strerror or e})") from None
-        try:
-            mode = stat.S_IMODE(os.stat(target).st_mode)  # a replaced file keeps its mode
-        except OSError:
-            mode = _creation_mode()
-        try:
-            os.fchmod(fd, mode)
-        except OSError:
-            pass
+        with contextlib.suppress(OSError):  # a replaced file keeps its mode
+            os.fchmod(fd, stat.S_IMODE(st.st_mode) if st is not None else _creation_mode())
         return cls(option, target, temp, os.fdopen(fd, "wb"))
 
     def finish(self) -> None:
         """Flush and fsync (the data is on disk before the name points at it)."""
         if not self.file.closed:
             self.file.flush()
-            os.fsync(self.file.fileno())
+            if self.temp:
+                os.fsync(self.file.fileno())
             self.file.close()
+
+    def rename(self) -> None:
+        if self.temp:
+            os.replace(self.temp, self.target)
+        self.done = True
 
     def discard(self) -> None:
         with contextlib.suppress(OSError):
             self.file.close()
-        with contextlib.suppress(FileNotFoundError):
-            os.unlink(self.temp)
+        if self.temp:
+            with contextlib.suppress(FileNotFoundError):
+                os.unlink(self.temp)
+
+
+def silence_stdout() -> None:
+    """Point standard output at the null device, so that the interpreter's last flush
+    of a closed pipe raises nothing (Python docs, "Note on SIGPIPE", signal module)."""
+    with contextlib.suppress(OSError, ValueError, AttributeError):
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        os.close(devnull)
 
 
 def _fsync_folder(folder: str) -> None:
@@ -235,8 +258,7 @@ class OutputSet:
         for s in self.staged:
             s.finish()
         for s in self.staged:
-            os.replace(s.temp, s.target)
-            s.done = True
+            s.rename()
         for folder in dict.fromkeys(os.path.dirname(s.target) for s in self.staged):
             _fsync_folder(folder)
 
@@ -253,4 +275,4 @@ class OutputSet:
 
 
 __all__ = ["INCOMPLETE", "OutputError", "OutputPathError", "OutputSet", "Staged", "Stopped", "check_paths",
-           "identity", "stop_on_signals"]
+           "identity", "silence_stdout", "stop_on_signals"]

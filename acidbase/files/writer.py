@@ -350,6 +350,8 @@ class Writer:
         to_stdout = sink is None and path in (None, "-")
         if fmt == "parquet" and to_stdout:
             raise OutputError("Parquet output needs a file: give -o OUTPUT.parquet")
+        if to_stdout and sys.stdout is None:
+            raise OutputError("standard output is closed; give -o OUTPUT")
         self.path = None if to_stdout else path
         self.fmt = fmt
         self.delimiter = delimiter
@@ -368,12 +370,7 @@ class Writer:
                                    quoting_style="needed")
 
     def _open(self, schema: pa.Schema) -> None:
-        if self._given is not None:
-            self._sink = self._given
-        elif sys.stdout is None:
-            raise OutputError("standard output is closed; give -o OUTPUT")
-        else:
-            self._sink = sys.stdout.buffer
+        self._sink = self._given if self._given is not None else sys.stdout.buffer
         self.schema = schema.with_metadata(self.metadata) if self.metadata else schema
         if self.fmt == "csv":
             names = [escape_text(n) or "" for n in schema.names]  # headers come from input
