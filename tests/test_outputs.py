@@ -140,11 +140,16 @@ def test_output_in_a_missing_folder_stops_before_any_work(tmp_path, capsys):
     assert list(tmp_path.iterdir()) == []
 
 
-def test_a_summary_that_cannot_be_written_keeps_the_previous_output(tmp_path, capsys):
+@pytest.mark.parametrize("where,words", [("no/s.json", "the folder does not exist"),
+                                         ("sub", "is a folder")])
+def test_a_summary_that_cannot_be_written_keeps_the_previous_output(tmp_path, capsys, where,
+                                                                    words):
+    """The -o file is staged first; the summary's failure must still leave it untouched."""
     out = tmp_path / "o.csv"
     out.write_bytes(PREVIOUS)
-    rc, err = batch(capsys, DATA / "mixed.csv", "-o", out, "--summary", tmp_path / "no" / "s.json")
-    assert rc == 2 and "--summary" in err and "folder does not exist" in err
+    (tmp_path / "sub").mkdir()
+    rc, err = batch(capsys, DATA / "mixed.csv", "-o", out, "--summary", tmp_path / where)
+    assert rc == 2 and "--summary" in err and words in err
     assert out.read_bytes() == PREVIOUS and leftovers(tmp_path) == []
 
 

@@ -230,7 +230,8 @@ def escape_formula(column: pa.Array | pa.ChunkedArray) -> pa.Array | pa.ChunkedA
     danger = escape_danger(text)
     if not pc.any(pc.is_valid(danger)).as_py():
         return column
-    return pc.if_else(pc.is_valid(danger), pc.binary_join_element_wise("'", text, ""), text)
+    quote, empty = pa.scalar("'", text.type), pa.scalar("", text.type)
+    return pc.if_else(pc.is_valid(danger), pc.binary_join_element_wise(quote, text, empty), text)
 
 
 def output_format(path: str | None, given: str | None) -> str:
