@@ -344,3 +344,11 @@ def test_closed_standard_streams_give_a_message_not_a_traceback(shell):
     err = done.stderr.decode()
     assert done.returncode == 2 and "Traceback" not in err
     assert "is closed" in err
+
+
+def test_every_exit_status_of_batch_is_documented():
+    doc = (ROOT / "docs" / "batch.md").read_text(encoding="utf-8")
+    section = doc.split("## Exit status")[1].split("\n## ")[0]
+    for status in (0, 2, 130, 143, 141):
+        assert f"\n| {status} |" in section, status
+    assert "129" in section and "SIGKILL" in doc
