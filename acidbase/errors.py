@@ -28,6 +28,17 @@ class UnitError(ValueError, AcidBaseError):
         )
 
 
+class BatchInputError(ValueError, AcidBaseError):
+    """A file (or a run's options) that cannot be read as panels at all: the run cannot start."""
+
+    def __init__(self, message: str) -> None:
+        super().__init__(message)
+        self.message = message
+
+    def __str__(self) -> str:
+        return self.message
+
+
 @dataclass
 class Problem:
     """One refused input value, with everything needed to explain it."""
