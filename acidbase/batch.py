@@ -967,6 +967,9 @@ def _spool_stdin(folder: str) -> str:
     return path
 
 
+#: Exit status of an unexpected error (a defect): EX_SOFTWARE of BSD's sysexits.h.
+EXIT_DEFECT = 70
+
 #: Exit status when standard output was closed by its reader (``| head``): 128 + SIGPIPE,
 #: as a shell reports a process ended by that signal.
 EXIT_CLOSED_PIPE = 141
@@ -999,7 +1002,8 @@ def _kept(args: argparse.Namespace, outcome: _Outcome) -> str:
 def run(args: argparse.Namespace) -> int:
     """Run ``acidbase batch``: 0 when every row was written; 2 when it could not run or
     failed (message on stderr, no output file written); 130 (Ctrl-C), 143 (SIGTERM),
-    129 (SIGHUP) when stopped; 141 when standard output was closed by its reader.
+    129 (SIGHUP) when stopped; 141 when standard output was closed by its reader; 70
+    for an unexpected error (a defect), also with nothing written.
 
     INPUT ``-`` reads standard input, spooled to a temporary file first."""
     shown = args.input
@@ -1032,6 +1036,12 @@ def run(args: argparse.Namespace) -> int:
         message = f"{where.strip()} {e.strerror or e}".strip()
     except (pa.ArrowInvalid, pa.ArrowTypeError, UnicodeDecodeError) as e:
         message = f"the file could not be read ({e})"
+    except Exception as e:  # a defect: said in one line, still with nothing written
+        args.input = shown
+        print(f"acidbase batch: failed: unexpected {type(e).__name__}: {e} (a defect of "
+              f"acidbase; please report it with the command line); {_kept(args, outcome)}",
+              file=sys.stderr)
+        return EXIT_DEFECT
     if shown == "-":
         message = message.replace(args.input, STDIN_LABEL)
         args.input = shown

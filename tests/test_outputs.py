@@ -349,6 +349,32 @@ def test_closed_standard_streams_give_a_message_not_a_traceback(shell):
 def test_every_exit_status_of_batch_is_documented():
     doc = (ROOT / "docs" / "batch.md").read_text(encoding="utf-8")
     section = doc.split("## Exit status")[1].split("\n## ")[0]
-    for status in (0, 2, 130, 143, 141):
+    for status in (0, 2, 70, 130, 143, 141):
         assert f"\n| {status} |" in section, status
     assert "129" in section and "SIGKILL" in doc
+
+
+def test_a_read_only_previous_output_is_not_replaced(tmp_path, capsys):
+    out = tmp_path / "o.csv"
+    out.write_bytes(PREVIOUS)
+    out.chmod(0o444)
+    rc, err = batch(capsys, DATA / "mixed.csv", "-o", out)
+    assert rc == 2 and "is read-only" in err
+    assert out.read_bytes() == PREVIOUS and leftovers(tmp_path) == []
+
+
+def test_an_unexpected_error_is_one_line_with_nothing_written(tmp_path, capsys, monkeypatch):
+    """A defect (here the counting of a chunk made to fail) still ends without a
+    traceback and without an output."""
+    import acidbase.batch as batch_module
+
+    def broken(*args, **kwargs):
+        raise TypeError("made to fail")
+
+    monkeypatch.setattr(batch_module, "tally_chunk", broken)
+    out = tmp_path / "o.csv"
+    out.write_bytes(PREVIOUS)
+    rc, err = batch(capsys, DATA / "mixed.csv", "-o", out)
+    assert rc == 70 and err.count("\n") == 1
+    assert "unexpected TypeError: made to fail" in err and "left as it was" in err
+    assert out.read_bytes() == PREVIOUS and leftovers(tmp_path) == []

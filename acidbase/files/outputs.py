@@ -177,6 +177,9 @@ class Staged:
             st = os.stat(target)
         except OSError:
             st = None
+        if st is not None and stat.S_ISREG(st.st_mode) and not st.st_mode & 0o222:
+            raise OutputPathError(option, path, "is read-only (no write permission); make it "
+                                                "writable or name another file")
         if st is not None and not stat.S_ISREG(st.st_mode):
             # A device or a pipe (/dev/null, a named pipe) is written to, never replaced.
             try:
