@@ -6,6 +6,9 @@ sources (``acidbase.files.source``), collection times (``acidbase.files.times``)
 and the one cell reader (``acidbase.inputs``).  Their names are re-exported here
 so existing callers keep working.
 
+* Values: a number, with a comparator (FHIR ``Quantity.comparator``
+  [fhir_quantity]) or a trailing laboratory flag (HL7 v2 table 0078 [hl7_0078]):
+  ``acidbase.inputs.cells``.
 * Writing (CSV, JSON Lines and Parquet bytes, formula escaping) is
   ``acidbase.files.writer``; staged outputs and path guards are
   ``acidbase.files.outputs``.
