@@ -852,7 +852,6 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
             (".html", ".htm")) else report_markdown(tally, notes, label)
         staged["--report"].file.write(doc.encode("utf-8"))
     outputs.commit()  # every output in place, or (on an error above) none
-    outcome.committed = True
     if summary is None:
         print(text, file=sys.stderr)
     return EXIT_OK
@@ -981,7 +980,11 @@ class _Outcome:
 
     rows_out: int = 0
     """Rows put to the output (a file's are staged until the commit)."""
-    committed: bool = False
+    outputs: OutputSet | None = None
+
+    @property
+    def committed(self) -> bool:
+        return self.outputs is not None and self.outputs.committed
 
 
 def _kept(args: argparse.Namespace, outcome: _Outcome) -> str:
@@ -1011,7 +1014,7 @@ def run(args: argparse.Namespace) -> int:
     message = ""
     try:
         with stop_on_signals(), ExitStack() as stack:
-            outputs = stack.enter_context(OutputSet())
+            outputs = outcome.outputs = stack.enter_context(OutputSet())
             if args.input == "-":
                 spool = stack.enter_context(tempfile.TemporaryDirectory(prefix="acidbase-stdin-"))
                 args.input = _spool_stdin(spool)
@@ -1020,8 +1023,12 @@ def run(args: argparse.Namespace) -> int:
     except (Stopped, KeyboardInterrupt) as e:
         stop = e if isinstance(e, Stopped) else Stopped(2)
         args.input = shown
-        print(f"acidbase batch: stopped by {stop.name} before the end: {_kept(args, outcome)}",
-              file=sys.stderr)
+        if outcome.committed:  # the signal came as the last output was renamed
+            print(f"acidbase batch: stopped by {stop.name} after every output was written "
+                  "in full", file=sys.stderr)
+        else:
+            print(f"acidbase batch: stopped by {stop.name} before the end: "
+                  f"{_kept(args, outcome)}", file=sys.stderr)
         return stop.exit_status
     except BrokenPipeError:
         silence_stdout()

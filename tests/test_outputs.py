@@ -378,3 +378,30 @@ def test_an_unexpected_error_is_one_line_with_nothing_written(tmp_path, capsys, 
     assert rc == 70 and err.count("\n") == 1
     assert "unexpected TypeError: made to fail" in err and "left as it was" in err
     assert out.read_bytes() == PREVIOUS and leftovers(tmp_path) == []
+
+
+def test_a_signal_during_the_renames_waits_until_every_output_is_in_place(tmp_path,
+                                                                          monkeypatch):
+    """SIGTERM sent as the first of two outputs is renamed: both are renamed, then the
+    run stops (never a data file in place without its report)."""
+    from acidbase.files import outputs as out_module
+
+    names = [tmp_path / "a.csv", tmp_path / "b.md"]
+    real_rename = out_module.Staged.rename
+    sent = []
+
+    def rename_after_a_signal(self):
+        if not sent:
+            sent.append(True)
+            os.kill(os.getpid(), signal.SIGTERM)
+        real_rename(self)
+
+    monkeypatch.setattr(out_module.Staged, "rename", rename_after_a_signal)
+    outputs = out_module.OutputSet()
+    with pytest.raises(out_module.Stopped) as stopped, out_module.stop_on_signals():
+        for n in names:
+            outputs.add("-o", str(n)).file.write(b"whole\n")
+        outputs.commit()
+    assert stopped.value.signum == signal.SIGTERM and outputs.committed
+    assert [n.read_bytes() for n in names] == [b"whole\n", b"whole\n"]
+    assert leftovers(tmp_path) == []

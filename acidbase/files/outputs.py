@@ -217,6 +217,21 @@ class Staged:
                 os.unlink(self.temp)
 
 
+@contextlib.contextmanager
+def _signals_held() -> Iterator[None]:
+    """Hold SIGINT, SIGTERM and SIGHUP back for the block (POSIX ``pthread_sigmask``);
+    elsewhere, or outside the main thread, a no-op."""
+    if threading.current_thread() is not threading.main_thread() or \
+            not hasattr(signal, "pthread_sigmask"):
+        yield
+        return
+    before = signal.pthread_sigmask(signal.SIG_BLOCK, set(SIGNAL_NAMES))
+    try:
+        yield
+    finally:
+        signal.pthread_sigmask(signal.SIG_SETMASK, before)
+
+
 def silence_stdout() -> None:
     """Point standard output at the null device, so that the interpreter's last flush
     of a closed pipe raises nothing (Python docs, "Note on SIGPIPE", signal module)."""
@@ -251,6 +266,8 @@ class OutputSet:
     """
 
     staged: list[Staged] = field(default_factory=list)
+    committed: bool = False
+    """Every output renamed into place."""
 
     def add(self, option: str, path: str) -> Staged:
         s = Staged.create(option, path)
@@ -258,10 +275,15 @@ class OutputSet:
         return s
 
     def commit(self) -> None:
+        """Sync every staged file, then rename each into place.  The renames run with
+        the stopping signals held back, so a Ctrl-C cannot leave the data file renamed
+        and its report not; a signal held back is delivered after the last rename."""
         for s in self.staged:
             s.finish()
-        for s in self.staged:
-            s.rename()
+        with _signals_held():
+            for s in self.staged:
+                s.rename()
+            self.committed = True
         for folder in dict.fromkeys(os.path.dirname(s.target) for s in self.staged):
             _fsync_folder(folder)
 
