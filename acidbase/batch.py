@@ -545,7 +545,6 @@ def md_text(x: object) -> str:
     return str(x).translate(_MD_ESCAPES)
 
 
-
 def _report_sections(t: Tally) -> tuple[tuple[str, Counter], ...]:
     """The report's count tables, in order; findings named by code and title, each
     trust finding that puts a row up for review marked so."""

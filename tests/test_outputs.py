@@ -63,7 +63,8 @@ def test_two_runs_writing_one_output_at_once_leave_one_complete_file(tmp_path):
     src = big_file(tmp_path / "day.csv", 60_000)
     ref = tmp_path / "ref.csv"
     argv, env = command(src, "-o", ref, "--quiet", "--chunk-rows", "2000")
-    assert subprocess.run(argv, env=env, capture_output=True, timeout=300).returncode == 0
+    assert subprocess.run(argv, env=env, capture_output=True, timeout=300,
+                          check=False).returncode == 0
     out = tmp_path / "out.csv"
     argv, env = command(src, "-o", out, "--quiet", "--chunk-rows", "2000")
     runs = [subprocess.Popen(argv, env=env, stderr=subprocess.PIPE) for _ in range(2)]
@@ -309,7 +310,7 @@ def _closed_pipe_run(*args: str, stdin: bytes | None = None) -> subprocess.Compl
     os.close(r)
     try:
         return subprocess.run([sys.executable, "-m", "acidbase", *args], stdout=w,
-                              stderr=subprocess.PIPE, input=stdin, timeout=300,
+                              stderr=subprocess.PIPE, input=stdin, timeout=300, check=False,
                               env=dict(os.environ, PYTHONPATH=str(ROOT)))
     finally:
         os.close(w)
@@ -339,7 +340,7 @@ def test_batch_to_a_closed_pipe_says_the_output_is_incomplete(tmp_path):
 ])
 def test_closed_standard_streams_give_a_message_not_a_traceback(shell):
     line = shell.format(py=sys.executable, src=DATA / "mixed.csv")
-    done = subprocess.run(["sh", "-c", line], capture_output=True, timeout=120,
+    done = subprocess.run(["sh", "-c", line], capture_output=True, timeout=120, check=False,
                           env=dict(os.environ, PYTHONPATH=str(ROOT)))
     err = done.stderr.decode()
     assert done.returncode == 2 and "Traceback" not in err

@@ -4,8 +4,10 @@
   target, named ``.<target name>.<random>.incomplete`` (created with ``O_EXCL``, so it
   can never be an existing file, the input included), flushed and ``fsync``ed, and
   renamed onto the target only when the whole run succeeded: all outputs together, at
-  the end (``OutputSet.commit``).  Any failure or interruption before that removes
-  the temporary files and leaves an existing target as it was.
+  the end (``OutputSet.commit``, with the stopping signals held back during the
+  renames).  Any failure or interruption before that removes the temporary files and
+  leaves an existing target as it was.  A device or named pipe is written directly
+  (it cannot be replaced).
 * Every output path is compared with the inputs and with the other outputs by file
   identity (device and inode, after following symbolic links), so a second name for
   the input (a symbolic or hard link) is caught, and each output folder is tried by
@@ -37,8 +39,9 @@ from ..errors import AcidBaseError
 #: leaves one behind.
 INCOMPLETE = ".incomplete"
 
-#: Exit status of a run stopped by a signal: 128 + the signal's number, as shells
-#: report a process killed by it (POSIX sh, "Exit Status").
+#: The signals that stop a run, as messages name them.  A stopped run exits with 128 +
+#: the signal's number, as a shell reports a process killed by it (POSIX, Shell
+#: Command Language, "Exit Status for Commands").
 SIGNAL_NAMES = {signal.SIGINT: "Ctrl-C (SIGINT)", signal.SIGTERM: "SIGTERM",
                 signal.SIGHUP: "SIGHUP (terminal closed)"}
 
@@ -299,5 +302,5 @@ class OutputSet:
         self.discard()
 
 
-__all__ = ["INCOMPLETE", "OutputError", "OutputPathError", "OutputSet", "Staged", "Stopped", "check_paths",
-           "identity", "silence_stdout", "stop_on_signals"]
+__all__ = ["INCOMPLETE", "OutputError", "OutputPathError", "OutputSet", "Staged", "Stopped",
+           "check_paths", "identity", "silence_stdout", "stop_on_signals"]
