@@ -78,6 +78,11 @@ class Stopped(BaseException):
         return SIGNAL_NAMES.get(signal.Signals(self.signum), f"signal {self.signum}")
 
 
+#: Whether the renames of a commit are under way ("on") and a signal that came then
+#: ("pending"): main thread only, like the handler that reads it.
+_HOLD: dict[str, object] = {}
+
+
 @contextlib.contextmanager
 def stop_on_signals() -> Iterator[None]:
     """Within the block, SIGINT, SIGTERM and SIGHUP raise ``Stopped`` in the main thread;
@@ -92,6 +97,9 @@ def stop_on_signals() -> Iterator[None]:
     def stop(signum: int, frame: object) -> None:
         for s in wanted:
             signal.signal(s, signal.SIG_IGN)
+        if _HOLD.get("on"):
+            _HOLD.setdefault("pending", signum)
+            return
         raise Stopped(signum)
 
     for s in wanted:
@@ -222,17 +230,18 @@ class Staged:
 
 @contextlib.contextmanager
 def _signals_held() -> Iterator[None]:
-    """Hold SIGINT, SIGTERM and SIGHUP back for the block (POSIX ``pthread_sigmask``);
-    elsewhere, or outside the main thread, a no-op."""
-    if threading.current_thread() is not threading.main_thread() or \
-            not hasattr(signal, "pthread_sigmask"):
-        yield
-        return
-    before = signal.pthread_sigmask(signal.SIG_BLOCK, set(SIGNAL_NAMES))
+    """Within ``stop_on_signals``, a stopping signal that arrives in the block is held
+    and raised as ``Stopped`` when the block ends.  (The process's signal mask is no
+    use here: any thread, the reader's native ones too, may take a signal for the
+    process, and Python then runs the handler in the main thread at once.)"""
+    _HOLD["on"] = True
     try:
         yield
     finally:
-        signal.pthread_sigmask(signal.SIG_SETMASK, before)
+        _HOLD["on"] = False
+        pending = _HOLD.pop("pending", None)
+        if pending is not None:
+            raise Stopped(pending)
 
 
 def silence_stdout() -> None:
