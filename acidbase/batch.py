@@ -43,7 +43,7 @@ from .errors import AcidBaseError, Problem
 from .fields import BY_NAME, HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
 from .fileio import BatchInputError, Layout, Source
 from .files.outputs import OutputSet, Staged, Stopped, check_paths, silence_stdout, stop_on_signals
-from .files.writer import Writer
+from .files.writer import Writer, escape_text
 from .results import CAUTION, DECIMALS, DERIVED
 
 EXIT_OK, EXIT_CANNOT_RUN = 0, 2
@@ -585,7 +585,11 @@ def report_markdown(t: Tally, notes: list[str], source: str) -> str:
 
 
 def report_html(t: Tally, notes: list[str], source: str) -> str:
-    e = html.escape
+    """The report as one HTML page.  Echoed text is HTML-escaped and, since a
+    spreadsheet opens an HTML table too, formula-escaped as the CSV is (OWASP)."""
+
+    def e(x: object) -> str:
+        return html.escape(escape_text(str(x)) or "")
 
     def table(counter: Counter) -> str:
         rows = "".join(f"<tr><td>{e(str(k))}</td><td>{c:,}</td></tr>"

@@ -60,7 +60,7 @@ def leftovers(folder: Path) -> list[str]:
 # -- two runs, one output ---------------------------------------------------------------
 
 def test_two_runs_writing_one_output_at_once_leave_one_complete_file(tmp_path):
-    src = big_file(tmp_path / "day.csv", 60_000)
+    src = big_file(tmp_path / "day.csv", 40_000)
     ref = tmp_path / "ref.csv"
     argv, env = command(src, "-o", ref, "--quiet", "--chunk-rows", "2000")
     assert subprocess.run(argv, env=env, capture_output=True, timeout=300,
@@ -300,6 +300,16 @@ def test_reports_escape_what_they_echo(tmp_path, capsys, name):
     assert "&lt;script&gt;" in text and "&lt;b&gt;" in text
     if name.endswith(".md"):
         assert "\\|\\[x\\](http://y)" in text  # no cell break, no link
+
+
+def test_html_report_cells_are_formula_escaped_for_spreadsheets(tmp_path, capsys):
+    """A spreadsheet opens an HTML table too: a sample id "=1+2" shows as '=1+2."""
+    src = tmp_path / "s.csv"
+    src.write_text("sample_id,ph,pco2,hco3,na,cl\n=1+2,,40,24,140,104\n")
+    report = tmp_path / "r.html"
+    assert batch(capsys, src, "-o", tmp_path / "o.csv", "--report", report)[0] == 0
+    text = report.read_text()
+    assert "<td>&#x27;=1+2</td>" in text and "<td>=1+2</td>" not in text
 
 
 # -- closed streams and pipes -------------------------------------------------------------
