@@ -7,7 +7,7 @@ CSV formula escaping.
   return, line feed or NUL gets a leading single quote, unless the whole cell is a
   plain number, so a base excess of ``-5.2`` stays a number.  The rule is a pure
   function of the cell (``escape_text``), applied to the header row too, and to
-  text columns of every Arrow type (string, large_string, dictionary-encoded).
+  text columns of every Arrow type (string, large_string, binary, dictionary-encoded).
   Quoting follows RFC 4180 (pyarrow's writer).
 * The bytes written are a function of the tables given: the same tables give the
   same file (a compiled writer can be checked byte for byte against this one).
@@ -207,15 +207,15 @@ def escape_danger(column: pa.Array | pa.ChunkedArray) -> pa.Array:
 
 
 def _as_text(column: pa.Array | pa.ChunkedArray) -> pa.Array | pa.ChunkedArray | None:
-    """A text column as plain strings (dictionary-encoded, large or view strings
-    decoded); None for a column that holds no text."""
+    """A column whose cells are written as text or bytes (strings of any width,
+    binary, either dictionary-encoded), decoded to plain cells; None for others."""
     t = column.type
     if pa.types.is_dictionary(t):
-        if not (pa.types.is_string(t.value_type) or pa.types.is_large_string(t.value_type)):
-            return None
-        return column.cast(t.value_type)
-    if pa.types.is_string(t) or pa.types.is_large_string(t):
-        return column
+        inner = _as_text(pa.array([], t.value_type))
+        return None if inner is None else column.cast(t.value_type)
+    if (pa.types.is_string(t) or pa.types.is_large_string(t) or pa.types.is_binary(t)
+            or pa.types.is_large_binary(t)):
+        return column  # binary cells reach the CSV as their bytes: escaped as bytes
     if getattr(pa.types, "is_string_view", lambda _: False)(t):
         return column.cast(pa.string())
     return None
