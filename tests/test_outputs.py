@@ -416,3 +416,13 @@ def test_a_signal_during_the_renames_waits_until_every_output_is_in_place(tmp_pa
     assert stopped.value.signum == signal.SIGTERM and outputs.committed
     assert [n.read_bytes() for n in names] == [b"whole\n", b"whole\n"]
     assert leftovers(tmp_path) == []
+
+
+def test_two_outputs_that_do_not_exist_yet_are_one_file_by_another_spelling(tmp_path, capsys):
+    """Neither exists yet: the folder's identity and the name decide (a folder reached
+    through a symbolic link is the same folder)."""
+    (tmp_path / "here").symlink_to(".")
+    rc, err = batch(capsys, DATA / "mixed.csv", "-o", tmp_path / "n.csv",
+                    "--summary", tmp_path / "here" / "n.csv")
+    assert rc == 2 and "is the -o file" in err
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["here"]
