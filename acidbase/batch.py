@@ -42,7 +42,15 @@ from .engine import SLOTS
 from .errors import AcidBaseError, Problem
 from .fields import BY_NAME, HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
 from .fileio import BatchInputError, Layout, Source
-from .files.outputs import OutputSet, Staged, Stopped, check_paths, silence_stdout, stop_on_signals
+from .files.outputs import (
+    OutputSet,
+    Staged,
+    Stopped,
+    check_paths,
+    silence_stdout,
+    stale,
+    stop_on_signals,
+)
 from .files.writer import Writer, escape_text
 from .results import CAUTION, DECIMALS, DERIVED
 
@@ -763,6 +771,10 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
     else:
         decimal = "."
     notes = list(layout.notes)
+    left = [p for s in staged.values() for p in stale(s)]
+    if left:
+        notes.append("temporary files of an earlier run that was killed, never results "
+                     "(delete them): " + ", ".join(left))
     if src.format == "csv" and (src.delimiter != "," or decimal != "."):
         notes.append(f"read with delimiter {fileio._show_delims([src.delimiter])} and decimal "
                      f"{decimal!r}")

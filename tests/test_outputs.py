@@ -426,3 +426,12 @@ def test_two_outputs_that_do_not_exist_yet_are_one_file_by_another_spelling(tmp_
                     "--summary", tmp_path / "here" / "n.csv")
     assert rc == 2 and "is the -o file" in err
     assert sorted(p.name for p in tmp_path.iterdir()) == ["here"]
+
+
+def test_temporary_files_left_by_a_killed_run_are_named_in_the_summary(tmp_path, capsys):
+    """What SIGKILL leaves (docs/batch.md) is pointed out by the next run to that output."""
+    old = tmp_path / ".o.csv.k1ll3d.incomplete"
+    old.write_bytes(b"half a file")
+    rc, err = batch(capsys, DATA / "mixed.csv", "-o", tmp_path / "o.csv")
+    assert rc == 0 and "an earlier run that was killed" in err and str(old) in err
+    assert old.read_bytes() == b"half a file"  # pointed out, not deleted

@@ -267,6 +267,21 @@ def _fsync_folder(folder: str) -> None:
         os.close(fd)
 
 
+def stale(staged: Staged) -> list[str]:
+    """Temporary files of earlier runs for the same target that were killed (SIGKILL,
+    power cut) before they could clean up: never results, safe to delete."""
+    if not staged.temp:
+        return []
+    folder, name = os.path.split(staged.target)
+    prefix = f".{name}."
+    try:
+        found = [e.name for e in os.scandir(folder) if e.name.startswith(prefix)
+                 and e.name.endswith(INCOMPLETE) and e.path != staged.temp]
+    except OSError:
+        return []
+    return sorted(os.path.join(folder, f) for f in found)
+
+
 @dataclass
 class OutputSet:
     """The outputs of one run, committed together or not at all.
@@ -312,4 +327,4 @@ class OutputSet:
 
 
 __all__ = ["INCOMPLETE", "OutputError", "OutputPathError", "OutputSet", "Staged", "Stopped",
-           "check_paths", "identity", "silence_stdout", "stop_on_signals"]
+           "check_paths", "identity", "silence_stdout", "stale", "stop_on_signals"]
