@@ -773,8 +773,8 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
     notes = list(layout.notes)
     left = [p for s in staged.values() for p in stale(s)]
     if left:
-        notes.append("temporary files of an earlier run that was killed, never results "
-                     "(delete them): " + ", ".join(left))
+        notes.append("temporary files of another run to this output, still running or "
+                     "killed before it could clean up (never results): " + ", ".join(left))
     if src.format == "csv" and (src.delimiter != "," or decimal != "."):
         notes.append(f"read with delimiter {fileio._show_delims([src.delimiter])} and decimal "
                      f"{decimal!r}")

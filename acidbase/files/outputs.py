@@ -268,8 +268,8 @@ def _fsync_folder(folder: str) -> None:
 
 
 def stale(staged: Staged) -> list[str]:
-    """Temporary files of earlier runs for the same target that were killed (SIGKILL,
-    power cut) before they could clean up: never results, safe to delete."""
+    """Temporary files of other runs to the same target: still running, or killed
+    (SIGKILL, power cut) before they could clean up.  Never results."""
     if not staged.temp:
         return []
     folder, name = os.path.split(staged.target)
