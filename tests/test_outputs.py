@@ -435,3 +435,11 @@ def test_temporary_files_left_by_a_killed_run_are_named_in_the_summary(tmp_path,
     rc, err = batch(capsys, DATA / "mixed.csv", "-o", tmp_path / "o.csv")
     assert rc == 0 and "another run to this output" in err and str(old) in err
     assert old.read_bytes() == b"half a file"  # pointed out, not deleted
+
+
+@pytest.mark.skipif(not os.path.exists("/dev/full"), reason="no /dev/full here")
+def test_a_full_disk_mid_write_is_one_clear_line(capsys):
+    """/dev/full refuses every write with ENOSPC, as a full disk does."""
+    rc, err = batch(capsys, DATA / "serial_unsorted.csv", "-o", "/dev/full")
+    assert rc == 2 and "No space left on device" in err
+    assert err.count("\n") == 1 and "Traceback" not in err
