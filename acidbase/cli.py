@@ -214,7 +214,13 @@ def main(argv: Sequence[str] | None = None) -> int:
     """Run one command; its exit status (module docstring).  A reader that closes
     standard output early (``acidbase demo | head``) ends the command quietly with 141."""
     parser = build_parser()
-    args = parser.parse_args(argv)
+    try:
+        args = parser.parse_args(argv)
+    except BrokenPipeError:  # --help into a closed pipe
+        from .files.outputs import silence_stdout
+
+        silence_stdout()
+        return EXIT_CLOSED_PIPE
     if sys.stdout is None and args.command in ("check", "demo", "tui"):
         print(f"acidbase {args.command}: standard output is closed; nothing to write to",
               file=sys.stderr)
