@@ -553,6 +553,9 @@ def md_text(x: object) -> str:
     return str(x).translate(_MD_ESCAPES)
 
 
+_md_cell = md_text  # the former name, for code written against it
+
+
 def _report_sections(t: Tally) -> tuple[tuple[str, Counter], ...]:
     """The report's count tables, in order; findings named by code and title, each
     trust finding that puts a row up for review marked so."""
