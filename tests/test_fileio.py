@@ -282,15 +282,18 @@ def test_writer_replaces_the_previous_file_only_when_it_closes(tmp_path):
 
 
 @pytest.mark.parametrize("kind", ["string", "large_string", "dictionary", "binary",
-                                  "large_binary", "chunked"])
+                                  "large_binary", "chunked", "chunked dictionary"])
 def test_formula_cells_are_escaped_whatever_the_arrow_text_type(tmp_path, kind):
     cells = pa.array(["=1+2", "ok", None, "-5.2", "@x"])
     col = {"string": cells, "large_string": cells.cast(pa.large_string()),
            "dictionary": cells.dictionary_encode(), "binary": cells.cast(pa.binary()),
            "large_binary": cells.cast(pa.large_binary()),
-           "chunked": pa.chunked_array([cells.slice(0, 2), cells.slice(2)])}[kind]
-    got = [c.decode() if isinstance(c, bytes) else c
-           for c in fileio.escape_formula(col).to_pylist()]
+           "chunked": pa.chunked_array([cells.slice(0, 2), cells.slice(2)]),
+           "chunked dictionary": pa.chunked_array([cells.slice(0, 2).dictionary_encode(),
+                                                   cells.slice(2).dictionary_encode()])}[kind]
+    escaped = fileio.escape_formula(col)
+    assert escaped.type == col.type  # a writer given a schema can take it back
+    got = [c.decode() if isinstance(c, bytes) else c for c in escaped.to_pylist()]
     assert got == ["'=1+2", "ok", None, "-5.2", "'@x"]
 
 

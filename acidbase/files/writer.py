@@ -206,32 +206,46 @@ def escape_danger(column: pa.Array | pa.ChunkedArray) -> pa.Array:
     return pc.if_else(danger, True, pa.scalar(None, pa.bool_()))
 
 
-def _as_text(column: pa.Array | pa.ChunkedArray) -> pa.Array | pa.ChunkedArray | None:
-    """A column whose cells are written as text or bytes (strings of any width,
-    binary, either dictionary-encoded), decoded to plain cells; None for others."""
-    t = column.type
-    if pa.types.is_dictionary(t):
-        inner = _as_text(pa.array([], t.value_type))
-        return None if inner is None else column.cast(t.value_type)
-    if (pa.types.is_string(t) or pa.types.is_large_string(t) or pa.types.is_binary(t)
-            or pa.types.is_large_binary(t)):
-        return column  # binary cells reach the CSV as their bytes: escaped as bytes
-    if getattr(pa.types, "is_string_view", lambda _: False)(t):
-        return column.cast(pa.string())
-    return None
+def _is_text(t: pa.DataType) -> bool:
+    """Cells written as text or bytes: strings of any width, binary (as its bytes)."""
+    return (pa.types.is_string(t) or pa.types.is_large_string(t) or pa.types.is_binary(t)
+            or pa.types.is_large_binary(t))
+
+
+def _escape_plain(column: pa.Array | pa.ChunkedArray) -> pa.Array | pa.ChunkedArray:
+    danger = escape_danger(column)
+    if not pc.any(pc.is_valid(danger)).as_py():
+        return column
+    quote, empty = pa.scalar("'", column.type), pa.scalar("", column.type)
+    return pc.if_else(pc.is_valid(danger), pc.binary_join_element_wise(quote, column, empty),
+                      column)
+
+
+def _escape_dictionary(column: pa.DictionaryArray) -> pa.DictionaryArray:
+    """The dictionary's values escaped (the rule is a function of the cell, so each
+    distinct text once); indices and type kept."""
+    values = _escape_plain(column.dictionary)
+    if values is column.dictionary:
+        return column
+    return pa.DictionaryArray.from_arrays(column.indices, values, ordered=column.type.ordered)
 
 
 def escape_formula(column: pa.Array | pa.ChunkedArray) -> pa.Array | pa.ChunkedArray:
-    """``escape_text`` on every cell of a text column, whatever its Arrow type (a
-    dictionary-encoded column comes back decoded only when a cell changes)."""
-    text = _as_text(column)
-    if text is None:
-        return column
-    danger = escape_danger(text)
-    if not pc.any(pc.is_valid(danger)).as_py():
-        return column
-    quote, empty = pa.scalar("'", text.type), pa.scalar("", text.type)
-    return pc.if_else(pc.is_valid(danger), pc.binary_join_element_wise(quote, text, empty), text)
+    """``escape_text`` on every cell of a text column, whatever its Arrow type; the
+    column keeps its type (a dictionary-encoded one its indices), other columns are
+    returned as they are."""
+    t = column.type
+    if pa.types.is_dictionary(t):
+        if not _is_text(t.value_type):
+            return column
+        if isinstance(column, pa.ChunkedArray):  # each chunk may have its own dictionary
+            return pa.chunked_array([_escape_dictionary(c) for c in column.chunks], type=t)
+        return _escape_dictionary(column)
+    if _is_text(t):
+        return _escape_plain(column)
+    if getattr(pa.types, "is_string_view", lambda _: False)(t):
+        return _escape_plain(column.cast(pa.string()))
+    return column
 
 
 def output_format(path: str | None, given: str | None) -> str:
