@@ -451,3 +451,29 @@ def test_a_full_disk_mid_write_is_one_clear_line(capsys):
     rc, err = batch(capsys, DATA / "serial_unsorted.csv", "-o", "/dev/full")
     assert rc == 2 and "No space left on device" in err
     assert err.count("\n") == 1 and "Traceback" not in err
+
+
+def test_a_failing_run_removes_the_serial_scratch_folder(tmp_path, capsys, monkeypatch):
+    """The serial pass has spilled patient ids to its scratch folder when a ragged line
+    far into the file stops the second pass."""
+    import tempfile
+
+    scratch = tmp_path / "tmp"
+    scratch.mkdir()
+    monkeypatch.setattr(tempfile, "tempdir", str(scratch))
+    src = big_file(tmp_path / "day.csv", 5000)
+    with src.open("a") as f:
+        f.write("P00001,2026-01-02T00:00:00Z,S-late,7.40\n")
+    rc, err = batch(capsys, src, "-o", tmp_path / "o.csv", "--chunk-rows", "200")
+    assert rc == 2 and "fields where the header has 10" in err
+    assert list(scratch.iterdir()) == [] and not (tmp_path / "o.csv").exists()
+
+
+def test_a_failing_run_from_standard_input_removes_its_copy(tmp_path):
+    scratch = tmp_path / "tmp"
+    scratch.mkdir()
+    argv, env = command("-", "-o", tmp_path / "o.csv", tmp=scratch)
+    done = subprocess.run(argv, env=env, input=b"ph,pco2\n7.4,40\n", capture_output=True,
+                          timeout=120, check=False)
+    assert done.returncode == 2 and b"no column for required field" in done.stderr
+    assert list(scratch.iterdir()) == [] and not (tmp_path / "o.csv").exists()
