@@ -458,14 +458,25 @@ def test_a_failing_run_removes_the_serial_scratch_folder(tmp_path, capsys, monke
     far into the file stops the second pass."""
     import tempfile
 
+    from acidbase import serial
+
     scratch = tmp_path / "tmp"
     scratch.mkdir()
     monkeypatch.setattr(tempfile, "tempdir", str(scratch))
+    closed = []
+    real_close = serial.SerialChecker.close
+
+    def close(self):  # removed by the run itself, not left to garbage collection
+        closed.append(list(scratch.iterdir()))
+        real_close(self)
+
+    monkeypatch.setattr(serial.SerialChecker, "close", close)
     src = big_file(tmp_path / "day.csv", 5000)
     with src.open("a") as f:
         f.write("P00001,2026-01-02T00:00:00Z,S-late,7.40\n")
     rc, err = batch(capsys, src, "-o", tmp_path / "o.csv", "--chunk-rows", "200")
     assert rc == 2 and "fields where the header has 10" in err
+    assert len(closed) == 1 and closed[0]  # closed once, while its folder was there
     assert list(scratch.iterdir()) == [] and not (tmp_path / "o.csv").exists()
 
 
