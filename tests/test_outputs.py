@@ -489,3 +489,16 @@ def test_a_failing_run_from_standard_input_removes_its_copy(tmp_path):
                           timeout=120, check=False)
     assert done.returncode == 2 and b"no column for required field" in done.stderr
     assert list(scratch.iterdir()) == [] and not (tmp_path / "o.csv").exists()
+
+
+def test_a_temporary_name_that_is_the_input_is_never_opened(tmp_path, capsys, monkeypatch):
+    """The input named exactly as the first temporary name the run draws: the exclusive
+    creation skips it (tempfile's private name source is replaced to force the draw)."""
+    import tempfile
+
+    src = tmp_path / ".o.csv.first.incomplete"
+    src.write_bytes((DATA / "mixed.csv").read_bytes())
+    monkeypatch.setattr(tempfile, "_get_candidate_names", lambda: iter(["first", "second"]))
+    rc, _ = batch(capsys, src, "--format", "csv", "-o", tmp_path / "o.csv")
+    assert rc == 0 and src.read_bytes() == (DATA / "mixed.csv").read_bytes()
+    assert len((tmp_path / "o.csv").read_text().splitlines()) == 13
