@@ -9,16 +9,17 @@ import csv
 import os
 import re
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 from .. import loinc
 from .. import units as _units
 from ..errors import BatchInputError, UnitError
 from ..fields import BY_NAME, REQUIRED, TEXT_FIELDS
+from ..inputs.vocab import CHOICES
 from .formats import sniff_csv
 
 #: Fields that are text, read as given: choices and identifiers.
-CHOICE_FIELDS: tuple[str, ...] = ("sample_type", "hco3_source")
+CHOICE_FIELDS: tuple[str, ...] = tuple(c.name for c in CHOICES)
 ALL_FIELDS: tuple[str, ...] = tuple(BY_NAME) + CHOICE_FIELDS + TEXT_FIELDS
 
 
@@ -34,10 +35,29 @@ class Layout:
     """Numeric field -> unit label (UCUM), for every numeric field present."""
     notes: tuple[str, ...] = ()
     """Things the user should know (columns passed through unread...)."""
+    missing: tuple[str, ...] = ()
+    """Cell texts that mean "not measured" (``--missing``)."""
+    code_of: dict[str, str] = field(default_factory=dict)
+    """Input header -> its LOINC code, for the columns named by one."""
+    duplicates: Mapping[int, tuple[str, ...]] = field(default_factory=dict)
+    """Row (from 0, over the file) -> keys its JSON record gave twice (the source fills
+    it as it reads; each such row is refused)."""
 
     @property
     def column_of(self) -> dict[str, str]:
-        return {f: h for h, f in self.field_of.items()}
+        """Field -> its (first) input column."""
+        out: dict[str, str] = {}
+        for h, f in self.field_of.items():
+            out.setdefault(f, h)
+        return out
+
+    @property
+    def columns_of(self) -> dict[str, tuple[str, ...]]:
+        """Field -> every input column read for it (several: one per specimen)."""
+        out: dict[str, tuple[str, ...]] = {}
+        for h, f in self.field_of.items():
+            out[f] = (*out.get(f, ()), h)
+        return out
 
     @property
     def unread(self) -> tuple[str, ...]:
@@ -109,8 +129,10 @@ def map_headers(headers: Sequence[str], mapping: Mapping[str, tuple[str, str | N
     mapping = dict(mapping or {})
     given_units = {k.lower(): v for k, v in (units or {}).items()}
     field_of: dict[str, str] = {}
+    code_of: dict[str, str] = {}
     stated: dict[str, tuple[str, str]] = {}  # field -> (unit, where)
     needs_unit: dict[str, str] = {}
+    not_read: list[str] = []
     for h in headers:
         base, suffix = split_unit(h)
         fld = unit = None
@@ -126,19 +148,28 @@ def map_headers(headers: Sequence[str], mapping: Mapping[str, tuple[str, str | N
                 suffix is None or _is_unit_of(code_field, suffix)):
             fld, where = code_field, f"header {h!r}"
             unit = suffix or loinc.IMPLIED_UNIT.get(base)
+            code_of[h] = base
             if unit is None and base in loinc.UNIT_REQUIRED:
                 needs_unit[code_field] = h
+        elif base in loinc.NOT_READ:
+            not_read.append(f"{h!r} (LOINC {base}: {loinc.NOT_READ[base]})")
         if fld is None:
             continue
         if fld in field_of.values():
-            other = next(k for k, v in field_of.items() if v == fld)
-            raise BatchInputError(
-                f"columns {other!r} and {h!r} both map to {fld}; keep one, or map one with a "
-                "mapping file to another field")
+            others = [k for k, v in field_of.items() if v == fld]
+            if not _specimen_columns([*others, h], code_of):
+                raise BatchInputError(
+                    f"columns {others[0]!r} and {h!r} both map to {fld}; keep one, or map one "
+                    "with a mapping file to another field (columns of one field are read "
+                    "together only when their LOINC codes name different specimens)")
         field_of[h] = fld
         if unit is not None:
             if fld not in BY_NAME:
                 raise BatchInputError(f"{where}: {fld} is text and takes no unit")
+            if fld in stated and _units.normalise(stated[fld][0]) != _units.normalise(unit):
+                raise BatchInputError(
+                    f"{fld}: the {stated[fld][1]} says {stated[fld][0]!r} but the {where} says "
+                    f"{unit!r}; columns of one field are read in one unit (map them with --map)")
             stated[fld] = (unit, where)
 
     present = set(field_of.values())
@@ -187,8 +218,28 @@ def map_headers(headers: Sequence[str], mapping: Mapping[str, tuple[str, str | N
                 f"columns not recognised: {', '.join(repr(h) for h in unread)} "
                 "(--strict-columns); map them with --map or drop --strict-columns")
         notes.append("passed through, not read: " + ", ".join(repr(h) for h in unread))
+    if not_read:
+        notes.append("LOINC columns deliberately not read: " + "; ".join(not_read))
+    several = {f: hs for f, hs in _columns_of(field_of).items() if len(hs) > 1}
+    if several:
+        notes.append("one column per specimen, read row by row (a row with two filled is "
+                     "refused): " + "; ".join(f"{f}: {', '.join(repr(h) for h in hs)}"
+                                                for f, hs in several.items()))
     unused = [h for h in mapping if h not in headers]
     if unused:
         notes.append("mapping file headers not in this file: " + ", ".join(repr(h) for h in unused))
-    return Layout(tuple(headers), field_of, resolved, tuple(notes))
+    return Layout(tuple(headers), field_of, resolved, tuple(notes), code_of=code_of)
+
+
+def _columns_of(field_of: Mapping[str, str]) -> dict[str, list[str]]:
+    out: dict[str, list[str]] = {}
+    for h, f in field_of.items():
+        out.setdefault(f, []).append(h)
+    return out
+
+
+def _specimen_columns(headers: Sequence[str], code_of: Mapping[str, str]) -> bool:
+    """True when every header is a LOINC code and each names its own specimen."""
+    kinds = [loinc.SYSTEM.get(code_of.get(h, "")) for h in headers]
+    return all(k is not None for k in kinds) and len(set(kinds)) == len(kinds)
 

@@ -56,6 +56,10 @@ class Source:
     chunk_rows: int = 1 << 18
     size: int = 0
     total_rows: int | None = None
+    notes: tuple[str, ...] = ()
+    """What the reader changed and the user should know (duplicate headers renamed)."""
+    duplicates: dict[int, tuple[str, ...]] = field(default_factory=dict)
+    """JSON Lines: row (from 0) -> keys its record gave more than once (filled as read)."""
     _progress: list[int] = field(default_factory=lambda: [0])
 
     @property
@@ -87,14 +91,43 @@ class Source:
         yield from rechunk(raw, self.chunk_rows)
 
     def _csv_batches(self, cols: list[str], on_progress) -> Iterator[pa.RecordBatch]:
+        """CSV batches in file order.  The first lines decide the block size and whether
+        quoted cells may hold line breaks; when a later line proves them wrong (a cell
+        larger than a block, a quoted line break after the sampled start), the file is
+        read again with a larger block, or with line breaks in values, and the rows
+        already given are skipped: a valid CSV is read, never refused for its shape."""
         block = int(min(max(self.chunk_rows * 96, 1 << 16), CSV_BLOCK_MAX))
+        multiline = self.multiline
+        given = 0
+        while True:
+            try:
+                for batch in self._csv_pass(cols, on_progress, block, multiline, given):
+                    given += batch.num_rows
+                    yield batch
+                return
+            except pa.ArrowInvalid as e:
+                text = str(e)
+                if "straddling" in text and block < CSV_BLOCK_LARGEST:
+                    block = min(block * 8, CSV_BLOCK_LARGEST)
+                    continue
+                if not multiline and ("Expected" in text or "straddling" in text):
+                    multiline = True  # a quoted line break the sample did not show
+                    continue
+                raise BatchInputError(f"{self.path}: {_csv_error(text)}") from None
+
+    def _csv_pass(self, cols: list[str], on_progress, block: int, multiline: bool,
+                  skip: int) -> Iterator[pa.RecordBatch]:
         f = _CountingReader(open(self.path, "rb"))
         try:
+            names = {}
+            if self.notes:  # duplicate headers renamed: our names, the header line skipped
+                names = {"column_names": list(self.headers), "skip_rows": 1}
             reader = pa_csv.open_csv(
                 io.BufferedReader(f, 1 << 20),
-                read_options=pa_csv.ReadOptions(block_size=block, encoding=self.encoding),
+                read_options=pa_csv.ReadOptions(block_size=block, encoding=self.encoding,
+                                                **names),
                 parse_options=pa_csv.ParseOptions(delimiter=self.delimiter,
-                                                  newlines_in_values=self.multiline),
+                                                  newlines_in_values=multiline),
                 convert_options=pa_csv.ConvertOptions(
                     column_types={h: pa.string() for h in self.headers},
                     include_columns=cols, strings_can_be_null=True,
@@ -105,24 +138,29 @@ class Source:
                     batch = reader.read_next_batch()
                 except StopIteration:
                     break
-                except pa.ArrowInvalid as e:
-                    raise BatchInputError(f"{self.path}: {_csv_error(str(e))}") from None
                 if on_progress:
                     on_progress(f.count)
+                if skip:
+                    if batch.num_rows <= skip:
+                        skip -= batch.num_rows
+                        continue
+                    batch = batch.slice(skip)
+                    skip = 0
                 yield batch
-        except pa.ArrowInvalid as e:
-            raise BatchInputError(f"{self.path}: {_csv_error(str(e))}") from None
         finally:
             f.close()
 
     def _parquet_batches(self, cols: list[str], on_progress) -> Iterator[pa.RecordBatch]:
         pf = pq.ParquetFile(self.path)
         done = 0
-        for batch in pf.iter_batches(batch_size=self.chunk_rows, columns=cols):
+        names = list(pf.schema_arrow.names)
+        index = [self.headers.index(c) for c in cols]
+        assert len(names) == len(self.headers)
+        for batch in pf.iter_batches(batch_size=self.chunk_rows):
             done += batch.num_rows
             if on_progress and self.total_rows:
                 on_progress(int(self.size * done / self.total_rows))
-            yield batch
+            yield pa.RecordBatch.from_arrays([batch.column(i) for i in index], names=cols)
 
     def _jsonl_batches(self, cols: list[str], on_progress) -> Iterator[pa.RecordBatch]:
         # Values may be numbers in one record and text ("<5") in the next, which a
@@ -131,10 +169,16 @@ class Source:
         try:
             lines = io.TextIOWrapper(io.BufferedReader(f), encoding="utf-8-sig")
             buf: list[dict] = []
+            row = 0
             for lineno, line in enumerate(lines, start=1):
                 if not line.strip():
                     continue
-                buf.append(_json_record(line, lineno, self.path))
+                rec = _json_record(line, lineno, self.path)
+                dups = getattr(rec, "duplicates", ())
+                if dups:  # refused for that row (files.check), never silently the last
+                    self.duplicates[row] = dups
+                row += 1
+                buf.append(rec)
                 if len(buf) >= self.chunk_rows:
                     yield _records_to_batch(buf, cols, self.missing)
                     buf = []
@@ -157,9 +201,27 @@ def _csv_error(text: str) -> str:
     return text
 
 
+class _Record(dict):
+    """A JSON Lines record, with the keys it gave more than once."""
+
+    duplicates: tuple[str, ...] = ()
+
+
+def _pairs(pairs: list[tuple[str, object]]) -> _Record:
+    rec = _Record()
+    dups = []
+    for k, v in pairs:
+        if k in rec:
+            dups.append(k)
+        rec[k] = v
+    if dups:
+        rec.duplicates = tuple(dict.fromkeys(dups))
+    return rec
+
+
 def _json_record(line: str, lineno: int, path: str) -> dict:
     try:
-        rec = json.loads(line)
+        rec = json.loads(line, object_pairs_hook=_pairs)
     except json.JSONDecodeError as e:
         raise BatchInputError(f"{path} line {lineno}: not JSON ({e.msg})") from None
     if not isinstance(rec, dict):
@@ -207,6 +269,8 @@ def jsonl_headers(path: str | os.PathLike[str]) -> tuple[str, ...]:
 #: block (about 40 MB more at 1.5 MB than at 768 KB, reading the benchmark file),
 #: while larger chunks need only more blocks, which ``rechunk`` joins.
 CSV_BLOCK_MAX = 768 << 10
+#: Largest block a CSV is read again with when one cell is larger than a block.
+CSV_BLOCK_LARGEST = 1 << 30
 
 
 def rechunk(batches: Iterator[pa.RecordBatch], rows: int) -> Iterator[pa.Table]:
@@ -239,20 +303,47 @@ def open_source(path: str | os.PathLike[str], fmt: str | None = None, delimiter:
     size = os.path.getsize(p)
     if fmt == "csv":
         d = sniff_csv(p, delimiter, encoding)
-        src = Source(p, fmt, d.headers, d.delimiter, encoding=encoding, multiline=d.multiline)
+        headers, notes = unique_headers(d.headers)
+        src = Source(p, fmt, headers, d.delimiter, encoding=encoding, multiline=d.multiline,
+                     notes=notes)
         src._sample = d.sample  # type: ignore[attr-defined]
     elif fmt == "parquet":
         try:
             pf = pq.ParquetFile(p)
         except (pa.ArrowInvalid, OSError) as e:
             raise BatchInputError(f"{p}: not a readable Parquet file ({e})") from None
-        src = Source(p, fmt, tuple(pf.schema_arrow.names), total_rows=pf.metadata.num_rows)
+        schema = pf.schema_arrow
+        nested = [f"{f.name!r} ({f.type})" for f in schema if pa.types.is_nested(f.type)]
+        if nested:
+            raise BatchInputError(
+                f"{p}: column(s) {', '.join(nested)} hold lists or records, not one value per "
+                "cell; write them as text or drop them before the run")
+        headers, notes = unique_headers(schema.names)
+        src = Source(p, fmt, headers, total_rows=pf.metadata.num_rows, notes=notes)
     else:
         src = Source(p, fmt, jsonl_headers(p))
     src.size = size
     src.missing = tuple(missing)
     src.chunk_rows = max(1, int(chunk_rows))
     return src
+
+
+def unique_headers(headers: Sequence[str]) -> tuple[tuple[str, ...], tuple[str, ...]]:
+    """Headers with repeats renamed ``"n (2)"``, and a note naming each renaming."""
+    out: list[str] = []
+    used: set[str] = set()
+    renamed = []
+    for h in headers:
+        name, k = h, 1
+        while name in used:
+            k += 1
+            name = f"{h} ({k})"
+        used.add(name)
+        out.append(name)
+        if name != h:
+            renamed.append(f"{h!r} -> {name!r}")
+    notes = ("repeated column names renamed: " + ", ".join(renamed),) if renamed else ()
+    return tuple(out), notes
 
 
 def csv_sample(src: Source) -> tuple[tuple[str, ...], ...]:

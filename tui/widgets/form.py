@@ -184,8 +184,11 @@ class EntryForm(VerticalScroll):
         """Something in the form changed (a value, a unit or a choice)."""
 
     def compose(self) -> ComposeResult:
-        required = [s for s in NUMERIC if s.required]
-        optional = [s for s in NUMERIC if not s.required]
+        # Na+ and Cl- are optional (a bare gas is read) but stay in the first group, in the
+        # order a report prints them.
+        first = ("na", "cl")
+        required = [s for s in NUMERIC if s.required or s.name in first]
+        optional = [s for s in NUMERIC if not (s.required or s.name in first)]
         for spec in required:
             yield ValueField(spec)
         yield ChoiceField("sample_type", "Sample", SAMPLE_TYPES, "unknown")
