@@ -33,9 +33,15 @@ def test_no_input_raises_anything_but_the_validation_error(data):
         assert len(pairs) == e.error_count() == len(ab.describe(e))  # a line per problem
         for loc, line in pairs:
             spec = BY_NAME.get(loc)
-            # each line starts with what it is about: the field's title and name, else the
-            # option's name, else "panel"; none is pydantic's own dump
-            assert line.startswith(f"{spec.title} ({loc})" if spec else (loc or "panel")), line
+            # each line names what it is about: a numeric field by title and name first,
+            # another field by its name, the panel as a whole as "panel"; none is
+            # pydantic's own dump
+            if spec is not None:
+                assert line.startswith(f"{spec.title} ({loc})"), line
+            elif loc:
+                assert f"({loc})" in line or line.startswith(f"{loc}:"), line
+            else:
+                assert line.startswith("panel"), line
             assert "errors.pydantic.dev" not in line and "type=" not in line
         missing = {s.name for s in NUMERIC if s.required and s.name not in data}
         named = {loc for loc, line in pairs if line.endswith("is required and was not given")}
