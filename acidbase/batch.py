@@ -781,7 +781,7 @@ def run(args: argparse.Namespace) -> int:
         message = f"{where.strip()} {e.strerror or e}".strip()
     except (pa.ArrowInvalid, pa.ArrowTypeError, UnicodeDecodeError) as e:
         message = f"the file could not be read ({e})"
-    except Exception as e:  # a defect: said in one line, still with nothing written
+    except Exception as e:  # noqa: BLE001 - a defect: one line, still nothing written
         args.input = shown
         print(f"acidbase batch: failed: unexpected {type(e).__name__}: {e} (a defect of "
               f"acidbase; please report it with the command line); {_kept(args, outcome)}",
