@@ -35,14 +35,14 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from . import fileio, serial
+from . import fileio, history, serial
 from . import units as _units
 from .engine import SLOTS
 from .errors import AcidBaseError
 from .fields import BY_NAME
 from .fileio import BatchInputError, Layout, Source
-from .files.check import (EXTRA_COLUMNS, ROW_COLUMN, check_chunk, output_names,  # noqa: F401
-                          review_mask, review_rules)
+from .files.check import (EXTRA_COLUMNS, ROW_COLUMN, check_chunk, field_column,  # noqa: F401
+                          output_names, review_mask, review_rules)
 from .files.outputs import (
     OutputSet,
     Staged,
@@ -487,19 +487,21 @@ def escaped_columns(headers: tuple[str, ...]) -> list[str]:
 
 
 def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.SerialChecker,
-                 progress: Progress) -> None:
+                 progress: Progress, store=None) -> None:
     col_of = layout.column_of
     wanted = [col_of["patient_id"], col_of["collected_at"]]
     if "sample_id" in col_of:
         wanted.append(col_of["sample_id"])
-    fields_used = [r.field for r in checker.rules if r.field in col_of]
-    wanted += [col_of[f] for f in fields_used]
+    fields_used = [f for f in checker.fields if f in col_of]
+    columns_of = layout.columns_of  # one column per specimen: a row reads the filled one
+    wanted += [h for f in fields_used for h in columns_of[f]]
     wanted = list(dict.fromkeys(wanted))
     rows = 0
     for table in src.chunks(wanted):
         values = {}
-        many = fileio.parse_numeric_many([table[col_of[f]] for f in fields_used], decimal,
-                                         layout.missing)
+        many = fileio.parse_numeric_many(
+            [field_column(table, columns_of[f], layout.missing)[0] for f in fields_used],
+            decimal, layout.missing)
         for f, p in zip(fields_used, many):
             spec = BY_NAME[f]
             unit = layout.units.get(f, spec.unit)
@@ -510,10 +512,22 @@ def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.Seri
             values[f] = v
         secs, kind = fileio.parse_times(table[col_of["collected_at"]])
         sample = table[col_of["sample_id"]] if "sample_id" in col_of else None
-        checker.add(table[col_of["patient_id"]], secs, kind, values, sample)
+        patient = table[col_of["patient_id"]]
+        if store is not None:  # compared, and stored, as keyed hashes only
+            patient = store.hash_ids(patient, secs)
+        checker.add(patient, secs, kind, values, sample)
         rows += table.num_rows
         progress.update(rows)
+    if store is not None:
+        history.feed_earlier(store, checker)
     checker.finish()
+
+
+def _audit(args: argparse.Namespace) -> dict[str, object]:
+    """The settings of a run that its history-store audit record keeps (no paths)."""
+    names = ("unit", "missing", "window_hours", "delta", "anion_gap_interval",
+             "anion_gap_with_k", "reference_albumin", "history_retention_days", "chunk_rows")
+    return {k: getattr(args, k) for k in names if hasattr(args, k)}
 
 
 def _lean_allocators() -> None:
@@ -546,7 +560,8 @@ def _stage_outputs(args: argparse.Namespace, outputs: OutputSet) -> dict[str, St
     folder that is missing or cannot be written stops the run with nothing done."""
     named = [(opt, path) for opt, path in (("-o", args.output), ("--summary", args.summary),
                                            ("--report", args.report)) if path and path != "-"]
-    inputs = [("INPUT", args.input)] + ([("--map", args.mapping)] if args.mapping else [])
+    inputs = [("INPUT", args.input)] + [(o, p) for o, p in (
+        ("--map", args.mapping), ("--history", getattr(args, "history", None))) if p]
     check_paths([(o, p) for o, p in inputs if p != "-"], named)
     return {opt: outputs.add(opt, path) for opt, path in named}
 
@@ -605,16 +620,24 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
                     escape=escaped_columns(src.headers), decimals={k: DECIMALS[k] for k in keep},
                     sink=data.file if data else None)
     stack.callback(writer.close, False)  # after a commit, a no-op
-    checker = None
+    checker = store = None
+    if args.history and not do_serial:
+        notes.append("history store not used: the serial checks did not run")
     passes = 2 if do_serial else 1
     if do_serial:
+        if args.history:
+            store = history.open_for_run(args.history, args.history_retention_days
+                                         or history.DEFAULT_RETENTION_DAYS)
+            stack.callback(store.close)  # without a commit: adds nothing
+        # With a store, earlier panels join the partitions: twice as many of them.
         checker = serial.SerialChecker(serial.rules_with(deltas), args.window_hours,
-                                       serial.SerialChecker.partitions_for(src.size))
+                                       serial.SerialChecker.partitions_for(src.size)
+                                       * (2 if store else 1), keep=store is not None)
         stack.callback(checker.close)  # its scratch folder goes, whatever happens
         progress = Progress(src.estimated_rows(), not args.quiet)
         progress.label = "serial 1/2"
         try:
-            _serial_pass(src, layout, decimal, checker, progress)
+            _serial_pass(src, layout, decimal, checker, progress, store)
         finally:
             progress.end()
     tally = Tally()
@@ -675,6 +698,8 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         pool.shutdown(wait=True, cancel_futures=True)
         progress.end()
     writer.finish()
+    if store is not None:  # only a run whose every row was written is stored
+        notes.append(history.commit_run(store, checker, args.input, _audit(args)))
     summary = staged.get("--summary")
     text = summary_json(tally, notes) if (args.summary or "").endswith(".json") else \
         summary_text(tally, notes)
