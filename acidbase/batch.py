@@ -53,7 +53,8 @@ from .files.outputs import (
     stop_on_signals,
 )
 from .files.writer import Writer, escape_text
-from .results import CAUTION, DECIMALS, DERIVED
+from .profile import profile_from_args
+from .results import CAUTION
 
 if TYPE_CHECKING:  # the command line (argparse) lives in acidbase.cli only
     import argparse
@@ -87,21 +88,6 @@ def _pairs(items: list[str], what: str) -> dict[str, str]:
             raise BatchInputError(f"--{what} given twice for {k}")
         out[k] = v.strip()
     return out
-
-
-def _derived_columns(spec: str) -> tuple[str, ...]:
-    """The derived-value columns to keep (``--derived``)."""
-    text = spec.strip().lower()
-    if text == "all":
-        return DERIVED
-    if text == "none":
-        return ()
-    names = tuple(x.strip() for x in text.split(",") if x.strip())
-    unknown = [x for x in names if x not in DERIVED]
-    if unknown:
-        raise BatchInputError(f"--derived: {', '.join(unknown)} not among the derived values "
-                              f"({', '.join(DERIVED)})")
-    return names
 
 
 def _delta_overrides(items: list[str]) -> dict[str, float | None]:
@@ -586,7 +572,7 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         raise BatchInputError("--window-hours must be a positive number")
     if args.report and not args.report.lower().endswith((".md", ".html", ".htm")):
         raise BatchInputError("--report: name a .md or .html file")
-    keep = _derived_columns(args.derived)
+    profile = profile_from_args(args)
     settings = _settings(args)
     out_fmt = fileio.output_format(args.output, args.output_format)
     staged = _stage_outputs(args, outputs)
@@ -617,7 +603,7 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         notes.append("serial checks not run: they need patient_id and collected_at columns")
     data = staged.get("-o")
     writer = Writer(args.output, out_fmt, out_delim, metadata={"caution": CAUTION},
-                    escape=escaped_columns(src.headers), decimals={k: DECIMALS[k] for k in keep},
+                    escape=escaped_columns(src.headers), decimals=profile.decimals,
                     sink=data.file if data else None)
     stack.callback(writer.close, False)  # after a commit, a no-op
     checker = store = None
@@ -647,7 +633,8 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
     def work(table: pa.Table, start: int, listed: int):
         """One chunk, on a worker thread: its output rows encoded for the writer, and
         its counts."""
-        out, meta = _process(table, layout, decimal, settings, checker, start, keep)
+        out, meta = _process(table, layout, decimal, settings, checker, start, profile.derived,
+                             severities=profile.severities)
         names = _output_names(src.headers, meta["engine_cols"])
         cols = {ROW_COLUMN: pa.array(np.arange(start + 1, start + table.num_rows + 1))}
         for h in src.headers:
@@ -659,6 +646,8 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         tally_chunk(part, out, meta["pco2"], meta["hco3"], meta["refused"], meta["review"],
                     start, ids, meta["fired"], listed, meta["counts"])
         plain = frozenset(names[h] for h in meta["plain"])
+        # the output profile (acidbase/profile.py): counted above, not all written
+        cols = {k: v for k, v in cols.items() if k in names.values() or profile.keeps(k)}
         return writer.encode(pa.table(cols), plain), part, names, table.num_rows
 
     done = 0

@@ -23,6 +23,7 @@ from .files.formats import FORMATS
 from .fields import NUMERIC, TEXT_FIELDS
 from .inputs.vocab import CHOICES
 from .inputs.panel import Panel, describe
+from .profile import FINDINGS, PROFILES
 from .reference import Settings
 from .report import as_text
 from .results import CAUTION
@@ -125,9 +126,15 @@ def configure_batch_parser(p: argparse.ArgumentParser) -> None:
                    help="write the summary here (.json for JSON) instead of stderr")
     o.add_argument("--report", metavar="FILE",
                    help="summary report with flagged rows and the pCO2-HCO3 plane (.md or .html)")
-    o.add_argument("--derived", default="all", metavar="all|none|NAME,...",
-                   help="derived-value columns to write (default all; formatting numbers is "
-                        "most of the time of writing CSV)")
+    o.add_argument("--profile", default="lean", choices=PROFILES,
+                   help="output columns: lean (default; see docs/batch.md) or full (every "
+                        "finding, derived value, role and serial sentence)")
+    o.add_argument("--derived", default=None, metavar="lab|all|none|NAME,...",
+                   help="derived-value columns to write (default: the profile's; lab: the "
+                        "calculated HCO3- and its difference, anion gap, corrected gap, SBE)")
+    o.add_argument("--findings", default=None, choices=FINDINGS,
+                   help="finding codes to write: caution (caution and critical; lean's "
+                        "default) or all")
     o.add_argument("--quiet", action="store_true", help="no progress bar")
     add_settings_options(p)
 
@@ -235,6 +242,18 @@ def cmd_batch(args: argparse.Namespace) -> int:
     return batch.run(args)
 
 
+def cmd_shard(args: argparse.Namespace) -> int:
+    from .scale import shard
+
+    try:
+        files = shard(args.input, args.folder, args.shards, patient_column=args.patient_column)
+    except OSError as e:
+        print(f"acidbase shard: could not run: {e}", file=sys.stderr)
+        return EXIT_REFUSED
+    print(f"{len(files)} shard files in {args.folder}", file=sys.stderr)
+    return EXIT_OK
+
+
 def cmd_history(args: argparse.Namespace) -> int:
     from . import history_command
 
@@ -293,6 +312,17 @@ def build_parser() -> argparse.ArgumentParser:
     batch = sub.add_parser("batch", help="check a file of panels")
     configure_batch_parser(batch)
     batch.set_defaults(func=cmd_batch)
+    shard = sub.add_parser("shard", help="split a file into Parquet shards by patient",
+                           description="Split INPUT into Parquet files, a patient's rows always "
+                                       "in the same one, for checking shard by shard "
+                                       "(docs/scale.md).")
+    shard.add_argument("input", metavar="INPUT")
+    shard.add_argument("folder", metavar="FOLDER", help="where the shard files go (created)")
+    shard.add_argument("--shards", type=int, default=16, metavar="N",
+                       help="number of shards (default 16)")
+    shard.add_argument("--patient-column", metavar="HEADER",
+                       help="the patient id column (default: the one read as patient_id)")
+    shard.set_defaults(func=cmd_shard)
     hist = sub.add_parser("history", help="what a history store holds; export or purge a patient")
     configure_history_parser(hist)
     hist.set_defaults(func=cmd_history)

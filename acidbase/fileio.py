@@ -25,15 +25,16 @@ from .files.source import (CSV_BLOCK_MAX, Source, csv_sample, jsonl_headers,  # 
                            open_source, rechunk)
 from .files.times import (TIME_INVALID, TIME_MISSING, TIME_NAIVE, TIME_ZONED,  # noqa: F401
                           parse_times)
-from .files.writer import (Writer, escape_danger, escape_formula, escape_text,  # noqa: F401
-                           fixed_columns, format_fixed, jsonl_bytes, output_format)
+from .files.writer import (Writer, csv_rows, escape_danger, escape_formula,  # noqa: F401
+                           escape_text, fixed_columns, format_fixed, jsonl_bytes,
+                           output_format)
 from .inputs.cells import (LAB_FLAGS, ParsedColumn, _mask, _parse_cells,  # noqa: F401
                            parse_choice, parse_numeric, parse_numeric_many, parse_text)
 
 
 __all__ = [
     "ALL_FIELDS", "BatchInputError", "Dialect", "LAB_FLAGS", "Layout", "ParsedColumn", "Source",
-    "TIME_INVALID", "TIME_MISSING", "TIME_NAIVE", "TIME_ZONED", "Writer", "csv_sample",
+    "TIME_INVALID", "TIME_MISSING", "TIME_NAIVE", "TIME_ZONED", "Writer", "csv_rows", "csv_sample",
     "detect_decimal", "detect_format", "escape_danger", "escape_formula", "escape_text", "fixed_columns",
     "format_fixed", "jsonl_bytes", "map_headers", "open_source", "output_format", "parse_choice", "parse_numeric",
     "parse_numeric_many", "parse_text", "parse_times", "read_mapping",

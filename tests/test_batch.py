@@ -68,7 +68,7 @@ def test_refusal_reason_names_the_field_and_the_value(tmp_path, capsys, sample, 
 
 def test_a_row_without_sodium_is_read_with_the_gap_not_assessable(tmp_path, capsys):
     out = tmp_path / "out.csv"
-    batch(capsys, DATA / "mixed.csv", "-o", out)
+    batch(capsys, DATA / "mixed.csv", "-o", out, "--findings", "all")
     r = next(r for r in rows_of(out) if r["sample_id"] == "M08")
     assert r["status"] == "interpreted" and r["anion_gap"] == ""
     assert "P-GAP-NOT-ASSESSABLE" in r["finding_codes"]
@@ -92,7 +92,7 @@ def test_censored_optional_value_is_not_measured_and_recorded(tmp_path, capsys):
 
 def test_trailing_flag_is_recorded_and_the_value_used(tmp_path, capsys):
     out = tmp_path / "out.csv"
-    batch(capsys, DATA / "mixed.csv", "-o", out)
+    batch(capsys, DATA / "mixed.csv", "-o", out, "--profile", "full")
     rows = {r["sample_id"]: r for r in rows_of(out)}
     assert rows["M10"]["lab_flags"] == "ph L"
     # E17 (Story 2016) read with the flag is read as E17 without it.
@@ -132,7 +132,7 @@ def _panels_of_mixed() -> list[tuple[str, dict]]:
 
 def test_batch_and_check_agree_row_for_row(tmp_path, capsys):
     out = tmp_path / "out.jsonl"
-    batch(capsys, DATA / "mixed.csv", "-o", out)
+    batch(capsys, DATA / "mixed.csv", "-o", out, "--profile", "full")
     got = {r["sample_id"]: r for r in map(json.loads, out.read_text().splitlines())}
     checked = 0
     for sid, panel in _panels_of_mixed():
@@ -179,7 +179,7 @@ def test_decimal_comma_can_be_set_by_option(tmp_path, capsys):
 
 def test_loinc_headers_are_read(tmp_path, capsys):
     out = tmp_path / "out.csv"
-    assert batch(capsys, DATA / "loinc_headers.csv", "-o", out)[0] == 0
+    assert batch(capsys, DATA / "loinc_headers.csv", "-o", out, "--profile", "full")[0] == 0
     rows = rows_of(out)
     ref = acidbase.interpret(acidbase.Panel(ph=7.40, pco2=40, hco3=24.22, na=140, cl=106.78,
                                             glucose=90, glucose_unit="mg/dL", bun=14,
@@ -194,7 +194,8 @@ def test_loinc_headers_are_read(tmp_path, capsys):
 
 def test_mapping_file_reads_a_laboratorys_headers_and_units(tmp_path, capsys):
     out = tmp_path / "out.csv"
-    rc, _ = batch(capsys, DATA / "lab_export.csv", "--map", DATA / "lab_mapping.csv", "-o", out)
+    rc, _ = batch(capsys, DATA / "lab_export.csv", "--map", DATA / "lab_mapping.csv", "-o", out,
+                  "--findings", "all")
     assert rc == 0
     rows = rows_of(out)
     assert [r["status"] for r in rows] == ["interpreted", "interpreted"]
@@ -285,7 +286,7 @@ def test_chunks_on_worker_threads_keep_rows_counts_and_report_as_one_chunk(tmp_p
 
 def test_serial_checks_on_an_unsorted_file(tmp_path, capsys):
     out = tmp_path / "out.csv"
-    assert batch(capsys, DATA / "serial_unsorted.csv", "-o", out)[0] == 0
+    assert batch(capsys, DATA / "serial_unsorted.csv", "-o", out, "--profile", "full")[0] == 0
     rows = {r["sample_id"]: r for r in rows_of(out)}
     assert rows["S03"]["serial_codes"].split(";")[:2] == ["SERIAL-BREAK", "SERIAL-DELTA-NA"]
     assert "SERIAL-DELTA-NA" in rows["S04"]["serial_codes"]
@@ -300,7 +301,7 @@ def test_serial_checks_on_an_unsorted_file(tmp_path, capsys):
 
 def test_no_serial_option_and_missing_columns_say_not_run(tmp_path, capsys):
     out = tmp_path / "out.csv"
-    rc, err = batch(capsys, DATA / "comma.csv", "-o", out)
+    rc, err = batch(capsys, DATA / "comma.csv", "-o", out, "--profile", "full")
     assert rc == 0 and "serial checks not run" in err
     assert {r["serial_status"] for r in rows_of(out)} == {"not run"}
 

@@ -23,7 +23,7 @@ import io
 import json
 import re
 import sys
-from collections.abc import Mapping, Sequence
+from collections.abc import Collection, Mapping, Sequence
 from pathlib import Path
 from typing import BinaryIO
 
@@ -336,6 +336,31 @@ def jsonl_bytes(table: pa.Table) -> bytes:
     return lines.buffers()[2][int(offsets[0]):int(offsets[-1])].to_pybytes()
 
 
+def csv_rows(table: pa.Table, decimals: Mapping[str, int], escape: Collection[str] | None,
+             plain: Collection[str], delimiter: str) -> pa.Buffer:
+    """Rows of ``table`` as CSV text without a header: the reference the compiled
+    writer (acidbase.csvtext) must match byte for byte.
+
+    ``decimals``: float columns written as fixed-point text with that many
+    decimals; ``escape``: the text columns to formula-escape (None: all), except
+    those in ``plain``, which the caller found to hold nothing to escape.
+    """
+    table = fixed_columns(table, decimals)
+    table = pa.table([escape_formula(c) if (escape is None or name in escape)
+                      and name not in plain else c
+                      for name, c in zip(table.column_names, table.columns)],
+                     schema=table.schema)
+    # Arrow's writer (pyarrow 26) writes 4 KB of NUL bytes for a column whose first
+    # chunk is empty: empty chunks are dropped first (they hold no cells).
+    table = pa.table([pa.chunked_array([a for a in c.chunks if len(a)], type=c.type)
+                      if any(len(a) == 0 for a in c.chunks) else c for c in table.columns],
+                     schema=table.schema)
+    sink = pa.BufferOutputStream()
+    pa_csv.write_csv(table, sink, pa_csv.WriteOptions(include_header=False, delimiter=delimiter,
+                                                      quoting_style="needed"))
+    return sink.getvalue()  # Arrow's buffer: no copy into bytes
+
+
 class Writer:
     """Writes output tables in one format; the schema is fixed by the first table.
 
@@ -402,15 +427,15 @@ class Writer:
         ``plain``: columns of this table the caller has read cell by cell and found
         to hold only numbers or its own vocabulary, so escaping would change nothing.
         """
-        if self.fmt == "csv":
-            table = fixed_columns(table, self.decimals)
-            cols = [escape_formula(c) if (self.escape is None or name in self.escape)
-                    and name not in plain else c
-                    for name, c in zip(table.column_names, table.columns)]
-            table = pa.table(cols, names=table.column_names)
-            sink = pa.BufferOutputStream()
-            pa_csv.write_csv(table, sink, self._csv_options(False))
-            return table.schema, sink.getvalue()  # Arrow's buffer: no copy into bytes
+        if self.fmt == "csv":  # derived values as fixed text: the schema says text
+            from ..csvtext import compiled_csv
+
+            schema = pa.schema([pa.field(f.name, pa.string()) if f.name in self.decimals
+                                and pa.types.is_floating(f.type) else f for f in table.schema])
+            text = compiled_csv(table, self.decimals, self.escape, plain, self.delimiter)
+            if text is None:
+                text = csv_rows(table, self.decimals, self.escape, plain, self.delimiter)
+            return schema, text
         if self.fmt == "jsonl":
             return table.schema, jsonl_bytes(table)
         return table.schema, table
@@ -455,5 +480,5 @@ class Writer:
                 self._own.discard()
 
 
-__all__ = ["FORMULA_STARTS", "OUTPUT_FORMATS", "Writer", "escape_danger", "escape_formula",
+__all__ = ["FORMULA_STARTS", "OUTPUT_FORMATS", "Writer", "csv_rows", "escape_danger", "escape_formula",
            "escape_text", "fixed_columns", "format_fixed", "jsonl_bytes", "output_format"]
