@@ -480,5 +480,5 @@ class Writer:
                 self._own.discard()
 
 
-__all__ = ["FORMULA_STARTS", "OUTPUT_FORMATS", "Writer", "csv_rows", "escape_danger", "escape_formula",
-           "escape_text", "fixed_columns", "format_fixed", "jsonl_bytes", "output_format"]
+__all__ = ["FORMULA_STARTS", "OUTPUT_FORMATS", "Writer", "csv_rows", "escape_danger",
+           "escape_formula", "escape_text", "fixed_columns", "format_fixed", "jsonl_bytes", "output_format"]
