@@ -2,7 +2,8 @@
 
 Exit status: 0 when a panel was read (whatever it showed), 2 when input was
 refused or the command could not run; the message goes to stderr, never a
-traceback.
+traceback.  141 when the reader of standard output closed it early (``| head``),
+quietly; 130 on Ctrl-C.  ``acidbase batch`` documents its own (docs/batch.md).
 """
 
 from __future__ import annotations
@@ -31,6 +32,8 @@ from .report import as_text
 from .results import CAUTION
 
 EXIT_OK, EXIT_REFUSED = 0, 2
+#: Standard output closed by its reader: 128 + SIGPIPE, as a shell reports it.
+EXIT_CLOSED_PIPE = 141
 
 
 def _help(text: str) -> str:
@@ -368,10 +371,30 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv: Sequence[str] | None = None) -> int:
+    """Run one command; its exit status (module docstring).  A reader that closes
+    standard output early (``acidbase demo | head``) ends the command quietly with 141."""
     parser = build_parser()
-    args = parser.parse_args(argv)
     try:
-        return int(args.func(args))
+        args = parser.parse_args(argv)
+    except BrokenPipeError:  # --help into a closed pipe
+        from .files.outputs import silence_stdout
+
+        silence_stdout()
+        return EXIT_CLOSED_PIPE
+    if sys.stdout is None and args.command in ("check", "demo", "tui"):
+        print(f"acidbase {args.command}: standard output is closed; nothing to write to",
+              file=sys.stderr)
+        return EXIT_REFUSED
+    try:
+        status = int(args.func(args))
+        if sys.stdout is not None:
+            sys.stdout.flush()  # a closed pipe shows here, not at the interpreter's exit
+        return status
+    except BrokenPipeError:
+        from .files.outputs import silence_stdout
+
+        silence_stdout()
+        return EXIT_CLOSED_PIPE
     except AcidBaseError as e:
         print(f"acidbase: {e}", file=sys.stderr)
         return EXIT_REFUSED
