@@ -240,7 +240,7 @@ def test_a_csv_with_loinc_headers_gives_those_codes_and_units_back(tmp_path, cap
     Bundle.model_validate(doc)
     got = {o["code"]["coding"][0]["code"]: o["valueQuantity"]
            for o in resources(doc, "Observation") if o.get("category")}
-    assert set(got) == {"2744-1", "2019-8", "1960-4", "2951-2", "2075-0", "2345-7"}
+    assert {"2744-1", "2019-8", "1960-4", "2951-2", "2075-0", "2345-7"} <= set(got)
     assert (got["2345-7"]["value"], got["2345-7"]["code"]) == (90.0, "mg/dL")
     assert got["1960-4"]["value"] == 24.22
 
