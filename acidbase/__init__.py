@@ -9,11 +9,12 @@ from .compensation import plane_bands
 from .errors import AcidBaseError, Problem, UnitError
 from .model import Panel, describe, describe_fields
 from .reference import Settings
+from .units import also_ordinary, convert
 from .results import CAUTION, Disorder, Finding, Interpretation, Results
 
 __all__ = [
     "CAUTION", "AcidBaseError", "Disorder", "Finding", "Interpretation", "Panel",
-    "Problem", "Results", "Settings", "UnitError", "describe", "describe_fields", "interpret", "interpret_many",
+    "Problem", "Results", "Settings", "UnitError", "also_ordinary", "convert", "describe", "describe_fields", "interpret", "interpret_many",
     "plane_bands",
 ]
 __version__ = "0.1.0"

@@ -20,11 +20,16 @@ PANELS: dict[str, tuple[str, ...]] = {
 
 
 async def key_in(pilot: Pilot, values: tuple[str, ...]) -> None:
-    """Type the required values from pH onwards, Tab between them, as a user would."""
+    """Type the required values from pH onwards, Tab past the fields between, as a user would."""
     assert len(values) == len(REQUIRED)
-    for i, value in enumerate(values):
-        if i:
+    app = pilot.app
+    for i, (name, value) in enumerate(zip(REQUIRED, values)):
+        for _ in range(40):
+            if app.focused is not None and app.focused.id == name:
+                break
             await pilot.press("tab")
+        else:  # pragma: no cover - the form lost a field
+            raise AssertionError(f"Tab never reached {name}")
         await pilot.press(*value)
     await pilot.pause()
 
