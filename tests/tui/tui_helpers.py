@@ -54,3 +54,35 @@ def processes_line(app) -> str:
 def trust_line(app) -> str:
     options = app.screen.query_one("#findings")
     return str(options.get_option("trust").prompt)
+
+
+#: Key names for the characters a panel is typed with.
+_CHAR_KEYS = {".": "full_stop", "-": "minus", "\t": "tab", "\r": "enter"}
+
+
+async def burst(pilot: Pilot, keys: list[str]) -> None:
+    """Queue every key at once, with no pause between them (as one SSH packet delivers
+    them), then wait for the app to handle them all.
+
+    ``keys`` are single characters or key names ("tab", "enter", "shift+tab").
+    """
+    from textual import events
+
+    driver = pilot.app._driver
+    for key in keys:
+        if len(key) == 1:
+            event = events.Key(_CHAR_KEYS.get(key, key), key)
+        else:
+            event = events.Key(key, {"tab": "\t", "enter": "\r"}.get(key))
+        event.set_sender(pilot.app)
+        driver.send_message(event)
+    await pilot.pause()
+    await pilot.pause()
+
+
+def typed(*parts: str) -> list[str]:
+    """``typed("7.21", "tab", "40")`` -> the keys: characters of values, names of keys."""
+    out: list[str] = []
+    for part in parts:
+        out += [part] if part in ("tab", "enter", "shift+tab") else list(part)
+    return out

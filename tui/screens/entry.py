@@ -44,8 +44,10 @@ class EntryScreen(Screen[None]):
                 id="next-field", show=False, priority=True),
         Binding("shift+tab", "previous_field", "previous field", tooltip="Previous field.",
                 id="previous-field", show=False, priority=True),
-        Binding("enter", "enter_next", "next field", tooltip="In the form: next field, like "
-                "Tab (the number pad's Enter too).", id="enter-next", show=False,
+        # The number pad's Enter arrives as Enter, as ESC O M (read as Enter) or, from some
+        # terminals and tmux, as a line feed (Ctrl+J).
+        Binding("enter,ctrl+j", "enter_next", "next field", tooltip="In the form: next "
+                "field, like Tab (the number pad's Enter too).", id="enter-next", show=False,
                 priority=True),
         Binding("f2", "unit", "unit", tooltip="Switch the focused value's unit; a filled "
                 "value asks: convert it, or read the number in the new unit.", id="unit"),

@@ -49,6 +49,7 @@ class RowTitle(Label):
 
     def mark(self, focused: bool) -> None:
         self.update(marked(self.title, focused))
+        self.set_class(focused, "-focused")
 
 
 class ValueInput(Input):
