@@ -1,9 +1,10 @@
 """The entry screen: the form on the left, the reading on the right, read as you type.
 
-Tab, Shift+Tab and Enter (the number pad's too) are priority bindings: they move
-the focus when the key is taken from the queue, before the next key is handed to a
-field, so keys typed in one burst land in the field that had the focus when each
-was typed.
+Every key of this screen is a priority binding: Tab, Shift+Tab and Enter (the
+number pad's too) move the focus, and F2 switches the focused field's unit, when the
+key is taken from the queue, before the next key is handed to a field.  So keys
+typed in one burst land in (and act on) the field that had the focus when each was
+typed.
 """
 
 from __future__ import annotations
@@ -50,34 +51,34 @@ class EntryScreen(Screen[None]):
                 "field, like Tab (the number pad's Enter too).", id="enter-next", show=False,
                 priority=True),
         Binding("f2", "unit", "unit", tooltip="Switch the focused value's unit; a filled "
-                "value asks: convert it, or read the number in the new unit.", id="unit"),
+                "value asks: convert it, or read the number in the new unit.", id="unit", priority=True),
         Binding("f3", "fold", "fold", tooltip="Fold or unfold the group of more values.",
-                id="fold", show=False),
+                id="fold", show=False, priority=True),
         Binding("f4", "plane", "plane", tooltip="Show the panel on the pCO2-HCO3- plane with "
-                "the expected band of each simple disorder.", id="plane"),
+                "the expected band of each simple disorder.", id="plane", priority=True),
         Binding("f5", "keep", "keep", tooltip="Keep a copy of this panel in the series; the "
-                "form stays filled for the next panel.", id="keep"),
+                "form stays filled for the next panel.", id="keep", priority=True),
         Binding("f6", "move(-1)", "previous", tooltip="Open the previous kept panel (its "
-                "accepted edits then update it).", id="previous", show=False),
+                "accepted edits then update it).", id="previous", show=False, priority=True),
         Binding("f7", "move(1)", "next", tooltip="Open the next kept panel.",
-                id="next", show=False),
+                id="next", show=False, priority=True),
         Binding("f8", "compare", "compare", tooltip="Compare this panel with the one before it, "
-                "side by side with the differences.", id="compare", show=False),
+                "side by side with the differences.", id="compare", show=False, priority=True),
         Binding("f9", "series", "series", tooltip="List the panels kept in this sitting.",
-                id="series"),
+                id="series", priority=True),
         Binding("ctrl+r", "reading", "reading", tooltip="Move between the form and the "
                 "reading (Enter on a finding opens its working and sources).", id="reading",
-                show=False),
+                show=False, priority=True),
         Binding("ctrl+n", "new", "new", tooltip="Start a new, empty panel (kept panels stay; "
-                "Ctrl+Z brings the cleared form back).", id="new", show=False),
+                "Ctrl+Z brings the cleared form back).", id="new", show=False, priority=True),
         Binding("ctrl+z", "undo", "undo", tooltip="Bring back the form cleared by Ctrl+N.",
-                id="undo", show=False),
+                id="undo", show=False, priority=True),
         Binding("ctrl+s", "save", "save", tooltip="Save the report for the chart (text or "
-                "Markdown), or the series as CSV.", id="save"),
+                "Markdown), or the series as CSV.", id="save", priority=True),
         Binding("ctrl+y", "copy", "copy", tooltip="Copy the report for the chart to the "
-                "clipboard (where the terminal allows it).", id="copy", show=False),
+                "clipboard (where the terminal allows it).", id="copy", show=False, priority=True),
         Binding("ctrl+o", "load", "load", tooltip="Load a series from a CSV file.", id="load",
-                show=False),
+                show=False, priority=True),
     ]
 
     #: At 100 columns and more the form widens so that long titles fit on one line.
