@@ -6,15 +6,16 @@ Public API: ``Panel``, ``interpret``, ``interpret_many``, ``Interpretation``,
 
 from .api import interpret, interpret_many
 from .compensation import plane_bands
-from .errors import AcidBaseError, Problem, UnitError
+from .errors import AcidBaseError, BatchInputError, ColumnError, Problem, UnitError
 from .model import Panel, describe, describe_fields
 from .reference import Settings
-from .units import also_ordinary, convert
 from .results import CAUTION, Disorder, Finding, Interpretation, Results
+from .units import also_ordinary, convert
 
 __all__ = [
-    "CAUTION", "AcidBaseError", "Disorder", "Finding", "Interpretation", "Panel",
-    "Problem", "Results", "Settings", "UnitError", "also_ordinary", "convert", "describe", "describe_fields", "interpret", "interpret_many",
+    "CAUTION", "AcidBaseError", "BatchInputError", "ColumnError", "Disorder", "Finding",
+    "Interpretation", "Panel", "Problem", "Results", "Settings", "UnitError", "also_ordinary",
+    "convert", "describe", "describe_fields", "interpret", "interpret_many",
     "plane_bands",
 ]
 __version__ = "0.1.0"

@@ -5,16 +5,21 @@ Both run the same code: ``interpret`` is ``interpret_many`` of a batch of one.
 
 from __future__ import annotations
 
+import dataclasses
 import os
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from concurrent.futures import ThreadPoolExecutor
 from typing import Any
 
 import numpy as np
+import pyarrow as pa
 
 from . import engine, rules
-from .fields import BY_NAME, HCO3_SOURCES, SAMPLE_TYPES
-from .model import Panel, choice_codes, column_length, screen
+from .errors import ColumnError, Problem, UnitError
+from .fields import BY_NAME, TEXT_FIELDS
+from .inputs.cells import read_choices
+from .inputs.vocab import CHOICES
+from .model import Panel, _length, screen
 from .reference import Settings
 from .results import Interpretation, Part, Results
 from .units import factor
@@ -29,49 +34,123 @@ THREADS = min(2, os.cpu_count() or 1)
 
 
 def _part(columns: Mapping[str, Any], units: Mapping[str, str] | None, settings: Settings,
-          start: int) -> Part:
-    screened = screen(columns, units)
+          start: int, decimal: str, missing: Sequence[str],
+          row_problems: Mapping[int, Sequence[Problem]] | None = None) -> Part:
+    screened = screen(columns, units, decimal=decimal, missing=missing,
+                      row_problems=row_problems)
     frame = engine.compute(screened, settings)
     return Part(start, screened, frame, rules.evaluate(frame))
 
 
+#: Column names ``interpret_many`` reads; any other name is refused.
+KNOWN_COLUMNS: tuple[str, ...] = (*BY_NAME, *(c.name for c in CHOICES))
+#: Columns carried beside a panel that the kernel does not read (accepted, ignored).
+CARRIED_COLUMNS: tuple[str, ...] = TEXT_FIELDS
+
+
+def as_columns(data: Any) -> dict[str, Any]:
+    """A mapping of columns from a mapping, a pandas or polars DataFrame, or an Arrow
+    table or record batch (Arrow columns stay Arrow: the reader takes them as they are).
+    """
+    if isinstance(data, (pa.Table, pa.RecordBatch)):
+        return {name: data.column(i) for i, name in enumerate(data.schema.names)}
+    if isinstance(data, Mapping):
+        return dict(data)
+    module = type(data).__module__.split(".")[0]
+    if module == "polars" and hasattr(data, "to_arrow"):
+        return as_columns(data.to_arrow())
+    if module == "pandas" and hasattr(data, "columns"):
+        return {str(k): data[k].to_numpy(dtype=object) if str(data[k].dtype) in (
+            "category", "string") else data[k].to_numpy() for k in data.columns}
+    raise ColumnError(f"columns must be a mapping of name -> column, a pandas or polars "
+                      f"DataFrame, or an Arrow table; got {type(data).__name__}")
+
+
+def check_columns(columns: Mapping[str, Any]) -> int:
+    """The common length of the columns; refuses unknown names and unequal lengths."""
+    names = [str(k) for k in columns]
+    unknown = [k for k in names if k not in KNOWN_COLUMNS and k not in CARRIED_COLUMNS]
+    if unknown:
+        raise ColumnError(
+            f"column(s) {', '.join(repr(k) for k in unknown)} not known; the columns read are "
+            f"{', '.join(KNOWN_COLUMNS)} (carried, not read: {', '.join(CARRIED_COLUMNS)})",
+            tuple(unknown), KNOWN_COLUMNS)
+    lengths = {k: n for k, v in columns.items() if (n := _length(v)) is not None}
+    if len(set(lengths.values())) > 1:
+        shown = ", ".join(f"{k} {n}" for k, n in lengths.items())
+        raise ColumnError(f"columns have unequal lengths ({shown}); give one value per panel "
+                          "in every column", tuple(lengths))
+    return next(iter(lengths.values()), 1)
+
+
+def check_units(units: Mapping[str, str] | None) -> None:
+    """A bad unit (or a unit for a field that has none) fails before any work."""
+    if units is None:
+        return
+    if not isinstance(units, Mapping):
+        raise ColumnError(f"units must be a mapping of field -> unit; got {type(units).__name__}")
+    for name, unit in units.items():
+        if name not in BY_NAME:
+            raise UnitError(field=str(name), unit=str(unit), accepted=())
+        factor(name, BY_NAME[name].kind, unit)
+
+
 def interpret_many(
-    columns: Mapping[str, Any],
+    columns: Any,
     units: Mapping[str, str] | None = None,
     settings: Settings | None = None,
+    *,
+    decimal: str = ".",
+    missing: Sequence[str] = (),
+    row_problems: Mapping[int, Sequence[Problem]] | None = None,
 ) -> Results:
     """Check and interpret many panels at once.
 
-    ``columns`` maps field names (see ``acidbase.fields``) to equal-length arrays;
-    numeric fields are floats with NaN for "not measured", ``sample_type`` and
-    ``hco3_source`` are strings (or their integer codes).  ``units`` maps field
-    names to UCUM unit labels (default: each field's canonical unit).  Rows that
-    fail the input checks are kept, marked refused with their reasons; nothing
-    is dropped or reordered.
+    ``columns``: a mapping of field name -> column, a pandas or polars DataFrame, or
+    an Arrow table or record batch.  Columns may hold numbers, text as laboratories
+    write it ("7.21 L", "<0.3"), None or NaN for "not measured"; every cell is read
+    by the one cell reader (``acidbase.inputs.cells``; docs/input.md), each row
+    alone.  ``sample_type`` and ``hco3_source`` hold words (or, as a numpy integer
+    array, their codes).  ``units`` maps field names to UCUM unit labels (default:
+    each field's canonical unit).  ``decimal`` is "." or ","; ``missing`` lists cell
+    texts that mean "not measured".  ``row_problems`` (row -> Problems found before
+    the cells, such as a file's specimen conflicts) refuses those rows too.
+
+    Rows that fail the input checks are kept, marked refused with their problems;
+    nothing is dropped or reordered.  Raises only ``ColumnError`` (unknown column,
+    unequal lengths, not columns at all) and ``UnitError`` (a unit the field does
+    not accept), both ``ValueError`` and ``AcidBaseError``.
     """
     settings = settings or Settings()
-    n = column_length(columns)
-    for name, unit in (units or {}).items():  # a bad unit fails before any work
-        if name in BY_NAME:
-            factor(name, BY_NAME[name].kind, unit)
+    if decimal not in (".", ","):
+        raise ColumnError(f"decimal must be '.' or ','; got {decimal!r}")
+    if isinstance(missing, str) or not all(isinstance(m, str) for m in missing):
+        raise ColumnError("missing must be a list of cell texts")
+    columns = as_columns(columns)
+    n = check_columns(columns)
+    check_units(units)
+    columns = {k: v for k, v in columns.items() if k in KNOWN_COLUMNS}
     if n <= SLICE_ROWS:
-        return Results([_part(columns, units, settings, 0)], settings)
-    arrays = {k: (np.asarray(v) if v is not None and np.ndim(v) else v) for k, v in columns.items()}
-    # Text choices are encoded once for the whole column, here: per slice, on the
-    # threads, their Python-level look-ups would hold the GIL.  A column with bad cells
-    # is left as text, so each slice can name the cell in its refusal.
-    for name, allowed in (("sample_type", SAMPLE_TYPES), ("hco3_source", HCO3_SOURCES)):
-        col = arrays.get(name)
-        if isinstance(col, np.ndarray) and col.dtype.kind in "OUS":
-            codes, bad = choice_codes(col, n, allowed, "unknown")
-            if not bad.any():
-                arrays[name] = codes
+        return Results([_part(columns, units, settings, 0, decimal, missing, row_problems)],
+                       settings)
+    arrays = {k: _sliceable(v, n) for k, v in columns.items()}
+    # Choice columns are encoded once for the whole column, here: per slice, on the
+    # threads, their Python-level look-ups would hold the GIL.  A column with refused
+    # cells is left as it is, so each slice can name the cell in its refusal.
+    for choice in CHOICES:
+        col = arrays.get(choice.name)
+        if col is not None and not (isinstance(col, np.ndarray) and col.dtype.kind in "iu"):
+            read = read_choices(col, choice, missing, n=n)
+            if not read.bad.any():
+                arrays[choice.name] = read.codes
     starts = range(0, n, SLICE_ROWS)
 
     def run(start: int) -> Part:
         stop = start + SLICE_ROWS
-        cols = {k: (v[start:stop] if isinstance(v, np.ndarray) else v) for k, v in arrays.items()}
-        return _part(cols, units, settings, start)
+        cols = {k: (v[start:stop] if v is not None and not np.isscalar(v) else v)
+                for k, v in arrays.items()}
+        mine = {i - start: p for i, p in (row_problems or {}).items() if start <= i < stop}
+        return _part(cols, units, settings, start, decimal, missing, mine)
 
     if THREADS > 1:
         with ThreadPoolExecutor(THREADS) as pool:
@@ -81,7 +160,18 @@ def interpret_many(
     return Results(parts, settings)
 
 
+def _sliceable(value: Any, n: int) -> Any:
+    """A column that slices by rows (Arrow and numpy as they are; lists as object arrays)."""
+    if value is None or isinstance(value, (str, bytes, int, float, np.generic)):
+        return value
+    if isinstance(value, (pa.Array, pa.ChunkedArray, np.ndarray)):
+        return value
+    return np.asarray(value, dtype=object)
+
+
 def interpret(panel: Panel, settings: Settings | None = None) -> Interpretation:
     """Check and interpret one validated panel."""
     columns, units = panel.columns()
-    return interpret_many(columns, units, settings).interpretation(0)
+    it = interpret_many(columns, units, settings).interpretation(0)
+    # The panel was read from its cells already: its marks are the panel's own.
+    return dataclasses.replace(it, qualifiers=panel.qualifiers, lab_flags=panel.lab_flags)

@@ -16,12 +16,12 @@ laboratory flag after a value (``7.21 L``) is read off, recorded in
 
 from __future__ import annotations
 
-import argparse
+from typing import TYPE_CHECKING
+import dataclasses
 import ctypes
 import html
 import json
 import os
-import re
 import shutil
 import sys
 import tempfile
@@ -36,19 +36,24 @@ import pyarrow.compute as pc
 
 from . import fileio, serial
 from . import units as _units
-from .api import interpret_many
 from .engine import SLOTS
-from .errors import AcidBaseError, Problem
-from .fields import BY_NAME, HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
+from .errors import AcidBaseError
+from .fields import BY_NAME
 from .fileio import BatchInputError, Layout, Source
+from .files.check import (EXTRA_COLUMNS, ROW_COLUMN, check_chunk, output_names,  # noqa: F401
+                          review_mask, review_rules)
 from .results import CAUTION, DECIMALS, DERIVED
+
+if TYPE_CHECKING:  # the command line (argparse) lives in acidbase.cli only
+    import argparse
 
 EXIT_OK, EXIT_CANNOT_RUN = 0, 2
 
-#: Columns the batch adds around the kernel's own (``Results.table``).
-ROW_COLUMN = "row"
-EXTRA_COLUMNS: tuple[str, ...] = ("needs_review", "qualifiers", "lab_flags",
-                                  *serial.COLUMNS, "caution")
+# Columns the batch adds around the kernel's own, and one chunk's check: acidbase.files.check.
+_process = check_chunk
+_review_rules = review_rules
+_review_mask = review_mask
+_output_names = output_names
 
 #: Worker threads that check and format chunks (the machine's two cores).
 WORKERS = max(1, min(2, os.cpu_count() or 1))
@@ -58,60 +63,6 @@ _DELIMS = {"tab": "\t", "\\t": "\t", "comma": ",", "semicolon": ";", "pipe": "|"
 
 # ---------------------------------------------------------------------------
 # Command line
-
-
-def configure_parser(p: argparse.ArgumentParser) -> None:
-    """Options of ``acidbase batch``."""
-    p.description = (
-        "Check every panel in a file (CSV, JSON Lines or Parquet) and write one output row "
-        "per input row, in input order, with status, reason, findings and serial checks. "
-        + CAUTION)
-    p.add_argument("input", metavar="INPUT",
-                   help="panel file (.csv, .jsonl, .parquet), or - for standard input")
-    p.add_argument("-o", "--output", metavar="OUTPUT",
-                   help="output file (.csv, .jsonl, .parquet); default: CSV on stdout")
-    g = p.add_argument_group("reading")
-    g.add_argument("--format", choices=fileio.FORMATS, help="input format (default: from the name)")
-    g.add_argument("--delimiter", metavar="CHAR",
-                   help="CSV delimiter: , ; | or tab (default: detected)")
-    g.add_argument("--decimal", choices=(".", ","), help="decimal mark (default: detected)")
-    g.add_argument("--encoding", default="utf-8", help="text encoding (default utf-8, BOM or not)")
-    g.add_argument("--map", metavar="FILE", dest="mapping",
-                   help="mapping file: CSV with columns header,field[,unit] for a laboratory's "
-                        "own export headers")
-    g.add_argument("--unit", action="append", default=[], metavar="FIELD=UNIT",
-                   help="unit of a column, e.g. pco2=kPa (repeatable; default: the field's "
-                        "canonical unit)")
-    g.add_argument("--missing", action="append", default=[], metavar="TOKEN",
-                   help="a cell text that means 'not measured', e.g. --missing NA (repeatable; "
-                        "only empty cells by default)")
-    g.add_argument("--strict-columns", action="store_true",
-                   help="stop when a column is not recognised (default: pass it through)")
-    g.add_argument("--chunk-rows", type=int, default=1 << 14, metavar="N",
-                   help="rows per chunk (memory vs speed; default 16384)")
-    s = p.add_argument_group("serial checks (need patient_id and collected_at)")
-    s.add_argument("--window-hours", type=float, default=serial.DEFAULT_WINDOW_HOURS,
-                   metavar="H", help="compare panels of a patient at most H hours apart "
-                                     f"(default {serial.DEFAULT_WINDOW_HOURS:g})")
-    s.add_argument("--delta", action="append", default=[], metavar="FIELD=LIMIT",
-                   help="the laboratory's delta limit for a field, canonical unit, or 'off' "
-                        "(repeatable)")
-    s.add_argument("--no-serial", action="store_true", help="skip the serial checks")
-    o = p.add_argument_group("output")
-    o.add_argument("--output-format", choices=fileio.FORMATS, help="default: from the name")
-    o.add_argument("--output-delimiter", default=",", metavar="CHAR",
-                   help="CSV output delimiter (default ,)")
-    o.add_argument("--summary", metavar="FILE",
-                   help="write the summary here (.json for JSON) instead of stderr")
-    o.add_argument("--report", metavar="FILE",
-                   help="summary report with flagged rows and the pCO2-HCO3 plane (.md or .html)")
-    o.add_argument("--derived", default="all", metavar="all|none|NAME,...",
-                   help="derived-value columns to write (default all; formatting numbers is "
-                        "most of the time of writing CSV)")
-    o.add_argument("--quiet", action="store_true", help="no progress bar")
-    from .cli import add_settings_options
-
-    add_settings_options(p)
 
 
 def _pairs(items: list[str], what: str) -> dict[str, str]:
@@ -200,120 +151,6 @@ class Progress:
 # One chunk
 
 
-@dataclass
-class ChunkValues:
-    """A chunk read into the kernel's columns, with what the reading found."""
-
-    columns: dict[str, np.ndarray]
-    parsed: dict[str, fileio.ParsedColumn]
-    problems: dict[int, list[str]]
-    """Row (in chunk) -> reading problems that refuse it."""
-    skip_missing: dict[int, set[str]]
-    """Row -> fields whose engine "missing" message the reading problem replaces."""
-    plain: set[str] = field(default_factory=set)
-    """Fields whose every cell is a bare number or an allowed word, as written."""
-
-
-def _cells_at(text: pa.Array, mask: np.ndarray) -> list[tuple[int, str | None]]:
-    """(row, cell) for the rows of ``mask``: only those cells become Python text."""
-    rows = np.flatnonzero(mask)
-    if rows.size == 0:
-        return []
-    return list(zip(rows.tolist(), text.take(pa.array(rows)).to_pylist()))
-
-
-def read_values(table: pa.Table, layout: Layout, decimal: str) -> ChunkValues:
-    """Parse one chunk's numeric and choice columns; collect the problems that refuse rows."""
-    col_of = layout.column_of
-    columns: dict[str, np.ndarray] = {}
-    parsed: dict[str, fileio.ParsedColumn] = {}
-    problems: dict[int, list[str]] = {}
-    skip: dict[int, set[str]] = {}
-    plain_fields: set[str] = set()
-    specs = [spec for spec in NUMERIC if spec.name in col_of]
-    many = fileio.parse_numeric_many([table[col_of[spec.name]] for spec in specs], decimal)
-
-    def refuse(i: int, name: str, message: str) -> None:
-        problems.setdefault(i, []).append(message)
-        skip.setdefault(i, set()).add(name)
-
-    for spec, p in zip(specs, many):
-        parsed[spec.name] = p
-        columns[spec.name] = p.values
-        unit = layout.units.get(spec.name, spec.unit)
-        for i, cell in _cells_at(p.text, p.bad):
-            refuse(i, spec.name,
-                   f"{spec.title} ({spec.name}) {cell!r} is not a number (expected a number "
-                   f"in {unit}, optionally with < > <= >= before it or a flag "
-                   f"{' '.join(fileio.LAB_FLAGS)} after it)")
-        if spec.required and p.comparator is not None:
-            f = _units.factor(spec.name, spec.kind, unit)
-            lo, hi = spec.accepted
-            for i, cell in _cells_at(p.text, p.censored):
-                refuse(i, spec.name,
-                       f"{spec.title} ({spec.name}) {cell.strip()!r} {unit} is a censored "
-                       f"value (beyond the reporting limit), but a required field needs an exact "
-                       f"number (accepted range {lo / f:.4g} to {hi / f:.4g} {unit})")
-    for name, allowed, title in (("sample_type", SAMPLE_TYPES, "Sample type"),
-                                 ("hco3_source", HCO3_SOURCES, "HCO3- source")):
-        h = col_of.get(name)
-        if h is None:
-            continue
-        codes, bad, text, plain = fileio.parse_choice(table[h], allowed, "unknown")
-        columns[name] = codes
-        if plain:
-            plain_fields.add(name)
-        for i, cell in _cells_at(text, bad):
-            # The kernel's own message for a choice it does not know.
-            problems.setdefault(i, []).append(str(Problem(
-                name, title, cell, "", kind=f"not one of {', '.join(allowed)}")))
-    plain_fields |= {name for name, p in parsed.items() if p.plain}
-    return ChunkValues(columns, parsed, problems, skip, plain_fields)
-
-
-def _joined(pieces: list[pa.Array], n: int) -> pa.Array:
-    if not pieces:
-        return pa.array(np.full(n, "", dtype=object), type=pa.string())
-    if len(pieces) == 1:
-        return pc.fill_null(pieces[0], "")
-    # null_handling="skip" drops all-null rows in pyarrow 26 (the output is shorter
-    # than the input), so nulls become "" and the empty separators are removed.
-    out = pc.binary_join_element_wise(*pieces, "; ", null_handling="replace",
-                                      null_replacement="")
-    out = pc.replace_substring_regex(out, r"(; ){2,}", "; ")
-    return pc.replace_substring_regex(out, r"^(; )+|(; )+$", "")
-
-
-def qualifier_columns(cv: ChunkValues, n: int) -> tuple[pa.Array, pa.Array]:
-    """``qualifiers`` ("lactate <0.3") and ``lab_flags`` ("ph L") per row."""
-    quals, flags = [], []
-    for name, p in cv.parsed.items():
-        if p.comparator is not None:
-            trimmed = pc.utf8_trim_whitespace(p.text)
-            quals.append(pc.if_else(pc.is_valid(p.comparator),
-                                    pc.binary_join_element_wise(name, trimmed, " "),
-                                    pa.scalar(None, pa.string())))
-        if p.flag is not None:
-            flags.append(pc.binary_join_element_wise(name, p.flag, " "))
-    return _joined(quals, n), _joined(flags, n)
-
-
-def _missing_text(name: str) -> str:
-    spec = BY_NAME[name]
-    return str(Problem(spec.name, spec.title, None, spec.unit, kind="missing"))
-
-
-def merged_reasons(engine_reasons: np.ndarray, cv: ChunkValues) -> dict[int, str]:
-    """Reasons of the rows refused while reading: reading problems first, then the
-    kernel's own, less its "missing" message for a field the reading already named."""
-    out: dict[int, str] = {}
-    for i, mine in cv.problems.items():
-        drop = {_missing_text(f) for f in cv.skip_missing.get(i, ())}
-        theirs = [r for r in str(engine_reasons[i] or "").split("; ") if r and r not in drop]
-        out[i] = "; ".join(mine + theirs)
-    return out
-
-
 # ---------------------------------------------------------------------------
 # Summary and report
 
@@ -362,9 +199,6 @@ def _counts(arr: pa.Array, split: str | None = None) -> Counter:
                                          vc.field("counts").to_pylist()) if v})
 
 
-_NUMBERS = r"\b\d+(?:\.\d+)?\b"
-
-
 def _nonempty(arr: pa.Array) -> pa.Array:
     return arr.filter(pc.not_equal(arr, ""))
 
@@ -372,7 +206,7 @@ def _nonempty(arr: pa.Array) -> pa.Array:
 def tally_chunk(t: Tally, out: dict[str, pa.Array], pco2: np.ndarray, hco3: np.ndarray,
                 refused: np.ndarray, review: np.ndarray, start: int,
                 ids: dict[str, pa.Array | None], fired: np.ndarray,
-                listed: int = FLAGGED_LISTED) -> None:
+                listed: int = FLAGGED_LISTED, marks: dict[str, Counter] | None = None) -> None:
     """Count one chunk into ``t``; list at most ``listed`` more flagged rows."""
     n = len(refused)
     t.rows += n
@@ -388,17 +222,14 @@ def tally_chunk(t: Tally, out: dict[str, pa.Array], pco2: np.ndarray, hco3: np.n
 
     counts = np.count_nonzero(fired & ~refused if refused.any() else fired, axis=1)
     t.findings.update({r.code: int(c) for r, c in zip(RULES, counts.tolist()) if c})
-    t.lab_flags.update(_counts(_nonempty(out["lab_flags"]), "; "))
-    quals = _counts(_nonempty(out["qualifiers"]), "; ")
-    t.qualifiers.update(Counter({re.sub(r"([<>]=?)\s*[\d.,]+", r"\1#", k): v
-                                 for k, v in quals.items()}))
+    marks = marks or {}
+    # Counted from the reader's structured marks and problems (check_chunk's meta),
+    # never by splitting or matching the text of the output columns.
+    t.lab_flags.update(marks.get("lab_flags", Counter()))
+    t.qualifiers.update(marks.get("qualifiers", Counter()))
     t.serial_status.update(_counts(out["serial_status"]))
     t.serial_codes.update(_counts(_nonempty(out["serial_codes"]), ";"))
-    if refused.any():
-        parts = pc.list_flatten(pc.split_pattern(out["reason"].filter(pa.array(refused)), "; "))
-        parts = pc.replace_substring_regex(parts, r"'[^']*'", "'...'")
-        parts = pc.replace_substring_regex(parts, _NUMBERS, "#")
-        t.reasons.update(_counts(parts))
+    t.reasons.update(marks.get("reasons", Counter()))
     ok = ~refused & np.isfinite(pco2) & np.isfinite(hco3)
     if ok.any():
         h, _, _ = np.histogram2d(hco3[ok], pco2[ok], bins=(PLANE_ROWS, PLANE_COLS),
@@ -611,24 +442,11 @@ def report_html(t: Tally, notes: list[str], source: str) -> str:
 
 
 def _settings(args: argparse.Namespace):
-    from .cli import settings_from_args
+    """The laboratory settings the command line built (``acidbase.cli`` sets them)."""
+    from .reference import Settings
 
-    return settings_from_args(args)
-
-
-def _review_rules() -> list[int]:
-    """Indices of the rules that put a row up for review: the trust findings above
-    "info" (the panel itself is in doubt)."""
-    from .rules import RULES
-
-    return [j for j, r in enumerate(RULES) if r.section == "trust" and r.severity != "info"]
-
-
-def _review_mask(fired: np.ndarray, refused: np.ndarray) -> np.ndarray:
-    """Refused, or a trust finding above "info" (the serial flags are added later)."""
-    idx = _review_rules()
-    trust = fired[idx].any(axis=0) if idx else np.zeros(len(refused), dtype=bool)
-    return refused | trust
+    make = getattr(args, "make_settings", None)
+    return make() if make is not None else Settings()
 
 
 def escaped_columns(headers: tuple[str, ...]) -> list[str]:
@@ -637,12 +455,6 @@ def escaped_columns(headers: tuple[str, ...]) -> list[str]:
     title, but the escaping does not rely on it)."""
     return [f"{h} (input)" for h in headers] + list(headers) + [
         "reason", "serial_detail", "qualifiers", "lab_flags"]
-
-
-def _output_names(headers: tuple[str, ...], engine_cols: list[str]) -> dict[str, str]:
-    """Input header -> output name (renamed only when it collides with ours)."""
-    ours = {ROW_COLUMN, *engine_cols, *EXTRA_COLUMNS}
-    return {h: (f"{h} (input)" if h in ours else h) for h in headers}
 
 
 def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.SerialChecker,
@@ -657,7 +469,8 @@ def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.Seri
     rows = 0
     for table in src.chunks(wanted):
         values = {}
-        many = fileio.parse_numeric_many([table[col_of[f]] for f in fields_used], decimal)
+        many = fileio.parse_numeric_many([table[col_of[f]] for f in fields_used], decimal,
+                                         layout.missing)
         for f, p in zip(fields_used, many):
             spec = BY_NAME[f]
             unit = layout.units.get(f, spec.unit)
@@ -721,6 +534,8 @@ def _run(args: argparse.Namespace, label: str) -> int:
                              args.chunk_rows)
     mapping = fileio.read_mapping(args.mapping) if args.mapping else None
     layout = fileio.map_headers(src.headers, mapping, units, args.strict_columns)
+    layout = dataclasses.replace(layout, missing=src.missing, notes=src.notes + layout.notes,
+                                 duplicates=src.duplicates)
     if args.decimal:
         decimal = args.decimal
     elif src.format == "csv":
@@ -771,7 +586,7 @@ def _run(args: argparse.Namespace, label: str) -> int:
                for k in ("sample_id", "patient_id")}
         part = Tally()
         tally_chunk(part, out, meta["pco2"], meta["hco3"], meta["refused"], meta["review"],
-                    start, ids, meta["fired"], listed)
+                    start, ids, meta["fired"], listed, meta["counts"])
         plain = frozenset(names[h] for h in meta["plain"])
         return writer.encode(pa.table(cols), plain), part, names, table.num_rows
 
@@ -829,101 +644,6 @@ def _run(args: argparse.Namespace, label: str) -> int:
     return EXIT_OK
 
 
-def _process(table: pa.Table, layout: Layout, decimal: str, settings,
-             checker: serial.SerialChecker | None, start: int,
-             keep: tuple[str, ...] = DERIVED) -> tuple[dict[str, pa.Array], dict]:
-    n = table.num_rows
-    cv = read_values(table, layout, decimal)
-    units = {k: v for k, v in layout.units.items() if v != BY_NAME[k].unit}
-    res = interpret_many(cv.columns, units or None, settings)
-    tab = res.encoded()  # text columns as (indices, labels): no cell-by-cell conversion
-    engine_refused = np.asarray(res.refused, dtype=bool)
-    refused = engine_refused.copy()
-    mine = merged_reasons(tab["reason"], cv)
-    if mine:
-        refused[np.fromiter(mine, dtype=np.int64)] = True
-    # Rows the reading refused but the kernel read (a bad optional value): no reading.
-    blank = refused & ~engine_refused
-    blanking = bool(blank.any())
-    blank_rows = np.flatnonzero(blank)
-    fired = res.fired
-    del res  # the kernel's frame (about 150 columns) is not needed past here
-    review = _review_mask(fired, refused)
-    out: dict[str, pa.Array] = {}
-    engine_cols = [k for k in tab if not (k in DERIVED and k not in keep)]
-    for key in engine_cols:
-        col = tab.pop(key)  # each numpy column is let go once it is an Arrow one
-        if key in DERIVED and key not in keep:
-            continue
-        if key == "status":  # two values: built from the mask, not converted cell by cell
-            arr = pc.if_else(pa.array(refused), "refused", "interpreted")
-        elif key == "reason":
-            reasons = col.copy() if mine else col
-            for i, text in mine.items():
-                reasons[i] = text
-            arr = _sparse_text(reasons, refused)
-        elif isinstance(col, tuple):  # blanked rows read "" (text), as refused ones do
-            indices, labels = col
-            if blanking:
-                labels = labels if "" in labels else [*labels, ""]
-                indices = indices.copy()
-                indices[blank_rows] = labels.index("")
-            arr = pa.DictionaryArray.from_arrays(
-                pa.array(indices, type=pa.int32()), pa.array(labels, type=pa.string())
-            ).cast(pa.string())
-        elif col.dtype == object:
-            arr = pa.array(np.where(blank, "", col) if blanking else col, type=pa.string())
-        elif col.dtype.kind == "f":  # blanked rows are empty (null)
-            if blanking:
-                col = col.copy()
-                col[blank_rows] = np.nan
-            arr = pa.array(col, mask=np.isnan(col))
-        else:
-            arr = pa.array(col, mask=blank if blanking else None)
-        out[key] = arr
-    quals, flags = qualifier_columns(cv, n)
-    if checker is not None:
-        scols = checker.arrow_columns(start, start + n)
-        review = review | (checker.status[start:start + n] == serial.FLAGGED)
-    else:
-        scols = {"serial_status": pa.repeat(pa.scalar("not run"), n),
-                 "serial_codes": pa.repeat(pa.scalar(""), n),
-                 "serial_detail": pa.repeat(pa.scalar(""), n)}
-    out["needs_review"] = pc.if_else(pa.array(review), "yes", "no")
-    out["qualifiers"] = quals
-    out["lab_flags"] = flags
-    for k in serial.COLUMNS:
-        out[k] = scols[k]
-    first = CAUTION if start == 0 else None
-    out["caution"] = pa.concat_arrays([pa.array([first], type=pa.string()),
-                                       pa.nulls(n - 1, pa.string())]) if n else \
-        pa.array([], type=pa.string())
-    # Input columns read in full as numbers (or as allowed words) carry nothing a
-    # spreadsheet would run: their escaping is skipped (it would change no cell).
-    col_of = layout.column_of
-    plain = frozenset(col_of[f] for f in cv.plain)
-    meta = {"engine_cols": engine_cols,
-            "plain": plain, "refused": refused, "review": review, "fired": fired,
-            "pco2": _canonical(cv, layout, "pco2"), "hco3": _canonical(cv, layout, "hco3")}
-    return out, meta
-
-
-def _canonical(cv: ChunkValues, layout: Layout, name: str) -> np.ndarray:
-    spec = BY_NAME[name]
-    return cv.columns[name] * _units.factor(name, spec.kind, layout.units.get(name, spec.unit))
-
-
-def _sparse_text(col: np.ndarray, where: np.ndarray) -> pa.Array:
-    """Text that is "" except on the rows of ``where`` (converted only there)."""
-    idx = np.flatnonzero(where)
-    if idx.size == 0:
-        return pa.repeat(pa.scalar("", pa.string()), len(col))
-    pos = np.full(len(col), -1, dtype=np.int64)
-    pos[idx] = np.arange(idx.size)
-    values = pa.array(col[idx], type=pa.string())
-    return pc.fill_null(pc.take(values, pa.array(pos, mask=pos < 0)), "")
-
-
 STDIN_LABEL = "standard input"
 
 
@@ -964,4 +684,4 @@ def run(args: argparse.Namespace) -> int:
     return EXIT_CANNOT_RUN
 
 
-__all__ = ["configure_parser", "run", "read_values", "merged_reasons", "plane_picture"]
+__all__ = ["run", "plane_picture"]

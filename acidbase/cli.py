@@ -17,7 +17,10 @@ from pydantic import ValidationError
 
 from .api import interpret, interpret_many
 from .errors import AcidBaseError
-from .fields import HCO3_SOURCES, NUMERIC, SAMPLE_TYPES, TEXT_FIELDS
+from . import serial as serial_defaults
+from .files.formats import FORMATS
+from .fields import NUMERIC, TEXT_FIELDS
+from .inputs.vocab import CHOICES
 from .model import Panel, describe
 from .reference import Settings
 from .report import as_text
@@ -43,10 +46,14 @@ def add_panel_options(p: argparse.ArgumentParser) -> None:
             u.add_argument(f"--{spec.name}-unit", dest=f"{spec.name}_unit", metavar="UNIT",
                            help=_help(f"unit of {spec.title}: {', '.join(spec.units)}"))
     c = p.add_argument_group("sample")
-    c.add_argument("--sample-type", choices=SAMPLE_TYPES, help="default: unknown")
-    c.add_argument("--hco3-source", choices=HCO3_SOURCES,
-                   help="analyser: HCO3- calculated by the blood-gas analyser; chemistry: "
-                        "measured total CO2 (default: unknown)")
+    # No argparse choices=: the words are read by the library's one choice reader,
+    # so "Arterial" reads here as it does in a file.
+    for choice in CHOICES:
+        c.add_argument(f"--{choice.name.replace('_', '-')}", dest=choice.name, metavar="WORD",
+                       help=_help(f"{choice.help} ({', '.join(choice.words)}; default "
+                                  f"{choice.default})"))
+    c.add_argument("--decimal", choices=(".", ","), default=".",
+                   help="decimal mark of the values given (default .)")
     for name in TEXT_FIELDS:
         c.add_argument(f"--{name.replace('_', '-')}", dest=name, metavar="TEXT")
     add_settings_options(p)
@@ -63,6 +70,58 @@ def add_settings_options(p: argparse.ArgumentParser) -> None:
                    help="albumin to correct the gap to, g/L (default 44)")
 
 
+def configure_batch_parser(p: argparse.ArgumentParser) -> None:
+    """Options of ``acidbase batch``."""
+    p.description = (
+        "Check every panel in a file (CSV, JSON Lines or Parquet) and write one output row "
+        "per input row, in input order, with status, reason, findings and serial checks. "
+        + CAUTION)
+    p.add_argument("input", metavar="INPUT",
+                   help="panel file (.csv, .jsonl, .parquet), or - for standard input")
+    p.add_argument("-o", "--output", metavar="OUTPUT",
+                   help="output file (.csv, .jsonl, .parquet); default: CSV on stdout")
+    g = p.add_argument_group("reading")
+    g.add_argument("--format", choices=FORMATS, help="input format (default: from the name)")
+    g.add_argument("--delimiter", metavar="CHAR",
+                   help="CSV delimiter: , ; | or tab (default: detected)")
+    g.add_argument("--decimal", choices=(".", ","), help="decimal mark (default: detected)")
+    g.add_argument("--encoding", default="utf-8", help="text encoding (default utf-8, BOM or not)")
+    g.add_argument("--map", metavar="FILE", dest="mapping",
+                   help="mapping file: CSV with columns header,field[,unit] for a laboratory's "
+                        "own export headers")
+    g.add_argument("--unit", action="append", default=[], metavar="FIELD=UNIT",
+                   help="unit of a column, e.g. pco2=kPa (repeatable; default: the field's "
+                        "canonical unit)")
+    g.add_argument("--missing", action="append", default=[], metavar="TOKEN",
+                   help="a cell text that means 'not measured', e.g. --missing NA (repeatable; "
+                        "only empty cells by default)")
+    g.add_argument("--strict-columns", action="store_true",
+                   help="stop when a column is not recognised (default: pass it through)")
+    g.add_argument("--chunk-rows", type=int, default=1 << 14, metavar="N",
+                   help="rows per chunk (memory vs speed; default 16384)")
+    s = p.add_argument_group("serial checks (need patient_id and collected_at)")
+    s.add_argument("--window-hours", type=float, default=serial_defaults.DEFAULT_WINDOW_HOURS,
+                   metavar="H", help="compare panels of a patient at most H hours apart "
+                                     f"(default {serial_defaults.DEFAULT_WINDOW_HOURS:g})")
+    s.add_argument("--delta", action="append", default=[], metavar="FIELD=LIMIT",
+                   help="the laboratory's delta limit for a field, canonical unit, or 'off' "
+                        "(repeatable)")
+    s.add_argument("--no-serial", action="store_true", help="skip the serial checks")
+    o = p.add_argument_group("output")
+    o.add_argument("--output-format", choices=FORMATS, help="default: from the name")
+    o.add_argument("--output-delimiter", default=",", metavar="CHAR",
+                   help="CSV output delimiter (default ,)")
+    o.add_argument("--summary", metavar="FILE",
+                   help="write the summary here (.json for JSON) instead of stderr")
+    o.add_argument("--report", metavar="FILE",
+                   help="summary report with flagged rows and the pCO2-HCO3 plane (.md or .html)")
+    o.add_argument("--derived", default="all", metavar="all|none|NAME,...",
+                   help="derived-value columns to write (default all; formatting numbers is "
+                        "most of the time of writing CSV)")
+    o.add_argument("--quiet", action="store_true", help="no progress bar")
+    add_settings_options(p)
+
+
 def panel_from_args(args: argparse.Namespace) -> dict[str, Any]:
     data: dict[str, Any] = {}
     for spec in NUMERIC:
@@ -72,7 +131,7 @@ def panel_from_args(args: argparse.Namespace) -> dict[str, Any]:
         unit = getattr(args, f"{spec.name}_unit", None)
         if unit is not None:
             data[f"{spec.name}_unit"] = unit
-    for name in ("sample_type", "hco3_source", *TEXT_FIELDS):
+    for name in (*(c.name for c in CHOICES), *TEXT_FIELDS):
         value = getattr(args, name, None)
         if value is not None:
             data[name] = value
@@ -103,7 +162,7 @@ def _refuse(lines: Sequence[str]) -> int:
 
 def cmd_check(args: argparse.Namespace) -> int:
     try:
-        panel = Panel.model_validate(panel_from_args(args))
+        panel = Panel.model_validate(panel_from_args(args), context={"decimal": args.decimal})
     except ValidationError as e:
         return _refuse(describe(e))
     settings = settings_from_args(args)
@@ -161,6 +220,8 @@ def cmd_demo(args: argparse.Namespace) -> int:
 def cmd_batch(args: argparse.Namespace) -> int:
     from . import batch
 
+    # Built inside the run, so a bad setting is reported as the run's own failure.
+    args.make_settings = lambda: settings_from_args(args)
     return batch.run(args)
 
 
@@ -169,7 +230,7 @@ def cmd_tui(args: argparse.Namespace) -> int:
     panel = None
     if data:
         try:
-            panel = Panel.model_validate(data)
+            panel = Panel.model_validate(data, context={"decimal": args.decimal})
         except ValidationError as e:
             return _refuse(describe(e))
     from tui.app import make_app
@@ -193,12 +254,7 @@ def build_parser() -> argparse.ArgumentParser:
     demo.add_argument("--json", action="store_true")
     demo.set_defaults(func=cmd_demo)
     batch = sub.add_parser("batch", help="check a file of panels")
-    try:
-        from . import batch as batch_module
-
-        batch_module.configure_parser(batch)
-    except ImportError:  # pragma: no cover - the batch module ships with the package
-        pass
+    configure_batch_parser(batch)
     batch.set_defaults(func=cmd_batch)
     tui = sub.add_parser("tui", help="the keyboard-only terminal app")
     add_panel_options(tui)

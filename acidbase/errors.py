@@ -7,6 +7,7 @@ surface (CLI, terminal app, batch reasons) shows the same sentence.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import ClassVar
 
 
 class AcidBaseError(Exception):
@@ -28,35 +29,100 @@ class UnitError(ValueError, AcidBaseError):
         )
 
 
+class BatchInputError(ValueError, AcidBaseError):
+    """A file (or a run's options) that cannot be read as panels at all: the run cannot start."""
+
+    def __init__(self, message: str) -> None:
+        super().__init__(message)
+        self.message = message
+
+    def __str__(self) -> str:
+        return self.message
+
+
 @dataclass
 class Problem:
-    """One refused input value, with everything needed to explain it."""
+    """One refused input value, with everything needed to explain it.
+
+    A refusal travels as this object from the reader to the surface that prints
+    it; only ``__str__`` makes a sentence, and ``code`` (field and kind) is what
+    summaries count.  ``kind`` is one of ``KINDS``.
+    """
 
     field: str
     """Field name as used by the API, the CLI and file columns (``pco2``)."""
     title: str
     """The trade's name for the field (``pCO2``)."""
     value: object
+    """The value as given (text as read, or a number)."""
     unit: str
     allowed: tuple[float, float] | None = None
+    """Accepted range in ``unit``, where one applies."""
     hint: str = ""
-    kind: str = "out_of_range"
+    kind: str = "outside_accepted_range"
+    choices: tuple[str, ...] = ()
+    """The words allowed, for a choice."""
+
+    KINDS: ClassVar[dict[str, str]] = {
+        "outside_accepted_range": "outside the accepted range",
+        "not_a_number": "not a number",
+        "missing": "required and not given",
+        "censored": "censored value in a required field",
+        "not_a_choice": "not one of the allowed words",
+        "urea_and_bun": "urea and urea nitrogen both given",
+        "specimen_conflict": "specimens disagree (LOINC-coded columns or sample type)",
+        "duplicate_key": "a key given twice in one record",
+    }
+
+    @property
+    def code(self) -> str:
+        """A stable key for counting: field and kind (``pco2:outside_accepted_range``)."""
+        return f"{self.field}:{self.kind}"
+
+    @property
+    def label(self) -> str:
+        """The code in words (``pCO2 (pco2): outside the accepted range``)."""
+        return f"{self.title} ({self.field}): {self.KINDS.get(self.kind, self.kind)}"
 
     def __str__(self) -> str:
-        if self.kind == "out_of_range" and self.allowed is not None:
+        head = f"{self.title} ({self.field})"
+        unit = f" {self.unit}" if self.unit else ""
+        if self.kind == "outside_accepted_range" and self.allowed is not None:
             lo, hi = self.allowed
-            text = (
-                f"{self.title} ({self.field}) {_num(self.value)} {self.unit} is outside the "
-                f"accepted range {_num(lo)} to {_num(hi)} {self.unit}"
-            )
+            text = (f"{head} {_num(self.value)}{unit} is outside the accepted range "
+                    f"{_num(lo)} to {_num(hi)}{unit}")
         elif self.kind == "not_a_number":
-            text = f"{self.title} ({self.field}) {self.value!r} is not a finite number"
+            text = f"{head} {self.value!r} is not a number"
         elif self.kind == "missing":
-            text = f"{self.title} ({self.field}) is required and was not given"
+            text = f"{head} is required and was not given"
+        elif self.kind == "censored" and self.allowed is not None:
+            lo, hi = self.allowed
+            text = (f"{head} {self.value!r}{unit} is a censored value (beyond the reporting "
+                    f"limit), but a required field needs an exact number (accepted range "
+                    f"{_num(lo)} to {_num(hi)}{unit})")
+        elif self.kind == "not_a_choice":
+            text = f"{head} {self.value!r} is not one of {', '.join(self.choices)}"
+        elif self.kind == "urea_and_bun":
+            text = "give urea or urea nitrogen (bun), not both"
         else:
-            text = f"{self.title} ({self.field}) {self.value!r}: {self.kind}"
+            text = f"{head} {self.value!r}: {self.KINDS.get(self.kind, self.kind)}"
         # " - ", not "; ": a row's reasons are joined with "; ", one per problem
         return text + (f" - {self.hint}" if self.hint else "")
+
+
+@dataclass
+class ColumnError(ValueError, AcidBaseError):
+    """Columns that cannot be read as panels at all: an unknown name, unequal lengths,
+    a container that is not columns."""
+
+    message: str
+    names: tuple[str, ...] = ()
+    """The offending column names."""
+    known: tuple[str, ...] = ()
+    """The names that would be read."""
+
+    def __str__(self) -> str:
+        return self.message
 
 
 def _num(x: object) -> str:

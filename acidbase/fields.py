@@ -25,6 +25,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from . import units as _units
+from .inputs.vocab import CHOICE_BY_NAME, CHOICES  # noqa: F401  (re-exported)
 
 
 @dataclass(frozen=True)
@@ -57,43 +58,43 @@ class FieldSpec:
 # Order: the order a blood-gas report prints, then chemistry, then context.
 NUMERIC: tuple[FieldSpec, ...] = (
     FieldSpec("ph", "pH", "ph", (6.5, 8.0), (6.8, 7.8), True,
-              ("2744-1", "2746-6", "2745-8", "11558-4"),
+              ("2744-1", "2746-6", "2745-8", "11558-4", "19213-8", "97536-7"),
               "pH of the sample at 37 degC as measured by the analyser."),
     FieldSpec("pco2", "pCO2", "pressure", (8.0, 200.0), (10.0, 150.0), True,
-              ("2019-8", "2021-4", "11557-6"),
+              ("2019-8", "2021-4", "11557-6", "2020-6", "19212-0", "97538-3"),
               "Partial pressure of carbon dioxide at 37 degC."),
     FieldSpec("hco3", "HCO3-", "electrolyte", (2.0, 60.0), (4.0, 50.0), True,
               ("1960-4", "14627-4", "1959-6", "1963-8", "2028-9"),
               "Bicarbonate: the analyser's calculated value, or a chemistry total CO2 "
               "(say which with hco3_source)."),
     FieldSpec("na", "Na+", "electrolyte", (80.0, 200.0), (110.0, 170.0), True,
-              ("2951-2", "2947-0", "32717-1", "39791-9"), "Sodium."),
+              ("2951-2", "2947-0", "32717-1", "39791-9", "39792-7"), "Sodium."),
     FieldSpec("cl", "Cl-", "electrolyte", (50.0, 160.0), (70.0, 135.0), True,
-              ("2075-0", "41650-3", "2069-3"), "Chloride."),
+              ("2075-0", "41650-3", "2069-3", "41649-5", "51590-8"), "Chloride."),
     FieldSpec("k", "K+", "electrolyte", (0.5, 15.0), (1.5, 8.0), False,
-              ("2823-3", "6298-4", "32713-0", "39789-3"), "Potassium."),
+              ("2823-3", "6298-4", "32713-0", "39789-3", "39790-1"), "Potassium."),
     FieldSpec("albumin", "Albumin", "albumin", (8.0, 80.0), (10.0, 60.0), False,
               ("1751-7",), "Serum or plasma albumin."),
     FieldSpec("lactate", "Lactate", "electrolyte", (0.0, 40.0), (0.0, 25.0), False,
-              ("2524-7", "32693-4", "2518-9", "2519-7"), "Lactate."),
+              ("2524-7", "32693-4", "2518-9", "2519-7", "19239-3", "19240-1"), "Lactate."),
     FieldSpec("glucose", "Glucose", "glucose", (0.6, 70.0), (1.5, 60.0), False,
               ("2345-7", "14749-6", "2339-0", "15074-8"), "Glucose."),
     FieldSpec("urea", "Urea", "urea", (0.3, 100.0), (0.5, 80.0), False,
-              ("22664-7",), "Urea (not urea nitrogen; for urea nitrogen use bun)."),
+              ("22664-7", "3091-6"), "Urea (not urea nitrogen; for urea nitrogen use bun)."),
     FieldSpec("bun", "Urea nitrogen (BUN)", "bun", (0.8, 280.0), (1.4, 224.0), False,
               ("3094-0", "14937-7", "6299-2"), "Urea nitrogen (BUN); give urea or BUN, not both."),
     FieldSpec("osmolality", "Osmolality", "osmolality", (150.0, 500.0), (230.0, 400.0), False,
               ("2692-2",), "Measured serum osmolality (freezing point)."),
-    FieldSpec("ica", "Ionised Ca2+", "electrolyte", (0.2, 4.0), (0.5, 2.5), False,
-              ("1994-3",), "Ionised calcium."),
+    FieldSpec("ica", "Ionised Ca2+", "calcium", (0.2, 4.0), (0.5, 2.5), False,
+              ("1994-3", "34581-9", "41645-3", "41644-6", "41646-1", "1995-0"), "Ionised calcium."),
     FieldSpec("mg", "Mg2+", "magnesium", (0.1, 5.0), (0.3, 3.0), False,
               ("2601-3", "19123-9"), "Magnesium (total), used as an approximation in the apparent SID."),
     FieldSpec("phosphate", "Phosphate", "phosphate", (0.1, 6.0), (0.2, 4.0), False,
               ("14879-1", "2777-1"), "Inorganic phosphate."),
     FieldSpec("hb", "Haemoglobin", "haemoglobin", (2.0, 25.0), (4.0, 22.0), False,
-              ("718-7",), "Total haemoglobin."),
+              ("718-7", "30313-1", "30350-3", "30352-9"), "Total haemoglobin."),
     FieldSpec("po2", "pO2", "pressure", (5.0, 800.0), (20.0, 700.0), False,
-              ("2703-7", "2705-2", "11556-8"), "Partial pressure of oxygen at 37 degC."),
+              ("2703-7", "2705-2", "11556-8", "2704-5"), "Partial pressure of oxygen at 37 degC."),
     FieldSpec("fio2", "FiO2", "fraction", (0.16, 1.0), (0.21, 1.0), False,
               ("3150-0",), "Inspired oxygen fraction (0.21-1.0, or 21-100 with unit %)."),
     FieldSpec("pb", "Barometric pressure", "pressure", (350.0, 800.0), (450.0, 800.0), False,
@@ -107,15 +108,16 @@ NUMERIC: tuple[FieldSpec, ...] = (
 BY_NAME: dict[str, FieldSpec] = {f.name: f for f in NUMERIC}
 REQUIRED: tuple[str, ...] = tuple(f.name for f in NUMERIC if f.required)
 
-#: LOINC codes above that are from memory, not from the checked notes (verify
-#: against a LOINC release before relying on them).
-LOINC_FROM_MEMORY: frozenset[str] = frozenset(
-    {"1994-3", "19123-9", "2601-3", "2777-1", "14879-1", "8310-5", "30525-0", "2746-6", "11558-4", "2021-4",
-     "2705-2", "11556-8", "2069-3", "22664-7", "3150-0", "2519-7", "32693-4"}
-)
+#: LOINC codes above held from memory only.  Empty: every code was checked against
+#: published FHIR implementation guides and value sets that carry the LOINC long
+#: common name (the project's notes, research/loinc.md sections 1.2 and 1.3: HL7
+#: Germany GECCO profiles, Medizininformatik-Initiative value sets on LOINC 2.75,
+#: DICOM CID 3524, VSAC), not against a LOINC release file.
+LOINC_FROM_MEMORY: frozenset[str] = frozenset()
 
-SAMPLE_TYPES: tuple[str, ...] = ("arterial", "venous", "capillary", "unknown")
-HCO3_SOURCES: tuple[str, ...] = ("analyser", "chemistry", "unknown")
+#: The words of the choice inputs (declared once, in ``acidbase.inputs.vocab``).
+SAMPLE_TYPES: tuple[str, ...] = CHOICE_BY_NAME["sample_type"].words
+HCO3_SOURCES: tuple[str, ...] = CHOICE_BY_NAME["hco3_source"].words
 
 #: Text fields carried with a panel; they do not enter the chemistry.
 TEXT_FIELDS: tuple[str, ...] = ("sample_id", "patient_id", "collected_at")

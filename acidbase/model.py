@@ -17,11 +17,13 @@ number would be ordinary in another unit of the field, the message says so.
 from __future__ import annotations
 
 import functools
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from dataclasses import field as dataclass_field
 from typing import Any, Literal
 
 import numpy as np
+import pyarrow as pa
 from pydantic import (
     BaseModel,
     ConfigDict,
@@ -36,7 +38,10 @@ from pydantic_core import PydanticCustomError
 
 from . import units as _units
 from .errors import Problem, UnitError
-from .fields import BY_NAME, HCO3_SOURCES, NUMERIC, REQUIRED, SAMPLE_TYPES, TEXT_FIELDS, FieldSpec
+from .fields import BY_NAME, NUMERIC, REQUIRED, TEXT_FIELDS, FieldSpec
+from .inputs.cells import (ParsedColumn, number_hint, read_choice, read_choices, read_number,
+                           read_numbers)
+from .inputs.vocab import CHOICES, Choice
 
 # ---------------------------------------------------------------------------
 # The one range check, over arrays
@@ -92,153 +97,99 @@ class Screened:
     n: int
     values: dict[str, np.ndarray]
     """Numeric fields in canonical units; NaN where not measured or refused."""
-    sample_type: np.ndarray
-    """int8 codes: index into ``SAMPLE_TYPES``."""
-    hco3_source: np.ndarray
-    """int8 codes: index into ``HCO3_SOURCES``."""
+    choices: dict[str, np.ndarray]
+    """Choice fields (``acidbase.inputs.vocab.CHOICES``) as int8 codes into their words."""
     refused: np.ndarray
     """Boolean mask of refused rows."""
     problems: dict[int, list[Problem]]
-    """Refused row index -> its problems."""
+    """Refused row index -> its problems (structured; printed only by a surface)."""
     present: frozenset[str] = frozenset()
     """Numeric fields with at least one measured value; the kernel skips the rest."""
+    readings: dict[str, ParsedColumn] = dataclass_field(default_factory=dict)
+    """Numeric fields read from text: their comparators and laboratory flags."""
+    plain: frozenset[str] = frozenset()
+    """Fields whose every cell is empty, a bare number or an allowed word, as written
+    (a writer may skip formula escaping for them)."""
+
+    @property
+    def sample_type(self) -> np.ndarray:
+        """int8 codes: index into ``SAMPLE_TYPES``."""
+        return self.choices["sample_type"]
+
+    @property
+    def hco3_source(self) -> np.ndarray:
+        """int8 codes: index into ``HCO3_SOURCES``."""
+        return self.choices["hco3_source"]
 
     @functools.cached_property
     def reasons(self) -> np.ndarray:
         """Object array: "" for accepted rows, the problems joined by "; " otherwise
-        (built when first asked for: the kernel itself never needs it)."""
+        (text for a file's reason column; built when first asked for)."""
         out = np.full(self.n, "", dtype=object)
         for i, plist in self.problems.items():
             out[i] = "; ".join(str(p) for p in plist)
         return out
 
+    def qualifiers(self) -> list[tuple[str, ...]]:
+        """Per row: the censored values read ("lactate <0.3")."""
+        return self._marks(lambda p: p.comparator, with_text=True)
 
-def _as_float(name: str, raw: Any, n: int) -> tuple[np.ndarray, np.ndarray]:
-    """A float64 column and a mask of cells that are not numbers at all."""
-    if raw is None:
-        return np.full(n, np.nan), np.zeros(n, dtype=bool)
-    arr = np.asarray(raw)
-    if arr.ndim == 0:
-        arr = np.full(n, arr.item())
-    if arr.dtype.kind in "fiu":
-        return arr.astype(np.float64, copy=False), np.zeros(n, dtype=bool)
-    if arr.dtype.kind == "b":
-        return np.full(n, np.nan), np.ones(n, dtype=bool)
-    out = np.full(n, np.nan)
-    bad = np.zeros(n, dtype=bool)
-    for i, cell in enumerate(arr.tolist()):
-        if cell is None or (isinstance(cell, str) and cell.strip() == ""):
-            continue
-        if isinstance(cell, bool):
-            bad[i] = True
-            continue
-        try:
-            out[i] = float(cell)
-        except (TypeError, ValueError):
-            bad[i] = True
-            continue
-        if isinstance(cell, str) and not np.isfinite(out[i]):  # "nan", "inf": not a value
-            out[i] = np.nan
-            bad[i] = True
-    return out, bad
+    def lab_flags(self) -> list[tuple[str, ...]]:
+        """Per row: the laboratory flags read off values ("ph L")."""
+        return self._marks(lambda p: p.flag, with_text=False)
+
+    def _marks(self, part, with_text: bool) -> list[tuple[str, ...]]:
+        out: list[tuple[str, ...]] = [()] * self.n
+        for name, p in self.readings.items():
+            for i, mark in p.marks("comparator" if with_text else "flag"):
+                out[i] = (*out[i], f"{name} {mark.strip()}")
+        return out
 
 
-def choice_codes(raw: Any, n: int, allowed: tuple[str, ...], default: str) -> tuple[np.ndarray, np.ndarray]:
-    """Codes (int8 index into ``allowed``) for a text column, and a mask of bad cells.
-
-    Accepts strings (any case, surrounding spaces) or integer codes already
-    encoded.  Empty cells take the default.  A uniform column costs one
-    comparison; a mixed one, one comparison per allowed spelling, and a dictionary
-    look-up for each cell that is not spelled exactly as allowed.
-    """
-    default_code = allowed.index(default)
-    if raw is None:
-        return np.full(n, default_code, dtype=np.int8), np.zeros(n, dtype=bool)
-    arr = np.asarray(raw)
-    if arr.ndim == 0:
-        arr = np.full(n, arr.item(), dtype=object)
-    if arr.dtype.kind in "iu":
-        bad = (arr < 0) | (arr >= len(allowed))
-        return np.where(bad, default_code, arr).astype(np.int8), bad
-    first = arr.reshape(-1)[0] if n else None
-    if n and isinstance(first, str) and bool((arr == first).all()):
-        code, bad = choice_code(first, allowed, default_code)
-        return np.full(n, code, dtype=np.int8), np.full(n, bad)
-    flat = arr.reshape(-1)
-    if flat.dtype.kind in "OU" and n:
-        # The vocabulary is tiny: one vectorised comparison per canonical spelling
-        # settles the usual cells; only the others are looked up one by one.
-        # Each pass compares only the cells still unsettled, so a column that is
-        # mostly one word costs little more than one pass.
-        codes = np.full(n, default_code, dtype=np.int8)
-        rest = np.arange(n)
-        cells = flat
-        for code, word in enumerate(allowed):
-            hit = cells == word
-            if hit.any():
-                codes[rest[hit]] = code
-                rest = rest[~hit]
-                if rest.size == 0:
-                    return codes, np.zeros(n, dtype=bool)
-                cells = flat[rest]
-        sub, sub_bad = _choice_lookup(cells, allowed, default_code)
-        codes[rest] = sub
-        bad = np.zeros(n, dtype=bool)
-        bad[rest] = sub_bad
-        return codes, bad
-    return _choice_lookup(flat, allowed, default_code)
-
-
-def _choice_lookup(flat: np.ndarray, allowed: tuple[str, ...],
-                   default_code: int) -> tuple[np.ndarray, np.ndarray]:
-    """Codes and bad cells, one dictionary look-up per cell."""
-    table = _CHOICE_CACHE.setdefault(allowed, {})
-    if len(table) > 10_000:  # bounded: a column of free text cannot grow it for ever
-        table.clear()
-    cells = flat.tolist()
-    try:
-        for cell in set(cells) - table.keys():
-            table[cell] = choice_code(cell, allowed, default_code)
-        pairs = [table[c] for c in cells]
-    except TypeError:  # unhashable cells (lists and the like): no cache
-        pairs = [choice_code(c, allowed, default_code) for c in cells]
-    codes = np.fromiter((p[0] for p in pairs), dtype=np.int8, count=len(pairs))
-    bad = np.fromiter((p[1] for p in pairs), dtype=bool, count=len(pairs))
-    return codes, bad
-
-
-#: Cell -> (code, refused) per vocabulary.
-_CHOICE_CACHE: dict[tuple[str, ...], dict[object, tuple[int, bool]]] = {}
-
-
-def choice_code(cell: object, allowed: tuple[str, ...], default_code: int) -> tuple[int, bool]:
-    """(code, refused) of one choice cell: case and surrounding spaces ignored;
-    empty, "none" and "nan" take the default; any other word is refused."""
-    if cell is None or (isinstance(cell, float) and np.isnan(cell)):
-        return default_code, False
-    text = str(cell).strip().lower()
-    if text in ("", "none", "nan"):
-        return default_code, False
-    if text in allowed:
-        return allowed.index(text), False
-    return default_code, True
+def choice_codes(raw: Any, n: int, allowed: tuple[str, ...], default: str
+                 ) -> tuple[np.ndarray, np.ndarray]:
+    """Codes and bad cells of a choice column (``read_choices`` by its words)."""
+    choice = next(c for c in CHOICES if c.words == tuple(allowed))
+    out = read_choices(raw, choice, n=n)
+    return out.codes, out.bad
 
 
 def column_length(columns: Mapping[str, Any]) -> int:
+    """The common length of the columns (1 when every value is a single cell)."""
     for value in columns.values():
-        arr = np.asarray(value, dtype=object) if not isinstance(value, np.ndarray) else value
-        if arr.ndim:
-            return int(arr.shape[0])
+        n = _length(value)
+        if n is not None:
+            return n
     return 1
 
 
-def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None) -> Screened:
+def _length(value: Any) -> int | None:
+    if value is None or isinstance(value, (str, bytes, int, float, np.generic)):
+        return None
+    if isinstance(value, (pa.Array, pa.ChunkedArray)):
+        return len(value)
+    shape = getattr(value, "shape", None)
+    if shape is not None:
+        return int(shape[0]) if len(shape) else None
+    try:
+        return len(value)
+    except TypeError:
+        return None
+
+
+def cell_text(p: ParsedColumn, i: int) -> str | None:
+    return p.cell(i)
+
+
+def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None, *,
+           decimal: str = ".", missing: Sequence[str] = (),
+           row_problems: Mapping[int, Sequence[Problem]] | None = None) -> Screened:
     """Apply the boundary checks to columns of panels.
 
-    ``columns`` maps field names to arrays (floats, NaN or None for not measured;
-    strings for ``sample_type`` and ``hco3_source``).  ``units`` maps field names
-    to unit labels; a field not named is in its canonical unit.  An unknown unit
-    raises ``UnitError`` (it concerns the whole column, not a row).
+    ``columns`` maps field names to columns of any kind the cell reader takes
+    (``acidbase.inputs.cells``); ``units`` maps field names to unit labels (a field
+    not named is in its canonical unit).  An unknown unit raises ``UnitError`` (it
+    concerns the whole column, not a row).  Each row is decided alone.
     """
     units = dict(units or {})
     unknown = set(units) - set(BY_NAME)
@@ -246,14 +197,20 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None) -
         raise UnitError(field=", ".join(sorted(unknown)), unit="(any)", accepted=tuple(BY_NAME))
     n = column_length(columns)
     refused = np.zeros(n, dtype=bool)
-    problems: dict[int, list[Problem]] = {}
+    # Problems found before the cells (a file's specimen conflicts) come first.
+    problems: dict[int, list[Problem]] = {int(i): list(p) for i, p in (row_problems or {}).items()
+                                          if p and 0 <= int(i) < n}
+    if problems:
+        refused[np.fromiter(problems, dtype=np.int64)] = True
 
     def add(rows: np.ndarray, make) -> None:
         for i in np.flatnonzero(rows).tolist():
             problems.setdefault(i, []).append(make(i))
 
     values: dict[str, np.ndarray] = {}
+    readings: dict[str, ParsedColumn] = {}
     present: set[str] = set()
+    plain: set[str] = set()
     absent = np.full(n, np.nan)  # shared by every missing column: never written to
     for spec in NUMERIC:
         unit = units.get(spec.name, spec.unit)
@@ -261,18 +218,28 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None) -
         if columns.get(spec.name) is None and not spec.required:
             values[spec.name] = absent
             continue
-        raw, not_number = _as_float(spec.name, columns.get(spec.name), n)
+        p = read_numbers(columns.get(spec.name), decimal, missing, n=n)
+        if p.comparator is not None or p.flag is not None:
+            readings[spec.name] = p
+        if p.plain:
+            plain.add(spec.name)
+        raw = p.values
         canonical, bad = range_problems(spec, raw, unit)
         code = _units.normalise(unit)
-        add(not_number, lambda i, s=spec, c=code, r=columns.get(spec.name): Problem(
-            s.name, s.title, np.asarray(r, dtype=object).reshape(-1)[i] if np.ndim(r) else r,
-            c, kind="not_a_number"))
+        add(p.bad, lambda i, s=spec, c=code, p=p: Problem(
+            s.name, s.title, cell_text(p, i), c, kind="not_a_number",
+            hint=number_hint(cell_text(p, i), decimal, c)))
         add(bad, lambda i, s=spec, r=raw, u=unit: describe_value(s, float(r[i]), u))
+        bad = bad | p.bad
         if spec.required:
-            missing = np.isnan(raw) & ~not_number
-            add(missing, lambda i, s=spec, c=code: Problem(s.name, s.title, None, c, kind="missing"))
-            bad = bad | missing
-        refused |= bad | not_number
+            censored = p.censored
+            add(censored, lambda i, s=spec, c=code, p=p: censored_problem(
+                s, cell_text(p, i), c))
+            missing_rows = np.isnan(raw) & ~p.bad & ~censored
+            add(missing_rows, lambda i, s=spec, c=code: Problem(s.name, s.title, None, c,
+                                                                kind="missing"))
+            bad = bad | missing_rows | censored
+        refused |= bad
         values[spec.name] = canonical
         if spec.required or not np.isnan(canonical).all():
             present.add(spec.name)
@@ -280,40 +247,83 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None) -
             values[spec.name] = absent
 
     both = ~np.isnan(values["urea"]) & ~np.isnan(values["bun"])
-    add(both, lambda i: Problem("urea", "Urea", "urea and bun", "", kind=(
-        "give urea or urea nitrogen (bun), not both")))
+    add(both, lambda i: Problem("urea", "Urea", "urea and bun", "", kind="urea_and_bun"))
     refused |= both
 
-    sample_type, bad_st = choice_codes(columns.get("sample_type"), n, SAMPLE_TYPES, "unknown")
-    add(bad_st, lambda i: Problem("sample_type", "Sample type",
-        np.asarray(columns["sample_type"], dtype=object).reshape(-1)[i], "",
-        kind=f"not one of {', '.join(SAMPLE_TYPES)}"))
-    hco3_source, bad_src = choice_codes(columns.get("hco3_source"), n, HCO3_SOURCES, "unknown")
-    add(bad_src, lambda i: Problem("hco3_source", "HCO3- source",
-        np.asarray(columns["hco3_source"], dtype=object).reshape(-1)[i], "",
-        kind=f"not one of {', '.join(HCO3_SOURCES)}"))
-    refused |= bad_st | bad_src
+    choices: dict[str, np.ndarray] = {}
+    for choice in CHOICES:
+        c = read_choices(columns.get(choice.name), choice, missing, n=n)
+        choices[choice.name] = c.codes
+        if c.plain and not c.bad.any():
+            plain.add(choice.name)
+        add(c.bad, lambda i, ch=choice, c=c: Problem(
+            ch.name, ch.title, c.cell(i), "",
+            kind="not_a_choice", choices=ch.words))
+        refused |= c.bad
 
     if refused.any():
         rows = np.flatnonzero(refused)
         for name in present:
             values[name][rows] = np.nan  # each is range_problems' own new array
-    return Screened(n, values, sample_type, hco3_source, refused, problems, frozenset(present))
+    return Screened(n, values, choices, refused, problems, frozenset(present), readings,
+                    frozenset(plain))
+
+
+def censored_problem(spec: FieldSpec, cell: object, unit: str) -> Problem:
+    """A censored value ("<10") in a required field: no exact number to compute with."""
+    f = _units.factor(spec.name, spec.kind, unit)
+    lo, hi = spec.accepted
+    return Problem(spec.name, spec.title, cell, _units.normalise(unit), (lo / f, hi / f),
+                   kind="censored")
 
 
 # ---------------------------------------------------------------------------
 # The single-panel model (pydantic v2)
 
 
+def _raise(problem: Problem) -> None:
+    """A Problem as pydantic's error: its kind is the error type, its sentence the message."""
+    raise PydanticCustomError(problem.kind, "{message}", {
+        "message": str(problem), "field": problem.field, "value": problem.value,
+        "unit": problem.unit, "low": problem.allowed[0] if problem.allowed else None,
+        "high": problem.allowed[1] if problem.allowed else None, "hint": problem.hint,
+        "code": problem.code})
+
+
+def _decimal(info: ValidationInfo) -> str:
+    ctx = info.context or {}
+    return ctx.get("decimal", ".") if isinstance(ctx, Mapping) else "."
+
+
 class _PanelBase(BaseModel):
     model_config = ConfigDict(extra="forbid", frozen=True)
+
+    @model_validator(mode="before")
+    @classmethod
+    def _marks(cls, data: Any, info: ValidationInfo) -> Any:
+        """Censored values and laboratory flags, recorded as read (the values themselves
+        are read again, and refused if need be, by each field's validator)."""
+        if not isinstance(data, Mapping):
+            return data
+        data = dict(data)
+        quals, flags = [], []
+        for spec in NUMERIC:
+            if spec.name not in data:
+                continue
+            cell = read_number(data[spec.name], _decimal(info))
+            if cell.bad:
+                continue
+            if cell.comparator is not None:
+                quals.append(f"{spec.name} {str(cell.text).strip()}")
+            if cell.flag is not None:
+                flags.append(f"{spec.name} {cell.flag}")
+        data["qualifiers"], data["lab_flags"] = tuple(quals), tuple(flags)
+        return data
 
     @model_validator(mode="after")
     def _urea_or_bun(self) -> _PanelBase:
         if getattr(self, "urea") is not None and getattr(self, "bun") is not None:
-            raise PydanticCustomError(
-                "urea_and_bun", "give urea or urea nitrogen (bun), not both"
-            )
+            _raise(Problem("urea", "Urea", "urea and bun", "", kind="urea_and_bun"))
         return self
 
     def columns(self) -> tuple[dict[str, np.ndarray], dict[str, str]]:
@@ -322,8 +332,8 @@ class _PanelBase(BaseModel):
         for spec in NUMERIC:
             v = getattr(self, spec.name)
             cols[spec.name] = np.array([np.nan if v is None else v], dtype=np.float64)
-        cols["sample_type"] = np.array([self.sample_type], dtype=object)
-        cols["hco3_source"] = np.array([self.hco3_source], dtype=object)
+        for choice in CHOICES:
+            cols[choice.name] = np.array([getattr(self, choice.name)], dtype=object)
         unit_map = {s.name: getattr(self, f"{s.name}_unit") for s in NUMERIC}
         return cols, unit_map
 
@@ -335,7 +345,8 @@ class _PanelBase(BaseModel):
             if v is None:
                 out[spec.name] = None
             else:
-                out[spec.name] = v * _units.factor(spec.name, spec.kind, getattr(self, f"{spec.name}_unit"))
+                out[spec.name] = v * _units.factor(spec.name, spec.kind,
+                                                   getattr(self, f"{spec.name}_unit"))
         return out
 
 
@@ -352,6 +363,22 @@ def _unit_validator(spec: FieldSpec):
     return field_validator(f"{spec.name}_unit")(check)
 
 
+def _read_validator(spec: FieldSpec):
+    """The cell, read by the one reader (``acidbase.inputs.cells``), before any type check."""
+    def read(cls, value: Any, info: ValidationInfo) -> float | None:
+        unit = info.data.get(f"{spec.name}_unit") or spec.unit
+        cell = read_number(value, _decimal(info))
+        if cell.bad:
+            _raise(Problem(spec.name, spec.title, cell.text, unit, kind="not_a_number",
+                           hint=number_hint(cell.text, _decimal(info), unit)))
+        if cell.comparator is not None and spec.required:
+            _raise(censored_problem(spec, cell.text, unit))
+        if cell.value is None and spec.required:
+            _raise(Problem(spec.name, spec.title, None, unit, kind="missing"))
+        return cell.value
+    return field_validator(spec.name, mode="before")(read)
+
+
 def _value_validator(spec: FieldSpec):
     def check(cls, value: float | None, info: ValidationInfo) -> float | None:
         if value is None:
@@ -362,15 +389,20 @@ def _value_validator(spec: FieldSpec):
         raw = np.array([value], dtype=np.float64)
         _, bad = range_problems(spec, raw, unit)
         if bad[0]:
-            p = describe_value(spec, value, unit)
-            raise PydanticCustomError(
-                "outside_accepted_range", str(p),
-                {"field": spec.name, "value": value, "unit": p.unit,
-                 "low": p.allowed[0] if p.allowed else None,
-                 "high": p.allowed[1] if p.allowed else None, "hint": p.hint},
-            )
+            _raise(describe_value(spec, value, unit))
         return value
     return field_validator(spec.name)(check)
+
+
+def _choice_validator(choice: Choice):
+    def read(cls, value: Any) -> str:
+        word, bad = read_choice(value, choice)
+        if bad:
+            text = value if isinstance(value, str) else str(value)[:60]
+            _raise(Problem(choice.name, choice.title, text, "", kind="not_a_choice",
+                           choices=choice.words))
+        return word
+    return field_validator(choice.name, mode="before")(read)
 
 
 def _build_panel() -> type[_PanelBase]:
@@ -379,26 +411,28 @@ def _build_panel() -> type[_PanelBase]:
     # Units first: a value's validator reads its unit from the fields already validated.
     for spec in NUMERIC:
         definitions[f"{spec.name}_unit"] = (
-            str, Field(default=spec.unit, description=f"Unit of {spec.title}: {', '.join(spec.units)}"))
+            str, Field(default=spec.unit,
+                       description=f"Unit of {spec.title}: {', '.join(spec.units)}"))
         validators[f"_check_{spec.name}_unit"] = _unit_validator(spec)
-    definitions["sample_type"] = (
-        Literal[SAMPLE_TYPES], Field(default="unknown", description="Sample type."))
-    definitions["hco3_source"] = (
-        Literal[HCO3_SOURCES],
-        Field(default="unknown", description=(
-            "Where HCO3- comes from: 'analyser' (calculated by the blood-gas analyser "
-            "from its pH and pCO2) or 'chemistry' (measured total CO2).")))
+    for choice in CHOICES:
+        definitions[choice.name] = (
+            Literal[choice.words], Field(default=choice.default, description=choice.help))
+        validators[f"_read_{choice.name}"] = _choice_validator(choice)
     for name in TEXT_FIELDS:
         definitions[name] = (str | None, Field(default=None, max_length=200))
     for spec in NUMERIC:
-        annotation = float if spec.required else float | None
         default = ... if spec.required else None
         definitions[spec.name] = (
-            annotation, Field(default=default, title=spec.title, description=spec.help,
-                              allow_inf_nan=False, json_schema_extra={
-                                  "accepted": spec.accepted, "unit": spec.unit,
-                                  "loinc": list(spec.loinc)}))
+            float | None, Field(default=default, title=spec.title, description=spec.help,
+                                allow_inf_nan=False, json_schema_extra={
+                                    "accepted": spec.accepted, "unit": spec.unit,
+                                    "loinc": list(spec.loinc)}))
+        validators[f"_read_{spec.name}"] = _read_validator(spec)
         validators[f"_check_{spec.name}"] = _value_validator(spec)
+    definitions["qualifiers"] = (tuple[str, ...], Field(default=(), description=(
+        "Censored values read (\"lactate <0.3\"): set by the reader, not by the caller.")))
+    definitions["lab_flags"] = (tuple[str, ...], Field(default=(), description=(
+        "Laboratory flags read off values (\"ph L\"): set by the reader.")))
     return create_model("Panel", __base__=_PanelBase, __validators__=validators, **definitions)
 
 
@@ -407,9 +441,15 @@ Panel.__doc__ = """One blood-gas and electrolyte panel, validated.
 
 Required: ph, pco2, hco3, na, cl.  Every numeric field has a ``<name>_unit``
 (UCUM) defaulting to its canonical unit; see ``acidbase.fields`` for the ranges.
-Construct with keywords or ``Panel.model_validate(mapping)``; invalid input
-raises ``pydantic.ValidationError`` with every problem.
+Each value is read by the one cell reader (``acidbase.inputs.cells``: numbers or
+text such as "7.21 L" or "<0.3"); a decimal comma is read when the validation
+context says so (``Panel.model_validate(data, context={"decimal": ","})``).
+Invalid input raises ``pydantic.ValidationError`` with every problem; each
+error's type is the Problem's kind and its message the Problem's sentence.
 """
+
+#: Error types whose message is already the Problem's full sentence.
+PROBLEM_KINDS: frozenset[str] = frozenset(Problem.KINDS)
 
 
 def describe_fields(error: ValidationError) -> list[tuple[str, str]]:
@@ -423,10 +463,10 @@ def describe_fields(error: ValidationError) -> list[tuple[str, str]]:
         loc = ".".join(str(x) for x in e["loc"])
         spec = BY_NAME.get(loc)
         msg = e["msg"]
-        if e["type"] == "outside_accepted_range":
-            line = msg
-        elif e["type"] == "missing" and spec is not None:
+        if e["type"] == "missing" and spec is not None:
             line = str(Problem(spec.name, spec.title, None, spec.unit, kind="missing"))
+        elif e["type"] in PROBLEM_KINDS:
+            line = msg
         elif spec is not None:
             line = f"{spec.title} ({loc}) {e.get('input')!r}: {msg}"
         else:

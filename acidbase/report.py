@@ -10,7 +10,7 @@ import textwrap
 from typing import TYPE_CHECKING, Any
 
 from .fields import BY_NAME
-from .results import DECIMALS
+from .precision import DECIMALS
 from .rules import number_text
 
 if TYPE_CHECKING:
@@ -58,7 +58,7 @@ def as_json_dict(it: Interpretation) -> dict[str, Any]:
         "schema": SCHEMA,
         "caution": it.caution,
         "status": it.status,
-        "problems": list(it.problems),
+        "problems": [str(p) for p in it.problems],
         "sample_type": it.sample_type,
         "hco3_source": it.hco3_source,
         "inputs": it.inputs,

@@ -20,7 +20,13 @@ import numpy as np
 from . import engine
 from .engine import CONSISTENCY_NAMES, ROLE_NAMES, SLOTS, TIMING_NAMES, VALID_WHEN, Frame
 from .fields import HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
+from .inputs.vocab import CHOICES
+from .errors import Problem
 from .model import Screened
+
+# The derived values and their shown precision live in ``acidbase.precision`` (the report
+# reads them without importing this module: no import cycle); re-exported here.
+from .precision import DECIMALS, DERIVED  # noqa: F401
 from .reference import Settings
 from .references import Citation, cite
 from .rules import RULES, SECTIONS, render
@@ -30,31 +36,6 @@ CAUTION = (
     "and the local laboratory's protocols. It gives no treatment or dosing advice. Check every "
     "result against the original report and the patient before acting on it."
 )
-
-#: Derived values reported by ``check --json`` and the batch output, in order.
-DERIVED: tuple[str, ...] = (
-    "hco3_calculated", "total_co2_calculated", "h_nmol_per_l", "anion_gap", "anion_gap_k",
-    "anion_gap_corrected", "delta_ratio", "delta_gap", "standard_base_excess",
-    "expected_pco2_low", "expected_pco2_high", "expected_hco3_acute_low",
-    "expected_hco3_acute_high", "expected_hco3_chronic_low", "expected_hco3_chronic_high",
-    "be_expected_pco2_low", "be_expected_pco2_high", "sid_apparent", "sid_effective",
-    "strong_ion_gap", "story_na_cl", "story_albumin", "story_lactate", "story_other",
-    "osmolality_calculated", "osmolal_gap", "alveolar_po2", "aa_gradient", "aa_expected",
-    "pf_ratio", "ph_at_temperature", "pco2_at_temperature", "po2_at_temperature",
-)
-
-#: Decimals each derived value is shown with (text and Markdown reports, the terminal
-#: app, batch CSV): the precision laboratories print the measured quantities with, two
-#: for the delta ratio, three for pH (common laboratory practice, no source).  ``check
-#: --json`` and batch JSON Lines and Parquet carry the unrounded value.
-DECIMALS: dict[str, int] = {
-    **dict.fromkeys(DERIVED, 1),
-    "delta_ratio": 2,
-    "ph_at_temperature": 3,
-    **dict.fromkeys(("osmolality_calculated", "osmolal_gap", "alveolar_po2", "aa_gradient",
-                     "aa_expected", "pf_ratio", "po2_at_temperature"), 0),
-}
-
 
 @dataclass(frozen=True)
 class Finding:
@@ -111,7 +92,8 @@ class Consistency:
 class Interpretation:
     status: str
     """"interpreted" or "refused"."""
-    problems: tuple[str, ...]
+    problems: tuple[Problem, ...]
+    """Why the panel was refused: structured (``str(p)`` is the sentence)."""
     inputs: dict[str, dict[str, Any]]
     sample_type: str
     hco3_source: str
@@ -121,6 +103,10 @@ class Interpretation:
     findings: tuple[Finding, ...]
     caution: str = CAUTION
     settings: dict[str, Any] = field(default_factory=dict)
+    qualifiers: tuple[str, ...] = ()
+    """Censored values read and treated as not measured ("lactate <0.3")."""
+    lab_flags: tuple[str, ...] = ()
+    """Laboratory flags read off values ("ph L")."""
 
     def codes(self) -> list[str]:
         return [f.code for f in self.findings]
@@ -171,6 +157,61 @@ class Results:
         self.refused = _join([p.screened.refused for p in parts])
         self._starts = np.array([p.start for p in parts])
 
+    # -- the sequence protocol: one Interpretation per panel --------------------
+    def __len__(self) -> int:
+        return self.n
+
+    def __getitem__(self, i: int) -> Interpretation:
+        if isinstance(i, (bool, np.bool_)) or not isinstance(i, (int, np.integer)):
+            raise TypeError(f"Results index must be an integer, not {type(i).__name__}")
+        i = int(i)
+        if i < 0:
+            i += self.n
+        return self.interpretation(i)
+
+    def __iter__(self):
+        return (self.interpretation(i) for i in range(self.n))
+
+    def __repr__(self) -> str:
+        refused = int(np.count_nonzero(self.refused))
+        return f"<Results: {self.n} panel(s), {self.n - refused} interpreted, {refused} refused>"
+
+    # -- what the reader found, structured ------------------------------------
+    def problems(self) -> dict[int, list[Problem]]:
+        """Refused row -> its problems (row numbers over the whole input)."""
+        return {p.start + i: plist for p in self.parts for i, plist in p.screened.problems.items()}
+
+    def problem_counts(self) -> dict[str, int]:
+        """How many times each kind of problem refused a row, by ``Problem.label``."""
+        out: dict[str, int] = {}
+        for p in self.parts:
+            for plist in p.screened.problems.values():
+                for prob in plist:
+                    out[prob.label] = out.get(prob.label, 0) + 1
+        return out
+
+    def qualifiers(self) -> list[tuple[str, ...]]:
+        """Per row: censored values read and treated as not measured ("lactate <0.3")."""
+        return [q for p in self.parts for q in p.screened.qualifiers()]
+
+    def lab_flags(self) -> list[tuple[str, ...]]:
+        """Per row: laboratory flags read off values ("ph L")."""
+        return [f for p in self.parts for f in p.screened.lab_flags()]
+
+    def has_marks(self) -> bool:
+        """True when some value carried a comparator or a laboratory flag."""
+        return any(p.screened.readings for p in self.parts)
+
+    def values(self, name: str) -> np.ndarray:
+        """A numeric input in its canonical unit (NaN where not measured or refused)."""
+        return _join([p.screened.values[name] for p in self.parts])
+
+    @property
+    def plain(self) -> frozenset[str]:
+        """Input fields read in full as bare numbers or allowed words (every part)."""
+        sets = [p.screened.plain for p in self.parts]
+        return frozenset.intersection(*sets) if sets else frozenset()
+
     @functools.cached_property
     def reasons(self) -> np.ndarray:
         """Object array: "" for accepted rows, the refusal reasons otherwise."""
@@ -212,10 +253,12 @@ class Results:
                   for s in NUMERIC if _value(r[s.name]) is not None}
         st, src = SAMPLE_TYPES[r["sample_type"]], HCO3_SOURCES[r["hco3_source"]]
         settings = dict(self.settings.__dict__)
+        marks = {"qualifiers": part.screened.qualifiers()[j] if part.screened.readings else (),
+                 "lab_flags": part.screened.lab_flags()[j] if part.screened.readings else ()}
         if part.screened.refused[j]:
-            probs = tuple(str(p) for p in part.screened.problems.get(j, []))
+            probs = tuple(part.screened.problems.get(j, []))
             return Interpretation("refused", probs, inputs, st, src, None, (), {}, (),
-                                  settings=settings)
+                                  settings=settings, **marks)
         consistency = Consistency(
             CONSISTENCY_NAMES[r["consistency"]], src, _value(r["hco3"]),
             _value(r["hco3_calculated"]), _value(r["total_co2_calculated"]),
@@ -231,7 +274,7 @@ class Results:
                         render(rule, rule.text, r), render(rule, rule.working, r), rule.why,
                         cite(*rule.refs)))
         return Interpretation("interpreted", (), inputs, st, src, consistency, disorders,
-                              derived, tuple(findings), settings=settings)
+                              derived, tuple(findings), settings=settings, **marks)
 
     @staticmethod
     def _disorders(r: Mapping[str, Any]) -> tuple[Disorder, ...]:
@@ -311,13 +354,52 @@ class Results:
         cols["consistency"] = blanked(col("consistency"), list(CONSISTENCY_NAMES))
         cols["disorders"] = blanked(*self._encoded_disorders())
         for slot, _, _ in SLOTS:
-            cols[f"role_{slot}"] = (col(f"role_{slot}").astype(np.int32), ["", "primary", "additional"])
+            cols[f"role_{slot}"] = (col(f"role_{slot}").astype(np.int32),
+                                      [w or "" for w in ROLE_NAMES])
         cols["timing_respiratory"] = (col("timing_resp").astype(np.int32),
-                                      ["", "acute", "chronic", "indeterminate"])
+                                      [w or "" for w in TIMING_NAMES])
         cols["finding_codes"] = self._encoded_codes()
         for k in DERIVED:
             cols[k] = col(k)
         return cols
+
+    def to_arrow(self):
+        """The results as a ``pyarrow.Table``, one row per panel, typed: every text
+        category (status, consistency, disorders, roles, timing, sample type, HCO3-
+        source, finding codes) a dictionary column, ``reason`` text, one boolean per
+        process (``has_<slot>``), derived values float64 (null where not computed)."""
+        import pyarrow as pa
+
+        enc = self.encoded()
+        cols: dict[str, Any] = {}
+
+        def dictionary(indices: np.ndarray, labels: list[str]):
+            return pa.DictionaryArray.from_arrays(pa.array(indices, type=pa.int32()),
+                                                  pa.array(labels, type=pa.string()))
+
+        refused = np.asarray(self.refused, dtype=bool)
+        for key, col in enc.items():
+            if key == "reason":
+                cols[key] = pa.array(col, type=pa.string())
+            elif isinstance(col, tuple):
+                cols[key] = dictionary(*col)
+            elif col.dtype.kind == "f":
+                cols[key] = pa.array(col, mask=np.isnan(col))
+            else:
+                cols[key] = pa.array(col)
+            if key == "status":
+                for choice in CHOICES:
+                    codes = _join([p.screened.choices[choice.name] for p in self.parts])
+                    cols[choice.name] = dictionary(codes.astype(np.int32), list(choice.words))
+        for slot, _, _ in SLOTS:
+            role = enc[f"role_{slot}"][0]
+            cols[f"has_{slot}"] = pa.array((role != 0) & ~refused)
+        return pa.table(cols)
+
+    def to_pandas(self):
+        """``to_arrow()`` as a pandas DataFrame (categoricals for the dictionary columns);
+        pandas is an optional dependency, imported here."""
+        return self.to_arrow().to_pandas()
 
     def table(self) -> dict[str, np.ndarray]:
         """Output columns for the batch file, in their documented order."""

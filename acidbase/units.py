@@ -33,7 +33,7 @@ ALIASES: dict[str, str] = {
     "mm[hg]": "mm[Hg]",
     "kpa": "kPa",
     "mmol/l": "mmol/L",
-    "meq/l": "mmol/L",
+    "meq/l": "mEq/L",
     "g/dl": "g/dL",
     "g/l": "g/L",
     "mg/dl": "mg/dL",
@@ -58,14 +58,18 @@ ALIASES: dict[str, str] = {
 FACTORS: dict[str, dict[str, float]] = {
     "ph": {"[pH]": 1.0},
     "pressure": {"mm[Hg]": 1.0, "kPa": MMHG_PER_KPA},
-    "electrolyte": {"mmol/L": 1.0},
+    # mEq/L -> mmol/L divides by the ion's charge (IUPAC: an equivalent is the amount
+    # of substance carrying one mole of charge): 1 for Na+ K+ Cl- HCO3- lactate,
+    # 2 for Ca2+ and Mg2+.  Phosphate takes no mEq/L: its mean charge depends on pH.
+    "electrolyte": {"mmol/L": 1.0, "mEq/L": 1.0},
+    "calcium": {"mmol/L": 1.0, "mEq/L": 0.5},
     "albumin": {"g/L": 1.0, "g/dL": 10.0},
     "haemoglobin": {"g/dL": 1.0, "g/L": 0.1},
     "glucose": {"mmol/L": 1.0, "mg/dL": 10.0 / GLUCOSE_G_PER_MOL},
     "urea": {"mmol/L": 1.0, "mg/dL": 10.0 / UREA_G_PER_MOL},
     "bun": {"mg/dL": 1.0, "mmol/L": UREA_N_G_PER_MOL / 10.0},
     "phosphate": {"mmol/L": 1.0, "mg/dL": 10.0 / PHOSPHORUS_G_PER_MOL},
-    "magnesium": {"mmol/L": 1.0, "mg/dL": 10.0 / MAGNESIUM_G_PER_MOL},
+    "magnesium": {"mmol/L": 1.0, "mg/dL": 10.0 / MAGNESIUM_G_PER_MOL, "mEq/L": 0.5},
     "osmolality": {"mosm/kg": 1.0},
     "fraction": {"1": 1.0, "%": 0.01},
     "temperature": {"Cel": 1.0},
@@ -75,6 +79,8 @@ FACTORS: dict[str, dict[str, float]] = {
 
 def normalise(unit: str) -> str:
     """The UCUM code for a unit label, accepting the common aliases."""
+    if not isinstance(unit, str):
+        return repr(unit)
     text = unit.strip()
     return ALIASES.get(text.lower(), text)
 
@@ -84,8 +90,10 @@ def factor(field: str, kind: str, unit: str) -> float:
 
     Raises ``UnitError`` naming the field and the units it accepts.
     """
-    code = normalise(unit)
     table = FACTORS[kind]
+    if not isinstance(unit, str):
+        raise UnitError(field=field, unit=repr(unit), accepted=tuple(table))
+    code = normalise(unit)
     if code not in table:
         raise UnitError(field=field, unit=unit, accepted=tuple(table))
     return table[code]
@@ -123,6 +131,9 @@ def also_ordinary(field: str, value: float | str, unit: str) -> tuple[str, ...]:
     except (TypeError, ValueError):
         return ()
     lo, hi = spec.physiologic
+    table = FACTORS[spec.kind]
     given = normalise(unit)
-    return tuple(other for other, f in FACTORS[spec.kind].items()
-                 if other != given and lo <= number * f <= hi)
+    same = table.get(given)
+    # a unit with the same factor (mEq/L of a monovalent ion) reads the number the same
+    return tuple(other for other, f in table.items()
+                 if other != given and f != same and lo <= number * f <= hi)

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from acidbase import batch, loinc, serial
+from acidbase import cli, loinc, serial
 from acidbase.results import CAUTION
 
 DOC = (Path(__file__).resolve().parents[1] / "docs" / "batch.md").read_text(encoding="utf-8")
@@ -23,7 +23,7 @@ def test_delta_limits_table_is_current():
 
 def test_every_batch_option_is_documented():
     p = argparse.ArgumentParser()
-    batch.configure_parser(p)
+    cli.configure_batch_parser(p)
     options = [o for a in p._actions for o in a.option_strings if o.startswith("--")]
     missing = [o for o in options if o != "--help" and f"`{o}" not in DOC]
     assert not missing, missing

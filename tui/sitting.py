@@ -39,18 +39,20 @@ class Entry:
     """The mapping for ``Panel.model_validate``: values, ``<name>_unit``, choices, text."""
     note: str = ""
     """A free note shown beside the entry (the demo panels carry one); not saved."""
+    context: dict[str, Any] | None = None
+    """How its cells are read (``{"decimal": ","}`` for a file with decimal commas)."""
 
     def panel(self) -> acidbase.Panel | None:
         """The validated panel, or None when the engine refuses it."""
         try:
-            return acidbase.Panel.model_validate(self.data)
+            return acidbase.Panel.model_validate(self.data, context=self.context)
         except ValidationError:
             return None
 
     def problems(self) -> list[str]:
         """The engine's messages for what it refuses (empty when accepted)."""
         try:
-            acidbase.Panel.model_validate(self.data)
+            acidbase.Panel.model_validate(self.data, context=self.context)
         except ValidationError as e:
             return acidbase.describe(e)
         return []
@@ -189,32 +191,48 @@ class SittingFileError(ValueError):
 
 
 def read_csv(path: str | os.PathLike[str]) -> tuple[list[Entry], list[str]]:
-    """Entries from a file with our columns; returns (entries, notes for the user).
+    """Entries from a panel file; returns (entries, notes for the user).
 
-    Cells are passed to the engine as text: it parses and checks them, so a
-    refused row becomes an entry that shows the engine's messages.  Columns
-    that are not ours are named in the notes and not read.
+    The file is an ordinary batch file, opened by the library's file reader
+    (``acidbase.files``): CSV with any of the delimiters ``acidbase batch`` detects
+    and a decimal comma, JSON Lines or Parquet; headers as field names, LOINC codes
+    or names with a unit (``pCO2 (kPa)``).  Cells are kept as written and read by
+    the library's one cell reader when each entry is validated, so a refused row
+    becomes an entry that shows the same message ``acidbase batch`` writes.
     """
+    from acidbase.errors import AcidBaseError
+    from acidbase.files import formats, headers, source
+
     try:
-        with open(path, newline="", encoding="utf-8-sig") as fh:
-            reader = csv.DictReader(fh)
-            headers = [h.strip() for h in (reader.fieldnames or [])]
-            rows = list(reader)
-    except (OSError, UnicodeDecodeError, csv.Error) as e:
+        src = source.open_source(path)
+        layout = headers.map_headers(src.headers)
+        decimal, notes = ".", []
+        if src.format == "csv":
+            numeric = [i for i, h in enumerate(src.headers)
+                       if layout.field_of.get(h) in acidbase.fields.BY_NAME]
+            try:
+                decimal = formats.detect_decimal(source.csv_sample(src), numeric,
+                                                 src.delimiter)
+            except AcidBaseError:  # the app has no --decimal: a point, and say so
+                notes.append("numbers with a decimal comma and with a point: read with a "
+                             "decimal point (cells with a comma are refused)")
+        tables = list(src.chunks())
+    except (AcidBaseError, OSError, UnicodeDecodeError) as e:
         raise SittingFileError(f"{path}: {e}") from e
-    missing = [n for n in acidbase.fields.REQUIRED if n not in headers]
-    if missing:
-        raise SittingFileError(f"{path}: no column {', '.join(missing)}; see docs/tui.md")
-    notes = []
-    unread = [h for h in headers if h not in COLUMNS]
-    if unread:
-        notes.append("columns not read: " + ", ".join(unread))
+    if layout.unread:
+        notes.append("columns not read: " + ", ".join(layout.unread))
+    units = {f"{name}_unit": unit for name, unit in layout.units.items()
+             if unit != acidbase.fields.BY_NAME[name].unit}
+    context = {"decimal": decimal} if decimal != "." else None
     entries = []
-    for row in rows:
-        data = {}
-        for key, cell in row.items():
-            name = (key or "").strip()
-            if name in COLUMNS and cell is not None and cell.strip():
-                data[name] = cell.strip()
-        entries.append(Entry(data))
+    for table in tables:
+        columns = {fld: table.column(h).to_pylist() for h, fld in layout.field_of.items()
+                   if fld in COLUMNS}
+        for i in range(table.num_rows):
+            data: dict[str, Any] = dict(units)
+            for fld, cells in columns.items():
+                cell = cells[i]
+                if cell is not None and not (isinstance(cell, str) and not cell.strip()):
+                    data[fld] = cell
+            entries.append(Entry(data, context=context))
     return entries, notes

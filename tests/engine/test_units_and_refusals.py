@@ -205,11 +205,12 @@ def test_every_problem_is_collected_in_one_error():
 @pytest.mark.parametrize(
     ("changes", "type_", "loc"),
     [
-        ({"ph": "seven"}, "float_parsing", ("ph",)),
-        ({"ph": float("nan")}, "finite_number", ("ph",)),
-        ({"pco2": float("inf")}, "finite_number", ("pco2",)),
+        # the one cell reader's kinds (acidbase.inputs.cells; NaN is "not measured")
+        ({"ph": "seven"}, "not_a_number", ("ph",)),
+        ({"ph": float("nan")}, "missing", ("ph",)),
+        ({"pco2": float("inf")}, "not_a_number", ("pco2",)),
         ({"colour": "red"}, "extra_forbidden", ("colour",)),
-        ({"sample_type": "arterialised"}, "literal_error", ("sample_type",)),
+        ({"sample_type": "arterialised"}, "not_a_choice", ("sample_type",)),
     ],
 )
 def test_malformed_input_is_refused_by_pydantic(changes, type_, loc):
@@ -241,4 +242,4 @@ def test_batch_keeps_a_refused_row_with_the_same_message():
     assert res.refused.tolist() == [False, True]
     assert res.interpretation(0).status == "interpreted"
     assert res.interpretation(1).status == "refused"
-    assert res.interpretation(1).problems == (only(refusal(pco2=5.3))["msg"],)
+    assert tuple(map(str, res.interpretation(1).problems)) == (only(refusal(pco2=5.3))["msg"],)

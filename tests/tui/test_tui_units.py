@@ -116,3 +116,9 @@ async def test_converting_keeps_the_quantity_and_reinterpreting_keeps_the_number
         await pilot.pause()
         assert (field(app, "pco2").text, field(app, "pco2").unit) == ("5.333", "mm[Hg]")
         assert field(app, "pco2").has_class("-refused")
+
+
+def test_a_unit_that_reads_the_number_the_same_is_never_hinted():
+    """mEq/L of a monovalent ion is mmol/L (IUPAC: one mole of charge per equivalent)."""
+    assert acidbase.also_ordinary("na", "140", "mmol/L") == ()
+    assert acidbase.also_ordinary("pco2", "12", "mm[Hg]") == ("kPa",)

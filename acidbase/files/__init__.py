@@ -1,0 +1,2 @@
+"""Panel files: formats and dialects, headers (LOINC with specimen), chunked sources,
+collection times, and ``check_table`` (one Arrow batch in, one checked batch out)."""

@@ -1,0 +1,329 @@
+"""``check_table``: one Arrow batch of panels in, the same rows checked out.
+
+What ``acidbase batch`` does for one chunk, as a library function with no
+command line inside: any engine that maps a function over Arrow batches can call
+it.  Each cell is read by the one cell reader (``acidbase.inputs``) inside
+``interpret_many``, so a row's refusal is decided once, there, and travels as
+``Problem`` objects until the ``reason`` column is written.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+import numpy as np
+import pyarrow as pa
+import pyarrow.compute as pc
+
+from .. import loinc, serial
+from ..api import interpret_many
+from ..errors import Problem
+from ..fields import BY_NAME
+from ..inputs.vocab import normalise_word
+from ..reference import Settings
+from ..results import CAUTION, DERIVED
+from .headers import Layout, map_headers
+
+#: Columns ``check_table`` adds around the kernel's own (``Results.encoded``).
+ROW_COLUMN = "row"
+EXTRA_COLUMNS: tuple[str, ...] = ("needs_review", "qualifiers", "lab_flags",
+                                  *serial.COLUMNS, "caution")
+
+
+def review_rules() -> list[int]:
+    """Indices of the rules that put a row up for review: the trust findings above
+    "info" (the panel itself is in doubt)."""
+    from ..rules import RULES
+
+    return [j for j, r in enumerate(RULES) if r.section == "trust" and r.severity != "info"]
+
+
+def review_mask(fired: np.ndarray, refused: np.ndarray) -> np.ndarray:
+    """Refused, or a trust finding above "info" (the serial flags are added later)."""
+    idx = review_rules()
+    trust = fired[idx].any(axis=0) if idx else np.zeros(len(refused), dtype=bool)
+    return refused | trust
+
+
+def sparse_text(col: np.ndarray, where: np.ndarray) -> pa.Array:
+    """Text that is "" except on the rows of ``where`` (converted only there)."""
+    idx = np.flatnonzero(where)
+    if idx.size == 0:
+        return pa.repeat(pa.scalar("", pa.string()), len(col))
+    pos = np.full(len(col), -1, dtype=np.int64)
+    pos[idx] = np.arange(idx.size)
+    values = pa.array(col[idx], type=pa.string())
+    return pc.fill_null(pc.take(values, pa.array(pos, mask=pos < 0)), "")
+
+
+def _marks_column(marks: list[tuple[str, ...]] | None, n: int) -> pa.Array:
+    """Per-row marks ("lactate <0.3") written as one text cell, "; " between them."""
+    if marks is None:
+        return pa.repeat(pa.scalar("", pa.string()), n)
+    return pa.array(["; ".join(m) for m in marks], type=pa.string())
+
+
+def chunk_columns(table: pa.Table | pa.RecordBatch, layout: Layout) -> dict[str, Any]:
+    """The input columns the kernel reads, by field name (Arrow columns, as read)."""
+    return panel_columns(table, layout)[0]
+
+
+def _filled(column: pa.Array | pa.ChunkedArray, missing: Sequence[str]) -> np.ndarray:
+    """Rows whose cell holds something (not null, not blank, not a missing token)."""
+    if isinstance(column, pa.ChunkedArray):
+        column = column.combine_chunks()
+    if pa.types.is_dictionary(column.type):
+        column = column.dictionary_decode()
+    valid = np.asarray(pc.is_valid(column).to_numpy(zero_copy_only=False), dtype=bool)
+    if pa.types.is_string(column.type) or pa.types.is_large_string(column.type):
+        text = pc.utf8_trim_whitespace(column)
+        blank = pc.equal(text, "")
+        if missing:
+            blank = pc.or_(blank, pc.is_in(text, value_set=pa.array(list(missing), pa.string())))
+        valid &= ~np.asarray(pc.fill_null(blank, True).to_numpy(zero_copy_only=False), dtype=bool)
+    elif pa.types.is_floating(column.type):
+        valid &= ~np.isnan(np.asarray(pc.fill_null(column, 0.0).to_numpy(zero_copy_only=False),
+                                      dtype=np.float64))
+    return valid
+
+
+def _as_text(column: pa.Array | pa.ChunkedArray) -> pa.Array:
+    if isinstance(column, pa.ChunkedArray):
+        column = column.combine_chunks()
+    if pa.types.is_dictionary(column.type):
+        column = column.dictionary_decode()
+    return column if pa.types.is_string(column.type) else column.cast(pa.string())
+
+
+def panel_columns(table: pa.Table | pa.RecordBatch, layout: Layout,
+                  missing: Sequence[str] = ()) -> tuple[dict[str, Any], dict[int, list[Problem]]]:
+    """The kernel's columns of one table (by field name), and the rows refused before any
+    cell is read: what a LOINC-coded table's specimens imply (``acidbase.loinc``).
+
+    * A field with one column per specimen reads, row by row, the column that is
+      filled; a row with two filled is refused (``specimen_conflict``).
+    * A row's sample type comes from its ``sample_type`` cell or, when that is empty
+      or absent, from the specimen of the LOINC-coded columns filled on the row; a
+      cell that contradicts them, or columns naming two specimens, refuse the row.
+    * ``hco3_source`` is set the same way from a bicarbonate or total CO2 code.
+
+    The columns stay Arrow (or text) for the one cell reader; this function reads
+    no value.  Also the entry point for other inputs with LOINC-coded columns (HL7).
+    """
+    missing = tuple(missing) or layout_missing(layout)
+    n = table.num_rows
+    problems: dict[int, list[Problem]] = {}
+    cols: dict[str, Any] = {}
+    specimen = np.full(n, None, dtype=object)  # sample type named by the filled columns
+    source = np.full(n, None, dtype=object)    # HCO3- source named by the filled columns
+
+    def conflict(rows: np.ndarray, name: str, title: str, value: str, hint: str) -> None:
+        for i in np.flatnonzero(rows).tolist():
+            problems.setdefault(i, []).append(Problem(name, title, value, "",
+                                                      kind="specimen_conflict", hint=hint))
+
+    for fld, headers in layout.columns_of.items():
+        if fld not in BY_NAME and fld not in ("sample_type", "hco3_source"):
+            continue
+        if len(headers) == 1 and not any(_implies(layout, h) for h in headers):
+            cols[fld] = table.column(headers[0])
+            continue
+        filled = {h: _filled(table.column(h), missing) for h in headers}
+        if len(headers) > 1:
+            count = np.sum([f for f in filled.values()], axis=0)
+            title = BY_NAME[fld].title if fld in BY_NAME else fld
+            conflict(count > 1, fld, title, " and ".join(headers),
+                     "a row may fill one specimen's column of a field, not two")
+            merged = None
+            for h in headers:
+                text = _as_text(table.column(h))
+                merged = text if merged is None else pc.if_else(pa.array(filled[h]), text, merged)
+            cols[fld] = merged
+        else:
+            cols[fld] = table.column(headers[0])
+        for h in headers:
+            code = layout.code_of.get(h, "")
+            st = loinc.sample_type_for(code) if code and fld in SPECIMEN_FIELDS else None
+            if st is not None:
+                rows = filled[h]
+                clash = rows & (specimen != None) & (specimen != st)  # noqa: E711
+                conflict(clash, "sample_type", "Sample type", f"{h} ({loinc.SPECIMEN[code]})",
+                         "the row's LOINC-coded columns name different specimens")
+                specimen[rows & (specimen == None)] = st  # noqa: E711
+            src = loinc.HCO3_SOURCE_OF_CODE.get(code)
+            if src is not None:
+                source[filled[h]] = src
+    for name, implied, title in (("sample_type", specimen, "Sample type"),
+                                 ("hco3_source", source, "HCO3- source")):
+        if not any(v is not None for v in implied.tolist()):
+            continue
+        given = cols.get(name)
+        words = np.full(n, None, dtype=object)
+        if given is not None:
+            text = _as_text(given).to_pylist()
+            for i, cell in enumerate(text):
+                if cell is not None and cell.strip() and cell.strip() not in missing:
+                    words[i] = cell
+        out = words.copy()
+        for i in range(n):
+            want = implied[i]
+            if want is None:
+                continue
+            if words[i] is None:
+                out[i] = want
+            elif normalise_word(words[i]) != want and normalise_word(words[i]) != "unknown":
+                problems.setdefault(i, []).append(Problem(
+                    name, title, words[i], "", kind="specimen_conflict",
+                    hint=f"the row's LOINC-coded columns say {want}; correct the {name} cell "
+                         "or the column"))
+        cols[name] = out
+    return cols, problems
+
+
+#: The fields whose LOINC specimen sets the row's sample type: the blood-gas values,
+#: whose reference intervals depend on it.  Electrolytes, lactate, haemoglobin...
+#: keep their own specimens (a serum sodium beside an arterial gas is ordinary).
+SPECIMEN_FIELDS: tuple[str, ...] = ("ph", "pco2", "po2", "hco3")
+
+
+def _implies(layout: Layout, header: str) -> bool:
+    """True when the header's LOINC code sets a sample type or an HCO3- source."""
+    code = layout.code_of.get(header)
+    if not code:
+        return False
+    return (layout.field_of.get(header) in SPECIMEN_FIELDS
+            and loinc.sample_type_for(code) is not None) or code in loinc.HCO3_SOURCE_OF_CODE
+
+
+def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
+                settings: Settings | None, checker: serial.SerialChecker | None, start: int,
+                keep: tuple[str, ...] = DERIVED, missing: Sequence[str] = ()
+                ) -> tuple[dict[str, pa.Array], dict]:
+    """The output columns of one chunk (kernel, review, marks, serial, caution) and what
+    the summary needs (``meta``: refused and review masks, fired rules, counts)."""
+    n = table.num_rows
+    units = {k: v for k, v in layout.units.items() if v != BY_NAME[k].unit}
+    missing = tuple(missing) or layout_missing(layout)
+    columns, row_problems = panel_columns(table, layout, missing)
+    for row, keys in getattr(layout, "duplicates", {}).items():
+        if start <= row < start + n:
+            row_problems.setdefault(row - start, []).insert(0, Problem(
+                "record", "JSON record", ", ".join(keys), "", kind="duplicate_key",
+                hint="a record gives each key once; which value was meant cannot be told"))
+    res = interpret_many(columns, units or None, settings, decimal=decimal, missing=missing,
+                         row_problems=row_problems)
+    tab = res.encoded()  # text columns as (indices, labels): no cell-by-cell conversion
+    refused = np.asarray(res.refused, dtype=bool)
+    counts = {"reasons": Counter(res.problem_counts())}
+    marks = res.has_marks()
+    quals = res.qualifiers() if marks else None
+    flags = res.lab_flags() if marks else None
+    counts["qualifiers"] = _qualifier_counts(res) if marks else Counter()
+    counts["lab_flags"] = Counter(f for row in flags for f in row) if marks else Counter()
+    fired = res.fired
+    pco2, hco3 = res.values("pco2"), res.values("hco3")
+    plain_fields = res.plain
+    del res  # the kernel's frame (about 150 columns) is not needed past here
+    review = review_mask(fired, refused)
+    out: dict[str, pa.Array] = {}
+    engine_cols = [k for k in tab if not (k in DERIVED and k not in keep)]
+    for key in engine_cols:
+        col = tab.pop(key)  # each numpy column is let go once it is an Arrow one
+        if key == "status":  # two values: built from the mask, not converted cell by cell
+            arr = pc.if_else(pa.array(refused), "refused", "interpreted")
+        elif key == "reason":
+            arr = sparse_text(col, refused)
+        elif isinstance(col, tuple):
+            indices, labels = col
+            arr = pa.DictionaryArray.from_arrays(
+                pa.array(indices, type=pa.int32()), pa.array(labels, type=pa.string())
+            ).cast(pa.string())
+        elif col.dtype == object:
+            arr = pa.array(col, type=pa.string())
+        elif col.dtype.kind == "f":
+            arr = pa.array(col, mask=np.isnan(col))
+        else:
+            arr = pa.array(col)
+        out[key] = arr
+    if checker is not None:
+        scols = checker.arrow_columns(start, start + n)
+        review = review | (checker.status[start:start + n] == serial.FLAGGED)
+    else:
+        scols = {"serial_status": pa.repeat(pa.scalar("not run"), n),
+                 "serial_codes": pa.repeat(pa.scalar(""), n),
+                 "serial_detail": pa.repeat(pa.scalar(""), n)}
+    out["needs_review"] = pc.if_else(pa.array(review), "yes", "no")
+    out["qualifiers"] = _marks_column(quals, n)
+    out["lab_flags"] = _marks_column(flags, n)
+    for k in serial.COLUMNS:
+        out[k] = scols[k]
+    first = CAUTION if start == 0 else None
+    out["caution"] = pa.concat_arrays([pa.array([first], type=pa.string()),
+                                       pa.nulls(n - 1, pa.string())]) if n else \
+        pa.array([], type=pa.string())
+    # Input columns read in full as numbers (or as allowed words) carry nothing a
+    # spreadsheet would run: their escaping is skipped (it would change no cell).
+    col_of = layout.column_of
+    plain = frozenset(col_of[f] for f in plain_fields if f in col_of)
+    meta = {"engine_cols": engine_cols, "plain": plain, "refused": refused, "review": review,
+            "fired": fired, "pco2": pco2, "hco3": hco3, "counts": counts}
+    return out, meta
+
+
+def layout_missing(layout: Layout) -> tuple[str, ...]:
+    return tuple(getattr(layout, "missing", ()) or ())
+
+
+def _qualifier_counts(res) -> Counter:
+    """Censored values by field and comparator ("lactate <#"), from the structured reading."""
+    out: Counter = Counter()
+    for part in res.parts:
+        for name, p in part.screened.readings.items():
+            if p.comparator is None:
+                continue
+            marks = p.comparator
+            cells = marks.tolist() if isinstance(marks, np.ndarray) else marks.to_pylist()
+            out.update(f"{name} {cmp}#" for cmp in cells if cmp is not None)
+    return out
+
+
+def output_names(headers: Sequence[str], engine_cols: Sequence[str]) -> dict[str, str]:
+    """Input header -> output name (renamed only when it collides with ours)."""
+    ours = {ROW_COLUMN, *engine_cols, *EXTRA_COLUMNS}
+    return {h: (f"{h} (input)" if h in ours else h) for h in headers}
+
+
+def check_table(table: pa.Table | pa.RecordBatch, settings: Settings | None = None, *,
+                units: Mapping[str, str] | None = None,
+                mapping: Mapping[str, tuple[str, str | None]] | None = None,
+                decimal: str = ".", missing: Sequence[str] = (),
+                derived: Sequence[str] = DERIVED, start: int = 0) -> pa.Table:
+    """Check every panel of one Arrow batch: the batch file's rows for it.
+
+    Headers are read as ``acidbase batch`` reads them (field names, LOINC codes with
+    their specimen, ``mapping``: header -> (field, unit)); ``units`` as ``--unit``.
+    The result has one row per input row, in order: ``row`` (``start`` + 1 onwards),
+    every input column passed through (renamed "<name> (input)" where it collides
+    with ours), then status, reason, the reading, derived values, review, marks,
+    serial columns ("not run": they need the whole file) and the caution.
+
+    Raises ``BatchInputError`` when the headers cannot be read as panels (a required
+    field without a column, two columns for one field...).
+    """
+    if isinstance(table, pa.RecordBatch):
+        table = pa.Table.from_batches([table])
+    layout = map_headers(table.schema.names, mapping, units)
+    out, meta = check_chunk(table, layout, decimal, settings, None, start,
+                            tuple(derived), missing)
+    names = output_names(layout.headers, meta["engine_cols"])
+    cols: dict[str, Any] = {ROW_COLUMN: pa.array(np.arange(start + 1, start + table.num_rows + 1))}
+    for h in layout.headers:
+        cols[names[h]] = table.column(h)
+    cols.update(out)
+    return pa.table(cols)
+
+
+__all__ = ["EXTRA_COLUMNS", "ROW_COLUMN", "check_chunk", "check_table", "output_names",
+           "review_mask", "review_rules"]

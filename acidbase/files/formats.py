@@ -1,0 +1,139 @@
+"""Input file formats and CSV dialects: which format, which delimiter, which decimal mark.
+
+Formats: CSV (delimiter detected among ``, ; TAB |`` or given; decimal comma
+detected or given; UTF-8 with or without a byte-order mark, or another encoding
+by option), JSON Lines, Parquet.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import os
+import re
+from collections.abc import Sequence
+from dataclasses import dataclass
+from pathlib import Path
+
+from ..errors import BatchInputError
+
+DELIMITERS: tuple[str, ...] = (",", ";", "\t", "|")
+FORMATS: tuple[str, ...] = ("csv", "jsonl", "parquet")
+
+
+def detect_format(path: str | os.PathLike[str], given: str | None = None) -> str:
+    """``csv``, ``jsonl`` or ``parquet``: as given, else from the name, else the bytes."""
+    if given:
+        if given not in FORMATS:
+            raise BatchInputError(f"format {given!r} is not one of {', '.join(FORMATS)}")
+        return given
+    suffix = Path(path).suffix.lower()
+    if suffix in (".csv", ".tsv", ".txt"):
+        return "csv"
+    if suffix in (".jsonl", ".ndjson", ".json"):
+        return "jsonl"
+    if suffix in (".parquet", ".pq"):
+        return "parquet"
+    with open(path, "rb") as f:
+        head = f.read(4)
+    if head == b"PAR1":
+        return "parquet"
+    if head.lstrip(b"\xef\xbb\xbf \t\r\n").startswith(b"{"):
+        return "jsonl"
+    return "csv"
+
+
+@dataclass(frozen=True)
+class Dialect:
+    delimiter: str
+    headers: tuple[str, ...]
+    sample: tuple[tuple[str, ...], ...]
+    """The first data rows (for decimal detection)."""
+    multiline: bool = False
+    """A quoted cell of the first rows holds a line break (slower parsing needed)."""
+
+
+def _read_text_sample(path: str | os.PathLike[str], encoding: str, size: int = 1 << 16) -> str:
+    with open(path, "rb") as f:
+        raw = f.read(size)
+    if not raw.strip():
+        raise BatchInputError(f"{path}: the file is empty")
+    codec = "utf-8-sig" if encoding.lower().replace("_", "-") in ("utf-8", "utf8") else encoding
+    try:
+        text = raw.decode(codec)
+    except UnicodeDecodeError as e:
+        if len(raw) == size and e.start >= len(raw) - 4:  # cut by the sample boundary
+            text = raw[: e.start].decode(codec)
+        else:
+            raise BatchInputError(
+                f"{path}: byte 0x{raw[e.start]:02x} at position {e.start} is not {encoding}; "
+                "save the file as UTF-8 or give --encoding (for example cp1252)") from None
+    except LookupError:
+        raise BatchInputError(f"encoding {encoding!r} is not known") from None
+    return text
+
+
+def sniff_csv(path: str | os.PathLike[str], delimiter: str | None = None,
+              encoding: str = "utf-8") -> Dialect:
+    """The delimiter (given, or the one that splits the first rows evenly) and headers."""
+    text = _read_text_sample(path, encoding)
+    cut = len(text.encode("utf-8", "replace")) >= (1 << 16) - 4
+    candidates = (delimiter,) if delimiter else DELIMITERS
+    # The delimiter that gives the header at least two columns and most rows the
+    # header's width (a ragged line is reported later, by the reader, with its text).
+    best: tuple[float, int, str, list[list[str]]] | None = None
+    for d in candidates:
+        try:
+            rows = [r for r in csv.reader(io.StringIO(text, newline=""), delimiter=d)
+                    if any(c.strip() for c in r)]
+        except csv.Error:
+            continue
+        if cut and len(rows) > 1:
+            rows = rows[:-1]  # the last row of the sample may be cut
+        rows = rows[:50]
+        width = len(rows[0]) if rows else 0
+        if width < 2:
+            continue
+        agree = sum(len(r) == width for r in rows) / len(rows)
+        if agree >= 0.5 and (best is None or (agree, width) > best[:2]):
+            best = (agree, width, d, rows)
+    if best is None:
+        raise BatchInputError(
+            f"{path}: could not tell the delimiter (tried {_show_delims(candidates)}): the "
+            "first lines do not split into the same number of columns; give --delimiter")
+    _, _, d, rows = best
+    headers = tuple(h.strip() for h in rows[0])
+    multiline = any("\n" in c or "\r" in c for r in rows for c in r)
+    return Dialect(d, headers, tuple(tuple(r) for r in rows[1:]), multiline)
+
+
+def _show_delims(ds: Sequence[str]) -> str:
+    return " ".join({"\t": "TAB"}.get(d, repr(d)) for d in ds)
+
+
+def detect_decimal(sample: Sequence[Sequence[str]], numeric_columns: Sequence[int],
+                   delimiter: str) -> str:
+    """"," when the numeric cells of the sample use a decimal comma, else ".".
+
+    Refuses to choose when both appear; the comma is never taken as a
+    thousands separator.
+    """
+    comma = point = 0
+    pat_comma = re.compile(r"\d,\d")
+    pat_point = re.compile(r"\d\.\d")
+    for row in sample:
+        for j in numeric_columns:
+            if j < len(row):
+                cell = row[j]
+                comma += bool(pat_comma.search(cell))
+                point += bool(pat_point.search(cell))
+    if comma and point:
+        raise BatchInputError(
+            "the numbers in the first rows use both a decimal comma and a decimal point; "
+            "give --decimal , or --decimal .")
+    if comma and delimiter == ",":
+        raise BatchInputError(
+            "numbers with a decimal comma in a comma-separated file are ambiguous; "
+            "give --decimal ,")
+    return "," if comma else "."
+
