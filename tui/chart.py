@@ -87,8 +87,8 @@ def chart_report(reading: acidbase.Interpretation, data: dict[str, Any],
         ("Tool", f"acidbase {acidbase.__version__} (terminal app)"),
         ("Site settings", settings_words(settings)),
         ("Values as keyed", "; ".join(keyed_values(data))),
-        ("Sample", f"{data.get('sample_type', 'unknown')}; HCO3- source: "
-                   f"{data.get('hco3_source', 'unknown')}"),
+        ("Sample", (f"{data.get('sample_type', 'unknown')}; HCO3- source: "
+                    f"{data.get('hco3_source', 'unknown')}")),
     ]
     if markdown:
         head = ["# acidbase reading for the chart", ""]

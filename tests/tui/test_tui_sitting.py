@@ -339,3 +339,15 @@ def test_columns_that_are_not_ours_are_named_and_not_read(tmp_path):
     entries, notes = read_csv(path)
     assert notes == ["columns not read: ward"]
     assert entries[0].panel() is not None
+
+
+async def test_ctrl_y_copies_the_report_for_the_chart():
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in_labelled(pilot)
+        await pilot.press("ctrl+y")
+        await pilot.pause()
+        copied = app.clipboard
+        assert copied.startswith("acidbase reading for the chart")
+        assert "P-0042" in copied and "pCO2 5.33 kPa" in copied
+        assert " ".join(acidbase.CAUTION.split()) in " ".join(copied.split())

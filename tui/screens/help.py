@@ -35,8 +35,8 @@ MOVING: dict[str, list[tuple[str, str]]] = {
 }
 
 PLACES: tuple[tuple[str, list[Binding]], ...] = (
-    ("Entry (the form: pH, pCO2, pO2, HCO3-, FiO2, sample, HCO3- source, electrolytes, "
-     "more values, time and ids)", EntryScreen.BINDINGS),
+    (("Entry (the form: pH, pCO2, pO2, HCO3-, FiO2, sample, HCO3- source, electrolytes, "
+      "more values, time and ids)"), EntryScreen.BINDINGS),
     ("Sample, HCO3- source and other answer fields", ChoiceField.BINDINGS),
     ("Finding", FindingScreen.BINDINGS),
     ("Plane", PlaneScreen.BINDINGS),

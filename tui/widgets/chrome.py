@@ -8,7 +8,6 @@ from textual.widgets import DataTable, Static
 
 import acidbase
 
-
 #: The caution in at most two rows at 80 columns; F1 shows it in full (``acidbase.CAUTION``),
 #: and every saved report carries the full text.
 SHORT_CAUTION = ("Caution: supports, never replaces, licensed clinicians and the local "
