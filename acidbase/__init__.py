@@ -18,4 +18,4 @@ __all__ = [
     "convert", "describe", "describe_fields", "interpret", "interpret_many",
     "plane_bands",
 ]
-__version__ = "0.1.0"
+__version__ = "0.2.0"

@@ -78,8 +78,9 @@ def standard_base_excess(ph: Array, hco3: Array) -> Array:
 #   HCO3:  its own relative error
 #
 # Analyser-calculated HCO3: the analyser derived it from the same pH and pCO2, so
-# their measurement errors cancel; what is left is printing to 0.01 pH, 1 mm[Hg]
-# and 0.1 mmol/L, and the spread between the pK'/solubility conventions in use
+# their measurement errors cancel; what is left is each value's printed precision
+# (half its last printed step, read from the number as given: ``printed_half_step``;
+# a whole number is taken as printed to 1, pH as printed to at least 0.01), and the spread between the pK'/solubility conventions in use
 # (24.02 to 24.79 mmol/L at pH 7.40 / pCO2 40: +/- 1.6 %) [clsi_c46,
 # kassirer_bleich_1965].  The worst cases are added (a bound, not a
 # standard deviation) [acidbase_design].
@@ -89,12 +90,21 @@ def standard_base_excess(ph: Array, hco3: Array) -> Array:
 # total CO2 +/- 20 % [clia_2024], combined as a root sum of squares; the
 # measured total CO2 is compared with the calculated total CO2 (HCO3 + 0.0307
 # pCO2).  Agreement studies find 95 % limits of about -4 to +5 mmol/L
-# [chittamma_2008, kumar_2017], inside this band at ordinary values.
+# [chittamma_2008, kumar_2017]: an absolute band that is wider than the relative
+# CLIA band at low total CO2, so the wider of the two is used, plus the printed
+# precision of the entered value.
 
-ROUNDING_PH = 0.005
-ROUNDING_PCO2 = 0.5
-ROUNDING_HCO3 = 0.05
 CONVENTION_SPREAD = 0.016
+#: pH is printed to at least 0.01 on blood-gas reports (design assumption, stated in
+#: the working): a pH typed as 7.4 is taken as 7.40.
+PH_MIN_DECIMALS = 2
+
+#: Widest 95 % limit of agreement between a chemistry total CO2 and the total CO2
+#: calculated from the gas's pH and pCO2: -1.45 to +5.33 mmol/L (calculated minus
+#: measured) [chittamma_2008]; Kumar 2017 found -4.1 to +2.3 (measured total CO2 minus
+#: calculated HCO3-, venous against arterial) [kumar_2017], inside it.  Used
+#: symmetrically, since the sign of the bias differs between studies.
+CHEMISTRY_AGREEMENT = 5.33
 
 CLIA_PH = 0.04
 CLIA_PCO2_FRACTION = 0.08
@@ -102,19 +112,42 @@ CLIA_PCO2_MMHG = 5.0
 CLIA_TOTAL_CO2_FRACTION = 0.20
 
 
-def consistency_tolerance_analyser(pco2: Array, hco3_calc: Array) -> Array:
-    """Largest |entered - calculated| HCO3 explained by printing and convention (mmol/L)."""
+def printed_half_step(x: Array, min_decimals: int = 0, max_decimals: int = 3) -> Array:
+    """Half the last printed step of each value, read from the number itself.
+
+    The fewest decimals (at least ``min_decimals``) that write the value exactly decide
+    the step: 23 and 23.0 -> 0.5, 23.4 -> 0.05, 7.44 -> 0.005.  A number carries no
+    trailing zeros, so "23.0" typed on a report reads as printed to 1: the wider,
+    safer tolerance [acidbase_design].
+    """
+    step = np.full(np.shape(x), 0.5 * 10.0 ** -max_decimals)
+    with np.errstate(invalid="ignore"):
+        for d in range(max_decimals - 1, min_decimals - 1, -1):
+            scaled = x * 10.0**d
+            whole = np.abs(scaled - np.round(scaled)) < 1e-6 * np.maximum(1.0, np.abs(scaled))
+            step = np.where(whole, 0.5 * 10.0**-d, step)
+    return step
+
+
+def consistency_tolerance_analyser(pco2: Array, hco3_calc: Array, ph_step: Array,
+                                   pco2_step: Array, hco3_step: Array) -> Array:
+    """Largest |entered - calculated| HCO3 explained by printing and convention (mmol/L).
+
+    ``*_step`` are half the printed steps of pH, pCO2 and the entered HCO3.
+    """
     with np.errstate(divide="ignore", invalid="ignore"):
-        rel = (LN10 * ROUNDING_PH + ROUNDING_PCO2 / pco2 + CONVENTION_SPREAD)
-    return hco3_calc * rel + ROUNDING_HCO3
+        rel = (LN10 * ph_step + pco2_step / pco2 + CONVENTION_SPREAD)
+    return hco3_calc * rel + hco3_step
 
 
-def consistency_tolerance_chemistry(pco2: Array, tco2_calc: Array) -> Array:
-    """Largest |measured - calculated| total CO2 explained by analytic error (mmol/L)."""
+def consistency_tolerance_chemistry(pco2: Array, tco2_calc: Array, hco3_step: Array) -> Array:
+    """Largest |measured - calculated| total CO2 explained by analytic error (mmol/L):
+    the CLIA-propagated band or the published agreement band, whichever is wider, plus
+    the printed precision of the measured value."""
     with np.errstate(divide="ignore", invalid="ignore"):
         pco2_rel = np.maximum(CLIA_PCO2_FRACTION, CLIA_PCO2_MMHG / pco2)
         rel = np.sqrt((LN10 * CLIA_PH) ** 2 + pco2_rel**2 + CLIA_TOTAL_CO2_FRACTION**2)
-    return tco2_calc * rel
+    return np.maximum(tco2_calc * rel, CHEMISTRY_AGREEMENT) + hco3_step
 
 
 # --- Temperature correction -------------------------------------------------

@@ -35,7 +35,8 @@ def _help(text: str) -> str:
 
 def add_panel_options(p: argparse.ArgumentParser) -> None:
     """One option per panel field and one per unit (shared by check and tui)."""
-    g = p.add_argument_group("panel values (required: --ph --pco2 --hco3 --na --cl)")
+    g = p.add_argument_group("panel values (required: --ph --pco2 --hco3; without --na and "
+                             "--cl the gap-based readings are not assessable)")
     for spec in NUMERIC:
         opt = spec.name.replace("_", "-")
         g.add_argument(f"--{opt}", dest=spec.name, metavar="X",
@@ -178,7 +179,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
     from .demo import DEMO_PANELS
 
     columns: dict[str, list[Any]] = {}
-    names = [s.name for s in NUMERIC] + ["sample_type", "hco3_source"]
+    names = [s.name for s in NUMERIC] + [c.name for c in CHOICES]
     for name in names:
         columns[name] = [p.get(name) for p in DEMO_PANELS]
     numeric = {s.name for s in NUMERIC}

@@ -25,6 +25,12 @@ def _template(t: object) -> str:
     return str(t)
 
 
+def _example(example: object) -> str:
+    """One example panel as `key=value` pairs, in the order given."""
+    return "`" + ", ".join(f"{k}={v:g}" if isinstance(v, float) else f"{k}={v}"
+                           for k, v in dict(example).items()) + "`"
+
+
 def rules_markdown() -> str:
     out = [
         "# Rules",
@@ -46,6 +52,12 @@ def rules_markdown() -> str:
             if r.why:
                 out.append(f"- Why: {r.why}")
             out.append("- Sources: " + ", ".join(f"`{k}`" for k in r.refs))
+            for ex in r.fires:
+                out.append(f"- Fires on: {_example(ex)}")
+            for ex in r.quiet:
+                out.append(f"- Quiet on: {_example(ex)}")
+            if not r.quiet:
+                out.append("- Quiet on: none (fires on every panel that is read)")
             out.append("")
             used += [k for k in r.refs if k not in used]
     out += ["## Bibliography", ""]

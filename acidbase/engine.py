@@ -18,7 +18,7 @@ from . import oxygenation as oxy
 from .compensation import BASE_EXCESS_RULES, BICARBONATE_RULES, CompensationRule
 from .fields import HCO3_SOURCES, SAMPLE_TYPES
 from .model import Screened
-from .reference import Settings, interval_columns
+from .reference import ADULT_AGE, LACTATE_HIGH, Settings, interval_columns, pregnancy_columns
 
 Frame = dict[str, np.ndarray]
 
@@ -45,6 +45,7 @@ ROLE_NAMES = (None, "primary", "additional")
 SLOTS: tuple[tuple[str, str, str | None], ...] = (
     ("met_acid_high", "metabolic acidosis", "high"),
     ("met_acid_normal", "metabolic acidosis", "normal"),
+    ("met_acid_unknown", "metabolic acidosis", "unknown"),
     ("met_alk", "metabolic alkalosis", None),
     ("resp_acid", "respiratory acidosis", None),
     ("resp_alk", "respiratory alkalosis", None),
@@ -72,6 +73,12 @@ VALID_WHEN: dict[str, str] = {
 
 #: FiO2 read as room air (the age rule for the A-a gradient holds only there).
 ROOM_AIR = (0.205, 0.215)
+
+#: Largest published venous-arterial pCO2 difference: limits of agreement up to about
+#: 20 mm[Hg] [kelly_2010]; Byrne et al. 2014 found a 95 % prediction interval of about
+#: -10.7 to +2.4 kPa-equivalent mm[Hg] for the bias [byrne_2014].  A venous pCO2 above the
+#: arterial band by more than this cannot be arterial compensation.
+VENOUS_PCO2_EXCESS = 20.0
 
 
 @dataclass(frozen=True)
@@ -238,8 +245,12 @@ def compute(s: Screened, settings: Settings) -> Frame:
     else:
         f["urea_used"] = v["urea"]
 
-    for name, (lo, hi) in interval_columns(s.sample_type, ("ph", "pco2", "hco3", "sbe")).items():
+    limits = interval_columns(s.sample_type, ("ph", "pco2", "hco3", "sbe"))
+    limits = pregnancy_columns(limits, s.sample_type, s.pregnancy)
+    for name, (lo, hi) in limits.items():
         f[f"{name}_lo"], f[f"{name}_hi"] = lo, hi
+    f["pregnancy"] = s.pregnancy if s.pregnancy is not None else np.zeros(n, dtype=np.int8)
+    f["lactate_high_limit"] = np.float64(LACTATE_HIGH)
     ph_mid = (f["ph_lo"] + f["ph_hi"]) * 0.5
 
     # --- 1. trust: internal consistency (Henderson-Hasselbalch) ---------------
@@ -249,8 +260,14 @@ def compute(s: Screened, settings: Settings) -> Frame:
     tco2 = chem.total_co2(calc, pco2)
     f["total_co2_calculated"] = tco2
     f["h_kassirer_bleich"] = chem.h_ion_kassirer_bleich(pco2, hco3)
-    tol_a = chem.consistency_tolerance_analyser(pco2, calc)
-    tol_c = chem.consistency_tolerance_chemistry(pco2, tco2)
+    # Each input's printed precision, read from the number as given (the kernel sees
+    # numbers, not their text; a whole number is taken as printed to 1).
+    f["ph_step"] = chem.printed_half_step(ph, chem.PH_MIN_DECIMALS)
+    f["pco2_step"] = chem.printed_half_step(pco2)
+    f["hco3_step"] = chem.printed_half_step(hco3)
+    tol_a = chem.consistency_tolerance_analyser(pco2, calc, f["ph_step"], f["pco2_step"],
+                                                f["hco3_step"])
+    tol_c = chem.consistency_tolerance_chemistry(pco2, tco2, f["hco3_step"])
     diff_a = hco3 - calc
     diff_c = hco3 - tco2
     src = s.hco3_source
@@ -269,15 +286,25 @@ def compute(s: Screened, settings: Settings) -> Frame:
     f["consistency_difference_chemistry"] = diff_c
 
     # --- 2. processes: the bicarbonate reading -------------------------------
-    bic = _read(ph, pco2, hco3, ph_mid, f["ph_lo"], f["ph_hi"], f["pco2_lo"], f["pco2_hi"],
+    # Compensation is judged from the gas: a chemistry total CO2 comes from another
+    # sample and method, so the reading uses the HCO3- calculated from the gas's own
+    # pH and pCO2 (the gap keeps the chemistry value, measured with Na+ and Cl-).
+    hco3_gas = _select(chemistry, calc, hco3)
+    f["hco3_reading"] = hco3_gas
+    f["reading_from_gas"] = chemistry
+    bic = _read(ph, pco2, hco3_gas, ph_mid, f["ph_lo"], f["ph_hi"], f["pco2_lo"], f["pco2_hi"],
                 f["hco3_lo"], f["hco3_hi"], 24.0, BICARBONATE_RULES)
     # The metabolic compensation rules were derived in arterial blood. Venous pCO2 runs
     # higher by a variable amount [kelly_2010, byrne_2014], so a venous pCO2 above the
-    # expected band is not read as a respiratory acidosis (not assessable); one below it
-    # stays a respiratory alkalosis, since arterial pCO2 would be lower still.
+    # expected band is not read as a respiratory acidosis (not assessable) unless it lies
+    # above the band widened by the largest published venous-arterial difference; one
+    # below the band stays a respiratory alkalosis, since arterial pCO2 would be lower still.
     venous = s.sample_type == VENOUS
-    f["venous_compensation_unassessable"] = venous & bic.add["resp_acid"]
-    bic.add["resp_acid"] = bic.add["resp_acid"] & ~venous
+    f["expected_pco2_venous_high"] = bic.expected_pco2[1] + VENOUS_PCO2_EXCESS
+    beyond = venous & bic.add["resp_acid"] & (pco2 > f["expected_pco2_venous_high"])
+    f["venous_beyond_band"] = beyond
+    f["venous_compensation_unassessable"] = venous & bic.add["resp_acid"] & ~beyond
+    bic.add["resp_acid"] = bic.add["resp_acid"] & (~venous | beyond)
     for key in ("met_acid", "met_alk", "resp_acid", "resp_alk"):
         f[f"prim_{key}"] = bic.prim[key]
         f[f"add_{key}"] = bic.add[key]
@@ -285,6 +312,7 @@ def compute(s: Screened, settings: Settings) -> Frame:
     f["expected_hco3_acute_low"], f["expected_hco3_acute_high"] = bic.expected_acute
     f["expected_hco3_chronic_low"], f["expected_hco3_chronic_high"] = bic.expected_chronic
     f["metabolic_only"], f["respiratory_only"] = bic.metabolic_only, bic.respiratory_only
+    f["expected_pco2_venous_high"] = f["expected_pco2_venous_high"] + nan_unless(bic.metabolic_only)
 
     # --- gaps -------------------------------------------------------------------
     f["anion_gap"] = gaps.anion_gap(v["na"], v["cl"], hco3)
@@ -316,42 +344,54 @@ def compute(s: Screened, settings: Settings) -> Frame:
         corrected, gap = nan, judged
     f["anion_gap_corrected"] = corrected
     f["gap_judged"] = gap
+    gap_known = ~np.isnan(gap)
     gap_high = gap > f["gap_high_limit"]
     gap_large = gap >= settings.large_anion_gap
-    f["gap_high"], f["gap_large"] = gap_high, gap_large
+    f["gap_known"], f["gap_high"], f["gap_large"] = gap_known, gap_high, gap_large
+    f["gap_not_assessable"] = ~gap_known & ~s.refused
     f["delta_ratio"] = gaps.delta_ratio(gap, hco3, f["gap_normal"])
     f["delta_gap"] = gaps.delta_gap(gap, hco3, f["gap_normal"])
+    f["delta_min_fall"] = np.float64(gaps.DELTA_MIN_HCO3_FALL)
 
     # --- the disorder slots ---------------------------------------------------
     p, a = bic.prim, bic.add
     any_primary = p["met_acid"] | p["met_alk"] | p["resp_acid"] | p["resp_alk"]
-    gap_only = ~p["met_acid"] & ~a["met_acid"] & gap_large
-    f["gap_reveals_acidosis"] = gap_only
+    # A raised (albumin-corrected) gap signals a high-gap acidosis whatever the HCO3-
+    # [berend_2014, kraut_madias_2007]; the large-gap setting [gabow_1980] only grades
+    # the wording (below it a third of raised gaps had no organic acid identified).
+    gap_only = ~p["met_acid"] & ~a["met_acid"] & gap_high
+    f["gap_reveals_acidosis"] = gap_only & gap_large
+    f["gap_raised_smaller"] = gap_only & ~gap_large
     acid_primary = p["met_acid"] | (gap_only & ~any_primary)
     acid_any = p["met_acid"] | a["met_acid"] | gap_only
     role_acid = _role(acid_primary, acid_any)
     role_high = role_acid * gap_high
     ratio = f["delta_ratio"]
+    ratio_ok = ~np.isnan(ratio)
+    dgap = f["delta_gap"]
     high_active = role_high > ROLE_NONE
     # With a respiratory alkalosis, part of the fall in HCO3- is its compensation, so a
     # low ratio against a baseline of 24 does not show a second acidosis (not assessable).
+    # Below the minimum fall the delta gap (band +/-6) is read in place of the ratio.
     resp_alk_present = p["resp_alk"] | a["resp_alk"]
-    low_ratio = high_active & (ratio < 0.8)
+    low_ratio = high_active & ((ratio < 0.8) | (~ratio_ok & (dgap < -gaps.DELTA_GAP_BAND)))
     hidden_normal_gap = low_ratio & ~resp_alk_present
     f["delta_low_or_resp"] = low_ratio & resp_alk_present
     f["delta_hidden_normal_gap"] = hidden_normal_gap
-    role_normal = role_acid * ~gap_high + ADDITIONAL * hidden_normal_gap
+    role_normal = role_acid * (gap_known & ~gap_high) + ADDITIONAL * hidden_normal_gap
     # Below 0.4 the acidosis is mostly normal-gap: that part leads [delta_bands].
     mostly_normal = hidden_normal_gap & (ratio < 0.4) & (role_high == PRIMARY)
     role_normal = role_normal + (PRIMARY - ADDITIONAL) * mostly_normal
     role_high = role_high + (ADDITIONAL - PRIMARY) * mostly_normal
     resp_acid_present = p["resp_acid"] | a["resp_acid"]
-    high_hco3_for_gap = high_active & ((ratio > 2.0) | ((hco3 >= 24.0) & (f["delta_gap"] > 6.0)))
+    high_hco3_for_gap = high_active & ((ratio > 2.0)
+                                       | (~ratio_ok & (dgap > gaps.DELTA_GAP_BAND)))
     f["delta_alkalosis"] = high_hco3_for_gap & ~resp_acid_present
     f["delta_alkalosis_or_resp"] = high_hco3_for_gap & resp_acid_present
     f["role_met_acid_high"] = role_high.astype(np.int8)
     f["delta_applies"] = role_high > ROLE_NONE  # the delta ratio and gap mean nothing else
     f["role_met_acid_normal"] = role_normal.astype(np.int8)
+    f["role_met_acid_unknown"] = (role_acid * ~gap_known).astype(np.int8)
     f["role_met_alk"] = _role(p["met_alk"], a["met_alk"] | f["delta_alkalosis"])
     f["role_resp_acid"] = _role(p["resp_acid"], a["resp_acid"])
     f["role_resp_alk"] = _role(p["resp_alk"], a["resp_alk"])
@@ -359,7 +399,8 @@ def compute(s: Screened, settings: Settings) -> Frame:
     blurred = (bic.timing > TIMING_NONE) & extra_met
     f["timing_blurred"] = blurred  # a second metabolic process also moves HCO3-
     f["timing_resp"] = (bic.timing + (INDETERMINATE - bic.timing) * blurred).astype(np.int8)
-    nothing = ~(high_active | (role_normal > 0) | (f["role_met_alk"] > 0)
+    nothing = ~(high_active | (role_normal > 0) | (f["role_met_acid_unknown"] > 0)
+                | (f["role_met_alk"] > 0)
                 | (f["role_resp_acid"] > 0) | (f["role_resp_alk"] > 0))
     ph_outside = (ph < f["ph_lo"]) | (ph > f["ph_hi"])
     f["ph_unexplained"] = nothing & ph_outside
@@ -420,12 +461,18 @@ def compute(s: Screened, settings: Settings) -> Frame:
         f["aa_gradient"] = oxy.aa_gradient(alveolar, v["po2"]) + blank
         room_air = (v["fio2"] >= ROOM_AIR[0]) & (v["fio2"] <= ROOM_AIR[1])
         f["room_air"] = room_air
-        f["aa_expected"] = oxy.expected_aa_gradient(v["age"]) + nan_unless(arterial & room_air)
+        # The age rule is an adult rule: no expectation below 18 years.
+        f["aa_expected"] = oxy.expected_aa_gradient(v["age"]) + nan_unless(
+            arterial & room_air & ~(v["age"] < ADULT_AGE))
         f["pf_ratio"] = oxy.pf_ratio(v["po2"], v["fio2"]) + blank
+        f["pf_ratio_altitude"] = oxy.pf_ratio_for_altitude(f["pf_ratio"], f["pb_used"])
         f["po2_above_alveolar"] = arterial & (v["po2"] > alveolar + 10.0)
     else:
         f["alveolar_po2"] = f["aa_gradient"] = f["aa_expected"] = f["pf_ratio"] = nan
+        f["pf_ratio_altitude"] = nan
         f["room_air"] = f["po2_above_alveolar"] = false
+
+    f["below_adult_age"] = v["age"] < ADULT_AGE
 
     # --- temperature (reported, not used: interpretation is at 37 degC) ------------
     if "temperature" in has:

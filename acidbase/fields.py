@@ -57,19 +57,19 @@ class FieldSpec:
 
 # Order: the order a blood-gas report prints, then chemistry, then context.
 NUMERIC: tuple[FieldSpec, ...] = (
-    FieldSpec("ph", "pH", "ph", (6.5, 8.0), (6.8, 7.8), True,
+    FieldSpec("ph", "pH", "ph", (6.0, 8.0), (6.8, 7.8), True,
               ("2744-1", "2746-6", "2745-8", "11558-4", "19213-8", "97536-7"),
               "pH of the sample at 37 degC as measured by the analyser."),
-    FieldSpec("pco2", "pCO2", "pressure", (8.0, 200.0), (10.0, 150.0), True,
+    FieldSpec("pco2", "pCO2", "pressure", (8.0, 250.0), (10.0, 150.0), True,
               ("2019-8", "2021-4", "11557-6", "2020-6", "19212-0", "97538-3"),
               "Partial pressure of carbon dioxide at 37 degC."),
-    FieldSpec("hco3", "HCO3-", "electrolyte", (2.0, 60.0), (4.0, 50.0), True,
+    FieldSpec("hco3", "HCO3-", "electrolyte", (1.0, 80.0), (4.0, 50.0), True,
               ("1960-4", "14627-4", "1959-6", "1963-8", "2028-9"),
               "Bicarbonate: the analyser's calculated value, or a chemistry total CO2 "
               "(say which with hco3_source)."),
-    FieldSpec("na", "Na+", "electrolyte", (80.0, 200.0), (110.0, 170.0), True,
+    FieldSpec("na", "Na+", "electrolyte", (80.0, 200.0), (110.0, 170.0), False,
               ("2951-2", "2947-0", "32717-1", "39791-9", "39792-7"), "Sodium."),
-    FieldSpec("cl", "Cl-", "electrolyte", (50.0, 160.0), (70.0, 135.0), True,
+    FieldSpec("cl", "Cl-", "electrolyte", (50.0, 160.0), (70.0, 135.0), False,
               ("2075-0", "41650-3", "2069-3", "41649-5", "51590-8"), "Chloride."),
     FieldSpec("k", "K+", "electrolyte", (0.5, 15.0), (1.5, 8.0), False,
               ("2823-3", "6298-4", "32713-0", "39789-3", "39790-1"), "Potassium."),
@@ -118,6 +118,9 @@ LOINC_FROM_MEMORY: frozenset[str] = frozenset()
 #: The words of the choice inputs (declared once, in ``acidbase.inputs.vocab``).
 SAMPLE_TYPES: tuple[str, ...] = CHOICE_BY_NAME["sample_type"].words
 HCO3_SOURCES: tuple[str, ...] = CHOICE_BY_NAME["hco3_source"].words
+#: Pregnancy: "third_trimester" selects the published third-trimester intervals
+#: (acidbase.reference); "no" and "unknown" use the adult intervals.
+PREGNANCY_STATES: tuple[str, ...] = CHOICE_BY_NAME["pregnancy"].words
 
 #: Text fields carried with a panel; they do not enter the chemistry.
 TEXT_FIELDS: tuple[str, ...] = ("sample_id", "patient_id", "collected_at")

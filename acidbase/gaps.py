@@ -31,16 +31,28 @@ def albumin_corrected_gap(gap: Array, albumin: Array, reference_albumin: float) 
     return gap + ALBUMIN_GAP_PER_G_L * (reference_albumin - albumin)
 
 
+#: Smallest fall of HCO3- (mmol/L below 24) over which the delta ratio is formed.  The
+#: normal spread of the gap (half-width 3 mmol/L of a 6-12 interval) and of HCO3- (2
+#: mmol/L of 22-26) together come to about 3.6 mmol/L (root sum of squares): a fall
+#: smaller than 5 is of the size of that noise, and a ratio over it means nothing
+#: (Rastegar 2007 warns against reading the ratio alone) [rastegar_2007,
+#: acidbase_design].  Below it the delta gap is read instead.
+DELTA_MIN_HCO3_FALL = 5.0
+#: Delta gap beyond +/-6 mmol/L suggests a second metabolic process [wrenn_1990].
+DELTA_GAP_BAND = 6.0
+
+
 def delta_ratio(gap: Array, hco3: Array, gap_normal: float | Array,
-                hco3_normal: float = 24.0) -> Array:
+                hco3_normal: float = 24.0, min_fall: float = DELTA_MIN_HCO3_FALL) -> Array:
     """(AG - AG normal) / (HCO3 normal - HCO3) [rastegar_2007].
 
-    Undefined (NaN) when HCO3 is not below its normal value: the ratio then has
-    no meaning, and the delta gap is read instead.
+    Not assessable (NaN) when HCO3 has fallen less than ``min_fall`` below its
+    normal value: the ratio of two small, noisy differences has no meaning, and
+    the delta gap is read instead.
     """
     denom = hco3_normal - hco3
     with np.errstate(divide="ignore", invalid="ignore"):
-        return np.where(denom > 0, (gap - gap_normal) / denom, np.nan)
+        return np.where(denom >= min_fall, (gap - gap_normal) / denom, np.nan)
 
 
 def delta_gap(gap: Array, hco3: Array, gap_normal: float | Array,

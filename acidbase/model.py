@@ -121,6 +121,11 @@ class Screened:
         """int8 codes: index into ``HCO3_SOURCES``."""
         return self.choices["hco3_source"]
 
+    @property
+    def pregnancy(self) -> np.ndarray:
+        """int8 codes: index into ``PREGNANCY_STATES``."""
+        return self.choices["pregnancy"]
+
     @functools.cached_property
     def reasons(self) -> np.ndarray:
         """Object array: "" for accepted rows, the problems joined by "; " otherwise
@@ -439,7 +444,8 @@ def _build_panel() -> type[_PanelBase]:
 Panel = _build_panel()
 Panel.__doc__ = """One blood-gas and electrolyte panel, validated.
 
-Required: ph, pco2, hco3, na, cl.  Every numeric field has a ``<name>_unit``
+Required: ph, pco2, hco3 (a bare blood gas is read; without Na+ and Cl- the
+gap-based readings are not assessable).  Every numeric field has a ``<name>_unit``
 (UCUM) defaulting to its canonical unit; see ``acidbase.fields`` for the ranges.
 Each value is read by the one cell reader (``acidbase.inputs.cells``: numbers or
 text such as "7.21 L" or "<0.3"); a decimal comma is read when the validation

@@ -54,6 +54,30 @@ INTERVALS: dict[str, dict[str, Interval]] = {
 INTERVALS["capillary"] = INTERVALS["arterial"]
 INTERVALS["unknown"] = INTERVALS["arterial"]
 
+# Pregnancy, third trimester, arterial blood: pH 7.41-7.53, pCO2 25-33 mm[Hg], HCO3
+# 16-22 mmol/L, from the reference table of Abbassi-Ghanavati et al. 2009 (values from
+# memory, marked so) [abbassi_ghanavati_2009]; the means measured at 36-38 weeks by
+# Hankins et al. 1996 (pH 7.46, pCO2 26.6, HCO3 18.2) lie inside them [hankins_1996].
+# No published third-trimester SBE interval was found: the interval here is the Van
+# Slyke SBE at the corners of the pH and HCO3 intervals, rounded outward
+# [clsi_c46, acidbase_design].  Applied to arterial, capillary and unknown samples;
+# a venous sample keeps the venous intervals (no published venous values in pregnancy).
+PREGNANCY_INTERVALS: dict[str, dict[str, Interval]] = {
+    "third_trimester": {
+        "ph": Interval(7.41, 7.53, ("abbassi_ghanavati_2009",)),
+        "pco2": Interval(25.0, 33.0, ("abbassi_ghanavati_2009",)),
+        "hco3": Interval(16.0, 22.0, ("abbassi_ghanavati_2009",)),
+        "sbe": Interval(-8.7, -0.6, ("clsi_c46", "acidbase_design")),
+    },
+}
+
+#: Below this age (years) the adult intervals, compensation rules and the A-a age rule
+#: are not established [klaestrup_2011 studied adults 20-76; iowa_critical lists separate
+#: neonatal and paediatric intervals].
+ADULT_AGE = 18.0
+#: Neonate: the first 28 days of life, in years (28 / 365.25).
+NEONATE_AGE = 28.0 / 365.25
+
 #: Lactate upper reference limit, arterial, mmol/L [klaestrup_2011].
 LACTATE_HIGH = 2.5
 
@@ -107,6 +131,25 @@ class Settings:
         """The gap taken as 'normal' for the delta ratio: the interval's midpoint."""
         lo, hi = self.gap_interval
         return (lo + hi) / 2.0
+
+
+def pregnancy_columns(limits: dict[str, tuple[np.ndarray, np.ndarray]], sample_type: np.ndarray,
+                      pregnancy: np.ndarray | None) -> dict[str, tuple[np.ndarray, np.ndarray]]:
+    """``limits`` with the third-trimester intervals on the rows that state it (not venous)."""
+    from .fields import PREGNANCY_STATES
+
+    if pregnancy is None:
+        return limits
+    rows = (pregnancy == PREGNANCY_STATES.index("third_trimester")) & (
+        sample_type != SAMPLE_TYPES.index("venous"))
+    if not rows.any():
+        return limits
+    table = PREGNANCY_INTERVALS["third_trimester"]
+    out = {}
+    for name, (lo, hi) in limits.items():
+        iv = table[name]
+        out[name] = (np.where(rows, iv.low, lo), np.where(rows, iv.high, hi))
+    return out
 
 
 def interval_columns(sample_type: np.ndarray,

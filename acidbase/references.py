@@ -121,8 +121,10 @@ _ALL = [
              "citation from memory; formula and +/- 6 band read in secondary text"),
     Citation("gabow_1980", "Gabow PA, Kaehny WD, Fennessey PV, Goodman SI, Gross PA, Schrier RW",
              "Diagnostic importance of an increased serum anion gap",
-             "N Engl J Med 303:854-858", 1980, "memory",
-             "value from memory: a gap of 20 or more almost always reflects an organic acidosis"),
+             "N Engl J Med 303:854-858", 1980, "secondary",
+             "as cited in secondary reviews: gaps above 30 were usually an identified organic "
+             "acidosis, while about 29 % of gaps of 20-29 had neither lactic nor keto-acidosis; "
+             "the paper itself not read"),
     Citation("figge_fencl_1992", "Figge J, Mydosh T, Fencl V",
              "Serum proteins and acid-base equilibria: a follow-up",
              "J Lab Clin Med 120:713-719", 1992, "secondary",
@@ -208,6 +210,24 @@ _ALL = [
              "https://ucum.org", None),
     Citation("loinc", "Regenstrief Institute", "LOINC: Logical Observation Identifiers Names and Codes",
              "https://loinc.org", None),
+    Citation("abbassi_ghanavati_2009", "Abbassi-Ghanavati M, Greer LG, Cunningham FG",
+             "Pregnancy and laboratory studies: a reference table for clinicians",
+             "Obstet Gynecol 114:1326-1331", 2009, "memory",
+             "title and authors seen; third-trimester arterial values (pH 7.41-7.53, pCO2 25-33 "
+             "mmHg, HCO3 16-22 mmol/L) and pages from memory: verify against the table"),
+    Citation("hankins_1996", "Hankins GDV, Clark SL, Harvey CJ, Uckan EM, Cotton D, Van Hook JW",
+             "Third-trimester arterial blood gas and acid base values in normal pregnancy at "
+             "moderate altitude", "Obstet Gynecol 88:347-350, doi:10.1016/0029-7844(96)00210-4",
+             1996, "seen", "means at 36-38 weeks, n = 10: pH 7.46, PaCO2 26.6 mmHg, HCO3 18.2"),
+    Citation("riley_1949", "Riley RL, Cournand A",
+             "'Ideal' alveolar air and the analysis of ventilation-perfusion relationships in "
+             "the lungs", "J Appl Physiol 1:825-847", 1949, "memory",
+             "citation from memory; the full form PAO2 = FiO2 (PB - PH2O) - PaCO2 (FiO2 + "
+             "(1 - FiO2)/R) read in secondary encyclopaedic pages"),
+    Citation("icao_atmosphere", "International Organization for Standardization",
+             "Standard Atmosphere (ISO 2533), identical to the ICAO standard atmosphere",
+             "ISO 2533:1975", 1975, "memory",
+             "pressure at 1,000 m 89.87 kPa (674.1 mmHg), value from memory"),
     Citation("acidbase_design", "acidbase project", "Design choice argued in docs/methods.md",
              "this project's documentation", None, "design"),
     Citation("malk_pco2_ceiling", "Common practice, no source",

@@ -61,7 +61,7 @@ def test_check_refuses_pco2_in_the_wrong_unit_with_a_hint_and_exit_2():
     r = run("check", "--ph", "7.40", "--pco2", "5.3", "--hco3", "24", "--na", "140", "--cl", "104")
     assert r.returncode == 2
     assert "Traceback" not in r.stderr
-    assert "pCO2 (pco2) 5.3 mm[Hg] is outside the accepted range 8 to 200 mm[Hg]" in r.stderr
+    assert "pCO2 (pco2) 5.3 mm[Hg] is outside the accepted range 8 to 250 mm[Hg]" in r.stderr
     assert "kPa" in r.stderr
     assert r.stdout == ""
 
@@ -76,7 +76,7 @@ def test_check_accepts_the_same_pco2_in_kpa():
 
 @pytest.mark.parametrize("args", [
     ["--ph", "abc", "--pco2", "40", "--hco3", "24", "--na", "140", "--cl", "104"],
-    ["--ph", "7.4", "--pco2", "40", "--hco3", "24", "--na", "140"],
+    ["--ph", "7.4", "--pco2", "40", "--na", "140", "--cl", "104"],
     ["--ph", "nan", "--pco2", "40", "--hco3", "24", "--na", "140", "--cl", "104"],
     ["--ph", "7.4", "--pco2", "40", "--pco2-unit", "bar", "--hco3", "24", "--na", "140",
      "--cl", "104"],
@@ -119,7 +119,7 @@ def test_a_local_anion_gap_interval_changes_the_verdict():
 
 
 def test_a_missing_required_value_is_named_not_dumped():
-    r = run("check", "--ph", "7.4", "--pco2", "40", "--hco3", "24", "--na", "140")
+    r = run("check", "--ph", "7.4", "--pco2", "40", "--na", "140", "--cl", "104")
     assert r.returncode == 2
-    assert "Cl- (cl) is required and was not given" in r.stderr
+    assert "HCO3- (hco3) is required and was not given" in r.stderr
     assert "{" not in r.stderr

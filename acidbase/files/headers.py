@@ -15,10 +15,11 @@ from .. import loinc
 from .. import units as _units
 from ..errors import BatchInputError, UnitError
 from ..fields import BY_NAME, REQUIRED, TEXT_FIELDS
+from ..inputs.vocab import CHOICES
 from .formats import sniff_csv
 
 #: Fields that are text, read as given: choices and identifiers.
-CHOICE_FIELDS: tuple[str, ...] = ("sample_type", "hco3_source")
+CHOICE_FIELDS: tuple[str, ...] = tuple(c.name for c in CHOICES)
 ALL_FIELDS: tuple[str, ...] = tuple(BY_NAME) + CHOICE_FIELDS + TEXT_FIELDS
 
 

@@ -42,7 +42,8 @@ from .vocab import Choice, normalise_word
 
 #: HL7 v2 table 0078 abnormal flags as they trail values in exports (L, H, LL, HH,
 #: A, AA, N), plus ``*``, which several laboratory exports print for "abnormal"
-#: (common laboratory practice, no source).
+#: (common laboratory practice, no source) [hl7_0078]; comparators (< <= >= >) as FHIR
+#: ``Quantity.comparator`` [fhir_quantity].
 LAB_FLAGS: tuple[str, ...] = ("LL", "HH", "AA", "L", "H", "A", "N", "*")
 
 # ASCII digits only, spelled out: the policy refuses other scripts' digits.

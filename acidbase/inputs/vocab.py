@@ -37,6 +37,14 @@ class Hco3Source(StrEnum):
     UNKNOWN = "unknown"
 
 
+class Pregnancy(StrEnum):
+    """Whether the patient is pregnant; selects third-trimester intervals (``acidbase.reference``)."""
+
+    UNKNOWN = "unknown"
+    NO = "no"
+    THIRD_TRIMESTER = "third_trimester"
+
+
 @dataclass(frozen=True)
 class Choice:
     """One categorical input: its field name, title, words and default."""
@@ -66,6 +74,9 @@ CHOICES: tuple[Choice, ...] = (
     Choice("hco3_source", "HCO3- source", Hco3Source, "unknown",
            "analyser: HCO3- calculated by the blood-gas analyser; chemistry: measured "
            "total CO2"),
+    Choice("pregnancy", "Pregnancy", Pregnancy, "unknown",
+           "third_trimester: read pH, pCO2 and HCO3- against published third-trimester "
+           "intervals; no and unknown use the adult intervals"),
 )
 
 CHOICE_BY_NAME: dict[str, Choice] = {c.name: c for c in CHOICES}
@@ -86,4 +97,5 @@ def normalise_word(text: str) -> str:
     return "".join(out)
 
 
-__all__ = ["CHOICES", "CHOICE_BY_NAME", "Choice", "Hco3Source", "SampleType", "normalise_word"]
+__all__ = ["CHOICES", "CHOICE_BY_NAME", "Choice", "Hco3Source", "Pregnancy", "SampleType",
+           "normalise_word"]

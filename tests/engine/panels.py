@@ -148,4 +148,5 @@ def columns_of(panels: list[acidbase.Panel]) -> dict[str, np.ndarray]:
         )
     cols["sample_type"] = np.array([p.sample_type for p in panels], dtype=object)
     cols["hco3_source"] = np.array([p.hco3_source for p in panels], dtype=object)
+    cols["pregnancy"] = np.array([p.pregnancy for p in panels], dtype=object)
     return cols

@@ -114,3 +114,39 @@ def test_derived_hydrogen_ion_and_total_co2_at_e3(interpret):
     d = interpret(e3_with(CALC_HCO3, "analyser")).derived
     assert d["h_nmol_per_l"] == pytest.approx(39.8, abs=0.05)
     assert d["total_co2_calculated"] == pytest.approx(CALC_TCO2, abs=0.005)
+
+
+def test_an_hco3_printed_as_a_whole_number_is_judged_at_its_printed_precision(interpret):
+    # Issue example: pH 7.44, pCO2 33, HCO3- 23 from the analyser.  CLSI C46: calculated HCO3-
+    # 0.0307 x 33 x 10^(7.44 - 6.105) = 21.9, difference +1.1.  Printed to 1, HCO3- carries
+    # +/- 0.5 (half its last digit) on top of pH +/- 0.005, pCO2 +/- 0.5 and the 1.6 %
+    # convention spread: tolerance 21.9 x (0.0115 + 0.0152 + 0.016) + 0.5 = 1.43.
+    r = interpret(acidbase.Panel(ph=7.44, pco2=33, hco3=23, hco3_source="analyser"))
+    assert r.consistency.status == "consistent"
+    assert r.consistency.tolerance == pytest.approx(1.43, abs=0.01)
+
+
+def test_the_same_panel_with_hco3_to_a_tenth_is_held_to_the_tighter_tolerance(interpret):
+    # HCO3- 23.1 (printed to 0.1: +/- 0.05): tolerance 0.93 < difference +1.2: inconsistent.
+    r = interpret(acidbase.Panel(ph=7.44, pco2=33, hco3=23.1, hco3_source="analyser"))
+    assert r.consistency.status == "inconsistent"
+
+
+def test_a_chemistry_total_co2_is_judged_with_the_published_agreement_band(interpret):
+    # Issue example: pH 7.12, pCO2 32, total CO2 8.  Calculated total CO2 10.17 + 0.98 = 11.15,
+    # difference -3.15: inside +/- 5.33 (widest 95 % limit of agreement, Chittamma & Vanavanan,
+    # Clin Chem Lab Med 2008) plus the printed half-step 0.5.
+    r = interpret(acidbase.Panel(ph=7.12, pco2=32, hco3=8, hco3_source="chemistry"))
+    assert r.consistency.status == "consistent"
+    assert r.consistency.tolerance == pytest.approx(5.83, abs=0.01)
+
+
+def test_compensation_with_a_chemistry_total_co2_is_judged_from_the_gas(interpret):
+    # Issue example: pH 7.25, pCO2 27, total CO2 15.  From the gas (CLSI C46): HCO3- 11.58;
+    # Winter's 1.5 x 11.6 + 8 +/- 2 = 23.4-27.4 (Albert, Dell & Winters 1967) holds pCO2 27,
+    # where the chemistry value would give 28.5-32.5 and an additional respiratory alkalosis.
+    r = interpret(acidbase.Panel(ph=7.25, pco2=27, hco3=15, hco3_source="chemistry"))
+    assert "respiratory alkalosis" not in {d.process for d in r.disorders}
+    assert {"P-WINTERS-MET", "P-COMPENSATION-FROM-GAS"} <= set(r.codes())
+    # 0.0307 x 27 x 10^(7.25 - 6.105) = 11.575: lower edge 1.5 x 11.575 + 8 - 2 = 23.36
+    assert r.derived["expected_pco2_low"] == pytest.approx(23.36, abs=0.01)

@@ -83,7 +83,7 @@ def test_readings_that_part_on_compensation_say_which_bands_differ():
              sample_type="arterial")
     text = next(f.text for f in r.findings if f.code == "P-BE-DISAGREES")
     assert "expected pCO2 differs between the families" in text
-    assert "22.5-26.5" in text
+    assert "22.50-26.50" in text
 
 
 def test_an_inconsistent_panel_names_the_inconsistency_when_the_readings_part():

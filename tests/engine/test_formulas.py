@@ -139,7 +139,8 @@ def test_analyser_tolerance_admits_the_spread_of_pk_conventions():
     # (6.10/0.0301) to 24.79 (6.095/0.0307) against CLSI 24.22; an analyser using either is not
     # an entry error, so the tolerance must reach both (0.57 above, 0.20 below).
     calc = chem.hco3_from_ph_pco2(a(7.40), a(40.0))
-    tol = chem.consistency_tolerance_analyser(a(40.0), calc)[0]
+    # printed as pH 7.40, pCO2 40.0 (taken as 40), HCO3- 24.2: half-steps 0.005, 0.5, 0.05
+    tol = chem.consistency_tolerance_analyser(a(40.0), calc, a(0.005), a(0.5), a(0.05))[0]
     assert tol >= 24.79 - calc[0]
     assert tol >= calc[0] - 24.02
 
@@ -148,7 +149,8 @@ def test_analyser_tolerance_is_tighter_than_the_clia_propagated_band():
     # Methods 2.2 item 1, derived from CLIA 2024 limits (pH +/-0.04, pCO2 +/-8 %): a separately
     # measured HCO3 may differ by up to about 18 %; the analyser's own value must be held tighter.
     calc = chem.hco3_from_ph_pco2(a(7.40), a(40.0))
-    assert chem.consistency_tolerance_analyser(a(40.0), calc)[0] < 0.18 * calc[0]
+    # even with HCO3- printed to a whole number (half-step 0.5)
+    assert chem.consistency_tolerance_analyser(a(40.0), calc, a(0.005), a(0.5), a(0.5))[0] < 0.18 * calc[0]
 
 
 def test_chemistry_tolerance_covers_published_limits_of_agreement():
@@ -156,7 +158,22 @@ def test_chemistry_tolerance_covers_published_limits_of_agreement():
     # limits -1.45 to +5.33; Kumar, Indian J Med Biochem 2017: measured minus calculated -4.1 to
     # +2.3.  A tolerance for chemistry total CO2 must admit the widest of these, 5.33 mmol/L.
     calc = chem.total_co2(chem.hco3_from_ph_pco2(a(7.40), a(40.0)), a(40.0))
-    assert chem.consistency_tolerance_chemistry(a(40.0), calc)[0] >= 5.33
+    assert chem.consistency_tolerance_chemistry(a(40.0), calc, a(0.0))[0] >= 5.33
+
+
+def test_chemistry_tolerance_keeps_the_published_band_at_low_total_co2():
+    # Chittamma & Vanavanan 2008 limits of agreement (widest 5.33 mmol/L) are absolute: at a
+    # total CO2 of 9 the CLIA-propagated 21 % (about 1.9) must not narrow the band below them.
+    calc = chem.total_co2(chem.hco3_from_ph_pco2(a(7.12), a(32.0)), a(32.0))
+    assert chem.consistency_tolerance_chemistry(a(32.0), calc, a(0.0))[0] == pytest.approx(5.33)
+
+
+@pytest.mark.parametrize("value, decimals, step", [
+    (23.0, 0, 0.5), (23.4, 0, 0.05), (7.44, 2, 0.005), (7.4, 2, 0.005), (33.25, 0, 0.005)])
+def test_printed_half_step_is_read_from_the_number(value, decimals, step):
+    # Half the last printed digit (rounding to the printed precision, ISO 80000-1 Annex B):
+    # 23 -> 0.5, 23.4 -> 0.05; pH is read as printed to at least 0.01.
+    assert chem.printed_half_step(a(value), decimals)[0] == pytest.approx(step)
 
 
 # --------------------------------------------------------------------------- anion gap and albumin
@@ -291,17 +308,33 @@ def test_story_partition_of_the_story_case():
 # --------------------------------------------------------------------------- oxygenation
 
 
-def test_alveolar_po2_on_room_air_at_sea_level_is_99_7():
-    # Merck Manual Professional alveolar gas equation (PH2O 47, R 0.8); methods E21, derived:
-    # 0.21 x (760 - 47) - 40 / 0.8 = 149.73 - 50 = 99.7 mm[Hg].
-    assert oxy.alveolar_po2(a(0.21), a(760.0), a(40.0))[0] == pytest.approx(99.7, abs=0.05)
+def test_alveolar_po2_on_room_air_at_sea_level_is_the_simplified_99_7_plus_2_1():
+    # Merck Manual Professional, simplified equation (PH2O 47, R 0.8); methods E21: 0.21 x 713 -
+    # 40 / 0.8 = 99.7.  The full form (Riley & Cournand 1949) adds PaCO2 x FiO2 x (1 - R) / R =
+    # 40 x 0.21 x 0.25 = 2.1: 101.8 mm[Hg].
+    assert oxy.alveolar_po2(a(0.21), a(760.0), a(40.0))[0] == pytest.approx(99.7 + 2.1, abs=0.05)
 
 
 def test_alveolar_po2_and_gradient_at_fio2_one_half():
-    # Methods E22, derived (Merck equation): PAO2 0.50 x 713 - 50 = 306.5; A-a 306.5 - 90 = 216.5.
+    # Methods E22 (simplified): PAO2 0.50 x 713 - 50 = 306.5; the full form adds 40 x 0.5 x 0.25
+    # = 5 (Riley & Cournand 1949): 311.5; A-a 311.5 - 90 = 221.5.
     pa = oxy.alveolar_po2(a(0.50), a(760.0), a(40.0))
-    assert pa[0] == pytest.approx(306.5)
-    assert oxy.aa_gradient(pa, a(90.0))[0] == pytest.approx(216.5)
+    assert pa[0] == pytest.approx(311.5)
+    assert oxy.aa_gradient(pa, a(90.0))[0] == pytest.approx(221.5)
+
+
+def test_alveolar_po2_at_fio2_one_is_a_quarter_of_pco2_above_the_simplified_form():
+    # Full form at FiO2 1.0: the nitrogen term vanishes, PAO2 = 713 - PaCO2 = 673; the
+    # simplified form gives 713 - 50 = 663 (overstating the gradient by PaCO2/4 = 10).
+    assert oxy.alveolar_po2(a(1.0), a(760.0), a(40.0))[0] == pytest.approx(673.0)
+
+
+def test_pf_ratio_is_corrected_for_barometric_pressure_above_1000_m():
+    # ARDS Definition Task Force, JAMA 2012, footnote: above 1,000 m use P/F x PB/760.
+    # 150 x 600 / 760 = 118.4; at 700 mm[Hg] (below 1,000 m: standard atmosphere 674.1) none.
+    got = oxy.pf_ratio_for_altitude(a(150.0, 150.0), a(600.0, 700.0))
+    assert got[0] == pytest.approx(150.0 * 600.0 / 760.0)
+    assert np.isnan(got[1])
 
 
 def test_pf_ratio_of_90_on_one_half_is_180():

@@ -93,8 +93,10 @@ def test_delta_ratio_just_above_0_8_is_an_uncomplicated_high_gap_acidosis(interp
 
 
 def test_delta_ratio_just_above_2_reveals_a_metabolic_alkalosis(interpret):
-    # Gap 9 + 8.1 = 17.1: ratio 2.03, just outside the 2.0 edge -> concurrent metabolic alkalosis.
-    r = interpret(edge_panel(20.0, 38.0, gap=GAP_MIDPOINT + 8.1))
+    # HCO3 18 (a fall of 6, above the 5 the ratio needs; Winter's centre 35, Albert 1967).
+    # Gap 9 + 12.2 = 21.2: ratio 2.03, just outside the 2.0 edge (delta bands, common practice,
+    # no source) -> concurrent metabolic alkalosis.
+    r = interpret(edge_panel(18.0, 35.0, gap=GAP_MIDPOINT + 12.2))
     assert disorders(r) == {
         ("metabolic acidosis", "primary", None, "high"),
         ("metabolic alkalosis", "additional", None, None),
@@ -103,16 +105,16 @@ def test_delta_ratio_just_above_2_reveals_a_metabolic_alkalosis(interpret):
 
 
 def test_delta_ratio_just_below_2_adds_no_metabolic_alkalosis(interpret):
-    # Gap 9 + 7.9 = 16.9: ratio 1.98, just inside the 0.8-2 band.
-    r = interpret(edge_panel(20.0, 38.0, gap=GAP_MIDPOINT + 7.9))
+    # Gap 9 + 11.9 = 20.9 over a fall of 6: ratio 1.98, just inside the 0.8-2 band.
+    r = interpret(edge_panel(18.0, 35.0, gap=GAP_MIDPOINT + 11.9))
     assert disorders(r) == {("metabolic acidosis", "primary", None, "high")}
     assert "P-DELTA-ALKALOSIS" not in r.codes()
 
 
 def test_high_gap_acidosis_metabolic_alkalosis_and_respiratory_alkalosis_together(interpret):
-    # Triple: HCO3 20 with gap 17.1 (ratio 2.03, as above) and pCO2 35.5, just outside Winter's
-    # lower edge 36 (1.5 x 20 + 8 - 2) -> additional respiratory alkalosis.
-    r = interpret(edge_panel(20.0, 35.5, gap=GAP_MIDPOINT + 8.1))
+    # Triple: HCO3 18 with gap 21.2 (ratio 2.03, as above) and pCO2 32.5, just outside Winter's
+    # lower edge 33 (1.5 x 18 + 8 - 2) -> additional respiratory alkalosis.
+    r = interpret(edge_panel(18.0, 32.5, gap=GAP_MIDPOINT + 12.2))
     assert disorders(r) == {
         ("metabolic acidosis", "primary", None, "high"),
         ("metabolic alkalosis", "additional", None, None),
@@ -171,12 +173,40 @@ def test_gap_at_the_gabow_threshold_reveals_acidosis(interpret):
     assert "P-GAP-REVEALS-ACIDOSIS" in r.codes()
 
 
-def test_gap_just_below_the_gabow_threshold_does_not_read_an_acidosis(interpret):
-    # 19.5: just below Gabow's 20, above Klaestrup's 12, with normal HCO3: a raised gap alone is
-    # not read as an acidosis.
+def test_a_raised_gap_below_the_gabow_threshold_reads_a_high_gap_acidosis_to_confirm(interpret):
+    # 19.5: below Gabow's 20, above Klaestrup's 12, with normal HCO3: a raised gap signals a
+    # high-gap acidosis whatever the HCO3- (Berend et al. 2014; Kraut & Madias 2007); below 20 a
+    # third had no organic acid identified (Gabow 1980), so the finding asks to confirm.
     r = interpret(edge_panel(24.22, 40.0, gap=19.5))
-    assert "metabolic acidosis" not in {d.process for d in r.disorders}
+    assert ("metabolic acidosis", "primary", None, "high") in disorders(r)
     assert "P-GAP-RAISED-ONLY" in r.codes()
+    assert "P-GAP-REVEALS-ACIDOSIS" not in r.codes()
+
+
+def test_a_gap_at_the_upper_limit_reads_no_acidosis(interpret):
+    # Gap 12.0: on Klaestrup's upper edge (6-12), not above it.
+    r = interpret(edge_panel(24.22, 40.0, gap=12.0))
+    assert "metabolic acidosis" not in {d.process for d in r.disorders}
+
+
+def test_a_raised_gap_beside_a_chronic_respiratory_alkalosis_is_read_as_an_acidosis(interpret):
+    # Issue example: pH 7.55, pCO2 20, HCO3 17, Na 140, Cl 106, lactate 4.0: gap 17 > 12
+    # (Klaestrup 2011) signals a high-gap acidosis whatever the HCO3- (Berend et al. 2014).
+    r = interpret(acidbase.Panel(ph=7.55, pco2=20, hco3=17, na=140, cl=106, lactate=4.0))
+    assert ("metabolic acidosis", "additional", None, "high") in disorders(r)
+    text = next(f.text for f in r.findings if f.code == "P-GAP-RAISED-ONLY")
+    assert "no low HCO3-" not in text and "lactate 4.0" in text
+
+
+def test_a_small_hco3_fall_gives_no_delta_ratio_and_the_delta_gap_decides(interpret):
+    # Issue example: pH 7.36, pCO2 37, HCO3 20.5 (a fall of 3.5, below the 5 a ratio needs),
+    # gap 141 - 104 - 20.5 = 16.5: delta gap (16.5 - 9) - 3.5 = +4, inside Wrenn's +/-6.
+    r = interpret(acidbase.Panel(ph=7.36, pco2=37, hco3=20.5, na=141, cl=104))
+    assert r.derived["delta_ratio"] is None
+    assert r.derived["delta_gap"] == pytest.approx(4.0)
+    assert "metabolic alkalosis" not in {d.process for d in r.disorders}
+    delta = next(f.text for f in r.findings if f.code == "D-DELTA")
+    assert "not assessable" in delta
 
 
 def test_no_disorder_statement_does_not_deny_a_raised_gap(interpret):
@@ -223,3 +253,13 @@ def test_effective_sid_at_the_e27_values_uses_the_clsi_bicarbonate(interpret):
     # 24.22 + 11.73 + 2.00 = 37.95.
     r = interpret(edge_panel(24.22, 40.0, albumin=42.0, phosphate=1.1))
     assert r.derived["sid_effective"] == pytest.approx(37.95, abs=0.01)
+
+
+def test_below_the_minimum_fall_a_delta_gap_beyond_plus_6_still_reads_an_alkalosis(interpret):
+    # HCO3 21 (a fall of 3, too small for a ratio), gap 19.5: delta gap (19.5 - 9) - 3 = +7.5,
+    # beyond Wrenn's +6 (Ann Emerg Med 1990) -> concurrent metabolic alkalosis; no ratio printed.
+    r = interpret(edge_panel(21.0, 39.5, gap=19.5))
+    assert ("metabolic alkalosis", "additional", None, None) in disorders(r)
+    assert r.derived["delta_ratio"] is None
+    text = next(f.text for f in r.findings if f.code == "P-DELTA-ALKALOSIS")
+    assert "delta gap +7.5" in text and "not assessable" in text

@@ -63,21 +63,23 @@ def test_arterial_po2_just_below_40_is_a_critical_call_and_possibly_venous(inter
 
 def test_arterial_oxygenation_values_match_the_e22_worked_values(interpret):
     # Methods E22, derived (Merck alveolar gas equation; ARDS Definition Task Force, JAMA 2012):
-    # PAO2 306.5, A-a 216.5, P/F 180 -> the Berlin "moderate" range.
+    # PAO2 306.5 (simplified) + 40 x 0.5 x 0.25 = 311.5 in the full form (Riley & Cournand
+    # 1949), A-a 221.5, P/F 180 -> the Berlin "moderate" range.
     r = interpret(normal_e3(po2=90.0, fio2=0.50))
     d = r.derived
     assert (d["alveolar_po2"], d["aa_gradient"], d["pf_ratio"]) == pytest.approx(
-        (306.5, 216.5, 180.0)
+        (311.5, 221.5, 180.0)
     )
     pf = next(f for f in r.findings if f.code == "D-PF-RATIO")
     assert "moderate" in pf.text
 
 
 def test_room_air_alveolar_po2_and_age_expected_gradient(interpret):
-    # Methods E21 (Merck): PAO2 99.7 on room air at PB 760 with pCO2 40; age/4 + 4 = 14 at age 40
-    # (common practice, no source).  pO2 90 from E22 gives A-a 9.7, inside the expected 14.
+    # Methods E21 (Merck): PAO2 99.7 on room air at PB 760 with pCO2 40, plus the full form's
+    # 40 x 0.21 x 0.25 = 2.1 (Riley & Cournand 1949): 101.8; age/4 + 4 = 14 at age 40 (common
+    # practice, no source).  pO2 90 from E22 gives A-a 11.8, inside the expected 14.
     r = interpret(normal_e3(po2=90.0, fio2=0.21, age=40.0))
-    assert r.derived["alveolar_po2"] == pytest.approx(99.7, abs=0.05)
+    assert r.derived["alveolar_po2"] == pytest.approx(101.8, abs=0.05)
     assert r.derived["aa_expected"] == pytest.approx(14.0)
     assert "D-AA-GRADIENT" in r.codes() and "D-AA-GRADIENT-HIGH" not in r.codes()
 
@@ -91,14 +93,14 @@ def test_age_expected_gradient_is_not_applied_off_room_air(interpret):
 
 def test_po2_above_alveolar_po2_is_flagged(interpret):
     # Methods 11.2 (design, from physics): pO2 > PAO2 + 10 is impossible in steady state.  On room
-    # air PAO2 is 99.7 (E21); pO2 110.5 sits just beyond 109.7.
-    r = interpret(normal_e3(po2=110.5, fio2=0.21))
+    # air PAO2 is 101.8 (E21 in the full form); pO2 112.5 sits just beyond 111.8.
+    r = interpret(normal_e3(po2=112.5, fio2=0.21))
     assert "T-PO2-ABOVE-ALVEOLAR" in r.codes()
 
 
 def test_po2_just_under_the_alveolar_limit_is_not_flagged(interpret):
-    # 109.0: just inside PAO2 + 10 = 109.7 (E21).
-    assert "T-PO2-ABOVE-ALVEOLAR" not in interpret(normal_e3(po2=109.0, fio2=0.21)).codes()
+    # 111.0: just inside PAO2 + 10 = 111.8 (E21, full form).
+    assert "T-PO2-ABOVE-ALVEOLAR" not in interpret(normal_e3(po2=111.0, fio2=0.21)).codes()
 
 
 def test_temperature_corrected_values_match_e25_and_the_reading_stays_at_37(interpret):
@@ -139,10 +141,10 @@ def test_pf_ratio_bands_follow_the_berlin_definition(interpret, po2, band):
     assert band in next(f for f in r.findings if f.code == "D-PF-RATIO").text
 
 
-@pytest.mark.parametrize(("po2", "raised"), [(85.0, True), (86.5, False)])
+@pytest.mark.parametrize(("po2", "raised"), [(87.0, True), (88.5, False)])
 def test_aa_gradient_is_raised_just_above_the_age_expected_value(interpret, po2, raised):
-    # Age/4 + 4 = 14 at age 40 (common practice, no source); room-air PAO2 99.7 (E21, Merck):
-    # pO2 85 gives A-a 14.7, just above; pO2 86.5 gives 13.2, just below.
+    # Age/4 + 4 = 14 at age 40 (common practice, no source); room-air PAO2 101.8 (E21 in the
+    # full form): pO2 87 gives A-a 14.8, just above; pO2 88.5 gives 13.3, just below.
     codes = interpret(normal_e3(po2=po2, fio2=0.21, age=40.0)).codes()
     assert ("D-AA-GRADIENT-HIGH" in codes) is raised
 
@@ -179,3 +181,48 @@ def test_winters_formula_on_venous_values_carries_the_venous_caution(interpret):
     if "respiratory acidosis" in {d.process for d in r.disorders}:
         assert "P-VENOUS-RESPIRATORY" in r.codes()
     assert ("metabolic acidosis", "primary") in {(d.process, d.role) for d in r.disorders}
+
+
+def test_venous_pco2_beyond_the_widened_winters_band_reads_a_respiratory_acidosis(interpret):
+    # Issue example: pH 6.94, pCO2 50, HCO3 10.5 venous.  Winter's 1.5 x 10.5 + 8 +/- 2 =
+    # 21.75-25.75 (Albert 1967); widened by the largest venous-arterial difference, 20 mm[Hg]
+    # (Kelly 2010 limits of agreement): 45.75 < 50, so a respiratory acidosis is read.
+    r = interpret(acidbase.Panel(ph=6.94, pco2=50, hco3=10.5, na=138, cl=100,
+                                 sample_type="venous"))
+    assert "respiratory acidosis" in {d.process for d in r.disorders}
+    assert "P-WINTERS-ABOVE" in r.codes() and "P-VENOUS-COMPENSATION" not in r.codes()
+
+
+def test_venous_pco2_inside_the_widened_band_stays_not_assessable(interpret):
+    # Same HCO3 10.5: pCO2 45 is above 25.75 but inside 45.75 (Kelly 2010 +20): not assessable.
+    r = interpret(edge_panel(10.5, 45.0, sample_type="venous"))
+    assert "respiratory acidosis" not in {d.process for d in r.disorders}
+    assert "P-VENOUS-COMPENSATION" in r.codes()
+
+
+def test_adult_age_rule_is_withheld_below_18_with_a_caution(interpret):
+    # Issue example --age 0.2: the age/4 + 4 rule and the intervals are adult (Klaestrup 2011
+    # studied 20-76 years; the Iowa handbook lists separate neonatal intervals).
+    r = interpret(normal_e3(po2=90.0, fio2=0.21, age=0.2))
+    assert r.derived["aa_expected"] is None
+    assert "P-ADULT-RULES-ONLY" in r.codes()
+    assert "P-ADULT-RULES-ONLY" not in interpret(normal_e3(age=18.0)).codes()
+
+
+def test_third_trimester_means_read_no_disorder_with_the_pregnancy_intervals(interpret):
+    # Hankins et al. 1996 means at 36-38 weeks: pH 7.46, PaCO2 26.6, HCO3 18.2.  With the
+    # third-trimester intervals (Abbassi-Ghanavati 2009, value from memory) no disorder; with
+    # adult intervals the same numbers read as a respiratory alkalosis.
+    panel = {"ph": 7.46, "pco2": 26.6, "hco3": 18.2, "sample_type": "arterial"}
+    r = interpret(acidbase.Panel(**panel, pregnancy="third_trimester"))
+    assert r.disorders == () and "T-PREGNANCY-INTERVALS" in r.codes()
+    r = interpret(acidbase.Panel(**panel))
+    assert "respiratory alkalosis" in {d.process for d in r.disorders}
+
+
+def test_pf_ratio_is_read_on_the_altitude_corrected_value(interpret):
+    # Berlin definition footnote: above 1,000 m, P/F x PB/760.  pO2 90 on FiO2 0.4 at PB 600:
+    # P/F 225 (mild) becomes 225 x 600/760 = 177.6 (moderate).
+    r = interpret(normal_e3(po2=90.0, fio2=0.40, pb=600.0))
+    pf = next(f for f in r.findings if f.code == "D-PF-RATIO")
+    assert "178" in pf.text and "moderate" in pf.text

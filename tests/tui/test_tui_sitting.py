@@ -65,10 +65,12 @@ async def test_an_accepted_edit_updates_an_opened_kept_panel_a_refused_one_does_
     async with app.run_test(size=(80, 24)) as pilot:
         await key_in(pilot, PANELS["normal"])
         await pilot.press("f5", "f6")  # keep it, then open it
-        await replace_value(pilot, "na", "142")
-        assert app.sitting.entries[0].data["na"] == "142"
-        await replace_value(pilot, "na", "20")  # below the accepted range: refused
-        assert app.sitting.entries[0].data["na"] == "142"
+        await replace_value(pilot, "ph", "7.41")
+        assert app.sitting.entries[0].data["ph"] == "7.41"
+        # pH is required (clearing it on the way is refused too) and 9.9 is beyond the accepted
+        # range: refused.  (Na+ would not do: emptying it on the way is a valid bare gas.)
+        await replace_value(pilot, "ph", "9.9")
+        assert app.sitting.entries[0].data["ph"] == "7.41"
         assert app.screen.query_one(ReadingPane).stale
 
 
