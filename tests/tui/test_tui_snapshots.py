@@ -43,7 +43,7 @@ def test_entry_with_a_reading(snap_compare):
 
 
 def test_entry_stale_without_colour(snap_compare, monkeypatch):
-    """NO_COLOR: pCO2 retyped as 6 is refused; under it 'refused: not in 8-200 mmHg; press F2
+    """NO_COLOR: pCO2 retyped as 6 is refused; under it 'refused: not in 8-250 mmHg; press F2
     for kPa', the reading starts 'STALE:' and the verdict line too."""
     monkeypatch.setenv("NO_COLOR", "1")
     app = make_app()
