@@ -7,10 +7,10 @@ Public API: ``Panel``, ``interpret``, ``interpret_many``, ``Interpretation``,
 from .api import interpret, interpret_many
 from .compensation import plane_bands
 from .errors import AcidBaseError, BatchInputError, ColumnError, Problem, UnitError
+from .fields import also_ordinary, convert
 from .model import Panel, describe, describe_fields
 from .reference import Settings
 from .results import CAUTION, Disorder, Finding, Interpretation, Results
-from .units import also_ordinary, convert
 
 __all__ = [
     "CAUTION", "AcidBaseError", "BatchInputError", "ColumnError", "Disorder", "Finding",

@@ -101,39 +101,3 @@ def factor(field: str, kind: str, unit: str) -> float:
 
 def canonical_unit(kind: str) -> str:
     return next(iter(FACTORS[kind]))
-
-
-def convert(field: str, value: float | str, from_unit: str, to_unit: str) -> float:
-    """``value`` of the panel field ``field`` given in ``from_unit``, expressed in ``to_unit``.
-
-    The same factors as the input boundary (``FACTORS``), for surfaces that offer to
-    convert a typed value.  Raises ``ValueError`` for a value that is not a number and
-    ``UnitError`` for a unit the field does not accept.
-    """
-    from .fields import BY_NAME
-
-    kind = BY_NAME[field].kind
-    number = float(value)
-    return number * factor(field, kind, from_unit) / factor(field, kind, to_unit)
-
-
-def also_ordinary(field: str, value: float | str, unit: str) -> tuple[str, ...]:
-    """The field's other units in which ``value`` would lie inside its physiologic range.
-
-    A value ordinary in two units is ambiguous (pO2 45: mm[Hg] or kPa?); surfaces
-    use this to say so, never to convert.  Empty for a value that is not a number.
-    """
-    from .fields import BY_NAME
-
-    spec = BY_NAME[field]
-    try:
-        number = float(value)
-    except (TypeError, ValueError):
-        return ()
-    lo, hi = spec.physiologic
-    table = FACTORS[spec.kind]
-    given = normalise(unit)
-    same = table.get(given)
-    # a unit with the same factor (mEq/L of a monovalent ion) reads the number the same
-    return tuple(other for other, f in table.items()
-                 if other != given and f != same and lo <= number * f <= hi)
