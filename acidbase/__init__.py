@@ -8,7 +8,7 @@ from .api import interpret, interpret_many
 from .compensation import plane_bands
 from .errors import AcidBaseError, BatchInputError, ColumnError, Problem, UnitError
 from .fields import also_ordinary, convert
-from .model import Panel, describe, describe_fields
+from .inputs.panel import Panel, describe, describe_fields
 from .reference import Settings
 from .results import CAUTION, Disorder, Finding, Interpretation, Results
 
@@ -19,3 +19,12 @@ __all__ = [
     "plane_bands",
 ]
 __version__ = "0.2.0"
+
+
+def __getattr__(name: str):
+    """``check_table`` and ``panel_table`` (the file layer) load on first use."""
+    if name in ("check_table", "panel_table"):
+        from .files import check
+
+        return getattr(check, name)
+    raise AttributeError(f"module 'acidbase' has no attribute {name!r}")

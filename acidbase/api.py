@@ -17,9 +17,9 @@ import pyarrow as pa
 from . import engine, rules
 from .errors import ColumnError, Problem, UnitError
 from .fields import BY_NAME, TEXT_FIELDS
-from .inputs.cells import read_choices
+from .inputs.cells import _objects, is_column, read_choices
 from .inputs.vocab import CHOICES
-from .model import Panel, _length, screen
+from .inputs.panel import Panel, _length, screen
 from .reference import Settings
 from .results import Interpretation, Part, Results
 from .units import factor
@@ -147,8 +147,7 @@ def interpret_many(
 
     def run(start: int) -> Part:
         stop = start + SLICE_ROWS
-        cols = {k: (v[start:stop] if v is not None and not np.isscalar(v) else v)
-                for k, v in arrays.items()}
+        cols = {k: (v[start:stop] if is_column(v) else v) for k, v in arrays.items()}
         mine = {i - start: p for i, p in (row_problems or {}).items() if start <= i < stop}
         return _part(cols, units, settings, start, decimal, missing, mine)
 
@@ -162,11 +161,9 @@ def interpret_many(
 
 def _sliceable(value: Any, n: int) -> Any:
     """A column that slices by rows (Arrow and numpy as they are; lists as object arrays)."""
-    if value is None or isinstance(value, (str, bytes, int, float, np.generic)):
+    if not is_column(value) or isinstance(value, (pa.Array, pa.ChunkedArray, np.ndarray)):
         return value
-    if isinstance(value, (pa.Array, pa.ChunkedArray, np.ndarray)):
-        return value
-    return np.asarray(value, dtype=object)
+    return _objects(value)
 
 
 def interpret(panel: Panel, settings: Settings | None = None) -> Interpretation:

@@ -34,14 +34,14 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from . import fileio, serial
+from . import fileio, history, serial
 from . import units as _units
 from .engine import SLOTS
 from .errors import AcidBaseError
 from .fields import BY_NAME
 from .fileio import BatchInputError, Layout, Source
-from .files.check import (EXTRA_COLUMNS, ROW_COLUMN, check_chunk, output_names,  # noqa: F401
-                          review_mask, review_rules)
+from .files.check import (EXTRA_COLUMNS, ROW_COLUMN, check_chunk, field_column,  # noqa: F401
+                          output_names, review_mask, review_rules)
 from .results import CAUTION, DECIMALS, DERIVED
 
 if TYPE_CHECKING:  # the command line (argparse) lives in acidbase.cli only
@@ -458,19 +458,21 @@ def escaped_columns(headers: tuple[str, ...]) -> list[str]:
 
 
 def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.SerialChecker,
-                 progress: Progress) -> None:
+                 progress: Progress, store=None) -> None:
     col_of = layout.column_of
     wanted = [col_of["patient_id"], col_of["collected_at"]]
     if "sample_id" in col_of:
         wanted.append(col_of["sample_id"])
-    fields_used = [r.field for r in checker.rules if r.field in col_of]
-    wanted += [col_of[f] for f in fields_used]
+    fields_used = [f for f in checker.fields if f in col_of]
+    columns_of = layout.columns_of  # one column per specimen: a row reads the filled one
+    wanted += [h for f in fields_used for h in columns_of[f]]
     wanted = list(dict.fromkeys(wanted))
     rows = 0
     for table in src.chunks(wanted):
         values = {}
-        many = fileio.parse_numeric_many([table[col_of[f]] for f in fields_used], decimal,
-                                         layout.missing)
+        many = fileio.parse_numeric_many(
+            [field_column(table, columns_of[f], layout.missing)[0] for f in fields_used],
+            decimal, layout.missing)
         for f, p in zip(fields_used, many):
             spec = BY_NAME[f]
             unit = layout.units.get(f, spec.unit)
@@ -481,10 +483,22 @@ def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.Seri
             values[f] = v
         secs, kind = fileio.parse_times(table[col_of["collected_at"]])
         sample = table[col_of["sample_id"]] if "sample_id" in col_of else None
-        checker.add(table[col_of["patient_id"]], secs, kind, values, sample)
+        patient = table[col_of["patient_id"]]
+        if store is not None:  # compared, and stored, as keyed hashes only
+            patient = store.hash_ids(patient, secs)
+        checker.add(patient, secs, kind, values, sample)
         rows += table.num_rows
         progress.update(rows)
+    if store is not None:
+        history.feed_earlier(store, checker)
     checker.finish()
+
+
+def _audit(args: argparse.Namespace) -> dict[str, object]:
+    """The settings of a run that its history-store audit record keeps (no paths)."""
+    names = ("unit", "missing", "window_hours", "delta", "anion_gap_interval",
+             "anion_gap_with_k", "reference_albumin", "history_retention_days", "chunk_rows")
+    return {k: getattr(args, k) for k in names if hasattr(args, k)}
 
 
 def _lean_allocators() -> None:
@@ -554,15 +568,27 @@ def _run(args: argparse.Namespace, label: str) -> int:
     do_serial = not args.no_serial and "patient_id" in col_of and "collected_at" in col_of
     if not args.no_serial and not do_serial:
         notes.append("serial checks not run: they need patient_id and collected_at columns")
-    checker = None
+    checker = store = None
+    if args.history and not do_serial:
+        notes.append("history store not used: the serial checks did not run")
     passes = 2 if do_serial else 1
     if do_serial:
+        if args.history:
+            store = history.open_for_run(args.history, args.history_retention_days
+                                         or history.DEFAULT_RETENTION_DAYS)
+        # With a store, earlier panels join the partitions: twice as many of them.
         checker = serial.SerialChecker(serial.rules_with(deltas), args.window_hours,
-                                       serial.SerialChecker.partitions_for(src.size))
+                                       serial.SerialChecker.partitions_for(src.size)
+                                       * (2 if store else 1), keep=store is not None)
         progress = Progress(src.estimated_rows(), not args.quiet)
         progress.label = "serial 1/2"
         try:
-            _serial_pass(src, layout, decimal, checker, progress)
+            _serial_pass(src, layout, decimal, checker, progress, store)
+        except BaseException:
+            checker.close()  # its scratch folder goes on every exit path
+            if store is not None:
+                store.close()  # adds nothing
+            raise
         finally:
             progress.end()
     writer = fileio.Writer(args.output, out_fmt, out_delim, metadata={"caution": CAUTION},
@@ -626,9 +652,15 @@ def _run(args: argparse.Namespace, label: str) -> int:
     finally:
         pool.shutdown(wait=True, cancel_futures=True)
         progress.end()
-        writer.close(ok)
-        if checker is not None:
-            checker.close()
+        try:
+            writer.close(ok)
+            if ok and store is not None:  # only a run whose output is whole is stored
+                notes.append(history.commit_run(store, checker, args.input, _audit(args)))
+        finally:
+            if checker is not None:
+                checker.close()
+            if store is not None:
+                store.close()  # without a commit: adds nothing
     text = summary_json(tally, notes) if (args.summary or "").endswith(".json") else \
         summary_text(tally, notes)
     if args.summary:

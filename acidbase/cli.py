@@ -21,7 +21,7 @@ from . import serial as serial_defaults
 from .files.formats import FORMATS
 from .fields import NUMERIC, TEXT_FIELDS
 from .inputs.vocab import CHOICES
-from .model import Panel, describe
+from .inputs.panel import Panel, describe
 from .reference import Settings
 from .report import as_text
 from .results import CAUTION
@@ -108,6 +108,12 @@ def configure_batch_parser(p: argparse.ArgumentParser) -> None:
                    help="the laboratory's delta limit for a field, canonical unit, or 'off' "
                         "(repeatable)")
     s.add_argument("--no-serial", action="store_true", help="skip the serial checks")
+    s.add_argument("--history", metavar="PATH",
+                   help="history store: compare with each patient's panels from earlier runs, "
+                        "then add this run's (patient ids stored as keyed hashes; the site key "
+                        "in ACIDBASE_HISTORY_KEY)")
+    s.add_argument("--history-retention-days", type=float, default=None, metavar="DAYS",
+                   help="prune stored panels collected longer ago (default 30)")
     o = p.add_argument_group("output")
     o.add_argument("--output-format", choices=FORMATS, help="default: from the name")
     o.add_argument("--output-delimiter", default=",", metavar="CHAR",
@@ -226,6 +232,12 @@ def cmd_batch(args: argparse.Namespace) -> int:
     return batch.run(args)
 
 
+def cmd_history(args: argparse.Namespace) -> int:
+    from . import history_command
+
+    return history_command.run(args)
+
+
 def cmd_tui(args: argparse.Namespace) -> int:
     data = panel_from_args(args)
     panel = None
@@ -238,6 +250,27 @@ def cmd_tui(args: argparse.Namespace) -> int:
 
     make_app(panel=panel, demo=args.demo, settings=settings_from_args(args)).run()
     return EXIT_OK
+
+
+def configure_history_parser(p: argparse.ArgumentParser) -> None:
+    """Options of ``acidbase history`` (acidbase.history_command runs it)."""
+    p.description = _help(
+        "Show what a history store holds (panels, patients, collection dates, runs recorded), "
+        "export one patient's stored panels, or purge them. " + CAUTION)
+    p.add_argument("store", metavar="STORE", help="the history store (acidbase batch --history)")
+    p.add_argument("--patient", metavar="ID",
+                   help="a patient id (hashed with the site key in ACIDBASE_HISTORY_KEY; "
+                        "never stored)")
+    what = p.add_mutually_exclusive_group()
+    what.add_argument("--export", action="store_true",
+                      help="write the patient's stored panels as CSV (-o FILE or standard output)")
+    what.add_argument("--purge", action="store_true", help="remove the patient's stored panels")
+    what.add_argument("--prune", action="store_true",
+                      help="remove panels collected before the retention period now")
+    p.add_argument("--retention-days", type=float, default=30.0, metavar="DAYS",
+                   help="retention period for --prune (default 30)")
+    p.add_argument("-o", "--output", metavar="FILE", help="file for --export")
+    p.add_argument("--json", action="store_true", help="the summary as JSON")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -257,6 +290,9 @@ def build_parser() -> argparse.ArgumentParser:
     batch = sub.add_parser("batch", help="check a file of panels")
     configure_batch_parser(batch)
     batch.set_defaults(func=cmd_batch)
+    hist = sub.add_parser("history", help="what a history store holds; export or purge a patient")
+    configure_history_parser(hist)
+    hist.set_defaults(func=cmd_history)
     tui = sub.add_parser("tui", help="the keyboard-only terminal app")
     add_panel_options(tui)
     tui.add_argument("--demo", action="store_true", help="open with the demo panels loaded")

@@ -68,6 +68,9 @@ def as_json_dict(it: Interpretation) -> dict[str, Any]:
         "derived": dict(it.derived),
         "findings": [f.as_dict() for f in it.findings],
         "settings": it.settings,
+        # what the reader read off the cells, present only when there was something
+        **({"qualifiers": list(it.qualifiers)} if it.qualifiers else {}),
+        **({"lab_flags": list(it.lab_flags)} if it.lab_flags else {}),
     }
 
 
@@ -84,7 +87,7 @@ def as_text(it: Interpretation, width: int = 88, working: bool = True) -> str:
     if it.status == "refused":
         lines.append("Panel refused; nothing was interpreted:")
         for p in it.problems:
-            lines += _wrap(p, "  - ", width)
+            lines += _wrap(str(p), "  - ", width)
         return "\n".join(lines) + "\n"
     lines.append(f"Sample: {it.sample_type}; HCO3- source: {it.hco3_source}")
     shown = []
@@ -93,6 +96,12 @@ def as_text(it: Interpretation, width: int = 88, working: bool = True) -> str:
         unit = "" if item["unit"] in ("1", "[pH]") else f" {item['unit']}"
         shown.append(f"{spec.title} {item['value']:.4g}{unit}")
     lines += _wrap("Inputs (canonical units): " + ", ".join(shown), "", width)
+    if it.qualifiers:
+        lines += _wrap("Censored values, read as not measured: " + ", ".join(it.qualifiers),
+                       "", width)
+    if it.lab_flags:
+        lines += _wrap("Laboratory flags read off the values: " + ", ".join(it.lab_flags),
+                       "", width)
     cited: dict[str, Any] = {}
     for section, heading in QUESTIONS.items():
         lines.append("")

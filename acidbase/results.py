@@ -22,7 +22,7 @@ from .engine import CONSISTENCY_NAMES, ROLE_NAMES, SLOTS, TIMING_NAMES, VALID_WH
 from .fields import HCO3_SOURCES, NUMERIC, SAMPLE_TYPES
 from .inputs.vocab import CHOICES
 from .errors import Problem
-from .model import Screened
+from .inputs.panel import Screened
 
 # The derived values and their shown precision live in ``acidbase.precision`` (the report
 # reads them without importing this module: no import cycle); re-exported here.

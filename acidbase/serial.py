@@ -21,12 +21,20 @@ Two checks, over every patient with a ``patient_id`` and a ``collected_at``:
 
 The file need not be sorted.  Design (two passes over the file, memory bounded):
 the first pass keeps, for each row with a patient and a time, only the row
-number, the patient id, the time and the few delta fields, spilled to
-temporary Arrow files partitioned by a hash of the patient id; each partition
-is then sorted by (patient, time, row) and checked on its own.  What stays in
-memory for the whole file is one byte of status per row and the text of the
-flagged rows; one partition is in memory at a time.  The second pass (the
-batch run) reads the status back by row number.
+number, the patient id, the time, the sample id and the few delta fields,
+spilled to temporary Arrow files partitioned by a hash of the patient id.  Each
+partition is then sorted by (patient, time, row) and checked on its own in
+column operations: neighbours are compared as shifted arrays, and the text of
+the flagged rows is assembled with Arrow string kernels (each distinct number
+is formatted once).  That text is spilled again, to files by row range, and read
+back one range at a time when the batch writes those rows.  What stays in memory
+for the whole file is one byte of status per row; one partition, and one or two
+row ranges of flagged text, are in memory at a time.
+
+Earlier panels (a history store, ``acidbase.history``) join the partitions as
+rows with negative row numbers: they are neighbours of this file's panels but
+are never flagged or written themselves, and one with the sample id and time of
+a panel of this file is that panel stored by an earlier run, so it is left out.
 """
 
 from __future__ import annotations
@@ -34,13 +42,15 @@ from __future__ import annotations
 import math
 import os
 import tempfile
-from collections.abc import Mapping, Sequence
+import threading
+from collections import OrderedDict
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
-import pyarrow.ipc as ipc
+from pyarrow import ipc
 
 from .fields import BY_NAME
 
@@ -122,30 +132,57 @@ def _hours(seconds: float) -> str:
     return f"{h:.1f} h" if h >= 0.1 else f"{seconds / 60.0:.0f} min"
 
 
+#: The fields kept for every panel with a patient and a time (the default delta
+#: fields): what the history store keeps, whatever limits a run sets.
+STORED_FIELDS: tuple[str, ...] = tuple(r.field for r in DELTA_RULES)
+
+#: Text rows kept per spill file (at most ``_MAX_BUCKETS`` files).
+_BUCKET_ROWS = 1 << 16
+_MAX_BUCKETS = 64
+
+
 class SerialChecker:
-    """Collects rows (first pass), then checks each patient's series."""
+    """Collects rows (first pass), then checks each patient's series.
+
+    ``keep=True`` keeps the first pass's files until ``close`` so that the run's
+    panels can be read back (``panels``) to be stored for later runs.
+    """
 
     def __init__(self, rules: Sequence[DeltaRule] = DELTA_RULES,
                  window_hours: float = DEFAULT_WINDOW_HOURS, partitions: int = 1,
-                 workdir: str | None = None) -> None:
+                 workdir: str | None = None, keep: bool = False) -> None:
         if not window_hours > 0:
             raise ValueError("the serial window must be a positive number of hours")
         self.rules = tuple(rules)
         self.window = float(window_hours) * 3600.0
         self.k = max(1, int(partitions))
+        self.fields = tuple(dict.fromkeys([*STORED_FIELDS, *(r.field for r in self.rules)]))
+        self.keep = keep
         self._tmp = tempfile.TemporaryDirectory(prefix="acidbase-serial-", dir=workdir)
-        self._schema = pa.schema(
+        self.schema = pa.schema(
             [("row", pa.int64()), ("patient", pa.string()), ("t", pa.int64()),
              ("zoned", pa.bool_()), ("sample", pa.string())]
-            + [(r.field, pa.float64()) for r in self.rules])
-        self._writers: list[ipc.RecordBatchFileWriter | None] = [None] * self.k
+            + [(f, pa.float64()) for f in self.fields])
+        # This file's rows ("p") and earlier panels ("e"), each by partition.
+        self._writers: dict[tuple[str, int], ipc.RecordBatchFileWriter] = {}
         self._status: list[np.ndarray] = []
         self._n = 0
         self._naive = self._zoned = 0
+        self._earlier = 0
+        self.tmin: int | None = None
+        self.tmax: int | None = None
+        """Earliest and latest collection time of this file's usable panels (seconds)."""
+        self.interpreted: np.ndarray | None = None
+        """Per row, set by the second pass: the panel was interpreted (not refused)."""
         self.status: np.ndarray | None = None
-        self._flag_rows = np.zeros(0, dtype=np.int64)
-        self._flag_codes: list[str] = []
-        self._flag_detail: list[str] = []
+        self.known: np.ndarray | None = None
+        """Per row: a panel with this patient, time and sample id was already stored."""
+        self.earlier_used = 0
+        """Earlier panels (``add_earlier``) that took part in the checks."""
+        self._bucket_rows = _BUCKET_ROWS
+        self._texts: dict[int, str] = {}
+        self._cache: OrderedDict[int, tuple[np.ndarray, pa.Array, pa.Array]] = OrderedDict()
+        self._lock = threading.Lock()
 
     @staticmethod
     def partitions_for(size_bytes: int) -> int:
@@ -160,14 +197,13 @@ class SerialChecker:
         ``patient`` object array (None when absent); ``seconds`` and ``kind`` from
         ``fileio.parse_times``; ``values`` in canonical units, NaN when not usable.
         """
-        from .fileio import TIME_INVALID, TIME_NAIVE, TIME_ZONED
+        from .files.times import TIME_INVALID, TIME_NAIVE, TIME_ZONED
 
         n = len(patient)
-        rows = np.arange(self._n, self._n + n, dtype=np.int64)
+        first = self._n
         self._n += n
         pat_all = _strings(patient)
-        has_id = np.asarray(pc.fill_null(pc.not_equal(pc.utf8_trim_whitespace(pat_all), ""),
-                                         False).to_numpy(zero_copy_only=False), dtype=bool)
+        has_id = _mask(pc.not_equal(pc.utf8_trim_whitespace(pat_all), ""))
         status = np.full(n, NO_ID, dtype=np.uint8)
         status[has_id & (kind == TIME_INVALID)] = BAD_TIME
         usable = has_id & ((kind == TIME_NAIVE) | (kind == TIME_ZONED))
@@ -178,192 +214,430 @@ class SerialChecker:
         if not usable.any():
             return
         idx = np.flatnonzero(usable)
+        lo, hi = int(seconds[idx].min()), int(seconds[idx].max())
+        self.tmin = lo if self.tmin is None else min(self.tmin, lo)
+        self.tmax = hi if self.tmax is None else max(self.tmax, hi)
         take = pa.array(idx)
-        pat = pat_all.take(take)
+        samp = (_strings(sample).take(take) if sample is not None
+                else pa.nulls(len(idx), pa.string()))
+        cols = [pa.array(idx + first), pat_all.take(take), pa.array(seconds[idx]),
+                pa.array(kind[idx] == TIME_ZONED), samp]
+        for f in self.fields:
+            v = values.get(f)
+            cols.append(pa.array(np.asarray(v, dtype=np.float64)[idx]) if v is not None
+                        else pa.nulls(len(idx), pa.float64()))
+        self._spill(pa.table(cols, schema=self.schema), "p")
+
+    def add_earlier(self, table: pa.Table) -> None:
+        """Add panels stored by earlier runs: columns ``patient``, ``t``, ``zoned``,
+        ``sample`` and any of ``fields`` (a field not given is missing).  They are
+        neighbours of this file's panels, never flagged or written."""
+        n = table.num_rows
+        if n == 0:
+            return
+        rows = -1 - (self._earlier + np.arange(n, dtype=np.int64))
+        self._earlier += n
+        names = set(table.column_names)
+        cols = [pa.array(rows)]
+        for name, typ in zip(self.schema.names[1:], self.schema.types[1:]):
+            cols.append(table[name].cast(typ) if name in names else pa.nulls(n, typ))
+        self._spill(pa.table(cols, schema=self.schema), "e")
+
+    def _spill(self, table: pa.Table, kind: str) -> None:
+        """Append rows to the partition files, by a hash of the patient."""
         if self.k > 1:
-            enc = pc.dictionary_encode(pat)
+            enc = pc.dictionary_encode(table["patient"]).combine_chunks()
             buckets = np.array([hash(s) % self.k for s in enc.dictionary.to_pylist()],
                                dtype=np.int64)
             part = buckets[np.asarray(enc.indices.to_numpy(zero_copy_only=False))]
+            order = np.argsort(part, kind="stable")
+            table = table.take(pa.array(order))
+            bounds = np.searchsorted(part[order], np.arange(self.k + 1))
         else:
-            part = np.zeros(len(idx), dtype=np.int64)
-        samp = (_strings(sample).take(take) if sample is not None
-                else pa.nulls(len(idx), pa.string()))
-        table = pa.table(
-            [pa.array(rows[idx]), pat, pa.array(seconds[idx]), pa.array(kind[idx] == TIME_ZONED),
-             samp] + [pa.array(np.asarray(values.get(r.field, np.full(n, np.nan)))[idx],
-                               type=pa.float64()) for r in self.rules],
-            schema=self._schema)
-        order = np.argsort(part, kind="stable")
-        table = table.take(pa.array(order))
-        part = part[order]
-        bounds = np.searchsorted(part, np.arange(self.k + 1))
+            bounds = np.array([0, table.num_rows])
         for b in range(self.k):
             lo, hi = bounds[b], bounds[b + 1]
             if hi > lo:
-                w = self._writers[b]
+                w = self._writers.get((kind, b))
                 if w is None:
-                    w = ipc.new_file(os.path.join(self._tmp.name, f"p{b}.arrow"), self._schema)
-                    self._writers[b] = w
+                    w = ipc.new_file(self._part_path(b, kind), self.schema)
+                    self._writers[kind, b] = w
                 w.write_table(table.slice(lo, hi - lo))
+
+    def _part_path(self, b: int, kind: str = "p") -> str:
+        return os.path.join(self._tmp.name, f"{kind}{b}.arrow")
+
+    def _read_part(self, b: int, kind: str) -> pa.Table | None:
+        path = self._part_path(b, kind)
+        if not os.path.exists(path):
+            return None
+        with pa.memory_map(path) as src:
+            return ipc.open_file(src).read_all()
 
     # -- checks -----------------------------------------------------------------
     def finish(self) -> None:
         """Check every partition; afterwards ``columns`` answers by row number."""
         status = np.concatenate(self._status) if self._status else np.zeros(0, dtype=np.uint8)
         self._status = []
+        self.known = np.zeros(len(status), dtype=bool)
+        self.twins = np.zeros(len(status), dtype=bool)
         mixed = self._naive > 0 and self._zoned > 0
-        rows_out: list[np.ndarray] = []
-        codes_out: list[str] = []
-        detail_out: list[str] = []
-        for b, w in enumerate(self._writers):
-            if w is None:
-                continue
+        self._bucket_rows = max(_BUCKET_ROWS, -(-self._n // _MAX_BUCKETS))
+        spill: dict[int, ipc.RecordBatchFileWriter] = {}
+        for w in self._writers.values():
             w.close()
-            path = os.path.join(self._tmp.name, f"p{b}.arrow")
-            with pa.memory_map(path) as src:
-                table = ipc.open_file(src).read_all()
-            if mixed:
-                naive = ~np.asarray(table["zoned"].to_numpy(zero_copy_only=False), dtype=bool)
-                status[np.asarray(table["row"].to_numpy())[naive]] = MIXED_ZONE
-                table = table.filter(pa.array(~naive))
-            r, c, d = self._check(table, status)
-            rows_out.append(r)
-            codes_out += c
-            detail_out += d
-            del table
-            os.remove(path)
-        self._writers = [None] * self.k
+        self._writers = {}
+        try:
+            for b in range(self.k):
+                parts = [t for t in (self._read_part(b, "p"), self._read_part(b, "e"))
+                         if t is not None]
+                if not parts:
+                    continue
+                table = pa.concat_tables(parts) if len(parts) > 1 else parts[0]
+                del parts
+                row = np.asarray(table["row"].to_numpy(), dtype=np.int64)
+                pid = _codes(table["patient"])
+                if (row < 0).any() or self.keep:
+                    keep = self._identities(table, pid, row)
+                    if keep is not None:
+                        table, row, pid = table.filter(pa.array(keep)), row[keep], pid[keep]
+                zoned = np.asarray(table["zoned"].to_numpy(zero_copy_only=False), dtype=bool)
+                earlier = row < 0
+                drop = earlier & (zoned != (self._zoned > 0))  # other clock: not comparable
+                if earlier.any():  # patients with no panel in this file: not needed
+                    mine = np.zeros(pid.max() + 2, dtype=bool)
+                    mine[pid[~earlier]] = True
+                    drop |= earlier & ~mine[pid]
+                if mixed:
+                    naive = ~zoned & ~earlier
+                    status[row[naive]] = MIXED_ZONE
+                    drop |= naive
+                if drop.any():
+                    table, pid = table.filter(pa.array(~drop)), pid[~drop]
+                found = self._check(table, pid, status)
+                if found is not None:
+                    self._spill_text(*found, spill)
+                del table
+                for kind in ("p", "e"):
+                    if (kind == "e" or not self.keep) and os.path.exists(self._part_path(b, kind)):
+                        os.remove(self._part_path(b, kind))
+        finally:
+            for w in spill.values():
+                w.close()
         self.status = status
-        if rows_out:
-            rows = np.concatenate(rows_out)
-            order = np.argsort(rows, kind="stable")
-            self._flag_rows = rows[order]
-            self._flag_codes = [codes_out[i] for i in order.tolist()]
-            self._flag_detail = [detail_out[i] for i in order.tolist()]
-        self._tmp.cleanup()
+        self.interpreted = np.zeros(len(status), dtype=bool)
 
-    def _check(self, table: pa.Table,
-               status: np.ndarray) -> tuple[np.ndarray, list[str], list[str]]:
-        n = table.num_rows
-        if n == 0:
-            return np.zeros(0, dtype=np.int64), [], []
-        table = table.sort_by([("patient", "ascending"), ("t", "ascending"),
-                               ("row", "ascending")])
+    def _check(self, table: pa.Table, pid: np.ndarray, status: np.ndarray
+               ) -> tuple[np.ndarray, pa.Array, pa.Array] | None:
+        """Flag one partition's rows (``pid``: equal codes for equal patients); the
+        flagged rows with their codes and detail."""
+        if table.num_rows == 0:
+            return None
         row = np.asarray(table["row"].to_numpy(), dtype=np.int64)
         t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
-        pid = np.asarray(pc.dictionary_encode(table["patient"]).combine_chunks().indices
-                         .to_numpy(zero_copy_only=False))
+        order = np.lexsort((row, t, pid))
+        pid, row, t = pid[order], row[order], t[order]
+        ours = row >= 0
+        n = len(row)
         # Pair j links sorted panels j and j+1 of the same patient within the window.
-        same = pid[1:] == pid[:-1]
-        gap = (t[1:] - t[:-1]).astype(np.float64)
-        pair = same & (gap <= self.window)
+        pair = (pid[1:] == pid[:-1]) & ((t[1:] - t[:-1]).astype(np.float64) <= self.window)
         prev_ok = np.concatenate([[False], pair])
         next_ok = np.concatenate([pair, [False]])
-        status[row[prev_ok | next_ok]] = WITHIN
+        status[row[(prev_ok | next_ok) & ours]] = WITHIN
+        # An earlier panel "used" is a neighbour of one of this file's panels.
+        near = np.zeros(n, dtype=bool)
+        near[:-1] |= pair & ours[1:]
+        near[1:] |= pair & ours[:-1]
+        self.earlier_used += int(np.count_nonzero(near & ~ours))
         vals = {r.field: np.asarray(table[r.field].to_numpy(zero_copy_only=False),
-                                    dtype=np.float64) for r in self.rules}
-        delta_hits: dict[str, np.ndarray] = {}
-        break_hits: dict[str, np.ndarray] = {}
+                                    dtype=np.float64)[order] for r in self.rules}
+        delta, brk = {}, {}
         for r in self.rules:
             v = vals[r.field]
             d = v[1:] - v[:-1]  # change over pair j
             with np.errstate(invalid="ignore"):
                 big = pair & (np.abs(d) > r.limit)
-            hit_prev = np.concatenate([[False], big])  # panel i changed from i-1
-            delta_hits[r.field] = hit_prev
+            delta[r.field] = np.concatenate([[False], big])  # panel i changed from i-1
             # Break at i: big change in, big change out, opposite signs, and the
             # neighbours i-1 and i+1 agree within the limit.
-            brk = np.zeros(n, dtype=bool)
+            b = np.zeros(n, dtype=bool)
             if n >= 3:
-                d_in, d_out = d[:-1], d[1:]
                 with np.errstate(invalid="ignore"):
                     around = np.abs(v[2:] - v[:-2]) <= r.limit
-                    brk[1:-1] = big[:-1] & big[1:] & (np.sign(d_in) != np.sign(d_out)) & around
-            break_hits[r.field] = brk
-        any_delta = np.zeros(n, dtype=bool)
-        for h in delta_hits.values():
-            any_delta |= h
-        any_break = np.zeros(n, dtype=bool)
-        for h in break_hits.values():
-            any_break |= h
-        flagged = np.flatnonzero(any_delta | any_break)
+                    b[1:-1] = big[:-1] & big[1:] & (np.sign(d[:-1]) != np.sign(d[1:])) & around
+            brk[r.field] = b
+        hit = np.zeros(n, dtype=bool)
+        for h in (*delta.values(), *brk.values()):
+            hit |= h
+        flagged = np.flatnonzero(hit & ours)
+        if flagged.size == 0:
+            return None
         status[row[flagged]] = FLAGGED
-        samples = table["sample"].to_pylist() if flagged.size else []
-        codes: list[str] = []
-        details: list[str] = []
-        for i in flagged.tolist():
-            c: list[str] = []
-            text: list[str] = []
-            broke = [r for r in self.rules if break_hits[r.field][i]]
-            if broke:
-                c.append(CODE_BREAK)
-                parts = ", ".join(
-                    f"{BY_NAME[r.field].title} {_fmt(vals[r.field][i])} between "
-                    f"{_fmt(vals[r.field][i - 1])} and {_fmt(vals[r.field][i + 1])}"
-                    for r in broke)
-                text.append(
-                    f"breaks this patient's series ({parts}; panels "
-                    f"{_ref(row[i - 1], samples[i - 1])} and {_ref(row[i + 1], samples[i + 1])}): "
-                    "possible sample from another "
-                    "patient or contaminated sample; check identity and collection")
-            for r in self.rules:
-                if delta_hits[r.field][i]:
-                    c.append(r.code)
-                    spec = BY_NAME[r.field]
-                    d = vals[r.field][i] - vals[r.field][i - 1]
-                    text.append(
-                        f"{spec.title} {_fmt(vals[r.field][i])} after {_fmt(vals[r.field][i - 1])} "
-                        f"({'+' if d > 0 else ''}{_fmt(d)} {spec.unit} in "
-                        f"{_hours(float(t[i] - t[i - 1]))}, since "
-                        f"{_ref(row[i - 1], samples[i - 1])}); "
-                        f"delta limit {_fmt(r.limit)} {spec.unit}")
-            codes.append(";".join(c))
-            details.append("; ".join(text))
-        return row[flagged], codes, details
+        zoned = np.asarray(table["zoned"].to_numpy(zero_copy_only=False), dtype=bool)[order]
+        samples = table["sample"].combine_chunks()
+        codes, detail = _texts(self.rules, flagged, row, t, zoned,
+                               lambda at: samples.take(pa.array(order[at])), vals, delta, brk)
+        return row[flagged], codes, detail
+
+    def _identities(self, table: pa.Table, pid: np.ndarray,
+                    row: np.ndarray) -> np.ndarray | None:
+        """``_drop_stored_copies`` over the rows that share a patient and a time with
+        another (few, unless a file is read again); None when none do."""
+        t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
+        o = np.lexsort((t, pid))
+        same = (pid[o][1:] == pid[o][:-1]) & (t[o][1:] == t[o][:-1])
+        if not same.any():
+            return None
+        shared = np.zeros(len(row), dtype=bool)
+        shared[o[1:][same]] = True
+        shared[o[:-1][same]] = True
+        at = np.flatnonzero(shared)
+        keep = np.ones(len(row), dtype=bool)
+        keep[at] = self._drop_stored_copies(pid[at], t[at], _codes(table["sample"].take(
+            pa.array(at))), row[at])
+        return keep
+
+    def _drop_stored_copies(self, pid: np.ndarray, t: np.ndarray, sid: np.ndarray,
+                            row: np.ndarray) -> np.ndarray:
+        """Rows to keep: an earlier panel with the patient, time and sample id of one of
+        this file's panels is that panel stored by an earlier run (a re-run), so it is
+        dropped and the panel is marked ``known`` (not stored again)."""
+        o = np.lexsort((row, sid, t, pid))
+        p, tt, s, early = pid[o], t[o], sid[o], row[o] < 0
+        new = np.concatenate([[True], (p[1:] != p[:-1]) | (tt[1:] != tt[:-1]) | (s[1:] != s[:-1])])
+        gid = np.cumsum(new) - 1
+        has_early = np.zeros(gid[-1] + 1, dtype=bool)
+        has_early[gid[early]] = True
+        has_ours = np.zeros(gid[-1] + 1, dtype=bool)
+        has_ours[gid[~early]] = True
+        dup = has_early[gid] & has_ours[gid]
+        self.known[row[o][dup & ~early]] = True
+        if self.keep:  # this file's rows sharing an identity: stored once (new_panels)
+            size = np.bincount(gid[~early], minlength=gid[-1] + 1)
+            self.twins[row[o][~early & (size[gid] > 1)]] = True
+        keep = np.ones(len(row), dtype=bool)
+        keep[o[dup & early]] = False
+        return keep
+
+    def _spill_text(self, rows: np.ndarray, codes: pa.Array, detail: pa.Array,
+                    spill: dict[int, ipc.RecordBatchFileWriter]) -> None:
+        """Write flagged rows' text to the spill file of their row range."""
+        order = np.argsort(rows, kind="stable")
+        rows = rows[order]
+        take = pa.array(order)
+        table = pa.table({"row": rows, "codes": codes.take(take), "detail": detail.take(take)})
+        bucket = rows // self._bucket_rows
+        edges = np.flatnonzero(np.diff(bucket)) + 1
+        for lo, hi in zip(np.r_[0, edges], np.r_[edges, len(rows)]):
+            b = int(bucket[lo])
+            w = spill.get(b)
+            if w is None:
+                w = spill[b] = ipc.new_file(self._text_path(b), table.schema)
+            w.write_table(table.slice(lo, hi - lo))
+
+    def _text_path(self, b: int) -> str:
+        return os.path.join(self._tmp.name, f"t{b}.arrow")
+
+    def _bucket(self, b: int) -> tuple[np.ndarray, pa.Array, pa.Array] | None:
+        """One row range's flagged text, sorted by row (the last few kept)."""
+        with self._lock:
+            if b in self._cache:
+                self._cache.move_to_end(b)
+                return self._cache[b]
+            path = self._text_path(b)
+            if not os.path.exists(path):
+                return None
+            with pa.memory_map(path) as src:
+                table = ipc.open_file(src).read_all()
+            rows = np.asarray(table["row"].to_numpy(), dtype=np.int64)
+            order = np.argsort(rows, kind="stable")
+            take = pa.array(order)
+            got = (rows[order], table["codes"].take(take).combine_chunks(),
+                   table["detail"].take(take).combine_chunks())
+            self._cache[b] = got
+            while len(self._cache) > 3:
+                self._cache.popitem(last=False)
+            return got
 
     # -- second pass ------------------------------------------------------------
-    def columns(self, start: int, stop: int) -> dict[str, np.ndarray]:
-        """The serial output columns for rows ``start`` to ``stop`` (file order)."""
-        if self.status is None:
-            raise RuntimeError("finish() first")
-        st = self.status[start:stop]
-        labels = np.array(STATUS_TEXT, dtype=object)[st]
-        codes = np.full(stop - start, "", dtype=object)
-        detail = np.full(stop - start, "", dtype=object)
-        lo, hi = np.searchsorted(self._flag_rows, [start, stop])
-        for j in range(lo, hi):
-            k = self._flag_rows[j] - start
-            codes[k] = self._flag_codes[j]
-            detail[k] = self._flag_detail[j]
-        return {"serial_status": labels, "serial_codes": codes, "serial_detail": detail}
+    def panels(self) -> Iterator[pa.Table]:
+        """This file's panels with a patient and a time (``keep=True``), one partition
+        at a time: columns ``row``, ``patient``, ``t``, ``zoned``, ``sample`` and
+        ``fields``."""
+        if not self.keep or self.status is None:
+            raise RuntimeError("panels() needs keep=True and finish()")
+        for b in range(self.k):
+            table = self._read_part(b, "p")
+            if table is not None:
+                yield table
+
+    def new_panels(self, fields: Sequence[str] = STORED_FIELDS) -> Iterator[pa.Table]:
+        """This file's interpreted panels not already stored (``known``), each identity
+        (patient, time, sample id) once: columns ``patient``, ``t``, ``zoned``,
+        ``sample`` and ``fields``, one partition at a time (``keep=True``)."""
+        names = ["patient", "t", "zoned", "sample", *fields]
+        for table in self.panels():
+            row = np.asarray(table["row"].to_numpy(), dtype=np.int64)
+            new = self.interpreted[row] & ~self.known[row]
+            twin = new & self.twins[row]
+            if twin.any():  # rare: rows sharing an identity; the first interpreted one
+                sub = table.filter(pa.array(twin))
+                pid, sid = _codes(sub["patient"]), _codes(sub["sample"])
+                t = np.asarray(sub["t"].to_numpy(), dtype=np.int64)
+                o = np.lexsort((row[twin], sid, t, pid))
+                first = np.concatenate([[True], (pid[o][1:] != pid[o][:-1])
+                                        | (t[o][1:] != t[o][:-1]) | (sid[o][1:] != sid[o][:-1])])
+                new[np.flatnonzero(twin)[o[~first]]] = False
+            if new.any():
+                yield table.filter(pa.array(new)).select(names)
 
     def arrow_columns(self, start: int, stop: int) -> dict[str, pa.Array]:
-        """``columns`` as Arrow arrays; the status as a dictionary array of its texts."""
+        """The serial output columns for rows ``start`` to ``stop`` (file order); the
+        status as a dictionary array of its texts."""
         if self.status is None:
             raise RuntimeError("finish() first")
         st = self.status[start:stop]
         status = pa.DictionaryArray.from_arrays(pa.array(st.astype(np.int8)),
                                                 pa.array(list(STATUS_TEXT)))
         n = stop - start
-        lo, hi = np.searchsorted(self._flag_rows, [start, stop])
-        if hi == lo:
+        parts = []
+        if n > 0 and (st == FLAGGED).any():
+            for b in range(start // self._bucket_rows, (stop - 1) // self._bucket_rows + 1):
+                got = self._bucket(b)
+                if got is not None:
+                    rows, codes, detail = got
+                    lo, hi = np.searchsorted(rows, [start, stop])
+                    if hi > lo:
+                        parts.append((rows[lo:hi], codes.slice(lo, hi - lo),
+                                      detail.slice(lo, hi - lo)))
+        if not parts:
             empty = pa.repeat(pa.scalar(""), n)
             return {"serial_status": status, "serial_codes": empty, "serial_detail": empty}
+        rows = np.concatenate([p[0] for p in parts])
         where = np.full(n, -1, dtype=np.int64)
-        where[self._flag_rows[lo:hi] - start] = np.arange(hi - lo)
+        where[rows - start] = np.arange(len(rows))
         index = pa.array(where, mask=where < 0)
-        codes = pc.fill_null(pc.take(pa.array(self._flag_codes[lo:hi], type=pa.string()),
-                                     index), "")
-        detail = pc.fill_null(pc.take(pa.array(self._flag_detail[lo:hi], type=pa.string()),
-                                      index), "")
+        codes = pc.fill_null(pc.take(pa.concat_arrays([p[1] for p in parts]), index), "")
+        detail = pc.fill_null(pc.take(pa.concat_arrays([p[2] for p in parts]), index), "")
         return {"serial_status": status, "serial_codes": codes, "serial_detail": detail}
 
+    def columns(self, start: int, stop: int) -> dict[str, np.ndarray]:
+        """``arrow_columns`` as numpy object arrays of text."""
+        cols = self.arrow_columns(start, stop)
+        return {k: np.array(v.cast(pa.string()).to_pylist(), dtype=object)
+                for k, v in cols.items()}
+
     def close(self) -> None:
-        for w in self._writers:
-            if w is not None:
+        """Close and remove the temporary files (also after a failed run)."""
+        for w in self._writers.values():
+            try:
                 w.close()
+            except (OSError, pa.ArrowException):
+                pass
+        self._writers = {}
+        self._cache.clear()
         self._tmp.cleanup()
+
+
+def _texts(rules: Sequence[DeltaRule], flagged: np.ndarray, row: np.ndarray, t: np.ndarray,
+           zoned: np.ndarray, samples: Callable[[np.ndarray], pa.Array],
+           vals: Mapping[str, np.ndarray], delta: Mapping[str, np.ndarray],
+           brk: Mapping[str, np.ndarray]) -> tuple[pa.Array, pa.Array]:
+    """The codes and the detail of the flagged rows (positions ``flagged`` of the
+    sorted partition), assembled column-wise: the same words as one panel at a time.
+    Each piece of text is built only for the rows it is about."""
+
+    def ref(at: np.ndarray) -> pa.Array:
+        return _refs(row[at], samples(at), t[at], zoned[at])
+
+    parts: list[tuple[str, np.ndarray, pa.Array]] = []  # (code, rows of flagged, text)
+    any_break = np.zeros(len(flagged), dtype=bool)
+    for r in rules:
+        any_break |= brk[r.field][flagged]
+    if any_break.any():
+        sel = np.flatnonzero(any_break)
+        at = flagged[sel]
+        pieces = []
+        for r in rules:
+            on = brk[r.field][at]
+            if on.any():
+                i = at[on]
+                v = vals[r.field]
+                pieces.append((r.field, np.flatnonzero(on), pc.binary_join_element_wise(
+                    BY_NAME[r.field].title, " ", _numbers(v[i]), " between ",
+                    _numbers(v[i - 1]), " and ", _numbers(v[i + 1]), "")))
+        text = pc.binary_join_element_wise(
+            "breaks this patient's series (", _joined(pieces, len(at), ", ")[1], "; panels ",
+            ref(at - 1), " and ", ref(at + 1), "): possible sample from another patient or "
+            "contaminated sample; check identity and collection", "")
+        parts.append((CODE_BREAK, sel, text))
+    for r in rules:
+        sel = np.flatnonzero(delta[r.field][flagged])
+        if sel.size == 0:
+            continue
+        i = flagged[sel]
+        spec = BY_NAME[r.field]
+        v = vals[r.field]
+        d = v[i] - v[i - 1]
+        parts.append((r.code, sel, pc.binary_join_element_wise(
+            spec.title, " ", _numbers(v[i]), " after ", _numbers(v[i - 1]), " (",
+            pa.array(np.where(d > 0, "+", "")), _numbers(d), f" {spec.unit} in ",
+            _formatted((t[i] - t[i - 1]).astype(np.float64), _hours), ", since ",
+            ref(i - 1), f"); delta limit {_fmt(r.limit)} {spec.unit}", "")))
+    return _joined(parts, len(flagged), "; ", ";")
+
+
+def _joined(parts: Sequence[tuple[str, np.ndarray, pa.Array]], n: int, sep: str,
+            code_sep: str = ";") -> tuple[pa.Array, pa.Array]:
+    """Rows 0..n-1, each the join of the parts that cover it, in the order of
+    ``parts`` (each part: a name, the sorted rows it covers, a text per such row):
+    the joined names and the joined texts.  Rows are joined a combination at a time
+    (there are few), so each text is copied once."""
+    key = np.zeros(n, dtype=np.int64)
+    for j, (_, rows, _) in enumerate(parts):
+        key[rows] |= 1 << j
+    combos, inverse = np.unique(key, return_inverse=True)
+    inverse = inverse.ravel()
+    names, texts, where = [], [], []
+    for c in combos.tolist():
+        rows = np.flatnonzero(inverse == len(names))
+        mine = [p for j, p in enumerate(parts) if c >> j & 1]
+        got = [p[2].take(pa.array(np.searchsorted(p[1], rows))) for p in mine]
+        texts.append(got[0] if len(got) == 1 else
+                     pc.binary_join_element_wise(*got, sep))
+        names.append(code_sep.join(p[0] for p in mine))
+        where.append(rows)
+    back = np.empty(n, dtype=np.int64)
+    back[np.concatenate(where)] = np.arange(n)
+    take = pa.array(back)
+    return (pa.array(names, pa.string()).take(pa.array(inverse)),
+            pa.concat_arrays(texts).take(take))
+
+
+def _formatted(x: np.ndarray, fmt: Callable[[float], str]) -> pa.Array:
+    """``fmt`` of each value, each distinct value formatted once."""
+    if len(x) == 0:
+        return pa.array([], pa.string())
+    u, inv = np.unique(x, return_inverse=True)
+    return pa.array([fmt(float(v)) for v in u], pa.string()).take(pa.array(inv.ravel()))
+
+
+def _numbers(x: np.ndarray) -> pa.Array:
+    return _formatted(x, _fmt)
+
+
+def _refs(row: np.ndarray, sample: pa.Array, t: np.ndarray, zoned: np.ndarray) -> pa.Array:
+    """"row 3 (sample S3)"; an earlier run's panel by its collection time instead."""
+    ours = row >= 0
+    name = pc.binary_join_element_wise("row ", pc.cast(pa.array(row + 1), pa.string()), "")
+    if not ours.all():
+        stamp = pc.strftime(pc.cast(pa.array(t), pa.timestamp("s")), format="%Y-%m-%dT%H:%M")
+        stamp = pc.binary_join_element_wise(stamp, pa.array(np.where(zoned, "Z", "")), "")
+        stored = pc.binary_join_element_wise("the stored panel of ", stamp, "")
+        name = pc.if_else(pa.array(ours), name, stored)
+    has = pc.fill_null(pc.not_equal(sample, ""), False)
+    suffix = pc.binary_join_element_wise(" (sample ", sample, ")", "")
+    return pc.binary_join_element_wise(name, pc.if_else(has, suffix, ""), "")
 
 
 def rules_table() -> str:
@@ -383,9 +657,28 @@ def _strings(x: pa.Array | pa.ChunkedArray | np.ndarray) -> pa.Array:
     return pa.array(x, type=pa.string(), from_pandas=True)
 
 
-def _ref(row: int, sample: str | None) -> str:
-    return f"row {int(row) + 1}" + (f" (sample {sample})" if sample else "")
+def _codes(x: pa.ChunkedArray | pa.Array) -> np.ndarray:
+    """Equal texts get equal integers (missing or empty is -1): for grouping, not
+    ordering."""
+    enc = pc.dictionary_encode(pc.if_else(pc.equal(x, ""), pa.scalar(None, x.type), x))
+    if isinstance(enc, pa.ChunkedArray):
+        enc = enc.combine_chunks()
+    return np.asarray(pc.fill_null(enc.indices, -1).to_numpy(zero_copy_only=False),
+                      dtype=np.int64)
 
 
-__all__ = ["COLUMNS", "DEFAULT_WINDOW_HOURS", "DELTA_RULES", "DeltaRule", "SerialChecker",
-           "STATUS_TEXT", "rules_table", "rules_with"]
+def _mask(x: pa.Array | pa.ChunkedArray) -> np.ndarray:
+    return np.asarray(pc.fill_null(x, False).to_numpy(zero_copy_only=False), dtype=bool)
+
+
+__all__ = [
+    "COLUMNS",
+    "DEFAULT_WINDOW_HOURS",
+    "DELTA_RULES",
+    "STATUS_TEXT",
+    "STORED_FIELDS",
+    "DeltaRule",
+    "SerialChecker",
+    "rules_table",
+    "rules_with",
+]

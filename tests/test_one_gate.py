@@ -22,7 +22,7 @@ import pytest
 
 import acidbase
 from acidbase import cli
-from acidbase.model import describe_fields
+from acidbase.inputs.panel import describe_fields
 
 BASE = {"ph": "7.40", "pco2": "40", "hco3": "24", "na": "140", "cl": "104"}
 GAP_K_AT_4 = 140 + 4 - 104 - 24  # anion gap with K+ when K+ reads 4.0 mmol/L
@@ -273,3 +273,45 @@ def test_every_choice_comes_from_one_declaration():
     assert SAMPLE_TYPES == tuple(SampleType) == CHOICE_BY_NAME["sample_type"].words
     assert HCO3_SOURCES == tuple(Hco3Source)
     assert acidbase.Panel.model_fields["sample_type"].default == "unknown"
+
+
+# ---------------------------------------------------------------- a declared decimal comma
+
+COMMA_CELLS = [("4,0", OK), ("4,0 L", OK), ("<5", CENSORED), ("4.0", BAD), ("1.400", BAD),
+               ("4", OK), ("", NONE)]
+
+
+def test_a_declared_decimal_comma_reads_alike_on_every_path(tmp_path):
+    """``--decimal ,``: a comma is the decimal mark and a point is refused, in the library,
+    Panel, check and a file."""
+    base = {**BASE, "ph": "7,40"}
+    for cell, fate in COMMA_CELLS:
+        r = acidbase.interpret_many({**{k: [v] for k, v in base.items()}, "k": [cell]},
+                                    decimal=",")
+        lib = r[0]
+        if fate == OK:
+            assert lib.derived["anion_gap_k"] == pytest.approx(GAP_K_AT_4), cell
+        elif fate == BAD:
+            assert [p.kind for p in lib.problems] == [BAD], cell
+        p_ok = True
+        try:
+            acidbase.Panel.model_validate({**base, "k": cell}, context={"decimal": ","})
+        except Exception:
+            p_ok = False
+        assert p_ok == (lib.status == "interpreted"), cell
+        out, err = io.StringIO(), io.StringIO()
+        args = ["check", "--json", "--decimal", ","] + [
+            x for k, v in base.items() for x in (f"--{k}", v)]
+        with redirect_stdout(out), redirect_stderr(err):
+            rc = cli.main([*args, f"--k={cell}"])
+        assert (rc == 0) == (lib.status == "interpreted"), cell
+    path = tmp_path / "comma.csv"
+    lines = ["ph;pco2;hco3;na;cl;k"] + [f"7,40;40;24;140;104;{c}" for c, _ in COMMA_CELLS]
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    out = tmp_path / "comma.jsonl"
+    with redirect_stderr(io.StringIO()):
+        # the sample holds both marks ("4.0" beside "4,0"): detection refuses to choose,
+        # so the comma is declared, as the message asks
+        assert cli.main(["batch", str(path), "-o", str(out), "--quiet", "--decimal", ","]) == 0
+    rows = [json.loads(x) for x in out.read_text(encoding="utf-8").splitlines()]
+    assert [r["status"] == "refused" for r in rows] == [f == BAD for _, f in COMMA_CELLS]

@@ -154,3 +154,31 @@ def test_every_rule_names_a_source_and_a_known_field():
 def test_window_must_be_positive(bad):
     with pytest.raises(ValueError):
         serial.SerialChecker(window_hours=bad)
+
+
+def test_flagged_text_read_back_across_spill_files_matches_one_file(monkeypatch):
+    """The flagged rows' text is spilled to files by row range; ranges of two rows
+    give the same columns as one range for the whole file."""
+    rng = np.random.default_rng(11)
+    n = 300
+    pats = [f"P{i}" for i in rng.integers(0, 30, n)]
+    hours = rng.uniform(0, 48, n)
+    values = {"na": 140.0 + rng.normal(0, 8, n), "k": 4.0 + rng.normal(0, 0.8, n)}
+    one = run(pats, hours, values, partitions=3)
+    monkeypatch.setattr(serial, "_BUCKET_ROWS", 2)
+    monkeypatch.setattr(serial, "_MAX_BUCKETS", 1000)
+    many = run(pats, hours, values, partitions=3)
+    for key in serial.COLUMNS:
+        assert one[key].tolist() == many[key].tolist()
+    assert (one["serial_codes"] != "").sum() > 20
+
+
+def test_one_flagged_row_can_carry_a_break_and_several_deltas():
+    """Every part of the detail is there, in the order break, then the rule table."""
+    out = run(["P"] * 3, [0, 1, 2], {"na": [140.0, 160.0, 141.0], "k": [4.0, 6.0, 4.1]})
+    assert out["serial_codes"][1] == "SERIAL-BREAK;SERIAL-DELTA-NA;SERIAL-DELTA-K"
+    detail = out["serial_detail"][1]
+    assert detail.startswith("breaks this patient's series (Na+ 160 between 140 and 141, "
+                             "K+ 6 between 4 and 4.1; panels row 1 (sample S1) and row 3 "
+                             "(sample S3))")
+    assert detail.index("Na+ 160 after 140 (+20 mmol/L in 1.0 h") < detail.index("K+ 6 after 4")

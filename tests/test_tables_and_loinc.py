@@ -12,6 +12,7 @@ import io
 import json
 from contextlib import redirect_stderr
 
+import numpy as np
 import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
@@ -59,6 +60,22 @@ def test_a_unit_that_is_not_a_unit_is_a_unit_error(unit):
         acidbase.interpret_many(BASE, units={"pco2": unit})
 
 
+@pytest.mark.parametrize("column", [
+    np.array([b"7.4", b"\xff"]), np.array(["2020-01-01", "2020-01-02"], dtype="datetime64[D]"),
+    np.array([1 + 2j, 3j]), np.array([True, False]), pa.array([[1], [2]])])
+def test_columns_of_odd_types_refuse_their_cells_not_the_call(column):
+    r = acidbase.interpret_many({**BASE, "k": column})
+    assert r.refused.tolist() == [True, True]
+    assert all(p.kind == "not_a_number" for it in r for p in it.problems)
+
+
+def test_a_lone_value_of_any_type_is_one_cell_for_every_row():
+    import datetime
+
+    r = acidbase.interpret_many({**BASE, "k": datetime.date(2020, 1, 1)})
+    assert len(r) == 2 and r.refused.tolist() == [True, True]
+
+
 def test_something_that_is_not_columns_is_a_column_error():
     with pytest.raises(ColumnError):
         acidbase.interpret_many([1, 2, 3])
@@ -69,7 +86,8 @@ CELL = st.one_of(
                      "abc", "1e400", "40", "-1"]),
     st.floats(allow_nan=True, allow_infinity=True), st.integers(min_value=-10 ** 400,
                                                                 max_value=10 ** 400),
-    st.none(), st.booleans(), st.text(max_size=6))
+    st.none(), st.booleans(), st.text(max_size=6), st.binary(max_size=3),
+    st.dates(), st.complex_numbers(max_magnitude=10), st.decimals(allow_nan=False))
 
 
 @settings(max_examples=60, deadline=None)
@@ -98,6 +116,16 @@ def test_results_are_a_sequence_of_interpretations():
     assert repr(r) == "<Results: 2 panel(s), 1 interpreted, 1 refused>"
     with pytest.raises(IndexError):
         r[2]
+    assert "K+ (k) 'abc' is not a number" in r[1].to_text()
+    assert r[1].to_dict()["problems"] == [str(r[1].problems[0])]
+
+
+def test_the_report_says_what_the_reader_read_off_the_cells():
+    it = acidbase.interpret(acidbase.Panel(ph="7.25 L", pco2="60", hco3="25.7", na="140",
+                                           cl="104", lactate="<0.3"))
+    text = it.to_text()
+    assert "read as not measured: lactate <0.3" in text and "values: ph L" in text
+    assert it.to_dict()["qualifiers"] == ["lactate <0.3"]
 
 
 def test_to_arrow_types_categories_as_dictionaries_and_processes_as_booleans():
@@ -290,3 +318,47 @@ def test_a_list_column_is_refused_by_name(tmp_path):
 def test_map_headers_still_stops_on_two_plain_columns_for_one_field():
     with pytest.raises(BatchInputError, match="both map to ph"):
         map_headers(["ph", "2744-1", "pco2", "hco3", "na", "cl"])
+
+
+def test_panel_table_is_the_entry_for_a_table_of_coded_cells():
+    """What an HL7 v2 reader hands over: text cells under LOINC codes."""
+    pt = acidbase.panel_table(pa.table({
+        "2746-6": ["7.36"], "2021-4": ["46"], "1959-6": ["25"], "2951-2": ["140"],
+        "2075-0": ["104"], "3150-0": ["40"]}))
+    r = pt.interpret()
+    assert (r[0].sample_type, r[0].hco3_source) == ("venous", "analyser")
+    assert r[0].inputs["fio2"]["value"] == pytest.approx(0.40)  # 40 % under 3150-0
+
+
+def test_a_new_choice_input_is_one_row_of_the_vocabulary(monkeypatch):
+    """The clinical helper's pregnancy input: one enum and one Choice row give the Panel
+    field, its reader and its refusal message, with nothing else written."""
+    from enum import StrEnum
+
+    from acidbase.inputs import panel as model
+    from acidbase.inputs.vocab import CHOICES, Choice
+
+    class Pregnancy(StrEnum):
+        YES = "yes"
+        NO = "no"
+        UNKNOWN = "unknown"
+
+    monkeypatch.setattr(model, "CHOICES", (*CHOICES, Choice("pregnancy", "Pregnancy",
+                                                            Pregnancy, "unknown")))
+    panel_class = model._build_panel()
+    base = {k: v[0] for k, v in BASE.items()}
+    assert panel_class(**base, pregnancy=" Yes ").pregnancy == "yes"
+    with pytest.raises(Exception, match="is not one of yes, no, unknown"):
+        panel_class(**base, pregnancy="maybe")
+
+
+def test_serial_checks_read_one_column_per_specimen_as_the_reading_does(tmp_path):
+    """pH 7.40 (arterial column) then 7.10 (venous column) an hour later: the serial
+    check sees both values (a change of 0.30, beyond the default pH delta limit)."""
+    path = tmp_path / "ser.csv"
+    path.write_text("patient_id,collected_at,2744-1,2746-6,2019-8,2021-4,hco3,na,cl\n"
+                    "p1,2026-01-01T10:00Z,7.40,,40,,24,140,104\n"
+                    "p1,2026-01-01T11:00Z,,7.10,,60,18,140,104\n")
+    rc, rows, err = _batch(tmp_path, path)
+    assert rc == 0, err
+    assert "SERIAL-DELTA-PH" in rows[1]["serial_codes"]

@@ -9,7 +9,9 @@ it.  Each cell is read by the one cell reader (``acidbase.inputs``) inside
 
 from __future__ import annotations
 
+import dataclasses
 from collections import Counter
+from dataclasses import dataclass
 from collections.abc import Mapping, Sequence
 from typing import Any
 
@@ -21,7 +23,7 @@ from .. import loinc, serial
 from ..api import interpret_many
 from ..errors import Problem
 from ..fields import BY_NAME
-from ..inputs.vocab import normalise_word
+from ..inputs.vocab import CHOICE_BY_NAME, normalise_word
 from ..reference import Settings
 from ..results import CAUTION, DERIVED
 from .headers import Layout, map_headers
@@ -97,6 +99,20 @@ def _as_text(column: pa.Array | pa.ChunkedArray) -> pa.Array:
     return column if pa.types.is_string(column.type) else column.cast(pa.string())
 
 
+def field_column(table: pa.Table | pa.RecordBatch, headers: Sequence[str],
+                 missing: Sequence[str] = ()) -> tuple[Any, dict[str, np.ndarray]]:
+    """One field's column from its input columns (one per specimen: each row takes the
+    one filled), and each column's filled rows."""
+    filled = {h: _filled(table.column(h), missing) for h in headers}
+    if len(headers) == 1:
+        return table.column(headers[0]), filled
+    merged = None
+    for h in headers:
+        text = _as_text(table.column(h))
+        merged = text if merged is None else pc.if_else(pa.array(filled[h]), text, merged)
+    return merged, filled
+
+
 def panel_columns(table: pa.Table | pa.RecordBatch, layout: Layout,
                   missing: Sequence[str] = ()) -> tuple[dict[str, Any], dict[int, list[Problem]]]:
     """The kernel's columns of one table (by field name), and the rows refused before any
@@ -116,8 +132,10 @@ def panel_columns(table: pa.Table | pa.RecordBatch, layout: Layout,
     n = table.num_rows
     problems: dict[int, list[Problem]] = {}
     cols: dict[str, Any] = {}
-    specimen = np.full(n, None, dtype=object)  # sample type named by the filled columns
-    source = np.full(n, None, dtype=object)    # HCO3- source named by the filled columns
+    # What the filled coded columns say, as codes into each choice's words (-1: nothing).
+    st_words, src_words = CHOICE_BY_NAME["sample_type"].words, CHOICE_BY_NAME["hco3_source"].words
+    specimen = np.full(n, -1, dtype=np.int16)
+    source = np.full(n, -1, dtype=np.int16)
 
     def conflict(rows: np.ndarray, name: str, title: str, value: str, hint: str) -> None:
         for i in np.flatnonzero(rows).tolist():
@@ -130,55 +148,52 @@ def panel_columns(table: pa.Table | pa.RecordBatch, layout: Layout,
         if len(headers) == 1 and not any(_implies(layout, h) for h in headers):
             cols[fld] = table.column(headers[0])
             continue
-        filled = {h: _filled(table.column(h), missing) for h in headers}
+        cols[fld], filled = field_column(table, headers, missing)
         if len(headers) > 1:
             count = np.sum([f for f in filled.values()], axis=0)
             title = BY_NAME[fld].title if fld in BY_NAME else fld
             conflict(count > 1, fld, title, " and ".join(headers),
                      "a row may fill one specimen's column of a field, not two")
-            merged = None
-            for h in headers:
-                text = _as_text(table.column(h))
-                merged = text if merged is None else pc.if_else(pa.array(filled[h]), text, merged)
-            cols[fld] = merged
-        else:
-            cols[fld] = table.column(headers[0])
         for h in headers:
             code = layout.code_of.get(h, "")
             st = loinc.sample_type_for(code) if code and fld in SPECIMEN_FIELDS else None
             if st is not None:
-                rows = filled[h]
-                clash = rows & (specimen != None) & (specimen != st)  # noqa: E711
+                rows, k = filled[h], st_words.index(st)
+                clash = rows & (specimen >= 0) & (specimen != k)
                 conflict(clash, "sample_type", "Sample type", f"{h} ({loinc.SPECIMEN[code]})",
                          "the row's LOINC-coded columns name different specimens")
-                specimen[rows & (specimen == None)] = st  # noqa: E711
+                specimen[rows & (specimen < 0)] = k
             src = loinc.HCO3_SOURCE_OF_CODE.get(code)
             if src is not None:
-                source[filled[h]] = src
-    for name, implied, title in (("sample_type", specimen, "Sample type"),
-                                 ("hco3_source", source, "HCO3- source")):
-        if not any(v is not None for v in implied.tolist()):
+                source[filled[h]] = src_words.index(src)
+    for name, implied, title, vocab in (("sample_type", specimen, "Sample type", st_words),
+                                        ("hco3_source", source, "HCO3- source", src_words)):
+        has = implied >= 0
+        if not has.any():
             continue
+        implied_words = np.array([*vocab, None], dtype=object)[implied]  # -1 -> None
         given = cols.get(name)
-        words = np.full(n, None, dtype=object)
-        if given is not None:
-            text = _as_text(given).to_pylist()
-            for i, cell in enumerate(text):
-                if cell is not None and cell.strip() and cell.strip() not in missing:
-                    words[i] = cell
-        out = words.copy()
-        for i in range(n):
-            want = implied[i]
-            if want is None:
-                continue
-            if words[i] is None:
-                out[i] = want
-            elif normalise_word(words[i]) != want and normalise_word(words[i]) != "unknown":
-                problems.setdefault(i, []).append(Problem(
-                    name, title, words[i], "", kind="specimen_conflict",
-                    hint=f"the row's LOINC-coded columns say {want}; correct the {name} cell "
-                         "or the column"))
-        cols[name] = out
+        if given is None:  # no column: the codes say it
+            cols[name] = implied_words
+            continue
+        # Column-wise: each distinct cell text is normalised once, to a code of the
+        # vocabulary (-2: not one of its words, so a conflict too; the reader refuses it).
+        text = _as_text(given)
+        filled = _filled(text, missing)
+        encoded = pc.dictionary_encode(text)
+        said_of = [vocab.index(w) if (w := normalise_word(t or "")) in vocab else -2
+                   for t in encoded.dictionary.to_pylist()] + [-1]
+        idx = np.asarray(pc.fill_null(encoded.indices, len(said_of) - 1)
+                         .to_numpy(zero_copy_only=False))
+        said = np.array(said_of, dtype=np.int16)[idx]
+        clash = has & filled & (said != implied) & (said != vocab.index("unknown"))
+        cells = np.asarray(text.to_numpy(zero_copy_only=False), dtype=object)
+        for i in np.flatnonzero(clash).tolist():
+            problems.setdefault(i, []).append(Problem(
+                name, title, cells[i], "", kind="specimen_conflict",
+                hint=f"the row's LOINC-coded columns say {vocab[implied[i]]}; correct the "
+                     f"{name} cell or the column"))
+        cols[name] = np.where(filled, cells, implied_words)
     return cols, problems
 
 
@@ -186,6 +201,43 @@ def panel_columns(table: pa.Table | pa.RecordBatch, layout: Layout,
 #: whose reference intervals depend on it.  Electrolytes, lactate, haemoglobin...
 #: keep their own specimens (a serum sodium beside an arterial gas is ordinary).
 SPECIMEN_FIELDS: tuple[str, ...] = ("ph", "pco2", "po2", "hco3")
+
+
+@dataclass(frozen=True)
+class PanelTable:
+    """A table of cells under field or LOINC headers, made ready for ``interpret_many``."""
+
+    columns: dict[str, Any]
+    """The kernel's columns by field name (cells as given: the reader reads them)."""
+    units: dict[str, str]
+    """Field -> unit, where not the field's canonical unit."""
+    problems: dict[int, list[Problem]]
+    """Row -> problems found before any cell is read (specimen conflicts)."""
+    layout: Layout
+    """Which column feeds which field, in which unit, and the notes."""
+
+    def interpret(self, settings: Settings | None = None, *, decimal: str = "."):
+        """``interpret_many`` of these columns (the ``Results``)."""
+        return interpret_many(self.columns, self.units or None, settings, decimal=decimal,
+                              missing=self.layout.missing, row_problems=self.problems)
+
+
+def panel_table(table: pa.Table | pa.RecordBatch,
+                mapping: Mapping[str, tuple[str, str | None]] | None = None,
+                units: Mapping[str, str] | None = None,
+                missing: Sequence[str] = ()) -> PanelTable:
+    """Headers mapped (field names, LOINC codes with their specimens, a mapping) and the
+    kernel's columns built: the entry point for any input that arrives as a table of text
+    cells (an HL7 v2 message turned into one row per panel, for example).  Raises
+    ``BatchInputError`` when the headers cannot be read as panels."""
+    if isinstance(table, pa.RecordBatch):
+        table = pa.Table.from_batches([table])
+    layout = map_headers(table.schema.names, mapping, units)
+    if missing:
+        layout = dataclasses.replace(layout, missing=tuple(missing))
+    columns, problems = panel_columns(table, layout)
+    unit_map = {k: v for k, v in layout.units.items() if v != BY_NAME[k].unit}
+    return PanelTable(columns, unit_map, problems, layout)
 
 
 def _implies(layout: Layout, header: str) -> bool:
@@ -250,6 +302,7 @@ def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
     if checker is not None:
         scols = checker.arrow_columns(start, start + n)
         review = review | (checker.status[start:start + n] == serial.FLAGGED)
+        checker.interpreted[start:start + n] = ~refused  # what a history store keeps
     else:
         scols = {"serial_status": pa.repeat(pa.scalar("not run"), n),
                  "serial_codes": pa.repeat(pa.scalar(""), n),
@@ -325,5 +378,6 @@ def check_table(table: pa.Table | pa.RecordBatch, settings: Settings | None = No
     return pa.table(cols)
 
 
-__all__ = ["EXTRA_COLUMNS", "ROW_COLUMN", "check_chunk", "check_table", "output_names",
-           "review_mask", "review_rules"]
+__all__ = ["EXTRA_COLUMNS", "PanelTable", "ROW_COLUMN", "check_chunk", "check_table",
+           "field_column",
+           "output_names", "panel_columns", "panel_table", "review_mask", "review_rules"]

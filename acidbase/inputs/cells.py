@@ -383,6 +383,13 @@ def _object_numbers(cells: list[Any], decimal: str, missing: Sequence[str]) -> P
     return ParsedColumn(vals, cmp, flag, bad, texts)
 
 
+def is_column(x: Any) -> bool:
+    """True for a column of cells (a sequence, an array, a pandas or polars column); any
+    other value is one cell, repeated for every row."""
+    return isinstance(x, (list, tuple, range, np.ndarray, pa.Array, pa.ChunkedArray)) or (
+        hasattr(x, "to_numpy") and hasattr(x, "__len__")) or hasattr(x, "to_arrow")
+
+
 def _objects(seq: Any) -> np.ndarray:
     """A one-dimensional object array of the cells of ``seq`` (lists stay cells)."""
     try:
@@ -407,7 +414,7 @@ def read_numbers(column: Any, decimal: str = ".", missing: Sequence[str] = (),
     """
     if isinstance(column, (pa.Array, pa.ChunkedArray)):
         return parse_numeric(column, decimal, missing)
-    if column is None or isinstance(column, (str, bytes, int, float, np.generic)):
+    if not is_column(column):
         cells = [column] * (1 if n is None else n)
         return _object_numbers(cells, decimal, missing)
     if hasattr(column, "to_arrow") and not isinstance(column, np.ndarray):  # polars
@@ -424,12 +431,13 @@ def read_numbers(column: Any, decimal: str = ".", missing: Sequence[str] = (),
         vals = arr.astype(np.float64)
         infinite = np.isinf(vals)
         if not infinite.any():
+            # no cell is refused, so no cell's text is ever asked for (``cell`` -> None)
             return ParsedColumn(vals, None, None, np.zeros(len(vals), dtype=bool),
-                                np.full(len(vals), None, dtype=object), plain=True)
+                                np.empty(0, dtype=object), plain=True)
         return _object_numbers(arr.tolist(), decimal, missing)
-    if arr.dtype.kind in "US":
-        return parse_numeric(pa.array(arr.astype(str).tolist(), pa.string()), decimal, missing)
-    return _object_numbers(arr.tolist(), decimal, missing)
+    if arr.dtype.kind == "U":
+        return parse_numeric(pa.array(arr.tolist(), pa.string()), decimal, missing)
+    return _object_numbers(list(arr), decimal, missing)  # bytes, dates, complex: refused
 
 
 def _one(cell: object) -> np.ndarray:
@@ -467,7 +475,9 @@ def number_hint(cell: object, decimal: str, unit: str) -> str:
             isinstance(cell, (float, int, np.number)) and not isinstance(cell, bool)):
         return ("NaN, infinity and words are not laboratory values; leave the cell empty "
                 "when not measured (or declare the token with --missing)")
-    if re.fullmatch(r"[+-]?[0-9]+(\.[0-9]*)?([eE][+-]?[0-9]+)?", text):
+    number = text.replace(",", ".") if decimal == "," else text
+    if re.fullmatch(r"[+-]?[0-9]+(\.[0-9]*)?([eE][+-]?[0-9]+)?", number) and (
+            decimal == "." or "." not in text) and math.isinf(float(number)):
         return "a number beyond the floating-point range is no measurement"
     if any(ch.isdigit() and not "0" <= ch <= "9" for ch in text):
         return "only the digits 0-9 are read; digits of other scripts are refused, not converted"
@@ -535,7 +545,7 @@ def read_choices(column: Any, choice: Choice, missing: Sequence[str] = (),
         if pa.types.is_string(arr.type) or pa.types.is_null(arr.type):
             return _choices_of_text(arr.cast(pa.string()), words, default, missing)
         cells = [None if v is None else v for v in arr.to_pylist()]
-    elif isinstance(column, (str, bytes, int, float, np.generic)):
+    elif not is_column(column):
         cells = [column] * (1 if n is None else n)
     else:
         if hasattr(column, "to_arrow") and not isinstance(column, np.ndarray):

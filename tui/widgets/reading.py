@@ -130,7 +130,7 @@ class ReadingPane(Vertical):
                          + ", ".join(s.title for s in NUMERIC if s.required) + ".")
             return
         if it.status == "refused":
-            state.update("Refused: " + "; ".join(it.problems))
+            state.update("Refused: " + "; ".join(map(str, it.problems)))
             return
         state.update("")
         lines = []
