@@ -28,6 +28,7 @@ import tempfile
 import time
 from collections import Counter, deque
 from concurrent.futures import Future, ThreadPoolExecutor
+from contextlib import ExitStack
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -42,7 +43,18 @@ from .fields import BY_NAME
 from .fileio import BatchInputError, Layout, Source
 from .files.check import (EXTRA_COLUMNS, ROW_COLUMN, check_chunk, field_column,  # noqa: F401
                           output_names, review_mask, review_rules)
-from .results import CAUTION, DECIMALS, DERIVED
+from .files.outputs import (
+    OutputSet,
+    Staged,
+    Stopped,
+    check_paths,
+    silence_stdout,
+    stale,
+    stop_on_signals,
+)
+from .files.writer import Writer, escape_text
+from .profile import profile_from_args
+from .results import CAUTION
 
 if TYPE_CHECKING:  # the command line (argparse) lives in acidbase.cli only
     import argparse
@@ -76,21 +88,6 @@ def _pairs(items: list[str], what: str) -> dict[str, str]:
             raise BatchInputError(f"--{what} given twice for {k}")
         out[k] = v.strip()
     return out
-
-
-def _derived_columns(spec: str) -> tuple[str, ...]:
-    """The derived-value columns to keep (``--derived``)."""
-    text = spec.strip().lower()
-    if text == "all":
-        return DERIVED
-    if text == "none":
-        return ()
-    names = tuple(x.strip() for x in text.split(",") if x.strip())
-    unknown = [x for x in names if x not in DERIVED]
-    if unknown:
-        raise BatchInputError(f"--derived: {', '.join(unknown)} not among the derived values "
-                              f"({', '.join(DERIVED)})")
-    return names
 
 
 def _delta_overrides(items: list[str]) -> dict[str, float | None]:
@@ -358,8 +355,22 @@ def _ranked(counter: Counter) -> list[tuple]:
     return sorted(counter.items(), key=lambda kv: (-kv[1], str(kv[0])))
 
 
-def _md_cell(x: str) -> str:
-    return str(x).replace("|", "\\|").replace("\n", " ")
+#: Markdown escaping of echoed text (sample ids, reasons, file headers, the input's
+#: name): HTML's three special characters as entities, so no tag or entity from the
+#: input reaches a renderer, and CommonMark's inline punctuation backslash-escaped
+#: (CommonMark 0.31, "Backslash escapes" and "Entity and numeric character
+#: references"), so no link, emphasis, code span or table cell break either.
+_MD_ESCAPES = str.maketrans({"&": "&amp;", "<": "&lt;", ">": "&gt;", "\\": "\\\\",
+                             **{c: "\\" + c for c in "`*_[]|~#!"},
+                             "\n": " ", "\r": " "})
+
+
+def md_text(x: object) -> str:
+    """``x`` as Markdown text that renders as itself: no markup, no HTML."""
+    return str(x).translate(_MD_ESCAPES)
+
+
+_md_cell = md_text  # the former name, for code written against it
 
 
 def _report_sections(t: Tally) -> tuple[tuple[str, Counter], ...]:
@@ -378,22 +389,22 @@ def _report_sections(t: Tally) -> tuple[tuple[str, Counter], ...]:
 
 
 def report_markdown(t: Tally, notes: list[str], source: str) -> str:
-    out = ["# Batch check report", "", f"Input: `{source}`", "", f"> {CAUTION}", "",
+    out = ["# Batch check report", "", f"Input: {md_text(source)}", "", f"> {CAUTION}", "",
            "## Counts", "", "| | rows |", "|---|---:|", f"| read | {t.rows:,} |",
            f"| interpreted | {t.rows - t.refused:,} |", f"| refused | {t.refused:,} |",
            f"| need review | {t.review:,} |", ""]
     for n in notes:
-        out.append(f"- {n}")
+        out.append(f"- {md_text(n)}")
     for title, counter in _report_sections(t):
         if counter:
             out += ["", f"## {title}", "", "| | rows |", "|---|---:|"]
-            out += [f"| {_md_cell(k)} | {c:,} |" for k, c in _ranked(counter)]
+            out += [f"| {md_text(k)} | {c:,} |" for k, c in _ranked(counter)]
     out += ["", f"## Rows that need review (first {FLAGGED_LISTED})", ""]
     if t.flagged:
         keys = list(t.flagged[0])
-        out.append("| " + " | ".join(keys) + " |")
+        out.append("| " + " | ".join(md_text(k) for k in keys) + " |")
         out.append("|" + "---|" * len(keys))
-        out += ["| " + " | ".join(_md_cell(r[k]) for k in keys) + " |" for r in t.flagged]
+        out += ["| " + " | ".join(md_text(r[k]) for k in keys) + " |" for r in t.flagged]
     else:
         out.append("None.")
     out += ["", "## Panels on the pCO2-HCO3 plane (interpreted rows)", "", "```",
@@ -402,7 +413,11 @@ def report_markdown(t: Tally, notes: list[str], source: str) -> str:
 
 
 def report_html(t: Tally, notes: list[str], source: str) -> str:
-    e = html.escape
+    """The report as one HTML page.  Echoed text is HTML-escaped and, since a
+    spreadsheet opens an HTML table too, formula-escaped as the CSV is (OWASP)."""
+
+    def e(x: object) -> str:
+        return html.escape(escape_text(str(x)) or "")
 
     def table(counter: Counter) -> str:
         rows = "".join(f"<tr><td>{e(str(k))}</td><td>{c:,}</td></tr>"
@@ -525,8 +540,23 @@ def _lean_allocators() -> None:
             pass
 
 
-def _run(args: argparse.Namespace, label: str) -> int:
-    """The run; ``label`` names the input in messages and the report."""
+def _stage_outputs(args: argparse.Namespace, outputs: OutputSet) -> dict[str, Staged]:
+    """Guard the output paths, then create their temporary files: before any work, so
+    an output that is an input (by any name), two outputs that are one file, or a
+    folder that is missing or cannot be written stops the run with nothing done."""
+    named = [(opt, path) for opt, path in (("-o", args.output), ("--summary", args.summary),
+                                           ("--report", args.report)) if path and path != "-"]
+    inputs = [("INPUT", args.input)] + [(o, p) for o, p in (
+        ("--map", args.mapping), ("--history", getattr(args, "history", None))) if p]
+    check_paths([(o, p) for o, p in inputs if p != "-"], named)
+    return {opt: outputs.add(opt, path) for opt, path in named}
+
+
+def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitStack,
+         outcome: _Outcome) -> int:
+    """The run; ``label`` names the input in messages and the report.  Temporary files
+    and folders are registered on ``stack`` as they are made; the outputs are
+    committed (renamed into place) at the very end, together."""
     _lean_allocators()
     units = _pairs(args.unit, "unit")
     deltas = _delta_overrides(args.delta)
@@ -542,8 +572,10 @@ def _run(args: argparse.Namespace, label: str) -> int:
         raise BatchInputError("--window-hours must be a positive number")
     if args.report and not args.report.lower().endswith((".md", ".html", ".htm")):
         raise BatchInputError("--report: name a .md or .html file")
-    keep = _derived_columns(args.derived)
+    profile = profile_from_args(args)
     settings = _settings(args)
+    out_fmt = fileio.output_format(args.output, args.output_format)
+    staged = _stage_outputs(args, outputs)
     src = fileio.open_source(args.input, args.format, delimiter, args.encoding, args.missing,
                              args.chunk_rows)
     mapping = fileio.read_mapping(args.mapping) if args.mapping else None
@@ -558,16 +590,22 @@ def _run(args: argparse.Namespace, label: str) -> int:
     else:
         decimal = "."
     notes = list(layout.notes)
+    left = [p for s in staged.values() for p in stale(s)]
+    if left:
+        notes.append("temporary files of another run to this output, still running or "
+                     "killed before it could clean up (never results): " + ", ".join(left))
     if src.format == "csv" and (src.delimiter != "," or decimal != "."):
         notes.append(f"read with delimiter {fileio._show_delims([src.delimiter])} and decimal "
                      f"{decimal!r}")
-    out_fmt = fileio.output_format(args.output, args.output_format)
-    if args.output and os.path.abspath(args.output) == os.path.abspath(args.input):
-        raise BatchInputError("the output file would overwrite the input")
     col_of = layout.column_of
     do_serial = not args.no_serial and "patient_id" in col_of and "collected_at" in col_of
     if not args.no_serial and not do_serial:
         notes.append("serial checks not run: they need patient_id and collected_at columns")
+    data = staged.get("-o")
+    writer = Writer(args.output, out_fmt, out_delim, metadata={"caution": CAUTION},
+                    escape=escaped_columns(src.headers), decimals=profile.decimals,
+                    sink=data.file if data else None)
+    stack.callback(writer.close, False)  # after a commit, a no-op
     checker = store = None
     if args.history and not do_serial:
         notes.append("history store not used: the serial checks did not run")
@@ -576,33 +614,27 @@ def _run(args: argparse.Namespace, label: str) -> int:
         if args.history:
             store = history.open_for_run(args.history, args.history_retention_days
                                          or history.DEFAULT_RETENTION_DAYS)
+            stack.callback(store.close)  # without a commit: adds nothing
         # With a store, earlier panels join the partitions: twice as many of them.
         checker = serial.SerialChecker(serial.rules_with(deltas), args.window_hours,
                                        serial.SerialChecker.partitions_for(src.size)
                                        * (2 if store else 1), keep=store is not None)
+        stack.callback(checker.close)  # its scratch folder goes, whatever happens
         progress = Progress(src.estimated_rows(), not args.quiet)
         progress.label = "serial 1/2"
         try:
             _serial_pass(src, layout, decimal, checker, progress, store)
-        except BaseException:
-            checker.close()  # its scratch folder goes on every exit path
-            if store is not None:
-                store.close()  # adds nothing
-            raise
         finally:
             progress.end()
-    writer = fileio.Writer(args.output, out_fmt, out_delim, metadata={"caution": CAUTION},
-                           escape=escaped_columns(src.headers),
-                           decimals={k: DECIMALS[k] for k in keep})
     tally = Tally()
-    ok = False
     progress = Progress(src.estimated_rows(), not args.quiet)
     progress.label = f"check {passes}/{passes}" if passes == 2 else "check"
 
     def work(table: pa.Table, start: int, listed: int):
         """One chunk, on a worker thread: its output rows encoded for the writer, and
         its counts."""
-        out, meta = _process(table, layout, decimal, settings, checker, start, keep)
+        out, meta = _process(table, layout, decimal, settings, checker, start, profile.derived,
+                             severities=profile.severities)
         names = _output_names(src.headers, meta["engine_cols"])
         cols = {ROW_COLUMN: pa.array(np.arange(start + 1, start + table.num_rows + 1))}
         for h in src.headers:
@@ -614,6 +646,8 @@ def _run(args: argparse.Namespace, label: str) -> int:
         tally_chunk(part, out, meta["pco2"], meta["hco3"], meta["refused"], meta["review"],
                     start, ids, meta["fired"], listed, meta["counts"])
         plain = frozenset(names[h] for h in meta["plain"])
+        # the output profile (acidbase/profile.py): counted above, not all written
+        cols = {k: v for k, v in cols.items() if k in names.values() or profile.keeps(k)}
         return writer.encode(pa.table(cols), plain), part, names, table.num_rows
 
     done = 0
@@ -630,6 +664,7 @@ def _run(args: argparse.Namespace, label: str) -> int:
         tally.merge(part)
         writer.put(encoded)
         done += rows
+        outcome.rows_out = done
         progress.update(done)
 
     # Chunks are checked and formatted on WORKERS threads (numpy and pyarrow release
@@ -648,31 +683,24 @@ def _run(args: argparse.Namespace, label: str) -> int:
             finish(pending.popleft().result())
         if done == 0:
             raise BatchInputError(f"{label}: no rows")
-        ok = True
     finally:
         pool.shutdown(wait=True, cancel_futures=True)
         progress.end()
-        try:
-            writer.close(ok)
-            if ok and store is not None:  # only a run whose output is whole is stored
-                notes.append(history.commit_run(store, checker, args.input, _audit(args)))
-        finally:
-            if checker is not None:
-                checker.close()
-            if store is not None:
-                store.close()  # without a commit: adds nothing
+    writer.finish()
+    if store is not None:  # only a run whose every row was written is stored
+        notes.append(history.commit_run(store, checker, args.input, _audit(args)))
+    summary = staged.get("--summary")
     text = summary_json(tally, notes) if (args.summary or "").endswith(".json") else \
         summary_text(tally, notes)
-    if args.summary:
-        with open(args.summary, "w", encoding="utf-8") as f:
-            f.write(text + "\n")
-    else:
-        print(text, file=sys.stderr)
+    if summary is not None:
+        summary.file.write((text + "\n").encode("utf-8"))
     if args.report:
         doc = report_html(tally, notes, label) if args.report.lower().endswith(
             (".html", ".htm")) else report_markdown(tally, notes, label)
-        with open(args.report, "w", encoding="utf-8") as f:
-            f.write(doc)
+        staged["--report"].file.write(doc.encode("utf-8"))
+    outputs.commit()  # every output in place, or (on an error above) none
+    if summary is None:
+        print(text, file=sys.stderr)
     return EXIT_OK
 
 
@@ -682,23 +710,84 @@ STDIN_LABEL = "standard input"
 def _spool_stdin(folder: str) -> str:
     """Standard input copied to a file in ``folder`` (the serial checks read the input
     twice, and format and dialect are sniffed from its start); its path."""
+    if sys.stdin is None:
+        raise BatchInputError("standard input is closed; name an INPUT file")
     path = os.path.join(folder, "stdin")
     with open(path, "wb") as f:
         shutil.copyfileobj(sys.stdin.buffer, f, 1 << 20)
     return path
 
 
+#: Exit status of an unexpected error (a defect): EX_SOFTWARE of BSD's sysexits.h.
+EXIT_DEFECT = 70
+
+#: Exit status when standard output was closed by its reader (``| head``): 128 + SIGPIPE,
+#: as a shell reports a process ended by that signal.
+EXIT_CLOSED_PIPE = 141
+
+
+@dataclass
+class _Outcome:
+    """What a run had done when it ended (for the message of a run that did not finish)."""
+
+    rows_out: int = 0
+    """Rows put to the output (a file's are staged until the commit)."""
+    outputs: OutputSet | None = None
+
+    @property
+    def committed(self) -> bool:
+        return self.outputs is not None and self.outputs.committed
+
+
+def _kept(args: argparse.Namespace, outcome: _Outcome) -> str:
+    """What a run that did not finish leaves: its files were never renamed into place;
+    standard output may hold some rows."""
+    files = list(dict.fromkeys(p for p in (args.output, args.summary, args.report)
+                               if p and p != "-"))
+    said = []
+    if files:
+        said.append(f"nothing written, {', '.join(files)} left as "
+                    + ("it was" if len(files) == 1 else "they were"))
+    if (not args.output or args.output == "-") and outcome.rows_out:
+        said.append(f"standard output is incomplete: {outcome.rows_out:,} rows went out "
+                    "before the stop")
+    return "; ".join(said) or "nothing written"
+
+
 def run(args: argparse.Namespace) -> int:
-    """Run ``acidbase batch``; 0 when it ran, 2 when it could not (message on stderr).
+    """Run ``acidbase batch``: 0 when every row was written; 2 when it could not run or
+    failed (message on stderr, no output file written); 130 (Ctrl-C), 143 (SIGTERM),
+    129 (SIGHUP) when stopped; 141 when standard output was closed by its reader; 70
+    for an unexpected error (a defect), also with nothing written.
 
     INPUT ``-`` reads standard input, spooled to a temporary file first."""
-    spool = None
     shown = args.input
+    outcome = _Outcome()
+    message = ""
     try:
-        if args.input == "-":
-            spool = tempfile.TemporaryDirectory(prefix="acidbase-stdin-")
-            args.input = _spool_stdin(spool.name)
-        return _run(args, STDIN_LABEL if spool else args.input)
+        with stop_on_signals(), ExitStack() as stack:
+            outputs = outcome.outputs = stack.enter_context(OutputSet())
+            if args.input == "-":
+                spool = stack.enter_context(tempfile.TemporaryDirectory(prefix="acidbase-stdin-"))
+                args.input = _spool_stdin(spool)
+            return _run(args, STDIN_LABEL if shown == "-" else args.input, outputs, stack,
+                        outcome)
+    except (Stopped, KeyboardInterrupt) as e:
+        stop = e if isinstance(e, Stopped) else Stopped(2)
+        args.input = shown
+        if outcome.committed:  # the signal came as the last output was renamed
+            print(f"acidbase batch: stopped by {stop.name} after every output was written "
+                  "in full", file=sys.stderr)
+        else:
+            print(f"acidbase batch: stopped by {stop.name} before the end: "
+                  f"{_kept(args, outcome)}", file=sys.stderr)
+        return stop.exit_status
+    except BrokenPipeError:
+        silence_stdout()
+        args.input = shown
+        print(f"acidbase batch: standard output was closed by its reader after "
+              f"{outcome.rows_out:,} rows: the output is incomplete", file=sys.stderr)
+        return EXIT_CLOSED_PIPE
     except AcidBaseError as e:  # BatchInputError, and the library's own (settings, units)
         message = str(e)
     except OSError as e:
@@ -706,13 +795,16 @@ def run(args: argparse.Namespace) -> int:
         message = f"{where.strip()} {e.strerror or e}".strip()
     except (pa.ArrowInvalid, pa.ArrowTypeError, UnicodeDecodeError) as e:
         message = f"the file could not be read ({e})"
-    finally:
-        if spool is not None:
-            spool.cleanup()
-    if spool is not None:
+    except Exception as e:  # noqa: BLE001 - a defect: one line, still nothing written
+        args.input = shown
+        print(f"acidbase batch: failed: unexpected {type(e).__name__}: {e} (a defect of "
+              f"acidbase; please report it with the command line); {_kept(args, outcome)}",
+              file=sys.stderr)
+        return EXIT_DEFECT
+    if shown == "-":
         message = message.replace(args.input, STDIN_LABEL)
         args.input = shown
-    print(f"acidbase batch: could not run: {message}", file=sys.stderr)
+    print(f"acidbase batch: could not run: {message}; {_kept(args, outcome)}", file=sys.stderr)
     return EXIT_CANNOT_RUN
 
 

@@ -2,7 +2,8 @@
 
 Exit status: 0 when a panel was read (whatever it showed), 2 when input was
 refused or the command could not run; the message goes to stderr, never a
-traceback.
+traceback.  141 when the reader of standard output closed it early (``| head``),
+quietly; 130 on Ctrl-C.  ``acidbase batch`` documents its own (docs/batch.md).
 """
 
 from __future__ import annotations
@@ -22,11 +23,14 @@ from .files.formats import FORMATS
 from .fields import NUMERIC, TEXT_FIELDS
 from .inputs.vocab import CHOICES
 from .inputs.panel import Panel, describe
+from .profile import FINDINGS, PROFILES
 from .reference import Settings
 from .report import as_text
 from .results import CAUTION
 
 EXIT_OK, EXIT_REFUSED = 0, 2
+#: Standard output closed by its reader: 128 + SIGPIPE, as a shell reports it.
+EXIT_CLOSED_PIPE = 141
 
 
 def _help(text: str) -> str:
@@ -122,9 +126,15 @@ def configure_batch_parser(p: argparse.ArgumentParser) -> None:
                    help="write the summary here (.json for JSON) instead of stderr")
     o.add_argument("--report", metavar="FILE",
                    help="summary report with flagged rows and the pCO2-HCO3 plane (.md or .html)")
-    o.add_argument("--derived", default="all", metavar="all|none|NAME,...",
-                   help="derived-value columns to write (default all; formatting numbers is "
-                        "most of the time of writing CSV)")
+    o.add_argument("--profile", default="lean", choices=PROFILES,
+                   help="output columns: lean (default; see docs/batch.md) or full (every "
+                        "finding, derived value, role and serial sentence)")
+    o.add_argument("--derived", default=None, metavar="lab|all|none|NAME,...",
+                   help="derived-value columns to write (default: the profile's; lab: the "
+                        "calculated HCO3- and its difference, anion gap, corrected gap, SBE)")
+    o.add_argument("--findings", default=None, choices=FINDINGS,
+                   help="finding codes to write: caution (caution and critical; lean's "
+                        "default) or all")
     o.add_argument("--quiet", action="store_true", help="no progress bar")
     add_settings_options(p)
 
@@ -232,6 +242,18 @@ def cmd_batch(args: argparse.Namespace) -> int:
     return batch.run(args)
 
 
+def cmd_shard(args: argparse.Namespace) -> int:
+    from .scale import shard
+
+    try:
+        files = shard(args.input, args.folder, args.shards, patient_column=args.patient_column)
+    except OSError as e:
+        print(f"acidbase shard: could not run: {e}", file=sys.stderr)
+        return EXIT_REFUSED
+    print(f"{len(files)} shard files in {args.folder}", file=sys.stderr)
+    return EXIT_OK
+
+
 def cmd_history(args: argparse.Namespace) -> int:
     from . import history_command
 
@@ -290,6 +312,17 @@ def build_parser() -> argparse.ArgumentParser:
     batch = sub.add_parser("batch", help="check a file of panels")
     configure_batch_parser(batch)
     batch.set_defaults(func=cmd_batch)
+    shard = sub.add_parser("shard", help="split a file into Parquet shards by patient",
+                           description="Split INPUT into Parquet files, a patient's rows always "
+                                       "in the same one, for checking shard by shard "
+                                       "(docs/scale.md).")
+    shard.add_argument("input", metavar="INPUT")
+    shard.add_argument("folder", metavar="FOLDER", help="where the shard files go (created)")
+    shard.add_argument("--shards", type=int, default=16, metavar="N",
+                       help="number of shards (default 16)")
+    shard.add_argument("--patient-column", metavar="HEADER",
+                       help="the patient id column (default: the one read as patient_id)")
+    shard.set_defaults(func=cmd_shard)
     hist = sub.add_parser("history", help="what a history store holds; export or purge a patient")
     configure_history_parser(hist)
     hist.set_defaults(func=cmd_history)
@@ -301,10 +334,30 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv: Sequence[str] | None = None) -> int:
+    """Run one command; its exit status (module docstring).  A reader that closes
+    standard output early (``acidbase demo | head``) ends the command quietly with 141."""
     parser = build_parser()
-    args = parser.parse_args(argv)
     try:
-        return int(args.func(args))
+        args = parser.parse_args(argv)
+    except BrokenPipeError:  # --help into a closed pipe
+        from .files.outputs import silence_stdout
+
+        silence_stdout()
+        return EXIT_CLOSED_PIPE
+    if sys.stdout is None and args.command in ("check", "demo", "tui"):
+        print(f"acidbase {args.command}: standard output is closed; nothing to write to",
+              file=sys.stderr)
+        return EXIT_REFUSED
+    try:
+        status = int(args.func(args))
+        if sys.stdout is not None:
+            sys.stdout.flush()  # a closed pipe shows here, not at the interpreter's exit
+        return status
+    except BrokenPipeError:
+        from .files.outputs import silence_stdout
+
+        silence_stdout()
+        return EXIT_CLOSED_PIPE
     except AcidBaseError as e:
         print(f"acidbase: {e}", file=sys.stderr)
         return EXIT_REFUSED

@@ -299,9 +299,14 @@ class Results:
         """Object array: the disorders of each row as text ("" for none)."""
         return _materialise(*self._encoded_disorders())
 
-    def _encoded_codes(self) -> tuple[np.ndarray, list[str]]:
+    def _encoded_codes(self, severities: tuple[str, ...] | None = None
+                       ) -> tuple[np.ndarray, list[str]]:
         names = [r.code for r in RULES]
-        return _merge([_combine(p.fired, names) for p in self.parts])
+        if severities is None:
+            return _merge([_combine(p.fired, names) for p in self.parts])
+        # the other rules' rows cleared, the names kept (``_combine`` caches by bits)
+        keep = np.array([r.severity in severities for r in RULES])[:, None]
+        return _merge([_combine(p.fired & keep, names) for p in self.parts])
 
     def _encoded_disorders(self) -> tuple[np.ndarray, list[str]]:
         return _merge([self._labels(p.frame) for p in self.parts])
@@ -326,12 +331,16 @@ class Results:
             labels.append("; ".join(d.label() for d in self._disorders(row)))
         return inverse.reshape(-1).astype(np.int32), labels
 
-    def encoded(self) -> dict[str, np.ndarray | tuple[np.ndarray, list[str]]]:
+    def encoded(self, severities: tuple[str, ...] | None = None, difference: bool = False
+                ) -> dict[str, np.ndarray | tuple[np.ndarray, list[str]]]:
         """The output columns of ``table``, with every text column except ``reason`` as
         ``(indices, labels)``: row i reads ``labels[indices[i]]``.
 
         The batch writer turns these into dictionary arrays without converting text
         cell by cell; ``table`` materialises the same columns as object arrays.
+        ``severities``: only those findings' codes in ``finding_codes`` (None: all);
+        ``difference``: also ``hco3_difference`` (the frame's consistency difference,
+        measured minus calculated HCO3- or total CO2), after ``hco3_calculated``.
         """
         refused = self.refused
 
@@ -358,9 +367,11 @@ class Results:
                                       [w or "" for w in ROLE_NAMES])
         cols["timing_respiratory"] = (col("timing_resp").astype(np.int32),
                                       [w or "" for w in TIMING_NAMES])
-        cols["finding_codes"] = self._encoded_codes()
+        cols["finding_codes"] = self._encoded_codes(severities)
         for k in DERIVED:
             cols[k] = col(k)
+            if difference and k == "hco3_calculated":
+                cols["hco3_difference"] = col("consistency_difference")
         return cols
 
     def to_arrow(self):

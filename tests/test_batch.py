@@ -68,7 +68,7 @@ def test_refusal_reason_names_the_field_and_the_value(tmp_path, capsys, sample, 
 
 def test_a_row_without_sodium_is_read_with_the_gap_not_assessable(tmp_path, capsys):
     out = tmp_path / "out.csv"
-    batch(capsys, DATA / "mixed.csv", "-o", out)
+    batch(capsys, DATA / "mixed.csv", "-o", out, "--findings", "all")
     r = next(r for r in rows_of(out) if r["sample_id"] == "M08")
     assert r["status"] == "interpreted" and r["anion_gap"] == ""
     assert "P-GAP-NOT-ASSESSABLE" in r["finding_codes"]
@@ -92,7 +92,7 @@ def test_censored_optional_value_is_not_measured_and_recorded(tmp_path, capsys):
 
 def test_trailing_flag_is_recorded_and_the_value_used(tmp_path, capsys):
     out = tmp_path / "out.csv"
-    batch(capsys, DATA / "mixed.csv", "-o", out)
+    batch(capsys, DATA / "mixed.csv", "-o", out, "--profile", "full")
     rows = {r["sample_id"]: r for r in rows_of(out)}
     assert rows["M10"]["lab_flags"] == "ph L"
     # E17 (Story 2016) read with the flag is read as E17 without it.
@@ -132,7 +132,7 @@ def _panels_of_mixed() -> list[tuple[str, dict]]:
 
 def test_batch_and_check_agree_row_for_row(tmp_path, capsys):
     out = tmp_path / "out.jsonl"
-    batch(capsys, DATA / "mixed.csv", "-o", out)
+    batch(capsys, DATA / "mixed.csv", "-o", out, "--profile", "full")
     got = {r["sample_id"]: r for r in map(json.loads, out.read_text().splitlines())}
     checked = 0
     for sid, panel in _panels_of_mixed():
@@ -179,20 +179,23 @@ def test_decimal_comma_can_be_set_by_option(tmp_path, capsys):
 
 def test_loinc_headers_are_read(tmp_path, capsys):
     out = tmp_path / "out.csv"
-    assert batch(capsys, DATA / "loinc_headers.csv", "-o", out)[0] == 0
+    assert batch(capsys, DATA / "loinc_headers.csv", "-o", out, "--profile", "full")[0] == 0
     rows = rows_of(out)
     ref = acidbase.interpret(acidbase.Panel(ph=7.40, pco2=40, hco3=24.22, na=140, cl=106.78,
-                                            glucose=90, glucose_unit="mg/dL",
-                                            sample_type="arterial"))
+                                            glucose=90, glucose_unit="mg/dL", bun=14,
+                                            bun_unit="mg/dL", sample_type="arterial"))
     assert rows[0]["status"] == "interpreted"
     assert rows[0]["finding_codes"] == ";".join(ref.codes())
-    assert float(rows[0]["osmolality_calculated"] or "nan") == pytest.approx(
-        ref.derived["osmolality_calculated"] or float("nan"), nan_ok=True)
+    # Lynd et al., BMC Emerg Med 2008 (SI form 2 Na + urea + glucose): 2 x 140 + 90/18
+    # + 14/2.8 = 290 mosm/kg, read only if 2345-7 and 3094-0 are read in mg/dL.
+    assert float(rows[0]["osmolality_calculated"]) == pytest.approx(290.0, abs=0.5)
+    assert ref.derived["osmolality_calculated"] == pytest.approx(290.0, abs=0.5)
 
 
 def test_mapping_file_reads_a_laboratorys_headers_and_units(tmp_path, capsys):
     out = tmp_path / "out.csv"
-    rc, _ = batch(capsys, DATA / "lab_export.csv", "--map", DATA / "lab_mapping.csv", "-o", out)
+    rc, _ = batch(capsys, DATA / "lab_export.csv", "--map", DATA / "lab_mapping.csv", "-o", out,
+                  "--findings", "all")
     assert rc == 0
     rows = rows_of(out)
     assert [r["status"] for r in rows] == ["interpreted", "interpreted"]
@@ -283,7 +286,7 @@ def test_chunks_on_worker_threads_keep_rows_counts_and_report_as_one_chunk(tmp_p
 
 def test_serial_checks_on_an_unsorted_file(tmp_path, capsys):
     out = tmp_path / "out.csv"
-    assert batch(capsys, DATA / "serial_unsorted.csv", "-o", out)[0] == 0
+    assert batch(capsys, DATA / "serial_unsorted.csv", "-o", out, "--profile", "full")[0] == 0
     rows = {r["sample_id"]: r for r in rows_of(out)}
     assert rows["S03"]["serial_codes"].split(";")[:2] == ["SERIAL-BREAK", "SERIAL-DELTA-NA"]
     assert "SERIAL-DELTA-NA" in rows["S04"]["serial_codes"]
@@ -298,7 +301,7 @@ def test_serial_checks_on_an_unsorted_file(tmp_path, capsys):
 
 def test_no_serial_option_and_missing_columns_say_not_run(tmp_path, capsys):
     out = tmp_path / "out.csv"
-    rc, err = batch(capsys, DATA / "comma.csv", "-o", out)
+    rc, err = batch(capsys, DATA / "comma.csv", "-o", out, "--profile", "full")
     assert rc == 0 and "serial checks not run" in err
     assert {r["serial_status"] for r in rows_of(out)} == {"not run"}
 
@@ -313,17 +316,24 @@ def test_no_serial_option_and_missing_columns_say_not_run(tmp_path, capsys):
     ([DATA / "comma.csv", "--report", "r.pdf"], ".md or .html"),
 ])
 def test_could_not_run_exits_2_with_one_clear_line(tmp_path, capsys, args, words):
+    """One line, and a previous output left byte for byte (these cases stop before any
+    row is read; tests/test_outputs.py stops runs after rows were written)."""
+    (tmp_path / "o.csv").write_bytes(b"previous\n")
     rc, err = batch(capsys, *args, "-o", tmp_path / "o.csv")
     assert rc == 2
     assert words in err and "Traceback" not in err
-    assert err.startswith("acidbase batch: could not run:")
-    assert not (tmp_path / "o.csv").exists()
+    assert err.startswith("acidbase batch: could not run:") and err.count("\n") == 1
+    assert "nothing written, " in err
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["o.csv"]
+    assert (tmp_path / "o.csv").read_bytes() == b"previous\n"
 
 
 def test_ragged_line_stops_the_run_and_leaves_no_output(tmp_path, capsys):
+    """The ragged line comes after the first chunks were formatted and written."""
     f = tmp_path / "ragged.csv"
-    f.write_text("ph,pco2,hco3,na,cl\n7.40,40,24.22,140,106.78\n7.40,40,24.22\n")
-    rc, err = batch(capsys, f, "-o", tmp_path / "o.csv")
+    f.write_text("ph,pco2,hco3,na,cl\n" + "7.40,40,24.22,140,106.78\n" * 3000
+                 + "7.40,40,24.22\n")
+    rc, err = batch(capsys, f, "-o", tmp_path / "o.csv", "--chunk-rows", "100")
     assert rc == 2 and "3 fields where the header has 5" in err
     assert sorted(p.name for p in tmp_path.iterdir()) == ["ragged.csv"]
 
@@ -406,8 +416,11 @@ def test_bad_choice_message_is_the_kernels_own(tmp_path, capsys):
 def test_header_without_rows_could_not_run(tmp_path, capsys):
     f = tmp_path / "empty.csv"
     f.write_text("ph,pco2,hco3,na,cl\n")
+    (tmp_path / "o.csv").write_bytes(b"previous\n")
     rc, err = batch(capsys, f, "-o", tmp_path / "o.csv")
-    assert rc == 2 and "no rows" in err and not (tmp_path / "o.csv").exists()
+    assert rc == 2 and "no rows" in err
+    assert (tmp_path / "o.csv").read_bytes() == b"previous\n"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["empty.csv", "o.csv"]
 
 
 def test_columns_left_unescaped_never_start_like_a_formula(tmp_path, capsys):

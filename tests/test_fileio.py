@@ -9,6 +9,8 @@ from pathlib import Path
 import numpy as np
 import pyarrow as pa
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from acidbase import fileio, loinc
 from acidbase.fields import NUMERIC
@@ -250,11 +252,60 @@ def test_csv_writer_quotes_per_rfc4180_and_escapes(tmp_path):
 
 
 def test_writer_leaves_no_file_when_the_run_fails(tmp_path):
+    """A write that fails half-way (the columns change) leaves the previous file as it
+    was and no temporary file; while writing, rows went to a staged file only."""
     out = tmp_path / "o.csv"
+    out.write_bytes(b"previous\n")
+    w = fileio.Writer(str(out), "csv")
+    try:
+        w.write(pa.table({"a": ["x"] * 1000}))
+        staged = [p for p in tmp_path.iterdir() if p.name.endswith(".incomplete")]
+        assert len(staged) == 1 and staged[0].name.startswith(".o.csv.")
+        assert out.read_bytes() == b"previous\n"
+        with pytest.raises(ValueError, match="output columns changed"):
+            w.write(pa.table({"b": ["y"]}))
+    finally:
+        w.close(ok=False)
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["o.csv"]
+    assert out.read_bytes() == b"previous\n"
+
+
+def test_writer_replaces_the_previous_file_only_when_it_closes(tmp_path):
+    out = tmp_path / "o.csv"
+    out.write_bytes(b"previous\n")
     w = fileio.Writer(str(out), "csv")
     w.write(pa.table({"a": ["x"]}))
-    w.close(ok=False)
-    assert list(tmp_path.iterdir()) == []
+    assert out.read_bytes() == b"previous\n"
+    w.close()
+    assert out.read_bytes() == b'"a"\n"x"\n'
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["o.csv"]
+
+
+@pytest.mark.parametrize("kind", ["string", "large_string", "dictionary", "binary",
+                                  "large_binary", "chunked", "chunked dictionary"])
+def test_formula_cells_are_escaped_whatever_the_arrow_text_type(tmp_path, kind):
+    cells = pa.array(["=1+2", "ok", None, "-5.2", "@x"])
+    col = {"string": cells, "large_string": cells.cast(pa.large_string()),
+           "dictionary": cells.dictionary_encode(), "binary": cells.cast(pa.binary()),
+           "large_binary": cells.cast(pa.large_binary()),
+           "chunked": pa.chunked_array([cells.slice(0, 2), cells.slice(2)]),
+           "chunked dictionary": pa.chunked_array([cells.slice(0, 2).dictionary_encode(),
+                                                   cells.slice(2).dictionary_encode()])}[kind]
+    escaped = fileio.escape_formula(col)
+    assert escaped.type == col.type  # a writer given a schema can take it back
+    got = [c.decode() if isinstance(c, bytes) else c for c in escaped.to_pylist()]
+    assert got == ["'=1+2", "ok", None, "-5.2", "'@x"]
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(st.one_of(st.none(), st.text(max_size=6),
+                          st.sampled_from(["=1", "+3", "-5.2", "-0,6", "@a", "\t1", "-x"])),
+                min_size=1, max_size=20))
+def test_column_escaping_is_the_cell_rule_on_every_cell(cells):
+    """The vectorised escaping equals ``escape_text`` cell by cell (the oracle a compiled
+    writer is checked against)."""
+    got = fileio.escape_formula(pa.array(cells, type=pa.string())).to_pylist()
+    assert got == [fileio.escape_text(c) for c in cells]
 
 
 def test_rechunk_keeps_every_row_in_order():

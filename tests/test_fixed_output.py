@@ -115,7 +115,7 @@ def test_batch_csv_derived_text_is_checks_value_at_its_decimals(tmp_path, capsys
     src = tmp_path / "in.csv"
     src.write_text("\n".join(rows) + "\n")
     out = tmp_path / "out.csv"
-    assert cli.main(["batch", str(src), "-o", str(out), "--quiet",
+    assert cli.main(["batch", str(src), "-o", str(out), "--quiet", "--derived", "all",
                      "--summary", str(tmp_path / "s.txt")]) == 0
     got = list(csv.DictReader(out.open(newline="")))
     header = rows[0].split(",")

@@ -46,7 +46,8 @@ def panels(path: Path, rows: list[tuple[str, str, float, float]]) -> Path:
 
 def run(capsys, src: Path, store: Path, *extra: str) -> tuple[int, list[dict], str]:
     out = src.with_suffix(".out.csv")
-    rc = main(["batch", str(src), "-o", str(out), "--history", str(store), "--quiet", *extra])
+    rc = main(["batch", str(src), "-o", str(out), "--history", str(store), "--quiet",
+               "--profile", "full", *extra])
     err = capsys.readouterr().err
     rows = list(csv.DictReader(out.open())) if rc == 0 else []
     return rc, rows, err
@@ -79,7 +80,7 @@ def test_without_the_store_the_first_panel_of_a_file_stands_alone(tmp_path, caps
     """The same second file without --history: nothing to compare with."""
     src = panels(tmp_path / "day2.csv", [("S2", "MRN-ALPHA-7", 1.0, 155)])
     out = tmp_path / "o.csv"
-    assert main(["batch", str(src), "-o", str(out), "--quiet"]) == 0
+    assert main(["batch", str(src), "-o", str(out), "--quiet", "--profile", "full"]) == 0
     row = next(csv.DictReader(out.open()))
     assert row["serial_codes"] == "" and row["serial_status"].startswith("not assessable")
 

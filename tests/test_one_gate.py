@@ -108,7 +108,8 @@ def _rows() -> list[dict[str, str]]:
 def _batch(tmp_path, path) -> list[tuple[str, object]]:
     out = tmp_path / f"{path.name}.out.jsonl"
     with redirect_stderr(io.StringIO()):
-        rc = cli.main(["batch", str(path), "-o", str(out), "--quiet", "--decimal", "."])
+        rc = cli.main(["batch", str(path), "-o", str(out), "--quiet", "--decimal", ".",
+                       "--derived", "all"])
     assert rc == 0
     got = []
     for line in out.read_text(encoding="utf-8").splitlines():

@@ -12,7 +12,8 @@ from hypothesis import strategies as st
 from pydantic import ValidationError
 
 import acidbase as ab
-from acidbase.fields import NUMERIC
+from acidbase.fields import BY_NAME, NUMERIC
+from acidbase.model import describe_fields
 
 anything = st.one_of(
     st.none(), st.floats(allow_nan=True, allow_infinity=True), st.integers(-10**30, 10**30),
@@ -28,7 +29,23 @@ def test_no_input_raises_anything_but_the_validation_error(data):
     try:
         panel = ab.Panel.model_validate(data)
     except ValidationError as e:
-        assert ab.describe(e)  # readable lines for every problem
+        pairs = describe_fields(e)
+        assert len(pairs) == e.error_count() == len(ab.describe(e))  # a line per problem
+        for loc, line in pairs:
+            spec = BY_NAME.get(loc)
+            # each line names what it is about: a numeric field by title and name first,
+            # another field by its name, the panel as a whole as "panel"; none is
+            # pydantic's own dump
+            if spec is not None:
+                assert line.startswith(f"{spec.title} ({loc})"), line
+            elif loc:
+                assert f"({loc})" in line or line.startswith(f"{loc}:"), line
+            else:
+                assert line.startswith("panel"), line
+            assert "errors.pydantic.dev" not in line and "type=" not in line
+        missing = {s.name for s in NUMERIC if s.required and s.name not in data}
+        named = {loc for loc, line in pairs if line.endswith("is required and was not given")}
+        assert missing <= named
         return
     ab.interpret(panel)
 

@@ -160,7 +160,7 @@ def test_check_table_checks_one_arrow_batch_as_the_batch_command_does(tmp_path):
     path.write_text("ph,pco2,hco3,na,cl,ward\n7.40,40,24,140,104,A\n7.21 L,60,23,140,104,B\n")
     res = tmp_path / "out.jsonl"
     with redirect_stderr(io.StringIO()):
-        assert cli.main(["batch", str(path), "-o", str(res), "--quiet"]) == 0
+        assert cli.main(["batch", str(path), "-o", str(res), "--quiet", "--findings", "all"]) == 0
     rows = [json.loads(x) for x in res.read_text().splitlines()]
     for name in ("status", "reason", "finding_codes", "disorders", "anion_gap"):
         assert [r[name] for r in rows] == out.column(name).to_pylist(), name

@@ -251,10 +251,15 @@ def _implies(layout: Layout, header: str) -> bool:
 
 def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
                 settings: Settings | None, checker: serial.SerialChecker | None, start: int,
-                keep: tuple[str, ...] = DERIVED, missing: Sequence[str] = ()
+                keep: tuple[str, ...] = DERIVED, missing: Sequence[str] = (),
+                severities: tuple[str, ...] | None = None
                 ) -> tuple[dict[str, pa.Array], dict]:
     """The output columns of one chunk (kernel, review, marks, serial, caution) and what
-    the summary needs (``meta``: refused and review masks, fired rules, counts)."""
+    the summary needs (``meta``: refused and review masks, fired rules, counts).
+
+    ``keep``: the derived values written (``hco3_difference`` among them adds that
+    column); ``severities``: the findings whose codes ``finding_codes`` lists (None:
+    all; acidbase/profile.py)."""
     n = table.num_rows
     units = {k: v for k, v in layout.units.items() if v != BY_NAME[k].unit}
     missing = tuple(missing) or layout_missing(layout)
@@ -266,7 +271,8 @@ def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
                 hint="a record gives each key once; which value was meant cannot be told"))
     res = interpret_many(columns, units or None, settings, decimal=decimal, missing=missing,
                          row_problems=row_problems)
-    tab = res.encoded()  # text columns as (indices, labels): no cell-by-cell conversion
+    # text columns as (indices, labels): no cell-by-cell conversion
+    tab = res.encoded(severities, "hco3_difference" in keep)
     refused = np.asarray(res.refused, dtype=bool)
     counts = {"reasons": Counter(res.problem_counts())}
     marks = res.has_marks()
