@@ -35,12 +35,13 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from . import fileio, history, serial
+from . import audit, config, fileio, history, serial
 from . import units as _units
 from .engine import SLOTS
 from .errors import AcidBaseError
 from .fields import BY_NAME
 from .fileio import BatchInputError, Layout, Source
+from .files import hl7
 from .files.check import (EXTRA_COLUMNS, ROW_COLUMN, check_chunk, field_column,  # noqa: F401
                           output_names, review_mask, review_rules)
 from .files.outputs import (
@@ -314,7 +315,7 @@ def plane_picture(plane: np.ndarray) -> str:
     return "\n".join(lines)
 
 
-def summary_text(t: Tally, notes: list[str]) -> str:
+def summary_text(t: Tally, notes: list[str], record: dict | None = None) -> str:
     lines = [f"acidbase batch: {t.rows:,} row{'' if t.rows == 1 else 's'}: "
              f"{t.rows - t.refused:,} interpreted, "
              f"{t.refused:,} refused; {t.review:,} need review"]
@@ -331,11 +332,13 @@ def summary_text(t: Tally, notes: list[str]) -> str:
                            ("serial flags", t.serial_codes), ("refusal reasons", t.reasons)):
         if counter:
             lines.append(f"  {title}: " + "; ".join(f"{k} {c:,}" for k, c in _ranked(counter)))
+    if record is not None:
+        lines += [f"  audit: {line}" for line in audit.lines(record)]
     lines.append(CAUTION)
     return "\n".join(lines)
 
 
-def summary_json(t: Tally, notes: list[str]) -> str:
+def summary_json(t: Tally, notes: list[str], record: dict | None = None) -> str:
     doc = {
         "rows": t.rows, "interpreted": t.rows - t.refused, "refused": t.refused,
         "needs_review": t.review, "notes": notes,
@@ -346,6 +349,8 @@ def summary_json(t: Tally, notes: list[str]) -> str:
         "serial_codes": dict(_ranked(t.serial_codes)),
         "refusal_reasons": dict(_ranked(t.reasons)), "caution": CAUTION,
     }
+    if record is not None:
+        doc["audit"] = record
     return json.dumps(doc, indent=2, ensure_ascii=False)
 
 
@@ -388,7 +393,7 @@ def _report_sections(t: Tally) -> tuple[tuple[str, Counter], ...]:
             ("Serial flags", t.serial_codes), ("Refusal reasons", t.reasons))
 
 
-def report_markdown(t: Tally, notes: list[str], source: str) -> str:
+def report_markdown(t: Tally, notes: list[str], source: str, record: dict | None = None) -> str:
     out = ["# Batch check report", "", f"Input: {md_text(source)}", "", f"> {CAUTION}", "",
            "## Counts", "", "| | rows |", "|---|---:|", f"| read | {t.rows:,} |",
            f"| interpreted | {t.rows - t.refused:,} |", f"| refused | {t.refused:,} |",
@@ -408,11 +413,14 @@ def report_markdown(t: Tally, notes: list[str], source: str) -> str:
     else:
         out.append("None.")
     out += ["", "## Panels on the pCO2-HCO3 plane (interpreted rows)", "", "```",
-            plane_picture(t.plane), "```", "", f"> {CAUTION}", ""]
+            plane_picture(t.plane), "```", ""]
+    if record is not None:
+        out += ["## Audit record", ""] + [f"- {_md_cell(x)}" for x in audit.lines(record)] + [""]
+    out += [f"> {CAUTION}", ""]
     return "\n".join(out)
 
 
-def report_html(t: Tally, notes: list[str], source: str) -> str:
+def report_html(t: Tally, notes: list[str], source: str, record: dict | None = None) -> str:
     """The report as one HTML page.  Echoed text is HTML-escaped and, since a
     spreadsheet opens an HTML table too, formula-escaped as the CSV is (OWASP)."""
 
@@ -447,8 +455,11 @@ def report_html(t: Tally, notes: list[str], source: str) -> str:
     else:
         parts.append("<p>None.</p>")
     parts += ["<h2>Panels on the pCO2-HCO3 plane (interpreted rows)</h2>",
-              f"<pre>{e(plane_picture(t.plane))}</pre>",
-              f"<p class='caution'>{e(CAUTION)}</p></body></html>"]
+              f"<pre>{e(plane_picture(t.plane))}</pre>"]
+    if record is not None:
+        parts += ["<h2>Audit record</h2>",
+                  "<ul>" + "".join(f"<li>{e(x)}</li>" for x in audit.lines(record)) + "</ul>"]
+    parts.append(f"<p class='caution'>{e(CAUTION)}</p></body></html>")
     return "\n".join(parts)
 
 
@@ -558,8 +569,9 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
     and folders are registered on ``stack`` as they are made; the outputs are
     committed (renamed into place) at the very end, together."""
     _lean_allocators()
+    started = audit.now()
     units = _pairs(args.unit, "unit")
-    deltas = _delta_overrides(args.delta)
+    site = config.resolve(args, deltas=_delta_overrides(args.delta))
     delimiter = _DELIMS.get((args.delimiter or "").lower(), args.delimiter)
     if delimiter is not None and len(delimiter) != 1:
         raise BatchInputError(f"--delimiter {args.delimiter!r}: give one character, or 'tab'")
@@ -568,20 +580,35 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         raise BatchInputError(f"--output-delimiter {args.output_delimiter!r}: give one character")
     if args.chunk_rows < 1:
         raise BatchInputError("--chunk-rows must be at least 1")
-    if not args.window_hours > 0:
+    if not site.window_hours > 0:
         raise BatchInputError("--window-hours must be a positive number")
     if args.report and not args.report.lower().endswith((".md", ".html", ".htm")):
         raise BatchInputError("--report: name a .md or .html file")
     profile = profile_from_args(args)
-    settings = _settings(args)
-    out_fmt = fileio.output_format(args.output, args.output_format)
+    settings = site.settings
+    fhir_out = args.output_format == "fhir"
+    if fhir_out:
+        from . import fhir
+
+        fhir.require()
+        if args.output and not args.output.lower().endswith((".ndjson", ".jsonl", ".json")):
+            raise BatchInputError("--output-format fhir writes one Bundle per line "
+                                  "(newline-delimited JSON): name the output .ndjson")
+    out_fmt = "jsonl" if fhir_out else fileio.output_format(args.output, args.output_format)
     staged = _stage_outputs(args, outputs)
-    src = fileio.open_source(args.input, args.format, delimiter, args.encoding, args.missing,
-                             args.chunk_rows)
-    mapping = fileio.read_mapping(args.mapping) if args.mapping else None
-    layout = fileio.map_headers(src.headers, mapping, units, args.strict_columns)
+    if hl7.looks_like_hl7(args.input, args.format):
+        src = hl7.open_source(args.input, args.encoding, args.chunk_rows)
+    else:
+        src = fileio.open_source(args.input, args.format, delimiter, args.encoding, args.missing,
+                                 args.chunk_rows)
+    input_sha256 = audit.file_sha256(args.input)  # the audit record names the bytes read
+    mapping = fileio.read_mapping(site.mapping) if site.mapping else None
+    layout = fileio.map_headers(src.headers, mapping, units,
+                                args.strict_columns and src.format != hl7.FORMAT,
+                                defaults=site.units)
     layout = dataclasses.replace(layout, missing=src.missing, notes=src.notes + layout.notes,
-                                 duplicates=src.duplicates)
+                                 duplicates=src.duplicates,
+                                 row_problems=getattr(src, "row_problems", {}))
     if args.decimal:
         decimal = args.decimal
     elif src.format == "csv":
@@ -602,7 +629,10 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
     if not args.no_serial and not do_serial:
         notes.append("serial checks not run: they need patient_id and collected_at columns")
     data = staged.get("-o")
-    writer = Writer(args.output, out_fmt, out_delim, metadata={"caution": CAUTION},
+    writer = Writer(args.output, out_fmt, out_delim,
+                    metadata={"caution": CAUTION, "audit": json.dumps(audit.record(
+                        site, started, None, input_name=label, input_path=args.input,
+                        input_sha256=input_sha256))},
                     escape=escaped_columns(src.headers), decimals=profile.decimals,
                     sink=data.file if data else None)
     stack.callback(writer.close, False)  # after a commit, a no-op
@@ -616,7 +646,7 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
                                          or history.DEFAULT_RETENTION_DAYS)
             stack.callback(store.close)  # without a commit: adds nothing
         # With a store, earlier panels join the partitions: twice as many of them.
-        checker = serial.SerialChecker(serial.rules_with(deltas), args.window_hours,
+        checker = serial.SerialChecker(serial.rules_with(site.deltas), site.window_hours,
                                        serial.SerialChecker.partitions_for(src.size)
                                        * (2 if store else 1), keep=store is not None)
         stack.callback(checker.close)  # its scratch folder goes, whatever happens
@@ -634,7 +664,7 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         """One chunk, on a worker thread: its output rows encoded for the writer, and
         its counts."""
         out, meta = _process(table, layout, decimal, settings, checker, start, profile.derived,
-                             severities=profile.severities)
+                             severities=profile.severities, keep_results=fhir_out)
         names = _output_names(src.headers, meta["engine_cols"])
         cols = {ROW_COLUMN: pa.array(np.arange(start + 1, start + table.num_rows + 1))}
         for h in src.headers:
@@ -645,6 +675,10 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         part = Tally()
         tally_chunk(part, out, meta["pco2"], meta["hco3"], meta["refused"], meta["review"],
                     start, ids, meta["fired"], listed, meta["counts"])
+        if fhir_out:
+            lines = fhir.chunk_bundles(table, layout, decimal, out, meta, site, start,
+                                       label, input_sha256)
+            return (fhir.LINE_SCHEMA, lines), part, names, table.num_rows
         plain = frozenset(names[h] for h in meta["plain"])
         # the output profile (acidbase/profile.py): counted above, not all written
         cols = {k: v for k, v in cols.items() if k in names.values() or profile.keeps(k)}
@@ -690,13 +724,17 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
     if store is not None:  # only a run whose every row was written is stored
         notes.append(history.commit_run(store, checker, args.input, _audit(args)))
     summary = staged.get("--summary")
-    text = summary_json(tally, notes) if (args.summary or "").endswith(".json") else \
-        summary_text(tally, notes)
+    record = audit.record(site, started, input_name=label, input_path=args.input,
+                          input_sha256=input_sha256,
+                          rows={"read": tally.rows, "interpreted": tally.rows - tally.refused,
+                                "refused": tally.refused})
+    text = summary_json(tally, notes, record) if (args.summary or "").endswith(".json") else \
+        summary_text(tally, notes, record)
     if summary is not None:
         summary.file.write((text + "\n").encode("utf-8"))
     if args.report:
-        doc = report_html(tally, notes, label) if args.report.lower().endswith(
-            (".html", ".htm")) else report_markdown(tally, notes, label)
+        doc = report_html(tally, notes, label, record) if args.report.lower().endswith(
+            (".html", ".htm")) else report_markdown(tally, notes, label, record)
         staged["--report"].file.write(doc.encode("utf-8"))
     outputs.commit()  # every output in place, or (on an error above) none
     if summary is None:

@@ -16,11 +16,14 @@ from typing import Any
 
 from pydantic import ValidationError
 
-from .api import interpret, interpret_many
-from .errors import AcidBaseError
+from . import audit
 from . import serial as serial_defaults
-from .files.formats import FORMATS
+from .api import interpret, interpret_many
+from .config import ENV_VAR, OBSERVATION_STATUSES
+from .config import resolve as resolve_site
+from .errors import AcidBaseError
 from .fields import NUMERIC, TEXT_FIELDS
+from .files.formats import FORMATS
 from .inputs.vocab import CHOICES
 from .inputs.panel import Panel, describe
 from .profile import FINDINGS, PROFILES
@@ -73,6 +76,9 @@ def add_settings_options(p: argparse.ArgumentParser) -> None:
                    help="judge the anion gap with K+ included (interval default 10 16)")
     s.add_argument("--reference-albumin", type=float, metavar="G_PER_L",
                    help="albumin to correct the gap to, g/L (default 44)")
+    s.add_argument("--fhir-status", choices=OBSERVATION_STATUSES,
+                   help="FHIR Observation status of machine readings (default preliminary)")
+    add_config_option(s)
 
 
 def configure_batch_parser(p: argparse.ArgumentParser) -> None:
@@ -82,11 +88,13 @@ def configure_batch_parser(p: argparse.ArgumentParser) -> None:
         "per input row, in input order, with status, reason, findings and serial checks. "
         + CAUTION)
     p.add_argument("input", metavar="INPUT",
-                   help="panel file (.csv, .jsonl, .parquet), or - for standard input")
+                   help="panel file (.csv, .jsonl, .parquet, or .hl7: HL7 v2 ORU^R01 messages), "
+                        "or - for standard input")
     p.add_argument("-o", "--output", metavar="OUTPUT",
                    help="output file (.csv, .jsonl, .parquet); default: CSV on stdout")
     g = p.add_argument_group("reading")
-    g.add_argument("--format", choices=FORMATS, help="input format (default: from the name)")
+    g.add_argument("--format", choices=(*FORMATS, "hl7"),
+                   help="input format (default: from the name and the first bytes)")
     g.add_argument("--delimiter", metavar="CHAR",
                    help="CSV delimiter: , ; | or tab (default: detected)")
     g.add_argument("--decimal", choices=(".", ","), help="decimal mark (default: detected)")
@@ -105,9 +113,10 @@ def configure_batch_parser(p: argparse.ArgumentParser) -> None:
     g.add_argument("--chunk-rows", type=int, default=1 << 14, metavar="N",
                    help="rows per chunk (memory vs speed; default 16384)")
     s = p.add_argument_group("serial checks (need patient_id and collected_at)")
-    s.add_argument("--window-hours", type=float, default=serial_defaults.DEFAULT_WINDOW_HOURS,
+    s.add_argument("--window-hours", type=float, default=None,
                    metavar="H", help="compare panels of a patient at most H hours apart "
-                                     f"(default {serial_defaults.DEFAULT_WINDOW_HOURS:g})")
+                                     "(default: the site file, else "
+                                     f"{serial_defaults.DEFAULT_WINDOW_HOURS:g})")
     s.add_argument("--delta", action="append", default=[], metavar="FIELD=LIMIT",
                    help="the laboratory's delta limit for a field, canonical unit, or 'off' "
                         "(repeatable)")
@@ -119,7 +128,9 @@ def configure_batch_parser(p: argparse.ArgumentParser) -> None:
     s.add_argument("--history-retention-days", type=float, default=None, metavar="DAYS",
                    help="prune stored panels collected longer ago (default 30)")
     o = p.add_argument_group("output")
-    o.add_argument("--output-format", choices=FORMATS, help="default: from the name")
+    o.add_argument("--output-format", choices=(*FORMATS, "fhir"),
+                   help="default: from the name; fhir: one FHIR R4 Bundle per panel, one per "
+                        "line (needs acidbase[fhir])")
     o.add_argument("--output-delimiter", default=",", metavar="CHAR",
                    help="CSV output delimiter (default ,)")
     o.add_argument("--summary", metavar="FILE",
@@ -139,6 +150,20 @@ def configure_batch_parser(p: argparse.ArgumentParser) -> None:
     add_settings_options(p)
 
 
+def add_config_option(p: argparse.ArgumentParser) -> None:
+    """``--config FILE`` (check, batch, tui and config show)."""
+    p.add_argument("--config", metavar="FILE",
+                   help=f"site configuration (TOML); default: ${ENV_VAR}, else "
+                        "$XDG_CONFIG_HOME/acidbase/config.toml if it exists. Options "
+                        "override the file")
+
+
+def cmd_config(args: argparse.Namespace) -> int:
+    """``acidbase config show``: every setting in force and where it came from."""
+    print(resolve_site(args).show())
+    return EXIT_OK
+
+
 def panel_from_args(args: argparse.Namespace) -> dict[str, Any]:
     data: dict[str, Any] = {}
     for spec in NUMERIC:
@@ -156,18 +181,8 @@ def panel_from_args(args: argparse.Namespace) -> dict[str, Any]:
 
 
 def settings_from_args(args: argparse.Namespace) -> Settings:
-    kw: dict[str, Any] = {}
-    if getattr(args, "anion_gap_interval", None):
-        lo, hi = args.anion_gap_interval
-        if args.anion_gap_with_k:
-            kw["anion_gap_k_low"], kw["anion_gap_k_high"] = lo, hi
-        else:
-            kw["anion_gap_low"], kw["anion_gap_high"] = lo, hi
-    if getattr(args, "anion_gap_with_k", False):
-        kw["anion_gap_uses_k"] = True
-    if getattr(args, "reference_albumin", None) is not None:
-        kw["reference_albumin_g_l"] = args.reference_albumin
-    return Settings.checked(**kw)
+    """The laboratory settings: built-in defaults, the site file, then the options."""
+    return resolve_site(args).settings
 
 
 def _refuse(lines: Sequence[str]) -> int:
@@ -178,14 +193,25 @@ def _refuse(lines: Sequence[str]) -> int:
 
 
 def cmd_check(args: argparse.Namespace) -> int:
+    started = audit.now()
+    site = resolve_site(args)
+    data = panel_from_args(args)
+    for name, unit in site.units.items():  # the site's default units, where none is given
+        if name in data:
+            data.setdefault(f"{name}_unit", unit)
     try:
-        panel = Panel.model_validate(panel_from_args(args), context={"decimal": args.decimal})
+        panel = Panel.model_validate(data, context={"decimal": args.decimal})
     except ValidationError as e:
         return _refuse(describe(e))
-    settings = settings_from_args(args)
-    it = interpret(panel, settings)
-    if args.json:
-        print(json.dumps(it.to_dict(), indent=2, ensure_ascii=False, allow_nan=False))
+    it = interpret(panel, site.settings)
+    if args.fhir:
+        from .fhir import check_bundle_json
+
+        print(check_bundle_json(panel, it, site, started))
+    elif args.json:
+        doc = it.to_dict()
+        doc["audit"] = audit.record(site, started)
+        print(json.dumps(doc, indent=2, ensure_ascii=False, allow_nan=False))
     else:
         print(as_text(it, working=not args.brief), end="")
     return EXIT_OK
@@ -305,6 +331,8 @@ def build_parser() -> argparse.ArgumentParser:
     add_panel_options(check)
     check.add_argument("--json", action="store_true", help="print the JSON document")
     check.add_argument("--brief", action="store_true", help="leave out the working")
+    check.add_argument("--fhir", action="store_true",
+                       help="print the reading as a FHIR R4 Bundle (JSON; needs acidbase[fhir])")
     check.set_defaults(func=cmd_check)
     demo = sub.add_parser("demo", help="read the built-in demo panels")
     demo.add_argument("--json", action="store_true")
@@ -330,6 +358,15 @@ def build_parser() -> argparse.ArgumentParser:
     add_panel_options(tui)
     tui.add_argument("--demo", action="store_true", help="open with the demo panels loaded")
     tui.set_defaults(func=cmd_tui)
+    config = sub.add_parser("config", help="the site configuration in force",
+                            description="Show the settings in force and where each came from "
+                                        "(built-in default, configuration file, option).")
+    config_sub = config.add_subparsers(dest="action", required=True, metavar="ACTION")
+    show = config_sub.add_parser("show", help="print every setting and its origin")
+    add_settings_options(show)
+    show.set_defaults(func=cmd_config)
+    for p in (parser, check, demo, batch, tui, config, show):
+        p.add_argument("--version", action="version", version=f"acidbase {audit.version()}")
     return parser
 
 

@@ -245,7 +245,7 @@ def compute(s: Screened, settings: Settings) -> Frame:
     else:
         f["urea_used"] = v["urea"]
 
-    limits = interval_columns(s.sample_type, ("ph", "pco2", "hco3", "sbe"))
+    limits = interval_columns(s.sample_type, ("ph", "pco2", "hco3", "sbe"), settings)
     limits = pregnancy_columns(limits, s.sample_type, s.pregnancy)
     for name, (lo, hi) in limits.items():
         f[f"{name}_lo"], f[f"{name}_hi"] = lo, hi

@@ -11,6 +11,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import fields as _fields
 from .errors import AcidBaseError
 from .fields import SAMPLE_TYPES
 
@@ -107,6 +108,9 @@ class Settings:
     """Osmolal gap above this is raised, mosm/kg (common practice) [lynd_2008]."""
     strong_ion_gap_high: float = 8.0
     """Strong ion gap above this suggests unmeasured anions, mmol/L [plos_2013]."""
+    reference_intervals: tuple[tuple[str, str, float, float], ...] = ()
+    """The laboratory's own intervals in place of ``INTERVALS``: (sample type, quantity,
+    low, high), canonical units (site configuration, ``acidbase.config``)."""
 
     @classmethod
     def checked(cls, **kw: float | bool) -> Settings:
@@ -118,7 +122,18 @@ class Settings:
                 raise SettingsError(f"{name} {lo:g} to {hi:g} mmol/L: give LOW < HIGH within 0 to 40")
         if not 20.0 <= s.reference_albumin_g_l <= 60.0:
             raise SettingsError(f"reference albumin {s.reference_albumin_g_l:g} g/L: give 20 to 60 g/L")
+        for kind, name, lo, hi in s.reference_intervals:
+            check_interval(kind, name, lo, hi)
         return s
+
+    def intervals(self) -> dict[str, dict[str, Interval]]:
+        """``INTERVALS`` with this laboratory's own intervals in place."""
+        if not self.reference_intervals:
+            return INTERVALS
+        out = {kind: dict(table) for kind, table in INTERVALS.items()}
+        for kind, name, lo, hi in self.reference_intervals:
+            out[kind][name] = Interval(float(lo), float(hi), ("site configuration",))
+        return out
 
     @property
     def gap_interval(self) -> tuple[float, float]:
@@ -152,8 +167,30 @@ def pregnancy_columns(limits: dict[str, tuple[np.ndarray, np.ndarray]], sample_t
     return out
 
 
-def interval_columns(sample_type: np.ndarray,
-                     names: tuple[str, ...]) -> dict[str, tuple[np.ndarray, np.ndarray]]:
+#: Quantities whose interval a laboratory may set, and the widest interval the rules
+#: can use (canonical units): the accepted ranges of ``acidbase.fields``, and for SBE
+#: +/-30 mmol/L (design, no source: beyond the values the rules are anchored to).
+SETTABLE_INTERVALS: dict[str, tuple[float, float]] = {
+    **{name: _fields.BY_NAME[name].accepted for name in ("ph", "pco2", "hco3")},
+    "sbe": (-30.0, 30.0)}
+
+
+def check_interval(kind: str, name: str, low: float, high: float) -> None:
+    """Refuse a laboratory interval the rules cannot use (``SettingsError``)."""
+    if kind not in SAMPLE_TYPES:
+        raise SettingsError(f"interval for sample type {kind!r}: give one of "
+                            f"{', '.join(SAMPLE_TYPES)}")
+    if name not in SETTABLE_INTERVALS:
+        raise SettingsError(f"interval of {name!r}: give one of {', '.join(SETTABLE_INTERVALS)}")
+    a, b = SETTABLE_INTERVALS[name]
+    if not (a <= low < high <= b):
+        raise SettingsError(f"{kind} {name} interval {low:g} to {high:g}: give LOW < HIGH "
+                            f"within {a:g} to {b:g}")
+
+
+def interval_columns(sample_type: np.ndarray, names: tuple[str, ...],
+                     settings: Settings | None = None
+                     ) -> dict[str, tuple[np.ndarray, np.ndarray]]:
     """Per-row low and high limits of each quantity in ``names``, from sample-type codes.
 
     A limit that is the same for every sample type (SBE), or for every row of this
@@ -164,12 +201,13 @@ def interval_columns(sample_type: np.ndarray,
     """
     uniform = bool(sample_type.shape[0]) and sample_type.min() == sample_type.max()
     kinds = (SAMPLE_TYPES[int(sample_type[0])],) if uniform else SAMPLE_TYPES
+    intervals = settings.intervals() if settings is not None else INTERVALS
     index = None
     out = {}
     for name in names:
         limits = []
         for side in ("low", "high"):
-            table = np.array([getattr(INTERVALS[kind][name], side) for kind in kinds])
+            table = np.array([getattr(intervals[kind][name], side) for kind in kinds])
             if (table == table[0]).all():
                 limits.append(np.float64(table[0]))
                 continue

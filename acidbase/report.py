@@ -9,6 +9,7 @@ from __future__ import annotations
 import textwrap
 from typing import TYPE_CHECKING, Any
 
+from .codes import DERIVED_UNITS
 from .fields import BY_NAME
 from .precision import DECIMALS
 from .rules import number_text
@@ -66,6 +67,7 @@ def as_json_dict(it: Interpretation) -> dict[str, Any]:
         {"status": "not assessable"},
         "disorders": [d.as_dict() for d in it.disorders],
         "derived": dict(it.derived),
+        "derived_units": dict(DERIVED_UNITS),
         "findings": [f.as_dict() for f in it.findings],
         "settings": it.settings,
         # what the reader read off the cells, present only when there was something

@@ -252,10 +252,11 @@ def _implies(layout: Layout, header: str) -> bool:
 def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
                 settings: Settings | None, checker: serial.SerialChecker | None, start: int,
                 keep: tuple[str, ...] = DERIVED, missing: Sequence[str] = (),
-                severities: tuple[str, ...] | None = None
+                severities: tuple[str, ...] | None = None, keep_results: bool = False
                 ) -> tuple[dict[str, pa.Array], dict]:
     """The output columns of one chunk (kernel, review, marks, serial, caution) and what
-    the summary needs (``meta``: refused and review masks, fired rules, counts).
+    the summary needs (``meta``: refused and review masks, fired rules, counts; with
+    ``keep_results``, the chunk's ``Results`` for a per-row surface such as FHIR).
 
     ``keep``: the derived values written (``hco3_difference`` among them adds that
     column); ``severities``: the findings whose codes ``finding_codes`` lists (None:
@@ -269,6 +270,9 @@ def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
             row_problems.setdefault(row - start, []).insert(0, Problem(
                 "record", "JSON record", ", ".join(keys), "", kind="duplicate_key",
                 hint="a record gives each key once; which value was meant cannot be told"))
+    for row, found in getattr(layout, "row_problems", {}).items():  # e.g. an HL7 message
+        if start <= row < start + n:
+            row_problems.setdefault(row - start, [])[:0] = found
     res = interpret_many(columns, units or None, settings, decimal=decimal, missing=missing,
                          row_problems=row_problems)
     # text columns as (indices, labels): no cell-by-cell conversion
@@ -283,6 +287,7 @@ def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
     fired = res.fired
     pco2, hco3 = res.values("pco2"), res.values("hco3")
     plain_fields = res.plain
+    results = res if keep_results else None
     del res  # the kernel's frame (about 150 columns) is not needed past here
     review = review_mask(fired, refused)
     out: dict[str, pa.Array] = {}
@@ -327,7 +332,7 @@ def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
     col_of = layout.column_of
     plain = frozenset(col_of[f] for f in plain_fields if f in col_of)
     meta = {"engine_cols": engine_cols, "plain": plain, "refused": refused, "review": review,
-            "fired": fired, "pco2": pco2, "hco3": hco3, "counts": counts}
+            "fired": fired, "pco2": pco2, "hco3": hco3, "counts": counts, "results": results}
     return out, meta
 
 

@@ -13,7 +13,7 @@ from dataclasses import dataclass, field
 
 from .. import loinc
 from .. import units as _units
-from ..errors import BatchInputError, UnitError
+from ..errors import BatchInputError, Problem, UnitError
 from ..fields import BY_NAME, REQUIRED, TEXT_FIELDS
 from ..inputs.vocab import CHOICES
 from .formats import sniff_csv
@@ -42,6 +42,9 @@ class Layout:
     duplicates: Mapping[int, tuple[str, ...]] = field(default_factory=dict)
     """Row (from 0, over the file) -> keys its JSON record gave twice (the source fills
     it as it reads; each such row is refused)."""
+    row_problems: Mapping[int, tuple[Problem, ...]] = field(default_factory=dict)
+    """Row (from 0, over the file) -> problems the source found before the cells (an HL7
+    message that could not be read, two results for one field); each such row is refused."""
 
     @property
     def column_of(self) -> dict[str, str]:
@@ -117,13 +120,15 @@ def read_mapping(path: str | os.PathLike[str]) -> dict[str, tuple[str, str | Non
 
 
 def map_headers(headers: Sequence[str], mapping: Mapping[str, tuple[str, str | None]] | None = None,
-                units: Mapping[str, str] | None = None, strict: bool = False) -> Layout:
+                units: Mapping[str, str] | None = None, strict: bool = False,
+                defaults: Mapping[str, str] | None = None) -> Layout:
     """Decide which input column feeds which field, and in which unit.
 
     Precedence for a column: the mapping file, then our field name, then a LOINC
     code.  Precedence for a unit: ``units`` (the ``--unit`` options), the
     mapping file or a header suffix, the unit implied by a LOINC code, the
-    field's canonical unit.  Two columns for one field, a unit a field does not
+    site's default unit (``defaults``, the configuration file), the field's canonical
+    unit.  Two columns for one field, a unit a field does not
     accept, or a missing required field stop the run (``BatchInputError``).
     """
     mapping = dict(mapping or {})
@@ -196,7 +201,7 @@ def map_headers(headers: Sequence[str], mapping: Mapping[str, tuple[str, str | N
                 f"concentration; state the unit (--unit {fld}=..., accepted: "
                 f"{', '.join(spec.units)})")
         else:
-            unit = spec.unit
+            unit = (defaults or {}).get(fld, spec.unit)
         try:
             _units.factor(fld, spec.kind, unit)
         except UnitError as e:

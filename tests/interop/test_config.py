@@ -1,0 +1,166 @@
+"""Site configuration: found in order, checked like the options, shown in every output.
+
+Intervals in these files are a site's own choices, made up for the tests; what is
+checked is that the tool uses the site's interval instead of its built-in one (the
+built-in venous pCO2 interval 40-51 mm[Hg] is Kelly 2010's arterial-venous
+difference applied to 35-45, acidbase.reference).
+"""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+
+from acidbase import config
+
+from .helpers import run
+
+#: Anion gap 141 - (104 + 26.5) = 10.5 mmol/L, inside 6-12: no metabolic process.
+VENOUS_52 = ("check", "--ph", "7.33", "--pco2", "52", "--hco3", "26.5", "--na", "141",
+             "--cl", "104", "--sample-type", "venous")
+
+
+def site_file(tmp_path, text: str, name: str = "site.toml"):
+    path = tmp_path / name
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+def disorders(capsys, *args) -> list[str]:
+    rc, out, err = run(capsys, *args, "--json")
+    assert rc == 0, err
+    return [d["process"] for d in json.loads(out)["disorders"]]
+
+
+def test_a_site_interval_changes_the_verdict_it_should(tmp_path, capsys):
+    """pCO2 52 is above the built-in venous 40-51, inside a site's 41-55."""
+    assert disorders(capsys, *VENOUS_52) == ["respiratory acidosis"]
+    path = site_file(tmp_path, "[intervals.venous]\npco2 = [41, 55]\n")
+    assert disorders(capsys, *VENOUS_52, "--config", path) == []
+
+
+def test_the_site_interval_shows_in_the_working(tmp_path, capsys):
+    path = site_file(tmp_path, "[intervals.venous]\npco2 = [41, 55]\n")
+    _, out, _ = run(capsys, *VENOUS_52, "--config", path, "--json")
+    venous = next(f for f in json.loads(out)["findings"] if f["code"] == "T-SAMPLE-VENOUS")
+    assert "pCO2 41-55 mm[Hg]" in venous["text"]
+
+
+def test_the_file_is_found_by_option_then_variable_then_config_folder(tmp_path, capsys,
+                                                                      monkeypatch):
+    folder = tmp_path / "xdg" / "acidbase"
+    folder.mkdir(parents=True)
+    site_file(folder, "[albumin]\nreference_g_l = 40\n", "config.toml")
+    monkeypatch.setenv("XDG_CONFIG_HOME", str(tmp_path / "xdg"))
+    assert config.resolve().settings.reference_albumin_g_l == 40.0
+    monkeypatch.setenv(config.ENV_VAR, str(site_file(tmp_path, "[albumin]\nreference_g_l = 42\n",
+                                                     "env.toml")))
+    assert config.resolve().settings.reference_albumin_g_l == 42.0
+    given = site_file(tmp_path, "[albumin]\nreference_g_l = 38\n", "given.toml")
+    site = config.resolve(config=str(given))
+    assert site.settings.reference_albumin_g_l == 38.0 and site.found_by == "--config"
+
+
+def test_options_override_the_file(tmp_path, capsys):
+    path = site_file(tmp_path, "[anion_gap]\nlow = 3\nhigh = 11\n")
+    _, out, _ = run(capsys, *VENOUS_52, "--config", path, "--anion-gap-interval", "4", "10",
+                     "--json")
+    settings = json.loads(out)["settings"]
+    assert (settings["anion_gap_low"], settings["anion_gap_high"]) == (4.0, 10.0)
+
+
+@pytest.mark.parametrize("text, words", [
+    ("[intervals.venous]\npco2 = [55, 41]\n",
+     "key 'intervals.venous.pco2': venous pco2 interval 55 to 41: give LOW < HIGH within 8 to 250"),
+    ("[intervals.venus]\npco2 = [41, 55]\n", "key 'intervals.venus'"),
+    ("[anion_gap]\nlowest = 3\n", "key 'anion_gap.lowest': unknown key"),
+    ("[units]\npco2 = \"bar\"\n", "key 'units.pco2': 'bar' is not a unit of pCO2"),
+    ("[serial]\ndelta = { na = -3 }\n", "key 'serial.delta.na': give a positive limit"),
+    ("[fhir]\nobservation_status = \"done\"\n", "key 'fhir.observation_status'"),
+    ("[albumin\n", "not valid TOML"),
+    ("[anion_gap]\nlow = 12\nhigh = 6\n", "anion gap interval 12 to 6 mmol/L"),
+])
+def test_a_bad_file_is_refused_naming_the_key_and_the_reason(tmp_path, capsys, text, words):
+    path = site_file(tmp_path, text)
+    rc, _, err = run(capsys, *VENOUS_52, "--config", path)
+    assert rc == 2
+    assert words in err and str(path) in err and "Traceback" not in err
+
+
+def test_a_missing_file_named_by_the_option_is_refused(tmp_path, capsys):
+    rc, _, err = run(capsys, *VENOUS_52, "--config", tmp_path / "none.toml")
+    assert rc == 2 and "none.toml" in err and "Traceback" not in err
+
+
+def test_config_show_prints_each_setting_and_where_it_came_from(tmp_path, capsys):
+    path = site_file(tmp_path, "[intervals.venous]\npco2 = [41, 55]\n[fhir]\n"
+                               "observation_status = \"final\"\n")
+    rc, out, _ = run(capsys, "config", "show", "--config", path, "--reference-albumin", "40")
+    assert rc == 0
+    lines = {line.split()[0]: line for line in out.splitlines()[3:] if line.strip()}
+    assert lines["intervals.venous.pco2"].split()[1:4] == ["41", "to", "55"]
+    assert lines["intervals.venous.pco2"].endswith(f"file {path}")
+    assert lines["albumin.reference_g_l"].endswith("option")
+    assert lines["intervals.arterial.ph"].endswith("built-in default")
+    assert lines["fhir.observation_status"].split()[1] == "final"
+    assert f"configuration file: {path} (found by --config)" in out
+
+
+def test_site_default_units_apply_where_no_unit_is_stated(tmp_path, capsys):
+    path = site_file(tmp_path, "[units]\npco2 = \"kPa\"\n")
+    rc, out, _ = run(capsys, "check", "--ph", "7.40", "--pco2", "5.33", "--hco3", "24",
+                     "--na", "140", "--cl", "104", "--json", "--config", path)
+    assert rc == 0
+    # 5.33 kPa / 0.133322 kPa per mm[Hg] = 39.98 mm[Hg] (UCUM m[Hg] = 133.3220 kPa)
+    assert json.loads(out)["inputs"]["pco2"]["value"] == pytest.approx(39.978, abs=0.001)
+    csv_file = tmp_path / "p.csv"
+    csv_file.write_text("ph,pco2,hco3,na,cl\n7.40,5.33,24,140,104\n", encoding="utf-8")
+    rc, _, err = run(capsys, "batch", csv_file, "-o", tmp_path / "o.csv", "--config", path)
+    assert rc == 0, err
+    csv_file.write_text("ph,pco2 (mm[Hg]),hco3,na,cl\n7.40,40,24,140,104\n", encoding="utf-8")
+    rc, _, err = run(capsys, "batch", csv_file, "-o", tmp_path / "o.csv", "--config", path)
+    assert rc == 0, err  # a unit the header states wins over the site's default
+
+
+def test_batch_reads_window_and_deltas_from_the_file(tmp_path, capsys):
+    path = site_file(tmp_path, "[serial]\nwindow_hours = 2\ndelta = { na = 1 }\n")
+    site = config.resolve(config=str(path), deltas={"k": None})
+    assert site.window_hours == 2.0
+    assert site.deltas == {"na": 1.0, "k": None}
+    assert site.origin("serial.delta.k") == "option --delta"
+
+
+def test_the_config_file_is_shown_in_the_outputs(tmp_path, capsys):
+    path = site_file(tmp_path, "[intervals.venous]\npco2 = [41, 55]\n")
+    _, out, _ = run(capsys, *VENOUS_52, "--config", path, "--json")
+    audit = json.loads(out)["audit"]
+    assert audit["config_file"] == str(path)
+    assert audit["settings"]["intervals.venous.pco2"] == [41.0, 55.0]
+    csv_file = tmp_path / "p.csv"
+    csv_file.write_text("ph,pco2,hco3,na,cl,sample_type\n7.33,52,26.5,141,104,venous\n",
+                        encoding="utf-8")
+    summary = tmp_path / "s.json"
+    rc, _, err = run(capsys, "batch", csv_file, "-o", tmp_path / "o.csv", "--config", path,
+                     "--summary", summary)
+    assert rc == 0, err
+    doc = json.loads(summary.read_text(encoding="utf-8"))
+    assert doc["audit"]["config_file"] == str(path)
+    assert doc["audit"]["settings"]["intervals.venous.pco2"] == [41.0, 55.0]
+    assert doc["processes"] == {}  # the site's interval: no respiratory acidosis
+
+
+def test_the_default_mapping_file_is_found_beside_the_config_file(tmp_path, capsys):
+    import shutil
+
+    from .helpers import DATA, rows_of
+
+    batch_data = DATA.parent / "batch"
+    shutil.copy(batch_data / "lab_mapping.csv", tmp_path / "lab_mapping.csv")
+    path = site_file(tmp_path, "[batch]\nmapping = \"lab_mapping.csv\"\n")
+    out = tmp_path / "o.csv"
+    rc, _, err = run(capsys, "batch", batch_data / "lab_export.csv", "-o", out)
+    assert rc == 2 and "no column for required field" in err  # without the file
+    rc, _, err = run(capsys, "batch", batch_data / "lab_export.csv", "-o", out, "--config", path)
+    assert rc == 0, err
+    assert rows_of(out)[0]["status"] == "interpreted"
