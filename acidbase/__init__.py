@@ -7,13 +7,15 @@ Public API: ``Panel``, ``interpret``, ``interpret_many``, ``Interpretation``,
 from .api import interpret, interpret_many
 from .compensation import plane_bands
 from .errors import AcidBaseError, BatchInputError, ColumnError, Problem, UnitError
+from .fields import also_ordinary, convert
 from .inputs.panel import Panel, describe, describe_fields
 from .reference import Settings
 from .results import CAUTION, Disorder, Finding, Interpretation, Results
 
 __all__ = [
-    "CAUTION", "AcidBaseError", "BatchInputError", "ColumnError", "Disorder", "Finding", "Interpretation", "Panel",
-    "Problem", "Results", "Settings", "UnitError", "describe", "describe_fields", "interpret", "interpret_many",
+    "CAUTION", "AcidBaseError", "BatchInputError", "ColumnError", "Disorder", "Finding",
+    "Interpretation", "Panel", "Problem", "Results", "Settings", "UnitError", "also_ordinary",
+    "convert", "describe", "describe_fields", "interpret", "interpret_many",
     "plane_bands",
 ]
 __version__ = "0.2.0"

@@ -124,3 +124,34 @@ PREGNANCY_STATES: tuple[str, ...] = CHOICE_BY_NAME["pregnancy"].words
 
 #: Text fields carried with a panel; they do not enter the chemistry.
 TEXT_FIELDS: tuple[str, ...] = ("sample_id", "patient_id", "collected_at")
+
+
+def convert(field: str, value: float | str, from_unit: str, to_unit: str) -> float:
+    """``value`` of the panel field ``field`` given in ``from_unit``, expressed in ``to_unit``.
+
+    The same factors as the input boundary (``acidbase.units.FACTORS``), for surfaces that
+    offer to convert a typed value.  Raises ``ValueError`` for a value that is not a number
+    and ``UnitError`` for a unit the field does not accept.
+    """
+    kind = BY_NAME[field].kind
+    number = float(value)
+    return number * _units.factor(field, kind, from_unit) / _units.factor(field, kind, to_unit)
+
+
+def also_ordinary(field: str, value: float | str, unit: str) -> tuple[str, ...]:
+    """The field's other units in which ``value`` would lie inside its physiologic range.
+
+    A value ordinary in two units is ambiguous (pO2 45: mm[Hg] or kPa?); surfaces use
+    this to say so, never to convert.  Empty for a value that is not a number.
+    """
+    spec = BY_NAME[field]
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return ()
+    lo, hi = spec.physiologic
+    table = _units.FACTORS[spec.kind]
+    same = table.get(_units.normalise(unit))
+    # a unit with the same factor (mEq/L of a monovalent ion) reads the number the same
+    return tuple(other for other, f in table.items()
+                 if f != same and lo <= number * f <= hi)

@@ -2,34 +2,42 @@
 
 A surface over the library: it builds a panel, calls ``acidbase.interpret`` and
 shows the findings.  ``make_app`` is the one factory, used by ``acidbase tui``
-and by the tests.
+and by the tests.  What the first screen does not need is imported when first
+used, so the app opens quickly.
 """
 
 from __future__ import annotations
 
+from datetime import datetime
 from pathlib import Path
-from typing import ClassVar
+from typing import Any, ClassVar
 
 from textual.app import App
 from textual.binding import Binding, BindingType
 
 import acidbase
-from acidbase.report import as_markdown, as_text
 
+from . import prefs
 from .screens.entry import EntryScreen
 from .sitting import Sitting, SittingFileError, demo_entries, read_csv, write_csv
 
 
+def now() -> datetime:
+    """The time of a reading: local time with its offset (for the report and file names)."""
+    return datetime.now().astimezone().replace(microsecond=0)
+
+
 class AcidBaseApp(App[None]):
-    """Holds the sitting and the settings; the screens do the showing."""
+    """Holds the sitting, the units and the settings; the screens do the showing."""
 
     CSS_PATH = "app.tcss"
     TITLE = "acidbase"
     ENABLE_COMMAND_PALETTE = False
     BINDINGS: ClassVar[list[BindingType]] = [
-        Binding("f1", "help", "help", tooltip="Show every key.", id="help", priority=True),
-        Binding("ctrl+q", "quit", "quit", tooltip="Quit (the series is not saved unless you "
-                "saved it).", id="quit", priority=True),
+        Binding("f1", "help", "help", tooltip="Show every key and the full caution.",
+                id="help", priority=True),
+        Binding("ctrl+q", "quit", "quit", tooltip="Quit (asks first while kept panels are "
+                "not saved).", id="quit", priority=True),
     ]
 
     def __init__(self, panel: acidbase.Panel | None = None, demo: bool = False,
@@ -43,6 +51,8 @@ class AcidBaseApp(App[None]):
         """The panels kept while the app runs."""
         self.panel: acidbase.Panel | None = None
         """The panel the form holds now, when the engine accepts it."""
+        self.units: dict[str, str] = prefs.load_units()
+        """The unit chosen per field: kept for the sitting and in the settings file."""
         if demo:
             self.sitting.entries = demo_entries()
             self.sitting.current = 0
@@ -56,25 +66,66 @@ class AcidBaseApp(App[None]):
         if not isinstance(self.screen, HelpScreen):
             self.push_screen(HelpScreen())
 
-    # -- files -----------------------------------------------------------------
-    def save(self, kind: str, path: str, reading: acidbase.Interpretation | None) -> str:
-        """Write a report of ``reading`` or the series; returns what to tell the user."""
+    async def action_quit(self) -> None:
+        s = self.sitting
+        if not (s.unsaved and s.entries):
+            self.exit()
+            return
+        from .screens.confirm import ConfirmScreen
+
+        if isinstance(self.screen, ConfirmScreen):
+            return
+        self.push_screen(ConfirmScreen(
+            f"{len(s.entries)} kept panels are not saved (Ctrl+S, then CSV, saves them).",
+            "quit without saving them", "stay"),
+            lambda yes: self.exit() if yes else None)
+
+    def remember_unit(self, name: str, unit: str) -> None:
+        """The field's unit for the rest of the sitting and the next one."""
+        self.units[name] = unit
+        problem = prefs.save_units(self.units)
+        if problem:
+            self.notify(problem, severity="warning")
+
+    # -- reports and files -------------------------------------------------------
+    def report_text(self, reading: acidbase.Interpretation, data: dict[str, Any],
+                    markdown: bool = False) -> str:
+        from .chart import chart_report
+
+        return chart_report(reading, data, self.settings, now(), markdown)
+
+    def default_names(self, data: dict[str, Any]) -> dict[str, str]:
+        """The file name offered for each kind: the sample id and the time."""
+        from .chart import default_name
+
+        when = now()
+        return {"text": default_name(data, when, "txt"),
+                "markdown": default_name(data, when, "md"),
+                "csv": f"acidbase-series-{when:%Y%m%d-%H%M}.csv"}
+
+    def save(self, kind: str, path: str, reading: acidbase.Interpretation | None,
+             data: dict[str, Any] | None = None, replace: bool = False) -> str:
+        """Write the report or the series; returns what to tell the user.
+
+        An existing file is replaced only when ``replace`` (the user said so).
+        """
         target = Path(path).expanduser()
+        if target.exists() and not replace:
+            return f"Not saved: {target} exists (asked before replacing)."
         try:
             if kind == "csv":
                 written, left_out = write_csv(target, self.sitting.entries)
+                self.sitting.unsaved = False
                 note = (f"; left out (refused, in a unit other than the file's): "
                         f"{', '.join(map(str, left_out))}" if left_out else "")
                 return f"Saved {written} panels to {target}{note}."
             if reading is None:
                 return "Nothing to save yet: no reading."
-            text = as_markdown(reading) if kind == "markdown" else as_text(reading)
+            text = self.report_text(reading, data or {}, markdown=kind == "markdown")
             target.write_text(text, encoding="utf-8")
         except OSError as e:
             return f"Not saved: {e}"
-        stale = " (the last accepted reading: the form holds a refused value)" \
-            if self.panel is None else ""
-        return f"Saved the reading to {target}{stale}."
+        return f"Saved the report to {target}."
 
     def load(self, path: str) -> tuple[str, int | None]:
         """Add a series file's panels; returns (message, index of the first one added)."""

@@ -71,6 +71,8 @@ class Sitting:
     entries: list[Entry] = field(default_factory=list)
     current: int | None = None
     """Index of the entry the form is linked to (its accepted edits update it), or None."""
+    unsaved: bool = False
+    """True when the kept panels changed since the series was last saved (or loaded)."""
 
     def keep(self, data: dict[str, Any], note: str = "") -> int:
         """Add a copy of ``data`` as a new entry and return its index.
@@ -80,12 +82,14 @@ class Sitting:
         """
         self.entries.append(Entry(dict(data), note))
         self.current = None
+        self.unsaved = True
         return len(self.entries) - 1
 
     def update_current(self, data: dict[str, Any]) -> None:
         """The linked entry takes the form's accepted contents."""
-        if self.current is not None:
+        if self.current is not None and self.entries[self.current].data != data:
             self.entries[self.current].data = dict(data)
+            self.unsaved = True
 
     def move(self, step: int) -> Entry | None:
         """Link the form to the entry ``step`` places away; None at either end."""
@@ -99,13 +103,23 @@ class Sitting:
         self.current = target
         return self.entries[target]
 
-    def remove(self, index: int) -> None:
-        del self.entries[index]
+    def remove(self, index: int) -> Entry:
+        """Take the entry out of the series and return it (for undo)."""
+        entry = self.entries.pop(index)
+        self.unsaved = True
         if self.current is not None:
             if self.current == index:
                 self.current = None
             elif self.current > index:
                 self.current -= 1
+        return entry
+
+    def insert(self, index: int, entry: Entry) -> None:
+        """Put a removed entry back where it was."""
+        self.entries.insert(index, entry)
+        self.unsaved = True
+        if self.current is not None and self.current >= index:
+            self.current += 1
 
 
 def demo_entries() -> list[Entry]:

@@ -7,3 +7,11 @@ import pytest
 def _colour(monkeypatch):
     """Tests start with colour on, whatever the shell that runs them says."""
     monkeypatch.delenv("NO_COLOR", raising=False)
+
+
+@pytest.fixture(autouse=True)
+def config_home(monkeypatch, tmp_path_factory):
+    """Each test has its own settings directory: the user's own file is never read or written."""
+    home = tmp_path_factory.mktemp("config")
+    monkeypatch.setenv("XDG_CONFIG_HOME", str(home))
+    return home

@@ -5,7 +5,7 @@ from __future__ import annotations
 import pytest
 from pydantic import ValidationError
 from textual.widgets import Input
-from tui_helpers import FIRST, PANELS, key_in, processes_line, replace_value, trust_line
+from tui_helpers import PANELS, key_in, processes_line, replace_value, trust_line
 
 import acidbase
 from acidbase.fields import NUMERIC
@@ -21,29 +21,31 @@ async def test_focus_starts_on_ph():
         assert app.focused.id == "ph"
 
 
-async def test_tab_follows_the_order_a_blood_gas_report_prints():
-    """pH, pCO2, HCO3-, Na+, Cl-, then the sample, then the optional values in field order."""
+#: The form's order: the gas as the analyser prints it, FiO2, the sample, the electrolytes.
+PRINTOUT = ["ph", "pco2", "po2", "hco3", "fio2", "sample_type", "hco3_source",
+            "na", "k", "cl", "ica", "lactate", "glucose", "hb"]
+
+
+async def test_tab_follows_the_printout_order_with_no_extra_stops():
+    """pH, pCO2, pO2, HCO3-, FiO2, sample, electrolytes, every other value, then time and ids."""
     app = make_app()
     async with app.run_test(size=(80, 24)) as pilot:
         seen = [app.focused.id]
-        for _ in range(8 + len(NUMERIC) - 5):
+        for _ in range(len(NUMERIC) + 2 + 3 - 1):
             await pilot.press("tab")
             seen.append(app.focused.id)
-        optional = [s.name for s in NUMERIC if s.name not in FIRST]
-        assert seen[:7] == ["ph", "pco2", "hco3", "na", "cl", "sample_type", "hco3_source"]
-        # the fold's title comes next (a widget without an id), then the optional fields
-        assert seen[8:8 + len(optional)] == optional
+        rest = [s.name for s in NUMERIC if s.name not in PRINTOUT]
+        assert seen == [*PRINTOUT, *rest, "collected_at", "patient_id", "sample_id"]
         await pilot.press("shift+tab")
-        assert app.focused.id == optional[-1]
+        assert app.focused.id == "patient_id"
 
 
-async def test_folding_takes_the_optional_values_out_of_the_tab_order():
+async def test_folding_takes_the_other_values_out_of_the_tab_order():
     app = make_app()
     async with app.run_test(size=(80, 24)) as pilot:
         await pilot.press("f3")
-        for _ in range(7):
+        for _ in range(len(PRINTOUT)):
             await pilot.press("tab")
-        await pilot.press("tab")
         assert app.focused.id == "collected_at"
 
 
@@ -95,7 +97,8 @@ async def test_the_reading_shows_trust_then_processes_then_derived_values():
                                                            "Derived values"]
         # compensation against its expected range, from the finding's own text:
         # Winter's formula (Albert, Dell & Winters 1967): 1.5 x 14.0 + 8 +/- 2 = 27.0-31.0
-        assert any("pCO2 29 mm[Hg] within 27.0-31.0" in line for line in lines)
+        # (on screen the unit is written as people write it: mmHg)
+        assert any("pCO2 29 mmHg within 27.0-31.0" in line for line in lines)
         # the derived values come after the processes heading: anion gap 140 - (104 + 14) = 22
         # (common practice, no source: the plain gap without K+)
         derived = lines[heads[2]:]
@@ -113,9 +116,12 @@ async def test_a_refused_value_shows_the_engines_message_and_keeps_the_reading_s
         assert field.has_class("-refused")
         shown = str(field.query_one(".field-message").render())
         assert shown == field.message
+        # the app's own words, from the engine's range (8-200 mm[Hg], acidbase.fields):
+        # the value would be ordinary in kPa, so the key that switches is named
         with pytest.raises(ValidationError) as refused:
             acidbase.Panel(ph=7.25, pco2="5.3", hco3=25.7, na=140, cl=104)
-        assert shown == f"refused: {acidbase.describe(refused.value)[0]}"
+        low, high = (refused.value.errors()[0]["ctx"][k] for k in ("low", "high"))
+        assert shown == f"refused: not in {low:g}-{high:g} mmHg; press F2 for kPa"
         pane = app.screen.query_one(ReadingPane)
         assert pane.stale
         assert str(pane.query_one("#reading-state").render()).startswith("STALE")
@@ -136,7 +142,7 @@ async def test_switching_the_unit_reads_the_typed_number_in_the_new_unit():
         reference = app.screen.query_one(ReadingPane).reading
         await replace_value(pilot, "pco2", "5.33")
         assert app.screen.query_one("#field-pco2").has_class("-refused")
-        await pilot.press("f2")
+        await pilot.press("f2")  # a refused number: nothing to convert, no question
         await pilot.pause()
         field = app.screen.query_one("#field-pco2", ValueField)
         assert field.unit == "kPa"
@@ -155,6 +161,7 @@ async def test_a_field_with_one_unit_says_so_instead_of_switching():
         await pilot.press("f2")
         await pilot.pause()
         assert app.screen.query_one("#field-ph", ValueField).unit == "[pH]"
+        assert "[pH]" not in str(app.screen.query_one("#status").render())
         assert "one unit" in str(app.screen.query_one("#status").render())
 
 
@@ -164,7 +171,7 @@ async def test_sample_type_is_chosen_with_the_arrow_keys():
         await key_in(pilot, PANELS["normal"])
         codes = [f.code for f in app.screen.query_one(ReadingPane).reading.findings]
         assert "T-SAMPLE-UNKNOWN" in codes
-        await pilot.press("tab", "right")  # from Cl- to the sample type: arterial
+        await pilot.press(*["shift+tab"] * 4, "right")  # Cl-, K+, Na+, HCO3- source: sample
         await pilot.pause()
         assert app.focused.id == "sample_type" and app.focused.value == "arterial"
         reading = app.screen.query_one(ReadingPane).reading

@@ -8,7 +8,7 @@ from tui_helpers import PANELS, key_in
 import acidbase
 from tui.app import make_app
 from tui.screens.help import PLACES, help_lines, key_words
-from tui.widgets.chrome import CautionBar
+from tui.widgets.chrome import SHORT_CAUTION, CautionBar
 from tui.widgets.plane import BAND_MARKS, POINT, draw
 
 
@@ -69,7 +69,7 @@ async def _caution_shown(app) -> bool:
     region = bar.region
     screen = app.screen.region
     text = str(bar.render())
-    return (text == acidbase.CAUTION and bar.display and region.height >= 1
+    return (text in (SHORT_CAUTION, acidbase.CAUTION) and bar.display and region.height >= 1
             and screen.contains_region(region))
 
 
@@ -92,13 +92,19 @@ async def test_the_caution_is_on_every_screen(size):
         assert await _caution_shown(app), "finding"
 
 
-async def test_the_caution_fits_whole_at_80_by_24():
-    """Four lines at 80 columns: every word of the caution is on the screen."""
+async def test_the_caution_costs_at_most_two_rows_at_80_by_24_and_f1_shows_it_in_full():
     app = make_app()
-    async with app.run_test(size=(80, 24)):
+    async with app.run_test(size=(80, 24)) as pilot:
         bar = app.screen.query_one(CautionBar)
-        assert bar.region.height == 4
+        assert str(bar.render()) == SHORT_CAUTION
+        assert 1 <= bar.region.height <= 2
         assert bar.region.bottom <= 23  # above the footer
+        # the short text keeps the message: support, not replacement; no treatment advice
+        for words in ("never replaces", "licensed clinicians", "no treatment advice", "F1"):
+            assert words in SHORT_CAUTION
+        await pilot.press("f1")
+        await pilot.pause()
+        assert str(app.screen.query_one("#full-caution").render()) == acidbase.CAUTION
 
 
 async def test_help_opens_from_a_field_and_closes_with_escape():

@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import csv
+import re
+from datetime import datetime
 
 import pytest
 from textual.widgets import Input
@@ -11,7 +13,6 @@ from tui_helpers import PANELS, key_in, processes_line, replace_value
 import acidbase
 from acidbase.demo import DEMO_PANELS
 from acidbase.fields import NUMERIC, TEXT_FIELDS
-from acidbase.report import as_markdown, as_text
 from tui.app import make_app
 from tui.screens.compare import CompareScreen, CompareTable
 from tui.screens.series import SeriesScreen, SeriesTable
@@ -83,7 +84,7 @@ async def test_compare_shows_two_panels_side_by_side_with_their_differences():
         table = app.screen.query_one(CompareTable)
         rows = {str(table.get_row_at(i)[0]): [str(c) for c in table.get_row_at(i)[1:]]
                 for i in range(table.row_count)}
-        assert rows["pH"] == ["7.25", "7.33", "+0.08", "[pH]"]
+        assert rows["pH"] == ["7.25", "7.33", "+0.08", ""]  # pH has no unit to show
         assert rows["HCO3-"] == ["25.7", "31", "+5.3", "mmol/L"]
         assert rows["consistency"] == ["consistent", "consistent", "same", ""]
         words = str(app.screen.query_one("#compare-processes").render())
@@ -142,7 +143,7 @@ async def test_saving_the_series_and_loading_it_back_gives_the_same_readings(tmp
         await keep_two(pilot)
         await pilot.press("f6")  # open the second kept panel
         await replace_value(pilot, "pco2", "8")  # 8 kPa = 60.0 mm[Hg]
-        await pilot.press("f2")  # the second panel's pCO2 is now read in kPa
+        await pilot.press("f2", "r")  # reinterpret: the second panel's pCO2 is read in kPa
         await pilot.pause()
         assert app.sitting.entries[1].data["pco2_unit"] == "kPa"
         before = [acidbase.interpret(e.panel()) for e in app.sitting.entries]
@@ -172,17 +173,135 @@ async def test_saving_the_series_and_loading_it_back_gives_the_same_readings(tmp
         assert processes_line(app) == "Processes: respiratory acidosis (acute, primary)"
 
 
-@pytest.mark.parametrize(("steps", "render"), [(0, as_text), (1, as_markdown)])
-async def test_saving_the_reading_writes_the_librarys_report(tmp_path, monkeypatch, steps,
-                                                            render):
+async def key_in_labelled(pilot) -> None:
+    """The mixed panel with pCO2 in kPa, and the patient, sample and time filled in."""
+    await key_in(pilot, PANELS["mixed"])
+    await replace_value(pilot, "pco2", "5.33")  # 5.33 kPa = 40.0 mm[Hg] (UCUM factor)
+    await pilot.press("f2")  # refused as mmHg: F2 reads the typed number in kPa, unasked
+    for name, text in (("collected_at", "2026-11-30T21:40"), ("patient_id", "P-0042"),
+                       ("sample_id", "S 17/a")):
+        await replace_value(pilot, name, text)
+
+
+@pytest.mark.parametrize(("steps", "markdown"), [(0, False), (1, True)])
+async def test_the_report_for_the_chart_says_whose_when_and_with_what(tmp_path, monkeypatch,
+                                                                      steps, markdown):
     monkeypatch.chdir(tmp_path)
-    path = tmp_path / "r"
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in_labelled(pilot)
+        reading = app.screen.query_one(ReadingPane).reading
+        await save_as(pilot, steps, "r")
+    text = (tmp_path / "r").read_text(encoding="utf-8")
+    assert all(len(line) <= 80 for line in text.splitlines() if not line.startswith("|"))
+    flat = " ".join(text.split())
+    for words in ("P-0042", "S 17/a", "2026-11-30T21:40", f"acidbase {acidbase.__version__}",
+                  "anion_gap_high = 12.0", "pCO2 5.33 kPa", "pH 7.20 [pH]", "Na+ 140 mmol/L"):
+        assert words in flat, words
+    read_at = re.search(r"Read at:\W* (\S+)", text).group(1)
+    assert datetime.fromisoformat(read_at).tzinfo is not None
+    # the reading is the library's: every finding, and the full caution
+    for f in reading.findings:
+        assert f.code in flat
+    assert " ".join(acidbase.CAUTION.split()) in flat.replace("> ", "")
+    assert reading.inputs["pco2"]["value"] == pytest.approx(40.0, abs=0.05)
+
+
+async def test_a_report_is_not_saved_while_the_form_holds_a_refused_value(tmp_path,
+                                                                        monkeypatch):
+    monkeypatch.chdir(tmp_path)
     app = make_app()
     async with app.run_test(size=(80, 24)) as pilot:
         await key_in(pilot, PANELS["mixed"])
-        await save_as(pilot, steps, "r")
-    panel = acidbase.Panel(**dict(zip(("ph", "pco2", "hco3", "na", "cl"), PANELS["mixed"])))
-    assert path.read_text(encoding="utf-8") == render(acidbase.interpret(panel))
+        await replace_value(pilot, "na", "20")  # below the accepted range: refused
+        await save_as(pilot, 0, "r")
+        assert "Not saved" in str(app.screen.query_one("#status").render())
+    assert not (tmp_path / "r").exists()
+
+
+async def test_the_file_name_offered_carries_the_sample_id_and_the_time():
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in_labelled(pilot)
+        await pilot.press("ctrl+s")
+        await pilot.pause()
+        name = app.screen.query_one("#path").value
+        assert re.fullmatch(r"acidbase-S-17-a-\d{8}-\d{4}\.txt", name), name
+
+
+async def test_an_existing_file_is_replaced_only_after_a_yes(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "r").write_text("kept\n", encoding="utf-8")
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in(pilot, PANELS["mixed"])
+        await save_as(pilot, 0, "r")
+        assert type(app.screen).__name__ == "ConfirmScreen"
+        await pilot.press("n")
+        await pilot.pause()
+        assert (tmp_path / "r").read_text(encoding="utf-8") == "kept\n"
+        await pilot.press("enter")  # still in the save dialog: ask again, say yes
+        await pilot.pause()
+        await pilot.press("y")
+        await pilot.pause()
+    assert (tmp_path / "r").read_text(encoding="utf-8").startswith("acidbase reading")
+
+
+async def test_quitting_with_unsaved_kept_panels_asks_first():
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in(pilot, PANELS["normal"])
+        await pilot.press("f5", "ctrl+q")
+        await pilot.pause()
+        assert type(app.screen).__name__ == "ConfirmScreen"
+        assert "1 kept panels are not saved" in str(app.screen.query_one("#question").render())
+        await pilot.press("escape")
+        await pilot.pause()
+        assert app.is_running and app.focused.id == "cl"
+        await pilot.press("ctrl+q", "y")
+        await pilot.pause()
+        assert not app.is_running
+
+
+async def test_quitting_without_kept_panels_or_after_saving_them_asks_nothing(tmp_path,
+                                                                             monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in(pilot, PANELS["normal"])
+        await pilot.press("f5")
+        await save_as(pilot, 2, "s.csv")
+        await pilot.press("ctrl+q")
+        await pilot.pause()
+        assert not app.is_running
+
+
+async def test_ctrl_z_brings_back_a_form_cleared_by_ctrl_n():
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in(pilot, PANELS["chronic respiratory acidosis"])
+        before = app.screen.form.data()
+        await pilot.press("ctrl+n")
+        await pilot.pause()
+        assert app.screen.query_one("#ph", Input).value == ""
+        await pilot.press("ctrl+z")
+        await pilot.pause()
+        assert app.screen.form.data() == before
+        assert processes_line(app) == "Processes: respiratory acidosis (chronic, primary)"
+
+
+async def test_ctrl_z_puts_back_a_panel_removed_from_the_series():
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await keep_two(pilot)
+        kept = [dict(e.data) for e in app.sitting.entries]
+        await pilot.press("f9", "delete")
+        await pilot.pause()
+        assert len(app.sitting.entries) == 1
+        await pilot.press("ctrl+z")
+        await pilot.pause()
+        assert [e.data for e in app.sitting.entries] == kept
+        assert app.screen.query_one(SeriesTable).row_count == 2
 
 
 async def test_the_demo_opens_with_the_demo_panels_kept():
@@ -222,3 +341,15 @@ def test_columns_that_are_not_ours_are_named_and_not_read(tmp_path):
     entries, notes = read_csv(path)
     assert notes == ["columns not read: ward"]
     assert entries[0].panel() is not None
+
+
+async def test_ctrl_y_copies_the_report_for_the_chart():
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in_labelled(pilot)
+        await pilot.press("ctrl+y")
+        await pilot.pause()
+        copied = app.clipboard
+        assert copied.startswith("acidbase reading for the chart")
+        assert "P-0042" in copied and "pCO2 5.33 kPa" in copied
+        assert " ".join(acidbase.CAUTION.split()) in " ".join(copied.split())

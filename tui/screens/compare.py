@@ -14,6 +14,7 @@ from acidbase.fields import NUMERIC
 from acidbase.report import DERIVED_LABELS
 from acidbase.rules import number_text
 
+from ..labels import unit_label
 from ..widgets.chrome import CautionBar, KeyLine, PlainTable, TitleLine
 
 if TYPE_CHECKING:
@@ -93,7 +94,7 @@ class CompareScreen(Screen[None]):
         for spec in NUMERIC:
             va, vb = ca.get(spec.name), cb.get(spec.name)
             if va is not None or vb is not None:
-                table.add_row(spec.title, _num(va), _num(vb), _change(va, vb), spec.unit)
+                table.add_row(spec.title, _num(va), _num(vb), _change(va, vb), unit_label(spec.unit))
         sa = ia.consistency.status if ia and ia.consistency else "refused"
         sb = ib.consistency.status if ib and ib.consistency else "refused"
         table.add_row("consistency", sa, sb, "same" if sa == sb else "changed", "")
@@ -101,7 +102,7 @@ class CompareScreen(Screen[None]):
             va = ia.derived.get(key) if ia else None
             vb = ib.derived.get(key) if ib else None
             if va is not None or vb is not None:
-                table.add_row(label, _num(va, fmt), _num(vb, fmt), _change(va, vb, fmt), unit)
+                table.add_row(label, _num(va, fmt), _num(vb, fmt), _change(va, vb, fmt), unit_label(unit))
         self.query_one("#compare-processes", Static).update("\n".join(self._words(ia, ib)))
 
     @staticmethod

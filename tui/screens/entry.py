@@ -1,4 +1,11 @@
-"""The entry screen: the form on the left, the reading on the right, read as you type."""
+"""The entry screen: the form on the left, the reading on the right, read as you type.
+
+Every key of this screen is a priority binding: Tab, Shift+Tab and Enter (the
+number pad's too) move the focus, and F2 switches the focused field's unit, when the
+key is taken from the queue, before the next key is handed to a field.  So keys
+typed in one burst land in (and act on) the field that had the focus when each was
+typed.
+"""
 
 from __future__ import annotations
 
@@ -15,29 +22,15 @@ from textual.widgets import Input, OptionList, Static
 import acidbase
 from acidbase.fields import BY_NAME, REQUIRED
 
+from ..labels import unit_label, with_unit
 from ..sitting import Entry
 from ..widgets.chrome import CautionBar, KeyLine, TitleLine
-from ..widgets.form import EntryForm, FoldTitle, MoreValues, ValueField
-from ..widgets.reading import FindingList, ReadingPane
+from ..widgets.form import ChoiceField, EntryForm, MoreValues, ValueField
+from ..widgets.reading import FindingList, ReadingPane, VerdictLine, verdict
+from ..words import f2_hint, problems_by_field
 
 if TYPE_CHECKING:
     from ..app import AcidBaseApp
-
-
-def problems_by_field(error: ValidationError) -> tuple[dict[str, list[str]], list[str]]:
-    """The engine's messages keyed by field ("panel" for the whole), and the missing fields.
-
-    ``acidbase.describe`` gives one line per error, in the order of ``errors()``.
-    """
-    by_field: dict[str, list[str]] = {}
-    missing: list[str] = []
-    for e, line in zip(error.errors(include_url=False), acidbase.describe(error)):
-        name = str(e["loc"][0]) if e["loc"] else "panel"
-        if e["type"] == "missing":
-            missing.append(name)
-        else:
-            by_field.setdefault(name, []).append(line)
-    return by_field, missing
 
 
 def _titles(names: list[str]) -> str:
@@ -48,31 +41,44 @@ class EntryScreen(Screen[None]):
     """Key in a panel; the reading follows every accepted change."""
 
     BINDINGS: ClassVar[list[BindingType]] = [
-        Binding("f2", "unit", "unit", tooltip="Read the focused value in its next unit "
-                "(the number stays as typed; the engine reads it in the unit shown).", id="unit"),
+        Binding("tab", "next_field", "next field", tooltip="Next field (also Enter).",
+                id="next-field", show=False, priority=True),
+        Binding("shift+tab", "previous_field", "previous field", tooltip="Previous field.",
+                id="previous-field", show=False, priority=True),
+        # The number pad's Enter arrives as Enter, as ESC O M (read as Enter) or, from some
+        # terminals and tmux, as a line feed (Ctrl+J).
+        Binding("enter,ctrl+j", "enter_next", "next field", tooltip="In the form: next "
+                "field, like Tab (the number pad's Enter too).", id="enter-next", show=False,
+                priority=True),
+        Binding("f2", "unit", "unit", tooltip="Switch the focused value's unit; a filled "
+                "value asks: convert it, or read the number in the new unit.", id="unit", priority=True),
         Binding("f3", "fold", "fold", tooltip="Fold or unfold the group of more values.",
-                id="fold"),
+                id="fold", show=False, priority=True),
         Binding("f4", "plane", "plane", tooltip="Show the panel on the pCO2-HCO3- plane with "
-                "the expected band of each simple disorder.", id="plane"),
+                "the expected band of each simple disorder.", id="plane", priority=True),
         Binding("f5", "keep", "keep", tooltip="Keep a copy of this panel in the series; the "
-                "form stays filled for the next panel.", id="keep"),
+                "form stays filled for the next panel.", id="keep", priority=True),
         Binding("f6", "move(-1)", "previous", tooltip="Open the previous kept panel (its "
-                "accepted edits then update it).", id="previous", show=False),
+                "accepted edits then update it).", id="previous", show=False, priority=True),
         Binding("f7", "move(1)", "next", tooltip="Open the next kept panel.",
-                id="next", show=False),
+                id="next", show=False, priority=True),
         Binding("f8", "compare", "compare", tooltip="Compare this panel with the one before it, "
-                "side by side with the differences.", id="compare", show=False),
+                "side by side with the differences.", id="compare", show=False, priority=True),
         Binding("f9", "series", "series", tooltip="List the panels kept in this sitting.",
-                id="series"),
+                id="series", priority=True),
         Binding("ctrl+r", "reading", "reading", tooltip="Move between the form and the "
                 "reading (Enter on a finding opens its working and sources).", id="reading",
-                show=False),
-        Binding("ctrl+n", "new", "new", tooltip="Start a new, empty panel (kept panels stay).",
-                id="new", show=False),
-        Binding("ctrl+s", "save", "save", tooltip="Save the reading as text or Markdown, or "
-                "the series as CSV.", id="save"),
+                show=False, priority=True),
+        Binding("ctrl+n", "new", "new", tooltip="Start a new, empty panel (kept panels stay; "
+                "Ctrl+Z brings the cleared form back).", id="new", show=False, priority=True),
+        Binding("ctrl+z", "undo", "undo", tooltip="Bring back the form cleared by Ctrl+N.",
+                id="undo", show=False, priority=True),
+        Binding("ctrl+s", "save", "save", tooltip="Save the report for the chart (text or "
+                "Markdown), or the series as CSV.", id="save", priority=True),
+        Binding("ctrl+y", "copy", "copy", tooltip="Copy the report for the chart to the "
+                "clipboard (where the terminal allows it).", id="copy", show=False, priority=True),
         Binding("ctrl+o", "load", "load", tooltip="Load a series from a CSV file.", id="load",
-                show=False),
+                show=False, priority=True),
     ]
 
     #: At 100 columns and more the form widens so that long titles fit on one line.
@@ -80,12 +86,17 @@ class EntryScreen(Screen[None]):
 
     app: AcidBaseApp
 
+    def __init__(self) -> None:
+        super().__init__()
+        self._cleared: tuple[dict, int | None] | None = None
+
     def compose(self) -> ComposeResult:
         yield TitleLine(id="title")
         with Horizontal(id="body"):
-            yield EntryForm(id="form")
+            yield EntryForm(units=self.app.units, id="form")
             yield ReadingPane(id="reading")
         yield Static("", id="status", markup=False, classes="-empty")
+        yield VerdictLine(id="verdict")
         yield CautionBar()
         yield KeyLine([*self.BINDINGS, *self.app.BINDINGS])
 
@@ -106,31 +117,64 @@ class EntryScreen(Screen[None]):
             self.form.fill(self.app.initial_panel.model_dump(exclude_none=True))
         self.show_title()
 
+    # -- moving between fields -------------------------------------------------
+    def action_next_field(self) -> None:
+        self.focus_next()
+
+    def action_previous_field(self) -> None:
+        self.focus_previous()
+
+    def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
+        if action == "enter_next":
+            # Enter moves on in the form; elsewhere (the reading) it keeps its own meaning.
+            focused = self.focused
+            return isinstance(focused, (Input, ChoiceField)) and focused.screen is self
+        if action == "undo":
+            return self._cleared is not None
+        return True
+
+    def action_enter_next(self) -> None:
+        self.focus_next()
+
     # -- reading ---------------------------------------------------------------
     @on(EntryForm.Edited)
     def reread(self) -> None:
         """Validate the form with the engine and show the reading, or mark it stale."""
         data = self.form.data()
+        verdict_line = self.query_one(VerdictLine)
         try:
             panel = acidbase.Panel.model_validate(data)
         except ValidationError as e:
             by_field, missing = problems_by_field(e)
-            self.form.show_problems(by_field)
+            self.form.show_messages(self._with_hints(by_field))
             reasons = []
             if by_field:
-                reasons.append(f"Refused: {_titles(list(by_field))} (the engine's message is "
-                               "beside the field).")
+                reasons.append(f"Refused: {_titles(list(by_field))} (see under the field).")
             if missing:
                 reasons.append(f"Needed: {_titles(missing)}.")
             if self.pane.reading is None and not by_field:
                 reasons = [f"No reading yet: key in {_titles(missing)}."]
             self.pane.show(None, stale_because=" ".join(reasons))
+            verdict_line.show(verdict(self.pane.reading, stale=self.pane.stale)
+                              if self.pane.stale else verdict(None))
             self.app.panel = None
             return
-        self.form.show_problems({})
+        self.form.show_messages(self._with_hints({}))
         self.app.panel = panel
-        self.pane.show(acidbase.interpret(panel, self.app.settings))
+        reading = acidbase.interpret(panel, self.app.settings)
+        self.pane.show(reading)
+        verdict_line.show(verdict(reading))
         self.app.sitting.update_current(data)
+
+    def _with_hints(self, by_field: dict[str, list[str]]) -> dict[str, list[str]]:
+        """Add "check: press F2 for kPa?" under values also ordinary in another unit."""
+        out = dict(by_field)
+        for f in self.form.fields():
+            if f.text and f.spec.name not in by_field:
+                hint = f2_hint(f.spec.name, f.text, f.unit)
+                if hint:
+                    out[f.spec.name] = [f"check: {hint}?"]
+        return out
 
     def load_entry(self, entry: Entry) -> None:
         """Show a kept entry in the form; the reading starts afresh (nothing stale)."""
@@ -147,32 +191,73 @@ class EntryScreen(Screen[None]):
     def show_title(self) -> None:
         s = self.app.sitting
         if s.current is None:
-            where = "new panel, not kept (F5 keeps it)"
+            where = "new panel, not kept (F5 keeps)"
         else:
-            where = (f"kept panel {s.current + 1} of {len(s.entries)} (edits update it): "
+            where = (f"kept {s.current + 1} of {len(s.entries)} (edits update it): "
                      f"{s.entries[s.current].label()}")
+        unsaved = ", not saved" if s.unsaved and s.entries else ""
         self.query_one("#title", TitleLine).update(
-            f"acidbase - entry - {where} - series: {len(s.entries)} kept")
+            f"acidbase - {where} - {len(s.entries)} kept{unsaved}")
+
+    # -- units -------------------------------------------------------------------
+    def _focused_field(self) -> ValueField | None:
+        if self.focused is None:
+            return None
+        return next((w for w in self.focused.ancestors_with_self
+                     if isinstance(w, ValueField)), None)
+
+    def action_unit(self) -> None:
+        field = self._focused_field()
+        if field is None:
+            self.say("F2 switches the unit of the value that has the focus.")
+            return
+        new = field.next_unit_of()
+        if new is None:
+            unit = unit_label(field.unit)
+            self.say(f"{field.spec.title} has one unit" + (f": {unit}." if unit else "."))
+            return
+        if not field.text or field.has_class("-refused"):
+            # nothing to convert (or a refused number): the typed number is read in the new unit
+            self._switch(field, new)
+            return
+        try:
+            converted = acidbase.convert(field.spec.name, field.text, field.unit, new)
+            back = acidbase.convert(field.spec.name, field.text, new, field.unit)
+        except ValueError:
+            self._switch(field, new)
+            return
+        from .confirm import UnitScreen
+
+        shown = f"{converted:.4g}"
+        old = with_unit(field.text, field.unit)
+        self.app.push_screen(UnitScreen(
+            f"{field.spec.title} {old}: switch to {unit_label(new)}?",
+            f"{with_unit(shown, new)} (the same {field.spec.title})",
+            f"{with_unit(field.text, new)} (= {with_unit(f'{back:.4g}', field.unit)})",
+            old), lambda answer: self._unit_answer(field, new, shown, answer))
+
+    def _unit_answer(self, field: ValueField, new: str, shown: str, answer: str | None) -> None:
+        if answer == "convert":
+            self._switch(field, new, shown)
+        elif answer == "reinterpret":
+            self._switch(field, new)
+        else:
+            self.say(f"{field.spec.title} stays {with_unit(field.text, field.unit)}.")
+        field.input.focus()
+
+    def _switch(self, field: ValueField, unit: str, value: str | None = None) -> None:
+        field.set_unit(unit, value)
+        self.app.remember_unit(field.spec.name, unit)
+        what = f"{with_unit(value, unit)} (converted)" if value is not None else \
+            f"read in {unit_label(unit)}"
+        self.say(f"{field.spec.title}: {what}; new panels use {unit_label(unit)} too.")
 
     # -- actions ---------------------------------------------------------------
-    def action_unit(self) -> None:
-        field = None
-        if self.focused is not None:
-            field = next((w for w in self.focused.ancestors_with_self
-                          if isinstance(w, ValueField)), None)
-        if field is None:
-            self.say("F2 switches the unit of the value field that has the focus.")
-            return
-        if not field.next_unit():
-            self.say(f"{field.spec.title} has one unit: {field.spec.unit}.")
-        else:
-            self.say(f"{field.spec.title} is now read in {field.unit}.")
-
     def action_fold(self) -> None:
         more = self.query_one(MoreValues)
         more.folded = not more.folded
         if more.folded and self.focused is not None and more in self.focused.ancestors:
-            self.query_one(FoldTitle).focus()
+            self.query_one("#collected_at", Input).focus()
 
     def action_keep(self) -> None:
         data = self.form.data()
@@ -192,11 +277,26 @@ class EntryScreen(Screen[None]):
         self.load_entry(entry)
 
     def action_new(self) -> None:
+        data = self.form.data()
+        filled = any(k in data for k in BY_NAME)
+        self._cleared = (data, self.app.sitting.current) if filled else None
         self.app.sitting.current = None
         self.pane.forget()
         self.form.fill({})
         self.query_one("#ph", Input).focus()
-        self.say("New panel.")
+        self.say("New panel (units as chosen). Ctrl+Z brings the cleared one back."
+                 if filled else "New panel.")
+
+    def action_undo(self) -> None:
+        if self._cleared is None:
+            return
+        data, current = self._cleared
+        self._cleared = None
+        s = self.app.sitting
+        s.current = current if current is not None and current < len(s.entries) else None
+        self.pane.forget()
+        self.form.fill(data)
+        self.say("The cleared panel is back.")
 
     def action_reading(self) -> None:
         findings = self.query_one(FindingList)
@@ -243,16 +343,39 @@ class EntryScreen(Screen[None]):
         b = a - 1 if a > 0 else a + 1
         self.app.push_screen(CompareScreen(b, a))
 
+    # -- files -------------------------------------------------------------------
+    def _report_refused(self) -> str:
+        if self.pane.reading is None:
+            return "No reading yet: nothing to report."
+        if self.app.panel is None:
+            return ("The form holds a refused or missing value: correct it first, so that "
+                    "the report's values and reading agree.")
+        return ""
+
+    def action_copy(self) -> None:
+        why = self._report_refused()
+        if why:
+            self.say(f"Not copied. {why}")
+            return
+        self.app.copy_to_clipboard(self.app.report_text(self.pane.reading, self.form.data()))
+        self.say("The report is on the clipboard where the terminal allows it (OSC 52); "
+                 "Ctrl+S saves it to a file.")
+
     def action_save(self) -> None:
         from .files import SaveScreen
 
-        self.app.push_screen(SaveScreen(), self._save)
+        self.app.push_screen(SaveScreen(self.app.default_names(self.form.data())), self._save)
 
-    def _save(self, choice: tuple[str, str] | None) -> None:
+    def _save(self, choice: tuple[str, str, bool] | None) -> None:
         if choice is None:
             return
-        kind, path = choice
-        self.say(self.app.save(kind, path, self.pane.reading))
+        kind, path, replace = choice
+        if kind != "csv":
+            why = self._report_refused()
+            if why:
+                self.say(f"Not saved. {why}")
+                return
+        self.say(self.app.save(kind, path, self.pane.reading, self.form.data(), replace))
 
     def action_load(self) -> None:
         from .files import LoadScreen
@@ -267,4 +390,3 @@ class EntryScreen(Screen[None]):
             self.app.sitting.current = first
             self.load_entry(self.app.sitting.entries[first])
         self.say(message)
-

@@ -11,9 +11,12 @@ from textual.containers import VerticalScroll
 from textual.screen import Screen
 from textual.widgets import Static
 
+import acidbase
+
 from ..widgets.chrome import CautionBar, KeyLine, TitleLine, key_words
 from ..widgets.form import ChoiceField
 from .compare import CompareScreen
+from .confirm import ConfirmScreen, UnitScreen
 from .entry import EntryScreen
 from .files import LoadScreen, SaveScreen
 from .finding import FindingScreen
@@ -23,9 +26,7 @@ from .series import SeriesScreen
 #: Keys that Textual's own widgets give (not bindings of ours), per place.
 MOVING: dict[str, list[tuple[str, str]]] = {
     "Entry": [
-        ("Tab / Shift+Tab", ("next / previous field: pH, pCO2, HCO3-, Na+, Cl-, sample, "
-                             "HCO3- source, more values, time and ids")),
-        ("Enter", "on 'More values': fold or unfold it; on a finding: open it"),
+        ("Enter", "in the reading: open the highlighted finding"),
         ("Up / Down", "in the reading: move between findings"),
     ],
     "Series": [("Up / Down", "move between panels")],
@@ -34,7 +35,8 @@ MOVING: dict[str, list[tuple[str, str]]] = {
 }
 
 PLACES: tuple[tuple[str, list[Binding]], ...] = (
-    ("Entry", EntryScreen.BINDINGS),
+    (("Entry (the form: pH, pCO2, pO2, HCO3-, FiO2, sample, HCO3- source, electrolytes, "
+      "more values, time and ids)"), EntryScreen.BINDINGS),
     ("Sample, HCO3- source and other answer fields", ChoiceField.BINDINGS),
     ("Finding", FindingScreen.BINDINGS),
     ("Plane", PlaneScreen.BINDINGS),
@@ -42,6 +44,8 @@ PLACES: tuple[tuple[str, list[Binding]], ...] = (
     ("Compare", CompareScreen.BINDINGS),
     ("Save", SaveScreen.BINDINGS),
     ("Load", LoadScreen.BINDINGS),
+    ("Questions (quit, replace a file)", ConfirmScreen.BINDINGS),
+    ("Switching the unit of a filled value", UnitScreen.BINDINGS),
 )
 
 
@@ -55,10 +59,10 @@ def help_lines(everywhere: list[Binding], width: int = 76) -> list[str]:
     for b in everywhere:
         lines += _row(key_words(b.key), b.tooltip or b.description, width)
     for place, bindings in PLACES:
-        lines += ["", place]
+        lines += ["", *textwrap.wrap(place, width=width)]
         for b in bindings:
             lines += _row(key_words(b.key), b.tooltip or b.description, width)
-        for keys, text in MOVING.get(place, []):
+        for keys, text in MOVING.get(place.split(" (")[0], []):
             lines += _row(keys, text, width)
     return lines
 
@@ -70,8 +74,10 @@ class HelpScreen(Screen[None]):
                         id="help-back")]
 
     def compose(self) -> ComposeResult:
-        yield TitleLine("acidbase - help - every key (printable keys always go into the field)")
+        yield TitleLine("acidbase - help - the caution and every key")
         with VerticalScroll(id="help"):
+            yield Static(acidbase.CAUTION, markup=False, id="full-caution",
+                         classes="finding-title")
             yield Static("\n".join(help_lines(self.app.BINDINGS)), markup=False, id="help-text")
         yield CautionBar()
         yield KeyLine([*self.BINDINGS, *self.app.BINDINGS])

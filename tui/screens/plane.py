@@ -12,6 +12,7 @@ from textual.widgets import Static
 import acidbase
 from acidbase.fields import BY_NAME
 
+from ..labels import on_screen
 from ..widgets.chrome import CautionBar, KeyLine, TitleLine
 from ..widgets.plane import PlaneView, legend_lines
 
@@ -56,4 +57,5 @@ class PlaneScreen(Screen[None]):
     def show_legend(self) -> None:
         legend = self.query_one(PlaneView).drawing().legend
         width = self.query_one("#legend", Static).content_region.width or 78
-        self.query_one("#legend", Static).update("\n".join(legend_lines(legend, width)))
+        self.query_one("#legend", Static).update(
+            on_screen("\n".join(legend_lines(legend, width))))

@@ -33,11 +33,17 @@ class SeriesScreen(Screen[int | None]):
         Binding("f8", "compare", "compare", tooltip="Compare the highlighted panel with the "
                 "one before it.", id="series-compare"),
         Binding("delete", "remove", "remove", tooltip="Remove the highlighted panel from the "
-                "series.", id="series-remove"),
+                "series (Ctrl+Z puts it back).", id="series-remove"),
+        Binding("ctrl+z", "undo", "undo", tooltip="Put back the panel removed last.",
+                id="series-undo"),
         Binding("escape,f9", "back", "back", tooltip="Back to the entry.", id="series-back"),
     ]
 
     app: AcidBaseApp
+
+    def __init__(self) -> None:
+        super().__init__()
+        self._removed: list[tuple[int, object]] = []
 
     def compose(self) -> ComposeResult:
         yield TitleLine("acidbase - series - the panels kept in this sitting")
@@ -92,8 +98,20 @@ class SeriesScreen(Screen[int | None]):
     def action_remove(self) -> None:
         row = self._row()
         if row is not None:
-            self.app.sitting.remove(row)
+            self._removed.append((row, self.app.sitting.remove(row)))
             self.fill()
+            self.query_one("#series-note", Static).update(
+                f"Panel {row + 1} removed: Ctrl+Z puts it back.")
+
+    def action_undo(self) -> None:
+        if not self._removed:
+            self.query_one("#series-note", Static).update("Nothing to put back.")
+            return
+        row, entry = self._removed.pop()
+        self.app.sitting.insert(row, entry)  # type: ignore[arg-type]
+        self.fill()
+        self.query_one(SeriesTable).move_cursor(row=row)
+        self.query_one("#series-note", Static).update(f"Panel {row + 1} is back.")
 
     def action_compare(self) -> None:
         from .compare import CompareScreen

@@ -8,12 +8,18 @@ from textual.widgets import DataTable, Static
 
 import acidbase
 
+#: The caution in at most two rows at 80 columns; F1 shows it in full (``acidbase.CAUTION``),
+#: and every saved report carries the full text.
+SHORT_CAUTION = ("Caution: supports, never replaces, licensed clinicians and the local "
+                 "laboratory's protocols; no treatment advice. F1: the full caution.")
+
 
 class CautionBar(Static):
-    """The library's caution, in full, on every screen."""
+    """The caution on every screen: short here, in full on the help screen (F1)."""
 
-    def __init__(self, **kwargs) -> None:
-        super().__init__(acidbase.CAUTION, markup=False, classes="caution", **kwargs)
+    def __init__(self, full: bool = False, **kwargs) -> None:
+        super().__init__(acidbase.CAUTION if full else SHORT_CAUTION, markup=False,
+                         classes="caution", **kwargs)
 
 
 class TitleLine(Static):

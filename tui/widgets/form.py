@@ -1,16 +1,22 @@
-"""The entry form: one row per panel field, in the order a blood-gas report prints.
+"""The entry form: the gas first, in the order the analyser prints it.
 
-Titles, units and the order come from ``acidbase.fields``; the form never
-checks a value itself.  It gathers what is typed into the mapping that
-``acidbase.Panel.model_validate`` reads, and shows beside each field the
-engine's message for a refused value.
+pH, pCO2, pO2, HCO3-, then FiO2, the sample type and the HCO3- source, then the
+electrolytes, then the rest (a group F3 folds away), then the time and the ids.
+Titles and accepted units come from ``acidbase.fields``; the form never checks a
+value itself.  It gathers what is typed into the mapping that
+``acidbase.Panel.model_validate`` reads, and shows under a field what the engine
+refused there (in the app's words) or that a value would also be ordinary in
+another unit.
+
+The focused row is marked twice, never by colour alone: a ``>`` before its title
+and its title in reverse video.
 """
 
 from __future__ import annotations
 
 from typing import Any, ClassVar
 
-from textual import on
+from textual import events, on
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import Horizontal, Vertical, VerticalScroll
@@ -19,10 +25,31 @@ from textual.reactive import reactive
 from textual.widget import Widget
 from textual.widgets import Input, Label, Static
 
-from acidbase.fields import HCO3_SOURCES, NUMERIC, SAMPLE_TYPES, TEXT_FIELDS, FieldSpec
+from acidbase.fields import BY_NAME, HCO3_SOURCES, SAMPLE_TYPES, TEXT_FIELDS, FieldSpec
+
+from ..labels import AFTER_GAS, ELECTROLYTES, GAS, form_title, rest, unit_label
 
 #: Plain names for the text fields (they carry no chemistry), in the form's order.
 TEXT_TITLES = {"collected_at": "Collected", "patient_id": "Patient", "sample_id": "Sample id"}
+
+#: The focus mark before a row's title (a character, so it shows without colour).
+MARK = ">"
+
+
+def marked(title: str, focused: bool) -> str:
+    return f"{MARK if focused else ' '} {title}"
+
+
+class RowTitle(Label):
+    """A row's title; shows the focus mark while the row holds the focus."""
+
+    def __init__(self, title: str, **kwargs) -> None:
+        super().__init__(marked(title, False), markup=False, classes="field-title", **kwargs)
+        self.title = title
+
+    def mark(self, focused: bool) -> None:
+        self.update(marked(self.title, focused))
+        self.set_class(focused, "-focused")
 
 
 class ValueInput(Input):
@@ -30,14 +57,14 @@ class ValueInput(Input):
 
 
 class ValueField(Widget):
-    """One numeric field: title, value, unit, and the engine's message when refused.
+    """One numeric field: title, value, unit, and a message line when there is one.
 
-    A grid of three cells (title, value, unit) and, only while a value is refused, a
-    message across all three: few widgets per field keep each keystroke's layout cheap.
+    A grid of three cells (title, value, unit) and, only while there is something to
+    say, a message across all three: few widgets per field keep each keystroke cheap.
     """
 
     unit: reactive[str] = reactive("")
-    """The unit the typed number is read in (UCUM); F2 cycles it."""
+    """The unit the typed number is read in (UCUM); F2 switches it."""
 
     class UnitChanged(Message):
         """The unit of a field was switched."""
@@ -50,17 +77,18 @@ class ValueField(Widget):
         def control(self) -> ValueField:
             return self.field
 
-    def __init__(self, spec: FieldSpec) -> None:
+    def __init__(self, spec: FieldSpec, unit: str | None = None) -> None:
         super().__init__(id=f"field-{spec.name}", classes="field-row")
         self.spec = spec
         self._message = ""
-        self.set_reactive(ValueField.unit, spec.unit)
+        self.set_reactive(ValueField.unit, unit or spec.unit)
 
     def compose(self) -> ComposeResult:
-        yield Label(self.spec.title, classes="field-title", markup=False)
-        yield ValueInput(id=self.spec.name, compact=True, select_on_focus=False,
+        yield RowTitle(form_title(self.spec.name))
+        # Entering a filled field selects its text, so typing replaces the old value.
+        yield ValueInput(id=self.spec.name, compact=True, select_on_focus=True,
                          tooltip=self.spec.help)
-        yield Label(self.unit, classes="field-unit", markup=False)
+        yield Label(unit_label(self.unit), classes="field-unit", markup=False)
 
     def on_mount(self) -> None:
         self.input = self.query_one(ValueInput)
@@ -73,21 +101,27 @@ class ValueField(Widget):
 
     def watch_unit(self, unit: str) -> None:
         if self.is_mounted:
-            self._unit_label.update(unit)
+            self._unit_label.update(unit_label(unit))
 
-    def next_unit(self) -> bool:
-        """Read the typed number in the field's next unit; False when it has only one."""
+    def next_unit_of(self) -> str | None:
+        """The unit F2 would switch to; None when the field has only one."""
         units = self.spec.units
         if len(units) < 2:
-            return False
-        self.unit = units[(units.index(self.unit) + 1) % len(units)] if self.unit in units \
+            return None
+        return units[(units.index(self.unit) + 1) % len(units)] if self.unit in units \
             else units[0]
+
+    def set_unit(self, unit: str, value: str | None = None) -> None:
+        """Read the field in ``unit`` (and show ``value`` instead of the typed text)."""
+        with self.prevent(Input.Changed):
+            if value is not None:
+                self.input.value = value
+        self.unit = unit
         self.post_message(self.UnitChanged(self))
-        return True
 
     def show_message(self, lines: list[str]) -> None:
-        """Show the engine's messages for this field (none: clear)."""
-        text = "\n".join(f"refused: {line}" for line in lines)
+        """Show the lines under the field (none: clear).  Each line leads with its word."""
+        text = "\n".join(lines)
         if text != self._message:  # unchanged: no restyle, no new layout
             self._message = text
             if self._message_box is None:
@@ -95,16 +129,17 @@ class ValueField(Widget):
                 self.mount(self._message_box)
             else:
                 self._message_box.update(text)
-            self.set_class(bool(lines), "-refused")
+            self.set_class(bool(lines), "-message")
+            self.set_class(any(line.startswith("refused") for line in lines), "-refused")
 
     @property
     def message(self) -> str:
-        """The engine's messages shown beside the field ("" when none)."""
+        """What is shown under the field ("" when nothing)."""
         return self._message
 
 
 class ChoiceField(Widget, can_focus=True):
-    """A field with a few fixed answers, cycled with the arrow keys or space."""
+    """A field with a few fixed answers, stepped with the arrow keys or space."""
 
     BINDINGS: ClassVar[list[BindingType]] = [
         Binding("right,space", "step(1)", "next answer", show=False),
@@ -129,9 +164,9 @@ class ChoiceField(Widget, can_focus=True):
         self.set_reactive(ChoiceField.value, value)
 
     def render(self) -> str:
-        # The brackets mark focus in words and shapes, not by colour alone.
+        # The mark and the brackets show focus in shapes, not by colour alone.
         shown = f"< {self.value} >" if self.has_focus else f"  {self.value}  "
-        return f"{self.title:<10}{shown}"
+        return f"{marked(self.title, self.has_focus):<14}{shown}"
 
     def on_focus(self) -> None:
         self.refresh()
@@ -145,25 +180,17 @@ class ChoiceField(Widget, can_focus=True):
         self.post_message(self.Changed(self))
 
 
-class FoldTitle(Widget, can_focus=True):
-    """The title of the group of more values; Enter folds or unfolds it."""
-
-    BINDINGS: ClassVar[list[BindingType]] = [
-        Binding("enter,space", "fold", "fold", show=False),
-    ]
+class FoldTitle(Widget):
+    """The title of the group of more values (F3 folds it; never a stop for Tab)."""
 
     def render(self) -> str:
         group = self.parent
         folded = isinstance(group, MoreValues) and group.folded
-        return "+ More values (folded: F3)" if folded else "- More values (F3 folds)"
-
-    def action_fold(self) -> None:
-        if isinstance(self.parent, MoreValues):
-            self.parent.folded = not self.parent.folded
+        return "+ more values (F3 shows)" if folded else "- more values (F3 folds)"
 
 
 class MoreValues(Vertical):
-    """The optional values, as a group that can be folded away (then Tab skips them)."""
+    """The rest of the optional values, as a group that can be folded away."""
 
     folded: reactive[bool] = reactive(False)
 
@@ -178,32 +205,38 @@ class TextInput(Input):
 
 
 class EntryForm(VerticalScroll):
-    """All the panel's fields: the required ones, the sample, more values, the labels."""
+    """All the panel's fields, the gas first."""
 
     class Edited(Message):
         """Something in the form changed (a value, a unit or a choice)."""
 
+    def __init__(self, units: dict[str, str] | None = None, **kwargs) -> None:
+        super().__init__(**kwargs)
+        self.units = units if units is not None else {}
+        """The unit chosen for each field in this sitting (shared with the app)."""
+
+    def _field(self, name: str) -> ValueField:
+        return ValueField(BY_NAME[name], self.units.get(name))
+
     def compose(self) -> ComposeResult:
-        # Na+ and Cl- are optional (a bare gas is read) but stay in the first group, in the
-        # order a report prints them.
-        first = ("na", "cl")
-        required = [s for s in NUMERIC if s.required or s.name in first]
-        optional = [s for s in NUMERIC if not (s.required or s.name in first)]
-        for spec in required:
-            yield ValueField(spec)
+        for name in GAS + AFTER_GAS:
+            yield self._field(name)
         yield ChoiceField("sample_type", "Sample", SAMPLE_TYPES, "unknown")
         yield ChoiceField("hco3_source", "HCO3- from", HCO3_SOURCES, "unknown")
+        for name in ELECTROLYTES:
+            yield self._field(name)
         with MoreValues(id="more"):
             yield FoldTitle(id="fold")
-            for spec in optional:
-                yield ValueField(spec)
+            for name in rest():
+                yield self._field(name)
         for name in sorted(TEXT_FIELDS, key=list(TEXT_TITLES).index):
             with Horizontal(classes="field-line text-line"):
-                yield Label(TEXT_TITLES[name], classes="field-title", markup=False)
-                yield TextInput(id=name, compact=True, max_length=200)
+                yield RowTitle(TEXT_TITLES[name])
+                yield TextInput(id=name, compact=True, max_length=200, select_on_focus=True)
         yield Static("", id="panel-message", markup=False)
 
     _panel_text = ""
+    _marked: RowTitle | None = None
 
     def on_mount(self) -> None:
         # the form's widgets never change: look them up once, not on every keystroke
@@ -211,6 +244,22 @@ class EntryForm(VerticalScroll):
         self._choices = list(self.query(ChoiceField))
         self._texts = list(self.query(TextInput))
         self._panel_message = self.query_one("#panel-message", Static)
+
+    # -- the focus mark --------------------------------------------------------
+    def on_descendant_focus(self, event: events.DescendantFocus) -> None:
+        row = event.widget.parent
+        title = row.query_children(RowTitle).first() if row is not None and \
+            row.query_children(RowTitle) else None
+        if self._marked is not None and self._marked is not title:
+            self._marked.mark(False)
+        self._marked = title
+        if title is not None:
+            title.mark(True)
+
+    def on_descendant_blur(self, event: events.DescendantBlur) -> None:
+        if self._marked is not None and event.widget.parent is self._marked.parent:
+            self._marked.mark(False)
+            self._marked = None
 
     # -- reading the form ----------------------------------------------------
     def fields(self) -> list[ValueField]:
@@ -225,8 +274,8 @@ class EntryForm(VerticalScroll):
         for f in self.fields():
             if f.text:
                 out[f.spec.name] = f.text
-            if f.unit != f.spec.unit:
-                out[f"{f.spec.name}_unit"] = f.unit
+                if f.unit != f.spec.unit:
+                    out[f"{f.spec.name}_unit"] = f.unit
         for choice in self._choices:
             out[choice.id] = choice.value
         for box in self._texts:
@@ -235,12 +284,19 @@ class EntryForm(VerticalScroll):
         return out
 
     def fill(self, data: dict[str, Any]) -> None:
-        """Show ``data`` in the form (as from an entry); posts one ``Edited``."""
+        """Show ``data`` in the form (as from an entry); posts one ``Edited``.
+
+        A value without a unit is in the field's canonical unit; an empty field takes
+        the unit chosen in this sitting.
+        """
         with self.prevent(Input.Changed, ValueField.UnitChanged, ChoiceField.Changed):
             for f in self.fields():
                 value = data.get(f.spec.name)
                 f.input.value = "" if value is None else str(value)
-                f.unit = str(data.get(f"{f.spec.name}_unit") or f.spec.unit)
+                if value is None:
+                    f.unit = self.units.get(f.spec.name, f.spec.unit)
+                else:
+                    f.unit = str(data.get(f"{f.spec.name}_unit") or f.spec.unit)
             for choice in self._choices:
                 value = str(data.get(choice.id) or "unknown")
                 choice.value = value if value in choice.choices else "unknown"
@@ -249,13 +305,13 @@ class EntryForm(VerticalScroll):
         self.post_message(self.Edited())
 
     # -- showing what the engine said ----------------------------------------
-    def show_problems(self, by_field: dict[str, list[str]]) -> None:
-        """Messages beside their fields; those of the panel as a whole at the end."""
+    def show_messages(self, by_field: dict[str, list[str]]) -> None:
+        """Lines under their fields; those of the panel as a whole at the end."""
         for f in self.fields():
             f.show_message(by_field.get(f.spec.name, []))
         names = {f.spec.name for f in self._fields}
-        rest = [line for name, lines in by_field.items() if name not in names for line in lines]
-        text = "\n".join(f"refused: {line}" for line in rest)
+        rest_ = [line for name, lines in by_field.items() if name not in names for line in lines]
+        text = "\n".join(rest_)
         if text != self._panel_text:
             self._panel_text = text
             self._panel_message.update(text)

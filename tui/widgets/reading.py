@@ -16,6 +16,8 @@ from textual.widgets.option_list import Option
 import acidbase
 from acidbase.fields import NUMERIC
 
+from ..labels import on_screen
+
 #: The three questions, in the order they are answered.
 SECTIONS: tuple[tuple[str, str], ...] = (
     ("trust", "Trust"),
@@ -36,6 +38,32 @@ def heading(section: str, title: str, it: acidbase.Interpretation) -> str:
         labels = "; ".join(d.label() for d in it.disorders) or "none"
         return f"{title}: {labels}"
     return title
+
+
+def verdict(it: acidbase.Interpretation | None, stale: bool = False) -> str:
+    """The pinned line: the trust verdict and the processes, in one sentence."""
+    if it is None:
+        return ("Verdict: none yet - key in "
+                + ", ".join(s.title for s in NUMERIC if s.required) + ".")
+    if it.status == "refused":
+        return "Verdict: not assessable - the engine refused the panel."
+    status = it.consistency.status if it.consistency else "not assessable"
+    labels = "; ".join(d.label() for d in it.disorders) or "none found"
+    lead = "STALE (the form holds a refused value): " if stale else ""
+    return f"{lead}Trust: {status} | Processes: {labels}"
+
+
+class VerdictLine(Static):
+    """The verdict, pinned above the caution so it is on screen whatever scrolls."""
+
+    def __init__(self, **kwargs) -> None:
+        super().__init__(verdict(None), markup=False, **kwargs)
+        self.text = verdict(None)
+
+    def show(self, text: str) -> None:
+        if text != self.text:
+            self.text = text
+            self.update(text)
 
 
 class ReadingState(Static):
@@ -108,9 +136,10 @@ class ReadingPane(Vertical):
         lines = []
         for section, title in SECTIONS:
             lines.append(Option(Content.from_markup("[b]$text[/b]",
-                                                    text=heading(section, title, it)),
+                                                    text=on_screen(heading(section, title,
+                                                                           it))),
                                 id=section, disabled=True))
-            lines += [Option(Content(f"{MARKS.get(f.severity, f.severity)} {f.text}"),
+            lines += [Option(Content(on_screen(f"{MARKS.get(f.severity, f.severity)} {f.text}")),
                              id=f"finding-{i}")
                       for i, f in enumerate(it.findings) if f.section == section]
         options.add_options(lines)  # one update of the list, not one per line

@@ -1,0 +1,58 @@
+"""Words for people: unit labels, short titles and the form's order (display only).
+
+Files and the library keep UCUM codes (``mm[Hg]``, ``1``, ``a``); the screen shows
+what a respiratory therapist reads on the analyser printout.
+"""
+
+from __future__ import annotations
+
+from acidbase.fields import BY_NAME, NUMERIC
+
+#: UCUM code -> the label on screen.  A unit not listed is shown as its code.
+UNIT_LABELS: dict[str, str] = {
+    "mm[Hg]": "mmHg",
+    "[pH]": "",
+    "1": "fraction",
+    "a": "years",
+    "Cel": "°C",
+    "mosm/kg": "mOsm/kg",
+}
+
+#: Titles too long for the form's title column, shortened for the form only.
+SHORT_TITLES: dict[str, str] = {
+    "bun": "BUN",
+    "pb": "Barometric",
+    "temperature": "Temperature",
+}
+
+#: The gas as the analyser prints it, then what the reading of the gas needs next.
+GAS: tuple[str, ...] = ("ph", "pco2", "po2", "hco3")
+AFTER_GAS: tuple[str, ...] = ("fio2",)
+#: After the sample type: the electrolytes, then the rest.
+ELECTROLYTES: tuple[str, ...] = ("na", "k", "cl", "ica", "lactate", "glucose", "hb")
+
+
+def unit_label(unit: str) -> str:
+    """How a unit is shown on screen ("mmHg" for ``mm[Hg]``, nothing for pH)."""
+    return UNIT_LABELS.get(unit, unit)
+
+
+def with_unit(value: object, unit: str) -> str:
+    """``"60 mmHg"``; a value without a unit label alone (pH)."""
+    label = unit_label(unit)
+    return f"{value} {label}" if label else str(value)
+
+
+def form_title(name: str) -> str:
+    return SHORT_TITLES.get(name, BY_NAME[name].title)
+
+
+def on_screen(text: str) -> str:
+    """The library's text with unit codes as people write them (screen only)."""
+    return text.replace("mm[Hg]", "mmHg")
+
+
+def rest() -> tuple[str, ...]:
+    """Every other numeric field, in the library's order (new fields land here)."""
+    shown = set(GAS + AFTER_GAS + ELECTROLYTES)
+    return tuple(s.name for s in NUMERIC if s.name not in shown)

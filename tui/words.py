@@ -1,0 +1,56 @@
+"""What the app says about a refused or doubtful value, in its own short words.
+
+Built from the engine's structured errors (type, field, value, unit, range), never
+by reading its message back; a refusal of another kind is shown as the engine
+words it.
+"""
+
+from __future__ import annotations
+
+from pydantic import ValidationError
+
+import acidbase
+from acidbase.fields import BY_NAME
+
+from .labels import on_screen, unit_label
+
+
+def f2_hint(name: str, value: object, unit: str) -> str:
+    """"press F2 for kPa" when the value would be ordinary in the field's other unit."""
+    others = acidbase.also_ordinary(name, value, unit) if name in BY_NAME else ()
+    return f"press F2 for {unit_label(others[0]) or others[0]}" if others else ""
+
+
+def refusal(error: dict, engine_line: str) -> str:
+    """One refused value in the app's words: "refused: not in 8-200 mmHg; press F2 for kPa".
+
+    The value itself is in the field beside it.
+    """
+    ctx = error.get("ctx") or {}
+    kind = error.get("type")
+    if kind == "outside_accepted_range" and {"field", "value", "unit", "low", "high"} <= set(ctx):
+        unit = ctx["unit"]
+        label = unit_label(unit)
+        where = f"{ctx['low']:.4g}-{ctx['high']:.4g}" + (f" {label}" if label else "")
+        line = f"refused: not in {where}"
+        hint = f2_hint(ctx["field"], ctx["value"], unit)
+        return f"{line}; {hint}" if hint else line
+    if kind == "float_parsing":
+        return f"refused: {error.get('input')!r} is not a number"
+    return f"refused: {on_screen(engine_line)}"
+
+
+def problems_by_field(error: ValidationError) -> tuple[dict[str, list[str]], list[str]]:
+    """The app's lines keyed by field ("panel" for the whole), and the missing fields.
+
+    ``acidbase.describe`` gives one line per error, in the order of ``errors()``.
+    """
+    by_field: dict[str, list[str]] = {}
+    missing: list[str] = []
+    for e, line in zip(error.errors(include_url=False), acidbase.describe(error)):
+        name = str(e["loc"][0]) if e["loc"] else "panel"
+        if e["type"] == "missing":
+            missing.append(name)
+        else:
+            by_field.setdefault(name, []).append(refusal(e, line))
+    return by_field, missing
