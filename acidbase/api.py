@@ -12,9 +12,9 @@ from concurrent.futures import ThreadPoolExecutor
 from typing import Any
 
 import numpy as np
-import pyarrow as pa
 
 from . import engine, rules
+from ._arrow import is_arrow
 from .errors import ColumnError, Problem, UnitError
 from .fields import BY_NAME, TEXT_FIELDS
 from .inputs.cells import _objects, is_column, read_choices
@@ -52,7 +52,7 @@ def as_columns(data: Any) -> dict[str, Any]:
     """A mapping of columns from a mapping, a pandas or polars DataFrame, or an Arrow
     table or record batch (Arrow columns stay Arrow: the reader takes them as they are).
     """
-    if isinstance(data, (pa.Table, pa.RecordBatch)):
+    if is_arrow(data, ("Table", "RecordBatch")):
         return {name: data.column(i) for i, name in enumerate(data.schema.names)}
     if isinstance(data, Mapping):
         return dict(data)
@@ -161,7 +161,7 @@ def interpret_many(
 
 def _sliceable(value: Any, n: int) -> Any:
     """A column that slices by rows (Arrow and numpy as they are; lists as object arrays)."""
-    if not is_column(value) or isinstance(value, (pa.Array, pa.ChunkedArray, np.ndarray)):
+    if not is_column(value) or is_arrow(value) or isinstance(value, np.ndarray):
         return value
     return _objects(value)
 

@@ -47,12 +47,18 @@ from collections import OrderedDict
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass
 
+from typing import TYPE_CHECKING
+
 import numpy as np
-import pyarrow as pa
-import pyarrow.compute as pc
-from pyarrow import ipc
 
 from .fields import BY_NAME
+
+if TYPE_CHECKING:
+    import pyarrow as pa
+    import pyarrow.compute as pc
+    from pyarrow import ipc
+else:  # imported on first use: the batch parser reads this module's defaults
+    from ._arrow import ipc, pa, pc
 
 SOURCE_PRACTICE = "common laboratory practice, no source"
 

@@ -32,13 +32,18 @@ import math
 import re
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
-import pyarrow as pa
-import pyarrow.compute as pc
 
+from .._arrow import is_arrow
 from .vocab import Choice, normalise_word
+
+if TYPE_CHECKING:
+    import pyarrow as pa
+    import pyarrow.compute as pc
+else:  # imported on first use: one panel never needs Arrow (acidbase/_arrow.py)
+    from .._arrow import pa, pc
 
 #: HL7 v2 table 0078 abnormal flags as they trail values in exports (L, H, LL, HH,
 #: A, AA, N), plus ``*``, which several laboratory exports print for "abnormal"
@@ -386,7 +391,7 @@ def _object_numbers(cells: list[Any], decimal: str, missing: Sequence[str]) -> P
 def is_column(x: Any) -> bool:
     """True for a column of cells (a sequence, an array, a pandas or polars column); any
     other value is one cell, repeated for every row."""
-    return isinstance(x, (list, tuple, range, np.ndarray, pa.Array, pa.ChunkedArray)) or (
+    return isinstance(x, (list, tuple, range, np.ndarray)) or is_arrow(x) or (
         hasattr(x, "to_numpy") and hasattr(x, "__len__")) or hasattr(x, "to_arrow")
 
 
@@ -412,7 +417,7 @@ def read_numbers(column: Any, decimal: str = ".", missing: Sequence[str] = (),
     Each cell is read alone: its reading never depends on the other cells of the
     column (a list ``["4.0", nan]`` reads 4.0 and "not measured").
     """
-    if isinstance(column, (pa.Array, pa.ChunkedArray)):
+    if is_arrow(column):
         return parse_numeric(column, decimal, missing)
     if not is_column(column):
         cells = [column] * (1 if n is None else n)
@@ -540,7 +545,7 @@ def read_choices(column: Any, choice: Choice, missing: Sequence[str] = (),
     if isinstance(column, np.ndarray) and column.dtype.kind in "iu" and column.ndim == 1:
         bad = (column < 0) | (column >= len(words))
         return ChoiceColumn(np.where(bad, default, column).astype(np.int8), bad, None)
-    if isinstance(column, (pa.Array, pa.ChunkedArray)):
+    if is_arrow(column):
         arr = _text_column(column)
         if pa.types.is_string(arr.type) or pa.types.is_null(arr.type):
             return _choices_of_text(arr.cast(pa.string()), words, default, missing)

@@ -23,7 +23,6 @@ from dataclasses import field as dataclass_field
 from typing import Any, Literal
 
 import numpy as np
-import pyarrow as pa
 from pydantic import (
     BaseModel,
     ConfigDict,
@@ -37,6 +36,7 @@ from pydantic import (
 from pydantic_core import PydanticCustomError
 
 from .. import units as _units
+from .._arrow import is_arrow
 from ..errors import Problem, UnitError
 from ..fields import BY_NAME, NUMERIC, REQUIRED, TEXT_FIELDS, FieldSpec
 from .cells import (ParsedColumn, is_column, number_hint, read_choice, read_choices, read_number,
@@ -171,7 +171,7 @@ def column_length(columns: Mapping[str, Any]) -> int:
 def _length(value: Any) -> int | None:
     if not is_column(value):
         return None
-    if isinstance(value, (pa.Array, pa.ChunkedArray)):
+    if is_arrow(value):
         return len(value)
     shape = getattr(value, "shape", None)
     if shape is not None:
