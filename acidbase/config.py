@@ -16,6 +16,8 @@ albumin g/L)::
     pco2 = [35, 45]
     [intervals.venous]
     pco2 = [41, 51]
+    [intervals.paediatric]    # read below 18 years (not venous); none built in
+    ph = [7.30, 7.45]
     [anion_gap]
     low = 3
     high = 11
@@ -47,7 +49,7 @@ if TYPE_CHECKING:
 from . import units as _units
 from .errors import AcidBaseError
 from .fields import BY_NAME, SAMPLE_TYPES
-from .reference import Settings, SettingsError, check_interval
+from .reference import PAEDIATRIC, Settings, SettingsError, check_interval
 
 ENV_VAR = "ACIDBASE_CONFIG"
 #: Observation statuses a site may give machine readings (FHIR R4 ObservationStatus,
@@ -84,6 +86,8 @@ class Site:
             for name in ("ph", "pco2", "hco3", "sbe"):
                 iv = intervals[kind][name]
                 out[f"intervals.{kind}.{name}"] = [iv.low, iv.high]
+        for name, lo, hi in s.paediatric_intervals:  # none unless the site set them
+            out[f"intervals.{PAEDIATRIC}.{name}"] = [lo, hi]
         out["anion_gap.low"], out["anion_gap.high"] = s.anion_gap_low, s.anion_gap_high
         out["anion_gap.k_low"], out["anion_gap.k_high"] = s.anion_gap_k_low, s.anion_gap_k_high
         out["anion_gap.with_k"] = s.anion_gap_uses_k
@@ -276,7 +280,11 @@ def resolve(args: Any = None, *, config: str | None = None,
     kw: dict[str, Any] = {attr: values[k] for k, attr in _KERNEL.items() if k in values}
     kw["reference_intervals"] = tuple(
         (k.split(".")[1], k.split(".")[2], v[0], v[1])
-        for k, v in values.items() if k.startswith("intervals."))
+        for k, v in values.items()
+        if k.startswith("intervals.") and k.split(".")[1] != PAEDIATRIC)
+    kw["paediatric_intervals"] = tuple(
+        (k.split(".")[2], v[0], v[1])
+        for k, v in values.items() if k.startswith(f"intervals.{PAEDIATRIC}."))
     try:
         settings = Settings.checked(**kw)
     except SettingsError as e:

@@ -18,7 +18,8 @@ from . import oxygenation as oxy
 from .compensation import BASE_EXCESS_RULES, BICARBONATE_RULES, CompensationRule
 from .fields import HCO3_SOURCES, SAMPLE_TYPES
 from .model import Screened
-from .reference import ADULT_AGE, LACTATE_HIGH, Settings, interval_columns, pregnancy_columns
+from .reference import (ADULT_AGE, LACTATE_HIGH, Settings, interval_columns, paediatric_columns,
+                        paediatric_rows, pregnancy_columns)
 
 Frame = dict[str, np.ndarray]
 
@@ -246,7 +247,12 @@ def compute(s: Screened, settings: Settings) -> Frame:
         f["urea_used"] = v["urea"]
 
     limits = interval_columns(s.sample_type, ("ph", "pco2", "hco3", "sbe"), settings)
-    limits = pregnancy_columns(limits, s.sample_type, s.pregnancy)
+    # Order: sample type, then the site's paediatric intervals below 18 years, then the
+    # third-trimester ones on the other rows (a row read as paediatric is not also read
+    # as pregnant: the published pregnancy intervals are adult ones [abbassi_ghanavati_2009]).
+    f["paediatric_site"] = paediatric_rows(s.sample_type, v["age"], settings)
+    limits = paediatric_columns(limits, f["paediatric_site"], settings)
+    limits = pregnancy_columns(limits, s.sample_type, s.pregnancy, f["paediatric_site"])
     for name, (lo, hi) in limits.items():
         f[f"{name}_lo"], f[f"{name}_hi"] = lo, hi
     f["pregnancy"] = s.pregnancy if s.pregnancy is not None else np.zeros(n, dtype=np.int8)

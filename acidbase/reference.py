@@ -111,6 +111,10 @@ class Settings:
     reference_intervals: tuple[tuple[str, str, float, float], ...] = ()
     """The laboratory's own intervals in place of ``INTERVALS``: (sample type, quantity,
     low, high), canonical units (site configuration, ``acidbase.config``)."""
+    paediatric_intervals: tuple[tuple[str, float, float], ...] = ()
+    """The laboratory's own paediatric intervals: (quantity, low, high), canonical units,
+    read on rows with a measured age below ``ADULT_AGE`` (``paediatric_columns``).  The
+    tool ships none."""
 
     @classmethod
     def checked(cls, **kw: float | bool) -> Settings:
@@ -124,6 +128,8 @@ class Settings:
             raise SettingsError(f"reference albumin {s.reference_albumin_g_l:g} g/L: give 20 to 60 g/L")
         for kind, name, lo, hi in s.reference_intervals:
             check_interval(kind, name, lo, hi)
+        for name, lo, hi in s.paediatric_intervals:
+            check_interval(PAEDIATRIC, name, lo, hi)
         return s
 
     def intervals(self) -> dict[str, dict[str, Interval]]:
@@ -148,15 +154,46 @@ class Settings:
         return (lo + hi) / 2.0
 
 
+def paediatric_rows(sample_type: np.ndarray, age: np.ndarray, settings: Settings | None
+                    ) -> np.ndarray:
+    """Rows read against the site's paediatric intervals: a measured age below
+    ``ADULT_AGE``, a sample that is not venous, and a site that set such intervals."""
+    if settings is None or not settings.paediatric_intervals:
+        return np.zeros(sample_type.shape[0], dtype=bool)
+    return (age < ADULT_AGE) & (sample_type != SAMPLE_TYPES.index("venous"))
+
+
+def paediatric_columns(limits: dict[str, tuple[np.ndarray, np.ndarray]], rows: np.ndarray,
+                       settings: Settings) -> dict[str, tuple[np.ndarray, np.ndarray]]:
+    """``limits`` with the site's paediatric intervals on ``rows`` (``paediatric_rows``).
+
+    A quantity the site left unset keeps its sample-type interval.  Venous samples keep
+    the venous intervals: the site file holds one paediatric table, read as the
+    arterial one (design, no source), as the pregnancy intervals are.
+    """
+    if not rows.any():
+        return limits
+    out = dict(limits)
+    for name, lo, hi in settings.paediatric_intervals:
+        if name in out:
+            low, high = out[name]
+            out[name] = (np.where(rows, float(lo), low), np.where(rows, float(hi), high))
+    return out
+
+
 def pregnancy_columns(limits: dict[str, tuple[np.ndarray, np.ndarray]], sample_type: np.ndarray,
-                      pregnancy: np.ndarray | None) -> dict[str, tuple[np.ndarray, np.ndarray]]:
-    """``limits`` with the third-trimester intervals on the rows that state it (not venous)."""
+                      pregnancy: np.ndarray | None, skip: np.ndarray | None = None
+                      ) -> dict[str, tuple[np.ndarray, np.ndarray]]:
+    """``limits`` with the third-trimester intervals on the rows that state it (not venous,
+    not the ``skip`` rows: those already read against the site's paediatric intervals)."""
     from .fields import PREGNANCY_STATES
 
     if pregnancy is None:
         return limits
     rows = (pregnancy == PREGNANCY_STATES.index("third_trimester")) & (
         sample_type != SAMPLE_TYPES.index("venous"))
+    if skip is not None:
+        rows &= ~skip
     if not rows.any():
         return limits
     table = PREGNANCY_INTERVALS["third_trimester"]
@@ -175,9 +212,14 @@ SETTABLE_INTERVALS: dict[str, tuple[float, float]] = {
     "sbe": (-30.0, 30.0)}
 
 
+#: The site file's name for its paediatric table (``[intervals.paediatric]``).
+PAEDIATRIC = "paediatric"
+
+
 def check_interval(kind: str, name: str, low: float, high: float) -> None:
-    """Refuse a laboratory interval the rules cannot use (``SettingsError``)."""
-    if kind not in SAMPLE_TYPES:
+    """Refuse a laboratory interval the rules cannot use (``SettingsError``); ``kind`` is a
+    sample type or ``PAEDIATRIC``."""
+    if kind not in SAMPLE_TYPES and kind != PAEDIATRIC:
         raise SettingsError(f"interval for sample type {kind!r}: give one of "
                             f"{', '.join(SAMPLE_TYPES)}")
     if name not in SETTABLE_INTERVALS:

@@ -65,7 +65,11 @@ EXAMPLES: dict[str, tuple[tuple[Example, ...], tuple[Example, ...]]] = {
     "T-SAMPLE-CAPILLARY": ((NORMAL | {"sample_type": "capillary"},), (NORMAL,)),
     "T-PREGNANCY-INTERVALS": ((gas(18.2, 26.6, pregnancy="third_trimester"),),
                               (gas(18.2, 26.6, pregnancy="no"),)),
-    "P-ADULT-RULES-ONLY": ((NORMAL | {"age": 0.2},), (NORMAL | {"age": 18.0},)),
+    # the second: a site's own paediatric pH interval (a test setting, not a clinical value)
+    "P-ADULT-RULES-ONLY": ((NORMAL | {"age": 0.2},
+                            NORMAL | {"age": 5.0, "settings": {
+                                "paediatric_intervals": (("ph", 7.30, 7.45),)}}),
+                           (NORMAL | {"age": 18.0},)),
     "P-COMPENSATION-FROM-GAS": ((gas(11.6, 27.0, hco3_source="chemistry") | {"hco3": 15.0},),
                                 (MET_ACID,)),
     "P-NONE": ((NORMAL,), (MET_ACID,)),

@@ -466,7 +466,8 @@ RULES: tuple[Rule, ...] = (
          "Arterialised capillary pH and pCO2 approximate arterial values; pO2 underestimates.",
          ("aarc_2013",)),
     Rule("T-PREGNANCY-INTERVALS", "trust", "info", "Third-trimester intervals",
-         lambda f: f["pregnancy"] == PREGNANCY_STATES.index("third_trimester"),
+         lambda f: (f["pregnancy"] == PREGNANCY_STATES.index("third_trimester"))
+         & ~f["paediatric_site"],
          lambda r: ("Pregnancy, third trimester: " + (
              f"pH, pCO2 and HCO3- read against published third-trimester intervals (pH "
              f"{r['ph_lo']:.2f}-{r['ph_hi']:.2f}, pCO2 {r['pco2_lo']:.0f}-{r['pco2_hi']:.0f} "
@@ -485,10 +486,18 @@ RULES: tuple[Rule, ...] = (
          lambda f: f["below_adult_age"],
          lambda r: (f"Age {r['age']:.2f} years"
                     + (" (a neonate)" if r["age"] < NEONATE_AGE else "")
-                    + f": the reference intervals, the compensation rules, the anion-gap interval "
-                    f"and the A-a age rule used here are adult ones and are not established below "
-                    f"{ADULT_AGE:.0f}; no A-a expectation is given. Read the processes with "
-                    f"paediatric intervals (not set here)."),
+                    + (f": pH, pCO2, HCO3- and SBE are read against the site's own paediatric "
+                       f"intervals (pH {r['ph_lo']:.2f}-{r['ph_hi']:.2f}, pCO2 "
+                       f"{r['pco2_lo']:.0f}-{r['pco2_hi']:.0f} mm[Hg], HCO3- "
+                       f"{r['hco3_lo']:.0f}-{r['hco3_hi']:.0f} mmol/L, SBE {r['sbe_lo']:.1f} to "
+                       f"{r['sbe_hi']:.1f} mmol/L; pregnancy intervals not applied), but the "
+                       f"compensation rules, the anion-gap interval and the A-a age rule remain "
+                       f"adult ones, not established below {ADULT_AGE:.0f}; no A-a expectation is "
+                       f"given." if r["paediatric_site"] else
+                       f": the reference intervals, the compensation rules, the anion-gap "
+                       f"interval and the A-a age rule used here are adult ones and are not "
+                       f"established below {ADULT_AGE:.0f}; no A-a expectation is given. Read "
+                       f"the processes with paediatric intervals (not set here).")),
          f"age {{age:.2f}} < {ADULT_AGE:.0f} years",
          "Children and especially neonates have other intervals (lower pCO2 and HCO3- in "
          "infancy) and the rules were fitted in adults.",

@@ -57,7 +57,9 @@ class FhirSection(_Strict):
 class SiteFile(_Strict):
     """The file's layout: unknown keys are refused, so a misspelt key never passes unseen."""
 
-    intervals: dict[Literal["arterial", "venous", "capillary", "unknown"], IntervalTable] = {}
+    # "paediatric": the site's own intervals below 18 years (``reference.paediatric_columns``)
+    intervals: dict[Literal["arterial", "venous", "capillary", "unknown", "paediatric"],
+                    IntervalTable] = {}
     anion_gap: AnionGapSection = AnionGapSection()
     albumin: AlbuminSection = AlbuminSection()
     serial: SerialSection = SerialSection()

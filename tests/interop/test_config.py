@@ -164,3 +164,91 @@ def test_the_default_mapping_file_is_found_beside_the_config_file(tmp_path, caps
     rc, _, err = run(capsys, "batch", batch_data / "lab_export.csv", "-o", out, "--config", path)
     assert rc == 0, err
     assert rows_of(out)[0]["status"] == "interpreted"
+
+
+# --- paediatric intervals: the site's own, read below 18 years --------------------------
+# The tool ships no paediatric intervals.  The pH interval 7.30-7.45 below is this test's
+# own configuration, not a clinical value.  The panel: pH 7.33, pCO2 45 mm[Hg], HCO3-
+# 23.2 mmol/L (0.0307 x 45 x 10^(7.33 - 6.105) = 23.2, Henderson-Hasselbalch with the
+# constants of acidbase.chemistry), so only the pH lies outside the adult 7.35-7.45.
+PAED_SITE = "[intervals.paediatric]\nph = [7.30, 7.45]\n"
+PANEL_733 = ("check", "--ph", "7.33", "--pco2", "45", "--hco3", "23.2", "--na", "140",
+             "--cl", "106")
+
+
+def test_a_site_paediatric_interval_changes_a_childs_verdict(tmp_path, capsys):
+    path = site_file(tmp_path, PAED_SITE)
+    assert disorders(capsys, *PANEL_733, "--age", "5") == ["respiratory acidosis"]
+    assert disorders(capsys, *PANEL_733, "--age", "5", "--config", path) == []
+    _, out, _ = run(capsys, *PANEL_733, "--age", "5", "--config", path, "--json")
+    adult_rules = next(f for f in json.loads(out)["findings"] if f["code"] == "P-ADULT-RULES-ONLY")
+    assert "site's own paediatric intervals (pH 7.30-7.45" in adult_rules["text"]
+    assert "compensation rules" in adult_rules["text"] and "remain adult" in adult_rules["text"]
+
+
+def test_a_site_paediatric_interval_leaves_an_adults_and_a_venous_verdict_alone(tmp_path,
+                                                                               capsys):
+    path = site_file(tmp_path, PAED_SITE)
+    assert disorders(capsys, *PANEL_733, "--age", "40", "--config", path) == [
+        "respiratory acidosis"]
+    assert disorders(capsys, *PANEL_733, "--config", path) == ["respiratory acidosis"]  # no age
+    # a venous sample keeps the venous intervals (pH 7.31-7.42): 7.30 is below both
+    venous = ("check", "--ph", "7.30", "--pco2", "48", "--hco3", "23.1", "--na", "140",
+              "--cl", "106", "--sample-type", "venous", "--age", "5")
+    site = site_file(tmp_path, "[intervals.paediatric]\nph = [7.25, 7.45]\n", "wide.toml")
+    assert disorders(capsys, *venous, "--config", site) == disorders(capsys, *venous) == [
+        "respiratory acidosis"]
+
+
+def test_without_paediatric_intervals_the_child_caution_says_none_are_set(capsys):
+    _, out, _ = run(capsys, *PANEL_733, "--age", "5", "--json")
+    adult_rules = next(f for f in json.loads(out)["findings"] if f["code"] == "P-ADULT-RULES-ONLY")
+    assert "paediatric intervals (not set here)" in adult_rules["text"]
+
+
+def test_a_pregnant_child_is_read_against_the_site_paediatric_intervals(tmp_path, capsys):
+    path = site_file(tmp_path, PAED_SITE)
+    _, out, _ = run(capsys, *PANEL_733, "--age", "16", "--pregnancy", "third_trimester",
+                    "--config", path, "--json")
+    doc = json.loads(out)
+    codes = [f["code"] for f in doc["findings"]]
+    assert "T-PREGNANCY-INTERVALS" not in codes and doc["disorders"] == []
+
+
+@pytest.mark.parametrize("text, words", [
+    ("[intervals.paediatric]\nph = [7.45, 7.30]\n",
+     "key 'intervals.paediatric.ph': paediatric ph interval 7.45 to 7.3: give LOW < HIGH"),
+    ("[intervals.paediatric]\nsbe = [-40, 3]\n",
+     "key 'intervals.paediatric.sbe': paediatric sbe interval -40 to 3: give LOW < HIGH "
+     "within -30 to 30"),
+    ("[intervals.paediatric]\nk = [3, 5]\n", "key 'intervals.paediatric.k': unknown key"),
+])
+def test_a_bad_paediatric_interval_is_refused_naming_the_key(tmp_path, capsys, text, words):
+    path = site_file(tmp_path, text)
+    rc, _, err = run(capsys, *PANEL_733, "--age", "5", "--config", path)
+    assert rc == 2
+    assert words in err and "Traceback" not in err
+
+
+def test_config_show_and_the_audit_record_carry_the_paediatric_intervals(tmp_path, capsys):
+    path = site_file(tmp_path, PAED_SITE + "hco3 = [18, 26]\n")
+    rc, out, _ = run(capsys, "config", "show", "--config", path)
+    assert rc == 0
+    lines = {line.split()[0]: line for line in out.splitlines()[3:] if line.strip()}
+    assert lines["intervals.paediatric.ph"].split()[1:4] == ["7.3", "to", "7.45"]
+    assert lines["intervals.paediatric.hco3"].endswith(f"file {path}")
+    assert "intervals.paediatric.pco2" not in lines  # the tool ships none
+    _, with_site, _ = run(capsys, *PANEL_733, "--config", path, "--json")
+    _, without, _ = run(capsys, *PANEL_733, "--json")
+    audit, plain = json.loads(with_site)["audit"], json.loads(without)["audit"]
+    assert audit["settings"]["intervals.paediatric.hco3"] == [18.0, 26.0]
+    assert audit["settings_sha256"] != plain["settings_sha256"]
+
+
+def test_the_library_refuses_a_bad_paediatric_interval_too():
+    from acidbase.reference import Settings, SettingsError
+
+    with pytest.raises(SettingsError, match="paediatric pco2 interval 50 to 30"):
+        Settings.checked(paediatric_intervals=(("pco2", 50.0, 30.0),))
+    with pytest.raises(SettingsError, match="interval of 'k'"):
+        Settings.checked(paediatric_intervals=(("k", 3.0, 5.0),))
