@@ -55,7 +55,8 @@ def test_the_probe_sees_arrow_when_a_path_does_use_it():
     """The probe itself can fail: an Arrow column does load pyarrow."""
     code = "import pyarrow as pa\nfrom acidbase import interpret_many\n" \
            "interpret_many({'ph': pa.array(['7.4']), 'pco2': [40], 'hco3': [24]})"
-    assert loaded_after(code) == ["pyarrow"]
+    # pyarrow may bring pandas with it where pandas is installed (the test extra has it).
+    assert "pyarrow" in loaded_after(code)
 
 
 def test_an_arrow_column_is_still_read_as_one():
