@@ -35,7 +35,7 @@ def _typing(*extra: str, field: str | None = None):
 
 
 def test_entry_with_a_reading(snap_compare):
-    """The form on the left, gas first (pH, pCO2, pO2, HCO3-), '>' and reverse video on Cl-;
+    """The form on the left, gas first (pH, pCO2, pO2, HCO3-), '>' and reversed colours (SGR 7) on Cl-;
     the reading on the right from 'Trust: consistency consistent', each finding led by its
     severity word; pinned under them the verdict line 'Trust: consistent | Processes:
     respiratory acidosis (acute, primary)', then the caution in two lines, then the keys."""

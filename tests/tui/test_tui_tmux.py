@@ -157,7 +157,7 @@ def test_a_kpa_panel_lands_as_printed_and_reads_as_the_same_gas_in_mmhg(session)
 
 
 def test_focus_is_visible_without_colour(session):
-    """NO_COLOR: the focused row's title is drawn in reverse video and marked with '>'."""
+    """NO_COLOR: the focused row's title is drawn in reversed colours (SGR 7) and marked with '>'."""
     s = session(no_color=True)
     _tmux("send-keys", "-t", s, "7.40", "Tab", "40")
 
@@ -175,7 +175,7 @@ def test_focus_is_visible_without_colour(session):
         reverse = re.compile(r"\x1b\[(?:[0-9;]*;)?7(?:;[0-9;]*)?m")
         if focused and reverse.search(focused[0].split("> pCO2")[0] + "> pCO2"):
             break
-        assert time.monotonic() < deadline, f"no reverse video on the focused row: {focused}"
+        assert time.monotonic() < deadline, f"no reversed colours (SGR 7) on the focused row: {focused}"
         time.sleep(0.2)
     assert others and not any(reverse.search(ln.split("\u2595")[0][:60]) for ln in others)
 

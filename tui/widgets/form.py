@@ -9,7 +9,7 @@ refused there (in the app's words) or that a value would also be ordinary in
 another unit.
 
 The focused row is marked twice, never by colour alone: a ``>`` before its title
-and its title in reverse video.
+and its title in reversed colours (SGR 7).
 """
 
 from __future__ import annotations
