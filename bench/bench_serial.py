@@ -68,15 +68,8 @@ def spiked(n: int, seed: int, start: int, share: float, day: int) -> pa.Table:
 
 def write(path: str, n: int, share: float, day: int = 0, seed: int = 2026,
           chunk: int = 500_000) -> None:
-    writer = None
-    for start in range(0, n, chunk):
-        t = spiked(min(chunk, n - start), seed, start, share, day)
-        if writer is None:
-            writer = pa_csv.CSVWriter(path, t.schema,
-                                      write_options=pa_csv.WriteOptions(quoting_style="none"))
-        writer.write_table(t)
-    if writer is not None:
-        writer.close()
+    synthetic.write_tables(path, (spiked(min(chunk, n - start), seed, start, share, day)
+                                  for start in range(0, n, chunk)))
 
 
 def child(args: list[str], env_extra: dict[str, str] | None = None) -> dict:

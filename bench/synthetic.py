@@ -10,7 +10,7 @@ outside the accepted range, text in a number cell, censored values, trailing fla
 
 from __future__ import annotations
 
-from collections.abc import Iterator
+from collections.abc import Iterable, Iterator
 
 import numpy as np
 import pyarrow as pa
@@ -123,17 +123,22 @@ def as_table(cols: dict[str, np.ndarray], seed: int = 2026, start: int = 0) -> p
     return pa.table(out)
 
 
-def write_csv(path: str, n: int, seed: int = 2026, chunk: int = 500_000) -> None:
-    """Write ``n`` synthetic panels as CSV, in chunks (bounded memory)."""
+def write_tables(path: str, tables: Iterable[pa.Table]) -> None:
+    """Write tables of one schema to one CSV file, one at a time (bounded memory)."""
     writer = None
-    for start in range(0, n, chunk):
-        t = as_table(panels(min(chunk, n - start), seed, start), seed, start)
+    for t in tables:
         if writer is None:
             writer = pa_csv.CSVWriter(path, t.schema,
                                       write_options=pa_csv.WriteOptions(quoting_style="none"))
         writer.write_table(t)
     if writer is not None:
         writer.close()
+
+
+def write_csv(path: str, n: int, seed: int = 2026, chunk: int = 500_000) -> None:
+    """Write ``n`` synthetic panels as CSV, in chunks (bounded memory)."""
+    write_tables(path, (as_table(panels(min(chunk, n - start), seed, start), seed, start)
+                        for start in range(0, n, chunk)))
 
 
 def chunks(n: int, seed: int = 2026, chunk: int = 500_000) -> Iterator[dict[str, np.ndarray]]:
