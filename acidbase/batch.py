@@ -63,10 +63,7 @@ if TYPE_CHECKING:  # the command line (argparse) lives in acidbase.cli only
 EXIT_OK, EXIT_CANNOT_RUN = 0, 2
 
 # Columns the batch adds around the kernel's own, and one chunk's check: acidbase.files.check.
-_process = check_chunk
-_review_rules = review_rules
-_review_mask = review_mask
-_output_names = output_names
+_process = check_chunk  # one name the run calls, so a test can make a chunk fail
 
 #: Worker threads that check and format chunks (the machine's two cores).
 WORKERS = max(1, min(2, os.cpu_count() or 1))
@@ -252,10 +249,10 @@ def tally_chunk(t: Tally, out: dict[str, pa.Array], pco2: np.ndarray, hco3: np.n
 def _review_because(fired: np.ndarray, refused: np.ndarray, serial_codes: list) -> list[str]:
     """For each listed row, what put it on the review list: "refused" (a refused row
     has no reading, so no findings), else the trust findings above "info"
-    (``_review_rules``); then the serial flags."""
+    (``review_rules``); then the serial flags."""
     from .rules import RULES
 
-    rules = _review_rules()
+    rules = review_rules()
     out = []
     for j in range(fired.shape[1]):
         why = ["refused"] if refused[j] else [RULES[i].code for i in rules if fired[i, j]]
@@ -375,7 +372,6 @@ def md_text(x: object) -> str:
     return str(x).translate(_MD_ESCAPES)
 
 
-_md_cell = md_text  # the former name, for code written against it
 
 
 def _report_sections(t: Tally) -> tuple[tuple[str, Counter], ...]:
@@ -383,7 +379,7 @@ def _report_sections(t: Tally) -> tuple[tuple[str, Counter], ...]:
     trust finding that puts a row up for review marked so."""
     from .rules import BY_CODE, RULES
 
-    review = {RULES[i].code for i in _review_rules()}
+    review = {RULES[i].code for i in review_rules()}
     findings = Counter({
         f"{code}: {BY_CODE[code].title} ({BY_CODE[code].severity}"
         f"{', review' if code in review else ''})": c for code, c in t.findings.items()})
@@ -415,7 +411,7 @@ def report_markdown(t: Tally, notes: list[str], source: str, record: dict | None
     out += ["", "## Panels on the pCO2-HCO3 plane (interpreted rows)", "", "```",
             plane_picture(t.plane), "```", ""]
     if record is not None:
-        out += ["## Audit record", ""] + [f"- {_md_cell(x)}" for x in audit.lines(record)] + [""]
+        out += ["## Audit record", ""] + [f"- {md_text(x)}" for x in audit.lines(record)] + [""]
     out += [f"> {CAUTION}", ""]
     return "\n".join(out)
 
@@ -665,7 +661,7 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         its counts."""
         out, meta = _process(table, layout, decimal, settings, checker, start, profile.derived,
                              severities=profile.severities, keep_results=fhir_out)
-        names = _output_names(src.headers, meta["engine_cols"])
+        names = output_names(src.headers, meta["engine_cols"])
         cols = {ROW_COLUMN: pa.array(np.arange(start + 1, start + table.num_rows + 1))}
         for h in src.headers:
             cols[names[h]] = table[h]
