@@ -21,13 +21,19 @@ from typing import Any
 class _Module:
     """Stands in for a module until an attribute is asked for, then imports it."""
 
-    __slots__ = ("_name",)
+    __slots__ = ("_name", "_module")
 
     def __init__(self, name: str) -> None:
         self._name = name
+        self._module = None
 
     def __getattr__(self, attr: str) -> Any:
-        return getattr(importlib.import_module(self._name), attr)
+        # Only called for names that are not slots: the module, once imported, is kept
+        # (the batch asks for pyarrow's functions tens of thousands of times a run).
+        module = self._module
+        if module is None:
+            module = self._module = importlib.import_module(self._name)
+        return getattr(module, attr)
 
     def __repr__(self) -> str:
         return f"<{self._name}, imported on first use>"

@@ -198,6 +198,14 @@ class Results:
         """Per row: laboratory flags read off values ("ph L")."""
         return [f for p in self.parts for f in p.screened.lab_flags()]
 
+    def marked_rows(self, which: str) -> dict[int, tuple[str, ...]]:
+        """Only the rows with marks (row -> marks, as ``qualifiers`` or ``lab_flags``
+        give them; ``which`` is "qualifiers" or "lab_flags"): for a file's columns and
+        counts, without a tuple for every row."""
+        with_text = {"qualifiers": True, "lab_flags": False}[which]
+        return {p.start + i: m for p in self.parts
+                for i, m in p.screened.marked_rows(with_text).items()}
+
     def has_marks(self) -> bool:
         """True when some value carried a comparator or a laboratory flag."""
         return any(p.screened.readings for p in self.parts)
@@ -233,6 +241,9 @@ class Results:
 
     @property
     def fired(self) -> np.ndarray:
+        """Boolean matrix (rules x rows); one slice's own matrix when there is one."""
+        if len(self.parts) == 1:
+            return self.parts[0].fired
         return np.concatenate([p.fired for p in self.parts], axis=1)
 
     # -- one row --------------------------------------------------------------

@@ -60,11 +60,16 @@ def sparse_text(col: np.ndarray, where: np.ndarray) -> pa.Array:
     return pc.fill_null(pc.take(values, pa.array(pos, mask=pos < 0)), "")
 
 
-def _marks_column(marks: list[tuple[str, ...]] | None, n: int) -> pa.Array:
-    """Per-row marks ("lactate <0.3") written as one text cell, "; " between them."""
-    if marks is None:
+def _marks_column(marks: Mapping[int, tuple[str, ...]], n: int) -> pa.Array:
+    """Per-row marks ("lactate <0.3") written as one text cell, "; " between them;
+    ``marks`` holds only the rows that have any (row -> marks)."""
+    if not marks:
         return pa.repeat(pa.scalar("", pa.string()), n)
-    return pa.array(["; ".join(m) for m in marks], type=pa.string())
+    rows = np.fromiter(marks, dtype=np.int64, count=len(marks))
+    pos = np.full(n, -1, dtype=np.int64)
+    pos[rows] = np.arange(rows.size)
+    values = pa.array(["; ".join(m) for m in marks.values()], type=pa.string())
+    return pc.fill_null(pc.take(values, pa.array(pos, mask=pos < 0)), "")
 
 
 def chunk_columns(table: pa.Table | pa.RecordBatch, layout: Layout) -> dict[str, Any]:
@@ -280,10 +285,10 @@ def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
     refused = np.asarray(res.refused, dtype=bool)
     counts = {"reasons": Counter(res.problem_counts())}
     marks = res.has_marks()
-    quals = res.qualifiers() if marks else None
-    flags = res.lab_flags() if marks else None
+    quals = res.marked_rows("qualifiers") if marks else {}
+    flags = res.marked_rows("lab_flags") if marks else {}
     counts["qualifiers"] = _qualifier_counts(res) if marks else Counter()
-    counts["lab_flags"] = Counter(f for row in flags for f in row) if marks else Counter()
+    counts["lab_flags"] = Counter(f for row in flags.values() for f in row)
     fired = res.fired
     pco2, hco3 = res.values("pco2"), res.values("hco3")
     plain_fields = res.plain
@@ -347,8 +352,9 @@ def _qualifier_counts(res) -> Counter:
         for name, p in part.screened.readings.items():
             if p.comparator is None:
                 continue
-            marks = p.comparator
-            cells = marks.tolist() if isinstance(marks, np.ndarray) else marks.to_pylist()
+            marks = p.comparator  # only the censored cells are converted
+            cells = marks.tolist() if isinstance(marks, np.ndarray) else \
+                marks.drop_null().to_pylist()
             out.update(f"{name} {cmp}#" for cmp in cells if cmp is not None)
     return out
 

@@ -145,9 +145,17 @@ class Screened:
 
     def _marks(self, part, with_text: bool) -> list[tuple[str, ...]]:
         out: list[tuple[str, ...]] = [()] * self.n
+        for i, marks in self.marked_rows(with_text).items():
+            out[i] = marks
+        return out
+
+    def marked_rows(self, with_text: bool) -> dict[int, tuple[str, ...]]:
+        """Only the rows with marks: row -> its censored values (``with_text``, as
+        "lactate <0.3") or its laboratory flags ("ph L"), in field order."""
+        out: dict[int, tuple[str, ...]] = {}
         for name, p in self.readings.items():
             for i, mark in p.marks("comparator" if with_text else "flag"):
-                out[i] = (*out[i], f"{name} {mark.strip()}")
+                out[i] = (*out.get(i, ()), f"{name} {mark.strip()}")
         return out
 
 
