@@ -201,15 +201,24 @@ def _nonempty(arr: pa.Array) -> pa.Array:
 def tally_chunk(t: Tally, out: dict[str, pa.Array], pco2: np.ndarray, hco3: np.ndarray,
                 refused: np.ndarray, review: np.ndarray, start: int,
                 ids: dict[str, pa.Array | None], fired: np.ndarray,
-                listed: int = FLAGGED_LISTED, marks: dict[str, Counter] | None = None) -> None:
-    """Count one chunk into ``t``; list at most ``listed`` more flagged rows."""
+                listed: int = FLAGGED_LISTED, marks: dict[str, Counter] | None = None,
+                roles: dict[str, tuple[np.ndarray, list[str]]] | None = None) -> None:
+    """Count one chunk into ``t``; list at most ``listed`` more flagged rows.
+    ``roles``: each slot's role codes and their words (``check_chunk``'s
+    ``meta["roles"]``), counted as codes; without it, the role columns of ``out``."""
     n = len(refused)
     t.rows += n
     t.refused += int(refused.sum())
     t.review += int(review.sum())
     for slot, process, gap in SLOTS:
         name = f"{process}, {gap} gap" if gap else process
-        for role, c in _counts(out[f"role_{slot}"]).items():
+        if roles is None:
+            counted = _counts(out[f"role_{slot}"])
+        else:
+            codes, words = roles[slot]
+            counted = {w: int(c) for w, c in zip(words, np.bincount(
+                codes, minlength=len(words)).tolist()) if w and c}
+        for role, c in counted.items():
             t.processes[(name, role)] += c
     # Finding counts straight from the fired-rule matrix (rules x rows), interpreted
     # rows only; the same codes as the finding_codes column, without splitting text.
@@ -660,7 +669,8 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         """One chunk, on a worker thread: its output rows encoded for the writer, and
         its counts."""
         out, meta = _process(table, layout, decimal, settings, checker, start, profile.derived,
-                             severities=profile.severities, keep_results=fhir_out)
+                             severities=profile.severities, keep_results=fhir_out,
+                             wanted=None if fhir_out else profile.keeps)
         names = output_names(src.headers, meta["engine_cols"])
         cols = {ROW_COLUMN: pa.array(np.arange(start + 1, start + table.num_rows + 1))}
         for h in src.headers:
@@ -670,7 +680,7 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
                for k in ("sample_id", "patient_id")}
         part = Tally()
         tally_chunk(part, out, meta["pco2"], meta["hco3"], meta["refused"], meta["review"],
-                    start, ids, meta["fired"], listed, meta["counts"])
+                    start, ids, meta["fired"], listed, meta["counts"], meta["roles"])
         if fhir_out:
             lines = fhir.chunk_bundles(table, layout, decimal, out, meta, site, start,
                                        label, input_sha256)

@@ -12,7 +12,7 @@ from __future__ import annotations
 import dataclasses
 from collections import Counter
 from dataclasses import dataclass
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from typing import Any
 
 import numpy as np
@@ -21,6 +21,7 @@ import pyarrow.compute as pc
 
 from .. import loinc, serial
 from ..api import interpret_many
+from ..engine import SLOTS
 from ..errors import Problem
 from ..fields import BY_NAME
 from ..inputs.vocab import CHOICE_BY_NAME, normalise_word
@@ -257,7 +258,8 @@ def _implies(layout: Layout, header: str) -> bool:
 def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
                 settings: Settings | None, checker: serial.SerialChecker | None, start: int,
                 keep: tuple[str, ...] = DERIVED, missing: Sequence[str] = (),
-                severities: tuple[str, ...] | None = None, keep_results: bool = False
+                severities: tuple[str, ...] | None = None, keep_results: bool = False,
+                wanted: Callable[[str], bool] | None = None
                 ) -> tuple[dict[str, pa.Array], dict]:
     """The output columns of one chunk (kernel, review, marks, serial, caution) and what
     the summary needs (``meta``: refused and review masks, fired rules, counts; with
@@ -265,7 +267,10 @@ def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
 
     ``keep``: the derived values written (``hco3_difference`` among them adds that
     column); ``severities``: the findings whose codes ``finding_codes`` lists (None:
-    all; acidbase/profile.py)."""
+    all; acidbase/profile.py); ``wanted``: which of the kernel's text columns are
+    built at all (None: every one; the batch passes its profile's ``keeps``).  The
+    role columns' codes travel in ``meta["roles"]`` whether built or not (counted
+    for the summary)."""
     n = table.num_rows
     units = {k: v for k, v in layout.units.items() if v != BY_NAME[k].unit}
     missing = tuple(missing) or layout_missing(layout)
@@ -297,8 +302,11 @@ def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
     review = review_mask(fired, refused)
     out: dict[str, pa.Array] = {}
     engine_cols = [k for k in tab if not (k in DERIVED and k not in keep)]
+    roles = {slot: tab[f"role_{slot}"] for slot, _, _ in SLOTS}
     for key in engine_cols:
         col = tab.pop(key)  # each numpy column is let go once it is an Arrow one
+        if wanted is not None and not wanted(key):
+            continue
         if key == "status":  # two values: built from the mask, not converted cell by cell
             arr = pc.if_else(pa.array(refused), "refused", "interpreted")
         elif key == "reason":
@@ -337,7 +345,8 @@ def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
     col_of = layout.column_of
     plain = frozenset(col_of[f] for f in plain_fields if f in col_of)
     meta = {"engine_cols": engine_cols, "plain": plain, "refused": refused, "review": review,
-            "fired": fired, "pco2": pco2, "hco3": hco3, "counts": counts, "results": results}
+            "fired": fired, "pco2": pco2, "hco3": hco3, "counts": counts, "results": results,
+            "roles": roles}
     return out, meta
 
 
