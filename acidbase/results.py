@@ -11,7 +11,7 @@ each with its working and resolved citations.  ``interpret(panel)`` is
 from __future__ import annotations
 
 import functools
-from collections.abc import Mapping
+from collections.abc import Collection, Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -327,7 +327,14 @@ class Results:
         for slot, _, _ in SLOTS:
             key = key * 3 + f[f"role_{slot}"]
         key = key * 4 + f["timing_resp"]
-        uniques, inverse = np.unique(key, return_inverse=True)
+        # np.unique's (sorted uniques, inverse) by a table over the few possible keys
+        # (3 roles a slot, 4 timings): no sort of the rows.
+        seen = np.zeros(4 * 3 ** len(SLOTS), dtype=bool)
+        seen[key] = True
+        uniques = np.flatnonzero(seen)
+        remap = np.zeros(seen.size, dtype=np.int32)
+        remap[uniques] = np.arange(uniques.size, dtype=np.int32)
+        inverse = remap[key]
         labels = []
         for u in uniques.tolist():
             timing = u % 4
@@ -342,7 +349,8 @@ class Results:
             labels.append("; ".join(d.label() for d in self._disorders(row)))
         return inverse.reshape(-1).astype(np.int32), labels
 
-    def encoded(self, severities: tuple[str, ...] | None = None, difference: bool = False
+    def encoded(self, severities: tuple[str, ...] | None = None, difference: bool = False,
+                derived: Collection[str] | None = None
                 ) -> dict[str, np.ndarray | tuple[np.ndarray, list[str]]]:
         """The output columns of ``table``, with every text column except ``reason`` as
         ``(indices, labels)``: row i reads ``labels[indices[i]]``.
@@ -351,7 +359,8 @@ class Results:
         cell by cell; ``table`` materialises the same columns as object arrays.
         ``severities``: only those findings' codes in ``finding_codes`` (None: all);
         ``difference``: also ``hco3_difference`` (the frame's consistency difference,
-        measured minus calculated HCO3- or total CO2), after ``hco3_calculated``.
+        measured minus calculated HCO3- or total CO2), after ``hco3_calculated``;
+        ``derived``: only these derived values (None: all).
         """
         refused = self.refused
 
@@ -380,7 +389,8 @@ class Results:
                                       [w or "" for w in TIMING_NAMES])
         cols["finding_codes"] = self._encoded_codes(severities)
         for k in DERIVED:
-            cols[k] = col(k)
+            if derived is None or k in derived:
+                cols[k] = col(k)
             if difference and k == "hco3_calculated":
                 cols["hco3_difference"] = col("consistency_difference")
         return cols

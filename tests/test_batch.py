@@ -11,12 +11,16 @@ import re
 import shutil
 from pathlib import Path
 
+import numpy as np
 import pyarrow as pa
 import pydantic
 import pyarrow.parquet as pq
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 import acidbase
+from acidbase import batch as batch_module
 from acidbase.cli import main
 from acidbase.fields import NUMERIC
 
@@ -525,3 +529,21 @@ def test_report_says_why_each_listed_row_needs_review(tmp_path, capsys):
         serial = [c for c in row["serial_codes"].split(";") if c]
         assert first and item["review because"].split("; ") == first + serial
     assert "T-CRITICAL: " + BY_CODE["T-CRITICAL"].title in report.read_text()
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.tuples(st.floats(-20, 80, allow_nan=False), st.floats(-5, 130, allow_nan=False)),
+                min_size=1, max_size=60),
+       st.lists(st.tuples(st.integers(0, batch_module.PLANE_ROWS), st.integers(0, batch_module.PLANE_COLS)),
+                max_size=20))
+def test_plane_counts_are_numpys_histogram(points, on_edges):
+    """The summary's pCO2/HCO3- picture counts as numpy's histogram2d does (numpy is
+    the reference: the same bins, a value on the last edge in the last bin, values
+    outside left out), values on bin edges included."""
+    rows, cols = batch_module._PLANE_EDGES
+    points = points + [(rows[i], cols[j]) for i, j in on_edges]
+    hco3 = np.array([p[0] for p in points])
+    pco2 = np.array([p[1] for p in points])
+    ref, _, _ = np.histogram2d(hco3, pco2, bins=(batch_module.PLANE_ROWS, batch_module.PLANE_COLS),
+                               range=(batch_module.PLANE_HCO3, batch_module.PLANE_PCO2))
+    assert (batch_module.plane_counts(hco3, pco2) == ref.astype(np.int64)).all()

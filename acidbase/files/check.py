@@ -286,7 +286,7 @@ def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
     res = interpret_many(columns, units or None, settings, decimal=decimal, missing=missing,
                          row_problems=row_problems)
     # text columns as (indices, labels): no cell-by-cell conversion
-    tab = res.encoded(severities, "hco3_difference" in keep)
+    tab = res.encoded(severities, "hco3_difference" in keep, keep)
     refused = np.asarray(res.refused, dtype=bool)
     counts = {"reasons": Counter(res.problem_counts())}
     marks = res.has_marks()
