@@ -33,6 +33,7 @@ from __future__ import annotations
 import argparse
 import cProfile
 import csv
+import importlib.util
 import json
 import os
 import platform
@@ -88,11 +89,29 @@ def kernel(n: int, repeats: int) -> dict[str, float]:
             "kernel_text_seconds": t_text, "kernel_table_seconds": t_table}
 
 
+def child_env(**extra: str) -> dict[str, str]:
+    """The environment of the measured processes: the source tree first on the path,
+    and bytecode read from ``__pycache__`` as an installed package has it
+    (``compile_tree`` writes it; ``PYTHONDONTWRITEBYTECODE``, set in some shells,
+    would only stop the writing, and is dropped so a run does not differ from the
+    next)."""
+    env = dict(os.environ, PYTHONPATH=str(HERE.parent) + os.pathsep + os.environ.get(
+        "PYTHONPATH", ""), **extra)
+    env.pop("PYTHONDONTWRITEBYTECODE", None)
+    return env
+
+
+def compile_tree() -> None:
+    """Bytecode for the package's modules, as ``pip install`` writes it."""
+    import compileall
+
+    compileall.compile_dir(str(HERE.parent / "acidbase"), quiet=1)
+
+
 def child(args: list[str], env_extra: dict[str, str] | None = None) -> dict[str, float]:
     with tempfile.NamedTemporaryFile(suffix=".json", delete=False) as f:
         report = f.name
-    env = dict(os.environ, PYTHONPATH=str(HERE.parent) + os.pathsep + os.environ.get(
-        "PYTHONPATH", ""), **(env_extra or {}))
+    env = child_env(**(env_extra or {}))
     subprocess.run([sys.executable, str(HERE / "_child.py"), report, *args], check=True,
                    env=env, stderr=subprocess.DEVNULL)
     with open(report) as f:
@@ -176,8 +195,7 @@ def plain_script(path: str, out: str, n: int) -> dict[str, float]:
 def cold_start(runs: int) -> dict[str, float]:
     """Median wall time of fresh processes, alternating the commands run by run."""
     py = sys.executable
-    env = dict(os.environ, PYTHONPATH=str(HERE.parent) + os.pathsep + os.environ.get(
-        "PYTHONPATH", ""))
+    env = child_env()
     commands = {
         "numpy_import": [py, "-c", "import numpy"],
         "python_bare": [py, "-c", "pass"],
@@ -224,7 +242,7 @@ def stages(path: str, chunk_rows: int = 16384) -> dict[str, float]:
                 break
             t1 = time.perf_counter()
             out, meta = batch._process(table, layout, ".", None, None, start, profile.derived,
-                                       severities=profile.severities)
+                                       severities=profile.severities, wanted=profile.keeps)
             cols = {"row": pa.array(np.arange(start + 1, start + table.num_rows + 1))}
             cols.update({h: table[h] for h in src.headers})
             cols.update({k: v for k, v in out.items() if profile.keeps(k)})
@@ -287,6 +305,7 @@ def main() -> None:
     a = ap.parse_args()
     from acidbase import csvtext
 
+    compile_tree()
     results: dict[str, object] = {
         "date": time.strftime("%Y-%m-%d %H:%M UTC", time.gmtime()),
         "machine": f"{platform.machine()}, {os.cpu_count()} cores, Python "
@@ -294,6 +313,9 @@ def main() -> None:
                    f"{__import__('pyarrow').__version__}",
         "load_average_start": os.getloadavg(),
         "compiled_writer": csvtext.compiled_available(),
+        # pyarrow imports pandas, where installed, the first time it builds an array
+        # (about 0.3 s a run here); the README's install (`pip install .`) has none.
+        "pandas_installed": importlib.util.find_spec("pandas") is not None,
         "n": a.n, "big_n": a.big_n, "baseline_n": a.baseline_n, "repeats": a.repeats,
     }
     with tempfile.TemporaryDirectory(dir=a.workdir) as tmp:
@@ -323,7 +345,8 @@ def main() -> None:
     cs = results["cold_start"]
     lines = [
         (f"acidbase batch benchmark, {results['date']}; {results['machine']}; compiled CSV "
-         f"writer {'on' if results['compiled_writer'] else 'OFF'}"),
+         f"writer {'on' if results['compiled_writer'] else 'OFF'}; pandas "
+         f"{'installed (pyarrow imports it: about +0.3 s a run)' if results['pandas_installed'] else 'not installed'}"),
         (f"{a.n:,} synthetic panels ({results['file_mb']:.0f} MB CSV); medians of "
          f"{a.repeats}; load average {results['load_average_start'][0]:.1f} at start, "
          f"{results['load_average_end'][0]:.1f} at end"),
