@@ -726,8 +726,10 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         progress.update(done)
 
     # Chunks are checked and formatted on WORKERS threads (numpy and pyarrow release
-    # the GIL inside each operation) and written here in file order; besides the
-    # chunk being read, at most WORKERS are in hand at once, so memory stays bounded.
+    # the GIL inside each operation) and written here in file order.  One chunk more
+    # than there are workers is handed over, so that both stay busy while this thread
+    # reads the next; besides the chunk being read, at most WORKERS + 1 are in hand at
+    # once, so memory stays bounded.
     pool = ThreadPoolExecutor(WORKERS, thread_name_prefix="acidbase-batch")
     pending: deque[Future] = deque()
     try:
@@ -735,7 +737,7 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         for table in src.chunks():
             pending.append(pool.submit(work, table, start, FLAGGED_LISTED - len(tally.flagged)))
             start += table.num_rows
-            while len(pending) >= WORKERS:
+            while len(pending) > WORKERS:
                 finish(pending.popleft().result())
         while pending:
             finish(pending.popleft().result())
