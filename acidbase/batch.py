@@ -624,7 +624,11 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
     else:
         src = fileio.open_source(args.input, args.format, delimiter, args.encoding, args.missing,
                                  args.chunk_rows)
-    input_sha256 = audit.file_sha256(args.input)  # the audit record names the bytes read
+    # The audit record names the bytes read: hashed on a thread of its own while the
+    # run goes on (hashlib lets go of the interpreter lock on large blocks).
+    hashing = ThreadPoolExecutor(1, thread_name_prefix="acidbase-sha256")
+    stack.callback(hashing.shutdown)
+    input_hash = hashing.submit(audit.file_sha256, args.input)
     mapping = fileio.read_mapping(site.mapping) if site.mapping else None
     layout = fileio.map_headers(src.headers, mapping, units,
                                 args.strict_columns and src.format != hl7.FORMAT,
@@ -653,9 +657,9 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         notes.append("serial checks not run: they need patient_id and collected_at columns")
     data = staged.get("-o")
     writer = Writer(args.output, out_fmt, out_delim,
-                    metadata={"caution": CAUTION, "audit": json.dumps(audit.record(
+                    metadata=lambda: {"caution": CAUTION, "audit": json.dumps(audit.record(
                         site, started, None, input_name=label, input_path=args.input,
-                        input_sha256=input_sha256))},
+                        input_sha256=input_hash.result()))},
                     escape=escaped_columns(src.headers), decimals=profile.decimals,
                     sink=data.file if data else None)
     stack.callback(writer.close, False)  # after a commit, a no-op
@@ -701,7 +705,7 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
                     start, ids, meta["fired"], listed, meta["counts"], meta["roles"])
         if fhir_out:
             lines = fhir.chunk_bundles(table, layout, decimal, out, meta, site, start,
-                                       label, input_sha256)
+                                       label, input_hash.result())
             return (fhir.LINE_SCHEMA, lines), part, names, table.num_rows
         plain = frozenset(names[h] for h in meta["plain"])
         # the output profile (acidbase/profile.py): counted above, not all written
@@ -751,7 +755,7 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         notes.append(history.commit_run(store, checker, args.input, _audit(args)))
     summary = staged.get("--summary")
     record = audit.record(site, started, input_name=label, input_path=args.input,
-                          input_sha256=input_sha256,
+                          input_sha256=input_hash.result(),
                           rows={"read": tally.rows, "interpreted": tally.rows - tally.refused,
                                 "refused": tally.refused})
     text = summary_json(tally, notes, record) if (args.summary or "").endswith(".json") else \

@@ -23,7 +23,7 @@ import io
 import json
 import re
 import sys
-from collections.abc import Collection, Mapping, Sequence
+from collections.abc import Callable, Collection, Mapping, Sequence
 from pathlib import Path
 from typing import BinaryIO
 
@@ -377,14 +377,16 @@ class Writer:
     """
 
     def __init__(self, path: str | None, fmt: str, delimiter: str = ",",
-                 metadata: Mapping[str, str] | None = None,
+                 metadata: Mapping[str, str] | Callable[[], Mapping[str, str]] | None = None,
                  escape: Sequence[str] | None = None,
                  decimals: Mapping[str, int] | None = None,
                  sink: BinaryIO | None = None) -> None:
         """``escape``: the CSV columns that can carry text from the input (all when
         None); the others hold only the tool's own vocabulary and numbers.
         ``decimals``: number columns written to CSV with that many decimals (JSON
-        Lines and Parquet keep the full doubles, as ``check --json`` does)."""
+        Lines and Parquet keep the full doubles, as ``check --json`` does).
+        ``metadata`` (Parquet's key-value metadata) may be a function, called when the
+        first table is put (what it needs may still be on its way at the start)."""
         self.escape = None if escape is None else frozenset(escape)
         self.decimals = dict(decimals or {})
         to_stdout = sink is None and path in (None, "-")
@@ -395,7 +397,7 @@ class Writer:
         self.path = None if to_stdout else path
         self.fmt = fmt
         self.delimiter = delimiter
-        self.metadata = dict(metadata or {})
+        self.metadata = metadata if callable(metadata) else dict(metadata or {})
         self._own: OutputSet | None = None
         if sink is None and not to_stdout:
             self._own = OutputSet()
@@ -411,6 +413,8 @@ class Writer:
 
     def _open(self, schema: pa.Schema) -> None:
         self._sink = self._given if self._given is not None else sys.stdout.buffer
+        if callable(self.metadata):
+            self.metadata = dict(self.metadata())
         self.schema = schema.with_metadata(self.metadata) if self.metadata else schema
         if self.fmt == "csv":
             names = [escape_text(n) or "" for n in schema.names]  # headers come from input
