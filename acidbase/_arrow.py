@@ -42,6 +42,7 @@ class _Module:
 pa: Any = _Module("pyarrow")
 pc: Any = _Module("pyarrow.compute")
 ipc: Any = _Module("pyarrow.ipc")
+pq: Any = _Module("pyarrow.parquet")  # about 60 ms, needed only for Parquet files
 
 
 def is_arrow(x: object, kinds: tuple[str, ...] = ("Array", "ChunkedArray")) -> bool:

@@ -15,8 +15,8 @@ from dataclasses import dataclass, field
 
 import pyarrow as pa
 import pyarrow.csv as pa_csv
-import pyarrow.parquet as pq
 
+from .._arrow import pq
 from ..errors import BatchInputError
 from .formats import detect_format, sniff_csv
 

@@ -31,8 +31,8 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.csv as pa_csv
-import pyarrow.parquet as pq
 
+from .._arrow import pq
 from .outputs import OutputError, OutputSet
 
 #: Output formats, chosen by the name or by option.
