@@ -200,7 +200,7 @@ def _nonempty(arr: pa.Array) -> pa.Array:
 
 def tally_chunk(t: Tally, out: dict[str, pa.Array], pco2: np.ndarray, hco3: np.ndarray,
                 refused: np.ndarray, review: np.ndarray, start: int,
-                ids: dict[str, pa.Array | None], fired: np.ndarray,
+                ids: dict[str, pa.Array | pa.ChunkedArray | None], fired: np.ndarray,
                 listed: int = FLAGGED_LISTED, marks: dict[str, Counter] | None = None,
                 roles: dict[str, tuple[np.ndarray, list[str]]] | None = None) -> None:
     """Count one chunk into ``t``; list at most ``listed`` more flagged rows.
@@ -698,7 +698,7 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         for h in src.headers:
             cols[names[h]] = table[h]
         cols.update(out)
-        ids = {k: (table[col_of[k]].combine_chunks() if k in col_of else None)
+        ids = {k: (table[col_of[k]] if k in col_of else None)  # taken from only if listed
                for k in ("sample_id", "patient_id")}
         part = Tally()
         tally_chunk(part, out, meta["pco2"], meta["hco3"], meta["refused"], meta["review"],
