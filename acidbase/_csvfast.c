@@ -12,7 +12,9 @@
  *     rounded as its decimal digits say (ties to even, as Python's format does), no
  *     minus sign on a value that rounds to zero, NaN and infinities empty;
  *   - fileio.escape_formula: a text cell a spreadsheet would run as a formula
- *     (OWASP, "CSV injection") gets a leading apostrophe, unless it is a plain number.
+ *     (OWASP, "CSV injection") gets a leading apostrophe, unless it is a plain number;
+ *   - a dictionary column (a label per row): each label's cell is written once, by
+ *     the text kinds above (acidbase/csvtext.py), and copied for every row.
  *
  * Built with the limited API (abi3) and -ffp-contract=off: the rounding test below
  * must be the same IEEE arithmetic numpy does, with no fused multiply-add.
@@ -27,7 +29,8 @@
 #include <stdlib.h>
 #include <string.h>
 
-enum { K_NULL = 0, K_UTF8 = 1, K_LARGE_UTF8 = 2, K_INT64 = 3, K_FIXED = 4, K_BOOL = 5 };
+enum { K_NULL = 0, K_UTF8 = 1, K_LARGE_UTF8 = 2, K_INT64 = 3, K_FIXED = 4, K_BOOL = 5,
+       K_LABELS = 6 };
 
 #define MAX_DECIMALS 15
 #define FIXED_LIMIT 1e15 /* as fileio._FIXED_LIMIT: integer digits below, printf above */
@@ -38,8 +41,10 @@ typedef struct {
     int64_t offset;       /* the array's offset into its buffers */
     const uint8_t *valid; /* validity bitmap, NULL when every cell is valid */
     const uint8_t *b1;    /* offsets (text) or values */
-    const uint8_t *b2;    /* text bytes */
+    const uint8_t *b2;    /* text bytes; K_LABELS: the labels' cells, already written */
     Py_ssize_t n2;        /* size of b2 */
+    const int64_t *b3;    /* K_LABELS: where each label's cell starts in b2, and the end */
+    int64_t nlabels;      /* K_LABELS: how many labels */
 } Chunk;
 
 typedef struct {
@@ -214,6 +219,16 @@ static int cell(Out *o, Column *c, int64_t row) {
         o->len = (size_t)(q - o->p);
         return 0;
     }
+    case K_LABELS: { /* a dictionary column: label k's cell as the text kinds write it */
+        int32_t k = ((const int32_t *)ch->b1)[i];
+        if (k < 0 || k >= ch->nlabels) return -1;
+        int64_t a = ch->b3[k], b = ch->b3[k + 1];
+        if (a < 0 || b < a || b > (int64_t)ch->n2) return -1;
+        if (grow(o, (size_t)(b - a))) return -2;
+        memcpy(o->p + o->len, ch->b2 + a, (size_t)(b - a));
+        o->len += (size_t)(b - a);
+        return 0;
+    }
     case K_BOOL: {
         if (grow(o, 5)) return -2;
         const char *t = bit(ch->b1, i) ? "true" : "false";
@@ -232,6 +247,7 @@ static int64_t need(int kind, int which, int64_t offset, int64_t count) {
     if (which == 0 || kind == K_BOOL) return (last + 7) / 8; /* a bitmap */
     if (kind == K_UTF8) return 4 * (last + 1);
     if (kind == K_LARGE_UTF8) return 8 * (last + 1);
+    if (kind == K_LABELS) return 4 * last; /* int32 indices */
     return 8 * last; /* int64, float64 */
 }
 
@@ -279,7 +295,7 @@ static int view(Views *v, PyObject *obj, int64_t size, const uint8_t **ptr, Py_s
 static int read_column(Views *v, PyObject *spec, Py_ssize_t nrows, Column *c) {
     PyObject *chunks;
     if (!PyArg_ParseTuple(spec, "iiO", &c->kind, &c->param, &chunks)) return -1;
-    if (c->kind < K_NULL || c->kind > K_BOOL || (c->kind == K_FIXED &&
+    if (c->kind < K_NULL || c->kind > K_LABELS || (c->kind == K_FIXED &&
                                                  (c->param < 0 || c->param > MAX_DECIMALS))) {
         PyErr_SetString(PyExc_ValueError, "unknown column kind or decimals");
         return -1;
@@ -296,10 +312,10 @@ static int read_column(Views *v, PyObject *spec, Py_ssize_t nrows, Column *c) {
     int64_t end = 0;
     for (Py_ssize_t k = 0; k < nch; k++) {
         Chunk *ch = &c->chunks[k];
-        long long length, offset;
-        PyObject *bv, *b1, *b2;
-        if (!PyArg_ParseTuple(PyList_GetItem(chunks, k), "LLOOO", &length, &offset, &bv, &b1,
-                              &b2))
+        long long length, offset, nlabels = 0;
+        PyObject *bv, *b1, *b2, *b3 = Py_None;
+        if (!PyArg_ParseTuple(PyList_GetItem(chunks, k), "LLOOO|LO", &length, &offset, &bv,
+                              &b1, &b2, &nlabels, &b3))
             return -1;
         if (length < 0 || offset < 0) {
             PyErr_SetString(PyExc_ValueError, "negative length or offset");
@@ -314,9 +330,19 @@ static int read_column(Views *v, PyObject *spec, Py_ssize_t nrows, Column *c) {
         if (c->kind != K_NULL && length > 0 &&
             view(v, b1, need(c->kind, 1, offset, length), &ch->b1, NULL) < 0)
             return -1;
-        if ((c->kind == K_UTF8 || c->kind == K_LARGE_UTF8) && length > 0 &&
-            view(v, b2, 0, &ch->b2, &ch->n2) < 0)
+        if ((c->kind == K_UTF8 || c->kind == K_LARGE_UTF8 || c->kind == K_LABELS) &&
+            length > 0 && view(v, b2, 0, &ch->b2, &ch->n2) < 0)
             return -1;
+        if (c->kind == K_LABELS && length > 0) {
+            const uint8_t *starts;
+            if (nlabels < 0) {
+                PyErr_SetString(PyExc_ValueError, "a negative number of labels");
+                return -1;
+            }
+            if (view(v, b3, 8 * (nlabels + 1), &starts, NULL) < 0) return -1;
+            ch->b3 = (const int64_t *)starts;
+            ch->nlabels = nlabels;
+        }
     }
     if (end != nrows) {
         PyErr_SetString(PyExc_ValueError, "a column's chunks do not add up to the rows");
@@ -331,7 +357,10 @@ PyDoc_STRVAR(encode_doc,
              "CSV text (no header) of `rows` rows.  `columns`: a list of (kind, param, "
              "chunks), chunks a list of (length, offset, validity, buffer1, buffer2) "
              "with Arrow's buffers.  Kinds: 0 null, 1 text (param 1: escape formulas), "
-             "2 large text, 3 int64, 4 float64 as fixed text (param: decimals), 5 bool.");
+             "2 large text, 3 int64, 4 float64 as fixed text (param: decimals), 5 bool, "
+             "6 labels (a dictionary column: int32 indices in buffer1, its labels' cells "
+             "as written in buffer2, chunks carrying two more items: the number of labels "
+             "and an int64 buffer of where each label's cell starts, and the end).");
 
 static PyObject *encode(PyObject *self, PyObject *args) {
     PyObject *specs;

@@ -8,7 +8,8 @@ benchmarks), or the table has a column it does not write.  The C code does the
 reference's three steps in one pass over the rows without the interpreter lock:
 derived values as fixed-point text (``fileio.fixed_columns``), formula escaping
 (``fileio.escape_formula``) and Arrow's CSV writing with quoting "needed".  It
-writes text, integer, boolean, null and fixed-point float columns; a table with any
+writes text, dictionary-encoded text (each label's cell written once, then copied by
+index), integer, boolean, null and fixed-point float columns; a table with any
 other column (say a timestamp passed through from a Parquet input) goes to the
 reference whole.
 
@@ -20,6 +21,7 @@ from __future__ import annotations
 import os
 from collections.abc import Collection, Mapping
 
+import numpy as np
 import pyarrow as pa
 
 try:  # optional: absent when the package was installed without a C compiler
@@ -28,7 +30,7 @@ except ImportError:  # pragma: no cover - depends on the build
     _csvfast = None
 
 #: The compiled writer's kinds of column (see _csvfast.c).
-_NULL, _UTF8, _LARGE_UTF8, _INT64, _FIXED, _BOOL = range(6)
+_NULL, _UTF8, _LARGE_UTF8, _INT64, _FIXED, _BOOL, _LABELS = range(7)
 _MAX_DECIMALS = 15
 
 
@@ -47,10 +49,44 @@ def _chunks(col: pa.ChunkedArray, kind: int) -> list[tuple]:
     return out
 
 
+def _label_chunks(col: pa.ChunkedArray, esc: int) -> list[tuple] | None:
+    """A dictionary column's chunks for the compiled writer: each chunk's labels
+    written once as text cells (by the writer itself, so exactly as a text column's
+    cell), then copied row by row by index."""
+    out = []
+    for a in col.chunks:
+        labels = a.dictionary
+        if not pa.types.is_string(labels.type):
+            labels = labels.cast(pa.string())
+        cells = []
+        for k in range(len(labels)):
+            one = pa.chunked_array([labels.slice(k, 1)])
+            cells.append(_csvfast.encode([(_UTF8, esc, _chunks(one, _UTF8))], 1, b",")[:-1])
+        starts = np.zeros(len(cells) + 1, dtype=np.int64)
+        np.cumsum([len(c) for c in cells], out=starts[1:])
+        indices = a.indices
+        if not pa.types.is_int32(indices.type):
+            try:
+                indices = indices.cast(pa.int32())
+            except (pa.ArrowInvalid, OverflowError):
+                return None
+        bufs = indices.buffers()
+        out.append((len(a), indices.offset, bufs[0] if indices.null_count else None, bufs[1],
+                    b"".join(cells), len(cells), starts))
+    return out
+
+
 def _spec(name: str, col: pa.ChunkedArray, decimals: Mapping[str, int],
           escape: Collection[str] | None, plain: Collection[str]) -> tuple | None:
     """What the compiled writer is told about one column; None if it cannot write it."""
     t = col.type
+    if pa.types.is_dictionary(t):
+        v = t.value_type
+        if not (pa.types.is_string(v) or pa.types.is_large_string(v)):
+            return None
+        esc = int((escape is None or name in escape) and name not in plain)
+        chunks = _label_chunks(col, esc)
+        return None if chunks is None else (_LABELS, esc, chunks)
     if pa.types.is_string(t) or pa.types.is_large_string(t):
         esc = int((escape is None or name in escape) and name not in plain)
         kind = _UTF8 if pa.types.is_string(t) else _LARGE_UTF8

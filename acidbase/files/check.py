@@ -28,6 +28,7 @@ from ..inputs.vocab import CHOICE_BY_NAME, normalise_word
 from ..reference import Settings
 from ..results import CAUTION, DERIVED
 from .headers import Layout, map_headers
+from .writer import decoded
 
 #: Columns ``check_table`` adds around the kernel's own (``Results.encoded``).
 ROW_COLUMN = "row"
@@ -41,6 +42,13 @@ def review_rules() -> list[int]:
     from ..rules import RULES
 
     return [j for j, r in enumerate(RULES) if r.section == "trust" and r.severity != "info"]
+
+
+def labelled(indices: np.ndarray, labels: Sequence[str]) -> pa.DictionaryArray:
+    """A text column as Arrow keeps a few distinct values: row i reads
+    ``labels[indices[i]]`` (the CSV writer writes each label's cell once)."""
+    return pa.DictionaryArray.from_arrays(pa.array(indices, type=pa.int32()),
+                                          pa.array(list(labels), type=pa.string()))
 
 
 def review_mask(fired: np.ndarray, refused: np.ndarray) -> np.ndarray:
@@ -307,15 +315,10 @@ def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
         col = tab.pop(key)  # each numpy column is let go once it is an Arrow one
         if wanted is not None and not wanted(key):
             continue
-        if key == "status":  # two values: built from the mask, not converted cell by cell
-            arr = pc.if_else(pa.array(refused), "refused", "interpreted")
-        elif key == "reason":
+        if key == "reason":
             arr = sparse_text(col, refused)
-        elif isinstance(col, tuple):
-            indices, labels = col
-            arr = pa.DictionaryArray.from_arrays(
-                pa.array(indices, type=pa.int32()), pa.array(labels, type=pa.string())
-            ).cast(pa.string())
+        elif isinstance(col, tuple):  # kept as labels and indices: the writers decode
+            arr = labelled(*col)
         elif col.dtype == object:
             arr = pa.array(col, type=pa.string())
         elif col.dtype.kind == "f":
@@ -331,7 +334,7 @@ def check_chunk(table: pa.Table | pa.RecordBatch, layout: Layout, decimal: str,
         scols = {"serial_status": pa.repeat(pa.scalar("not run"), n),
                  "serial_codes": pa.repeat(pa.scalar(""), n),
                  "serial_detail": pa.repeat(pa.scalar(""), n)}
-    out["needs_review"] = pc.if_else(pa.array(review), "yes", "no")
+    out["needs_review"] = labelled(review.astype(np.int32), ["no", "yes"])
     out["qualifiers"] = _marks_column(quals, n)
     out["lab_flags"] = _marks_column(flags, n)
     for k in serial.COLUMNS:
@@ -401,7 +404,7 @@ def check_table(table: pa.Table | pa.RecordBatch, settings: Settings | None = No
     for h in layout.headers:
         cols[names[h]] = table.column(h)
     cols.update(out)
-    return pa.table(cols)
+    return decoded(pa.table(cols))  # every text column as text
 
 
 __all__ = ["EXTRA_COLUMNS", "PanelTable", "ROW_COLUMN", "check_chunk", "check_table",

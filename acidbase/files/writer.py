@@ -336,6 +336,15 @@ def jsonl_bytes(table: pa.Table) -> bytes:
     return lines.buffers()[2][int(offsets[0]):int(offsets[-1])].to_pybytes()
 
 
+def decoded(table: pa.Table) -> pa.Table:
+    """Dictionary-encoded columns (the batch's own labels: status, consistency,
+    disorders, finding codes...) as plain text; the table itself when it has none."""
+    if not any(pa.types.is_dictionary(t) for t in table.schema.types):
+        return table
+    return pa.table([c.cast(c.type.value_type) if pa.types.is_dictionary(c.type) else c
+                     for c in table.columns], names=table.column_names)
+
+
 def csv_rows(table: pa.Table, decimals: Mapping[str, int], escape: Collection[str] | None,
              plain: Collection[str], delimiter: str) -> pa.Buffer:
     """Rows of ``table`` as CSV text without a header: the reference the compiled
@@ -345,7 +354,7 @@ def csv_rows(table: pa.Table, decimals: Mapping[str, int], escape: Collection[st
     decimals; ``escape``: the text columns to formula-escape (None: all), except
     those in ``plain``, which the caller found to hold nothing to escape.
     """
-    table = fixed_columns(table, decimals)
+    table = fixed_columns(decoded(table), decimals)
     table = pa.table([escape_formula(c) if (escape is None or name in escape)
                       and name not in plain else c
                       for name, c in zip(table.column_names, table.columns)],
@@ -431,15 +440,17 @@ class Writer:
         ``plain``: columns of this table the caller has read cell by cell and found
         to hold only numbers or its own vocabulary, so escaping would change nothing.
         """
-        if self.fmt == "csv":  # derived values as fixed text: the schema says text
+        if self.fmt == "csv":  # derived values and labels as text: the schema says text
             from ..csvtext import compiled_csv
 
-            schema = pa.schema([pa.field(f.name, pa.string()) if f.name in self.decimals
-                                and pa.types.is_floating(f.type) else f for f in table.schema])
+            schema = pa.schema([pa.field(f.name, pa.string()) if (
+                f.name in self.decimals and pa.types.is_floating(f.type))
+                or pa.types.is_dictionary(f.type) else f for f in table.schema])
             text = compiled_csv(table, self.decimals, self.escape, plain, self.delimiter)
             if text is None:
                 text = csv_rows(table, self.decimals, self.escape, plain, self.delimiter)
             return schema, text
+        table = decoded(table)  # the file's columns are text, whatever the batch kept
         if self.fmt == "jsonl":
             return table.schema, jsonl_bytes(table)
         return table.schema, table
@@ -484,5 +495,5 @@ class Writer:
                 self._own.discard()
 
 
-__all__ = ["FORMULA_STARTS", "OUTPUT_FORMATS", "Writer", "csv_rows", "escape_danger",
+__all__ = ["FORMULA_STARTS", "OUTPUT_FORMATS", "Writer", "csv_rows", "decoded", "escape_danger",
            "escape_formula", "escape_text", "fixed_columns", "format_fixed", "jsonl_bytes", "output_format"]
