@@ -413,8 +413,60 @@ done:
     return result;
 }
 
+PyDoc_STRVAR(cells_doc,
+             "cells(column, rows) -> (bytes, starts)\n\n"
+             "Each of `rows` cells of one column (as `encode` takes it) as `encode` writes "
+             "it, with no delimiter or line end: the bytes of all, and an int64 buffer of "
+             "where each cell starts, and the end.");
+
+static PyObject *cells(PyObject *self, PyObject *args) {
+    PyObject *spec;
+    Py_ssize_t nrows;
+    if (!PyArg_ParseTuple(args, "On", &spec, &nrows)) return NULL;
+    if (nrows < 0) {
+        PyErr_SetString(PyExc_ValueError, "a negative number of rows");
+        return NULL;
+    }
+    Views v = {NULL, 0, 0};
+    Column col = {0};
+    PyObject *text = NULL, *starts = NULL, *result = NULL;
+    Out o = {NULL, 0, 0};
+    int64_t *at = PyMem_Malloc(((size_t)nrows + 1) * sizeof(int64_t));
+    int rc = 0;
+    if (!at) {
+        PyErr_NoMemory();
+        goto done;
+    }
+    if (read_column(&v, spec, nrows, &col) < 0) goto done;
+    for (int64_t r = 0; r < nrows && rc == 0; r++) {
+        at[r] = (int64_t)o.len;
+        rc = cell(&o, &col, r);
+    }
+    at[nrows] = (int64_t)o.len;
+    if (rc == -1) {
+        PyErr_SetString(PyExc_ValueError, "a text column's offsets are out of bounds");
+        goto done;
+    }
+    if (rc) {
+        PyErr_NoMemory();
+        goto done;
+    }
+    text = PyBytes_FromStringAndSize(o.p ? o.p : "", (Py_ssize_t)o.len);
+    starts = PyBytes_FromStringAndSize((const char *)at, (Py_ssize_t)((nrows + 1) * 8));
+    if (text && starts) result = PyTuple_Pack(2, text, starts);
+done:
+    Py_XDECREF(text);
+    Py_XDECREF(starts);
+    free(o.p);
+    PyMem_Free(col.chunks);
+    PyMem_Free(at);
+    release(&v);
+    return result;
+}
+
 static PyMethodDef methods[] = {
     {"encode", encode, METH_VARARGS, encode_doc},
+    {"cells", cells, METH_VARARGS, cells_doc},
     {NULL, NULL, 0, NULL},
 };
 

@@ -21,7 +21,6 @@ from __future__ import annotations
 import os
 from collections.abc import Collection, Mapping
 
-import numpy as np
 import pyarrow as pa
 
 try:  # optional: absent when the package was installed without a C compiler
@@ -58,12 +57,8 @@ def _label_chunks(col: pa.ChunkedArray, esc: int) -> list[tuple] | None:
         labels = a.dictionary
         if not pa.types.is_string(labels.type):
             labels = labels.cast(pa.string())
-        cells = []
-        for k in range(len(labels)):
-            one = pa.chunked_array([labels.slice(k, 1)])
-            cells.append(_csvfast.encode([(_UTF8, esc, _chunks(one, _UTF8))], 1, b",")[:-1])
-        starts = np.zeros(len(cells) + 1, dtype=np.int64)
-        np.cumsum([len(c) for c in cells], out=starts[1:])
+        text, starts = _csvfast.cells(
+            (_UTF8, esc, _chunks(pa.chunked_array([labels], pa.string()), _UTF8)), len(labels))
         indices = a.indices
         if not pa.types.is_int32(indices.type):
             try:
@@ -72,7 +67,7 @@ def _label_chunks(col: pa.ChunkedArray, esc: int) -> list[tuple] | None:
                 return None
         bufs = indices.buffers()
         out.append((len(a), indices.offset, bufs[0] if indices.null_count else None, bufs[1],
-                    b"".join(cells), len(cells), starts))
+                    text, len(labels), starts))
     return out
 
 
