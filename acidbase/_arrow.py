@@ -21,19 +21,20 @@ from typing import Any
 class _Module:
     """Stands in for a module until an attribute is asked for, then imports it."""
 
-    __slots__ = ("_name", "_module")
-
     def __init__(self, name: str) -> None:
         self._name = name
         self._module = None
 
     def __getattr__(self, attr: str) -> Any:
-        # Only called for names that are not slots: the module, once imported, is kept
-        # (the batch asks for pyarrow's functions tens of thousands of times a run).
+        # Called only for a name not yet looked up: each is kept on the stand-in, so
+        # the next lookup is a plain attribute (the batch asks for pyarrow's functions
+        # tens of thousands of times a run).
         module = self._module
         if module is None:
             module = self._module = importlib.import_module(self._name)
-        return getattr(module, attr)
+        value = getattr(module, attr)
+        self.__dict__[attr] = value
+        return value
 
     def __repr__(self) -> str:
         return f"<{self._name}, imported on first use>"
