@@ -14,22 +14,20 @@ import sys
 from collections.abc import Sequence
 from typing import Any
 
-from pydantic import ValidationError
-
 from . import audit
 from . import serial as serial_defaults
-from .api import interpret, interpret_many
+from .api import interpret_many
 from .config import ENV_VAR, OBSERVATION_STATUSES
 from .config import resolve as resolve_site
-from .errors import AcidBaseError
-from .fields import NUMERIC, TEXT_FIELDS
+from .errors import AcidBaseError, UnitError
+from .fields import BY_NAME, NUMERIC, TEXT_FIELDS
 from .files.formats import FORMATS
 from .inputs.vocab import CHOICES
-from .inputs.panel import Panel, describe
 from .profile import FINDINGS, PROFILES
 from .reference import Settings
 from .report import as_text
 from .results import CAUTION
+from .units import factor
 
 EXIT_OK, EXIT_REFUSED = 0, 2
 #: Standard output closed by its reader: 128 + SIGPIPE, as a shell reports it.
@@ -192,21 +190,59 @@ def _refuse(lines: Sequence[str]) -> int:
     return EXIT_REFUSED
 
 
+def panel_columns(args: argparse.Namespace, site_units: dict[str, str]
+                  ) -> tuple[dict[str, list[Any]], dict[str, str]]:
+    """The panel given as options, as one-row columns of the cells as typed, and the
+    units: each unit option given (checked even without its value, as a form would),
+    else the site's default unit for a value given."""
+    columns: dict[str, list[Any]] = {}
+    units: dict[str, str] = {}
+    for spec in NUMERIC:
+        value = getattr(args, spec.name, None)
+        unit = getattr(args, f"{spec.name}_unit", None)
+        if value is not None:
+            columns[spec.name] = [value]
+            if unit is None:
+                unit = site_units.get(spec.name)
+        if unit is not None:
+            units[spec.name] = unit
+    for choice in CHOICES:
+        value = getattr(args, choice.name, None)
+        if value is not None:
+            columns[choice.name] = [value]
+    return columns, units
+
+
+def unit_refusals(units: dict[str, str]) -> list[str]:
+    """A line for each unit its field does not accept (the units' one check, ``factor``)."""
+    lines = []
+    for name, unit in units.items():
+        try:
+            factor(name, BY_NAME[name].kind, unit)
+        except UnitError as e:
+            lines.append(str(e))
+    return lines
+
+
 def cmd_check(args: argparse.Namespace) -> int:
+    """One panel, read as a batch of one: the options go through the cell reader and the
+    column screen that files go through (no pydantic model), so a cell given here is
+    refused, or read, with the same words as in a file."""
     started = audit.now()
     site = resolve_site(args)
-    data = panel_from_args(args)
-    for name, unit in site.units.items():  # the site's default units, where none is given
-        if name in data:
-            data.setdefault(f"{name}_unit", unit)
-    try:
-        panel = Panel.model_validate(data, context={"decimal": args.decimal})
-    except ValidationError as e:
-        return _refuse(describe(e))
-    it = interpret(panel, site.settings)
+    columns, units = panel_columns(args, site.units)
+    bad_units = unit_refusals(units)
+    if bad_units:
+        return _refuse(bad_units)
+    it = interpret_many(columns, units, site.settings, decimal=args.decimal).interpretation(0)
+    if it.status == "refused":
+        return _refuse([str(p) for p in it.problems])
     if args.fhir:
         from .fhir import check_bundle_json
 
+        panel = _validated_panel(args, site.units)
+        if isinstance(panel, int):
+            return panel
         print(check_bundle_json(panel, it, site, started))
     elif args.json:
         doc = it.to_dict()
@@ -215,6 +251,23 @@ def cmd_check(args: argparse.Namespace) -> int:
     else:
         print(as_text(it, working=not args.brief), end="")
     return EXIT_OK
+
+
+def _validated_panel(args: argparse.Namespace, site_units: dict[str, str] | None = None):
+    """The options as the library's validated ``Panel`` (pydantic; for the surfaces that
+    need the model: the FHIR bundle and the app), or the refusal's exit status."""
+    from pydantic import ValidationError
+
+    from .inputs.panel import Panel, describe
+
+    data = panel_from_args(args)
+    for name, unit in (site_units or {}).items():  # the site's default units, where none
+        if name in data:
+            data.setdefault(f"{name}_unit", unit)
+    try:
+        return Panel.model_validate(data, context={"decimal": args.decimal})
+    except ValidationError as e:
+        return _refuse(describe(e))
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
@@ -287,13 +340,11 @@ def cmd_history(args: argparse.Namespace) -> int:
 
 
 def cmd_tui(args: argparse.Namespace) -> int:
-    data = panel_from_args(args)
     panel = None
-    if data:
-        try:
-            panel = Panel.model_validate(data, context={"decimal": args.decimal})
-        except ValidationError as e:
-            return _refuse(describe(e))
+    if panel_from_args(args):
+        panel = _validated_panel(args)
+        if isinstance(panel, int):
+            return panel
     from tui.app import make_app
 
     make_app(panel=panel, demo=args.demo, settings=settings_from_args(args)).run()
