@@ -8,7 +8,6 @@ from __future__ import annotations
 import dataclasses
 import os
 from collections.abc import Mapping, Sequence
-from concurrent.futures import ThreadPoolExecutor
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -155,6 +154,8 @@ def interpret_many(
         return _part(cols, units, settings, start, decimal, missing, mine)
 
     if THREADS > 1:
+        from concurrent.futures import ThreadPoolExecutor  # only columns this long need it
+
         with ThreadPoolExecutor(THREADS) as pool:
             parts = list(pool.map(run, starts))
     else:

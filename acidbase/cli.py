@@ -15,15 +15,12 @@ from collections.abc import Sequence
 from typing import Any
 
 from . import audit
-from . import serial as serial_defaults
 from .api import interpret_many
 from .config import ENV_VAR, OBSERVATION_STATUSES
 from .config import resolve as resolve_site
 from .errors import AcidBaseError, UnitError
 from .fields import BY_NAME, NUMERIC, TEXT_FIELDS
-from .files.formats import FORMATS
 from .inputs.vocab import CHOICES
-from .profile import FINDINGS, PROFILES
 from .reference import Settings
 from .report import as_text
 from .results import CAUTION
@@ -81,6 +78,10 @@ def add_settings_options(p: argparse.ArgumentParser) -> None:
 
 def configure_batch_parser(p: argparse.ArgumentParser) -> None:
     """Options of ``acidbase batch``."""
+    from . import serial as serial_defaults
+    from .files.formats import FORMATS
+    from .profile import FINDINGS, PROFILES
+
     p.description = (
         "Check every panel in a file (CSV, JSON Lines or Parquet) and write one output row "
         "per input row, in input order, with status, reason, findings and serial checks. "
@@ -372,29 +373,61 @@ def configure_history_parser(p: argparse.ArgumentParser) -> None:
     p.add_argument("--json", action="store_true", help="the summary as JSON")
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(command: str | None = None) -> argparse.ArgumentParser:
+    """The whole command line; with ``command``, only that command's options are added
+    (the others are listed with their one-line help, as ``--help`` shows them), so a
+    run builds, and imports for, the options it can use and no other."""
     parser = argparse.ArgumentParser(
         prog="acidbase",
         description=_help("Check and interpret blood-gas and electrolyte panels. " + CAUTION))
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
-    check = sub.add_parser("check", help="read one panel given as options",
-                           description="Read one panel: trust, processes, derived values.")
+    versioned: list[argparse.ArgumentParser] = []  # the commands that take --version
+
+    def add(name: str, configure, version: bool = True, **kw: Any) -> None:
+        p = sub.add_parser(name, **kw)
+        if command is None or command == name:
+            configure(p)
+            if version:
+                versioned.append(p)
+
+    add("check", _configure_check, help="read one panel given as options",
+        description="Read one panel: trust, processes, derived values.")
+    add("demo", _configure_demo, help="read the built-in demo panels")
+    add("batch", _configure_batch, help="check a file of panels")
+    add("shard", _configure_shard, version=False,
+        help="split a file into Parquet shards by patient", description="Split INPUT into Parquet files, a patient's rows always in the same "
+                    "one, for checking shard by shard (docs/scale.md).")
+    add("history", _configure_history, version=False,
+        help="what a history store holds; export or purge a patient")
+    add("tui", _configure_tui, help="the keyboard-only terminal app")
+    add("config", _configure_config, help="the site configuration in force",
+        description="Show the settings in force and where each came from (built-in "
+                    "default, configuration file, option).")
+    for p in (parser, *versioned):
+        p.add_argument("--version", action="version", version=f"acidbase {audit.version()}")
+    return parser
+
+
+def _configure_check(check: argparse.ArgumentParser) -> None:
     add_panel_options(check)
     check.add_argument("--json", action="store_true", help="print the JSON document")
     check.add_argument("--brief", action="store_true", help="leave out the working")
     check.add_argument("--fhir", action="store_true",
                        help="print the reading as a FHIR R4 Bundle (JSON; needs acidbase[fhir])")
     check.set_defaults(func=cmd_check)
-    demo = sub.add_parser("demo", help="read the built-in demo panels")
+
+
+def _configure_demo(demo: argparse.ArgumentParser) -> None:
     demo.add_argument("--json", action="store_true")
     demo.set_defaults(func=cmd_demo)
-    batch = sub.add_parser("batch", help="check a file of panels")
+
+
+def _configure_batch(batch: argparse.ArgumentParser) -> None:
     configure_batch_parser(batch)
     batch.set_defaults(func=cmd_batch)
-    shard = sub.add_parser("shard", help="split a file into Parquet shards by patient",
-                           description="Split INPUT into Parquet files, a patient's rows always "
-                                       "in the same one, for checking shard by shard "
-                                       "(docs/scale.md).")
+
+
+def _configure_shard(shard: argparse.ArgumentParser) -> None:
     shard.add_argument("input", metavar="INPUT")
     shard.add_argument("folder", metavar="FOLDER", help="where the shard files go (created)")
     shard.add_argument("--shards", type=int, default=16, metavar="N",
@@ -402,29 +435,39 @@ def build_parser() -> argparse.ArgumentParser:
     shard.add_argument("--patient-column", metavar="HEADER",
                        help="the patient id column (default: the one read as patient_id)")
     shard.set_defaults(func=cmd_shard)
-    hist = sub.add_parser("history", help="what a history store holds; export or purge a patient")
+
+
+def _configure_history(hist: argparse.ArgumentParser) -> None:
     configure_history_parser(hist)
     hist.set_defaults(func=cmd_history)
-    tui = sub.add_parser("tui", help="the keyboard-only terminal app")
+
+
+def _configure_tui(tui: argparse.ArgumentParser) -> None:
     add_panel_options(tui)
     tui.add_argument("--demo", action="store_true", help="open with the demo panels loaded")
     tui.set_defaults(func=cmd_tui)
-    config = sub.add_parser("config", help="the site configuration in force",
-                            description="Show the settings in force and where each came from "
-                                        "(built-in default, configuration file, option).")
+
+
+def _configure_config(config: argparse.ArgumentParser) -> None:
     config_sub = config.add_subparsers(dest="action", required=True, metavar="ACTION")
     show = config_sub.add_parser("show", help="print every setting and its origin")
     add_settings_options(show)
     show.set_defaults(func=cmd_config)
-    for p in (parser, check, demo, batch, tui, config, show):
-        p.add_argument("--version", action="version", version=f"acidbase {audit.version()}")
-    return parser
+    show.add_argument("--version", action="version", version=f"acidbase {audit.version()}")
+
+
+def _command(argv: Sequence[str]) -> str:
+    """The command word of ``argv``: its first word that is not an option (the top level
+    takes no option with a value), or "" when there is none (``acidbase --help``)."""
+    return next((a for a in argv if not a.startswith("-")), "")
 
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Run one command; its exit status (module docstring).  A reader that closes
     standard output early (``acidbase demo | head``) ends the command quietly with 141."""
-    parser = build_parser()
+    if argv is None:
+        argv = sys.argv[1:]
+    parser = build_parser(_command(argv))
     try:
         args = parser.parse_args(argv)
     except BrokenPipeError:  # --help into a closed pipe
