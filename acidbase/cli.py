@@ -18,13 +18,13 @@ from . import audit
 from .api import interpret_many
 from .config import ENV_VAR, OBSERVATION_STATUSES
 from .config import resolve as resolve_site
-from .errors import AcidBaseError, UnitError
+from .errors import AcidBaseError
 from .fields import BY_NAME, NUMERIC, TEXT_FIELDS
+from .inputs.panel import unit_refusal
 from .inputs.vocab import CHOICES
 from .reference import Settings
 from .report import as_text
 from .results import CAUTION
-from .units import factor
 
 EXIT_OK, EXIT_REFUSED = 0, 2
 #: Standard output closed by its reader: 128 + SIGPIPE, as a shell reports it.
@@ -215,14 +215,9 @@ def panel_columns(args: argparse.Namespace, site_units: dict[str, str]
 
 
 def unit_refusals(units: dict[str, str]) -> list[str]:
-    """A line for each unit its field does not accept (the units' one check, ``factor``)."""
-    lines = []
-    for name, unit in units.items():
-        try:
-            factor(name, BY_NAME[name].kind, unit)
-        except UnitError as e:
-            lines.append(str(e))
-    return lines
+    """A line for each unit its field does not accept, as ``Panel`` words it."""
+    return [line for name, unit in units.items()
+            if (line := unit_refusal(BY_NAME[name], unit)) is not None]
 
 
 def cmd_check(args: argparse.Namespace) -> int:

@@ -279,6 +279,23 @@ def censored_problem(spec: FieldSpec, cell: object, unit: str) -> Problem:
 # The single-panel model (pydantic v2)
 
 
+#: A unit its field does not accept, as ``Panel`` and ``acidbase check`` say it (the
+#: line is ``<field>_unit: `` and this sentence; ``describe_fields``, ``unit_refusal``).
+UNIT_NOT_ACCEPTED = "unit '{unit}' is not accepted for {title}; use one of {accepted}"
+
+
+def _unit_context(spec: FieldSpec, unit: object) -> dict[str, str]:
+    return {"unit": unit, "title": spec.title, "accepted": ", ".join(spec.units)}
+
+
+def unit_refusal(spec: FieldSpec, unit: object) -> str | None:
+    """The readable line for a unit given for ``spec`` that it does not accept (None when
+    it does): the same line ``describe`` makes of ``Panel``'s error."""
+    if isinstance(unit, str) and _units.normalise(unit) in spec.units:
+        return None
+    return f"{spec.name}_unit: " + UNIT_NOT_ACCEPTED.format(**_unit_context(spec, unit))
+
+
 # pydantic and the model are built when ``Panel`` is first asked for (``__getattr__``
 # below): a single panel read from options or columns (``acidbase check``,
 # ``interpret_many``) goes through ``screen`` and never needs them, and importing
@@ -373,11 +390,8 @@ def _unit_validator(spec: FieldSpec):
     def check(cls, value: str) -> str:
         code = _units.normalise(value)
         if code not in spec.units:
-            raise PydanticCustomError(
-                "unit_not_accepted",
-                "unit '{unit}' is not accepted for {title}; use one of {accepted}",
-                {"unit": value, "title": spec.title, "accepted": ", ".join(spec.units)},
-            )
+            raise PydanticCustomError("unit_not_accepted", UNIT_NOT_ACCEPTED,
+                                      _unit_context(spec, value))
         return code
     return field_validator(f"{spec.name}_unit")(check)
 
@@ -519,11 +533,6 @@ def describe_fields(error: ValidationError) -> list[tuple[str, str]]:
         msg = e["msg"]
         if e["type"] == "missing" and spec is not None:
             line = str(Problem(spec.name, spec.title, None, spec.unit, kind="missing"))
-        elif e["type"] == "unit_not_accepted" and loc.removesuffix("_unit") in BY_NAME:
-            # the units' own error, as the column path and files say it (units.factor)
-            unit_of = BY_NAME[loc.removesuffix("_unit")]
-            line = str(UnitError(field=unit_of.name, unit=str((e.get("ctx") or {}).get(
-                "unit", e.get("input"))), accepted=unit_of.units))
         elif e["type"] in PROBLEM_KINDS:
             line = msg
         elif spec is not None:
