@@ -446,7 +446,7 @@ def _choice_validator(choice: Choice):
 
 _PANEL_DOC = """One blood-gas and electrolyte panel, validated.
 
-Required: ph, pco2, hco3, na, cl.  Every numeric field has a ``<name>_unit``
+Required: ph, pco2, hco3 (``acidbase.fields.REQUIRED``).  Every numeric field has a ``<name>_unit``
 (UCUM) defaulting to its canonical unit; see ``acidbase.fields`` for the ranges.
 Each value is read by the one cell reader (``acidbase.inputs.cells``: numbers or
 text such as "7.21 L" or "<0.3"); a decimal comma is read when the validation
