@@ -8,8 +8,7 @@ from __future__ import annotations
 import dataclasses
 import os
 from collections.abc import Mapping, Sequence
-from concurrent.futures import ThreadPoolExecutor
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -19,10 +18,13 @@ from .errors import ColumnError, Problem, UnitError
 from .fields import BY_NAME, TEXT_FIELDS
 from .inputs.cells import _objects, is_column, read_choices
 from .inputs.vocab import CHOICES
-from .inputs.panel import Panel, _length, screen
+from .inputs.panel import _length, screen
 from .reference import Settings
 from .results import Interpretation, Part, Results
 from .units import factor
+
+if TYPE_CHECKING:
+    from .inputs.panel import Panel
 
 #: Rows per slice: large enough that Python's per-call overhead and the threads'
 #: hand-overs of the interpreter lock (one per numpy call) are small against the
@@ -152,6 +154,8 @@ def interpret_many(
         return _part(cols, units, settings, start, decimal, missing, mine)
 
     if THREADS > 1:
+        from concurrent.futures import ThreadPoolExecutor  # only columns this long need it
+
         with ThreadPoolExecutor(THREADS) as pool:
             parts = list(pool.map(run, starts))
     else:

@@ -14,19 +14,14 @@ import sys
 from collections.abc import Sequence
 from typing import Any
 
-from pydantic import ValidationError
-
 from . import audit
-from . import serial as serial_defaults
-from .api import interpret, interpret_many
+from .api import interpret_many
 from .config import ENV_VAR, OBSERVATION_STATUSES
 from .config import resolve as resolve_site
 from .errors import AcidBaseError
-from .fields import NUMERIC, TEXT_FIELDS
-from .files.formats import FORMATS
+from .fields import BY_NAME, NUMERIC, TEXT_FIELDS
+from .inputs.panel import unit_refusal
 from .inputs.vocab import CHOICES
-from .inputs.panel import Panel, describe
-from .profile import FINDINGS, PROFILES
 from .reference import Settings
 from .report import as_text
 from .results import CAUTION
@@ -83,6 +78,10 @@ def add_settings_options(p: argparse.ArgumentParser) -> None:
 
 def configure_batch_parser(p: argparse.ArgumentParser) -> None:
     """Options of ``acidbase batch``."""
+    from . import serial as serial_defaults
+    from .files.formats import FORMATS
+    from .profile import FINDINGS, PROFILES
+
     p.description = (
         "Check every panel in a file (CSV, JSON Lines or Parquet) and write one output row "
         "per input row, in input order, with status, reason, findings and serial checks. "
@@ -192,21 +191,54 @@ def _refuse(lines: Sequence[str]) -> int:
     return EXIT_REFUSED
 
 
+def panel_columns(args: argparse.Namespace, site_units: dict[str, str]
+                  ) -> tuple[dict[str, list[Any]], dict[str, str]]:
+    """The panel given as options, as one-row columns of the cells as typed, and the
+    units: each unit option given (checked even without its value, as a form would),
+    else the site's default unit for a value given."""
+    columns: dict[str, list[Any]] = {}
+    units: dict[str, str] = {}
+    for spec in NUMERIC:
+        value = getattr(args, spec.name, None)
+        unit = getattr(args, f"{spec.name}_unit", None)
+        if value is not None:
+            columns[spec.name] = [value]
+            if unit is None:
+                unit = site_units.get(spec.name)
+        if unit is not None:
+            units[spec.name] = unit
+    for choice in CHOICES:
+        value = getattr(args, choice.name, None)
+        if value is not None:
+            columns[choice.name] = [value]
+    return columns, units
+
+
+def unit_refusals(units: dict[str, str]) -> list[str]:
+    """A line for each unit its field does not accept, as ``Panel`` words it."""
+    return [line for name, unit in units.items()
+            if (line := unit_refusal(BY_NAME[name], unit)) is not None]
+
+
 def cmd_check(args: argparse.Namespace) -> int:
+    """One panel, read as a batch of one: the options go through the cell reader and the
+    column screen that files go through (no pydantic model), so a cell given here is
+    refused, or read, with the same words as in a file."""
     started = audit.now()
     site = resolve_site(args)
-    data = panel_from_args(args)
-    for name, unit in site.units.items():  # the site's default units, where none is given
-        if name in data:
-            data.setdefault(f"{name}_unit", unit)
-    try:
-        panel = Panel.model_validate(data, context={"decimal": args.decimal})
-    except ValidationError as e:
-        return _refuse(describe(e))
-    it = interpret(panel, site.settings)
+    columns, units = panel_columns(args, site.units)
+    bad_units = unit_refusals(units)
+    if bad_units:
+        return _refuse(bad_units)
+    it = interpret_many(columns, units, site.settings, decimal=args.decimal).interpretation(0)
+    if it.status == "refused":
+        return _refuse([str(p) for p in it.problems])
     if args.fhir:
         from .fhir import check_bundle_json
 
+        panel = _validated_panel(args, site.units)
+        if isinstance(panel, int):
+            return panel
         print(check_bundle_json(panel, it, site, started))
     elif args.json:
         doc = it.to_dict()
@@ -215,6 +247,23 @@ def cmd_check(args: argparse.Namespace) -> int:
     else:
         print(as_text(it, working=not args.brief), end="")
     return EXIT_OK
+
+
+def _validated_panel(args: argparse.Namespace, site_units: dict[str, str] | None = None):
+    """The options as the library's validated ``Panel`` (pydantic; for the surfaces that
+    need the model: the FHIR bundle and the app), or the refusal's exit status."""
+    from pydantic import ValidationError
+
+    from .inputs.panel import Panel, describe
+
+    data = panel_from_args(args)
+    for name, unit in (site_units or {}).items():  # the site's default units, where none
+        if name in data:
+            data.setdefault(f"{name}_unit", unit)
+    try:
+        return Panel.model_validate(data, context={"decimal": args.decimal})
+    except ValidationError as e:
+        return _refuse(describe(e))
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
@@ -287,13 +336,11 @@ def cmd_history(args: argparse.Namespace) -> int:
 
 
 def cmd_tui(args: argparse.Namespace) -> int:
-    data = panel_from_args(args)
     panel = None
-    if data:
-        try:
-            panel = Panel.model_validate(data, context={"decimal": args.decimal})
-        except ValidationError as e:
-            return _refuse(describe(e))
+    if panel_from_args(args):
+        panel = _validated_panel(args)
+        if isinstance(panel, int):
+            return panel
     from tui.app import make_app
 
     make_app(panel=panel, demo=args.demo, settings=settings_from_args(args)).run()
@@ -321,29 +368,61 @@ def configure_history_parser(p: argparse.ArgumentParser) -> None:
     p.add_argument("--json", action="store_true", help="the summary as JSON")
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(command: str | None = None) -> argparse.ArgumentParser:
+    """The whole command line; with ``command``, only that command's options are added
+    (the others are listed with their one-line help, as ``--help`` shows them), so a
+    run builds, and imports for, the options it can use and no other."""
     parser = argparse.ArgumentParser(
         prog="acidbase",
         description=_help("Check and interpret blood-gas and electrolyte panels. " + CAUTION))
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
-    check = sub.add_parser("check", help="read one panel given as options",
-                           description="Read one panel: trust, processes, derived values.")
+    versioned: list[argparse.ArgumentParser] = []  # the commands that take --version
+
+    def add(name: str, configure, version: bool = True, **kw: Any) -> None:
+        p = sub.add_parser(name, **kw)
+        if command is None or command == name:
+            configure(p)
+            if version:
+                versioned.append(p)
+
+    add("check", _configure_check, help="read one panel given as options",
+        description="Read one panel: trust, processes, derived values.")
+    add("demo", _configure_demo, help="read the built-in demo panels")
+    add("batch", _configure_batch, help="check a file of panels")
+    add("shard", _configure_shard, version=False,
+        help="split a file into Parquet shards by patient", description="Split INPUT into Parquet files, a patient's rows always in the same "
+                    "one, for checking shard by shard (docs/scale.md).")
+    add("history", _configure_history, version=False,
+        help="what a history store holds; export or purge a patient")
+    add("tui", _configure_tui, help="the keyboard-only terminal app")
+    add("config", _configure_config, help="the site configuration in force",
+        description="Show the settings in force and where each came from (built-in "
+                    "default, configuration file, option).")
+    for p in (parser, *versioned):
+        p.add_argument("--version", action="version", version=f"acidbase {audit.version()}")
+    return parser
+
+
+def _configure_check(check: argparse.ArgumentParser) -> None:
     add_panel_options(check)
     check.add_argument("--json", action="store_true", help="print the JSON document")
     check.add_argument("--brief", action="store_true", help="leave out the working")
     check.add_argument("--fhir", action="store_true",
                        help="print the reading as a FHIR R4 Bundle (JSON; needs acidbase[fhir])")
     check.set_defaults(func=cmd_check)
-    demo = sub.add_parser("demo", help="read the built-in demo panels")
+
+
+def _configure_demo(demo: argparse.ArgumentParser) -> None:
     demo.add_argument("--json", action="store_true")
     demo.set_defaults(func=cmd_demo)
-    batch = sub.add_parser("batch", help="check a file of panels")
+
+
+def _configure_batch(batch: argparse.ArgumentParser) -> None:
     configure_batch_parser(batch)
     batch.set_defaults(func=cmd_batch)
-    shard = sub.add_parser("shard", help="split a file into Parquet shards by patient",
-                           description="Split INPUT into Parquet files, a patient's rows always "
-                                       "in the same one, for checking shard by shard "
-                                       "(docs/scale.md).")
+
+
+def _configure_shard(shard: argparse.ArgumentParser) -> None:
     shard.add_argument("input", metavar="INPUT")
     shard.add_argument("folder", metavar="FOLDER", help="where the shard files go (created)")
     shard.add_argument("--shards", type=int, default=16, metavar="N",
@@ -351,29 +430,39 @@ def build_parser() -> argparse.ArgumentParser:
     shard.add_argument("--patient-column", metavar="HEADER",
                        help="the patient id column (default: the one read as patient_id)")
     shard.set_defaults(func=cmd_shard)
-    hist = sub.add_parser("history", help="what a history store holds; export or purge a patient")
+
+
+def _configure_history(hist: argparse.ArgumentParser) -> None:
     configure_history_parser(hist)
     hist.set_defaults(func=cmd_history)
-    tui = sub.add_parser("tui", help="the keyboard-only terminal app")
+
+
+def _configure_tui(tui: argparse.ArgumentParser) -> None:
     add_panel_options(tui)
     tui.add_argument("--demo", action="store_true", help="open with the demo panels loaded")
     tui.set_defaults(func=cmd_tui)
-    config = sub.add_parser("config", help="the site configuration in force",
-                            description="Show the settings in force and where each came from "
-                                        "(built-in default, configuration file, option).")
+
+
+def _configure_config(config: argparse.ArgumentParser) -> None:
     config_sub = config.add_subparsers(dest="action", required=True, metavar="ACTION")
     show = config_sub.add_parser("show", help="print every setting and its origin")
     add_settings_options(show)
     show.set_defaults(func=cmd_config)
-    for p in (parser, check, demo, batch, tui, config, show):
-        p.add_argument("--version", action="version", version=f"acidbase {audit.version()}")
-    return parser
+    show.add_argument("--version", action="version", version=f"acidbase {audit.version()}")
+
+
+def _command(argv: Sequence[str]) -> str:
+    """The command word of ``argv``: its first word that is not an option (the top level
+    takes no option with a value), or "" when there is none (``acidbase --help``)."""
+    return next((a for a in argv if not a.startswith("-")), "")
 
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Run one command; its exit status (module docstring).  A reader that closes
     standard output early (``acidbase demo | head``) ends the command quietly with 141."""
-    parser = build_parser()
+    if argv is None:
+        argv = sys.argv[1:]
+    parser = build_parser(_command(argv))
     try:
         args = parser.parse_args(argv)
     except BrokenPipeError:  # --help into a closed pipe

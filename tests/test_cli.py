@@ -127,3 +127,37 @@ def test_a_missing_required_value_is_named_not_dumped():
     assert r.returncode == 2
     assert "HCO3- (hco3) is required and was not given" in r.stderr
     assert "{" not in r.stderr
+
+
+def _refusal_lines(stderr: str) -> list[str]:
+    return [line[4:] for line in stderr.splitlines() if line.startswith("  - ")]
+
+
+def test_check_refuses_with_the_librarys_problems_in_the_librarys_order():
+    """One gate: ``check`` reads its options as ``interpret_many`` reads a one-row table,
+    so a panel with several problems gets the library's lines, every one, in its order
+    (numbers by field, urea with urea nitrogen, then the words)."""
+    import acidbase
+
+    cells = {"ph": "7.4", "pco2": "40", "hco3": "24", "k": "abc", "urea": "5", "bun": "14",
+             "sample_type": "art", "lactate": "<1", "na": "1,40"}
+    r = run("check", *(f"--{k.replace('_', '-')}={v}" for k, v in cells.items()))
+    assert r.returncode == 2 and r.stdout == ""
+    library = acidbase.interpret_many({k: [v] for k, v in cells.items()})[0]
+    assert _refusal_lines(r.stderr) == [str(p) for p in library.problems]
+    assert [p.kind for p in library.problems] == [
+        "not_a_number", "not_a_number", "urea_and_bun", "not_a_choice"]
+
+
+def test_a_unit_the_field_does_not_take_is_refused_by_check_as_panel_refuses_it():
+    """``--pco2-unit bar``: ``check`` (no model) and ``Panel`` give the same lines, one per
+    unit, naming the option's field, the unit and the units accepted."""
+    import acidbase
+
+    r = run("check", *BASE, "--pco2-unit", "bar", "--k-unit", "mmol")
+    assert r.returncode == 2 and r.stdout == ""
+    with pytest.raises(Exception) as info:
+        acidbase.Panel(ph=7.4, pco2=40, hco3=24, pco2_unit="bar", k_unit="mmol")
+    assert _refusal_lines(r.stderr) == acidbase.describe(info.value) == [
+        "pco2_unit: unit 'bar' is not accepted for pCO2; use one of mm[Hg], kPa",
+        "k_unit: unit 'mmol' is not accepted for K+; use one of mmol/L, mEq/L"]

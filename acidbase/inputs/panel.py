@@ -20,20 +20,10 @@ import functools
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from dataclasses import field as dataclass_field
-from typing import Any, Literal
+import threading
+from typing import TYPE_CHECKING, Any, Literal
 
 import numpy as np
-from pydantic import (
-    BaseModel,
-    ConfigDict,
-    Field,
-    ValidationError,
-    ValidationInfo,
-    create_model,
-    field_validator,
-    model_validator,
-)
-from pydantic_core import PydanticCustomError
 
 from .. import units as _units
 from .._arrow import is_arrow
@@ -42,6 +32,9 @@ from ..fields import BY_NAME, NUMERIC, REQUIRED, TEXT_FIELDS, FieldSpec
 from .cells import (ParsedColumn, is_column, number_hint, read_choice, read_choices, read_number,
                     read_numbers)
 from .vocab import CHOICES, Choice
+
+if TYPE_CHECKING:  # pydantic is imported when ``Panel`` is first used (module __getattr__)
+    from pydantic import BaseModel, ValidationError, ValidationInfo
 
 # ---------------------------------------------------------------------------
 # The one range check, over arrays
@@ -294,8 +287,33 @@ def censored_problem(spec: FieldSpec, cell: object, unit: str) -> Problem:
 # The single-panel model (pydantic v2)
 
 
+#: A unit its field does not accept, as ``Panel`` and ``acidbase check`` say it (the
+#: line is ``<field>_unit: `` and this sentence; ``describe_fields``, ``unit_refusal``).
+UNIT_NOT_ACCEPTED = "unit '{unit}' is not accepted for {title}; use one of {accepted}"
+
+
+def _unit_context(spec: FieldSpec, unit: object) -> dict[str, str]:
+    return {"unit": unit, "title": spec.title, "accepted": ", ".join(spec.units)}
+
+
+def unit_refusal(spec: FieldSpec, unit: object) -> str | None:
+    """The readable line for a unit given for ``spec`` that it does not accept (None when
+    it does): the same line ``describe`` makes of ``Panel``'s error."""
+    if isinstance(unit, str) and _units.normalise(unit) in spec.units:
+        return None
+    return f"{spec.name}_unit: " + UNIT_NOT_ACCEPTED.format(**_unit_context(spec, unit))
+
+
+# pydantic and the model are built when ``Panel`` is first asked for (``__getattr__``
+# below): a single panel read from options or columns (``acidbase check``,
+# ``interpret_many``) goes through ``screen`` and never needs them, and importing
+# pydantic and building fifty fields is most of a cold start (docs/performance.md).
+
+
 def _raise(problem: Problem) -> None:
     """A Problem as pydantic's error: its kind is the error type, its sentence the message."""
+    from pydantic_core import PydanticCustomError
+
     raise PydanticCustomError(problem.kind, "{message}", {
         "message": str(problem), "field": problem.field, "value": problem.value,
         "unit": problem.unit, "low": problem.allowed[0] if problem.allowed else None,
@@ -308,36 +326,8 @@ def _decimal(info: ValidationInfo) -> str:
     return ctx.get("decimal", ".") if isinstance(ctx, Mapping) else "."
 
 
-class _PanelBase(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True)
-
-    @model_validator(mode="before")
-    @classmethod
-    def _marks(cls, data: Any, info: ValidationInfo) -> Any:
-        """Censored values and laboratory flags, recorded as read (the values themselves
-        are read again, and refused if need be, by each field's validator)."""
-        if not isinstance(data, Mapping):
-            return data
-        data = dict(data)
-        quals, flags = [], []
-        for spec in NUMERIC:
-            if spec.name not in data:
-                continue
-            cell = read_number(data[spec.name], _decimal(info))
-            if cell.bad:
-                continue
-            if cell.comparator is not None:
-                quals.append(f"{spec.name} {str(cell.text).strip()}")
-            if cell.flag is not None:
-                flags.append(f"{spec.name} {cell.flag}")
-        data["qualifiers"], data["lab_flags"] = tuple(quals), tuple(flags)
-        return data
-
-    @model_validator(mode="after")
-    def _urea_or_bun(self) -> _PanelBase:
-        if getattr(self, "urea") is not None and getattr(self, "bun") is not None:
-            _raise(Problem("urea", "Urea", "urea and bun", "", kind="urea_and_bun"))
-        return self
+class _PanelMethods:
+    """What a ``Panel`` does besides validating (mixed into the pydantic model)."""
 
     def columns(self) -> tuple[dict[str, np.ndarray], dict[str, str]]:
         """This panel as columns of length one, with its units (a batch of one)."""
@@ -363,21 +353,61 @@ class _PanelBase(BaseModel):
         return out
 
 
+def _marks(cls, data: Any, info: ValidationInfo) -> Any:
+    """Censored values and laboratory flags, recorded as read (the values themselves
+    are read again, and refused if need be, by each field's validator)."""
+    if not isinstance(data, Mapping):
+        return data
+    data = dict(data)
+    quals, flags = [], []
+    for spec in NUMERIC:
+        if spec.name not in data:
+            continue
+        cell = read_number(data[spec.name], _decimal(info))
+        if cell.bad:
+            continue
+        if cell.comparator is not None:
+            quals.append(f"{spec.name} {str(cell.text).strip()}")
+        if cell.flag is not None:
+            flags.append(f"{spec.name} {cell.flag}")
+    data["qualifiers"], data["lab_flags"] = tuple(quals), tuple(flags)
+    return data
+
+
+def _urea_or_bun(self: BaseModel) -> BaseModel:
+    if getattr(self, "urea") is not None and getattr(self, "bun") is not None:
+        _raise(Problem("urea", "Urea", "urea and bun", "", kind="urea_and_bun"))
+    return self
+
+
+def _panel_base() -> type[BaseModel]:
+    from pydantic import BaseModel, ConfigDict, model_validator
+
+    class _PanelBase(BaseModel, _PanelMethods):
+        model_config = ConfigDict(extra="forbid", frozen=True)
+        _marks = model_validator(mode="before")(classmethod(_marks))
+        _urea_or_bun = model_validator(mode="after")(_urea_or_bun)
+
+    return _PanelBase
+
+
 def _unit_validator(spec: FieldSpec):
+    from pydantic import field_validator
+    from pydantic_core import PydanticCustomError
+
     def check(cls, value: str) -> str:
         code = _units.normalise(value)
         if code not in spec.units:
-            raise PydanticCustomError(
-                "unit_not_accepted",
-                "unit '{unit}' is not accepted for {title}; use one of {accepted}",
-                {"unit": value, "title": spec.title, "accepted": ", ".join(spec.units)},
-            )
+            raise PydanticCustomError("unit_not_accepted", UNIT_NOT_ACCEPTED,
+                                      _unit_context(spec, value))
         return code
     return field_validator(f"{spec.name}_unit")(check)
 
 
 def _read_validator(spec: FieldSpec):
     """The cell, read by the one reader (``acidbase.inputs.cells``), before any type check."""
+    from pydantic import field_validator
+
     def read(cls, value: Any, info: ValidationInfo) -> float | None:
         unit = info.data.get(f"{spec.name}_unit") or spec.unit
         cell = read_number(value, _decimal(info))
@@ -393,6 +423,8 @@ def _read_validator(spec: FieldSpec):
 
 
 def _value_validator(spec: FieldSpec):
+    from pydantic import field_validator
+
     def check(cls, value: float | None, info: ValidationInfo) -> float | None:
         if value is None:
             return None
@@ -408,6 +440,8 @@ def _value_validator(spec: FieldSpec):
 
 
 def _choice_validator(choice: Choice):
+    from pydantic import field_validator
+
     def read(cls, value: Any) -> str:
         word, bad = read_choice(value, choice)
         if bad:
@@ -418,7 +452,23 @@ def _choice_validator(choice: Choice):
     return field_validator(choice.name, mode="before")(read)
 
 
-def _build_panel() -> type[_PanelBase]:
+_PANEL_DOC = """One blood-gas and electrolyte panel, validated.
+
+Required: ph, pco2, hco3 (``acidbase.fields.REQUIRED``).  Every numeric field has a ``<name>_unit``
+(UCUM) defaulting to its canonical unit; see ``acidbase.fields`` for the ranges.
+Each value is read by the one cell reader (``acidbase.inputs.cells``: numbers or
+text such as "7.21 L" or "<0.3"); a decimal comma is read when the validation
+context says so (``Panel.model_validate(data, context={"decimal": ","})``).
+Invalid input raises ``pydantic.ValidationError`` with every problem; each
+error's type is the Problem's kind and its message the Problem's sentence.
+"""
+
+
+def _build_panel() -> type[BaseModel]:
+    """A new ``Panel`` model from the field declarations (``Panel`` itself is built once,
+    on first use; tests build variants with other declarations)."""
+    from pydantic import Field, create_model
+
     definitions: dict[str, Any] = {}
     validators: dict[str, Any] = {}
     # Units first: a value's validator reads its unit from the fields already validated.
@@ -446,20 +496,33 @@ def _build_panel() -> type[_PanelBase]:
         "Censored values read (\"lactate <0.3\"): set by the reader, not by the caller.")))
     definitions["lab_flags"] = (tuple[str, ...], Field(default=(), description=(
         "Laboratory flags read off values (\"ph L\"): set by the reader.")))
-    return create_model("Panel", __base__=_PanelBase, __validators__=validators, **definitions)
+    model = create_model("Panel", __base__=_panel_base(), __validators__=validators,
+                         __module__=__name__, **definitions)
+    model.__doc__ = _PANEL_DOC
+    return model
 
 
-Panel = _build_panel()
-Panel.__doc__ = """One blood-gas and electrolyte panel, validated.
+_building = threading.Lock()
 
-Required: ph, pco2, hco3, na, cl.  Every numeric field has a ``<name>_unit``
-(UCUM) defaulting to its canonical unit; see ``acidbase.fields`` for the ranges.
-Each value is read by the one cell reader (``acidbase.inputs.cells``: numbers or
-text such as "7.21 L" or "<0.3"); a decimal comma is read when the validation
-context says so (``Panel.model_validate(data, context={"decimal": ","})``).
-Invalid input raises ``pydantic.ValidationError`` with every problem; each
-error's type is the Problem's kind and its message the Problem's sentence.
-"""
+
+def __getattr__(name: str) -> Any:
+    """``Panel`` is built on first use, once (a lock, so two threads get one class)."""
+    if name != "Panel":
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    with _building:
+        model = globals().get("Panel")
+        if model is None:
+            model = globals()["Panel"] = _build_panel()
+    return model
+
+
+def __dir__() -> list[str]:
+    return sorted({*globals(), "Panel"})
+
+
+if TYPE_CHECKING:
+    class Panel(BaseModel, _PanelMethods):
+        """What type checkers and editors see; the class itself is built on first use."""
 
 #: Error types whose message is already the Problem's full sentence.
 PROBLEM_KINDS: frozenset[str] = frozenset(Problem.KINDS)
