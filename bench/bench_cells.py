@@ -66,7 +66,8 @@ def _passes(work, passes: int) -> dict[str, tuple[list[float], list[float]]]:
 
 def _child_cpu(cmd: list[str], cwd: str, env: dict[str, str]) -> float:
     before = resource.getrusage(resource.RUSAGE_CHILDREN)
-    subprocess.run(cmd, cwd=cwd, env=env, check=True)
+    subprocess.run(cmd, cwd=cwd, env=env, check=True, stdout=subprocess.DEVNULL,
+                   stderr=subprocess.DEVNULL)
     after = resource.getrusage(resource.RUSAGE_CHILDREN)
     return (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
 
