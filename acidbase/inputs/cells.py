@@ -32,6 +32,7 @@ import math
 import re
 from collections.abc import Sequence
 from dataclasses import dataclass
+from types import ModuleType
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -100,6 +101,18 @@ class ParsedColumn:
                 for i in rows]
 
 
+def _bind_arrow() -> None:
+    """Once a column of Arrow is read (pyarrow is then imported anyway), this module's
+    ``pa`` and ``pc`` become the modules themselves: each name looked up through the
+    stand-ins costs an import lookup, about a tenth of a column's reading."""
+    global pa, pc
+    if not isinstance(pc, ModuleType):
+        import pyarrow
+        import pyarrow.compute
+
+        pa, pc = pyarrow, pyarrow.compute
+
+
 def _present(col: pa.Array | np.ndarray) -> np.ndarray:
     """Rows holding a value: Arrow's validity, or not None in an object array."""
     if isinstance(col, np.ndarray):
@@ -162,6 +175,7 @@ def _nested(t: pa.DataType) -> bool:
 def parse_numeric(column: pa.Array | pa.ChunkedArray, decimal: str = ".",
                   missing: Sequence[str] = ()) -> ParsedColumn:
     """Read an Arrow column of laboratory values (see the module docstring)."""
+    _bind_arrow()
     column = _text_column(column, missing)
     n = len(column)
     t = column.type
@@ -203,6 +217,7 @@ def parse_numeric_many(columns: Sequence[pa.Array | pa.ChunkedArray],
     digits and points in one pass instead of the casts, with the same result (the
     Python code below stays the reference; tests/test_compiled_edges.py).
     """
+    _bind_arrow()
     out: list[ParsedColumn | None] = [None] * len(columns)
     pending: list[tuple[int, pa.Array, np.ndarray, np.ndarray]] = []
     for i, column in enumerate(columns):
