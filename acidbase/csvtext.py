@@ -130,9 +130,12 @@ def plain_numbers(column: pa.Array) -> tuple[np.ndarray, np.ndarray, int] | None
     if n == 0:
         return values, rest, 0
     bufs = column.buffers()
-    count = _csvfast.scan_numbers(n, column.offset, bufs[0] if column.null_count else None,
-                                  bufs[1], bufs[2], pa.types.is_large_string(t), values,
-                                  rest.view(np.uint8))
+    try:
+        count = _csvfast.scan_numbers(n, column.offset, bufs[0] if column.null_count else None,
+                                      bufs[1], bufs[2], pa.types.is_large_string(t), values,
+                                      rest.view(np.uint8))
+    except ValueError:  # buffers laid out as the scan does not expect: the reference reads
+        return None
     return values, rest, count
 
 
