@@ -1,8 +1,16 @@
 /*
- * acidbase._csvfast: the CSV text of an output table, in one pass over its rows.
+ * acidbase._csvfast: the compiled edges around the numpy kernel.
  *
- * An edge, not a rule: it formats what the numpy kernel computed and never decides
- * anything about a panel.  The Python writer (acidbase/fileio.py, csv_rows) is the
+ *   encode        the CSV text of an output table, in one pass over its rows;
+ *   scan_numbers  which cells of a text column are plain decimal numbers, and their
+ *                 values (the cell reader's fast route, acidbase/inputs/cells.py);
+ *   pack_rules    the kernel's fired-rule matrix as one 64-bit word per row and 64
+ *   group_words   rules, and its distinct patterns (acidbase/results.py, _combine).
+ *
+ * Edges, not rules: they read, format and pack what Python and the numpy kernel
+ * decide, and never decide anything about a panel.  Each has its Python reference
+ * kept beside its caller, used when this module is not built, and compared with it
+ * by tests/test_csvtext.py and tests/test_compiled_edges.py.  The CSV writer:  The Python writer (acidbase/fileio.py, csv_rows) is the
  * reference; tests/test_csvtext.py asserts the same bytes from both on generated
  * tables.  What it reproduces:
  *   - Arrow's CSV writer with quoting "needed": every non-null text cell in double
@@ -23,6 +31,7 @@
 #define PY_SSIZE_T_CLEAN
 #include <Python.h>
 
+#include <float.h>
 #include <math.h>
 #include <stdint.h>
 #include <stdio.h>
@@ -464,15 +473,410 @@ done:
     return result;
 }
 
+/* A writable buffer object's bytes, checked to hold `size` bytes. */
+static int wview(Views *v, PyObject *obj, int64_t size, uint8_t **ptr) {
+    *ptr = NULL;
+    if (v->nviews == v->cap) {
+        Py_ssize_t cap = v->cap ? 2 * v->cap : 8;
+        Py_buffer *p = PyMem_Realloc(v->views, (size_t)cap * sizeof(Py_buffer));
+        if (!p) {
+            PyErr_NoMemory();
+            return -1;
+        }
+        v->views = p;
+        v->cap = cap;
+    }
+    Py_buffer *b = &v->views[v->nviews];
+    if (PyObject_GetBuffer(obj, b, PyBUF_WRITABLE) < 0) return -1;
+    v->nviews++;
+    if (b->len < size) {
+        PyErr_SetString(PyExc_ValueError, "an output buffer is shorter than its cells need");
+        return -1;
+    }
+    *ptr = b->buf;
+    return 0;
+}
+
+/* ---------------------------------------------------------------------------
+ * scan_numbers: the cell reader's fast route (acidbase/inputs/cells.py,
+ * parse_numeric_many, whose Python code is the reference).
+ *
+ * A cell is "plain" when it is not empty, holds only the bytes 0-9 and '.', with at
+ * most one point and at least one digit, and reads as a finite number: exactly the
+ * cells that pass the Python route's quick test (digits and points only, not empty)
+ * and that Arrow's cast then reads as finite ("." and "1.2.3" pass the quick test but
+ * not the cast; hundreds of digits read as infinity).  A sign, an exponent, a space, a
+ * word, another script's digits: not plain.  This code decides nothing else; every
+ * cell that is not plain goes through the Python pattern (comparators, flags, missing
+ * tokens and refusals are decided there).
+ *
+ * The value must be the correctly rounded double of the decimal, bit for bit what
+ * Arrow's cast gives:
+ *   - significant digits forming an integer m <= 2**53, with k <= 22 digits after the
+ *     point: m and 10**k are exact doubles (10**22 = 2**22 * 5**22, 5**22 < 2**53), so
+ *     m / 10**k is one IEEE division, correctly rounded (Clinger, "How to read floating
+ *     point numbers accurately", PLDI 1990: the exact fast path).  m is summed as an
+ *     integer, exactly.  This needs double arithmetic without extended precision
+ *     (FLT_EVAL_METHOD 0, every SSE2 and ARM64 build); elsewhere no cell takes it;
+ *   - any other cell: the C library's strtod on a NUL-terminated copy of its digits
+ *     without the point, followed by "e-k".  With no decimal point in the copy, no
+ *     locale can change the reading.  glibc's strtod is correctly rounded for any
+ *     number of digits.
+ * tests/test_compiled_edges.py compares values and results bit for bit with the
+ * Python route on generated cells.
+ */
+#if defined(FLT_EVAL_METHOD) && FLT_EVAL_METHOD == 0
+#define EXACT_DIVISION 1
+#else
+#define EXACT_DIVISION 0
+#endif
+
+static const double P10[23] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
+                               1e8,  1e9,  1e10, 1e11, 1e12, 1e13, 1e14, 1e15,
+                               1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22};
+
+/* 1: plain, its value in *out; 0: not plain; -2: out of memory. */
+static int plain_decimal(const uint8_t *s, int64_t n, double *out) {
+    int64_t point = -1, digits = 0, sig = 0;
+    uint64_t m = 0;
+    for (int64_t i = 0; i < n; i++) {
+        uint8_t c = s[i];
+        if (is_digit(c)) {
+            digits++;
+            if ((sig || c != '0') && ++sig <= 19) m = m * 10 + (uint64_t)(c - '0');
+        } else if (c == '.' && point < 0) {
+            point = i;
+        } else {
+            return 0;
+        }
+    }
+    if (!digits) return 0; /* also the empty cell */
+    int64_t k = point < 0 ? 0 : n - 1 - point;
+    double v;
+    if (EXACT_DIVISION && sig <= 19 && m <= 9007199254740992ULL && k <= 22) {
+        v = (double)m / P10[k];
+    } else {
+        char small[128];
+        size_t size = (size_t)n + 32;
+        char *buf = size <= sizeof small ? small : malloc(size);
+        if (!buf) return -2;
+        size_t j = 0;
+        for (int64_t i = 0; i < n; i++)
+            if (s[i] != '.') buf[j++] = (char)s[i];
+        if (k) j += (size_t)snprintf(buf + j, 32, "e-%lld", (long long)k);
+        buf[j] = '\0';
+        v = strtod(buf, NULL);
+        if (buf != small) free(buf);
+    }
+    if (!isfinite(v)) return 0;
+    *out = v;
+    return 1;
+}
+
+static double quiet_nan(void) { /* numpy's and Arrow's NaN, 0x7ff8000000000000 */
+    uint64_t u = 0x7ff8000000000000ULL;
+    double d;
+    memcpy(&d, &u, sizeof d);
+    return d;
+}
+
+PyDoc_STRVAR(scan_doc,
+             "scan_numbers(length, offset, validity, offsets, data, large, values, rest) -> int\n\n"
+             "Reads a text column (Arrow's buffers; `large`: 64-bit offsets) into `values` "
+             "(float64, NaN where not plain) and `rest` (uint8, 1 for a valid cell that is "
+             "not a plain decimal number); returns how many such cells there are.");
+
+static PyObject *scan_numbers(PyObject *self, PyObject *args) {
+    long long length, offset;
+    int large;
+    PyObject *bv, *bo, *bd, *bvals, *brest;
+    if (!PyArg_ParseTuple(args, "LLOOOpOO", &length, &offset, &bv, &bo, &bd, &large, &bvals,
+                          &brest))
+        return NULL;
+    if (length < 0 || offset < 0) {
+        PyErr_SetString(PyExc_ValueError, "negative length or offset");
+        return NULL;
+    }
+    Views v = {NULL, 0, 0};
+    PyObject *result = NULL;
+    const uint8_t *valid = NULL, *offs = NULL, *data = NULL;
+    uint8_t *vals = NULL, *rest = NULL;
+    Py_ssize_t ndata = 0;
+    if (bv != Py_None && view(&v, bv, (offset + length + 7) / 8, &valid, NULL) < 0) goto done;
+    if (length > 0 && view(&v, bo, (large ? 8 : 4) * (offset + length + 1), &offs, NULL) < 0)
+        goto done;
+    if (length > 0 && view(&v, bd, 0, &data, &ndata) < 0) goto done;
+    if (wview(&v, bvals, 8 * length, &vals) < 0 || wview(&v, brest, length, &rest) < 0)
+        goto done;
+    int rc = 0;
+    int64_t count = 0;
+    Py_BEGIN_ALLOW_THREADS
+    const double none = quiet_nan();
+    for (int64_t i = 0; i < length; i++) {
+        int64_t j = offset + i;
+        double x = none;
+        uint8_t r = 0;
+        if (!valid || bit(valid, j)) {
+            int64_t a, b;
+            if (large) {
+                a = ((const int64_t *)offs)[j];
+                b = ((const int64_t *)offs)[j + 1];
+            } else {
+                a = ((const int32_t *)offs)[j];
+                b = ((const int32_t *)offs)[j + 1];
+            }
+            if (a < 0 || b < a || b > (int64_t)ndata) {
+                rc = -1;
+                break;
+            }
+            int got = b > a ? plain_decimal(data + a, b - a, &x) : 0;
+            if (got < 0) {
+                rc = -2;
+                break;
+            }
+            if (!got) {
+                x = none;
+                r = 1;
+                count++;
+            }
+        }
+        memcpy(vals + 8 * i, &x, sizeof x);
+        rest[i] = r;
+    }
+    Py_END_ALLOW_THREADS
+    if (rc == -1)
+        PyErr_SetString(PyExc_ValueError, "a text column's offsets are out of bounds");
+    else if (rc)
+        PyErr_NoMemory();
+    else
+        result = PyLong_FromLongLong(count);
+done:
+    release(&v);
+    return result;
+}
+
+/* ---------------------------------------------------------------------------
+ * pack_rules and group_words: acidbase/results.py, _combine (whose numpy code is the
+ * reference).  The kernel's fired matrix (rules x rows, one byte a cell) becomes
+ * words[row * k + r / 64] bit r % 64 = rule r, k = ceil(rules / 64); then, for one
+ * word a row, the distinct words in increasing order (as numpy.unique), the first
+ * row of each, and each row's index into them.
+ */
+PyDoc_STRVAR(pack_doc,
+             "pack_rules(mask, rules, rows, words) -> None\n\n"
+             "`mask`: rules x rows bytes (C order, nonzero = fired); `words`: rows x "
+             "ceil(rules / 64) uint64, written whole.");
+
+static PyObject *pack_rules(PyObject *self, PyObject *args) {
+    PyObject *bm, *bw;
+    Py_ssize_t rules, rows;
+    if (!PyArg_ParseTuple(args, "OnnO", &bm, &rules, &rows, &bw)) return NULL;
+    if (rules < 0 || rows < 0) {
+        PyErr_SetString(PyExc_ValueError, "negative shape");
+        return NULL;
+    }
+    Views v = {NULL, 0, 0};
+    const uint8_t *mask = NULL;
+    uint8_t *out = NULL;
+    int64_t k = ((int64_t)rules + 63) / 64;
+    if (view(&v, bm, (int64_t)rules * rows, &mask, NULL) < 0 ||
+        wview(&v, bw, 8 * k * (int64_t)rows, &out) < 0) {
+        release(&v);
+        return NULL;
+    }
+    Py_BEGIN_ALLOW_THREADS
+    uint64_t *words = (uint64_t *)out;
+    if (rows && k) memset(words, 0, (size_t)(8 * k * rows));
+    /* A block of rows at a time, so its words stay in the fastest cache; eight rules
+     * (one byte of a word) at a time, so each word is read and written once for them. */
+    for (Py_ssize_t i0 = 0; i0 < rows; i0 += 1024) {
+        Py_ssize_t i1 = rows - i0 < 1024 ? rows : i0 + 1024;
+        Py_ssize_t r = 0;
+        for (; r + 8 <= rules; r += 8) { /* r % 8 == 0: the eight share a word */
+            const uint8_t *m = mask + (int64_t)r * rows;
+            uint64_t *w = words + r / 64;
+            int shift = (int)(r % 64);
+            for (Py_ssize_t i = i0; i < i1; i++) {
+                uint64_t byte = (uint64_t)(m[i] != 0) | (uint64_t)(m[i + rows] != 0) << 1 |
+                                (uint64_t)(m[i + 2 * rows] != 0) << 2 |
+                                (uint64_t)(m[i + 3 * rows] != 0) << 3 |
+                                (uint64_t)(m[i + 4 * rows] != 0) << 4 |
+                                (uint64_t)(m[i + 5 * rows] != 0) << 5 |
+                                (uint64_t)(m[i + 6 * rows] != 0) << 6 |
+                                (uint64_t)(m[i + 7 * rows] != 0) << 7;
+                w[i * k] |= byte << shift;
+            }
+        }
+        for (; r < rules; r++) {
+            const uint8_t *m = mask + (int64_t)r * rows;
+            uint64_t *w = words + r / 64;
+            int shift = (int)(r % 64);
+            for (Py_ssize_t i = i0; i < i1; i++) w[i * k] |= (uint64_t)(m[i] != 0) << shift;
+        }
+    }
+    Py_END_ALLOW_THREADS
+    release(&v);
+    Py_RETURN_NONE;
+}
+
+typedef struct {
+    uint64_t key;
+    int64_t group;
+} Pair;
+
+static int by_key(const void *a, const void *b) {
+    uint64_t x = ((const Pair *)a)->key, y = ((const Pair *)b)->key;
+    return (x > y) - (x < y);
+}
+
+/* Distinct keys of words[0:n]: group ids by first appearance in inverse[], keys and
+ * first rows in gkey/gfirst; returns the number of groups, -1 when out of memory. */
+static int64_t find_groups(const uint64_t *words, int64_t n, int32_t *inverse, uint64_t **gkey,
+                           int64_t **gfirst) {
+    int64_t cap = 256, ngroups = 0, room = 64;
+    int32_t *slots = malloc((size_t)cap * sizeof *slots);
+    uint64_t *keys = malloc((size_t)room * sizeof *keys);
+    int64_t *first = malloc((size_t)room * sizeof *first);
+    if (!slots || !keys || !first) goto fail;
+    memset(slots, 0xff, (size_t)cap * sizeof *slots);
+    for (int64_t i = 0; i < n; i++) {
+        uint64_t key = words[i];
+        uint64_t h = (key * 0x9E3779B97F4A7C15ULL) >> 17;
+        int64_t s = (int64_t)(h & (uint64_t)(cap - 1));
+        while (slots[s] >= 0 && keys[slots[s]] != key) s = (s + 1) & (cap - 1);
+        if (slots[s] < 0) {
+            if (ngroups == room) {
+                room *= 2;
+                uint64_t *k2 = realloc(keys, (size_t)room * sizeof *keys);
+                if (!k2) goto fail;
+                keys = k2;
+                int64_t *f2 = realloc(first, (size_t)room * sizeof *first);
+                if (!f2) goto fail;
+                first = f2;
+            }
+            keys[ngroups] = key;
+            first[ngroups] = i;
+            slots[s] = (int32_t)ngroups++;
+            if (2 * ngroups > cap) { /* half full: twice the slots, every key placed again */
+                free(slots);
+                cap *= 2;
+                slots = malloc((size_t)cap * sizeof *slots);
+                if (!slots) goto fail;
+                memset(slots, 0xff, (size_t)cap * sizeof *slots);
+                for (int64_t g = 0; g < ngroups; g++) {
+                    uint64_t hg = (keys[g] * 0x9E3779B97F4A7C15ULL) >> 17;
+                    int64_t t = (int64_t)(hg & (uint64_t)(cap - 1));
+                    while (slots[t] >= 0) t = (t + 1) & (cap - 1);
+                    slots[t] = (int32_t)g;
+                }
+                s = -1;
+            }
+            inverse[i] = (int32_t)(ngroups - 1);
+        } else {
+            inverse[i] = slots[s];
+        }
+    }
+    free(slots);
+    *gkey = keys;
+    *gfirst = first;
+    return ngroups;
+fail:
+    free(slots);
+    free(keys);
+    free(first);
+    return -1;
+}
+
+PyDoc_STRVAR(group_doc,
+             "group_words(words, rows, inverse) -> (keys, first)\n\n"
+             "`words`: rows uint64; `inverse`: rows int32, written with each row's index "
+             "into `keys` (the distinct words, increasing); `first`: each key's first row.");
+
+static PyObject *group_words(PyObject *self, PyObject *args) {
+    PyObject *bw, *binv;
+    Py_ssize_t rows;
+    if (!PyArg_ParseTuple(args, "OnO", &bw, &rows, &binv)) return NULL;
+    if (rows < 0 || rows > INT32_MAX) {
+        PyErr_SetString(PyExc_ValueError, "rows out of range");
+        return NULL;
+    }
+    Views v = {NULL, 0, 0};
+    const uint8_t *wbytes = NULL;
+    uint8_t *ibytes = NULL;
+    if (view(&v, bw, 8 * (int64_t)rows, &wbytes, NULL) < 0 ||
+        wview(&v, binv, 4 * (int64_t)rows, &ibytes) < 0) {
+        release(&v);
+        return NULL;
+    }
+    const uint64_t *words = (const uint64_t *)wbytes;
+    int32_t *inverse = (int32_t *)ibytes;
+    uint64_t *gkey = NULL;
+    int64_t *gfirst = NULL;
+    Pair *order = NULL;
+    int64_t *rank = NULL;
+    int64_t ngroups;
+    Py_BEGIN_ALLOW_THREADS
+    ngroups = find_groups(words, rows, inverse, &gkey, &gfirst);
+    if (ngroups >= 0) {
+        order = malloc((size_t)(ngroups + 1) * sizeof *order);
+        rank = malloc((size_t)(ngroups + 1) * sizeof *rank);
+        if (order && rank) {
+            for (int64_t g = 0; g < ngroups; g++) {
+                order[g].key = gkey[g];
+                order[g].group = g;
+            }
+            qsort(order, (size_t)ngroups, sizeof *order, by_key);
+            for (int64_t j = 0; j < ngroups; j++) rank[order[j].group] = j;
+            for (int64_t i = 0; i < rows; i++) inverse[i] = (int32_t)rank[inverse[i]];
+        } else {
+            ngroups = -1;
+        }
+    }
+    Py_END_ALLOW_THREADS
+    PyObject *keys = NULL, *first = NULL, *result = NULL;
+    if (ngroups < 0) {
+        PyErr_NoMemory();
+        goto done;
+    }
+    keys = PyList_New((Py_ssize_t)ngroups);
+    first = PyList_New((Py_ssize_t)ngroups);
+    if (!keys || !first) goto done;
+    for (int64_t j = 0; j < ngroups; j++) {
+        PyObject *kj = PyLong_FromUnsignedLongLong(order[j].key);
+        PyObject *fj = PyLong_FromLongLong(gfirst[order[j].group]);
+        if (!kj || !fj) {
+            Py_XDECREF(kj);
+            Py_XDECREF(fj);
+            goto done;
+        }
+        PyList_SetItem(keys, (Py_ssize_t)j, kj);
+        PyList_SetItem(first, (Py_ssize_t)j, fj);
+    }
+    result = PyTuple_Pack(2, keys, first);
+done:
+    Py_XDECREF(keys);
+    Py_XDECREF(first);
+    free(gkey);
+    free(gfirst);
+    free(order);
+    free(rank);
+    release(&v);
+    return result;
+}
+
 static PyMethodDef methods[] = {
     {"encode", encode, METH_VARARGS, encode_doc},
     {"cells", cells, METH_VARARGS, cells_doc},
+    {"scan_numbers", scan_numbers, METH_VARARGS, scan_doc},
+    {"pack_rules", pack_rules, METH_VARARGS, pack_doc},
+    {"group_words", group_words, METH_VARARGS, group_doc},
     {NULL, NULL, 0, NULL},
 };
 
 static struct PyModuleDef module = {
     PyModuleDef_HEAD_INIT, "_csvfast",
-    "The CSV text of an output table (compiled; acidbase.csvtext is the reference).", -1,
+    "Compiled edges: CSV text, plain-number cells, fired-rule packing (acidbase.csvtext).",
+    -1,
     methods,
 };
 

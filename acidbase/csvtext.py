@@ -1,27 +1,44 @@
-"""The compiled CSV text of a batch output table, when the extension is built.
+"""The compiled edges (acidbase._csvfast), when the extension is built.
 
-The batch writer (``fileio.Writer.encode``) asks ``compiled_csv`` first and writes
-with its own Python code (``fileio.csv_rows``, the reference) when it answers None:
-the extension ``acidbase._csvfast`` is not built (no C compiler at install), is
-switched off (environment variable ``ACIDBASE_PURE_PYTHON=1``, for comparisons and
-benchmarks), or the table has a column it does not write.  The C code does the
-reference's three steps in one pass over the rows without the interpreter lock:
-derived values as fixed-point text (``fileio.fixed_columns``), formula escaping
-(``fileio.escape_formula``) and Arrow's CSV writing with quoting "needed".  It
-writes text, dictionary-encoded text (each label's cell written once, then copied by
-index), integer, boolean, null and fixed-point float columns; a table with any
-other column (say a timestamp passed through from a Parquet input) goes to the
-reference whole.
+Three edges, each with its Python reference kept beside its caller; each function here
+answers None when the extension is not built (no C compiler at install) or is switched
+off (environment variable ``ACIDBASE_PURE_PYTHON=1``, for comparisons and benchmarks),
+and the caller then uses the reference:
 
-``tests/test_csvtext.py`` compares the two on generated tables byte for byte.
+* ``compiled_csv``: the CSV text of a batch output table.  The batch writer
+  (``fileio.Writer.encode``) writes with its own Python code (``fileio.csv_rows``)
+  when it answers None, also when the table has a column the C code does not write
+  (say a timestamp passed through from a Parquet input).  The C code does the
+  reference's three steps in one pass over the rows without the interpreter lock:
+  derived values as fixed-point text (``fileio.fixed_columns``), formula escaping
+  (``fileio.escape_formula``) and Arrow's CSV writing with quoting "needed".  A
+  dictionary-encoded text column (the batch's labels) has each label's cell written
+  once (``cells``) and copied by index; the reference decodes it to text first.
+* ``plain_numbers``: which cells of a text column are plain decimal numbers, and their
+  values, for the cell reader's fast route (``inputs.cells.parse_numeric_many``, whose
+  Arrow casts are the reference).  It decides nothing else: every other cell goes
+  through the reader's pattern.
+* ``packed_rules`` and ``grouped_words``: the fired-rule matrix as one 64-bit word per
+  row and 64 rules, and its distinct patterns (``results._combine``, whose numpy code is
+  the reference).
+
+``tests/test_csvtext.py`` and ``tests/test_compiled_edges.py`` compare each with its
+reference on generated input, byte for byte and bit for bit.  pyarrow is imported on
+first use (``acidbase._arrow``): the rule packing serves a single panel too.
 """
 
 from __future__ import annotations
 
 import os
 from collections.abc import Collection, Mapping
+from typing import TYPE_CHECKING
 
-import pyarrow as pa
+import numpy as np
+
+if TYPE_CHECKING:
+    import pyarrow as pa
+else:  # imported on first use (acidbase/_arrow.py)
+    from ._arrow import pa
 
 try:  # optional: absent when the package was installed without a C compiler
     from . import _csvfast
@@ -34,7 +51,7 @@ _MAX_DECIMALS = 15
 
 
 def compiled_available() -> bool:
-    """True when the compiled writer is built and not switched off."""
+    """True when the compiled edges are built and not switched off."""
     return _csvfast is not None and not os.environ.get("ACIDBASE_PURE_PYTHON")
 
 
@@ -129,4 +146,55 @@ def compiled_csv(table: pa.Table, decimals: Mapping[str, int], escape: Collectio
     return _csvfast.encode(specs, table.num_rows, sep)
 
 
-__all__ = ["compiled_available", "compiled_csv"]
+def plain_numbers(column: pa.Array) -> tuple[np.ndarray, np.ndarray, int] | None:
+    """(values, rest, count) of a ``string`` or ``large_string`` column: ``values`` the
+    float64 value of each plain decimal number (digits and at most one point, finite;
+    NaN elsewhere), ``rest`` the valid cells that are not one (a bool array), ``count``
+    their number.  None when the extension is not built or switched off."""
+    if not compiled_available():
+        return None
+    t = column.type
+    if not (pa.types.is_string(t) or pa.types.is_large_string(t)):
+        return None
+    n = len(column)
+    values = np.empty(n, dtype=np.float64)
+    rest = np.empty(n, dtype=np.bool_)
+    if n == 0:
+        return values, rest, 0
+    bufs = column.buffers()
+    try:
+        count = _csvfast.scan_numbers(n, column.offset, bufs[0] if column.null_count else None,
+                                      bufs[1], bufs[2], pa.types.is_large_string(t), values,
+                                      rest.view(np.uint8))
+    except ValueError:  # buffers laid out as the scan does not expect: the reference reads
+        return None
+    return values, rest, count
+
+
+def packed_rules(mask: np.ndarray) -> np.ndarray | None:
+    """The (rules x rows) bool matrix ``mask`` as (rows, ceil(rules / 64)) uint64 words,
+    bit r % 64 of word r // 64 set where rule r fired; None when the extension is not
+    built or switched off."""
+    if not compiled_available():
+        return None
+    rules, rows = mask.shape
+    words = np.empty((rows, (rules + 63) // 64), dtype=np.uint64)
+    src = np.ascontiguousarray(mask, dtype=np.bool_).view(np.uint8)
+    _csvfast.pack_rules(src, rules, rows, words)
+    return words
+
+
+def grouped_words(words: np.ndarray) -> tuple[np.ndarray, list[int], list[int]] | None:
+    """(inverse, keys, first) of a uint64 column: the distinct words in increasing order
+    (``keys``, as ``numpy.unique``), the first row of each and each row's index into them
+    (int32); None when the extension is not built or switched off."""
+    if not compiled_available():
+        return None
+    words = np.ascontiguousarray(words, dtype=np.uint64)
+    inverse = np.empty(len(words), dtype=np.int32)
+    keys, first = _csvfast.group_words(words, len(words), inverse)
+    return inverse, keys, first
+
+
+__all__ = ["compiled_available", "compiled_csv", "grouped_words", "packed_rules",
+           "plain_numbers"]

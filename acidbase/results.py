@@ -469,38 +469,50 @@ def _join(arrays: list[np.ndarray], p0: np.ndarray | None = None) -> np.ndarray:
 
 def _combine(mask: np.ndarray, names: list[str]) -> tuple[np.ndarray, list[str]]:
     """The names whose mask is set, joined by ";", per column of ``mask`` (rules x rows),
-    as (indices, labels)."""
+    as (indices, labels).
+
+    The packing and grouping run in the compiled edge when it is built
+    (``csvtext.packed_rules``, ``csvtext.grouped_words``); the numpy code below is the
+    reference, and ``tests/test_compiled_edges.py`` holds the two to the same indices
+    and labels, in the same order."""
     n = mask.shape[1]
     if n == 0:
         return np.zeros(0, dtype=np.int32), []
+    from .csvtext import grouped_words, packed_rules  # no pyarrow import (one panel)
+
     # One 64-bit word per 64 names: bit r of word r // 64 is name r (a shift and an or
     # per name; packbits along the short axis costs several times more).
-    cols = []
-    for w in range(0, mask.shape[0], 64):
-        word = np.zeros(n, dtype=np.uint64)
-        for r in range(w, min(w + 64, mask.shape[0])):
-            word |= mask[r].astype(np.uint64) << np.uint64(r - w)
-        cols.append(word)
-    words = np.stack(cols, axis=1)  # (n, k)
-    if words.shape[1] == 1:
+    words = packed_rules(mask)
+    if words is None:
+        cols = []
+        for w in range(0, mask.shape[0], 64):
+            word = np.zeros(n, dtype=np.uint64)
+            for r in range(w, min(w + 64, mask.shape[0])):
+                word |= mask[r].astype(np.uint64) << np.uint64(r - w)
+            cols.append(word)
+        words = np.stack(cols, axis=1)  # (n, k)
+    grouped = grouped_words(words[:, 0]) if words.shape[1] == 1 else None
+    if grouped is not None:  # the distinct words in increasing order, as numpy.unique
+        inverse, keys, first_rows = grouped
+    elif words.shape[1] == 1:
         uniques, inverse = np.unique(words[:, 0], return_inverse=True)
         first = np.empty(len(uniques), dtype=np.int64)
         first[inverse[::-1]] = np.arange(n)[::-1]
-        keys = uniques.tolist()
+        keys, first_rows = uniques.tolist(), first.tolist()
     else:
         view = words.view(np.dtype((np.void, words.shape[1] * 8))).reshape(-1)
         uniques, first, inverse = np.unique(view, return_index=True, return_inverse=True)
-        keys = [u.tobytes() for u in uniques]
+        keys, first_rows = [u.tobytes() for u in uniques], first.tolist()
     if len(_LABELS) > 100_000:  # bounded: a pathological file cannot grow it for ever
         _LABELS.clear()
     labels = []
-    for key, j in zip(keys, first.tolist()):
+    for key, j in zip(keys, first_rows):
         label = _LABELS.get(key)
         if label is None:
             label = ";".join(name for name, on in zip(names, mask[:, j]) if on)
             _LABELS[key] = label
         labels.append(label)
-    return inverse.reshape(-1).astype(np.int32), labels
+    return inverse.reshape(-1).astype(np.int32, copy=False), labels
 
 
 #: Packed fired-rule pattern -> its codes joined, shared by every call (the rule
