@@ -296,7 +296,9 @@ def cmd_tui(args: argparse.Namespace) -> int:
             return _refuse(describe(e))
     from tui.app import make_app
 
-    make_app(panel=panel, demo=args.demo, settings=settings_from_args(args)).run()
+    site = resolve_site(args)
+    make_app(panel=panel, demo=args.demo, settings=site.settings, history=args.history,
+             site=site).run()
     return EXIT_OK
 
 
@@ -357,6 +359,11 @@ def build_parser() -> argparse.ArgumentParser:
     tui = sub.add_parser("tui", help="the keyboard-only terminal app")
     add_panel_options(tui)
     tui.add_argument("--demo", action="store_true", help="open with the demo panels loaded")
+    tui.add_argument("--history", metavar="PATH",
+                     help="use this history store: show a patient's stored panels and check "
+                          "the panel against them; Ctrl+T, then K, keeps a panel in it (the "
+                          "site key in ACIDBASE_HISTORY_KEY; without this option no store is "
+                          "read or written)")
     tui.set_defaults(func=cmd_tui)
     config = sub.add_parser("config", help="the site configuration in force",
                             description="Show the settings in force and where each came from "

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from datetime import datetime
 from pathlib import Path
-from typing import Any, ClassVar
+from typing import TYPE_CHECKING, Any, ClassVar
 
 from textual.app import App
 from textual.binding import Binding, BindingType
@@ -20,6 +20,9 @@ import acidbase
 from . import prefs
 from .screens.entry import EntryScreen
 from .sitting import Sitting, SittingFileError, demo_entries, read_csv, write_csv
+
+if TYPE_CHECKING:
+    from .store import StoreLink
 
 
 def now() -> datetime:
@@ -41,8 +44,11 @@ class AcidBaseApp(App[None]):
     ]
 
     def __init__(self, panel: acidbase.Panel | None = None, demo: bool = False,
-                 settings: acidbase.Settings | None = None) -> None:
+                 settings: acidbase.Settings | None = None,
+                 store: StoreLink | None = None) -> None:
         super().__init__()
+        self.store = store
+        """The history store, when asked for (``--history``); None: no store is touched."""
         self.settings = settings or acidbase.Settings()
         """The laboratory's settings, passed to every interpretation."""
         self.initial_panel = panel
@@ -145,6 +151,16 @@ class AcidBaseApp(App[None]):
 
 
 def make_app(panel: acidbase.Panel | None = None, demo: bool = False,
-             settings: acidbase.Settings | None = None) -> AcidBaseApp:
-    """The app, opened on ``panel`` or on the demo panels."""
-    return AcidBaseApp(panel=panel, demo=demo, settings=settings)
+             settings: acidbase.Settings | None = None, history: str | None = None,
+             site: Any = None) -> AcidBaseApp:
+    """The app, opened on ``panel`` or on the demo panels; with ``history`` (a path), linked
+    to that history store, with the serial limits of ``site`` (``acidbase.config.Site``)."""
+    store = None
+    if history:  # imported only then: the store's reader (pyarrow) is not needed otherwise
+        from .store import StoreLink
+
+        store = StoreLink(str(Path(history).expanduser()),
+                          deltas=dict(getattr(site, "deltas", None) or {}),
+                          window_hours=getattr(site, "window_hours", None),
+                          settings={"settings_sha256": site.sha256()} if site else {})
+    return AcidBaseApp(panel=panel, demo=demo, settings=settings, store=store)
