@@ -16,6 +16,7 @@ from textual.app import App
 from textual.binding import Binding, BindingType
 
 import acidbase
+from acidbase.files.outputs import OutputError, OutputSet
 
 from . import prefs
 from .screens.entry import EntryScreen
@@ -128,8 +129,8 @@ class AcidBaseApp(App[None]):
             if reading is None:
                 return "Nothing to save yet: no reading."
             text = self.report_text(reading, data or {}, markdown=kind == "markdown")
-            target.write_text(text, encoding="utf-8")
-        except OSError as e:
+            write_text(target, text)
+        except (OSError, OutputError) as e:
             return f"Not saved: {e}"
         return f"Saved the report to {target}."
 
@@ -148,6 +149,13 @@ class AcidBaseApp(App[None]):
         extra = [f"{refused} refused by the engine"] if refused else []
         return (f"Loaded {len(entries)} panels from {target}"
                 + "".join(f"; {n}" for n in extra + notes) + "."), first
+
+
+def write_text(target: Path, text: str) -> None:
+    """A report file, staged and renamed into place whole (``acidbase.files.outputs``)."""
+    with OutputSet() as out:
+        out.add("report file", str(target)).file.write(text.encode("utf-8"))
+        out.commit()
 
 
 def make_app(panel: acidbase.Panel | None = None, demo: bool = False,

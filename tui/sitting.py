@@ -14,6 +14,7 @@ and the text fields.  ``acidbase batch`` reads the same columns.
 from __future__ import annotations
 
 import csv
+import io
 import os
 from dataclasses import dataclass, field
 from typing import Any
@@ -170,7 +171,10 @@ def row_of(entry: Entry) -> dict[str, str] | None:
 
 
 def write_csv(path: str | os.PathLike[str], entries: list[Entry]) -> tuple[int, list[int]]:
-    """Write the entries; returns (rows written, 1-based numbers of entries left out)."""
+    """Write the entries; returns (rows written, 1-based numbers of entries left out).
+
+    Raises ``OSError`` or ``acidbase.files.outputs.OutputError`` (a path that cannot be
+    written); the target is then as it was."""
     left_out: list[int] = []
     rows = []
     for i, entry in enumerate(entries, start=1):
@@ -179,10 +183,20 @@ def write_csv(path: str | os.PathLike[str], entries: list[Entry]) -> tuple[int, 
             left_out.append(i)
         else:
             rows.append(row)
-    with open(path, "w", newline="", encoding="utf-8") as fh:
-        writer = csv.DictWriter(fh, fieldnames=COLUMNS)
-        writer.writeheader()
-        writer.writerows(rows)
+    # Staged beside the target and renamed into place only when whole (as every output of
+    # acidbase is): a failure mid-write leaves an existing file as it was, and no part file.
+    from acidbase.files.outputs import OutputSet
+
+    with OutputSet() as out:
+        staged = out.add("series file", os.fspath(path))
+        with io.TextIOWrapper(staged.file, encoding="utf-8", newline="",
+                              write_through=True) as fh:
+            writer = csv.DictWriter(fh, fieldnames=COLUMNS)
+            writer.writeheader()
+            writer.writerows(rows)
+            fh.flush()
+            fh.detach()  # the staged file stays open for commit to sync and close
+        out.commit()
     return len(rows), left_out
 
 
