@@ -317,7 +317,8 @@ async def test_the_demo_opens_with_the_demo_panels_kept():
 
 
 def test_the_file_columns_are_the_field_names_then_the_choices_and_labels():
-    assert COLUMNS == (*(s.name for s in NUMERIC), "sample_type", "hco3_source", *TEXT_FIELDS)
+    assert COLUMNS == (*(s.name for s in NUMERIC), "sample_type", "hco3_source", "pregnancy",
+                       *TEXT_FIELDS)
 
 
 def test_a_refused_entry_is_written_as_keyed_and_read_back_refused(tmp_path):
@@ -412,3 +413,13 @@ def test_a_report_file_is_written_whole_through_a_staged_file(tmp_path, monkeypa
         write_text(target, "second\n")
     assert target.read_text(encoding="utf-8") == "first\n"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["report.txt"]
+
+
+def test_pregnancy_is_written_and_read_back(tmp_path):
+    """The answer word goes to the file as the vocabulary spells it (what batch reads)."""
+    entry = Entry({"ph": "7.40", "pco2": "30", "hco3": "18.5", "pregnancy": "third_trimester"})
+    write_csv(tmp_path / "f.csv", [entry])
+    row = next(csv.DictReader((tmp_path / "f.csv").open(encoding="utf-8")))
+    assert row["pregnancy"] == "third_trimester"
+    entries, _ = read_csv(tmp_path / "f.csv")
+    assert entries[0].panel().pregnancy == "third_trimester"
