@@ -10,7 +10,6 @@ audit entry as a batch run does.  Nothing here hashes, compares or stores a valu
 
 from __future__ import annotations
 
-import math
 import os
 import sqlite3
 from collections.abc import Mapping
@@ -110,7 +109,7 @@ def _values(panel: acidbase.Panel) -> dict[str, float]:
         if isinstance(value, (int, float)) and not isinstance(value, bool):
             out[name] = float(value)
         elif value is None:
-            out[name] = math.nan
+            out[name] = float("nan")
     return out
 
 
@@ -123,14 +122,14 @@ def stored_line(row: Mapping[str, object]) -> str:
 
 
 def _shown(value: object) -> str:
-    return "-" if not isinstance(value, float) or math.isnan(value) else f"{value:.4g}"
+    return "-" if not isinstance(value, float) or value != value else f"{value:.4g}"
 
 
 def stored_reading(row: Mapping[str, object], settings: acidbase.Settings) -> str:
     """The library's reading of a stored panel's values (the store keeps the gas and a
     few electrolytes, not the sample type: the reading is of those values only)."""
     data = {k: v for k, v in row.items() if k in acidbase.fields.BY_NAME
-            and isinstance(v, float) and not math.isnan(v)}
+            and isinstance(v, float) and v == v}  # NaN: not stored
     try:
         it = acidbase.interpret(acidbase.Panel.model_validate(data), settings)
     except ValueError as e:  # pydantic's ValidationError is a ValueError

@@ -297,7 +297,9 @@ class EntryScreen(Screen[None]):
         more = self.query_one(MoreValues)
         more.folded = not more.folded
         if more.folded and self.focused is not None and more in self.focused.ancestors:
-            self.query_one("#collected_at", Input).focus()
+            # set at once, not after this key (as .focus() would): the next keys of a burst
+            # land in the field that has the focus now
+            self.set_focus(self.query_one("#collected_at", Input))
 
     def action_keep(self) -> None:
         data = self.form.data()
@@ -323,7 +325,7 @@ class EntryScreen(Screen[None]):
         self.app.sitting.current = None
         self.pane.forget()
         self.form.fill({})
-        self.query_one("#ph", Input).focus()
+        self.set_focus(self.query_one("#ph", Input))
         self.say("New panel (units as chosen). Ctrl+Z brings the cleared one back."
                  if filled else "New panel.")
 
@@ -341,9 +343,9 @@ class EntryScreen(Screen[None]):
     def action_reading(self) -> None:
         findings = self.query_one(FindingList)
         if findings.has_focus:
-            self.query_one("#ph", Input).focus()
+            self.set_focus(self.query_one("#ph", Input))
         else:
-            findings.focus()
+            self.set_focus(findings)
 
     @on(OptionList.OptionSelected, "#findings")
     def open_finding(self, event: OptionList.OptionSelected) -> None:
