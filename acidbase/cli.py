@@ -343,7 +343,9 @@ def cmd_tui(args: argparse.Namespace) -> int:
             return panel
     from tui.app import make_app
 
-    make_app(panel=panel, demo=args.demo, settings=settings_from_args(args)).run()
+    site = resolve_site(args)
+    make_app(panel=panel, demo=args.demo, settings=site.settings, history=args.history,
+             site=site).run()
     return EXIT_OK
 
 
@@ -440,6 +442,11 @@ def _configure_history(hist: argparse.ArgumentParser) -> None:
 def _configure_tui(tui: argparse.ArgumentParser) -> None:
     add_panel_options(tui)
     tui.add_argument("--demo", action="store_true", help="open with the demo panels loaded")
+    tui.add_argument("--history", metavar="PATH",
+                     help="use this history store: show a patient's stored panels and check "
+                          "the panel against them; Ctrl+T, then K, keeps a panel in it (the "
+                          "site key in ACIDBASE_HISTORY_KEY; without this option no store is "
+                          "read or written)")
     tui.set_defaults(func=cmd_tui)
 
 

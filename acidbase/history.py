@@ -632,3 +632,170 @@ __all__ = [
     "site_key",
     "table_rows",
 ]
+
+
+# --- the terminal app's use of the store ---------------------------------------------
+# ``acidbase tui --history PATH``, one panel at a time: the app reads a patient's
+# stored panels with ``earlier_panels``, checks the panel on its form against them
+# with ``check_against_earlier`` (the batch's own ``SerialChecker``: the panel is a
+# file of one row, the stored panels its earlier neighbours, so the rules, limits
+# and words are the batch's), and keeps a panel with ``keep_panel`` (one
+# transaction with its audit record, as a batch run's).
+from .serial import DEFAULT_WINDOW_HOURS as _WINDOW_HOURS  # noqa: E402
+
+@dataclass(frozen=True)
+class PanelCheck:
+    """The serial checks of one panel against a patient's stored panels."""
+
+    status: str
+    """The batch's ``serial_status`` text ("within limits", "flagged", "not assessable: ...")."""
+    codes: str
+    """The batch's ``serial_codes`` (``SERIAL-DELTA-NA;SERIAL-BREAK``), "" when none."""
+    detail: str
+    """The batch's ``serial_detail``: each flag in words, the stored panel named by time."""
+    within: list[dict[str, object]]
+    """The stored panels within the serial window of the panel's time (before or after
+    it; of the window before now when the panel has no usable time), oldest first, in
+    ``earlier_panels``' form; those on the other clock (offset or none) left out."""
+    already_stored: bool = False
+    """A stored panel has this panel's time and sample id: it is this panel, kept before."""
+    other_clock: int = 0
+    """Stored panels left out: their time has an offset and the panel's has none, or the
+    other way round (not comparable, as within one batch file)."""
+    window_hours: float = _WINDOW_HOURS
+
+
+def _stored_table(rows: list[Mapping[str, object]]) -> pa.Table:
+    """``earlier_panels`` rows back as the checker's earlier columns (one patient)."""
+    from .files.times import TIME_NAIVE, TIME_ZONED, parse_times
+
+    secs, kind = parse_times(pa.array([str(r.get("collected_at") or "") for r in rows],
+                                      pa.string()))
+    ok = (kind == TIME_NAIVE) | (kind == TIME_ZONED)
+    cols: dict[str, object] = {
+        "patient": pa.array(["p"] * len(rows), pa.string()), "t": pa.array(secs, pa.int64()),
+        "zoned": pa.array(kind == TIME_ZONED), "sample": pa.array(
+            [None if r.get("sample_id") in (None, "") else str(r["sample_id"]) for r in rows],
+            pa.string())}
+    for f in STORED_FIELDS:
+        cols[f] = pa.array([_number(r.get(f)) for r in rows], pa.float64())
+    return pa.table(cols).filter(pa.array(ok))
+
+
+def _number(value: object) -> float:
+    try:
+        return float(value)  # type: ignore[arg-type]
+    except (TypeError, ValueError):
+        return float("nan")
+
+
+def check_against_earlier(values: Mapping[str, object], collected_at: str | None,
+                          earlier: list[Mapping[str, object]], sample_id: str | None = None,
+                          deltas: Mapping[str, float | None] | None = None,
+                          window_hours: float | None = None,
+                          now: _dt.datetime | None = None) -> PanelCheck:
+    """One panel (``values`` in canonical units, as ``Panel.canonical()`` gives them)
+    against one patient's stored panels (``earlier``, as ``earlier_panels`` returns
+    them), by the batch's serial checks with the laboratory's ``deltas`` and window.
+
+    ``deltas`` and ``window_hours`` are a site's (``config.Site.deltas``,
+    ``config.Site.window_hours``); the defaults are the batch's.
+    """
+    from . import serial
+    from .files.times import TIME_NAIVE, TIME_ZONED, parse_times
+
+    window = _WINDOW_HOURS if window_hours is None else float(window_hours)
+    checker = serial.SerialChecker(serial.rules_with(deltas), window)
+    try:
+        secs, kind = parse_times(pa.array([collected_at or ""], pa.string()))
+        usable = kind[0] in (TIME_NAIVE, TIME_ZONED)
+        vals = {f: np.array([_number(values.get(f))]) for f in checker.fields}
+        checker.add(np.array(["p"], dtype=object), secs, kind, vals,
+                    pa.array([sample_id or None], pa.string()))
+        stored = _stored_table(list(earlier))
+        zoned = bool(kind[0] == TIME_ZONED) if usable else None
+        if usable:
+            same = np.asarray(stored["zoned"].to_numpy(zero_copy_only=False)) == zoned
+            other = int(np.count_nonzero(~same))
+        else:  # no time to place the panel: the window before now, on either clock
+            other = 0
+        checker.add_earlier(stored)
+        checker.finish()
+        cols = checker.columns(0, 1)
+        known = bool(checker.known[0])
+    finally:
+        checker.close()
+    t = np.asarray(stored["t"].to_numpy(), dtype=np.int64)
+    z = np.asarray(stored["zoned"].to_numpy(zero_copy_only=False), dtype=bool)
+    if usable:
+        near = (z == zoned) & (np.abs(t - int(secs[0])) <= window * 3600.0)
+    else:
+        clock = now or _dt.datetime.now().astimezone()
+        utc = int(clock.timestamp())
+        wall = int(clock.replace(tzinfo=_dt.UTC).timestamp())  # the local wall clock
+        at = np.where(z, utc, wall)
+        near = (t <= at) & (at - t <= window * 3600.0)
+    within = table_rows(stored.filter(pa.array(near)).sort_by([("t", "ascending")]))
+    return PanelCheck(str(cols["serial_status"][0]), str(cols["serial_codes"][0]),
+                      str(cols["serial_detail"][0]), within, known, other, window)
+
+
+@dataclass(frozen=True)
+class KeptPanel:
+    """What ``keep_panel`` did."""
+
+    added: bool
+    """The panel was added (False: already stored, or collected before the retention)."""
+    already_stored: bool = False
+    too_old: bool = False
+    retention_days: float = DEFAULT_RETENTION_DAYS
+
+
+def keep_panel(path: str, patient_id: str, values: Mapping[str, object], collected_at: str,
+               sample_id: str | None = None, *, key: str | bytes | None = None,
+               key_env: str = KEY_ENV, settings: Mapping[str, object] | None = None,
+               retention_days: float = DEFAULT_RETENTION_DAYS, timeout: float = 5.0,
+               now: float | None = None) -> KeptPanel:
+    """Add one panel to the store (creating it, owner-only, when new), in one
+    transaction with an audit record as a batch run's: the tool version, the
+    ``settings`` in force, and as ``input_sha256`` the SHA-256 of the panel as kept
+    (hashed patient, time, sample id, values; no plain id).  A panel with the
+    patient, time and sample id of a stored one is not added again.  Waits
+    ``timeout`` seconds for a batch run that holds the store, then refuses."""
+    from . import __version__
+    from .files.times import TIME_NAIVE, TIME_ZONED, parse_times
+
+    secs, kind = parse_times(pa.array([collected_at or ""], pa.string()))
+    if kind[0] not in (TIME_NAIVE, TIME_ZONED):
+        raise HistoryError("a panel is kept in the store only with its collection time "
+                           "(ISO 8601, e.g. 2026-12-02T08:40)")
+    if not patient_id or not patient_id.strip():
+        raise HistoryError("a panel is kept in the store only with a patient id")
+    store = Store(path, site_key(key, key_env), retention_days, timeout=timeout)
+    try:
+        store.begin()
+        sample = sample_id or None
+        mine = store.patient(patient_id)
+        same = mine.filter(pc.equal(mine["t"], int(secs[0])))
+        if any((s or None) == sample for s in same["sample"].to_pylist()):
+            store.rollback()
+            return KeptPanel(False, already_stored=True, retention_days=retention_days)
+        row: dict[str, list] = {"patient": [hash_id(patient_id, store.key)],
+                                "t": [int(secs[0])], "zoned": [bool(kind[0] == TIME_ZONED)],
+                                "sample": [sample]}
+        row.update({f: [_number(values.get(f))] for f in STORED_FIELDS})
+        table = pa.Table.from_pydict(row, schema=BLOCK_SCHEMA)
+        digest = hashlib.sha256(json.dumps(
+            {k: (None if isinstance(v[0], float) and v[0] != v[0] else v[0])
+             for k, v in row.items()}, sort_keys=True).encode("utf-8")).hexdigest()
+        record = RunRecord(tool_version=__version__,
+                           settings={"surface": "acidbase tui", **dict(settings or {})},
+                           input_sha256=digest)
+        store.commit(iter([table]), record, now=now)
+    finally:
+        store.close()
+    return KeptPanel(record.added > 0, too_old=record.too_old > 0,
+                     retention_days=retention_days)
+
+
+__all__ += ["KeptPanel", "PanelCheck", "check_against_earlier", "keep_panel"]

@@ -10,16 +10,20 @@ from __future__ import annotations
 
 from datetime import datetime
 from pathlib import Path
-from typing import Any, ClassVar
+from typing import TYPE_CHECKING, Any, ClassVar
 
 from textual.app import App
 from textual.binding import Binding, BindingType
 
 import acidbase
+from acidbase.files.outputs import OutputError, OutputSet
 
 from . import prefs
 from .screens.entry import EntryScreen
 from .sitting import Sitting, SittingFileError, demo_entries, read_csv, write_csv
+
+if TYPE_CHECKING:
+    from .store import StoreLink
 
 
 def now() -> datetime:
@@ -41,8 +45,11 @@ class AcidBaseApp(App[None]):
     ]
 
     def __init__(self, panel: acidbase.Panel | None = None, demo: bool = False,
-                 settings: acidbase.Settings | None = None) -> None:
+                 settings: acidbase.Settings | None = None,
+                 store: StoreLink | None = None) -> None:
         super().__init__()
+        self.store = store
+        """The history store, when asked for (``--history``); None: no store is touched."""
         self.settings = settings or acidbase.Settings()
         """The laboratory's settings, passed to every interpretation."""
         self.initial_panel = panel
@@ -122,8 +129,8 @@ class AcidBaseApp(App[None]):
             if reading is None:
                 return "Nothing to save yet: no reading."
             text = self.report_text(reading, data or {}, markdown=kind == "markdown")
-            target.write_text(text, encoding="utf-8")
-        except OSError as e:
+            write_text(target, text)
+        except (OSError, OutputError) as e:
             return f"Not saved: {e}"
         return f"Saved the report to {target}."
 
@@ -144,7 +151,24 @@ class AcidBaseApp(App[None]):
                 + "".join(f"; {n}" for n in extra + notes) + "."), first
 
 
+def write_text(target: Path, text: str) -> None:
+    """A report file, staged and renamed into place whole (``acidbase.files.outputs``)."""
+    with OutputSet() as out:
+        out.add("report file", str(target)).file.write(text.encode("utf-8"))
+        out.commit()
+
+
 def make_app(panel: acidbase.Panel | None = None, demo: bool = False,
-             settings: acidbase.Settings | None = None) -> AcidBaseApp:
-    """The app, opened on ``panel`` or on the demo panels."""
-    return AcidBaseApp(panel=panel, demo=demo, settings=settings)
+             settings: acidbase.Settings | None = None, history: str | None = None,
+             site: Any = None) -> AcidBaseApp:
+    """The app, opened on ``panel`` or on the demo panels; with ``history`` (a path), linked
+    to that history store, with the serial limits of ``site`` (``acidbase.config.Site``)."""
+    store = None
+    if history:  # imported only then: the store's reader (pyarrow) is not needed otherwise
+        from .store import StoreLink
+
+        store = StoreLink(str(Path(history).expanduser()),
+                          deltas=dict(getattr(site, "deltas", None) or {}),
+                          window_hours=getattr(site, "window_hours", None),
+                          settings={"settings_sha256": site.sha256()} if site else {})
+    return AcidBaseApp(panel=panel, demo=demo, settings=settings, store=store)

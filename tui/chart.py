@@ -88,7 +88,8 @@ def chart_report(reading: acidbase.Interpretation, data: dict[str, Any],
         ("Site settings", settings_words(settings)),
         ("Values as keyed", "; ".join(keyed_values(data))),
         ("Sample", (f"{data.get('sample_type', 'unknown')}; HCO3- source: "
-                    f"{data.get('hco3_source', 'unknown')}")),
+                    f"{data.get('hco3_source', 'unknown')}; pregnancy: "
+                    f"{data.get('pregnancy', 'unknown')}")),
     ]
     if markdown:
         head = ["# acidbase reading for the chart", ""]

@@ -32,6 +32,16 @@ AFTER_GAS: tuple[str, ...] = ("fio2",)
 ELECTROLYTES: tuple[str, ...] = ("na", "k", "cl", "ica", "lactate", "glucose", "hb")
 
 
+#: Answer words too long for the form's answer column, shortened on screen only (the
+#: library and files keep the word itself).
+CHOICE_LABELS: dict[str, str] = {"third_trimester": "3rd trimester"}
+
+
+def choice_label(word: str) -> str:
+    """How an answer word is shown in the form ("3rd trimester" for ``third_trimester``)."""
+    return CHOICE_LABELS.get(word, word)
+
+
 def unit_label(unit: str) -> str:
     """How a unit is shown on screen ("mmHg" for ``mm[Hg]``, nothing for pH)."""
     return UNIT_LABELS.get(unit, unit)

@@ -7,13 +7,14 @@ number come from the library.
 
 The CSV columns (documented in docs/tui.md) are the field names of
 ``acidbase.fields``, numeric fields first in their printed order, each in its
-canonical unit (``Panel.canonical()``), then ``sample_type``, ``hco3_source``
-and the text fields.  ``acidbase batch`` reads the same columns.
+canonical unit (``Panel.canonical()``), then the answer fields (``sample_type``,
+``hco3_source``, ``pregnancy``: ``acidbase.fields.CHOICES``) and the text fields.  ``acidbase batch`` reads the same columns.
 """
 
 from __future__ import annotations
 
 import csv
+import io
 import os
 from dataclasses import dataclass, field
 from typing import Any
@@ -21,11 +22,12 @@ from typing import Any
 from pydantic import ValidationError
 
 import acidbase
-from acidbase.fields import NUMERIC, TEXT_FIELDS
+from acidbase.fields import CHOICES, NUMERIC, TEXT_FIELDS
 
+#: The answer fields (sample type, HCO3- source, pregnancy), as the library lists them.
+CHOICE_NAMES: tuple[str, ...] = tuple(c.name for c in CHOICES)
 #: The columns of a sitting file, in order.
-COLUMNS: tuple[str, ...] = (
-    *(spec.name for spec in NUMERIC), "sample_type", "hco3_source", *TEXT_FIELDS)
+COLUMNS: tuple[str, ...] = (*(spec.name for spec in NUMERIC), *CHOICE_NAMES, *TEXT_FIELDS)
 
 #: Keys of an entry's mapping that are not panel fields (shown, never saved).
 NOTE = "note"
@@ -156,7 +158,7 @@ def row_of(entry: Entry) -> dict[str, str] | None:
         canonical = panel.canonical()
         for spec in NUMERIC:
             row[spec.name] = _cell(canonical[spec.name])
-        for name in ("sample_type", "hco3_source", *TEXT_FIELDS):
+        for name in (*CHOICE_NAMES, *TEXT_FIELDS):
             row[name] = _cell(getattr(panel, name))
         return row
     for spec in NUMERIC:
@@ -164,13 +166,16 @@ def row_of(entry: Entry) -> dict[str, str] | None:
         if unit is not None and unit != spec.unit:
             return None
         row[spec.name] = _cell(entry.data.get(spec.name))
-    for name in ("sample_type", "hco3_source", *TEXT_FIELDS):
+    for name in (*CHOICE_NAMES, *TEXT_FIELDS):
         row[name] = _cell(entry.data.get(name))
     return row
 
 
 def write_csv(path: str | os.PathLike[str], entries: list[Entry]) -> tuple[int, list[int]]:
-    """Write the entries; returns (rows written, 1-based numbers of entries left out)."""
+    """Write the entries; returns (rows written, 1-based numbers of entries left out).
+
+    Raises ``OSError`` or ``acidbase.files.outputs.OutputError`` (a path that cannot be
+    written); the target is then as it was."""
     left_out: list[int] = []
     rows = []
     for i, entry in enumerate(entries, start=1):
@@ -179,10 +184,19 @@ def write_csv(path: str | os.PathLike[str], entries: list[Entry]) -> tuple[int, 
             left_out.append(i)
         else:
             rows.append(row)
-    with open(path, "w", newline="", encoding="utf-8") as fh:
+    # Staged beside the target and renamed into place only when whole (as every output of
+    # acidbase is): a failure mid-write leaves an existing file as it was, and no part file.
+    from acidbase.files.outputs import OutputSet
+
+    with OutputSet() as out:
+        staged = out.add("series file", os.fspath(path))
+        fh = io.TextIOWrapper(staged.file, encoding="utf-8", newline="", write_through=True)
         writer = csv.DictWriter(fh, fieldnames=COLUMNS)
         writer.writeheader()
         writer.writerows(rows)
+        fh.flush()
+        fh.detach()  # the staged file stays open: commit syncs, closes and renames it
+        out.commit()
     return len(rows), left_out
 
 

@@ -16,8 +16,23 @@ from .labels import on_screen, unit_label
 
 
 def f2_hint(name: str, value: object, unit: str) -> str:
-    """"press F2 for kPa" when the value would be ordinary in the field's other unit."""
-    others = acidbase.also_ordinary(name, value, unit) if name in BY_NAME else ()
+    """"press F2 for kPa" when the value is out of the ordinary in its unit and ordinary in
+    the field's other unit (the physiologic ranges of ``acidbase.fields``).
+
+    A value ordinary as it stands gets no hint: nearly every pO2 in mm[Hg] is also a
+    plausible number of kPa, and a hint under each would teach users to ignore it.
+    """
+    spec = BY_NAME.get(name)
+    if spec is None:
+        return ""
+    try:
+        canonical = acidbase.convert(name, value, unit, spec.unit)
+    except ValueError:  # not a number, or not a unit of the field (UnitError)
+        return ""
+    low, high = spec.physiologic
+    if low <= canonical <= high:
+        return ""
+    others = acidbase.also_ordinary(name, value, unit)
     return f"press F2 for {unit_label(others[0]) or others[0]}" if others else ""
 
 

@@ -31,11 +31,12 @@ async def test_tab_follows_the_printout_order_with_no_extra_stops():
     app = make_app()
     async with app.run_test(size=(80, 24)) as pilot:
         seen = [app.focused.id]
-        for _ in range(len(NUMERIC) + 2 + 3 - 1):
+        for _ in range(len(NUMERIC) + 3 + 3 - 1):
             await pilot.press("tab")
             seen.append(app.focused.id)
         rest = [s.name for s in NUMERIC if s.name not in PRINTOUT]
-        assert seen == [*PRINTOUT, *rest, "collected_at", "patient_id", "sample_id"]
+        assert seen == [*PRINTOUT, *rest, "pregnancy", "collected_at", "patient_id",
+                        "sample_id"]
         await pilot.press("shift+tab")
         assert app.focused.id == "patient_id"
 
@@ -177,6 +178,38 @@ async def test_sample_type_is_chosen_with_the_arrow_keys():
         reading = app.screen.query_one(ReadingPane).reading
         assert reading.sample_type == "arterial"
         assert "T-SAMPLE-UNKNOWN" not in [f.code for f in reading.findings]
+
+
+async def test_pregnancy_is_chosen_like_the_other_answers_and_read_by_the_engine():
+    """The vocabulary's words (acidbase.inputs.vocab), stepped with Right; third trimester
+    selects the engine's third-trimester intervals (finding T-PREGNANCY-INTERVALS)."""
+    from acidbase.inputs.vocab import CHOICE_BY_NAME
+
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in(pilot, PANELS["normal"])
+        field = app.screen.query_one("#pregnancy")
+        assert field.choices == CHOICE_BY_NAME["pregnancy"].words
+        field.focus()
+        await pilot.pause()
+        seen = []
+        for _ in field.choices:
+            await pilot.press("right")
+            await pilot.pause()
+            seen.append(field.value)
+            if field.value == "third_trimester":
+                break
+        assert seen[-1] == "third_trimester"
+        assert app.screen.form.data()["pregnancy"] == "third_trimester"
+        codes = [f.code for f in app.screen.query_one(ReadingPane).reading.findings]
+        assert "T-PREGNANCY-INTERVALS" in codes
+        # the answer is drawn whole in the form's width, in words
+        drawn = field.render_lines(field.region.reset_offset)[0].text
+        assert drawn.rstrip().endswith("< 3rd trimester >")
+        await pilot.press("right")
+        await pilot.pause()
+        codes = [f.code for f in app.screen.query_one(ReadingPane).reading.findings]
+        assert "T-PREGNANCY-INTERVALS" not in codes
 
 
 async def test_a_finding_opens_with_its_working_and_full_citations():

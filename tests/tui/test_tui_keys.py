@@ -15,7 +15,7 @@ from tui.widgets.form import MARK, EntryForm, RowTitle
 
 def values(app) -> dict[str, str]:
     return {k: v for k, v in app.screen.query_one(EntryForm).data().items()
-            if not k.endswith("_unit") and k not in ("sample_type", "hco3_source")}
+            if not k.endswith("_unit") and k not in ("sample_type", "hco3_source", "pregnancy")}
 
 
 async def test_a_value_then_tab_then_a_value_in_one_burst_stay_apart():
@@ -71,3 +71,19 @@ async def test_the_focused_row_is_marked_by_a_character_not_only_by_colour():
         assert str(app.screen.query_one("#field-pco2 RowTitle").render()) == f"{MARK} pCO2"
         assert not str(app.screen.query_one("#field-ph RowTitle").render()).startswith(MARK)
         assert isinstance(app.focused, Input) and app.focused.id == "pco2"
+
+
+async def test_f3_in_a_burst_sends_the_next_keys_to_the_collection_time():
+    """Folding the more values from inside them moves the focus at once: the keys typed
+    after F3 in the same burst land in Collected, not in the field folded away."""
+    from tui.labels import ELECTROLYTES, rest
+
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        into_more = len(ELECTROLYTES) + 3 + 4 + 3  # from pH: past the gas, FiO2, choices...
+        await burst(pilot, [*typed("7.40"), *["tab"] * into_more, "f3",
+                            *typed("2026-12-01T21:00Z")])
+        assert app.focused.id == "collected_at"
+        assert values(app) == {"ph": "7.40", "collected_at": "2026-12-01T21:00Z"}
+        assert len(rest()) > 3  # the burst did end inside the group folded away
+

@@ -317,7 +317,8 @@ async def test_the_demo_opens_with_the_demo_panels_kept():
 
 
 def test_the_file_columns_are_the_field_names_then_the_choices_and_labels():
-    assert COLUMNS == (*(s.name for s in NUMERIC), "sample_type", "hco3_source", *TEXT_FIELDS)
+    assert COLUMNS == (*(s.name for s in NUMERIC), "sample_type", "hco3_source", "pregnancy",
+                       *TEXT_FIELDS)
 
 
 def test_a_refused_entry_is_written_as_keyed_and_read_back_refused(tmp_path):
@@ -353,3 +354,72 @@ async def test_ctrl_y_copies_the_report_for_the_chart():
         assert copied.startswith("acidbase reading for the chart")
         assert "P-0042" in copied and "pCO2 5.33 kPa" in copied
         assert " ".join(acidbase.CAUTION.split()) in " ".join(copied.split())
+
+
+def _fail_after_one_row(monkeypatch) -> None:
+    """The disk fills up after the header and one row of the series are written."""
+
+    def writerows(self, rows):
+        rows = list(rows)
+        self.writerow(rows[0])
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(csv.DictWriter, "writerows", writerows)
+
+
+def test_a_failure_mid_write_leaves_the_old_series_file_whole_and_no_part_file(
+        tmp_path, monkeypatch):
+    """The series file is staged (acidbase.files.outputs) and renamed only when whole."""
+    target = tmp_path / "series.csv"
+    target.write_text("ph,pco2,hco3\n7.40,40,24.2\n", encoding="utf-8")
+    before = target.read_bytes()
+    entries = [Entry(dict(zip(("ph", "pco2", "hco3", "na", "cl"), PANELS[name])))
+               for name in ("normal", "mixed")]
+    _fail_after_one_row(monkeypatch)
+    with pytest.raises(OSError):
+        write_csv(target, entries)
+    assert target.read_bytes() == before
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["series.csv"]
+
+
+async def test_the_app_says_a_series_was_not_saved_when_the_write_fails(tmp_path, monkeypatch):
+    target = tmp_path / "series.csv"
+    target.write_text("old\n", encoding="utf-8")
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await keep_two(pilot)
+        _fail_after_one_row(monkeypatch)
+        message = app.save("csv", str(target), None, replace=True)
+    assert message.startswith("Not saved:") and "No space left" in message
+    assert target.read_text(encoding="utf-8") == "old\n"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["series.csv"]
+    assert app.sitting.unsaved  # still to be saved
+
+
+def test_a_report_file_is_written_whole_through_a_staged_file(tmp_path, monkeypatch):
+    """The report for the chart is staged too: a failed write leaves no part file."""
+    from acidbase.files import outputs
+    from tui.app import write_text
+
+    target = tmp_path / "report.txt"
+    write_text(target, "first\n")
+    assert target.read_text(encoding="utf-8") == "first\n"
+
+    def broken(self):
+        raise OSError(5, "Input/output error")
+
+    monkeypatch.setattr(outputs.Staged, "finish", broken)
+    with pytest.raises(OSError):
+        write_text(target, "second\n")
+    assert target.read_text(encoding="utf-8") == "first\n"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["report.txt"]
+
+
+def test_pregnancy_is_written_and_read_back(tmp_path):
+    """The answer word goes to the file as the vocabulary spells it (what batch reads)."""
+    entry = Entry({"ph": "7.40", "pco2": "30", "hco3": "18.5", "pregnancy": "third_trimester"})
+    write_csv(tmp_path / "f.csv", [entry])
+    row = next(csv.DictReader((tmp_path / "f.csv").open(encoding="utf-8")))
+    assert row["pregnancy"] == "third_trimester"
+    entries, _ = read_csv(tmp_path / "f.csv")
+    assert entries[0].panel().pregnancy == "third_trimester"

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import os
 import re
+import shlex
 import shutil
 import subprocess
 import sys
@@ -72,17 +73,19 @@ def form_rows(screen: str) -> dict[str, tuple[str, str]]:
     return rows
 
 
-def start(tmp_path: Path, size: tuple[int, int] = (80, 24), no_color: bool = False) -> str:
+def start(tmp_path: Path, size: tuple[int, int] = (80, 24), no_color: bool = False,
+          args: tuple[str, ...] = (), extra_env: dict[str, str] | None = None) -> str:
     name = f"acidbase-test-{uuid.uuid4().hex[:8]}"
     env = {k: v for k, v in os.environ.items() if k != "NO_COLOR"}
     env["XDG_CONFIG_HOME"] = str(tmp_path / "config")  # never the user's own settings
     if no_color:
         env["NO_COLOR"] = "1"
-    command = f"{sys.executable} -m acidbase tui"
+    command = " ".join([sys.executable, "-m", "acidbase", "tui", *map(shlex.quote, args)])
+    extra = [x for k, v in (extra_env or {}).items() for x in ("-e", f"{k}={v}")]
     subprocess.run(["tmux", "-L", SOCKET, "new-session", "-d", "-s", name, "-x", str(size[0]),
                     "-y", str(size[1]), "-c", str(ROOT), "-e",
                     f"XDG_CONFIG_HOME={env['XDG_CONFIG_HOME']}",
-                    *(["-e", "NO_COLOR=1"] if no_color else []), command],
+                    *(["-e", "NO_COLOR=1"] if no_color else []), *extra, command],
                    check=True, env=env, capture_output=True)
     _wait_for(name, "Verdict:")
     return name
@@ -189,3 +192,55 @@ def test_the_short_caution_is_on_screen_and_f1_shows_it_in_full(session):
     assert _flat(acidbase.CAUTION) in _flat(screen)
     _tmux("send-keys", "-t", s, "Escape")
     _tmux("send-keys", "-t", s, "C-q")
+
+
+def test_a_patient_id_and_a_panel_in_one_burst_are_checked_against_the_store(session, tmp_path):
+    """``--history``: the panel, its time and the patient id sent in ONE send-keys; the
+    verdict line names the store's flag (Na+ 155 after 140 twelve hours before: the
+    batch's limit of 10 mmol/L, common laboratory practice, no source), every value
+    lands as typed, and the caution stays on screen at 80x24 without colour."""
+    import datetime as dt
+
+    from acidbase import history
+    from tui.labels import ELECTROLYTES, rest
+    from tui.widgets.form import MORE_CHOICES
+
+    key = "site-key-for-tmux-tests-0123456789"
+    store = tmp_path / "store.db"
+    now = dt.datetime.now(dt.UTC)
+    earlier, when = (f"{now - dt.timedelta(hours=h):%Y-%m-%dT%H:%M}Z" for h in (13, 1))
+    history.keep_panel(str(store), "MRN-TMUX-7", {"ph": 7.33, "pco2": 60.0, "hco3": 31.0,
+                                                  "na": 140.0, "cl": 98.0}, earlier, "S1",
+                       key=key)
+    s = session(no_color=True, args=("--history", str(store)),
+                extra_env={history.KEY_ENV: key})
+    to_time = len(ELECTROLYTES) - ELECTROLYTES.index("cl") + len(rest()) + len(MORE_CHOICES)
+    _tmux("send-keys", "-t", s, "7.33", "Tab", "60", "Tab", "68", "Tab", "31.0", "Tab",
+          "0.40", "Tab", "Tab", "Tab", "155", "Tab", "4.1", "Tab", "98", *["Tab"] * to_time,
+          when, "Tab", "MRN-TMUX-7", "Tab", "S2")
+    def texts(screen: str) -> dict[str, str]:
+        return {line[2:14].strip(): line[14:31].strip() for line in screen.splitlines()
+                if "\u2595" in line}
+
+    screen = _wait_for(s, lambda sc: "Store: flagged SERIAL-DELTA-NA" in _flat(sc)
+                       and texts(sc).get("Sample id") == "S2")
+    texts = texts(screen)
+    assert (texts["Collected"][-16:], texts["Patient"], texts["Sample id"]) == (
+        when[-16:], "MRN-TMUX-7", "S2")  # the time is longer than its box: its end shows
+    assert _flat(SHORT_CAUTION) in _flat(screen)
+    _tmux("send-keys", "-t", s, "C-r")  # to the reading, and back to the form's pH
+    _wait_for(s, lambda sc: not any(line.startswith("> ") for line in sc.splitlines()))
+    _tmux("send-keys", "-t", s, "C-r")
+    screen = _wait_for(s, lambda sc: form_rows(sc).get("pH", ("",))[0] == "7.33")
+    rows = form_rows(screen)
+    assert {k: rows[k][0] for k in PRINTED} == {**PRINTED, "Na+": "155"}
+    assert _flat(SHORT_CAUTION) in _flat(screen)
+    _tmux("send-keys", "-t", s, "C-t")
+    screen = _wait_for(s, "This panel: FLAGGED SERIAL-DELTA-NA")
+    assert "Na+ 155 after 140" in _flat(screen) and _flat(SHORT_CAUTION) in _flat(screen)
+    _tmux("send-keys", "-t", s, "k")
+    _wait_for(s, "keep it in the store")
+    _tmux("send-keys", "-t", s, "y")
+    _wait_for(s, "Kept in the store")
+    assert [r["sample_id"] for r in history.earlier_panels(str(store), "MRN-TMUX-7",
+                                                           key=key)] == ["S1", "S2"]

@@ -62,9 +62,11 @@ async def test_an_unreadable_settings_file_means_no_choices_yet(config_home):
         assert field(app, "pco2").unit == "mm[Hg]"
 
 
-@pytest.mark.parametrize(("name", "text"), [("po2", "45"), ("pco2", "12")])
-async def test_a_value_ordinary_in_the_other_unit_gets_a_hint_naming_the_key(name, text):
-    """pO2 45 and pCO2 12 are ordinary both in mm[Hg] and in kPa (acidbase.fields ranges)."""
+@pytest.mark.parametrize(("name", "text"), [("po2", "12"), ("pco2", "9")])
+async def test_a_value_odd_in_its_unit_and_ordinary_in_the_other_gets_a_hint(name, text):
+    """pO2 12 mm[Hg] (physiologic 20-700) and pCO2 9 mm[Hg] (10-150) are accepted but out
+    of the ordinary; as kPa (90 and 67.5 mm[Hg]; 1 kPa = 7.50062 mm[Hg]) they are
+    ordinary (acidbase.fields ranges)."""
     app = make_app()
     async with app.run_test(size=(80, 24)) as pilot:
         await key_in(pilot, PANELS["normal"])
@@ -72,6 +74,35 @@ async def test_a_value_ordinary_in_the_other_unit_gets_a_hint_naming_the_key(nam
         assert acidbase.also_ordinary(name, text, "mm[Hg]") == ("kPa",)
         assert field(app, name).message == "check: press F2 for kPa?"
         assert not field(app, name).has_class("-refused")
+
+
+@pytest.mark.parametrize(("name", "text"), [("po2", "45"), ("po2", "68"), ("po2", "90"),
+                                            ("pco2", "12")])
+async def test_a_value_ordinary_in_its_unit_gets_no_hint_though_ordinary_in_kpa_too(
+        name, text):
+    """pO2 45, 68, 90 and pCO2 12 mm[Hg] are ordinary as typed, and as kPa too: no hint."""
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in(pilot, PANELS["normal"])
+        await replace_value(pilot, name, text)
+        assert acidbase.also_ordinary(name, text, "mm[Hg]") == ("kPa",)
+        assert field(app, name).message == ""
+
+
+async def test_a_kpa_value_odd_in_kpa_and_ordinary_in_mmhg_gets_the_mmhg_hint():
+    """pO2 95 kPa = 712.6 mm[Hg], above the physiologic 700; 95 mm[Hg] is ordinary."""
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in(pilot, PANELS["normal"])
+        app.screen.query_one("#po2").focus()
+        await pilot.pause()
+        await pilot.press("f2", *"95")
+        await pilot.pause()
+        assert field(app, "po2").unit == "kPa"
+        assert field(app, "po2").message == "check: press F2 for mmHg?"
+        await pilot.press("backspace")  # 9 kPa = 67.5 mm[Hg]: ordinary, no hint
+        await pilot.pause()
+        assert field(app, "po2").message == ""
 
 
 async def test_a_value_ordinary_only_in_its_unit_gets_no_hint():

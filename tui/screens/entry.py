@@ -12,7 +12,7 @@ from __future__ import annotations
 from typing import TYPE_CHECKING, ClassVar
 
 from pydantic import ValidationError
-from textual import on
+from textual import events, on
 from textual.app import ComposeResult
 from textual.binding import Binding, BindingType
 from textual.containers import Horizontal
@@ -79,6 +79,10 @@ class EntryScreen(Screen[None]):
                 "clipboard (where the terminal allows it).", id="copy", show=False, priority=True),
         Binding("ctrl+o", "load", "load", tooltip="Load a series from a CSV file.", id="load",
                 show=False, priority=True),
+        Binding("ctrl+t", "store", "store", tooltip="With --history: the patient's stored "
+                "panels within the serial window and this panel's check against them; K "
+                "there keeps this panel in the store (asks first).", id="store", show=False,
+                priority=True),
     ]
 
     #: At 100 columns and more the form widens so that long titles fit on one line.
@@ -110,6 +114,8 @@ class EntryScreen(Screen[None]):
 
     def on_mount(self) -> None:
         self.query_one("#ph", Input).focus()
+        if self.app.store is not None and not self.app.store.usable:
+            self.call_after_refresh(self.say, self.app.store.problem)
         sitting = self.app.sitting
         if sitting.current is not None:
             self.load_entry(sitting.entries[sitting.current])
@@ -162,9 +168,43 @@ class EntryScreen(Screen[None]):
         self.form.show_messages(self._with_hints({}))
         self.app.panel = panel
         reading = acidbase.interpret(panel, self.app.settings)
-        self.pane.show(reading)
-        verdict_line.show(verdict(reading))
+        store, suffix = self._store_section(panel, data)
+        self.pane.show(reading, store=store)
+        verdict_line.show(verdict(reading) + (f" | {suffix}" if suffix else ""))
         self.app.sitting.update_current(data)
+
+    # -- the history store (--history) -------------------------------------------
+    def _store_section(self, panel: acidbase.Panel, data: dict
+                       ) -> tuple[tuple[str, list[str]] | None, str]:
+        """The store's part of the reading and of the verdict (none without --history)."""
+        link = self.app.store
+        if link is None:
+            return None, ""
+        from ..store import section
+
+        patient = str(data.get("patient_id") or "").strip()
+        typing = self.focused is not None and self.focused.id == "patient_id"
+        waiting = bool(patient) and typing and not link.known(patient)
+        check = None if waiting or not link.usable else link.check(panel, data, read=True)
+        title, lines, suffix = section(link, check, patient, waiting)
+        return (title, lines), suffix
+
+    def on_descendant_blur(self, event: events.DescendantBlur) -> None:
+        # The patient's stored panels are read once the id is typed in full.
+        if self.app.store is not None and event.widget.id == "patient_id":
+            self.call_after_refresh(self.reread)
+
+    def action_store(self) -> None:
+        link = self.app.store
+        if link is None:
+            self.say("No history store: start the app with --history PATH to use one.")
+            return
+        if not link.usable:
+            self.say(link.problem)
+            return
+        from .store import StoreScreen
+
+        self.app.push_screen(StoreScreen(self.form.data()), lambda _: self.reread())
 
     def _with_hints(self, by_field: dict[str, list[str]]) -> dict[str, list[str]]:
         """Add "check: press F2 for kPa?" under values also ordinary in another unit."""
@@ -257,7 +297,9 @@ class EntryScreen(Screen[None]):
         more = self.query_one(MoreValues)
         more.folded = not more.folded
         if more.folded and self.focused is not None and more in self.focused.ancestors:
-            self.query_one("#collected_at", Input).focus()
+            # set at once, not after this key (as .focus() would): the next keys of a burst
+            # land in the field that has the focus now
+            self.set_focus(self.query_one("#collected_at", Input))
 
     def action_keep(self) -> None:
         data = self.form.data()
@@ -283,7 +325,7 @@ class EntryScreen(Screen[None]):
         self.app.sitting.current = None
         self.pane.forget()
         self.form.fill({})
-        self.query_one("#ph", Input).focus()
+        self.set_focus(self.query_one("#ph", Input))
         self.say("New panel (units as chosen). Ctrl+Z brings the cleared one back."
                  if filled else "New panel.")
 
@@ -301,9 +343,9 @@ class EntryScreen(Screen[None]):
     def action_reading(self) -> None:
         findings = self.query_one(FindingList)
         if findings.has_focus:
-            self.query_one("#ph", Input).focus()
+            self.set_focus(self.query_one("#ph", Input))
         else:
-            findings.focus()
+            self.set_focus(findings)
 
     @on(OptionList.OptionSelected, "#findings")
     def open_finding(self, event: OptionList.OptionSelected) -> None:
@@ -311,6 +353,9 @@ class EntryScreen(Screen[None]):
 
         it = self.pane.reading
         option_id = event.option.id or ""
+        if option_id.startswith("store"):
+            self.action_store()
+            return
         if it is None or not option_id.startswith("finding-"):
             return
         self.app.push_screen(FindingScreen(it.findings[int(option_id.split("-")[1])],

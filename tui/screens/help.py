@@ -22,6 +22,7 @@ from .files import LoadScreen, SaveScreen
 from .finding import FindingScreen
 from .plane import PlaneScreen
 from .series import SeriesScreen
+from .store import StoreScreen
 
 #: Keys that Textual's own widgets give (not bindings of ours), per place.
 MOVING: dict[str, list[tuple[str, str]]] = {
@@ -31,6 +32,7 @@ MOVING: dict[str, list[tuple[str, str]]] = {
     ],
     "Series": [("Up / Down", "move between panels")],
     "Compare": [("Up / Down", "move between rows")],
+    "History store": [("Up / Down", "move between stored panels")],
     "Finding": [("Up / Down / Page keys", "scroll")],
 }
 
@@ -42,6 +44,7 @@ PLACES: tuple[tuple[str, list[Binding]], ...] = (
     ("Plane", PlaneScreen.BINDINGS),
     ("Series", SeriesScreen.BINDINGS),
     ("Compare", CompareScreen.BINDINGS),
+    ("History store (acidbase tui --history PATH; Ctrl+T)", StoreScreen.BINDINGS),
     ("Save", SaveScreen.BINDINGS),
     ("Load", LoadScreen.BINDINGS),
     ("Questions (quit, replace a file)", ConfirmScreen.BINDINGS),

@@ -25,9 +25,13 @@ from textual.reactive import reactive
 from textual.widget import Widget
 from textual.widgets import Input, Label, Static
 
-from acidbase.fields import BY_NAME, HCO3_SOURCES, SAMPLE_TYPES, TEXT_FIELDS, FieldSpec
+from acidbase.fields import (BY_NAME, HCO3_SOURCES, PREGNANCY_STATES, SAMPLE_TYPES, TEXT_FIELDS,
+                             FieldSpec)
 
-from ..labels import AFTER_GAS, ELECTROLYTES, GAS, form_title, rest, unit_label
+from ..labels import AFTER_GAS, ELECTROLYTES, GAS, choice_label, form_title, rest, unit_label
+
+#: The answer fields of the group of more values, after its numbers (in the form's order).
+MORE_CHOICES: tuple[str, ...] = ("pregnancy",)
 
 #: Plain names for the text fields (they carry no chemistry), in the form's order.
 TEXT_TITLES = {"collected_at": "Collected", "patient_id": "Patient", "sample_id": "Sample id"}
@@ -165,7 +169,8 @@ class ChoiceField(Widget, can_focus=True):
 
     def render(self) -> str:
         # The mark and the brackets show focus in shapes, not by colour alone.
-        shown = f"< {self.value} >" if self.has_focus else f"  {self.value}  "
+        word = choice_label(self.value)
+        shown = f"< {word} >" if self.has_focus else f"  {word}  "
         return f"{marked(self.title, self.has_focus):<14}{shown}"
 
     def on_focus(self) -> None:
@@ -195,8 +200,9 @@ class MoreValues(Vertical):
     folded: reactive[bool] = reactive(False)
 
     def watch_folded(self, folded: bool) -> None:
-        for child in self.query_children(ValueField):
-            child.display = not folded
+        for child in self.children:
+            if isinstance(child, (ValueField, ChoiceField)):
+                child.display = not folded
         self.query_one(FoldTitle).refresh()
 
 
@@ -229,6 +235,8 @@ class EntryForm(VerticalScroll):
             yield FoldTitle(id="fold")
             for name in rest():
                 yield self._field(name)
+            # Pregnancy selects the third-trimester intervals (acidbase.reference).
+            yield ChoiceField("pregnancy", "Pregnancy", PREGNANCY_STATES, "unknown")
         for name in sorted(TEXT_FIELDS, key=list(TEXT_TITLES).index):
             with Horizontal(classes="field-line text-line"):
                 yield RowTitle(TEXT_TITLES[name])

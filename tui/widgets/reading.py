@@ -94,6 +94,7 @@ class ReadingPane(Vertical):
         self.stale = False
         """True when the form now holds values the engine refuses."""
         self._shown = False
+        self._store: tuple[str, list[str]] | None = None
 
     def compose(self) -> ComposeResult:
         yield ReadingState("", id="reading-state", markup=False)
@@ -102,8 +103,12 @@ class ReadingPane(Vertical):
     def on_mount(self) -> None:
         self.show(None)
 
-    def show(self, it: acidbase.Interpretation | None, stale_because: str = "") -> None:
-        """Show a fresh reading (``it``), or mark the shown one stale (``stale_because``)."""
+    def show(self, it: acidbase.Interpretation | None, stale_because: str = "",
+             store: tuple[str, list[str]] | None = None) -> None:
+        """Show a fresh reading (``it``), or mark the shown one stale (``stale_because``).
+
+        ``store``: the history store's heading and lines, shown after the reading.
+        """
         state = self.query_one("#reading-state", ReadingState)
         if stale_because:
             self.stale = self.reading is not None
@@ -119,9 +124,10 @@ class ReadingPane(Vertical):
             return
         self.stale = False
         self.set_class(False, "-stale")
-        if it is not None and it == self.reading and self._shown:
+        if it is not None and it == self.reading and self._shown and store == self._store:
             return  # the same reading again (e.g. a trailing zero typed): nothing to redraw
         self.reading = it
+        self._store = store
         self._shown = it is not None
         options = self.query_one(FindingList)
         options.clear_options()
@@ -142,6 +148,12 @@ class ReadingPane(Vertical):
             lines += [Option(Content(on_screen(f"{MARKS.get(f.severity, f.severity)} {f.text}")),
                              id=f"finding-{i}")
                       for i, f in enumerate(it.findings) if f.section == section]
+        if store is not None:
+            title, texts = store
+            lines.append(Option(Content.from_markup("[b]$text[/b]", text=on_screen(title)),
+                                id="store", disabled=True))
+            lines += [Option(Content(on_screen(t)), id=f"store-{i}")
+                      for i, t in enumerate(texts)]
         options.add_options(lines)  # one update of the list, not one per line
         first = next((k for k, line in enumerate(lines) if not line.disabled), None)
         if first is not None:
