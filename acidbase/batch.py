@@ -718,7 +718,8 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         progress.end()
     writer.finish()
     if store is not None:  # only a run whose every row was written is stored
-        notes.append(history.commit_run(store, checker, args.input, _audit(args)))
+        notes.append(history.commit_run(store, checker, args.input, _audit(args),
+                                        input_sha256))
     summary = staged.get("--summary")
     record = audit.record(site, started, input_name=label, input_path=args.input,
                           input_sha256=input_sha256,

@@ -596,13 +596,29 @@ def feed_earlier(store: Store, checker) -> int:
     return read
 
 
-def commit_run(store: Store, checker, input_path: str, settings: Mapping[str, object]) -> str:
-    """Add the run's new panels with its audit record; the summary's line."""
+def run_settings(settings: Mapping[str, object], checker, store: Store) -> dict[str, object]:
+    """The run's settings for its record, with the window, the delta limits and the
+    retention the run used, wherever they were set (option, site configuration or
+    default): an option left unset is None in ``settings``."""
+    used = dict(settings)
+    used["window_hours"] = checker.window / 3600.0
+    delta: dict[str, float | None] = {f: None for f in STORED_FIELDS}  # None: switched off
+    delta.update({r.field: r.limit for r in checker.rules})
+    used["delta"] = delta
+    used["history_retention_days"] = store.retention / _DAY
+    return used
+
+
+def commit_run(store: Store, checker, input_path: str, settings: Mapping[str, object],
+               input_sha256: str | None = None) -> str:
+    """Add the run's new panels with its audit record; the summary's line.
+    ``input_sha256``: the input's SHA-256 when the run has it already (read again
+    otherwise)."""
     from . import __version__
 
     known = checker.known & checker.interpreted
-    record = RunRecord(tool_version=__version__, settings=dict(settings),
-                       input_sha256=file_sha256(input_path),
+    record = RunRecord(tool_version=__version__, settings=run_settings(settings, checker, store),
+                       input_sha256=input_sha256 or file_sha256(input_path),
                        already_stored=int(np.count_nonzero(known)),
                        earlier_used=checker.earlier_used)
     store.commit(checker.new_panels(), record)

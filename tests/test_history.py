@@ -366,3 +366,42 @@ def test_a_run_killed_while_storing_leaves_the_store_as_it_was(tmp_path, capsys)
         pytest.skip("the run finished before its transaction could be caught on disk")
     assert count(store) == before
     assert sqlite3.connect(store).execute("PRAGMA integrity_check").fetchone() == ("ok",)
+
+
+def test_the_run_record_keeps_the_window_and_limits_the_configuration_set(tmp_path, capsys):
+    """A window and a delta limit set by the site configuration (not by options) are
+    the ones the store's run record names: the settings the checks used."""
+    import json
+
+    config = tmp_path / "site.toml"
+    config.write_text("[serial]\nwindow_hours = 12\ndelta = { na = 15 }\n")
+    store = tmp_path / "store.db"
+    rc, _, _ = run(capsys, panels(tmp_path / "day.csv", [("S1", "P-1", 1.0, 140)]), store,
+                   "--config", str(config))
+    assert rc == 0
+    settings = json.loads(sqlite3.connect(store).execute(
+        "SELECT settings FROM runs").fetchone()[0])
+    assert settings["window_hours"] == 12.0
+    assert settings["delta"]["na"] == 15.0 and settings["delta"]["k"] == 1.0
+    assert settings["history_retention_days"] == history.DEFAULT_RETENTION_DAYS
+
+
+def test_the_run_record_names_the_input_by_the_sha256_the_run_read_once(tmp_path, capsys,
+                                                                      monkeypatch):
+    """The store's record keeps the input's SHA-256 (NIST FIPS 180-4, computed here by
+    hashlib) that the run's own audit record computed: the file is not read a third time."""
+    import hashlib
+    import json
+
+    def again(path):
+        raise AssertionError("the input was hashed a second time")
+
+    monkeypatch.setattr(history, "file_sha256", again)
+    src = panels(tmp_path / "day.csv", [("S1", "P-1", 1.0, 140)])
+    store = tmp_path / "store.db"
+    summary = tmp_path / "summary.json"
+    rc, _, _ = run(capsys, src, store, "--summary", str(summary))
+    assert rc == 0
+    stored = sqlite3.connect(store).execute("SELECT input_sha256 FROM runs").fetchone()[0]
+    assert stored == hashlib.sha256(src.read_bytes()).hexdigest()
+    assert stored == json.loads(summary.read_text())["audit"]["input"]["sha256"]
