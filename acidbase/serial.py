@@ -556,13 +556,18 @@ def _texts(rules: Sequence[DeltaRule], flagged: np.ndarray, row: np.ndarray, t: 
     Each piece of text is built only for the rows it is about.  The result is in
     the order ``out_order`` of the flagged rows (their own order when None)."""
 
-    def ref(at: np.ndarray) -> pa.Array:
-        return _refs(row[at], samples(at), t[at], zoned[at])
-
-    parts: list[tuple[str, np.ndarray, pa.Array]] = []  # (code, rows of flagged, text)
     any_break = np.zeros(len(flagged), dtype=bool)
     for r in rules:
         any_break |= brk[r.field][flagged]
+    # Every panel a text names (the one before each flagged panel, the one after a
+    # break), its reference built once.
+    named = np.unique(np.concatenate([flagged - 1, flagged[any_break] + 1]))
+    named_refs = _refs(row[named], samples(named), t[named], zoned[named])
+
+    def ref(at: np.ndarray) -> pa.Array:
+        return named_refs.take(pa.array(np.searchsorted(named, at)))
+
+    parts: list[tuple[str, np.ndarray, pa.Array]] = []  # (code, rows of flagged, text)
     if any_break.any():
         sel = np.flatnonzero(any_break)
         at = flagged[sel]
@@ -590,7 +595,7 @@ def _texts(rules: Sequence[DeltaRule], flagged: np.ndarray, row: np.ndarray, t: 
         d = v[i] - v[i - 1]
         parts.append((r.code, sel, pc.binary_join_element_wise(
             spec.title, " ", _numbers(v[i]), " after ", _numbers(v[i - 1]), " (",
-            pa.array(np.where(d > 0, "+", "")), _numbers(d), f" {spec.unit} in ",
+            pc.if_else(pa.array(d > 0), "+", ""), _numbers(d), f" {spec.unit} in ",
             _formatted((t[i] - t[i - 1]).astype(np.float64), _hours), ", since ",
             ref(i - 1), f"); delta limit {_fmt(r.limit)} {spec.unit}", "")))
     return _joined(parts, len(flagged), "; ", ";", out_order)
