@@ -644,7 +644,8 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         # With a store, earlier panels join the partitions: twice as many of them.
         checker = serial.SerialChecker(serial.rules_with(site.deltas), site.window_hours,
                                        serial.SerialChecker.partitions_for(src.size)
-                                       * (2 if store else 1), keep=store is not None)
+                                       * (2 if store else 1), keep=store is not None,
+                                       hashed_ids=store is not None)
         stack.callback(checker.close)  # its scratch folder goes, whatever happens
         progress = Progress(src.estimated_rows(), not args.quiet)
         progress.label = "serial 1/2"

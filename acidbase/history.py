@@ -40,7 +40,7 @@ import pyarrow.compute as pc
 from pyarrow import ipc
 
 from .errors import AcidBaseError
-from .serial import STORED_FIELDS
+from .serial import STORED_FIELDS, hex_prefix64
 
 #: Version of the store's layout; a store of a later version is refused.
 SCHEMA_VERSION = 1
@@ -106,15 +106,21 @@ def hash_id(patient_id: str, key: bytes) -> str:
 def hash_ids(ids: pa.Array | pa.ChunkedArray, key: bytes) -> pa.Array:
     """Patient ids -> their stored form (each distinct id hashed once); a missing or
     blank id stays empty (it takes no part in the serial checks)."""
+    indices, hashed = _hash_distinct(ids, _Hmac(key))
+    return pc.fill_null(hashed.take(indices), "")
+
+
+def _hash_distinct(ids: pa.Array | pa.ChunkedArray, one: _Hmac) -> tuple[pa.Array, pa.Array]:
+    """The ids dictionary-encoded: their indices (null for a missing id) and each
+    distinct id's stored form ("" for a blank one), hashed once per distinct id."""
     if isinstance(ids, pa.ChunkedArray):
         ids = ids.combine_chunks()
     if not pa.types.is_string(ids.type):
         ids = pc.cast(ids, pa.string())
     enc = pc.dictionary_encode(ids)
     words = enc.dictionary.to_pylist()
-    one = _Hmac(key)
-    hashed = pa.array([one(w) if w and w.strip() else "" for w in words], pa.string())
-    return pc.fill_null(hashed.take(enc.indices), "")
+    return enc.indices, pa.array([one(w) if w and w.strip() else "" for w in words],
+                                 pa.string())
 
 
 class _Hmac:
@@ -183,7 +189,9 @@ class Store:
                     raise HistoryError(f"{self.path} is not a history store")
         self.db = sqlite3.connect(self.path, timeout=timeout, isolation_level=None)
         self._in_run = False
-        self._seen: list[np.ndarray] = []  # this run's patients (hash prefixes), by chunk
+        self._seen: list[tuple[np.ndarray, np.ndarray]] = []
+        """This run's patients (hash prefixes) and each one's earliest time, by chunk."""
+        self._hmac: _Hmac | None = None
         try:
             self._prepare()
         except BaseException:
@@ -259,18 +267,20 @@ class Store:
         ``seconds``, the collection times) each one's earliest time."""
         if self.key is None:
             raise HistoryError("hashing patient ids needs the site key")
-        hashed = hash_ids(ids, self.key)
-        enc = pc.dictionary_encode(hashed)
-        words = enc.dictionary
-        idx = np.asarray(enc.indices.to_numpy(zero_copy_only=False))
-        first = np.full(len(words), np.iinfo(np.int64).max, dtype=np.int64)
+        if self._hmac is None:
+            self._hmac = _Hmac(self.key)
+        indices, words = _hash_distinct(ids, self._hmac)
+        # Each distinct id's earliest time, from the indices (a missing id: the last slot).
+        idx = np.asarray(pc.fill_null(indices, len(words)).to_numpy(zero_copy_only=False),
+                         dtype=np.int64)
+        first = np.full(len(words) + 1, np.iinfo(np.int64).max, dtype=np.int64)
         if seconds is not None:
             np.minimum.at(first, idx, np.asarray(seconds, dtype=np.int64))
         else:
             first[:] = np.iinfo(np.int64).min
         real = np.asarray(pc.not_equal(words, "").to_numpy(zero_copy_only=False), dtype=bool)
-        self._seen.append((_prefix64(words.filter(pa.array(real))), first[real]))
-        return hashed
+        self._seen.append((hex_prefix64(words.filter(pa.array(real))), first[:-1][real]))
+        return pc.fill_null(words.take(indices), "")
 
     def earlier(self, lo: int, hi: int) -> Iterator[pa.Table]:
         """Stored panels collected from ``lo`` to ``hi`` (seconds), a block at a time.
@@ -294,30 +304,36 @@ class Store:
         pref, first = pref[head], first[head]  # sorted; each patient's earliest time
         if len(pref) == 0:
             return
-        for table in self._blocks(lo, hi):
-            p = _prefix64(table["patient"])
-            at = np.minimum(np.searchsorted(pref, p), len(pref) - 1)
-            mine = pref[at] == p
-            if not mine.any():
-                continue
-            table, at = table.filter(pa.array(mine)), at[mine]
+        for table in self._blocks(lo, hi, filtered=False):
+            # One filter per block: in the time range, one of the run's patients, and
+            # of those before the patient's first panel here, the latest.
+            p = hex_prefix64(table["patient"])
             t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
+            at = np.minimum(np.searchsorted(pref, p), len(pref) - 1)
+            mine = np.flatnonzero((pref[at] == p) & (t >= lo) & (t <= hi))
+            if mine.size == 0:
+                continue
+            at, t = at[mine], t[mine]
             before = t < first[at]
             keep = ~before
             if before.any():  # each patient's latest before its first panel here
-                idx = np.flatnonzero(before)
-                o = idx[np.lexsort((t[idx], at[idx]))]
-                a, tt = at[o], t[o]
-                last = np.concatenate([a[1:] != a[:-1], [True]])
-                group = np.cumsum(np.concatenate([[True], last[:-1]])) - 1
-                keep[o] = tt == tt[last][group]
-            yield table.filter(pa.array(keep))
+                latest = np.full(len(pref), np.iinfo(np.int64).min, dtype=np.int64)
+                np.maximum.at(latest, at[before], t[before])
+                keep |= before & (t == latest[at])
+            mask = np.zeros(table.num_rows, dtype=bool)
+            mask[mine[keep]] = True
+            yield table.filter(pa.array(mask))
 
-    def _blocks(self, lo: int, hi: int) -> Iterator[pa.Table]:
+    def _blocks(self, lo: int, hi: int, filtered: bool = True) -> Iterator[pa.Table]:
+        """The blocks that overlap ``lo`` to ``hi``, each cut to that range (or whole:
+        ``filtered=False``)."""
         cur = self.db.execute("SELECT data FROM blocks WHERE tmax >= ? AND tmin <= ?",
                               (int(lo), int(hi)))
         for (data,) in cur:
             table = _decode(data)
+            if not filtered:
+                yield table
+                continue
             yield table.filter(pc.and_(pc.greater_equal(table["t"], lo),
                                        pc.less_equal(table["t"], hi)))
 
@@ -360,14 +376,12 @@ class Store:
         """One block per patient bucket (the first hex digit of the keyed hash)."""
         if table.num_rows == 0:
             return
-        bucket = pc.utf8_slice_codeunits(table["patient"], 0, 1)
-        enc = pc.dictionary_encode(bucket).combine_chunks()
-        idx = np.asarray(enc.indices.to_numpy(zero_copy_only=False))
+        idx = _first_digit(table["patient"])
         order = np.argsort(idx, kind="stable")
         table = table.take(pa.array(order))
         idx = idx[order]
         edges = np.r_[0, np.flatnonzero(np.diff(idx)) + 1, len(idx)]
-        names = enc.dictionary.to_pylist()
+        names = "0123456789abcdef"
         rows = []
         for lo, hi in itertools.pairwise(edges):
             part = table.slice(lo, hi - lo)
@@ -475,26 +489,21 @@ class Store:
             self.db.close()
 
 
-_HEX = np.zeros(256, dtype=np.uint64)
-_HEX[np.frombuffer(b"0123456789abcdef", dtype=np.uint8)] = np.arange(16, dtype=np.uint64)
-_SHIFTS = (4 * np.arange(15, -1, -1)).astype(np.uint64)
-
-
-def _prefix64(hashes: pa.Array | pa.ChunkedArray) -> np.ndarray:
-    """The first 64 bits of each hex hash, as unsigned integers (read from the Arrow
-    buffer: no Python object per value)."""
-    if isinstance(hashes, pa.ChunkedArray):
-        hashes = hashes.combine_chunks()
-    n = len(hashes)
-    if n == 0:
-        return np.zeros(0, dtype=np.uint64)
+def _first_digit(hashes: pa.Array | pa.ChunkedArray) -> np.ndarray:
+    """The first hex digit of each stored hash (0 to 15): its block's bucket."""
+    hashes = hashes.combine_chunks() if isinstance(hashes, pa.ChunkedArray) else hashes
+    if len(hashes) == 0:
+        return np.zeros(0, dtype=np.int64)
     offsets = np.frombuffer(hashes.buffers()[1], dtype=np.int32)[hashes.offset:
-                                                                  hashes.offset + n + 1]
-    if hashes.null_count or not (np.diff(offsets) >= 16).all():
-        return np.array([int(h[:16], 16) for h in hashes.to_pylist()], dtype=np.uint64)
+                                                                  hashes.offset + len(hashes) + 1]
+    if hashes.null_count or not (np.diff(offsets) > 0).all():  # not a run's hashes
+        return np.array([int(h[:1], 16) for h in hashes.to_pylist()], dtype=np.int64)
     data = np.frombuffer(hashes.buffers()[2], dtype=np.uint8)
-    nibbles = _HEX[data[offsets[:-1, None] + np.arange(16)]]
-    return np.bitwise_or.reduce(nibbles << _SHIFTS, axis=1)
+    return _HEX_DIGIT[data[offsets[:-1]]].astype(np.int64)
+
+
+_HEX_DIGIT = np.zeros(256, dtype=np.uint8)
+_HEX_DIGIT[np.frombuffer(b"0123456789abcdef", dtype=np.uint8)] = np.arange(16, dtype=np.uint8)
 
 
 def _encode(table: pa.Table) -> bytes:

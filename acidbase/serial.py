@@ -151,12 +151,14 @@ class SerialChecker:
     """Collects rows (first pass), then checks each patient's series.
 
     ``keep=True`` keeps the first pass's files until ``close`` so that the run's
-    panels can be read back (``panels``) to be stored for later runs.
+    panels can be read back (``panels``) to be stored for later runs;
+    ``hashed_ids=True`` says the patient ids given are the store's hex hashes.
     """
 
     def __init__(self, rules: Sequence[DeltaRule] = DELTA_RULES,
                  window_hours: float = DEFAULT_WINDOW_HOURS, partitions: int = 1,
-                 workdir: str | None = None, keep: bool = False) -> None:
+                 workdir: str | None = None, keep: bool = False,
+                 hashed_ids: bool = False) -> None:
         if not window_hours > 0:
             raise ValueError("the serial window must be a positive number of hours")
         self.rules = tuple(rules)
@@ -164,6 +166,9 @@ class SerialChecker:
         self.k = max(1, int(partitions))
         self.fields = tuple(dict.fromkeys([*STORED_FIELDS, *(r.field for r in self.rules)]))
         self.keep = keep
+        self.hashed_ids = hashed_ids
+        """Patient ids are the history store's hex hashes: partitioned by their first
+        64 bits, with no Python call per id."""
         self._tmp = tempfile.TemporaryDirectory(prefix="acidbase-serial-", dir=workdir)
         self.schema = pa.schema(
             [("row", pa.int64()), ("patient", pa.string()), ("t", pa.int64()),
@@ -252,10 +257,13 @@ class SerialChecker:
     def _spill(self, table: pa.Table, kind: str) -> None:
         """Append rows to the partition files, by a hash of the patient."""
         if self.k > 1:
-            enc = pc.dictionary_encode(table["patient"]).combine_chunks()
-            buckets = np.array([hash(s) % self.k for s in enc.dictionary.to_pylist()],
-                               dtype=np.int64)
-            part = buckets[np.asarray(enc.indices.to_numpy(zero_copy_only=False))]
+            if self.hashed_ids:
+                part = (hex_prefix64(table["patient"]) % np.uint64(self.k)).astype(np.int64)
+            else:
+                enc = pc.dictionary_encode(table["patient"]).combine_chunks()
+                buckets = np.array([hash(s) % self.k for s in enc.dictionary.to_pylist()],
+                                   dtype=np.int64)
+                part = buckets[np.asarray(enc.indices.to_numpy(zero_copy_only=False))]
             order = np.argsort(part, kind="stable")
             table = table.take(pa.array(order))
             bounds = np.searchsorted(part[order], np.arange(self.k + 1))
@@ -393,7 +401,7 @@ class SerialChecker:
         """``_drop_stored_copies`` over the rows that share a patient and a time with
         another (few, unless a file is read again); None when none do."""
         t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
-        o = np.lexsort((t, pid))
+        o = _series_order(pid, t, row)
         same = (pid[o][1:] == pid[o][:-1]) & (t[o][1:] == t[o][:-1])
         if not same.any():
             return None
@@ -697,6 +705,28 @@ def _codes(x: pa.ChunkedArray | pa.Array) -> np.ndarray:
         enc = enc.combine_chunks()
     return np.asarray(pc.fill_null(enc.indices, -1).to_numpy(zero_copy_only=False),
                       dtype=np.int64)
+
+
+_HEX = np.zeros(256, dtype=np.uint8)
+_HEX[np.frombuffer(b"0123456789abcdef", dtype=np.uint8)] = np.arange(16, dtype=np.uint8)
+
+
+def hex_prefix64(hashes: pa.Array | pa.ChunkedArray) -> np.ndarray:
+    """The first 64 bits of each hex hash (the history store's keyed ids), as unsigned
+    integers, read from the Arrow buffers (no Python object per value)."""
+    if isinstance(hashes, pa.ChunkedArray):
+        hashes = hashes.combine_chunks()
+    n = len(hashes)
+    if n == 0:
+        return np.zeros(0, dtype=np.uint64)
+    offsets = np.frombuffer(hashes.buffers()[1], dtype=np.int32)[hashes.offset:
+                                                                  hashes.offset + n + 1]
+    if hashes.null_count or not (np.diff(offsets) >= 16).all():
+        return np.array([int(h[:16], 16) for h in hashes.to_pylist()], dtype=np.uint64)
+    data = np.frombuffer(hashes.buffers()[2], dtype=np.uint8)
+    nibbles = _HEX[data[offsets[:-1, None] + np.arange(16, dtype=np.int32)]]
+    packed = (nibbles[:, 0::2] << 4) | nibbles[:, 1::2]  # 8 bytes, most significant first
+    return np.ascontiguousarray(packed).view(">u8").ravel().astype(np.uint64)
 
 
 def _mask(x: pa.Array | pa.ChunkedArray) -> np.ndarray:
