@@ -377,9 +377,10 @@ class Store:
         if table.num_rows == 0:
             return
         idx = _first_digit(table["patient"])
-        order = np.argsort(idx, kind="stable")
-        table = table.take(pa.array(order))
-        idx = idx[order]
+        if not (idx[1:] >= idx[:-1]).all():  # (a run's partitions are one digit each)
+            order = np.argsort(idx, kind="stable")
+            table = table.take(pa.array(order))
+            idx = idx[order]
         edges = np.r_[0, np.flatnonzero(np.diff(idx)) + 1, len(idx)]
         names = "0123456789abcdef"
         rows = []
