@@ -681,12 +681,20 @@ def _numbers(x: np.ndarray) -> pa.Array:
 def _refs(row: np.ndarray, sample: pa.Array, t: np.ndarray, zoned: np.ndarray) -> pa.Array:
     """"row 3 (sample S3)"; an earlier run's panel by its collection time instead."""
     ours = row >= 0
-    name = pc.binary_join_element_wise("row ", pc.cast(pa.array(row + 1), pa.string()), "")
-    if not ours.all():
-        stamp = pc.strftime(pc.cast(pa.array(t), pa.timestamp("s")), format="%Y-%m-%dT%H:%M")
-        stamp = pc.binary_join_element_wise(stamp, pa.array(np.where(zoned, "Z", "")), "")
-        stored = pc.binary_join_element_wise("the stored panel of ", stamp, "")
-        name = pc.if_else(pa.array(ours), name, stored)
+    if ours.all():
+        name = pc.binary_join_element_wise("row ", pc.cast(pa.array(row + 1), pa.string()), "")
+    else:  # each kind of name built only for its own panels
+        own, other = np.flatnonzero(ours), np.flatnonzero(~ours)
+        mine = pc.binary_join_element_wise("row ", pc.cast(pa.array(row[own] + 1), pa.string()),
+                                           "")
+        stamp = pc.strftime(pc.cast(pa.array(t[other]), pa.timestamp("s")),
+                            format="%Y-%m-%dT%H:%M")
+        stored = pc.binary_join_element_wise("the stored panel of ", stamp, pc.if_else(
+            pa.array(zoned[other]), "Z", ""), "")
+        where = np.empty(len(row), dtype=np.int64)
+        where[own] = np.arange(len(own))
+        where[other] = len(own) + np.arange(len(other))
+        name = pa.concat_arrays([mine, stored]).take(pa.array(where))
     has = pc.fill_null(pc.not_equal(sample, ""), False)
     suffix = pc.binary_join_element_wise(" (sample ", sample, ")", "")
     return pc.binary_join_element_wise(name, pc.if_else(has, suffix, ""), "")
