@@ -353,8 +353,10 @@ class Store:
             run_id = cur.lastrowid
             for table in panels:
                 old = pc.less(table["t"], cutoff)
-                record.too_old += int(pc.sum(old).as_py() or 0)
-                table = table.filter(pc.invert(old))
+                n_old = int(pc.sum(old).as_py() or 0)
+                if n_old:  # (a copy only when there is something to leave out)
+                    record.too_old += n_old
+                    table = table.filter(pc.invert(old))
                 record.added += table.num_rows
                 self._write_blocks(run_id, table)
             self.db.execute("UPDATE runs SET panels_added = ?, panels_already_stored = ? "

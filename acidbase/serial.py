@@ -515,7 +515,9 @@ class SerialChecker:
                 first = np.concatenate([[True], (pid[o][1:] != pid[o][:-1])
                                         | (t[o][1:] != t[o][:-1]) | (sid[o][1:] != sid[o][:-1])])
                 new[np.flatnonzero(twin)[o[~first]]] = False
-            if new.any():
+            if new.all():  # (the usual case: no copy)
+                yield table.select(names)
+            elif new.any():
                 yield table.filter(pa.array(new)).select(names)
 
     def arrow_columns(self, start: int, stop: int) -> dict[str, pa.Array]:
