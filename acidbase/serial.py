@@ -266,9 +266,11 @@ class SerialChecker:
                 buckets = np.array([hash(s) % self.k for s in enc.dictionary.to_pylist()],
                                    dtype=np.int64)
                 part = buckets[np.asarray(enc.indices.to_numpy(zero_copy_only=False))]
-            order = np.argsort(part, kind="stable")
-            table = table.take(pa.array(order))
-            bounds = np.searchsorted(part[order], np.arange(self.k + 1))
+            if not (part[1:] >= part[:-1]).all():  # (a stored block: one partition)
+                order = np.argsort(part, kind="stable")
+                table = table.take(pa.array(order))
+                part = part[order]
+            bounds = np.searchsorted(part, np.arange(self.k + 1))
         else:
             bounds = np.array([0, table.num_rows])
         for b in range(self.k):
