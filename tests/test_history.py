@@ -405,3 +405,34 @@ def test_the_run_record_names_the_input_by_the_sha256_the_run_read_once(tmp_path
     stored = sqlite3.connect(store).execute("SELECT input_sha256 FROM runs").fetchone()[0]
     assert stored == hashlib.sha256(src.read_bytes()).hexdigest()
     assert stored == json.loads(summary.read_text())["audit"]["input"]["sha256"]
+
+
+def test_a_break_between_a_stored_panel_and_a_row_of_the_file_names_both(tmp_path, capsys):
+    """The panels either side of a break: one from the store (by its time), one of this
+    file (by its row)."""
+    store = tmp_path / "store.db"
+    run(capsys, panels(tmp_path / "day1.csv", [("S1", "P-1", 1.5, 140)]), store)
+    rc, rows, _ = run(capsys, panels(tmp_path / "day2.csv", [("S2", "P-1", 1.2, 160),
+                                                             ("S3", "P-1", 1.0, 141)]), store)
+    assert rc == 0 and rows[0]["serial_codes"].startswith("SERIAL-BREAK")
+    detail = rows[0]["serial_detail"]
+    assert "; panels the stored panel of " in detail
+    assert "Z (sample S1) and row 2 (sample S3)):" in detail
+
+
+def test_the_store_reads_only_each_patients_latest_panel_before_the_file(tmp_path, capsys):
+    """Of a patient's stored panels before the patient's first panel in the run, only the
+    latest is read (the others could be no panel's neighbour); those from then on all."""
+    store = tmp_path / "store.db"
+    run(capsys, panels(tmp_path / "day1.csv", [("S1", "P-1", 1.9, 140), ("S2", "P-1", 1.8, 141),
+                                               ("S3", "P-1", 1.7, 128), ("S4", "P-1", 1.2, 139),
+                                               ("S5", "P-2", 1.8, 150)]), store)
+    s = history.Store(str(store), KEY.encode(), create=False)
+    try:
+        now = dt.datetime.now(dt.UTC).timestamp()
+        first = int(now - 1.5 * 86400)  # P-1's first panel in the (imagined) run
+        s.hash_ids(pa.array(["P-1", "P-1"]), [first, first + 3600])
+        got = pa.concat_tables(list(s.earlier(first - 86400 * 3, first + 86400)))
+    finally:
+        s.close()
+    assert sorted(got["sample"].to_pylist()) == ["S3", "S4"]
