@@ -1,11 +1,12 @@
 """The history store: each patient's earlier panels across runs, for the serial checks.
 
 One SQLite file (the standard library's ``sqlite3``).  Panels are kept in column
-blocks: each block is an Arrow IPC stream (zstd) of one run's panels of one
-sixteenth of the patients, with its time range beside it.  A run writes a few
-hundred blocks in one transaction instead of a million rows (row-wise inserts
-measured 4.5 s per million panels here, far beyond the 20 % a store may add to a
-run), and reads back only the blocks that overlap its time range.
+blocks: each block is an Arrow IPC stream (LZ4 frame, else zstd) of panels of one
+run and one sixteenth of the patients (the first hex digit of the keyed hash), with
+its time range beside it.  A run writes one block per serial-check partition (cut
+along the same digits) in one transaction instead of a million rows (row-wise
+inserts measured 4.5 s per million panels here, far beyond the 20 % a store may add
+to a run), and reads back only the blocks that overlap its time range.
 
 Privacy: a patient id is stored only as its keyed hash, HMAC-SHA256 with the
 site's key (RFC 2104; FIPS 198-1), never in plain; the key is never stored (only
@@ -182,8 +183,11 @@ class Store:
         if new:
             # Created by us, owner only, before SQLite writes a byte (its journal
             # files take the same mode).
-            os.close(os.open(self.path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600))
-        elif os.path.getsize(self.path) > 0:
+            try:
+                os.close(os.open(self.path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600))
+            except FileExistsError:  # another run made it a moment ago: use it
+                new = False
+        if not new and os.path.getsize(self.path) > 0:
             with open(self.path, "rb") as f:
                 if f.read(16) != b"SQLite format 3\x00":
                     raise HistoryError(f"{self.path} is not a history store")
@@ -207,16 +211,20 @@ class Store:
                                    "site key creates it")
             self._lock()
             try:
-                for statement in filter(str.strip, _DDL.split(";")):
-                    self.db.execute(statement)
-                self.db.executemany("INSERT INTO meta VALUES (?, ?)", [
-                    ("schema_version", str(SCHEMA_VERSION)), ("key_check", self._key_check()),
-                    ("created_at", _now_text())])
+                tables = {r[0] for r in self.db.execute(
+                    "SELECT name FROM sqlite_master WHERE type='table'")}
+                if not tables:  # (unless another run made it while this one waited)
+                    for statement in filter(str.strip, _DDL.split(";")):
+                        self.db.execute(statement)
+                    self.db.executemany("INSERT INTO meta VALUES (?, ?)", [
+                        ("schema_version", str(SCHEMA_VERSION)),
+                        ("key_check", self._key_check()), ("created_at", _now_text())])
                 self.db.execute("COMMIT")
             except BaseException:
                 self.db.execute("ROLLBACK")
                 raise
-            return
+            if not tables:
+                return
         if "meta" not in tables:
             raise HistoryError(f"{self.path} is an SQLite file but not a history store")
         meta = dict(self.db.execute("SELECT name, value FROM meta"))

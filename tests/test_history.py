@@ -436,3 +436,31 @@ def test_the_store_reads_only_each_patients_latest_panel_before_the_file(tmp_pat
     finally:
         s.close()
     assert sorted(got["sample"].to_pylist()) == ["S3", "S4"]
+
+
+def test_a_run_that_finds_the_store_just_made_by_another_uses_it(tmp_path, monkeypatch):
+    """Two runs starting at once against a new store: the one that loses the race to
+    create the file, or to create its tables, uses the store the other made."""
+    path = str(tmp_path / "store.db")
+    key = KEY.encode()
+    history.Store(path, key).close()  # made by the other run...
+    monkeypatch.setattr(history.os.path, "exists", lambda p: False)  # ...just after we looked
+    s = history.Store(path, key)
+    s.close()
+    monkeypatch.undo()
+
+    path2 = str(tmp_path / "store2.db")
+    os.close(os.open(path2, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600))  # empty file
+    real_lock = history.Store._lock
+    raced = []
+
+    def lock_after_the_other_run(self):
+        if not raced:  # the other run creates the tables while this one waits
+            raced.append(1)
+            history.Store(path2, key).close()
+        real_lock(self)
+
+    monkeypatch.setattr(history.Store, "_lock", lock_after_the_other_run)
+    s = history.Store(path2, key)
+    s.close()
+    assert raced and count(tmp_path / "store2.db") == (0, 0)
