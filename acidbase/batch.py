@@ -675,7 +675,8 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         # With a store, earlier panels join the partitions: twice as many of them.
         checker = serial.SerialChecker(serial.rules_with(site.deltas), site.window_hours,
                                        serial.SerialChecker.partitions_for(src.size)
-                                       * (2 if store else 1), keep=store is not None)
+                                       * (2 if store else 1), keep=store is not None,
+                                       hashed_ids=store is not None)
         stack.callback(checker.close)  # its scratch folder goes, whatever happens
         progress = Progress(src.estimated_rows(), not args.quiet)
         progress.label = "serial 1/2"
@@ -752,7 +753,8 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         progress.end()
     writer.finish()
     if store is not None:  # only a run whose every row was written is stored
-        notes.append(history.commit_run(store, checker, args.input, _audit(args)))
+        notes.append(history.commit_run(store, checker, args.input, _audit(args),
+                                        input_hash.result()))
     summary = staged.get("--summary")
     record = audit.record(site, started, input_name=label, input_path=args.input,
                           input_sha256=input_hash.result(),

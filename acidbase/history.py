@@ -1,11 +1,12 @@
 """The history store: each patient's earlier panels across runs, for the serial checks.
 
 One SQLite file (the standard library's ``sqlite3``).  Panels are kept in column
-blocks: each block is an Arrow IPC stream (zstd) of one run's panels of one
-sixteenth of the patients, with its time range beside it.  A run writes a few
-hundred blocks in one transaction instead of a million rows (row-wise inserts
-measured 4.5 s per million panels here, far beyond the 20 % a store may add to a
-run), and reads back only the blocks that overlap its time range.
+blocks: each block is an Arrow IPC stream (LZ4 frame, else zstd) of panels of one
+run and one sixteenth of the patients (the first hex digit of the keyed hash), with
+its time range beside it.  A run writes one block per serial-check partition (cut
+along the same digits) in one transaction instead of a million rows (row-wise
+inserts measured 4.5 s per million panels here, far beyond the 20 % a store may add
+to a run), and reads back only the blocks that overlap its time range.
 
 Privacy: a patient id is stored only as its keyed hash, HMAC-SHA256 with the
 site's key (RFC 2104; FIPS 198-1), never in plain; the key is never stored (only
@@ -40,7 +41,7 @@ import pyarrow.compute as pc
 from pyarrow import ipc
 
 from .errors import AcidBaseError
-from .serial import STORED_FIELDS
+from .serial import STORED_FIELDS, hex_prefix64
 
 #: Version of the store's layout; a store of a later version is refused.
 SCHEMA_VERSION = 1
@@ -106,15 +107,21 @@ def hash_id(patient_id: str, key: bytes) -> str:
 def hash_ids(ids: pa.Array | pa.ChunkedArray, key: bytes) -> pa.Array:
     """Patient ids -> their stored form (each distinct id hashed once); a missing or
     blank id stays empty (it takes no part in the serial checks)."""
+    indices, hashed = _hash_distinct(ids, _Hmac(key))
+    return pc.fill_null(hashed.take(indices), "")
+
+
+def _hash_distinct(ids: pa.Array | pa.ChunkedArray, one: _Hmac) -> tuple[pa.Array, pa.Array]:
+    """The ids dictionary-encoded: their indices (null for a missing id) and each
+    distinct id's stored form ("" for a blank one), hashed once per distinct id."""
     if isinstance(ids, pa.ChunkedArray):
         ids = ids.combine_chunks()
     if not pa.types.is_string(ids.type):
         ids = pc.cast(ids, pa.string())
     enc = pc.dictionary_encode(ids)
     words = enc.dictionary.to_pylist()
-    one = _Hmac(key)
-    hashed = pa.array([one(w) if w and w.strip() else "" for w in words], pa.string())
-    return pc.fill_null(hashed.take(enc.indices), "")
+    return enc.indices, pa.array([one(w) if w and w.strip() else "" for w in words],
+                                 pa.string())
 
 
 class _Hmac:
@@ -176,14 +183,19 @@ class Store:
         if new:
             # Created by us, owner only, before SQLite writes a byte (its journal
             # files take the same mode).
-            os.close(os.open(self.path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600))
-        elif os.path.getsize(self.path) > 0:
+            try:
+                os.close(os.open(self.path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600))
+            except FileExistsError:  # another run made it a moment ago: use it
+                new = False
+        if not new and os.path.getsize(self.path) > 0:
             with open(self.path, "rb") as f:
                 if f.read(16) != b"SQLite format 3\x00":
                     raise HistoryError(f"{self.path} is not a history store")
         self.db = sqlite3.connect(self.path, timeout=timeout, isolation_level=None)
         self._in_run = False
-        self._seen: list[np.ndarray] = []  # this run's patients (hash prefixes), by chunk
+        self._seen: list[tuple[np.ndarray, np.ndarray]] = []
+        """This run's patients (hash prefixes) and each one's earliest time, by chunk."""
+        self._hmac: _Hmac | None = None
         try:
             self._prepare()
         except BaseException:
@@ -199,16 +211,20 @@ class Store:
                                    "site key creates it")
             self._lock()
             try:
-                for statement in filter(str.strip, _DDL.split(";")):
-                    self.db.execute(statement)
-                self.db.executemany("INSERT INTO meta VALUES (?, ?)", [
-                    ("schema_version", str(SCHEMA_VERSION)), ("key_check", self._key_check()),
-                    ("created_at", _now_text())])
+                tables = {r[0] for r in self.db.execute(
+                    "SELECT name FROM sqlite_master WHERE type='table'")}
+                if not tables:  # (unless another run made it while this one waited)
+                    for statement in filter(str.strip, _DDL.split(";")):
+                        self.db.execute(statement)
+                    self.db.executemany("INSERT INTO meta VALUES (?, ?)", [
+                        ("schema_version", str(SCHEMA_VERSION)),
+                        ("key_check", self._key_check()), ("created_at", _now_text())])
                 self.db.execute("COMMIT")
             except BaseException:
                 self.db.execute("ROLLBACK")
                 raise
-            return
+            if not tables:
+                return
         if "meta" not in tables:
             raise HistoryError(f"{self.path} is an SQLite file but not a history store")
         meta = dict(self.db.execute("SELECT name, value FROM meta"))
@@ -259,18 +275,20 @@ class Store:
         ``seconds``, the collection times) each one's earliest time."""
         if self.key is None:
             raise HistoryError("hashing patient ids needs the site key")
-        hashed = hash_ids(ids, self.key)
-        enc = pc.dictionary_encode(hashed)
-        words = enc.dictionary
-        idx = np.asarray(enc.indices.to_numpy(zero_copy_only=False))
-        first = np.full(len(words), np.iinfo(np.int64).max, dtype=np.int64)
+        if self._hmac is None:
+            self._hmac = _Hmac(self.key)
+        indices, words = _hash_distinct(ids, self._hmac)
+        # Each distinct id's earliest time, from the indices (a missing id: the last slot).
+        idx = np.asarray(pc.fill_null(indices, len(words)).to_numpy(zero_copy_only=False),
+                         dtype=np.int64)
+        first = np.full(len(words) + 1, np.iinfo(np.int64).max, dtype=np.int64)
         if seconds is not None:
             np.minimum.at(first, idx, np.asarray(seconds, dtype=np.int64))
         else:
             first[:] = np.iinfo(np.int64).min
         real = np.asarray(pc.not_equal(words, "").to_numpy(zero_copy_only=False), dtype=bool)
-        self._seen.append((_prefix64(words.filter(pa.array(real))), first[real]))
-        return hashed
+        self._seen.append((hex_prefix64(words.filter(pa.array(real))), first[:-1][real]))
+        return pc.fill_null(words.take(indices), "")
 
     def earlier(self, lo: int, hi: int) -> Iterator[pa.Table]:
         """Stored panels collected from ``lo`` to ``hi`` (seconds), a block at a time.
@@ -294,30 +312,36 @@ class Store:
         pref, first = pref[head], first[head]  # sorted; each patient's earliest time
         if len(pref) == 0:
             return
-        for table in self._blocks(lo, hi):
-            p = _prefix64(table["patient"])
-            at = np.minimum(np.searchsorted(pref, p), len(pref) - 1)
-            mine = pref[at] == p
-            if not mine.any():
-                continue
-            table, at = table.filter(pa.array(mine)), at[mine]
+        for table in self._blocks(lo, hi, filtered=False):
+            # One filter per block: in the time range, one of the run's patients, and
+            # of those before the patient's first panel here, the latest.
+            p = hex_prefix64(table["patient"])
             t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
+            at = np.minimum(np.searchsorted(pref, p), len(pref) - 1)
+            mine = np.flatnonzero((pref[at] == p) & (t >= lo) & (t <= hi))
+            if mine.size == 0:
+                continue
+            at, t = at[mine], t[mine]
             before = t < first[at]
             keep = ~before
             if before.any():  # each patient's latest before its first panel here
-                idx = np.flatnonzero(before)
-                o = idx[np.lexsort((t[idx], at[idx]))]
-                a, tt = at[o], t[o]
-                last = np.concatenate([a[1:] != a[:-1], [True]])
-                group = np.cumsum(np.concatenate([[True], last[:-1]])) - 1
-                keep[o] = tt == tt[last][group]
-            yield table.filter(pa.array(keep))
+                latest = np.full(len(pref), np.iinfo(np.int64).min, dtype=np.int64)
+                np.maximum.at(latest, at[before], t[before])
+                keep |= before & (t == latest[at])
+            mask = np.zeros(table.num_rows, dtype=bool)
+            mask[mine[keep]] = True
+            yield table.filter(pa.array(mask))
 
-    def _blocks(self, lo: int, hi: int) -> Iterator[pa.Table]:
+    def _blocks(self, lo: int, hi: int, filtered: bool = True) -> Iterator[pa.Table]:
+        """The blocks that overlap ``lo`` to ``hi``, each cut to that range (or whole:
+        ``filtered=False``)."""
         cur = self.db.execute("SELECT data FROM blocks WHERE tmax >= ? AND tmin <= ?",
                               (int(lo), int(hi)))
         for (data,) in cur:
             table = _decode(data)
+            if not filtered:
+                yield table
+                continue
             yield table.filter(pc.and_(pc.greater_equal(table["t"], lo),
                                        pc.less_equal(table["t"], hi)))
 
@@ -337,8 +361,10 @@ class Store:
             run_id = cur.lastrowid
             for table in panels:
                 old = pc.less(table["t"], cutoff)
-                record.too_old += int(pc.sum(old).as_py() or 0)
-                table = table.filter(pc.invert(old))
+                n_old = int(pc.sum(old).as_py() or 0)
+                if n_old:  # (a copy only when there is something to leave out)
+                    record.too_old += n_old
+                    table = table.filter(pc.invert(old))
                 record.added += table.num_rows
                 self._write_blocks(run_id, table)
             self.db.execute("UPDATE runs SET panels_added = ?, panels_already_stored = ? "
@@ -360,14 +386,13 @@ class Store:
         """One block per patient bucket (the first hex digit of the keyed hash)."""
         if table.num_rows == 0:
             return
-        bucket = pc.utf8_slice_codeunits(table["patient"], 0, 1)
-        enc = pc.dictionary_encode(bucket).combine_chunks()
-        idx = np.asarray(enc.indices.to_numpy(zero_copy_only=False))
-        order = np.argsort(idx, kind="stable")
-        table = table.take(pa.array(order))
-        idx = idx[order]
+        idx = _first_digit(table["patient"])
+        if not (idx[1:] >= idx[:-1]).all():  # (a run's partitions are one digit each)
+            order = np.argsort(idx, kind="stable")
+            table = table.take(pa.array(order))
+            idx = idx[order]
         edges = np.r_[0, np.flatnonzero(np.diff(idx)) + 1, len(idx)]
-        names = enc.dictionary.to_pylist()
+        names = "0123456789abcdef"
         rows = []
         for lo, hi in itertools.pairwise(edges):
             part = table.slice(lo, hi - lo)
@@ -475,26 +500,21 @@ class Store:
             self.db.close()
 
 
-_HEX = np.zeros(256, dtype=np.uint64)
-_HEX[np.frombuffer(b"0123456789abcdef", dtype=np.uint8)] = np.arange(16, dtype=np.uint64)
-_SHIFTS = (4 * np.arange(15, -1, -1)).astype(np.uint64)
-
-
-def _prefix64(hashes: pa.Array | pa.ChunkedArray) -> np.ndarray:
-    """The first 64 bits of each hex hash, as unsigned integers (read from the Arrow
-    buffer: no Python object per value)."""
-    if isinstance(hashes, pa.ChunkedArray):
-        hashes = hashes.combine_chunks()
-    n = len(hashes)
-    if n == 0:
-        return np.zeros(0, dtype=np.uint64)
+def _first_digit(hashes: pa.Array | pa.ChunkedArray) -> np.ndarray:
+    """The first hex digit of each stored hash (0 to 15): its block's bucket."""
+    hashes = hashes.combine_chunks() if isinstance(hashes, pa.ChunkedArray) else hashes
+    if len(hashes) == 0:
+        return np.zeros(0, dtype=np.int64)
     offsets = np.frombuffer(hashes.buffers()[1], dtype=np.int32)[hashes.offset:
-                                                                  hashes.offset + n + 1]
-    if hashes.null_count or not (np.diff(offsets) >= 16).all():
-        return np.array([int(h[:16], 16) for h in hashes.to_pylist()], dtype=np.uint64)
+                                                                  hashes.offset + len(hashes) + 1]
+    if hashes.null_count or not (np.diff(offsets) > 0).all():  # not a run's hashes
+        return np.array([int(h[:1], 16) for h in hashes.to_pylist()], dtype=np.int64)
     data = np.frombuffer(hashes.buffers()[2], dtype=np.uint8)
-    nibbles = _HEX[data[offsets[:-1, None] + np.arange(16)]]
-    return np.bitwise_or.reduce(nibbles << _SHIFTS, axis=1)
+    return _HEX_DIGIT[data[offsets[:-1]]].astype(np.int64)
+
+
+_HEX_DIGIT = np.zeros(256, dtype=np.uint8)
+_HEX_DIGIT[np.frombuffer(b"0123456789abcdef", dtype=np.uint8)] = np.arange(16, dtype=np.uint8)
 
 
 def _encode(table: pa.Table) -> bytes:
@@ -596,13 +616,29 @@ def feed_earlier(store: Store, checker) -> int:
     return read
 
 
-def commit_run(store: Store, checker, input_path: str, settings: Mapping[str, object]) -> str:
-    """Add the run's new panels with its audit record; the summary's line."""
+def run_settings(settings: Mapping[str, object], checker, store: Store) -> dict[str, object]:
+    """The run's settings for its record, with the window, the delta limits and the
+    retention the run used, wherever they were set (option, site configuration or
+    default): an option left unset is None in ``settings``."""
+    used = dict(settings)
+    used["window_hours"] = checker.window / 3600.0
+    delta: dict[str, float | None] = {f: None for f in STORED_FIELDS}  # None: switched off
+    delta.update({r.field: r.limit for r in checker.rules})
+    used["delta"] = delta
+    used["history_retention_days"] = store.retention / _DAY
+    return used
+
+
+def commit_run(store: Store, checker, input_path: str, settings: Mapping[str, object],
+               input_sha256: str | None = None) -> str:
+    """Add the run's new panels with its audit record; the summary's line.
+    ``input_sha256``: the input's SHA-256 when the run has it already (read again
+    otherwise)."""
     from . import __version__
 
     known = checker.known & checker.interpreted
-    record = RunRecord(tool_version=__version__, settings=dict(settings),
-                       input_sha256=file_sha256(input_path),
+    record = RunRecord(tool_version=__version__, settings=run_settings(settings, checker, store),
+                       input_sha256=input_sha256 or file_sha256(input_path),
                        already_stored=int(np.count_nonzero(known)),
                        earlier_used=checker.earlier_used)
     store.commit(checker.new_panels(), record)

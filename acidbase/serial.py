@@ -151,12 +151,14 @@ class SerialChecker:
     """Collects rows (first pass), then checks each patient's series.
 
     ``keep=True`` keeps the first pass's files until ``close`` so that the run's
-    panels can be read back (``panels``) to be stored for later runs.
+    panels can be read back (``panels``) to be stored for later runs;
+    ``hashed_ids=True`` says the patient ids given are the store's hex hashes.
     """
 
     def __init__(self, rules: Sequence[DeltaRule] = DELTA_RULES,
                  window_hours: float = DEFAULT_WINDOW_HOURS, partitions: int = 1,
-                 workdir: str | None = None, keep: bool = False) -> None:
+                 workdir: str | None = None, keep: bool = False,
+                 hashed_ids: bool = False) -> None:
         if not window_hours > 0:
             raise ValueError("the serial window must be a positive number of hours")
         self.rules = tuple(rules)
@@ -164,6 +166,11 @@ class SerialChecker:
         self.k = max(1, int(partitions))
         self.fields = tuple(dict.fromkeys([*STORED_FIELDS, *(r.field for r in self.rules)]))
         self.keep = keep
+        self.hashed_ids = hashed_ids
+        """Patient ids are the history store's hex hashes: partitioned by their first
+        64 bits, with no Python call per id, into a multiple of 16 partitions."""
+        if hashed_ids:
+            self.k = 16 * -(-self.k // 16)
         self._tmp = tempfile.TemporaryDirectory(prefix="acidbase-serial-", dir=workdir)
         self.schema = pa.schema(
             [("row", pa.int64()), ("patient", pa.string()), ("t", pa.int64()),
@@ -252,13 +259,18 @@ class SerialChecker:
     def _spill(self, table: pa.Table, kind: str) -> None:
         """Append rows to the partition files, by a hash of the patient."""
         if self.k > 1:
-            enc = pc.dictionary_encode(table["patient"]).combine_chunks()
-            buckets = np.array([hash(s) % self.k for s in enc.dictionary.to_pylist()],
-                               dtype=np.int64)
-            part = buckets[np.asarray(enc.indices.to_numpy(zero_copy_only=False))]
-            order = np.argsort(part, kind="stable")
-            table = table.take(pa.array(order))
-            bounds = np.searchsorted(part[order], np.arange(self.k + 1))
+            if self.hashed_ids:
+                part = self._hash_partition(hex_prefix64(table["patient"]))
+            else:
+                enc = pc.dictionary_encode(table["patient"]).combine_chunks()
+                buckets = np.array([hash(s) % self.k for s in enc.dictionary.to_pylist()],
+                                   dtype=np.int64)
+                part = buckets[np.asarray(enc.indices.to_numpy(zero_copy_only=False))]
+            if not (part[1:] >= part[:-1]).all():  # (a stored block: one partition)
+                order = np.argsort(part, kind="stable")
+                table = table.take(pa.array(order))
+                part = part[order]
+            bounds = np.searchsorted(part, np.arange(self.k + 1))
         else:
             bounds = np.array([0, table.num_rows])
         for b in range(self.k):
@@ -269,6 +281,16 @@ class SerialChecker:
                     w = ipc.new_file(self._part_path(b, kind), self.schema)
                     self._writers[kind, b] = w
                 w.write_table(table.slice(lo, hi - lo))
+
+    def _hash_partition(self, prefix: np.ndarray) -> np.ndarray:
+        """The partition of keyed ids from their first 64 bits: with 16 or more
+        partitions, a partition holds ids of one first hex digit only (the history
+        store's block bucket), so that its panels are stored without a re-sort."""
+        if self.k >= 16:
+            per = self.k // 16  # partitions per digit
+            return ((prefix >> np.uint64(60)) * np.uint64(per)
+                    + prefix % np.uint64(per)).astype(np.int64)
+        return (prefix % np.uint64(self.k)).astype(np.int64)
 
     def _part_path(self, b: int, kind: str = "p") -> str:
         return os.path.join(self._tmp.name, f"{kind}{b}.arrow")
@@ -341,7 +363,7 @@ class SerialChecker:
             return None
         row = np.asarray(table["row"].to_numpy(), dtype=np.int64)
         t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
-        order = np.lexsort((row, t, pid))
+        order = _series_order(pid, t, row)
         pid, row, t = pid[order], row[order], t[order]
         ours = row >= 0
         n = len(row)
@@ -365,12 +387,13 @@ class SerialChecker:
                 big = pair & (np.abs(d) > r.limit)
             delta[r.field] = np.concatenate([[False], big])  # panel i changed from i-1
             # Break at i: big change in, big change out, opposite signs, and the
-            # neighbours i-1 and i+1 agree within the limit.
+            # neighbours i-1 and i+1 agree within the limit (tested only where both
+            # changes are big: few panels).
             b = np.zeros(n, dtype=bool)
             if n >= 3:
-                with np.errstate(invalid="ignore"):
-                    around = np.abs(v[2:] - v[:-2]) <= r.limit
-                    b[1:-1] = big[:-1] & big[1:] & (np.sign(d[:-1]) != np.sign(d[1:])) & around
+                j = np.flatnonzero(big[:-1] & big[1:])  # panel j + 1 is between two
+                b[j + 1] = ((np.sign(d[j]) != np.sign(d[j + 1]))
+                            & (np.abs(v[j + 2] - v[j]) <= r.limit))
             brk[r.field] = b
         hit = np.zeros(n, dtype=bool)
         for h in (*delta.values(), *brk.values()):
@@ -381,16 +404,18 @@ class SerialChecker:
         status[row[flagged]] = FLAGGED
         zoned = np.asarray(table["zoned"].to_numpy(zero_copy_only=False), dtype=bool)[order]
         samples = table["sample"].combine_chunks()
+        by_row = np.argsort(row[flagged], kind="stable")  # the order the text is spilled in
         codes, detail = _texts(self.rules, flagged, row, t, zoned,
-                               lambda at: samples.take(pa.array(order[at])), vals, delta, brk)
-        return row[flagged], codes, detail
+                               lambda at: samples.take(pa.array(order[at])), vals, delta, brk,
+                               by_row)
+        return row[flagged][by_row], codes, detail
 
     def _identities(self, table: pa.Table, pid: np.ndarray,
                     row: np.ndarray) -> np.ndarray | None:
         """``_drop_stored_copies`` over the rows that share a patient and a time with
         another (few, unless a file is read again); None when none do."""
         t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
-        o = np.lexsort((t, pid))
+        o = _series_order(pid, t, row)
         same = (pid[o][1:] == pid[o][:-1]) & (t[o][1:] == t[o][:-1])
         if not same.any():
             return None
@@ -427,11 +452,9 @@ class SerialChecker:
 
     def _spill_text(self, rows: np.ndarray, codes: pa.Array, detail: pa.Array,
                     spill: dict[int, ipc.RecordBatchFileWriter]) -> None:
-        """Write flagged rows' text to the spill file of their row range."""
-        order = np.argsort(rows, kind="stable")
-        rows = rows[order]
-        take = pa.array(order)
-        table = pa.table({"row": rows, "codes": codes.take(take), "detail": detail.take(take)})
+        """Write flagged rows' text (``rows`` ascending) to the spill file of their
+        row range."""
+        table = pa.table({"row": rows, "codes": codes, "detail": detail})
         bucket = rows // self._bucket_rows
         edges = np.flatnonzero(np.diff(bucket)) + 1
         for lo, hi in zip(np.r_[0, edges], np.r_[edges, len(rows)]):
@@ -494,7 +517,9 @@ class SerialChecker:
                 first = np.concatenate([[True], (pid[o][1:] != pid[o][:-1])
                                         | (t[o][1:] != t[o][:-1]) | (sid[o][1:] != sid[o][:-1])])
                 new[np.flatnonzero(twin)[o[~first]]] = False
-            if new.any():
+            if new.all():  # (the usual case: no copy)
+                yield table.select(names)
+            elif new.any():
                 yield table.filter(pa.array(new)).select(names)
 
     def arrow_columns(self, start: int, stop: int) -> dict[str, pa.Array]:
@@ -548,18 +573,25 @@ class SerialChecker:
 def _texts(rules: Sequence[DeltaRule], flagged: np.ndarray, row: np.ndarray, t: np.ndarray,
            zoned: np.ndarray, samples: Callable[[np.ndarray], pa.Array],
            vals: Mapping[str, np.ndarray], delta: Mapping[str, np.ndarray],
-           brk: Mapping[str, np.ndarray]) -> tuple[pa.Array, pa.Array]:
+           brk: Mapping[str, np.ndarray],
+           out_order: np.ndarray | None = None) -> tuple[pa.Array, pa.Array]:
     """The codes and the detail of the flagged rows (positions ``flagged`` of the
     sorted partition), assembled column-wise: the same words as one panel at a time.
-    Each piece of text is built only for the rows it is about."""
+    Each piece of text is built only for the rows it is about.  The result is in
+    the order ``out_order`` of the flagged rows (their own order when None)."""
 
-    def ref(at: np.ndarray) -> pa.Array:
-        return _refs(row[at], samples(at), t[at], zoned[at])
-
-    parts: list[tuple[str, np.ndarray, pa.Array]] = []  # (code, rows of flagged, text)
     any_break = np.zeros(len(flagged), dtype=bool)
     for r in rules:
         any_break |= brk[r.field][flagged]
+    # Every panel a text names (the one before each flagged panel, the one after a
+    # break), its reference built once.
+    named = np.unique(np.concatenate([flagged - 1, flagged[any_break] + 1]))
+    named_refs = _refs(row[named], samples(named), t[named], zoned[named])
+
+    def ref(at: np.ndarray) -> pa.Array:
+        return named_refs.take(pa.array(np.searchsorted(named, at)))
+
+    parts: list[tuple[str, np.ndarray, pa.Array]] = []  # (code, rows of flagged, text)
     if any_break.any():
         sel = np.flatnonzero(any_break)
         at = flagged[sel]
@@ -587,37 +619,55 @@ def _texts(rules: Sequence[DeltaRule], flagged: np.ndarray, row: np.ndarray, t: 
         d = v[i] - v[i - 1]
         parts.append((r.code, sel, pc.binary_join_element_wise(
             spec.title, " ", _numbers(v[i]), " after ", _numbers(v[i - 1]), " (",
-            pa.array(np.where(d > 0, "+", "")), _numbers(d), f" {spec.unit} in ",
+            pc.if_else(pa.array(d > 0), "+", ""), _numbers(d), f" {spec.unit} in ",
             _formatted((t[i] - t[i - 1]).astype(np.float64), _hours), ", since ",
             ref(i - 1), f"); delta limit {_fmt(r.limit)} {spec.unit}", "")))
-    return _joined(parts, len(flagged), "; ", ";")
+    return _joined(parts, len(flagged), "; ", ";", out_order)
 
 
 def _joined(parts: Sequence[tuple[str, np.ndarray, pa.Array]], n: int, sep: str,
-            code_sep: str = ";") -> tuple[pa.Array, pa.Array]:
+            code_sep: str = ";", out_order: np.ndarray | None = None
+            ) -> tuple[pa.Array, pa.Array]:
     """Rows 0..n-1, each the join of the parts that cover it, in the order of
     ``parts`` (each part: a name, the sorted rows it covers, a text per such row):
-    the joined names and the joined texts.  Rows are joined a combination at a time
-    (there are few), so each text is copied once."""
+    the joined names and the joined texts, in the order ``out_order`` of the rows
+    (their own order when None).  The texts are put in that order (by row, then
+    part) in one take and joined as lists, so each text is copied twice at most;
+    the names are joined once per combination of parts (there are few)."""
+    rank = np.arange(n) if out_order is None else np.argsort(out_order)
     key = np.zeros(n, dtype=np.int64)
     for j, (_, rows, _) in enumerate(parts):
         key[rows] |= 1 << j
-    combos, inverse = np.unique(key, return_inverse=True)
-    inverse = inverse.ravel()
-    names, texts, where = [], [], []
-    for c in combos.tolist():
-        rows = np.flatnonzero(inverse == len(names))
-        mine = [p for j, p in enumerate(parts) if c >> j & 1]
-        got = [p[2].take(pa.array(np.searchsorted(p[1], rows))) for p in mine]
-        texts.append(got[0] if len(got) == 1 else
-                     pc.binary_join_element_wise(*got, sep))
-        names.append(code_sep.join(p[0] for p in mine))
-        where.append(rows)
-    back = np.empty(n, dtype=np.int64)
-    back[np.concatenate(where)] = np.arange(n)
-    take = pa.array(back)
-    return (pa.array(names, pa.string()).take(pa.array(inverse)),
-            pa.concat_arrays(texts).take(take))
+    combos, inverse = np.unique(key if out_order is None else key[out_order],
+                                return_inverse=True)
+    names = pa.array([code_sep.join(p[0] for j, p in enumerate(parts) if c >> j & 1)
+                      for c in combos.tolist()], pa.string())
+    at = np.concatenate([rank[rows] for _, rows, _ in parts])
+    piece = np.argsort(at, kind="stable")  # by output row, then by part (stable)
+    texts = pa.concat_arrays([p[2] for p in parts]).take(pa.array(piece))
+    offsets = np.zeros(n + 1, dtype=np.int32)
+    np.cumsum(np.bincount(at, minlength=n), out=offsets[1:])
+    lists = pa.ListArray.from_arrays(pa.array(offsets), texts)
+    return names.take(pa.array(inverse.ravel())), pc.binary_join(lists, sep)
+
+
+def _series_order(pid: np.ndarray, t: np.ndarray, row: np.ndarray) -> np.ndarray:
+    """The order by patient, then time, then row: ``np.lexsort((row, t, pid))``.
+    With the rows put in row order first, one stable sort of an integer key that
+    holds the patient above the time does it (many times faster on a partition);
+    the lexsort is kept for keys that do not fit in 63 bits."""
+    if len(row) == 0:
+        return np.zeros(0, dtype=np.int64)
+    span = int(t.max()) - int(t.min())
+    top = int(pid.max()) + 1  # pid >= -1: shifted to >= 0
+    bits = span.bit_length()
+    if top.bit_length() + bits > 62:
+        return np.lexsort((row, t, pid))
+    by_row = None if (row[1:] > row[:-1]).all() else np.argsort(row, kind="stable")
+    key = ((pid + 1).astype(np.int64) << bits) | (t - t.min())
+    if by_row is None:
+        return np.argsort(key, kind="stable")
+    return by_row[np.argsort(key[by_row], kind="stable")]
 
 
 def _formatted(x: np.ndarray, fmt: Callable[[float], str]) -> pa.Array:
@@ -635,12 +685,20 @@ def _numbers(x: np.ndarray) -> pa.Array:
 def _refs(row: np.ndarray, sample: pa.Array, t: np.ndarray, zoned: np.ndarray) -> pa.Array:
     """"row 3 (sample S3)"; an earlier run's panel by its collection time instead."""
     ours = row >= 0
-    name = pc.binary_join_element_wise("row ", pc.cast(pa.array(row + 1), pa.string()), "")
-    if not ours.all():
-        stamp = pc.strftime(pc.cast(pa.array(t), pa.timestamp("s")), format="%Y-%m-%dT%H:%M")
-        stamp = pc.binary_join_element_wise(stamp, pa.array(np.where(zoned, "Z", "")), "")
-        stored = pc.binary_join_element_wise("the stored panel of ", stamp, "")
-        name = pc.if_else(pa.array(ours), name, stored)
+    if ours.all():
+        name = pc.binary_join_element_wise("row ", pc.cast(pa.array(row + 1), pa.string()), "")
+    else:  # each kind of name built only for its own panels
+        own, other = np.flatnonzero(ours), np.flatnonzero(~ours)
+        mine = pc.binary_join_element_wise("row ", pc.cast(pa.array(row[own] + 1), pa.string()),
+                                           "")
+        stamp = pc.strftime(pc.cast(pa.array(t[other]), pa.timestamp("s")),
+                            format="%Y-%m-%dT%H:%M")
+        stored = pc.binary_join_element_wise("the stored panel of ", stamp, pc.if_else(
+            pa.array(zoned[other]), "Z", ""), "")
+        where = np.empty(len(row), dtype=np.int64)
+        where[own] = np.arange(len(own))
+        where[other] = len(own) + np.arange(len(other))
+        name = pa.concat_arrays([mine, stored]).take(pa.array(where))
     has = pc.fill_null(pc.not_equal(sample, ""), False)
     suffix = pc.binary_join_element_wise(" (sample ", sample, ")", "")
     return pc.binary_join_element_wise(name, pc.if_else(has, suffix, ""), "")
@@ -671,6 +729,34 @@ def _codes(x: pa.ChunkedArray | pa.Array) -> np.ndarray:
         enc = enc.combine_chunks()
     return np.asarray(pc.fill_null(enc.indices, -1).to_numpy(zero_copy_only=False),
                       dtype=np.int64)
+
+
+_HEX = np.zeros(256, dtype=np.uint8)
+_HEX[np.frombuffer(b"0123456789abcdef", dtype=np.uint8)] = np.arange(16, dtype=np.uint8)
+
+
+def hex_prefix64(hashes: pa.Array | pa.ChunkedArray) -> np.ndarray:
+    """The first 64 bits of each hex hash (the history store's keyed ids), as unsigned
+    integers, read from the Arrow buffers (no Python object per value)."""
+    if isinstance(hashes, pa.ChunkedArray):
+        hashes = hashes.combine_chunks()
+    n = len(hashes)
+    if n == 0:
+        return np.zeros(0, dtype=np.uint64)
+    offsets = np.frombuffer(hashes.buffers()[1], dtype=np.int32)[hashes.offset:
+                                                                  hashes.offset + n + 1]
+    if hashes.null_count or not (np.diff(offsets) >= 16).all():
+        return np.array([int(h[:16], 16) for h in hashes.to_pylist()], dtype=np.uint64)
+    data = np.frombuffer(hashes.buffers()[2], dtype=np.uint8)
+    width = int(offsets[1] - offsets[0])
+    if int(offsets[-1] - offsets[0]) == width * n and (np.diff(offsets) == width).all():
+        # one width (the store's ids): a strided view, no gather of indices
+        digits = data[offsets[0]:offsets[-1]].reshape(n, width)[:, :16]
+    else:
+        digits = data[offsets[:-1, None] + np.arange(16, dtype=np.int32)]
+    nibbles = _HEX[digits]
+    packed = (nibbles[:, 0::2] << 4) | nibbles[:, 1::2]  # 8 bytes, most significant first
+    return np.ascontiguousarray(packed).view(">u8").ravel().astype(np.uint64)
 
 
 def _mask(x: pa.Array | pa.ChunkedArray) -> np.ndarray:

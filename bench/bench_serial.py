@@ -2,6 +2,8 @@
 
     python bench/bench_serial.py                        # 1M rows, 3 repeats, 5M peak
     python bench/bench_serial.py --n 200000 --big-n 0   # a quick look
+    git worktree add /tmp/acidbase-before main          # the code to compare with, then
+    python bench/bench_serial.py --before /tmp/acidbase-before
 
 Data: bench/synthetic.py's panels (invented, benchmark only), with one value in
 ``--spike-share`` of the panels pushed beyond its delta limit (Na+, K+ or HCO3-),
@@ -19,6 +21,11 @@ resident memory of the run alone), medians of ``--repeats`` runs:
    every chunk (``arrow_columns``), which is what the checks add to a run;
 3. peak memory of ``acidbase batch`` with serial checks on a ``--big-n``-row file
    (target: 300 MB at 5M rows).
+
+With ``--before TREE`` (a checkout of other code, e.g. main's), parts 1 and 2 are
+also run with that tree's ``acidbase``, interleaved with this tree's runs (before,
+after, before, after...) so that both see the same load; the figures are then
+under ``before`` and ``after`` with their ratios.
 
 A benchmark, not a test: nothing here fails on a slow machine.
 """
@@ -41,8 +48,11 @@ import pyarrow as pa
 import pyarrow.csv as pa_csv
 
 HERE = Path(__file__).resolve().parent
+#: The tree whose ``acidbase`` is measured (``--before`` runs this file again with
+#: another tree here).
+TREE = os.environ.get("ACIDBASE_BENCH_TREE") or str(HERE.parent)
 sys.path.insert(0, str(HERE))
-sys.path.insert(0, str(HERE.parent))
+sys.path.insert(0, TREE)
 
 import synthetic  # noqa: E402
 
@@ -72,10 +82,11 @@ def write(path: str, n: int, share: float, day: int = 0, seed: int = 2026,
                                   for start in range(0, n, chunk)))
 
 
-def child(args: list[str], env_extra: dict[str, str] | None = None) -> dict:
+def child(args: list[str], env_extra: dict[str, str] | None = None,
+          tree: str = TREE) -> dict:
     with tempfile.NamedTemporaryFile(suffix=".json", delete=False) as f:
         report = f.name
-    env = dict(os.environ, PYTHONPATH=str(HERE.parent) + os.pathsep + os.environ.get(
+    env = dict(os.environ, PYTHONPATH=tree + os.pathsep + os.environ.get(
         "PYTHONPATH", ""), **(env_extra or {}))
     before = resource.getrusage(resource.RUSAGE_CHILDREN)
     subprocess.run([sys.executable, str(HERE / "_child.py"), report, *args], check=True,
@@ -144,6 +155,19 @@ def serial_alone(path: str, chunk: int = 16384) -> dict[str, float]:
             "flagged_share": flagged / max(n, 1)}
 
 
+def serial_alone_in(tree: str, path: str) -> dict[str, float]:
+    """``serial_alone`` with ``tree``'s acidbase, in a child process."""
+    with tempfile.NamedTemporaryFile(suffix=".json", delete=False) as f:
+        report = f.name
+    env = dict(os.environ, ACIDBASE_BENCH_TREE=tree, PYTHONPATH=tree)
+    subprocess.run([sys.executable, str(HERE / "bench_serial.py"), "--alone-json", report,
+                    path], check=True, env=env)
+    with open(report) as f:
+        out = json.load(f)
+    os.remove(report)
+    return out
+
+
 def _medians(runs: list[dict]) -> dict[str, float]:
     return {"seconds": statistics.median(r["seconds"] for r in runs),
             "cpu_s": statistics.median(r["cpu_s"] for r in runs),
@@ -157,44 +181,65 @@ def main() -> None:
     p.add_argument("--repeats", type=int, default=3)
     p.add_argument("--spike-share", type=float, default=0.09)
     p.add_argument("--skip", default="", help="comma-separated parts to skip: e2e,alone,big,history")
+    p.add_argument("--before", metavar="TREE",
+                   help="also measure this checkout's acidbase, interleaved (before/after)")
     p.add_argument("--json", help="also write the figures to this file")
+    p.add_argument("--alone-json", nargs=2, metavar=("OUT", "CSV"), help=argparse.SUPPRESS)
     a = p.parse_args()
+    if a.alone_json:  # a child of serial_alone_in: this tree's checker on one file
+        with open(a.alone_json[0], "w") as f:
+            json.dump(serial_alone(a.alone_json[1]), f)
+        return
     skip = set(filter(None, a.skip.split(",")))
-    out: dict[str, object] = {"n": a.n, "big_n": a.big_n, "spike_share": a.spike_share}
+    trees = {"after": TREE}
+    if a.before:
+        trees = {"before": os.path.abspath(a.before), "after": TREE}
+    out: dict[str, object] = {"n": a.n, "big_n": a.big_n, "spike_share": a.spike_share,
+                              "trees": trees, "load_before": os.getloadavg()}
+    figures: dict[str, dict[str, object]] = {name: {} for name in trees}
+    env = {"ACIDBASE_HISTORY_KEY": "bench-only-site-key-0123456789abcdef"}
     with tempfile.TemporaryDirectory(prefix="acidbase-bench-serial-") as tmp:
         day1 = os.path.join(tmp, "day1.csv")
+        day2 = os.path.join(tmp, "day2.csv")
         write(day1, a.n, a.spike_share)
         sink = os.path.join(tmp, "out.csv")
         if "alone" not in skip:
-            runs = [serial_alone(day1) for _ in range(a.repeats)]
-            out["serial_alone"] = {k: statistics.median(r[k] for r in runs) for k in runs[0]}
-            print("serial checks alone:", out["serial_alone"], flush=True)
-        if "e2e" not in skip:
-            day2 = os.path.join(tmp, "day2.csv")
-            write(day2, a.n, a.spike_share, day=1)
-            for name, extra in (("no_serial", ["--no-serial"]), ("serial", [])):
-                # day2: the same file the history run's second day reads
-                runs = [child([day2, "-o", sink, "--quiet", "--summary", sink + ".txt", *extra])
-                        for _ in range(a.repeats)]
-                out[name] = _medians(runs)
-                print(name, out[name], flush=True)
-        if "history" not in skip:
-            day2 = os.path.join(tmp, "day2.csv")
-            if not os.path.exists(day2):
-                write(day2, a.n, a.spike_share, day=1)
-            env = {"ACIDBASE_HISTORY_KEY": "bench-only-site-key-0123456789abcdef"}
-            runs = []
+            runs: dict[str, list] = {name: [] for name in trees}
             for _ in range(a.repeats):
-                store = os.path.join(tmp, "store.db")
-                if os.path.exists(store):
-                    os.remove(store)
-                # The synthetic panels span a year: a retention that keeps them all.
-                keep = ["--history", store, "--history-retention-days", "3650"]
-                child([day1, "-o", sink, "--quiet", "--summary", sink + ".txt", *keep], env)
-                runs.append(child([day2, "-o", sink, "--quiet", "--summary", sink + ".txt",
-                                   *keep], env))
-            out["serial_history"] = _medians(runs)
-            print("serial + history (second day)", out["serial_history"], flush=True)
+                for name, tree in trees.items():
+                    runs[name].append(serial_alone_in(tree, day1))
+            for name in trees:
+                figures[name]["serial_alone"] = {k: statistics.median(r[k] for r in runs[name])
+                                                 for k in runs[name][0]}
+                print(name, "serial checks alone:", figures[name]["serial_alone"], flush=True)
+        modes = []
+        if "e2e" not in skip:
+            modes += [("no_serial", ["--no-serial"]), ("serial", [])]
+        if "history" not in skip:
+            modes.append(("serial_history", "history"))
+        if modes:
+            write(day2, a.n, a.spike_share, day=1)
+            runs = {(name, mode): [] for name in trees for mode, _ in modes}
+            for _ in range(a.repeats):
+                for name, tree in trees.items():
+                    for mode, extra in modes:
+                        base = [day2, "-o", sink, "--quiet", "--summary", sink + ".txt"]
+                        if extra != "history":
+                            # day2: the same file the history run's second day reads
+                            runs[name, mode].append(child([*base, *extra], tree=tree))
+                            continue
+                        store = os.path.join(tmp, "store.db")
+                        if os.path.exists(store):
+                            os.remove(store)
+                        # The synthetic panels span a year: a retention that keeps them.
+                        keep = ["--history", store, "--history-retention-days", "3650"]
+                        child([day1, "-o", sink, "--quiet", "--summary", sink + ".txt", *keep],
+                              env, tree)
+                        runs[name, mode].append(child([*base, *keep], env, tree))
+            for (name, mode), got in runs.items():
+                figures[name][mode] = _medians(got)
+                figures[name][mode]["cpu_runs"] = [r["cpu_s"] for r in got]
+                print(name, mode, figures[name][mode], flush=True)
         if a.big_n and "big" not in skip:
             big = os.path.join(tmp, "big.csv")
             write(big, a.big_n, a.spike_share)
@@ -202,9 +247,15 @@ def main() -> None:
                 if os.path.exists(f):
                     os.remove(f)
             r = child([big, "-o", sink, "--quiet", "--summary", sink + ".txt"])
-            out["big_serial"] = {"seconds": r["seconds"], "cpu_s": r["cpu_s"],
-                                 "peak_mb": r["peak_mb"]}
-            print("big, serial", out["big_serial"], flush=True)
+            figures["after"]["big_serial"] = {"seconds": r["seconds"], "cpu_s": r["cpu_s"],
+                                              "peak_mb": r["peak_mb"]}
+            print("big, serial", figures["after"]["big_serial"], flush=True)
+    out.update(figures)
+    out["load_after"] = os.getloadavg()
+    for name, f in figures.items():
+        if "serial" in f and "serial_history" in f:
+            f["store_overhead"] = f["serial_history"]["cpu_s"] / f["serial"]["cpu_s"] - 1
+            print(name, f"store adds {100 * f['store_overhead']:.0f} % CPU", flush=True)
     if a.json:
         with open(a.json, "w") as f:
             json.dump(out, f, indent=1)

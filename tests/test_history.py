@@ -366,3 +366,101 @@ def test_a_run_killed_while_storing_leaves_the_store_as_it_was(tmp_path, capsys)
         pytest.skip("the run finished before its transaction could be caught on disk")
     assert count(store) == before
     assert sqlite3.connect(store).execute("PRAGMA integrity_check").fetchone() == ("ok",)
+
+
+def test_the_run_record_keeps_the_window_and_limits_the_configuration_set(tmp_path, capsys):
+    """A window and a delta limit set by the site configuration (not by options) are
+    the ones the store's run record names: the settings the checks used."""
+    import json
+
+    config = tmp_path / "site.toml"
+    config.write_text("[serial]\nwindow_hours = 12\ndelta = { na = 15 }\n")
+    store = tmp_path / "store.db"
+    rc, _, _ = run(capsys, panels(tmp_path / "day.csv", [("S1", "P-1", 1.0, 140)]), store,
+                   "--config", str(config))
+    assert rc == 0
+    settings = json.loads(sqlite3.connect(store).execute(
+        "SELECT settings FROM runs").fetchone()[0])
+    assert settings["window_hours"] == 12.0
+    assert settings["delta"]["na"] == 15.0 and settings["delta"]["k"] == 1.0
+    assert settings["history_retention_days"] == history.DEFAULT_RETENTION_DAYS
+
+
+def test_the_run_record_names_the_input_by_the_sha256_the_run_read_once(tmp_path, capsys,
+                                                                      monkeypatch):
+    """The store's record keeps the input's SHA-256 (NIST FIPS 180-4, computed here by
+    hashlib) that the run's own audit record computed: the file is not read a third time."""
+    import hashlib
+    import json
+
+    def again(path):
+        raise AssertionError("the input was hashed a second time")
+
+    monkeypatch.setattr(history, "file_sha256", again)
+    src = panels(tmp_path / "day.csv", [("S1", "P-1", 1.0, 140)])
+    store = tmp_path / "store.db"
+    summary = tmp_path / "summary.json"
+    rc, _, _ = run(capsys, src, store, "--summary", str(summary))
+    assert rc == 0
+    stored = sqlite3.connect(store).execute("SELECT input_sha256 FROM runs").fetchone()[0]
+    assert stored == hashlib.sha256(src.read_bytes()).hexdigest()
+    assert stored == json.loads(summary.read_text())["audit"]["input"]["sha256"]
+
+
+def test_a_break_between_a_stored_panel_and_a_row_of_the_file_names_both(tmp_path, capsys):
+    """The panels either side of a break: one from the store (by its time), one of this
+    file (by its row)."""
+    store = tmp_path / "store.db"
+    run(capsys, panels(tmp_path / "day1.csv", [("S1", "P-1", 1.5, 140)]), store)
+    rc, rows, _ = run(capsys, panels(tmp_path / "day2.csv", [("S2", "P-1", 1.2, 160),
+                                                             ("S3", "P-1", 1.0, 141)]), store)
+    assert rc == 0 and rows[0]["serial_codes"].startswith("SERIAL-BREAK")
+    detail = rows[0]["serial_detail"]
+    assert "; panels the stored panel of " in detail
+    assert "Z (sample S1) and row 2 (sample S3)):" in detail
+
+
+def test_the_store_reads_only_each_patients_latest_panel_before_the_file(tmp_path, capsys):
+    """Of a patient's stored panels before the patient's first panel in the run, only the
+    latest is read (the others could be no panel's neighbour); those from then on all."""
+    store = tmp_path / "store.db"
+    run(capsys, panels(tmp_path / "day1.csv", [("S1", "P-1", 1.9, 140), ("S2", "P-1", 1.8, 141),
+                                               ("S3", "P-1", 1.7, 128), ("S4", "P-1", 1.2, 139),
+                                               ("S5", "P-2", 1.8, 150)]), store)
+    s = history.Store(str(store), KEY.encode(), create=False)
+    try:
+        now = dt.datetime.now(dt.UTC).timestamp()
+        first = int(now - 1.5 * 86400)  # P-1's first panel in the (imagined) run
+        s.hash_ids(pa.array(["P-1", "P-1"]), [first, first + 3600])
+        got = pa.concat_tables(list(s.earlier(first - 86400 * 3, first + 86400)))
+    finally:
+        s.close()
+    assert sorted(got["sample"].to_pylist()) == ["S3", "S4"]
+
+
+def test_a_run_that_finds_the_store_just_made_by_another_uses_it(tmp_path, monkeypatch):
+    """Two runs starting at once against a new store: the one that loses the race to
+    create the file, or to create its tables, uses the store the other made."""
+    path = str(tmp_path / "store.db")
+    key = KEY.encode()
+    history.Store(path, key).close()  # made by the other run...
+    monkeypatch.setattr(history.os.path, "exists", lambda p: False)  # ...just after we looked
+    s = history.Store(path, key)
+    s.close()
+    monkeypatch.undo()
+
+    path2 = str(tmp_path / "store2.db")
+    os.close(os.open(path2, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600))  # empty file
+    real_lock = history.Store._lock
+    raced = []
+
+    def lock_after_the_other_run(self):
+        if not raced:  # the other run creates the tables while this one waits
+            raced.append(1)
+            history.Store(path2, key).close()
+        real_lock(self)
+
+    monkeypatch.setattr(history.Store, "_lock", lock_after_the_other_run)
+    s = history.Store(path2, key)
+    s.close()
+    assert raced and count(tmp_path / "store2.db") == (0, 0)

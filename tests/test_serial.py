@@ -182,3 +182,65 @@ def test_one_flagged_row_can_carry_a_break_and_several_deltas():
                              "K+ 6 between 4 and 4.1; panels row 1 (sample S1) and row 3 "
                              "(sample S3))")
     assert detail.index("Na+ 160 after 140 (+20 mmol/L in 1.0 h") < detail.index("K+ 6 after 4")
+
+
+@pytest.mark.parametrize("span", [86400 * 400, 2**62])
+def test_the_series_order_is_numpys_lexsort_by_patient_time_and_row(span):
+    """The one-key sort gives numpy's three-key lexsort (the reference), with stored
+    panels' negative row numbers out of order, missing patients (-1), shared times,
+    and times too far apart to share a key with the patient (the lexsort itself)."""
+    rng = np.random.default_rng(5)
+    n = 5000
+    pid = rng.integers(-1, 300, n)
+    t = rng.integers(0, 40, n) * (span // 40)
+    row = np.concatenate([np.arange(n - 800), -1 - rng.permutation(800)])
+    got = serial._series_order(pid, t, row)
+    assert got.tolist() == np.lexsort((row, t, pid)).tolist()
+    ordered = np.arange(n)
+    assert serial._series_order(pid, t, ordered).tolist() == np.lexsort(
+        (ordered, t, pid)).tolist()
+
+
+def test_hex_prefix_reads_the_first_64_bits_as_python_int_does():
+    """Read from the Arrow buffers; checked against Python's int(text, 16), for ids of
+    one width (a strided view), a slice, and texts of several widths."""
+    import secrets
+
+    ids = [secrets.token_hex(16) for _ in range(200)] + ["f" * 32, "0" * 32]
+    want = [int(h[:16], 16) for h in ids]
+    assert serial.hex_prefix64(pa.array(ids)).tolist() == want
+    assert serial.hex_prefix64(pa.array(ids).slice(7, 50)).tolist() == want[7:57]
+    mixed = ids[:20] + ["0123456789abcdef" + "9" * 5]
+    assert serial.hex_prefix64(pa.array(mixed)).tolist() == [int(h[:16], 16) for h in mixed]
+
+
+def test_keyed_ids_in_many_partitions_give_the_plain_ids_result():
+    """The history store's hex ids, partitioned by their first digits (16 or more
+    partitions), flag exactly what the plain ids flag in one partition."""
+    from acidbase import history
+
+    rng = np.random.default_rng(17)
+    n = 600
+    pats = [f"P{i}" for i in rng.integers(0, 40, n)]
+    hours = rng.uniform(0, 72, n)
+    values = {"na": 140.0 + rng.normal(0, 8, n), "k": 4.0 + rng.normal(0, 0.8, n)}
+    plain = run(pats, hours, values, partitions=1)
+    keyed = history.hash_ids(pa.array(pats), b"k" * 32)
+    checker = serial.SerialChecker(serial.DELTA_RULES, 24.0, 3, hashed_ids=True)
+    assert checker.k == 16
+    secs = np.array([int(h * HOUR) for h in hours], dtype=np.int64)
+    checker.add(keyed, secs, np.full(n, fileio.TIME_ZONED, dtype=np.int8),
+                {k: np.asarray(v) for k, v in values.items()},
+                pa.array([f"S{i + 1}" for i in range(n)]))
+    checker.finish()
+    got = checker.columns(0, n)
+    for key in serial.COLUMNS:
+        assert got[key].tolist() == plain[key].tolist()
+    assert (plain["serial_codes"] != "").sum() > 30
+
+
+def test_a_jump_and_a_larger_jump_back_past_the_start_is_two_deltas_not_a_break():
+    """Both changes beyond the limit in opposite directions, but the panels either side
+    differ by more than the limit (140 and 160 mmol/L): no break, two deltas."""
+    out = run(["P"] * 3, [0, 1, 2], {"na": [140.0, 128.0, 160.0]})
+    assert out["serial_codes"].tolist() == ["", "SERIAL-DELTA-NA", "SERIAL-DELTA-NA"]
