@@ -595,6 +595,8 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
     started = audit.now()
     units = _pairs(args.unit, "unit")
     site = config.resolve(args, deltas=_delta_overrides(args.delta))
+    # The history store and its retention: the options, else the site file's [history].
+    args.history, args.history_retention_days = site.history_path, site.history_retention_days
     delimiter = _DELIMS.get((args.delimiter or "").lower(), args.delimiter)
     if delimiter is not None and len(delimiter) != 1:
         raise BatchInputError(f"--delimiter {args.delimiter!r}: give one character, or 'tab'")

@@ -344,7 +344,7 @@ def cmd_tui(args: argparse.Namespace) -> int:
     from tui.app import make_app
 
     site = resolve_site(args)
-    make_app(panel=panel, demo=args.demo, settings=site.settings, history=args.history,
+    make_app(panel=panel, demo=args.demo, settings=site.settings, history=site.history_path,
              site=site).run()
     return EXIT_OK
 

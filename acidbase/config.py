@@ -31,6 +31,9 @@ albumin g/L)::
     pco2 = "kPa"
     [batch]
     mapping = "lis-headers.csv"
+    [history]                 # the store batch runs (and the app) use without --history
+    path = "/srv/lab/acidbase-history.db"
+    retention_days = 30
     [fhir]
     observation_status = "preliminary"
 """
@@ -72,6 +75,8 @@ class Site:
     units: dict[str, str]
     mapping: str | None
     observation_status: str
+    history_path: str | None = None
+    history_retention_days: float | None = None
     file: str | None = None
     file_sha256: str | None = None
     found_by: str = "none"
@@ -102,6 +107,11 @@ class Site:
         for name, unit in sorted(self.units.items()):
             out[f"units.{name}"] = unit
         out["batch.mapping"] = self.mapping
+        from .history import DEFAULT_RETENTION_DAYS
+
+        out["history.path"] = self.history_path
+        out["history.retention_days"] = (DEFAULT_RETENTION_DAYS if self.history_retention_days
+                                         is None else self.history_retention_days)
         out["fhir.observation_status"] = self.observation_status
         return out
 
@@ -221,6 +231,11 @@ def _file_values(site: SiteFile, path: Path) -> dict[str, Any]:
     if site.batch.mapping:
         mapping = Path(site.batch.mapping)
         out["batch.mapping"] = str(mapping if mapping.is_absolute() else path.parent / mapping)
+    if site.history.path:
+        store = Path(site.history.path)
+        out["history.path"] = str(store if store.is_absolute() else path.parent / store)
+    if site.history.retention_days is not None:
+        out["history.retention_days"] = float(site.history.retention_days)
     if site.fhir.observation_status:
         out["fhir.observation_status"] = site.fhir.observation_status
     return out
@@ -246,6 +261,10 @@ def _option_values(args: Any) -> dict[str, Any]:
         out["batch.mapping"] = args.mapping
     if getattr(args, "fhir_status", None):
         out["fhir.observation_status"] = args.fhir_status
+    if getattr(args, "history", None):
+        out["history.path"] = args.history
+    if getattr(args, "history_retention_days", None) is not None:
+        out["history.retention_days"] = float(args.history_retention_days)
     return out
 
 
@@ -302,6 +321,8 @@ def resolve(args: Any = None, *, config: str | None = None,
         units=file_units,
         mapping=values.get("batch.mapping"),
         observation_status=values.get("fhir.observation_status", DEFAULT_OBSERVATION_STATUS),
+        history_path=values.get("history.path"),
+        history_retention_days=values.get("history.retention_days"),
         file=str(path) if path is not None else None, file_sha256=digest, found_by=found_by,
         origins=origins)
 

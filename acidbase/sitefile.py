@@ -50,6 +50,18 @@ class BatchSection(_Strict):
     mapping: str | None = None
 
 
+class HistorySection(_Strict):
+    path: str | None = None
+    retention_days: float | None = None
+
+    @field_validator("retention_days")
+    @classmethod
+    def _positive_days(cls, v: float | None) -> float | None:
+        if v is not None and not v > 0:
+            raise ValueError("give a positive number of days")
+        return v
+
+
 class FhirSection(_Strict):
     observation_status: Literal["preliminary", "final", "registered", "amended"] | None = None
 
@@ -65,4 +77,5 @@ class SiteFile(_Strict):
     serial: SerialSection = SerialSection()
     units: dict[str, str] = {}
     batch: BatchSection = BatchSection()
+    history: HistorySection = HistorySection()
     fhir: FhirSection = FhirSection()

@@ -464,3 +464,45 @@ def test_a_run_that_finds_the_store_just_made_by_another_uses_it(tmp_path, monke
     s = history.Store(path2, key)
     s.close()
     assert raced and count(tmp_path / "store2.db") == (0, 0)
+
+
+def test_the_site_file_names_the_store_when_no_option_does(tmp_path, capsys):
+    """`[history] path` in the site configuration (relative to the file) is the store of
+    every run without --history; the option, when given, wins; config show names it."""
+    site = tmp_path / "site.toml"
+    site.write_text('[history]\npath = "lab-store.db"\nretention_days = 60\n')
+    for day, na in (("day1", 140), ("day2", 155)):
+        src = panels(tmp_path / f"{day}.csv", [(f"S-{day}", "MRN-ALPHA-7",
+                                                1.5 if day == "day1" else 1.0, na)])
+        out = tmp_path / f"{day}.out.csv"
+        assert main(["batch", str(src), "-o", str(out), "--quiet", "--profile", "full",
+                     "--config", str(site)]) == 0
+    err = capsys.readouterr().err
+    assert (tmp_path / "lab-store.db").exists()
+    assert "1 earlier panels compared" in err
+    row = next(csv.DictReader((tmp_path / "day2.out.csv").open()))
+    assert row["serial_codes"] == "SERIAL-DELTA-NA"
+    assert count(tmp_path / "lab-store.db")[0] == 2
+    other = tmp_path / "other.db"  # the option wins over the file
+    src = panels(tmp_path / "day3.csv", [("S3", "MRN-ALPHA-7", 0.5, 141)])
+    assert main(["batch", str(src), "-o", str(tmp_path / "day3.out.csv"), "--quiet",
+                 "--config", str(site), "--history", str(other)]) == 0
+    assert other.exists() and count(tmp_path / "lab-store.db")[0] == 2
+    capsys.readouterr()
+    assert main(["config", "show", "--config", str(site)]) == 0
+    shown = {line.split()[0]: line for line in capsys.readouterr().out.splitlines()
+             if line.startswith("history.")}
+    assert str(tmp_path / "lab-store.db") in shown["history.path"]
+    assert shown["history.path"].endswith(f"file {site}")
+    assert float(shown["history.retention_days"].split()[1]) == 60
+
+
+def test_a_bad_history_table_in_the_site_file_is_refused_naming_the_key(tmp_path, capsys):
+    site = tmp_path / "site.toml"
+    site.write_text("[history]\nretention_days = -3\n")
+    src = panels(tmp_path / "day1.csv", [("S1", "P-1", 1.0, 140)])
+    rc = main(["batch", str(src), "-o", str(tmp_path / "o.csv"), "--quiet",
+               "--config", str(site)])
+    err = capsys.readouterr().err
+    assert rc == 2 and "history.retention_days" in err and "Traceback" not in err
+    assert not (tmp_path / "o.csv").exists()
