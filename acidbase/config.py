@@ -59,6 +59,9 @@ ENV_VAR = "ACIDBASE_CONFIG"
 #: HL7 FHIR R4 4.0.1, 2019, value set observation-status).
 OBSERVATION_STATUSES = ("preliminary", "final", "registered", "amended")
 DEFAULT_OBSERVATION_STATUS = "preliminary"  # until a person signs the reading off
+#: A history store's panels collected longer ago than this are pruned (days); common
+#: practice, no source: each laboratory sets its own (``[history] retention_days``).
+DEFAULT_HISTORY_RETENTION_DAYS = 30
 
 
 class ConfigError(ValueError, AcidBaseError):
@@ -107,11 +110,10 @@ class Site:
         for name, unit in sorted(self.units.items()):
             out[f"units.{name}"] = unit
         out["batch.mapping"] = self.mapping
-        from .history import DEFAULT_RETENTION_DAYS
-
         out["history.path"] = self.history_path
-        out["history.retention_days"] = (DEFAULT_RETENTION_DAYS if self.history_retention_days
-                                         is None else self.history_retention_days)
+        out["history.retention_days"] = (DEFAULT_HISTORY_RETENTION_DAYS
+                                         if self.history_retention_days is None
+                                         else self.history_retention_days)
         out["fhir.observation_status"] = self.observation_status
         return out
 

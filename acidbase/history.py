@@ -40,6 +40,7 @@ import pyarrow as pa
 import pyarrow.compute as pc
 from pyarrow import ipc
 
+from .config import DEFAULT_HISTORY_RETENTION_DAYS
 from .errors import AcidBaseError
 from .serial import STORED_FIELDS, hex_prefix64
 
@@ -50,9 +51,9 @@ KEY_ENV = "ACIDBASE_HISTORY_KEY"
 #: Shortest key accepted, in bytes (RFC 2104 section 3: at least the hash's output
 #: length, 32 bytes for SHA-256, is recommended; 16 is refused below as too weak).
 MIN_KEY_BYTES = 16
-#: Panels collected longer ago than this are pruned (days); common practice, no
-#: source: each laboratory sets its own.
-DEFAULT_RETENTION_DAYS = 30
+#: Panels collected longer ago than this are pruned (days; declared with the site
+#: settings, acidbase.config, where ``[history] retention_days`` overrides it).
+DEFAULT_RETENTION_DAYS = DEFAULT_HISTORY_RETENTION_DAYS
 #: How long a run waits for another run to finish with the store (seconds).
 BUSY_TIMEOUT_S = 600.0
 _KEY_LABEL = b"acidbase history key check"
