@@ -270,6 +270,22 @@ static void release(Views *v) {
     PyMem_Free(v->views);
 }
 
+/* The next free slot of `v` (grown as needed); NULL, with the error set, when out of
+ * memory.  The slot counts as used once the caller has filled it (v->nviews++). */
+static Py_buffer *next_view(Views *v) {
+    if (v->nviews == v->cap) {
+        Py_ssize_t cap = v->cap ? 2 * v->cap : 64;
+        Py_buffer *p = PyMem_Realloc(v->views, (size_t)cap * sizeof(Py_buffer));
+        if (!p) {
+            PyErr_NoMemory();
+            return NULL;
+        }
+        v->views = p;
+        v->cap = cap;
+    }
+    return &v->views[v->nviews];
+}
+
 /* A buffer object's bytes (NULL for None), checked to hold `size` bytes. */
 static int view(Views *v, PyObject *obj, int64_t size, const uint8_t **ptr, Py_ssize_t *len) {
     *ptr = NULL;
@@ -279,18 +295,8 @@ static int view(Views *v, PyObject *obj, int64_t size, const uint8_t **ptr, Py_s
         PyErr_SetString(PyExc_ValueError, "a column lacks a buffer its cells need");
         return -1;
     }
-    if (v->nviews == v->cap) {
-        Py_ssize_t cap = v->cap ? 2 * v->cap : 64;
-        Py_buffer *p = PyMem_Realloc(v->views, (size_t)cap * sizeof(Py_buffer));
-        if (!p) {
-            PyErr_NoMemory();
-            return -1;
-        }
-        v->views = p;
-        v->cap = cap;
-    }
-    Py_buffer *b = &v->views[v->nviews];
-    if (PyObject_GetBuffer(obj, b, PyBUF_SIMPLE) < 0) return -1;
+    Py_buffer *b = next_view(v);
+    if (!b || PyObject_GetBuffer(obj, b, PyBUF_SIMPLE) < 0) return -1;
     v->nviews++;
     if (b->len < size) {
         PyErr_SetString(PyExc_ValueError, "a column's buffer is shorter than its cells need");
@@ -476,18 +482,8 @@ done:
 /* A writable buffer object's bytes, checked to hold `size` bytes. */
 static int wview(Views *v, PyObject *obj, int64_t size, uint8_t **ptr) {
     *ptr = NULL;
-    if (v->nviews == v->cap) {
-        Py_ssize_t cap = v->cap ? 2 * v->cap : 8;
-        Py_buffer *p = PyMem_Realloc(v->views, (size_t)cap * sizeof(Py_buffer));
-        if (!p) {
-            PyErr_NoMemory();
-            return -1;
-        }
-        v->views = p;
-        v->cap = cap;
-    }
-    Py_buffer *b = &v->views[v->nviews];
-    if (PyObject_GetBuffer(obj, b, PyBUF_WRITABLE) < 0) return -1;
+    Py_buffer *b = next_view(v);
+    if (!b || PyObject_GetBuffer(obj, b, PyBUF_WRITABLE) < 0) return -1;
     v->nviews++;
     if (b->len < size) {
         PyErr_SetString(PyExc_ValueError, "an output buffer is shorter than its cells need");
