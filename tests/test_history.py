@@ -506,3 +506,30 @@ def test_a_bad_history_table_in_the_site_file_is_refused_naming_the_key(tmp_path
     err = capsys.readouterr().err
     assert rc == 2 and "history.retention_days" in err and "Traceback" not in err
     assert not (tmp_path / "o.csv").exists()
+
+
+def test_the_app_takes_the_site_files_store_and_the_option_wins(tmp_path, monkeypatch):
+    """`acidbase tui` opens the store the site file names, or the one --history names."""
+    import tui.app
+
+    site = tmp_path / "site.toml"
+    site.write_text('[history]\npath = "ward.db"\n')
+    seen = {}
+
+    class _App:
+        def run(self):
+            return None
+
+    def fake_make_app(**kw):
+        seen.update(kw)
+        return _App()
+
+    monkeypatch.setattr(tui.app, "make_app", fake_make_app)
+    assert main(["tui", "--config", str(site)]) == 0
+    assert seen["history"] == str(tmp_path / "ward.db")
+    assert main(["tui", "--config", str(site), "--history", str(tmp_path / "own.db")]) == 0
+    assert seen["history"] == str(tmp_path / "own.db")
+    monkeypatch.delenv("ACIDBASE_CONFIG", raising=False)
+    monkeypatch.setenv("XDG_CONFIG_HOME", str(tmp_path / "no-config-here"))
+    assert main(["tui"]) == 0
+    assert seen["history"] is None  # no site file in reach, no option: no store
