@@ -250,6 +250,12 @@ static int cell(Out *o, Column *c, int64_t row) {
     return -1;
 }
 
+/* Sets the Python error for what `cell` returned (-1 corrupt input, -2 no memory). */
+static void cell_error(int rc) {
+    if (rc == -1) PyErr_SetString(PyExc_ValueError, "a text column's offsets are out of bounds");
+    else PyErr_NoMemory();
+}
+
 /* Bytes a buffer must hold for `count` cells from `offset`. */
 static int64_t need(int kind, int which, int64_t offset, int64_t count) {
     int64_t last = offset + count;
@@ -410,12 +416,8 @@ static PyObject *encode(PyObject *self, PyObject *args) {
         if (rc == 0 && ncols && (rc = grow(&o, 1)) == 0) o.p[o.len++] = '\n';
     }
     Py_END_ALLOW_THREADS
-    if (rc == -1) {
-        PyErr_SetString(PyExc_ValueError, "a text column's offsets are out of bounds");
-        goto done;
-    }
     if (rc) {
-        PyErr_NoMemory();
+        cell_error(rc);
         goto done;
     }
     result = PyBytes_FromStringAndSize(o.p ? o.p : "", (Py_ssize_t)o.len);
@@ -458,12 +460,8 @@ static PyObject *cells(PyObject *self, PyObject *args) {
         rc = cell(&o, &col, r);
     }
     at[nrows] = (int64_t)o.len;
-    if (rc == -1) {
-        PyErr_SetString(PyExc_ValueError, "a text column's offsets are out of bounds");
-        goto done;
-    }
     if (rc) {
-        PyErr_NoMemory();
+        cell_error(rc);
         goto done;
     }
     text = PyBytes_FromStringAndSize(o.p ? o.p : "", (Py_ssize_t)o.len);
