@@ -58,27 +58,27 @@ def review_mask(fired: np.ndarray, refused: np.ndarray) -> np.ndarray:
     return refused | trust
 
 
+def _spread(rows: np.ndarray, values: list[str] | np.ndarray, n: int) -> pa.Array:
+    """``n`` text cells: ``values[k]`` on row ``rows[k]``, "" elsewhere."""
+    if len(rows) == 0:
+        return pa.repeat(pa.scalar("", pa.string()), n)
+    pos = np.full(n, -1, dtype=np.int64)
+    pos[rows] = np.arange(len(rows))
+    values = pa.array(values, type=pa.string())
+    return pc.fill_null(pc.take(values, pa.array(pos, mask=pos < 0)), "")
+
+
 def sparse_text(col: np.ndarray, where: np.ndarray) -> pa.Array:
     """Text that is "" except on the rows of ``where`` (converted only there)."""
     idx = np.flatnonzero(where)
-    if idx.size == 0:
-        return pa.repeat(pa.scalar("", pa.string()), len(col))
-    pos = np.full(len(col), -1, dtype=np.int64)
-    pos[idx] = np.arange(idx.size)
-    values = pa.array(col[idx], type=pa.string())
-    return pc.fill_null(pc.take(values, pa.array(pos, mask=pos < 0)), "")
+    return _spread(idx, col[idx], len(col))
 
 
 def _marks_column(marks: Mapping[int, tuple[str, ...]], n: int) -> pa.Array:
     """Per-row marks ("lactate <0.3") written as one text cell, "; " between them;
     ``marks`` holds only the rows that have any (row -> marks)."""
-    if not marks:
-        return pa.repeat(pa.scalar("", pa.string()), n)
     rows = np.fromiter(marks, dtype=np.int64, count=len(marks))
-    pos = np.full(n, -1, dtype=np.int64)
-    pos[rows] = np.arange(rows.size)
-    values = pa.array(["; ".join(m) for m in marks.values()], type=pa.string())
-    return pc.fill_null(pc.take(values, pa.array(pos, mask=pos < 0)), "")
+    return _spread(rows, ["; ".join(m) for m in marks.values()], n)
 
 
 def chunk_columns(table: pa.Table | pa.RecordBatch, layout: Layout) -> dict[str, Any]:
