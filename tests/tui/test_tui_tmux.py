@@ -244,3 +244,43 @@ def test_a_patient_id_and_a_panel_in_one_burst_are_checked_against_the_store(ses
     _wait_for(s, "Kept in the store")
     assert [r["sample_id"] for r in history.earlier_panels(str(store), "MRN-TMUX-7",
                                                            key=key)] == ["S1", "S2"]
+
+
+#: The panel above as one burst of keys, in form order.
+PANEL_KEYS = ("7.33", "Tab", "60", "Tab", "68", "Tab", "31.0", "Tab", "0.40", "Tab", "Tab",
+              "Tab", "140", "Tab", "4.1", "Tab", "98")
+
+
+def test_f5_ctrl_n_and_f6_in_the_panels_burst_keep_it_exactly_as_typed(session):
+    """F5 right after the last key keeps the whole panel (not the keys handled so far),
+    Ctrl+N clears it, F6 opens the kept panel again: all in ONE send-keys."""
+    s = session(no_color=True)
+    _tmux("send-keys", "-t", s, *PANEL_KEYS, "F5", "C-n", "F6")
+    screen = _wait_for(s, "kept 1 of 1")
+    screen = _wait_for(s, CHRONIC)
+    rows = form_rows(screen)
+    assert {k: rows[k][0] for k in PRINTED} == PRINTED
+
+
+def test_ctrl_n_in_a_burst_clears_the_keys_before_it_and_the_new_panel_takes_those_after(
+        session):
+    s = session(no_color=True)
+    _tmux("send-keys", "-t", s, *PANEL_KEYS, "C-n", "7.2", "Tab", "50")
+    screen = _wait_for(s, "Ctrl+Z brings the cleared one back")
+    screen = _wait_for(s, lambda sc: form_rows(sc).get("pCO2", ("",))[0] == "50")
+    rows = form_rows(screen)
+    assert {k: rows[k][0] for k in PRINTED} == {k: "" for k in PRINTED} | {"pH": "7.2",
+                                                                           "pCO2": "50"}
+    _tmux("send-keys", "-t", s, "C-z")
+    screen = _wait_for(s, CHRONIC)
+    rows = form_rows(screen)
+    assert {k: rows[k][0] for k in PRINTED} == PRINTED
+
+
+def test_f2_right_after_a_value_asks_about_that_value(session):
+    """F2 on a filled pCO2 offers to convert it: 60 mm[Hg] = 7.999 kPa (UCUM: 1 mm[Hg] =
+    133.322 Pa), or to read the number in kPa; typed in one burst with the value."""
+    s = session(no_color=True)
+    _tmux("send-keys", "-t", s, "Tab", "60", "F2")
+    screen = _wait_for(s, "switch to kPa?")
+    assert "pCO2 60 mmHg: switch to kPa?" in screen and "convert: 7.999 kPa" in screen

@@ -5,11 +5,21 @@ number pad's too) move the focus, and F2 switches the focused field's unit, when
 key is taken from the queue, before the next key is handed to a field.  So keys
 typed in one burst land in (and act on) the field that had the focus when each was
 typed.
+
+A key bound to an action is taken from the app's queue at once, but the keys typed
+before it may still wait in the queue of the field they were handed to.  So every
+action that reads, replaces or converts the form first lets each widget handle what is
+already queued to it (``after_typed_keys``): F5 keeps "7.33", not the "7" handled so
+far; Ctrl+N clears the whole panel typed before it, and the keys after it land in the
+new one; F2 asks about "60", not about an empty field.
 """
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING, ClassVar
+import asyncio
+import functools
+from collections.abc import Callable
+from typing import TYPE_CHECKING, Any, ClassVar
 
 from pydantic import ValidationError
 from textual import events, on
@@ -35,6 +45,45 @@ if TYPE_CHECKING:
 
 def _titles(names: list[str]) -> str:
     return ", ".join(BY_NAME[n].title if n in BY_NAME else n for n in names)
+
+
+#: How long an action waits for the keys typed before it (seconds): a safety net only;
+#: handling a burst's queued keys takes milliseconds.
+SETTLE_TIMEOUT_S = 2.0
+
+
+async def settle(screen: Screen) -> None:
+    """Return once every widget of ``screen`` has handled the messages queued to it now.
+
+    Deepest widgets first: a key waits in the focused field's queue, and what handling
+    it posts (the field's change, the form's edit) bubbles up, towards the screen, into
+    queues handled after it.  The app takes no other key meanwhile (the action that
+    awaits this runs in the app's own task)."""
+    by_depth: dict[int, list] = {}
+    for node in [screen, *screen.walk_children(with_self=False)]:
+        by_depth.setdefault(len(node.ancestors), []).append(node)
+    for depth in sorted(by_depth, reverse=True):
+        waits = []
+        for node in by_depth[depth]:
+            done = asyncio.Event()
+            if node.call_later(done.set):
+                waits.append(done.wait())
+        if waits:
+            try:
+                await asyncio.wait_for(asyncio.gather(*waits), SETTLE_TIMEOUT_S)
+            except TimeoutError:  # a widget that no longer handles messages: go on
+                return
+
+
+def after_typed_keys(action: Callable[..., Any]) -> Callable[..., Any]:
+    """An action of the entry screen that runs after the keys typed before its own."""
+
+    @functools.wraps(action)
+    async def run(self: EntryScreen, *args: Any) -> Any:
+        await settle(self)
+        return action(self, *args)
+
+    return run
 
 
 class EntryScreen(Screen[None]):
@@ -194,6 +243,7 @@ class EntryScreen(Screen[None]):
         if self.app.store is not None and event.widget.id == "patient_id":
             self.call_after_refresh(self.reread)
 
+    @after_typed_keys
     def action_store(self) -> None:
         link = self.app.store
         if link is None:
@@ -246,6 +296,7 @@ class EntryScreen(Screen[None]):
         return next((w for w in self.focused.ancestors_with_self
                      if isinstance(w, ValueField)), None)
 
+    @after_typed_keys
     def action_unit(self) -> None:
         field = self._focused_field()
         if field is None:
@@ -301,6 +352,7 @@ class EntryScreen(Screen[None]):
             # land in the field that has the focus now
             self.set_focus(self.query_one("#collected_at", Input))
 
+    @after_typed_keys
     def action_keep(self) -> None:
         data = self.form.data()
         if not any(k in data for k in REQUIRED):
@@ -310,6 +362,7 @@ class EntryScreen(Screen[None]):
         refused = "" if self.app.panel else " The engine refuses it as it stands."
         self.say(f"Kept as panel {n + 1}.{refused} The form stays as it is for the next panel.")
 
+    @after_typed_keys
     def action_move(self, step: int) -> None:
         entry = self.app.sitting.move(step)
         if entry is None:
@@ -318,6 +371,7 @@ class EntryScreen(Screen[None]):
             return
         self.load_entry(entry)
 
+    @after_typed_keys
     def action_new(self) -> None:
         data = self.form.data()
         filled = any(k in data for k in BY_NAME)
@@ -329,6 +383,7 @@ class EntryScreen(Screen[None]):
         self.say("New panel (units as chosen). Ctrl+Z brings the cleared one back."
                  if filled else "New panel.")
 
+    @after_typed_keys
     def action_undo(self) -> None:
         if self._cleared is None:
             return
@@ -361,11 +416,13 @@ class EntryScreen(Screen[None]):
         self.app.push_screen(FindingScreen(it.findings[int(option_id.split("-")[1])],
                                            stale=self.pane.stale))
 
+    @after_typed_keys
     def action_plane(self) -> None:
         from .plane import PlaneScreen
 
         self.app.push_screen(PlaneScreen(self.pane.reading, stale=self.pane.stale))
 
+    @after_typed_keys
     def action_series(self) -> None:
         from .series import SeriesScreen
 
@@ -377,6 +434,7 @@ class EntryScreen(Screen[None]):
             self.load_entry(self.app.sitting.entries[chosen])
         self.show_title()
 
+    @after_typed_keys
     def action_compare(self) -> None:
         from .compare import CompareScreen
 
@@ -397,6 +455,7 @@ class EntryScreen(Screen[None]):
                     "the report's values and reading agree.")
         return ""
 
+    @after_typed_keys
     def action_copy(self) -> None:
         why = self._report_refused()
         if why:
@@ -406,6 +465,7 @@ class EntryScreen(Screen[None]):
         self.say("The report is on the clipboard where the terminal allows it (OSC 52); "
                  "Ctrl+S saves it to a file.")
 
+    @after_typed_keys
     def action_save(self) -> None:
         from .files import SaveScreen
 
@@ -422,6 +482,7 @@ class EntryScreen(Screen[None]):
                 return
         self.say(self.app.save(kind, path, self.pane.reading, self.form.data(), replace))
 
+    @after_typed_keys
     def action_load(self) -> None:
         from .files import LoadScreen
 
