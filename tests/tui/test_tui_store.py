@@ -187,6 +187,7 @@ async def test_k_keeps_the_panel_only_after_a_yes_with_an_audit_record(store):
         await pilot.press("k")
         await pilot.pause()
         await pilot.press("y")
+        await app.workers.wait_for_complete()
         await pilot.pause()
         assert "Kept in the store" in str(app.screen.query_one("#store-note").render())
         assert app.screen.query_one(StoredTable).row_count == 2
@@ -209,3 +210,35 @@ async def test_k_without_a_collection_time_keeps_nothing_and_says_why(store):
         assert isinstance(app.screen, StoreScreen)
         assert "no collection time" in str(app.screen.query_one("#store-note").render())
     assert len(history.earlier_panels(str(store), PATIENT)) == 1
+
+
+async def test_keeping_while_a_batch_run_holds_the_store_waits_without_freezing_the_screen(
+        store):
+    """A batch run holds the store's write lock: after K and a yes the screen says it is
+    waiting and still answers keys; once the run lets go, the panel is kept."""
+    app = make_app(history=str(store))
+    held = history.open_for_run(str(store), key=KEY)  # as a batch run does, until it commits
+    try:
+        async with app.run_test(size=(80, 24)) as pilot:
+            await key_in(pilot, HIGH_NA)
+            await type_into(pilot, "collected_at", stamp(1))
+            await type_into(pilot, "patient_id", PATIENT)
+            await type_into(pilot, "sample_id", "S2")
+            await pilot.press("ctrl+t")
+            await pilot.pause()
+            await pilot.press("k", "y")
+            await pilot.pause()
+            note = app.screen.query_one("#store-note")
+            assert "Keeping the panel in the store" in str(note.render())
+            await pilot.press("k")  # the screen answers while the keep waits
+            await pilot.pause()
+            assert "being kept in the store" in str(note.render())
+            held.close()  # the run ends without a commit: the keep goes ahead
+            held = None
+            await app.workers.wait_for_complete()
+            await pilot.pause()
+            assert "Kept in the store" in str(note.render())
+    finally:
+        if held is not None:
+            held.close()
+    assert [r["sample_id"] for r in history.earlier_panels(str(store), PATIENT)] == ["S1", "S2"]

@@ -12,7 +12,7 @@ from textual.widgets import Static
 
 from acidbase.fields import BY_NAME
 
-from ..store import stored_reading
+from ..store import StoreLink, stored_reading
 from ..widgets.chrome import CautionBar, KeyLine, PlainTable, TitleLine
 
 if TYPE_CHECKING:
@@ -43,6 +43,7 @@ class StoreScreen(Screen[None]):
         self.data = data
         self._rows: list[dict[str, object]] = []
         self._note = ""
+        self._keeping = False
         self.patient = str(data.get("patient_id") or "").strip()
 
     def compose(self) -> ComposeResult:
@@ -106,6 +107,10 @@ class StoreScreen(Screen[None]):
         self.query_one("#store-note", Static).update(text)
 
     def action_keep(self) -> None:
+        if self._keeping:
+            self._note = "A panel is being kept in the store: wait for its answer."
+            self._show_note()
+            return
         link = self.app.store
         panel = self.app.panel
         why = ("the form holds a refused or missing value" if panel is None else
@@ -131,8 +136,30 @@ class StoreScreen(Screen[None]):
             self._show_note()
             return
         link = self.app.store
-        assert link is not None and self.app.panel is not None
-        self.fill(link.keep(self.app.panel, self.data))
+        panel = self.app.panel
+        assert link is not None and panel is not None
+        # On a thread: a batch run holding the store makes the keep wait (up to
+        # history.keep_panel's timeout), and the screen must answer keys meanwhile.
+        self._keeping = True
+        self._note = ("Keeping the panel in the store (if a batch run is writing to it, "
+                      "this waits for it a few seconds)...")
+        self._show_note()
+        self.run_worker(lambda: self._keep_now(link, panel), thread=True, group="keep",
+                        exit_on_error=False)
+
+    def _keep_now(self, link: StoreLink, panel: Any) -> None:
+        try:
+            message = link.keep(panel, self.data)
+        except Exception as e:  # noqa: BLE001 - said on screen, never lost in a log
+            message = f"Not kept in the store: {e}"
+        self.app.call_from_thread(self._after_keep, message)
+
+    def _after_keep(self, message: str) -> None:
+        self._keeping = False
+        if self.is_attached:
+            self.fill(message)
+        elif hasattr(self.app.screen, "say"):  # left meanwhile: said on the entry screen
+            self.app.screen.say(message)
 
     def action_back(self) -> None:
         self.dismiss(None)
