@@ -284,3 +284,27 @@ def test_f2_right_after_a_value_asks_about_that_value(session):
     _tmux("send-keys", "-t", s, "Tab", "60", "F2")
     screen = _wait_for(s, "switch to kPa?")
     assert "pCO2 60 mmHg: switch to kPa?" in screen and "convert: 7.999 kPa" in screen
+
+
+def test_backspace_in_a_burst_edits_the_field_it_was_typed_in(session):
+    """Backspace is handled in the field's own turn: before the Tab after it moves the
+    focus, and before F5 keeps the panel; F6 then opens the kept panel as corrected."""
+    s = session(no_color=True)
+    _tmux("send-keys", "-t", s, "7.355", "BSpace", "Tab", "40", "BSpace", "1", "Tab", "68",
+          "F5", "C-n", "F6")
+    screen = _wait_for(s, "kept 1 of 1")
+    screen = _wait_for(s, lambda sc: form_rows(sc).get("pO2", ("",))[0] == "68")
+    rows = form_rows(screen)
+    assert (rows["pH"][0], rows["pCO2"][0], rows["pO2"][0]) == ("7.35", "41", "68")
+
+
+def test_arrows_then_enter_in_a_burst_open_the_row_the_arrows_reached(session):
+    s = session(no_color=True)
+    _tmux("send-keys", "-t", s, "7.31", "F5", "C-n", "7.32", "F5", "C-n", "7.33", "F5", "C-n")
+    _wait_for(s, "3 kept")
+    _tmux("send-keys", "-t", s, "F9", "Down", "Down", "Enter")
+    screen = _wait_for(s, "kept 3 of 3")
+    assert form_rows(screen)["pH"][0] == "7.33"
+    _tmux("send-keys", "-t", s, "F9", "Up", "Delete", "F9")  # removes panel 2, not 3
+    screen = _wait_for(s, "kept 2 of 2")
+    assert form_rows(screen)["pH"][0] == "7.33"

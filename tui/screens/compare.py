@@ -41,10 +41,10 @@ class CompareScreen(Screen[None]):
 
     BINDINGS: ClassVar[list[BindingType]] = [
         Binding("f6", "step(-1)", "B earlier", tooltip="Compare with an earlier panel as B.",
-                id="compare-earlier"),
+                id="compare-earlier", priority=True),
         Binding("f7", "step(1)", "B later", tooltip="Compare with a later panel as B.",
-                id="compare-later"),
-        Binding("escape,f8", "app.pop_screen", "back", tooltip="Back.", id="compare-back"),
+                id="compare-later", priority=True),
+        Binding("escape,f8", "app.pop_screen", "back", tooltip="Back.", id="compare-back", priority=True),
     ]
 
     app: AcidBaseApp

@@ -15,9 +15,9 @@ class ConfirmScreen(ModalScreen[bool]):
     """A yes-or-no question; Y answers yes, N or Esc no (Enter answers nothing)."""
 
     BINDINGS: ClassVar[list[BindingType]] = [
-        Binding("y", "answer(True)", "yes", tooltip="Yes.", id="confirm-yes"),
+        Binding("y", "answer(True)", "yes", tooltip="Yes.", id="confirm-yes", priority=True),
         Binding("n,escape", "answer(False)", "no", tooltip="No: back, nothing changed.",
-                id="confirm-no"),
+                id="confirm-no", priority=True),
     ]
 
     def __init__(self, question: str, yes: str, no: str = "go back") -> None:
@@ -44,11 +44,11 @@ class UnitScreen(ModalScreen[str | None]):
 
     BINDINGS: ClassVar[list[BindingType]] = [
         Binding("c", "answer('convert')", "convert", tooltip="Convert: the same quantity "
-                "in the new unit.", id="unit-convert"),
+                "in the new unit.", id="unit-convert", priority=True),
         Binding("r", "answer('reinterpret')", "reinterpret", tooltip="Reinterpret: the "
-                "number as typed, read in the new unit.", id="unit-reinterpret"),
+                "number as typed, read in the new unit.", id="unit-reinterpret", priority=True),
         Binding("escape,n", "answer(None)", "keep", tooltip="Keep the value and unit as "
-                "they are.", id="unit-keep"),
+                "they are.", id="unit-keep", priority=True),
     ]
 
     def __init__(self, question: str, convert: str, reinterpret: str, keep: str) -> None:

@@ -16,10 +16,7 @@ new one; F2 asks about "60", not about an empty field.
 
 from __future__ import annotations
 
-import asyncio
-import functools
-from collections.abc import Callable
-from typing import TYPE_CHECKING, Any, ClassVar
+from typing import TYPE_CHECKING, ClassVar
 
 from pydantic import ValidationError
 from textual import events, on
@@ -32,6 +29,7 @@ from textual.widgets import Input, OptionList, Static
 import acidbase
 from acidbase.fields import BY_NAME, REQUIRED
 
+from ..keys import after_typed_keys
 from ..labels import unit_label, with_unit
 from ..sitting import Entry
 from ..widgets.chrome import CautionBar, KeyLine, TitleLine
@@ -45,45 +43,6 @@ if TYPE_CHECKING:
 
 def _titles(names: list[str]) -> str:
     return ", ".join(BY_NAME[n].title if n in BY_NAME else n for n in names)
-
-
-#: How long an action waits for the keys typed before it (seconds): a safety net only;
-#: handling a burst's queued keys takes milliseconds.
-SETTLE_TIMEOUT_S = 2.0
-
-
-async def settle(screen: Screen) -> None:
-    """Return once every widget of ``screen`` has handled the messages queued to it now.
-
-    Deepest widgets first: a key waits in the focused field's queue, and what handling
-    it posts (the field's change, the form's edit) bubbles up, towards the screen, into
-    queues handled after it.  The app takes no other key meanwhile (the action that
-    awaits this runs in the app's own task)."""
-    by_depth: dict[int, list] = {}
-    for node in [screen, *screen.walk_children(with_self=False)]:
-        by_depth.setdefault(len(node.ancestors), []).append(node)
-    for depth in sorted(by_depth, reverse=True):
-        waits = []
-        for node in by_depth[depth]:
-            done = asyncio.Event()
-            if node.call_later(done.set):
-                waits.append(done.wait())
-        if waits:
-            try:
-                await asyncio.wait_for(asyncio.gather(*waits), SETTLE_TIMEOUT_S)
-            except TimeoutError:  # a widget that no longer handles messages: go on
-                return
-
-
-def after_typed_keys(action: Callable[..., Any]) -> Callable[..., Any]:
-    """An action of the entry screen that runs after the keys typed before its own."""
-
-    @functools.wraps(action)
-    async def run(self: EntryScreen, *args: Any) -> Any:
-        await settle(self)
-        return action(self, *args)
-
-    return run
 
 
 class EntryScreen(Screen[None]):

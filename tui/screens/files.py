@@ -12,6 +12,7 @@ from textual.containers import Vertical
 from textual.screen import ModalScreen
 from textual.widgets import Input, Label
 
+from ..keys import OwnKeys
 from ..widgets.chrome import CautionBar, KeyLine
 from ..widgets.form import ChoiceField
 
@@ -28,7 +29,7 @@ KIND_WORDS = {
 }
 
 
-class PathInput(Input):
+class PathInput(OwnKeys, Input):
     """Where to write or read the file."""
 
 
@@ -43,7 +44,7 @@ class SaveScreen(ModalScreen[tuple[str, str, bool] | None]):
         self.names = {**KINDS, **(names or {})}
 
     BINDINGS: ClassVar[list[BindingType]] = [Binding("escape", "cancel", "cancel", tooltip="Close without saving.",
-                        id="save-cancel")]
+                        id="save-cancel", priority=True)]
 
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog-area"), Vertical(classes="dialog"):
@@ -92,7 +93,7 @@ class LoadScreen(ModalScreen[str | None]):
     """Ask for a series file; returns its path or None."""
 
     BINDINGS: ClassVar[list[BindingType]] = [Binding("escape", "cancel", "cancel", tooltip="Close without loading.",
-                        id="load-cancel")]
+                        id="load-cancel", priority=True)]
 
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog-area"), Vertical(classes="dialog"):

@@ -25,7 +25,7 @@ class FindingScreen(Screen[None]):
 
     BINDINGS: ClassVar[list[BindingType]] = [
         Binding("escape,enter", "app.pop_screen", "back", tooltip="Back to the reading.",
-                id="finding-back"),
+                id="finding-back", priority=True),
     ]
 
     def __init__(self, finding: acidbase.Finding, stale: bool = False) -> None:

@@ -74,7 +74,7 @@ class HelpScreen(Screen[None]):
     """Every key of the app."""
 
     BINDINGS: ClassVar[list[BindingType]] = [Binding("escape,f1", "app.pop_screen", "back", tooltip="Close the help.",
-                        id="help-back")]
+                        id="help-back", priority=True)]
 
     def compose(self) -> ComposeResult:
         yield TitleLine("acidbase - help - the caution and every key")

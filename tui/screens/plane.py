@@ -29,7 +29,7 @@ class PlaneScreen(Screen[None]):
 
     BINDINGS: ClassVar[list[BindingType]] = [
         Binding("escape,f4", "app.pop_screen", "back", tooltip="Back to the entry.",
-                id="plane-back"),
+                id="plane-back", priority=True),
     ]
 
     def __init__(self, it: acidbase.Interpretation | None, stale: bool = False) -> None:

@@ -11,6 +11,7 @@ from textual.widgets import Static
 
 import acidbase
 
+from ..keys import after_typed_keys
 from ..widgets.chrome import CautionBar, KeyLine, PlainTable, TitleLine
 
 if TYPE_CHECKING:
@@ -31,12 +32,12 @@ class SeriesScreen(Screen[int | None]):
         Binding("enter", "open", "open", tooltip="Open the highlighted panel in the entry "
                 "form.", id="series-open", priority=True),
         Binding("f8", "compare", "compare", tooltip="Compare the highlighted panel with the "
-                "one before it.", id="series-compare"),
+                "one before it.", id="series-compare", priority=True),
         Binding("delete", "remove", "remove", tooltip="Remove the highlighted panel from the "
-                "series (Ctrl+Z puts it back).", id="series-remove"),
+                "series (Ctrl+Z puts it back).", id="series-remove", priority=True),
         Binding("ctrl+z", "undo", "undo", tooltip="Put back the panel removed last.",
-                id="series-undo"),
-        Binding("escape,f9", "back", "back", tooltip="Back to the entry.", id="series-back"),
+                id="series-undo", priority=True),
+        Binding("escape,f9", "back", "back", tooltip="Back to the entry.", id="series-back", priority=True),
     ]
 
     app: AcidBaseApp
@@ -89,12 +90,14 @@ class SeriesScreen(Screen[int | None]):
         table = self.query_one(SeriesTable)
         return table.cursor_row if table.row_count else None
 
+    @after_typed_keys
     def action_open(self) -> None:
         self.dismiss(self._row())
 
     def action_back(self) -> None:
         self.dismiss(None)
 
+    @after_typed_keys
     def action_remove(self) -> None:
         row = self._row()
         if row is not None:
@@ -113,6 +116,7 @@ class SeriesScreen(Screen[int | None]):
         self.query_one(SeriesTable).move_cursor(row=row)
         self.query_one("#series-note", Static).update(f"Panel {row + 1} is back.")
 
+    @after_typed_keys
     def action_compare(self) -> None:
         from .compare import CompareScreen
 

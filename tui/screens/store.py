@@ -32,8 +32,8 @@ class StoreScreen(Screen[None]):
     BINDINGS: ClassVar[list[BindingType]] = [
         Binding("k", "keep", "keep in store", tooltip="Keep the form's panel in the history "
                 "store (asks first; needs the patient id and the collection time).",
-                id="store-keep"),
-        Binding("escape,ctrl+t", "back", "back", tooltip="Back to the entry.", id="store-back"),
+                id="store-keep", priority=True),
+        Binding("escape,ctrl+t", "back", "back", tooltip="Back to the entry.", id="store-back", priority=True),
     ]
 
     app: AcidBaseApp

@@ -8,6 +8,8 @@ from textual.widgets import DataTable, Static
 
 import acidbase
 
+from ..keys import OwnKeys
+
 #: The caution in at most two rows at 80 columns; F1 shows it in full (``acidbase.CAUTION``),
 #: and every saved report carries the full text.
 SHORT_CAUTION = ("Caution: supports, never replaces, licensed clinicians and the local "
@@ -52,7 +54,7 @@ class KeyLine(Static):
         super().__init__(text, markup=False, classes="key-line", **kwargs)
 
 
-class PlainTable(DataTable):
+class PlainTable(OwnKeys, DataTable):
     """A table whose cells are plain text: units such as [pH] are not markup."""
 
     def add_row(self, *cells: object, **kwargs):  # type: ignore[override]

@@ -28,6 +28,7 @@ from textual.widgets import Input, Label, Static
 from acidbase.fields import (BY_NAME, HCO3_SOURCES, PREGNANCY_STATES, SAMPLE_TYPES, TEXT_FIELDS,
                              FieldSpec)
 
+from ..keys import OwnKeys
 from ..labels import AFTER_GAS, ELECTROLYTES, GAS, choice_label, form_title, rest, unit_label
 
 #: The answer fields of the group of more values, after its numbers (in the form's order).
@@ -56,7 +57,7 @@ class RowTitle(Label):
         self.set_class(focused, "-focused")
 
 
-class ValueInput(Input):
+class ValueInput(OwnKeys, Input):
     """The text box of one numeric field (its id is the field name)."""
 
 
@@ -142,7 +143,7 @@ class ValueField(Widget):
         return self._message
 
 
-class ChoiceField(Widget, can_focus=True):
+class ChoiceField(OwnKeys, Widget, can_focus=True):
     """A field with a few fixed answers, stepped with the arrow keys or space."""
 
     BINDINGS: ClassVar[list[BindingType]] = [
@@ -206,7 +207,7 @@ class MoreValues(Vertical):
         self.query_one(FoldTitle).refresh()
 
 
-class TextInput(Input):
+class TextInput(OwnKeys, Input):
     """A free-text field (time, patient, sample id)."""
 
 
