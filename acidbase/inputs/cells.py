@@ -38,7 +38,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from .._arrow import is_arrow
-from ..csvtext import plain_numbers
+from ..csvtext import COMPARATOR_CODES, scanned_numbers
 from .vocab import Choice, normalise_word
 
 if TYPE_CHECKING:
@@ -200,9 +200,7 @@ def parse_numeric(column: pa.Array | pa.ChunkedArray, decimal: str = ".",
             text = pc.cast(column, pa.string())
         bad = _mask(pc.is_valid(column))
         return ParsedColumn(np.full(n, np.nan), None, None, bad, text)
-    if decimal == ".":
-        return parse_numeric_many([column])[0]
-    return _parse_cells(column, decimal)
+    return parse_numeric_many([column], decimal)[0]
 
 
 def parse_numeric_many(columns: Sequence[pa.Array | pa.ChunkedArray],
@@ -213,23 +211,31 @@ def parse_numeric_many(columns: Sequence[pa.Array | pa.ChunkedArray],
     time; the few others (flags, comparators, signs, spaces, text) of all the
     columns go through the full pattern together, since each pattern call has a
     fixed cost (about half a millisecond) that a per-column call would pay again.
-    When the compiled edge is built (``csvtext.plain_numbers``) it reads the cells of
-    digits and points in one pass instead of the casts, with the same result (the
-    Python code below stays the reference; tests/test_compiled_edges.py).
+    With a decimal comma each column goes through the full pattern.
+
+    When the compiled edge is built (``csvtext.scanned_numbers``) it reads, in one pass
+    a column, the plain numbers and the ordinary cells around them (blank cells,
+    spaces, a decimal comma, comparators, laboratory flags), exactly as the routes
+    below read them; only the cells it leaves (signs, exponents, words, refusals...)
+    go through the pattern, all columns' together.  The Python code below stays the
+    reference (tests/test_compiled_edges.py compares the two cell by cell).
     """
     _bind_arrow()
     out: list[ParsedColumn | None] = [None] * len(columns)
-    pending: list[tuple[int, pa.Array, np.ndarray, np.ndarray]] = []
+    pending: list[tuple[int, pa.Array, np.ndarray, np.ndarray, np.ndarray | None]] = []
     for i, column in enumerate(columns):
         column = _text_column(column, missing)
-        if decimal != "." or not pa.types.is_string(column.type):
+        if not pa.types.is_string(column.type):
             out[i] = parse_numeric(column, decimal)
             continue
-        n = len(column)
-        scanned = plain_numbers(column)
+        scanned = scanned_numbers(column, decimal)
         if scanned is not None:  # the compiled scan: the same reading (see _scanned)
-            out[i] = _scanned(column, *scanned, pending, i)
+            out[i] = _scanned(column, decimal, *scanned, pending, i)
             continue
+        if decimal != ".":
+            out[i] = _parse_cells(column, decimal)
+            continue
+        n = len(column)
         try:  # the common case: every cell a plain number, no spaces
             out[i] = ParsedColumn(_text_floats(column), None, None, np.zeros(n, dtype=bool),
                                   column, plain=True)
@@ -250,15 +256,26 @@ def parse_numeric_many(columns: Sequence[pa.Array | pa.ChunkedArray],
         if rest.size == 0:
             out[i] = ParsedColumn(vals, None, None, np.zeros(n, dtype=bool), column, plain=True)
         else:
-            pending.append((i, column, vals, rest))
+            pending.append((i, column, vals, rest, None))
     if pending:
-        sub = _parse_cells(pa.concat_arrays([c.take(pa.array(r)) for _, c, _, r in pending]), ".")
+        sub = _parse_cells(pa.concat_arrays([c.take(pa.array(r)) for _, c, _, r, _ in pending]),
+                           decimal)
         pos = 0
-        for i, column, vals, rest in pending:
+        for i, column, vals, rest, marks in pending:
             n, k = len(column), rest.size
             vals[rest] = sub.values[pos:pos + k]
             bad = np.zeros(n, dtype=bool)
             bad[rest] = sub.bad[pos:pos + k]
+            if marks is not None:  # the compiled scan's column: its marks, and the pattern's
+                for part, words, shift in ((sub.comparator, COMPARATOR_CODES, 0),
+                                           (sub.flag, _FLAG_CODES, 3)):
+                    got = None if part is None else part.slice(pos, k)
+                    if got is not None and got.null_count < k:
+                        codes = np.array([words.index(w) for w in got.to_pylist()], np.uint8)
+                        marks[rest] |= codes << shift
+                out[i] = _marked(column, vals, marks, bad, plain=False)
+                pos += k
+                continue
             where = np.full(n, -1, dtype=np.int64)
             where[rest] = np.arange(pos, pos + k)
             index = pa.array(where, mask=where < 0)
@@ -271,30 +288,51 @@ def parse_numeric_many(columns: Sequence[pa.Array | pa.ChunkedArray],
     return out  # type: ignore[return-value]
 
 
-def _scanned(column: pa.Array, vals: np.ndarray, rest_mask: np.ndarray, count: int,
-             pending: list[tuple[int, pa.Array, np.ndarray, np.ndarray]], i: int
-             ) -> ParsedColumn | None:
-    """``parse_numeric_many``'s reading of one column from the compiled scan
-    (``csvtext.plain_numbers``): the plain numbers' values, and the valid cells that are
-    not plain (``rest_mask``, ``count`` of them).
+#: The laboratory flags by their code in the compiled scan's marks (bits 3-6; 0: none).
+_FLAG_CODES: tuple[str | None, ...] = (None, *LAB_FLAGS)
 
-    The Python route above is the reference, and this gives its result: the compiled
-    scan accepts exactly the cells that pass the quick test and cast to a finite number,
-    with the same values.  So when every other cell casts too, the first cast would have
-    read the whole column (plain); otherwise the other cells go through the full
-    pattern, as the quick route's leftovers do (a quick cell that does not cast, which
-    sends the Python route's whole column through the pattern, reads the same there).
-    Returns None when the column joins ``pending``."""
+
+def _marked(column: pa.Array, vals: np.ndarray, marks: np.ndarray | None, bad: np.ndarray,
+            plain: bool) -> ParsedColumn:
+    """A ParsedColumn from the compiled scan's marks: the comparators and flags as text
+    columns (null where none; None when the column has none), as the pattern gives them."""
+    parts: list[pa.Array | None] = [None, None]
+    if marks is not None:
+        for j, (codes, words) in enumerate(((marks & 7, COMPARATOR_CODES),
+                                            ((marks >> 3) & 15, _FLAG_CODES))):
+            if codes.any():
+                parts[j] = pc.take(pa.array(words, pa.string()), pa.array(codes))
+    return ParsedColumn(vals, parts[0], parts[1], bad, column, plain)
+
+
+def _scanned(column: pa.Array, decimal: str, vals: np.ndarray, rest_mask: np.ndarray,
+             marks: np.ndarray, count: int, not_plain: int, marked: int,
+             pending: list[tuple[int, pa.Array, np.ndarray, np.ndarray, np.ndarray | None]],
+             i: int) -> ParsedColumn | None:
+    """``parse_numeric_many``'s reading of one column from the compiled scan
+    (``csvtext.scanned_numbers``): the values and marks of the cells it read, and the
+    valid cells it left (``rest_mask``, ``count`` of them).
+
+    The Python route above is the reference, and this gives its result: the scan reads
+    exactly the cells that the quick test and cast read (plain), and the blank, spaced,
+    censored and flagged cells as the pattern reads them (each cell's reading depends
+    on no other cell).  A column is plain (read whole by the Python route's first
+    cast) when every cell read is plain, with a decimal point, and the cells left cast
+    too; otherwise the cells left go through the full pattern, as the quick route's
+    leftovers do.  Returns None when the column joins ``pending``."""
     n = len(column)
+    bad = np.zeros(n, dtype=bool)
     if count == 0:
-        return ParsedColumn(vals, None, None, np.zeros(n, dtype=bool), column, plain=True)
+        return _marked(column, vals, marks if marked else None, bad,
+                       plain=decimal == "." and not not_plain)
     rest = np.flatnonzero(rest_mask)
-    try:  # "-7.4", "1e2": the Python route's first cast reads them, and the column is plain
-        vals[rest] = _text_floats(column.take(pa.array(rest)))
-        return ParsedColumn(vals, None, None, np.zeros(n, dtype=bool), column, plain=True)
-    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
-        pass
-    pending.append((i, column, vals, rest))
+    if decimal == "." and not not_plain:
+        try:  # "-7.4", "1e2": the Python route's first cast reads them, and the column is plain
+            vals[rest] = _text_floats(column.take(pa.array(rest)))
+            return ParsedColumn(vals, None, None, bad, column, plain=True)
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+            pass
+    pending.append((i, column, vals, rest, marks))
     return None
 
 
