@@ -547,6 +547,23 @@ static const double P10[23] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
 static int plain_decimal(const uint8_t *s, int64_t n, uint8_t mark, double *out) {
     int64_t point = -1, digits = 0, sig = 0;
     uint64_t m = 0;
+    if (EXACT_DIVISION && n <= 19) { /* the usual cell: every digit fits one integer */
+        for (int64_t i = 0; i < n; i++) {
+            unsigned d = (unsigned)s[i] - '0';
+            if (d < 10) m = m * 10 + d;
+            else if (s[i] == mark && point < 0) point = i;
+            else return 0;
+        }
+        /* at most 19 digits: m < 10**19 < 2**64, exact; leading zeros add nothing */
+        int64_t k = point < 0 ? 0 : n - 1 - point;
+        if (n - (point >= 0) == 0) return 0; /* no digit (also the empty cell) */
+        if (m <= 9007199254740992ULL) { /* k <= 18 here */
+            *out = (double)m / P10[k];
+            return 1;
+        }
+        m = 0;
+        point = -1; /* beyond 2**53: the general reading below */
+    }
     for (int64_t i = 0; i < n; i++) {
         uint8_t c = s[i];
         if (is_digit(c)) {
@@ -598,6 +615,13 @@ static inline int blank(uint8_t c) { return c == ' ' || c == '\t'; }
  * 0: left to the Python pattern; -2: out of memory. */
 static int read_cell(const uint8_t *s, int64_t n, uint8_t mark, double *out, uint8_t *m) {
     int64_t a = 0, b = n;
+    if (n && (is_digit(s[0]) || s[0] == mark)) { /* the usual cell, a plain number: one pass */
+        int got = plain_decimal(s, n, mark, out);
+        if (got) {
+            *m = got > 0 && mark != '.' ? NOT_PLAIN : 0;
+            return got;
+        }
+    }
     while (a < b && blank(s[a])) a++;
     while (b > a && blank(s[b - 1])) b--;
     if (a == b) { /* blank: not measured */

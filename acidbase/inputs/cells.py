@@ -90,6 +90,12 @@ class ParsedColumn:
         """The text of cell ``i`` as given (None when empty)."""
         return _item(self.text, i)
 
+    def cells(self, rows: np.ndarray) -> list[str | None]:
+        """The texts of the cells ``rows`` (int indices), as ``cell`` gives each."""
+        if isinstance(self.text, np.ndarray):
+            return [_item(self.text, i) for i in rows.tolist()]
+        return self.text.take(pa.array(rows, pa.int64())).to_pylist()
+
     def marks(self, which: str) -> list[tuple[int, str]]:
         """(row, mark) for each row with a comparator (``which="comparator"``, the mark
         being the cell's text) or a laboratory flag (``"flag"``)."""
@@ -531,6 +537,24 @@ def read_numbers(column: Any, decimal: str = ".", missing: Sequence[str] = (),
     if arr.dtype.kind == "U":
         return parse_numeric(pa.array(arr.tolist(), pa.string()), decimal, missing)
     return _object_numbers(list(arr), decimal, missing)  # bytes, dates, complex: refused
+
+
+def read_numbers_many(columns: Sequence[Any], decimal: str = ".", missing: Sequence[str] = (),
+                      n: int | None = None) -> list[ParsedColumn]:
+    """``read_numbers`` of each of ``columns``, in order: the Arrow ones read together
+    (``parse_numeric_many``: their leftover cells share one pass of the pattern), each
+    cell still read alone."""
+    out: list[ParsedColumn | None] = [None] * len(columns)
+    arrow = [i for i, c in enumerate(columns) if is_arrow(c)]
+    if arrow:
+        _bind_arrow()
+        for i, p in zip(arrow, parse_numeric_many([columns[i] for i in arrow], decimal,
+                                                  missing)):
+            out[i] = p
+    for i, c in enumerate(columns):
+        if out[i] is None:
+            out[i] = read_numbers(c, decimal, missing, n=n)
+    return out  # type: ignore[return-value]
 
 
 def _one(cell: object) -> np.ndarray:
