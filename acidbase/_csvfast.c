@@ -651,9 +651,9 @@ static int read_cell(const uint8_t *s, int64_t n, uint8_t mark, double *out, uin
     double v;
     int got = plain_decimal(s + a, e - a, mark, &v);
     if (got <= 0) return got;
-    int plain = mark == '.' && a == 0 && e == n && !cmp;
+    /* not plain: a plain cell was read above (this one has a blank, a mark or a comma) */
     *out = cmp ? quiet_nan() : v;
-    *m = (uint8_t)((plain ? 0 : NOT_PLAIN) | cmp | flag << 3);
+    *m = (uint8_t)(NOT_PLAIN | cmp | flag << 3);
     return 1;
 }
 
