@@ -517,3 +517,22 @@ def test_packing_refuses_buffers_that_do_not_hold_their_cells():
         _csvfast.pack_rules(b"\1" * 65, 65, 1, np.empty(1, np.uint64))
     with pytest.raises(ValueError):
         _csvfast.group_words(np.zeros(3, np.uint64), 3, np.empty(2, np.int32))
+
+
+@compiled
+def test_leftover_cells_are_read_once_per_text_and_decimal_mark(monkeypatch):
+    """The cells the scan leaves ("haem", "-7,4", "+1e2 L") go through the pattern once per
+    distinct text and decimal mark; later chunks read them from the table, the same
+    as the pure-Python route reads them, and a decimal comma's reading is its own."""
+    monkeypatch.setattr(cells, "_LEFTOVERS", {})
+    calls = []
+    parse = cells._parse_cells
+    monkeypatch.setattr(cells, "_parse_cells", lambda c, d: calls.append(len(c)) or parse(c, d))
+    texts = ["haem", "-7,4", "-7.4", "+1e2 L", "<-5", "7.4", None, "haem", "-7,4"]
+    arr = pa.array(texts * 3, pa.string())
+    for decimal in (".", ",", ".", ","):
+        got, want = _both(monkeypatch, lambda: cells.parse_numeric_many([arr], decimal)[0])
+        _same_parsed(got, want)
+    # the pure route reads whole leftovers (15 cells and more) each time; the compiled one
+    # reads the distinct texts once per mark: 5 with a point, 6 with a comma ("7.4" too)
+    assert sorted(c for c in calls if c < 10) == [5, 6]

@@ -263,25 +263,29 @@ def parse_numeric_many(columns: Sequence[pa.Array | pa.ChunkedArray],
             out[i] = ParsedColumn(vals, None, None, np.zeros(n, dtype=bool), column, plain=True)
         else:
             pending.append((i, column, vals, rest, None))
+    scanned = [e for e in pending if e[4] is not None]
+    if scanned:  # the compiled scan's leftovers: their values, refusals and marks
+        got = _read_leftovers(pa.concat_arrays([c.take(pa.array(r)) for _, c, _, r, _ in scanned]),
+                              decimal)
+        pos = 0
+        for i, column, vals, rest, marks in scanned:
+            k = rest.size
+            vals[rest] = got[0][pos:pos + k]
+            bad = np.zeros(len(column), dtype=bool)
+            bad[rest] = got[1][pos:pos + k]
+            marks[rest] |= got[2][pos:pos + k]
+            out[i] = _marked(column, vals, marks, bad, plain=False)
+            pos += k
+    pending = [e for e in pending if e[4] is None]
     if pending:
         sub = _parse_cells(pa.concat_arrays([c.take(pa.array(r)) for _, c, _, r, _ in pending]),
                            decimal)
         pos = 0
-        for i, column, vals, rest, marks in pending:
+        for i, column, vals, rest, _ in pending:
             n, k = len(column), rest.size
             vals[rest] = sub.values[pos:pos + k]
             bad = np.zeros(n, dtype=bool)
             bad[rest] = sub.bad[pos:pos + k]
-            if marks is not None:  # the compiled scan's column: its marks, and the pattern's
-                for part, words, shift in ((sub.comparator, COMPARATOR_CODES, 0),
-                                           (sub.flag, _FLAG_CODES, 3)):
-                    got = None if part is None else part.slice(pos, k)
-                    if got is not None and got.null_count < k:
-                        codes = np.array([words.index(w) for w in got.to_pylist()], np.uint8)
-                        marks[rest] |= codes << shift
-                out[i] = _marked(column, vals, marks, bad, plain=False)
-                pos += k
-                continue
             where = np.full(n, -1, dtype=np.int64)
             where[rest] = np.arange(pos, pos + k)
             index = pa.array(where, mask=where < 0)
@@ -296,6 +300,46 @@ def parse_numeric_many(columns: Sequence[pa.Array | pa.ChunkedArray],
 
 #: The laboratory flags by their code in the compiled scan's marks (bits 3-6; 0: none).
 _FLAG_CODES: tuple[str | None, ...] = (None, *LAB_FLAGS)
+
+
+#: The pattern's reading of cells the compiled scan leaves, by (decimal mark, text):
+#: (value, refused, marks).  A reading depends on the cell's text alone, and a file's
+#: leftovers repeat a few texts ("haem", "-7.4"), so each is read once; bounded as
+#: ``_CHOICE_CACHE`` is.  Up to ``_LOOKED_UP`` leftovers in a chunk are looked up one
+#: by one; more go through the pattern together.
+_LEFTOVERS: dict[tuple[str, str], tuple[float, bool, int]] = {}
+_LOOKED_UP = 2048
+
+
+def _read_leftovers(cells: pa.Array, decimal: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(values, refused, marks) of the cells the compiled scan left, as the pattern
+    (``_parse_cells``) reads them; marks as the scan's (comparator and flag codes)."""
+    if len(cells) <= _LOOKED_UP:
+        texts = cells.to_pylist()
+        table = _LEFTOVERS
+        unknown = list(dict.fromkeys(t for t in texts if (decimal, t) not in table))
+        if unknown:
+            if len(table) > 10_000:  # bounded: a column of free text cannot grow it for ever
+                table.clear()
+            read = _pattern_marks(pa.array(unknown, pa.string()), decimal)
+            for t, v, b, m in zip(unknown, *(x.tolist() for x in read)):
+                table[(decimal, t)] = (v, b, m)
+        rows = [table.get((decimal, t)) for t in texts]
+        if None not in rows:  # (the other thread may have cleared the table meanwhile)
+            return (np.array([r[0] for r in rows], dtype=np.float64),
+                    np.array([r[1] for r in rows], dtype=bool),
+                    np.array([r[2] for r in rows], dtype=np.uint8))
+    return _pattern_marks(cells, decimal)
+
+
+def _pattern_marks(cells: pa.Array, decimal: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """``_parse_cells`` of ``cells``, its comparators and flags as the scan's mark codes."""
+    sub = _parse_cells(cells, decimal)
+    marks = np.zeros(len(cells), dtype=np.uint8)
+    for part, words, shift in ((sub.comparator, COMPARATOR_CODES, 0), (sub.flag, _FLAG_CODES, 3)):
+        if part is not None and part.null_count < len(part):
+            marks |= np.array([words.index(w) for w in part.to_pylist()], np.uint8) << shift
+    return sub.values, sub.bad, marks
 
 
 def _marked(column: pa.Array, vals: np.ndarray, marks: np.ndarray | None, bad: np.ndarray,
