@@ -3,7 +3,9 @@
  *
  *   encode        the CSV text of an output table, in one pass over its rows;
  *   scan_numbers  which cells of a text column are plain decimal numbers, and their
- *                 values (the cell reader's fast route, acidbase/inputs/cells.py);
+ *                 values (the cell reader's fast route, acidbase/inputs/cells.py),
+ *                 with blanks, comparators and flags read as its pattern reads them;
+ *   distinct_texts  a choice column's cells as indices into its few distinct texts;
  *   pack_rules    the kernel's fired-rule matrix as one 64-bit word per row and 64
  *   group_words   rules, and its distinct patterns (acidbase/results.py, _combine).
  *
@@ -755,6 +757,116 @@ done:
 }
 
 /* ---------------------------------------------------------------------------
+ * distinct_texts: a choice column's cells as indices into its distinct texts (in the
+ * order of their first cell), for the cell reader's choice route (acidbase/inputs/
+ * cells.py, _choices_of_text, whose Arrow dictionary encoding is the reference).  A
+ * choice column holds a few spellings: each cell is compared with the last one's
+ * text, then with the few seen; beyond `limit` distinct texts the scan gives up (None)
+ * and Arrow's hash encoding reads the column.  It reads bytes only: what a text means
+ * is decided in Python, once per distinct text.
+ */
+PyDoc_STRVAR(distinct_doc,
+             "distinct_texts(length, offset, validity, offsets, data, large, indices, limit) "
+             "-> list[bytes] | None\n\n"
+             "Writes each cell's index into the returned distinct texts to `indices` "
+             "(int32, -1 for a null cell); None when there are more than `limit`.");
+
+static PyObject *distinct_texts(PyObject *self, PyObject *args) {
+    long long length, offset;
+    int large, limit;
+    PyObject *bv, *bo, *bd, *bidx;
+    if (!PyArg_ParseTuple(args, "LLOOOpOi", &length, &offset, &bv, &bo, &bd, &large, &bidx,
+                          &limit))
+        return NULL;
+    if (length < 0 || offset < 0 || limit < 1 || limit > 4096) {
+        PyErr_SetString(PyExc_ValueError, "negative length or offset, or a limit beyond 4096");
+        return NULL;
+    }
+    Views v = {NULL, 0, 0};
+    PyObject *result = NULL;
+    const uint8_t *valid = NULL, *offs = NULL, *data = NULL;
+    uint8_t *out = NULL;
+    Py_ssize_t ndata = 0;
+    int64_t *starts = NULL, *ends = NULL;
+    int nd = 0, rc = 0;
+    if (bv != Py_None && view(&v, bv, (offset + length + 7) / 8, &valid, NULL) < 0) goto done;
+    if (length > 0 && view(&v, bo, (large ? 8 : 4) * (offset + length + 1), &offs, NULL) < 0)
+        goto done;
+    if (length > 0 && view(&v, bd, 0, &data, &ndata) < 0) goto done;
+    if (wview(&v, bidx, 4 * length, &out) < 0) goto done;
+    starts = malloc(sizeof(int64_t) * (size_t)limit);
+    ends = malloc(sizeof(int64_t) * (size_t)limit);
+    if (!starts || !ends) {
+        PyErr_NoMemory();
+        goto done;
+    }
+    Py_BEGIN_ALLOW_THREADS
+    int32_t *idx = (int32_t *)out;
+    int last = -1;
+    for (int64_t i = 0; i < length; i++) {
+        int64_t j = offset + i;
+        if (valid && !bit(valid, j)) {
+            idx[i] = -1;
+            continue;
+        }
+        int64_t a, b;
+        if (large) {
+            a = ((const int64_t *)offs)[j];
+            b = ((const int64_t *)offs)[j + 1];
+        } else {
+            a = ((const int32_t *)offs)[j];
+            b = ((const int32_t *)offs)[j + 1];
+        }
+        if (a < 0 || b < a || b > (int64_t)ndata) {
+            rc = -1;
+            break;
+        }
+        int k = -1;
+        if (last >= 0 && ends[last] - starts[last] == b - a &&
+            memcmp(data + starts[last], data + a, (size_t)(b - a)) == 0)
+            k = last;
+        for (int t = 0; k < 0 && t < nd; t++)
+            if (ends[t] - starts[t] == b - a && memcmp(data + starts[t], data + a, (size_t)(b - a)) == 0)
+                k = t;
+        if (k < 0) {
+            if (nd == limit) {
+                rc = 1;
+                break;
+            }
+            starts[nd] = a;
+            ends[nd] = b;
+            k = nd++;
+        }
+        idx[i] = k;
+        last = k;
+    }
+    Py_END_ALLOW_THREADS
+    if (rc == -1) {
+        PyErr_SetString(PyExc_ValueError, "a text column's offsets are out of bounds");
+        goto done;
+    }
+    if (rc == 1) {
+        result = Py_NewRef(Py_None);
+        goto done;
+    }
+    result = PyList_New(nd);
+    for (int t = 0; result && t < nd; t++) {
+        PyObject *b = PyBytes_FromStringAndSize((const char *)data + starts[t],
+                                                (Py_ssize_t)(ends[t] - starts[t]));
+        if (!b) {
+            Py_CLEAR(result);
+            break;
+        }
+        PyList_SetItem(result, t, b);
+    }
+done:
+    free(starts);
+    free(ends);
+    release(&v);
+    return result;
+}
+
+/* ---------------------------------------------------------------------------
  * pack_rules and group_words: acidbase/results.py, _combine (whose numpy code is the
  * reference).  The kernel's fired matrix (rules x rows, one byte a cell) becomes
  * words[row * k + r / 64] bit r % 64 = rule r, k = ceil(rules / 64); then, for one
@@ -967,6 +1079,7 @@ static PyMethodDef methods[] = {
     {"encode", encode, METH_VARARGS, encode_doc},
     {"cells", cells, METH_VARARGS, cells_doc},
     {"scan_numbers", scan_numbers, METH_VARARGS, scan_doc},
+    {"distinct_texts", distinct_texts, METH_VARARGS, distinct_doc},
     {"pack_rules", pack_rules, METH_VARARGS, pack_doc},
     {"group_words", group_words, METH_VARARGS, group_doc},
     {NULL, NULL, 0, NULL},

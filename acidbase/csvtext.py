@@ -22,6 +22,9 @@ and the caller then uses the reference:
   numbers (blank cells, spaces and tabs, a decimal comma, comparators, laboratory
   flags), as the reader's pattern reads them (``inputs.cells.parse_numeric_many``,
   whose pure-Python route is the reference); refusals stay with the pattern.
+* ``distinct_texts``: a choice column's few distinct texts and each cell's index into
+  them, for the choice reader (``inputs.cells._choices_of_text``, whose Arrow
+  dictionary encoding is the reference); what a text means is decided in Python.
 * ``packed_rules`` and ``grouped_words``: the fired-rule matrix as one 64-bit word per
   row and 64 rules, and its distinct patterns (``results._combine``, whose numpy code is
   the reference).
@@ -213,6 +216,30 @@ def scanned_numbers(column: pa.Array, decimal: str = "."
     return values, rest, marks, count, not_plain, marked
 
 
+def distinct_texts(column: pa.Array, limit: int = 64) -> tuple[np.ndarray, list[str]] | None:
+    """(indices, texts) of a ``string`` or ``large_string`` column: its distinct texts in
+    the order of their first cell, and each cell's index into them (int32; -1 for a null
+    cell), as Arrow's dictionary encoding gives them.  None when the column has more
+    than ``limit`` distinct texts, or the extension is not built or switched off."""
+    if not compiled_available():
+        return None
+    t = column.type
+    if not (pa.types.is_string(t) or pa.types.is_large_string(t)):
+        return None
+    n = len(column)
+    indices = np.empty(n, dtype=np.int32)
+    if n == 0:
+        return indices, []
+    bufs = column.buffers()
+    try:
+        got = _csvfast.distinct_texts(n, column.offset, bufs[0] if column.null_count else None,
+                                      bufs[1], bufs[2], pa.types.is_large_string(t), indices,
+                                      limit)
+        return None if got is None else (indices, [b.decode("utf-8") for b in got])
+    except (ValueError, UnicodeDecodeError):  # the reference reads it
+        return None
+
+
 def packed_rules(mask: np.ndarray) -> np.ndarray | None:
     """The (rules x rows) bool matrix ``mask`` as (rows, ceil(rules / 64)) uint64 words,
     bit r % 64 of word r // 64 set where rule r fired; None when the extension is not
@@ -239,4 +266,4 @@ def grouped_words(words: np.ndarray) -> tuple[np.ndarray, list[int], list[int]] 
 
 
 __all__ = ["compiled_available", "compiled_csv", "grouped_words", "packed_rules",
-           "plain_numbers", "scanned_numbers"]
+           "distinct_texts", "plain_numbers", "scanned_numbers"]

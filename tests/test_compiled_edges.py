@@ -536,3 +536,52 @@ def test_leftover_cells_are_read_once_per_text_and_decimal_mark(monkeypatch):
     # the pure route reads whole leftovers (15 cells and more) each time; the compiled one
     # reads the distinct texts once per mark: 5 with a point, 6 with a comma ("7.4" too)
     assert sorted(c for c in calls if c < 10) == [5, 6]
+
+
+# ---------------------------------------------------------------------------
+# Choice columns
+
+_SPELLINGS = ["arterial", "Arterial", " venous ", "VENOUS", "capillary", "mixed venous", "",
+              " ", "unknown", "art", "=1+1", "-", "NA", "arterial\u00a0", "ärtérial", "\u2003"]
+
+
+@compiled
+@settings(max_examples=300, deadline=None,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.function_scoped_fixture])
+@given(st.lists(st.one_of(st.sampled_from(_SPELLINGS), st.text(max_size=6), st.none()),
+                max_size=60), st.integers(0, 3), st.booleans(), st.integers(1, 8))
+def test_distinct_texts_encode_as_arrow_does(texts, pad, large, limit):
+    """The same distinct texts in the same order, and the same index per cell (-1 for
+    null), as Arrow's dictionary encoding; None beyond the limit; sliced and large text."""
+    arr = pa.array(["pad"] * pad + texts, pa.large_string() if large else pa.string())
+    arr = arr.slice(pad)
+    got = csvtext.distinct_texts(arr, limit)
+    encoded = pc.dictionary_encode(arr)
+    want_texts = encoded.dictionary.to_pylist()
+    if len(want_texts) > limit:
+        assert got is None
+        return
+    indices, distinct = got
+    assert distinct == want_texts
+    assert indices.tolist() == pc.fill_null(encoded.indices, -1).to_pylist()
+
+
+@compiled
+@settings(max_examples=200, deadline=None,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.function_scoped_fixture])
+@given(st.lists(st.one_of(st.sampled_from(_SPELLINGS), st.text(max_size=4), st.none()),
+                max_size=40), st.booleans(), st.sampled_from(["sample_type", "hco3_source"]))
+def test_choice_columns_read_the_same_with_and_without_the_extension(monkeypatch, texts,
+                                                                     use_missing, name):
+    """Codes, refusals, texts and the plain mark of a choice column from both routes."""
+    from acidbase.inputs.vocab import CHOICE_BY_NAME
+
+    missing = MISSING if use_missing else []
+    arr = pa.array(texts, pa.string())
+    got, want = _both(monkeypatch, lambda: cells.read_choices(arr, CHOICE_BY_NAME[name],
+                                                              missing))
+    assert got.codes.dtype == want.codes.dtype
+    assert got.codes.tolist() == want.codes.tolist()
+    assert got.bad.tolist() == want.bad.tolist()
+    assert got.plain == want.plain
+    assert got.text.equals(want.text)

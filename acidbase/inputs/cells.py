@@ -38,7 +38,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from .._arrow import is_arrow
-from ..csvtext import COMPARATOR_CODES, scanned_numbers
+from ..csvtext import COMPARATOR_CODES, distinct_texts, scanned_numbers
 from .vocab import Choice, normalise_word
 
 if TYPE_CHECKING:
@@ -739,11 +739,17 @@ def read_choices(column: Any, choice: Choice, missing: Sequence[str] = (),
 
 def _choices_of_text(text: pa.Array, words: tuple[str, ...], default: int,
                      missing: Sequence[str]) -> ChoiceColumn:
-    encoded = pc.dictionary_encode(text)
+    seen = distinct_texts(text)  # the compiled edge: the same encoding (None: not built)
+    if seen is not None:
+        idx, distinct = seen  # -1 for a null cell: the last entry of the lookups below
+    else:
+        encoded = pc.dictionary_encode(text)
+        distinct = encoded.dictionary.to_pylist()
+        idx = np.asarray(pc.fill_null(encoded.indices, len(distinct))
+                         .to_numpy(zero_copy_only=False))
     table = _CHOICE_CACHE.setdefault(words, {})
     if len(table) > 10_000:  # bounded: a column of free text cannot grow it for ever
         table.clear()
-    distinct = encoded.dictionary.to_pylist()
     pairs = []
     for v in distinct:
         key = v if not missing else None
@@ -755,7 +761,6 @@ def _choices_of_text(text: pa.Array, words: tuple[str, ...], default: int,
         pairs.append(got)
     lookup = np.array([c for c, _ in pairs] + [default], dtype=np.int8)
     refused = np.array([b for _, b in pairs] + [False], dtype=bool)
-    idx = np.asarray(pc.fill_null(encoded.indices, len(pairs)).to_numpy(zero_copy_only=False))
     plain = not any(v.startswith(_FORMULA_START) for v in distinct if v)
     return ChoiceColumn(lookup[idx], refused[idx], text, plain)
 
