@@ -1,6 +1,6 @@
 """The compiled edges (acidbase._csvfast), when the extension is built.
 
-Three edges, each with its Python reference kept beside its caller; each function here
+The edges, each with its Python reference kept beside its caller; each function here
 answers None when the extension is not built (no C compiler at install) or is switched
 off (environment variable ``ACIDBASE_PURE_PYTHON=1``, for comparisons and benchmarks),
 and the caller then uses the reference:
