@@ -585,3 +585,26 @@ def test_choice_columns_read_the_same_with_and_without_the_extension(monkeypatch
     assert got.bad.tolist() == want.bad.tolist()
     assert got.plain == want.plain
     assert got.text.equals(want.text)
+
+
+_TOKEN_CELLS = ["7.4", "\u00a0NA\u2003", " NA", "NA ", "NA", "na", "9999", " 9999 ", "<0.1",
+                "7.4 L", "", " ", "\t", "haem", None, "-7.4", "1e2", "7,4", "n/a", "\u00a0", "-"]
+
+
+@compiled
+@pytest.mark.parametrize("missing", [["NA"], ["NA", "-", "n/a", "."], ["9999", "NA"], [""],
+                                     [" "], ["<0.1"], ["n/a", "\u00a0"], ["7,4"], ["haem"]])
+@pytest.mark.parametrize("decimal", [".", ","])
+@pytest.mark.parametrize("cells_of", ["all", "plain_and_tokens", "tokens"])
+def test_missing_tokens_read_the_same_with_and_without_the_extension(monkeypatch, missing,
+                                                                      decimal, cells_of):
+    """Declared missing tokens, with Unicode spaces around them, tokens the scan would read
+    (digits, blanks, a censored value) and tokens it would not: the same ParsedColumn
+    (values, marks, refusals, plain, and the text with the tokens made null) both ways."""
+    texts = {"all": _TOKEN_CELLS, "plain_and_tokens": ["7.4", "35", " NA", "NA", None, "7"],
+             "tokens": ["NA", " NA ", "\u00a0NA"]}[cells_of]
+    arr = pa.array(texts * 2, pa.string())
+    got, want = _both(monkeypatch, lambda: cells.parse_numeric_many([arr, arr.slice(3)],
+                                                                    decimal, missing))
+    for g, w in zip(got, want):
+        _same_parsed(g, w)

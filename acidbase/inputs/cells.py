@@ -28,6 +28,7 @@ message whatever way it came in.  The policy, as docs/input.md states it:
 
 from __future__ import annotations
 
+import functools
 import math
 import re
 from collections.abc import Sequence
@@ -38,7 +39,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from .._arrow import is_arrow
-from ..csvtext import COMPARATOR_CODES, distinct_texts, scanned_numbers
+from ..csvtext import COMPARATOR_CODES, compiled_available, distinct_texts, scanned_numbers
 from .vocab import Choice, normalise_word
 
 if TYPE_CHECKING:
@@ -167,11 +168,26 @@ def _text_column(column: pa.Array | pa.ChunkedArray, missing: Sequence[str] = ()
     if pa.types.is_large_string(t) or pa.types.is_string_view(t):
         column = column.cast(pa.string())
     if missing and pa.types.is_string(column.type):
-        hit = pc.is_in(pc.utf8_trim_whitespace(column), value_set=pa.array(list(missing),
-                                                                           pa.string()))
+        hit = _missing_hits(column, missing)
         if pc.any(hit).as_py():
             column = pc.if_else(hit, pa.scalar(None, pa.string()), column)
     return column
+
+
+def _missing_hits(column: pa.Array, missing: Sequence[str]) -> pa.Array:
+    """Where a text cell, its surrounding spaces trimmed, is a declared missing token."""
+    return pc.is_in(pc.utf8_trim_whitespace(column), value_set=pa.array(list(missing),
+                                                                        pa.string()))
+
+
+@functools.lru_cache(maxsize=64)
+def _scan_reads_a_token(missing: tuple[str, ...], decimal: str) -> bool:
+    """True when the compiled scan would read one of the missing tokens as a cell (a
+    number, a blank...), or cannot say: the tokens are then made null before the scan.
+    Otherwise no cell the scan reads is a token (a cell that trims to a token would be
+    one the scan reads trimmed too), so only the cells it leaves are compared with them."""
+    got = scanned_numbers(pa.array(list(missing), pa.string()), decimal)
+    return got is None or not got[1].all()
 
 
 def _nested(t: pa.DataType) -> bool:
@@ -229,15 +245,21 @@ def parse_numeric_many(columns: Sequence[pa.Array | pa.ChunkedArray],
     _bind_arrow()
     out: list[ParsedColumn | None] = [None] * len(columns)
     pending: list[tuple[int, pa.Array, np.ndarray, np.ndarray, np.ndarray | None]] = []
+    # With the compiled scan, missing tokens it cannot read are looked for only among the
+    # cells it leaves (trimming and comparing every cell costs more than the scan).
+    late = tuple(missing) if (missing and compiled_available() and decimal in (".", ",")
+                              and not _scan_reads_a_token(tuple(missing), decimal)) else ()
     for i, column in enumerate(columns):
-        column = _text_column(column, missing)
+        column = _text_column(column, () if late else missing)
         if not pa.types.is_string(column.type):
             out[i] = parse_numeric(column, decimal)
             continue
         scanned = scanned_numbers(column, decimal)
         if scanned is not None:  # the compiled scan: the same reading (see _scanned)
-            out[i] = _scanned(column, decimal, *scanned, pending, i)
+            out[i] = _scanned(column, decimal, *scanned, pending, i, late)
             continue
+        if late:  # the scan declined the column: the tokens as the reference makes them
+            column = _text_column(column, late)
         if decimal != ".":
             out[i] = _parse_cells(column, decimal)
             continue
@@ -358,7 +380,7 @@ def _marked(column: pa.Array, vals: np.ndarray, marks: np.ndarray | None, bad: n
 def _scanned(column: pa.Array, decimal: str, vals: np.ndarray, rest_mask: np.ndarray,
              marks: np.ndarray, count: int, not_plain: int, marked: int,
              pending: list[tuple[int, pa.Array, np.ndarray, np.ndarray, np.ndarray | None]],
-             i: int) -> ParsedColumn | None:
+             i: int, missing: tuple[str, ...] = ()) -> ParsedColumn | None:
     """``parse_numeric_many``'s reading of one column from the compiled scan
     (``csvtext.scanned_numbers``): the values and marks of the cells it read, and the
     valid cells it left (``rest_mask``, ``count`` of them).
@@ -369,9 +391,21 @@ def _scanned(column: pa.Array, decimal: str, vals: np.ndarray, rest_mask: np.nda
     on no other cell).  A column is plain (read whole by the Python route's first
     cast) when every cell read is plain, with a decimal point, and the cells left cast
     too; otherwise the cells left go through the full pattern, as the quick route's
-    leftovers do.  Returns None when the column joins ``pending``."""
+    leftovers do.  Returns None when the column joins ``pending``.
+
+    ``missing``: tokens the scan reads in no cell (``_scan_reads_a_token``), not yet made
+    null: the cells left that are one are made null here, as ``_text_column`` does."""
     n = len(column)
     bad = np.zeros(n, dtype=bool)
+    if count and missing:
+        left = np.flatnonzero(rest_mask)
+        hit = _mask(_missing_hits(column.take(pa.array(left)), missing))
+        if hit.any():
+            gone = np.zeros(n, dtype=bool)
+            gone[left[hit]] = True
+            column = pc.if_else(pa.array(gone), pa.scalar(None, pa.string()), column)
+            rest_mask = rest_mask & ~gone
+            count -= int(hit.sum())
     if count == 0:
         return _marked(column, vals, marks if marked else None, bad,
                        plain=decimal == "." and not not_plain)
