@@ -560,7 +560,7 @@ static int plain_decimal(const uint8_t *s, int64_t n, uint8_t mark, double *out)
         int64_t k = point < 0 ? 0 : n - 1 - point;
         if (n - (point >= 0) == 0) return 0; /* no digit (also the empty cell) */
         if (m <= 9007199254740992ULL) { /* k <= 18 here */
-            *out = (double)m / P10[k];
+            *out = (double)(int64_t)m / P10[k]; /* m <= 2**53: a signed conversion, exact */
             return 1;
         }
         m = 0;
