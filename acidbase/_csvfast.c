@@ -3,7 +3,9 @@
  *
  *   encode        the CSV text of an output table, in one pass over its rows;
  *   scan_numbers  which cells of a text column are plain decimal numbers, and their
- *                 values (the cell reader's fast route, acidbase/inputs/cells.py);
+ *                 values (the cell reader's fast route, acidbase/inputs/cells.py),
+ *                 with blanks, comparators and flags read as its pattern reads them;
+ *   distinct_texts  a choice column's cells as indices into its few distinct texts;
  *   pack_rules    the kernel's fired-rule matrix as one 64-bit word per row and 64
  *   group_words   rules, and its distinct patterns (acidbase/results.py, _combine).
  *
@@ -499,10 +501,24 @@ static int wview(Views *v, PyObject *obj, int64_t size, uint8_t **ptr) {
  * most one point and at least one digit, and reads as a finite number: exactly the
  * cells that pass the Python route's quick test (digits and points only, not empty)
  * and that Arrow's cast then reads as finite ("." and "1.2.3" pass the quick test but
- * not the cast; hundreds of digits read as infinity).  A sign, an exponent, a space, a
- * word, another script's digits: not plain.  This code decides nothing else; every
- * cell that is not plain goes through the Python pattern (comparators, flags, missing
- * tokens and refusals are decided there).
+ * not the cast; hundreds of digits read as infinity).
+ *
+ * With an output for marks, the scan also reads the ordinary cells that are not plain,
+ * exactly as the reader's pattern (cells._VALUE after the trim) reads them:
+ *   - a blank cell (empty, or spaces and tabs only): not measured;
+ *   - a number of that shape (the decimal mark being the file's, '.' or ','), with
+ *     spaces or tabs around it, a comparator before it (< <= > >=, FHIR
+ *     Quantity.comparator) and a laboratory flag after it (cells.LAB_FLAGS, HL7 v2
+ *     table 0078, and '*'): the value, NaN when censored, the comparator and flag as
+ *     codes (marks: bits 0-2 the comparator, 1 "<" 2 "<=" 3 ">" 4 ">="; bits 3-6 the
+ *     flag, 1 + its index in FLAG_TOKENS; bit 7 "not plain": the column is then not
+ *     read whole by the first cast).
+ * Spaces and tabs are the only blanks taken: both are trimmed by the Python route's
+ * utf8_trim_whitespace and matched by its pattern's \s.  With a decimal comma no
+ * cell is plain (the Python route never marks such a column plain), and a point is
+ * never read (the Python route refuses it).  Anything else (a sign, an exponent,
+ * another blank, a word, another script's digits, a number beyond the double range)
+ * goes to the Python pattern: this code decides no refusal.
  *
  * The value must be the correctly rounded double of the decimal, bit for bit what
  * Arrow's cast gives:
@@ -530,15 +546,32 @@ static const double P10[23] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
                                1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22};
 
 /* 1: plain, its value in *out; 0: not plain; -2: out of memory. */
-static int plain_decimal(const uint8_t *s, int64_t n, double *out) {
+static int plain_decimal(const uint8_t *s, int64_t n, uint8_t mark, double *out) {
     int64_t point = -1, digits = 0, sig = 0;
     uint64_t m = 0;
+    if (EXACT_DIVISION && n <= 19) { /* the usual cell: every digit fits one integer */
+        for (int64_t i = 0; i < n; i++) {
+            unsigned d = (unsigned)s[i] - '0';
+            if (d < 10) m = m * 10 + d;
+            else if (s[i] == mark && point < 0) point = i;
+            else return 0;
+        }
+        /* at most 19 digits: m < 10**19 < 2**64, exact; leading zeros add nothing */
+        int64_t k = point < 0 ? 0 : n - 1 - point;
+        if (n - (point >= 0) == 0) return 0; /* no digit (also the empty cell) */
+        if (m <= 9007199254740992ULL) { /* k <= 18 here */
+            *out = (double)(int64_t)m / P10[k]; /* m <= 2**53: a signed conversion, exact */
+            return 1;
+        }
+        m = 0;
+        point = -1; /* beyond 2**53: the general reading below */
+    }
     for (int64_t i = 0; i < n; i++) {
         uint8_t c = s[i];
         if (is_digit(c)) {
             digits++;
             if ((sig || c != '0') && ++sig <= 19) m = m * 10 + (uint64_t)(c - '0');
-        } else if (c == '.' && point < 0) {
+        } else if (c == mark && point < 0) {
             point = i;
         } else {
             return 0;
@@ -556,7 +589,7 @@ static int plain_decimal(const uint8_t *s, int64_t n, double *out) {
         if (!buf) return -2;
         size_t j = 0;
         for (int64_t i = 0; i < n; i++)
-            if (s[i] != '.') buf[j++] = (char)s[i];
+            if (s[i] != mark) buf[j++] = (char)s[i];
         if (k) j += (size_t)snprintf(buf + j, 32, "e-%lld", (long long)k);
         buf[j] = '\0';
         v = strtod(buf, NULL);
@@ -574,27 +607,88 @@ static double quiet_nan(void) { /* numpy's and Arrow's NaN, 0x7ff8000000000000 *
     return d;
 }
 
+/* cells.LAB_FLAGS, in its order: a flag's code is 1 + its index. */
+static const char *const FLAG_TOKENS[8] = {"LL", "HH", "AA", "L", "H", "A", "N", "*"};
+#define NOT_PLAIN 0x80
+
+static inline int blank(uint8_t c) { return c == ' ' || c == '\t'; }
+
+/* One valid cell with marks read (see above).  1: read, value in *out and marks in *m;
+ * 0: left to the Python pattern; -2: out of memory. */
+static int read_cell(const uint8_t *s, int64_t n, uint8_t mark, double *out, uint8_t *m) {
+    int64_t a = 0, b = n;
+    if (n && (is_digit(s[0]) || s[0] == mark)) { /* the usual cell, a plain number: one pass */
+        int got = plain_decimal(s, n, mark, out);
+        if (got) {
+            *m = got > 0 && mark != '.' ? NOT_PLAIN : 0;
+            return got;
+        }
+    }
+    while (a < b && blank(s[a])) a++;
+    while (b > a && blank(s[b - 1])) b--;
+    if (a == b) { /* blank: not measured */
+        *out = quiet_nan();
+        *m = NOT_PLAIN;
+        return 1;
+    }
+    uint8_t cmp = 0, flag = 0;
+    if (s[a] == '<' || s[a] == '>') {
+        int eq = a + 1 < b && s[a + 1] == '=';
+        cmp = (uint8_t)((s[a] == '<' ? 1 : 3) + eq);
+        for (a += 1 + eq; a < b && blank(s[a]); a++) {}
+    }
+    int64_t e = a;
+    while (e < b && (is_digit(s[e]) || s[e] == mark)) e++;
+    if (e == a) return 0;
+    int64_t f = e;
+    while (f < b && blank(s[f])) f++;
+    if (f < b) {
+        for (int k = 0; k < 8 && !flag; k++) {
+            size_t len = strlen(FLAG_TOKENS[k]);
+            if ((size_t)(b - f) == len && memcmp(s + f, FLAG_TOKENS[k], len) == 0)
+                flag = (uint8_t)(k + 1);
+        }
+        if (!flag) return 0;
+    }
+    double v;
+    int got = plain_decimal(s + a, e - a, mark, &v);
+    if (got <= 0) return got;
+    /* not plain: a plain cell was read above (this one has a blank, a mark or a comma) */
+    *out = cmp ? quiet_nan() : v;
+    *m = (uint8_t)(NOT_PLAIN | cmp | flag << 3);
+    return 1;
+}
+
 PyDoc_STRVAR(scan_doc,
-             "scan_numbers(length, offset, validity, offsets, data, large, values, rest) -> int\n\n"
+             "scan_numbers(length, offset, validity, offsets, data, large, values, rest"
+             "[, mark, marks]) -> int or (int, int, int)\n\n"
              "Reads a text column (Arrow's buffers; `large`: 64-bit offsets) into `values` "
-             "(float64, NaN where not plain) and `rest` (uint8, 1 for a valid cell that is "
-             "not a plain decimal number); returns how many such cells there are.");
+             "(float64, NaN where not read) and `rest` (uint8, 1 for a valid cell left to "
+             "the Python pattern).  Without `marks`: only plain decimal numbers are read, "
+             "and the count of the rest is returned.  With `marks` (uint8, written whole) "
+             "and `mark` (the decimal mark's byte): blank cells, spaces, comparators and "
+             "flags are read too, and (rest, not plain, with a comparator or flag) counts "
+             "are returned.");
 
 static PyObject *scan_numbers(PyObject *self, PyObject *args) {
     long long length, offset;
-    int large;
-    PyObject *bv, *bo, *bd, *bvals, *brest;
-    if (!PyArg_ParseTuple(args, "LLOOOpOO", &length, &offset, &bv, &bo, &bd, &large, &bvals,
-                          &brest))
+    int large, mark = '.';
+    PyObject *bv, *bo, *bd, *bvals, *brest, *bmarks = Py_None;
+    if (!PyArg_ParseTuple(args, "LLOOOpOO|iO", &length, &offset, &bv, &bo, &bd, &large, &bvals,
+                          &brest, &mark, &bmarks))
         return NULL;
     if (length < 0 || offset < 0) {
         PyErr_SetString(PyExc_ValueError, "negative length or offset");
         return NULL;
     }
+    if (mark != '.' && mark != ',') {
+        PyErr_SetString(PyExc_ValueError, "the decimal mark is '.' or ','");
+        return NULL;
+    }
     Views v = {NULL, 0, 0};
     PyObject *result = NULL;
     const uint8_t *valid = NULL, *offs = NULL, *data = NULL;
-    uint8_t *vals = NULL, *rest = NULL;
+    uint8_t *vals = NULL, *rest = NULL, *marks = NULL;
     Py_ssize_t ndata = 0;
     if (bv != Py_None && view(&v, bv, (offset + length + 7) / 8, &valid, NULL) < 0) goto done;
     if (length > 0 && view(&v, bo, (large ? 8 : 4) * (offset + length + 1), &offs, NULL) < 0)
@@ -602,14 +696,15 @@ static PyObject *scan_numbers(PyObject *self, PyObject *args) {
     if (length > 0 && view(&v, bd, 0, &data, &ndata) < 0) goto done;
     if (wview(&v, bvals, 8 * length, &vals) < 0 || wview(&v, brest, length, &rest) < 0)
         goto done;
+    if (bmarks != Py_None && wview(&v, bmarks, length, &marks) < 0) goto done;
     int rc = 0;
-    int64_t count = 0;
+    int64_t count = 0, not_plain = 0, marked = 0;
     Py_BEGIN_ALLOW_THREADS
     const double none = quiet_nan();
     for (int64_t i = 0; i < length; i++) {
         int64_t j = offset + i;
         double x = none;
-        uint8_t r = 0;
+        uint8_t r = 0, m = 0;
         if (!valid || bit(valid, j)) {
             int64_t a, b;
             if (large) {
@@ -623,28 +718,150 @@ static PyObject *scan_numbers(PyObject *self, PyObject *args) {
                 rc = -1;
                 break;
             }
-            int got = b > a ? plain_decimal(data + a, b - a, &x) : 0;
+            int got;
+            if (marks)
+                got = read_cell(data + a, b - a, (uint8_t)mark, &x, &m);
+            else
+                got = b > a ? plain_decimal(data + a, b - a, '.', &x) : 0;
             if (got < 0) {
                 rc = -2;
                 break;
             }
             if (!got) {
                 x = none;
+                m = 0;
                 r = 1;
                 count++;
+            } else if (m) {
+                not_plain += (m & NOT_PLAIN) != 0;
+                marked += (m & 0x7f) != 0;
             }
         }
         memcpy(vals + 8 * i, &x, sizeof x);
         rest[i] = r;
+        if (marks) marks[i] = m;
     }
     Py_END_ALLOW_THREADS
     if (rc == -1)
         PyErr_SetString(PyExc_ValueError, "a text column's offsets are out of bounds");
     else if (rc)
         PyErr_NoMemory();
+    else if (marks)
+        result = Py_BuildValue("LLL", (long long)count, (long long)not_plain,
+                               (long long)marked);
     else
         result = PyLong_FromLongLong(count);
 done:
+    release(&v);
+    return result;
+}
+
+/* ---------------------------------------------------------------------------
+ * distinct_texts: a choice column's cells as indices into its distinct texts (in the
+ * order of their first cell), for the cell reader's choice route (acidbase/inputs/
+ * cells.py, _choices_of_text, whose Arrow dictionary encoding is the reference).  A
+ * choice column holds a few spellings: each cell is compared with the last one's
+ * text, then with the few seen; beyond `limit` distinct texts the scan gives up (None)
+ * and Arrow's hash encoding reads the column.  It reads bytes only: what a text means
+ * is decided in Python, once per distinct text.
+ */
+PyDoc_STRVAR(distinct_doc,
+             "distinct_texts(length, offset, validity, offsets, data, large, indices, limit) "
+             "-> list[bytes] | None\n\n"
+             "Writes each cell's index into the returned distinct texts to `indices` "
+             "(int32, -1 for a null cell); None when there are more than `limit`.");
+
+static PyObject *distinct_texts(PyObject *self, PyObject *args) {
+    long long length, offset;
+    int large, limit;
+    PyObject *bv, *bo, *bd, *bidx;
+    if (!PyArg_ParseTuple(args, "LLOOOpOi", &length, &offset, &bv, &bo, &bd, &large, &bidx,
+                          &limit))
+        return NULL;
+    if (length < 0 || offset < 0 || limit < 1 || limit > 4096) {
+        PyErr_SetString(PyExc_ValueError, "negative length or offset, or a limit beyond 4096");
+        return NULL;
+    }
+    Views v = {NULL, 0, 0};
+    PyObject *result = NULL;
+    const uint8_t *valid = NULL, *offs = NULL, *data = NULL;
+    uint8_t *out = NULL;
+    Py_ssize_t ndata = 0;
+    int64_t *starts = NULL, *ends = NULL;
+    int nd = 0, rc = 0;
+    if (bv != Py_None && view(&v, bv, (offset + length + 7) / 8, &valid, NULL) < 0) goto done;
+    if (length > 0 && view(&v, bo, (large ? 8 : 4) * (offset + length + 1), &offs, NULL) < 0)
+        goto done;
+    if (length > 0 && view(&v, bd, 0, &data, &ndata) < 0) goto done;
+    if (wview(&v, bidx, 4 * length, &out) < 0) goto done;
+    starts = malloc(sizeof(int64_t) * (size_t)limit);
+    ends = malloc(sizeof(int64_t) * (size_t)limit);
+    if (!starts || !ends) {
+        PyErr_NoMemory();
+        goto done;
+    }
+    Py_BEGIN_ALLOW_THREADS
+    int32_t *idx = (int32_t *)out;
+    int last = -1;
+    for (int64_t i = 0; i < length; i++) {
+        int64_t j = offset + i;
+        if (valid && !bit(valid, j)) {
+            idx[i] = -1;
+            continue;
+        }
+        int64_t a, b;
+        if (large) {
+            a = ((const int64_t *)offs)[j];
+            b = ((const int64_t *)offs)[j + 1];
+        } else {
+            a = ((const int32_t *)offs)[j];
+            b = ((const int32_t *)offs)[j + 1];
+        }
+        if (a < 0 || b < a || b > (int64_t)ndata) {
+            rc = -1;
+            break;
+        }
+        int k = -1;
+        if (last >= 0 && ends[last] - starts[last] == b - a &&
+            memcmp(data + starts[last], data + a, (size_t)(b - a)) == 0)
+            k = last;
+        for (int t = 0; k < 0 && t < nd; t++)
+            if (ends[t] - starts[t] == b - a && memcmp(data + starts[t], data + a, (size_t)(b - a)) == 0)
+                k = t;
+        if (k < 0) {
+            if (nd == limit) {
+                rc = 1;
+                break;
+            }
+            starts[nd] = a;
+            ends[nd] = b;
+            k = nd++;
+        }
+        idx[i] = k;
+        last = k;
+    }
+    Py_END_ALLOW_THREADS
+    if (rc == -1) {
+        PyErr_SetString(PyExc_ValueError, "a text column's offsets are out of bounds");
+        goto done;
+    }
+    if (rc == 1) {
+        result = Py_NewRef(Py_None);
+        goto done;
+    }
+    result = PyList_New(nd);
+    for (int t = 0; result && t < nd; t++) {
+        PyObject *b = PyBytes_FromStringAndSize((const char *)data + starts[t],
+                                                (Py_ssize_t)(ends[t] - starts[t]));
+        if (!b) {
+            Py_CLEAR(result);
+            break;
+        }
+        PyList_SetItem(result, t, b);
+    }
+done:
+    free(starts);
+    free(ends);
     release(&v);
     return result;
 }
@@ -862,6 +1079,7 @@ static PyMethodDef methods[] = {
     {"encode", encode, METH_VARARGS, encode_doc},
     {"cells", cells, METH_VARARGS, cells_doc},
     {"scan_numbers", scan_numbers, METH_VARARGS, scan_doc},
+    {"distinct_texts", distinct_texts, METH_VARARGS, distinct_doc},
     {"pack_rules", pack_rules, METH_VARARGS, pack_doc},
     {"group_words", group_words, METH_VARARGS, group_doc},
     {NULL, NULL, 0, NULL},

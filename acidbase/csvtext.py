@@ -1,6 +1,6 @@
 """The compiled edges (acidbase._csvfast), when the extension is built.
 
-Three edges, each with its Python reference kept beside its caller; each function here
+The edges, each with its Python reference kept beside its caller; each function here
 answers None when the extension is not built (no C compiler at install) or is switched
 off (environment variable ``ACIDBASE_PURE_PYTHON=1``, for comparisons and benchmarks),
 and the caller then uses the reference:
@@ -18,6 +18,13 @@ and the caller then uses the reference:
   values, for the cell reader's fast route (``inputs.cells.parse_numeric_many``, whose
   Arrow casts are the reference).  It decides nothing else: every other cell goes
   through the reader's pattern.
+* ``scanned_numbers``: the same scan reading also the ordinary cells around plain
+  numbers (blank cells, spaces and tabs, a decimal comma, comparators, laboratory
+  flags), as the reader's pattern reads them (``inputs.cells.parse_numeric_many``,
+  whose pure-Python route is the reference); refusals stay with the pattern.
+* ``distinct_texts``: a choice column's few distinct texts and each cell's index into
+  them, for the choice reader (``inputs.cells._choices_of_text``, whose Arrow
+  dictionary encoding is the reference); what a text means is decided in Python.
 * ``packed_rules`` and ``grouped_words``: the fired-rule matrix as one 64-bit word per
   row and 64 rules, and its distinct patterns (``results._combine``, whose numpy code is
   the reference).
@@ -171,6 +178,68 @@ def plain_numbers(column: pa.Array) -> tuple[np.ndarray, np.ndarray, int] | None
     return values, rest, count
 
 
+#: The comparators by their code in the scan's marks (bits 0-2; 0: none), as
+#: ``inputs.cells._VALUE`` spells them.
+COMPARATOR_CODES: tuple[str | None, ...] = (None, "<", "<=", ">", ">=")
+#: The marks' bit for a cell that is not a plain number as written.
+NOT_PLAIN = 0x80
+
+
+def scanned_numbers(column: pa.Array, decimal: str = "."
+                    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, int, int, int] | None:
+    """(values, rest, marks, count, not_plain, marked) of a ``string`` or
+    ``large_string`` column, read by the compiled scan with marks (``_csvfast.c``,
+    ``read_cell``): ``values`` float64 (NaN where not measured, censored or left to the
+    pattern), ``rest`` the cells left to the reader's pattern (bool; ``count`` of them),
+    ``marks`` uint8 per cell (bits 0-2 the comparator, ``COMPARATOR_CODES``; bits 3-6 the
+    flag, 1 + its index in ``inputs.cells.LAB_FLAGS``; ``NOT_PLAIN``), ``not_plain`` how
+    many cells read are not plain numbers as written, ``marked`` how many carry a
+    comparator or a flag.  None when the extension is not built or switched off."""
+    if not compiled_available() or decimal not in (".", ","):
+        return None
+    t = column.type
+    if not (pa.types.is_string(t) or pa.types.is_large_string(t)):
+        return None
+    n = len(column)
+    values = np.empty(n, dtype=np.float64)
+    rest = np.empty(n, dtype=np.bool_)
+    marks = np.empty(n, dtype=np.uint8)
+    if n == 0:
+        return values, rest, marks, 0, 0, 0
+    bufs = column.buffers()
+    try:
+        count, not_plain, marked = _csvfast.scan_numbers(
+            n, column.offset, bufs[0] if column.null_count else None, bufs[1], bufs[2],
+            pa.types.is_large_string(t), values, rest.view(np.uint8), ord(decimal), marks)
+    except ValueError:  # buffers laid out as the scan does not expect: the reference reads
+        return None
+    return values, rest, marks, count, not_plain, marked
+
+
+def distinct_texts(column: pa.Array, limit: int = 64) -> tuple[np.ndarray, list[str]] | None:
+    """(indices, texts) of a ``string`` or ``large_string`` column: its distinct texts in
+    the order of their first cell, and each cell's index into them (int32; -1 for a null
+    cell), as Arrow's dictionary encoding gives them.  None when the column has more
+    than ``limit`` distinct texts, or the extension is not built or switched off."""
+    if not compiled_available():
+        return None
+    t = column.type
+    if not (pa.types.is_string(t) or pa.types.is_large_string(t)):
+        return None
+    n = len(column)
+    indices = np.empty(n, dtype=np.int32)
+    if n == 0:
+        return indices, []
+    bufs = column.buffers()
+    try:
+        got = _csvfast.distinct_texts(n, column.offset, bufs[0] if column.null_count else None,
+                                      bufs[1], bufs[2], pa.types.is_large_string(t), indices,
+                                      limit)
+        return None if got is None else (indices, [b.decode("utf-8") for b in got])
+    except (ValueError, UnicodeDecodeError):  # the reference reads it
+        return None
+
+
 def packed_rules(mask: np.ndarray) -> np.ndarray | None:
     """The (rules x rows) bool matrix ``mask`` as (rows, ceil(rules / 64)) uint64 words,
     bit r % 64 of word r // 64 set where rule r fired; None when the extension is not
@@ -197,4 +266,4 @@ def grouped_words(words: np.ndarray) -> tuple[np.ndarray, list[int], list[int]] 
 
 
 __all__ = ["compiled_available", "compiled_csv", "grouped_words", "packed_rules",
-           "plain_numbers"]
+           "distinct_texts", "plain_numbers", "scanned_numbers"]

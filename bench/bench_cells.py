@@ -13,7 +13,15 @@ chunks of a synthetic CSV file (bench/synthetic.py) as ``acidbase batch`` reads 
    computed once beforehand), both ways, passes alternating, label cache warm as in a run;
 3. with ``--before DIR`` (a checkout of the code before the change, its extension
    built): ``acidbase batch FILE --no-serial -o OUT --quiet`` user+sys CPU of the child,
-   this checkout and DIR alternating.
+   this checkout and DIR alternating;
+4. with ``--before DIR``, the gate and the check stage, per chunk in one thread
+   (``time.thread_time``), in child processes that import this checkout or DIR,
+   alternating: "gate" is what the kernel is handed (``files.check.panel_columns`` and
+   ``inputs.panel.screen``: the numeric arrays, choice codes, masks and refusals),
+   "check" the chunk's whole work as the batch does it (``batch._process``: the gate,
+   the kernel, the rules and the output columns, lean profile, serial checks off), the
+   CSV reading left out (the file's chunks are read first; the check stage runs over
+   all of them, then the gate alone).  ``--gate-only`` runs this part alone.
 
 Prints medians over ``--passes`` passes (whole-file totals) and the median chunk.  A
 benchmark, not a test: nothing here fails on a slow machine.
@@ -22,6 +30,7 @@ benchmark, not a test: nothing here fails on a slow machine.
 from __future__ import annotations
 
 import argparse
+import json
 import os
 import resource
 import statistics
@@ -72,6 +81,62 @@ def _child_cpu(cmd: list[str], cwd: str, env: dict[str, str]) -> float:
     return (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
 
 
+#: The child of part 4: times the gate and the check stage of every chunk of a file.
+_GATE_CHILD = r"""
+import json, sys, time
+from acidbase import batch, fileio
+from acidbase.files.check import panel_columns
+from acidbase.inputs.panel import screen
+from acidbase.profile import Profile
+
+path, chunk_rows = sys.argv[1], int(sys.argv[2])
+src = fileio.open_source(path, chunk_rows=chunk_rows)
+layout = fileio.map_headers(src.headers)
+profile = Profile()
+tables = list(src.chunks())
+check = 0.0
+start = 0
+for table in tables:  # the check stage, chunk by chunk as the batch runs it
+    t0 = time.thread_time()
+    batch._process(table, layout, ".", None, None, start, profile.derived,
+                   severities=profile.severities, wanted=profile.keeps)
+    check += time.thread_time() - t0
+    start += table.num_rows
+gate = 0.0
+for table in tables:  # then the gate alone, over the same chunks
+    t0 = time.thread_time()
+    cols, problems = panel_columns(table, layout, ())
+    screen(cols, None, decimal=".", missing=(), row_problems=problems)
+    gate += time.thread_time() - t0
+print(json.dumps({"gate": gate, "check": check, "rows": start}))
+"""
+
+
+def _gate_runs(path: str, chunk: int, before: str, runs: int) -> None:
+    """Part 4: gate and check-stage CPU, this checkout against ``before``, alternating."""
+    got: dict[str, dict[str, list[float]]] = {w: {"gate": [], "check": []}
+                                              for w in ("before", "now")}
+    for k in range(runs):
+        for which in (("now", "before") if k % 2 == 0 else ("before", "now")):
+            root = before if which == "before" else str(HERE.parent)
+            env = {key: v for key, v in os.environ.items() if key != "ACIDBASE_PURE_PYTHON"}
+            env["PYTHONPATH"] = root
+            out = subprocess.run([sys.executable, "-c", _GATE_CHILD, os.path.abspath(path),
+                                  str(chunk)], cwd=root, env=env, check=True,
+                                 capture_output=True, text=True).stdout
+            res = json.loads(out.strip().splitlines()[-1])
+            for key in ("gate", "check"):
+                got[which][key].append(res[key])
+    med = {w: {key: statistics.median(v) for key, v in d.items()} for w, d in got.items()}
+    b, a = med["before"], med["now"]
+    print(f"gate  (thread CPU, whole file): before {b['gate']:.3f} s, now {a['gate']:.3f} s "
+          f"({a['gate'] / b['gate']:.2f} of before)")
+    print(f"check (thread CPU, whole file): before {b['check']:.3f} s, now {a['check']:.3f} s "
+          f"({a['check'] / b['check']:.2f} of before); the gate's share: before "
+          f"{b['gate'] / b['check']:.0%}, now {a['gate'] / a['check']:.0%}")
+    print(f"  runs: {json.dumps({w: {k: [round(x, 3) for x in v] for k, v in d.items()} for w, d in got.items()})}")
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--n", type=int, default=1_000_000)
@@ -80,12 +145,19 @@ def main() -> None:
     ap.add_argument("--file", help="a CSV to use (default: generated in a temporary folder)")
     ap.add_argument("--before", help="a checkout of the code before, for the end-to-end runs")
     ap.add_argument("--runs", type=int, default=3, help="end-to-end runs of each checkout")
+    ap.add_argument("--gate-only", action="store_true",
+                    help="with --before: only the gate and check-stage comparison (part 4)")
     args = ap.parse_args()
 
     tmp = tempfile.mkdtemp(prefix="bench-cells-")
     path = args.file or os.path.join(tmp, "panels.csv")
     if not args.file:
         synthetic.write_csv(path, args.n)
+    if args.gate_only and args.before:
+        print(f"load {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
+        _gate_runs(path, args.chunk, args.before, args.runs)
+        print(f"load after: {os.getloadavg()[0]:.2f}")
+        return
     src = open_source(path, chunk_rows=args.chunk)
     names = [s.name for s in NUMERIC if s.name in src.headers]
     chunks = list(src.chunks(names))
@@ -135,6 +207,7 @@ def main() -> None:
         same = Path(tmp, "out-before.csv").read_bytes() == Path(tmp, "out-now.csv").read_bytes()
         print(f"acidbase batch --no-serial user+sys: before {b:.2f} s, now {a:.2f} s "
               f"({b / a:.2f}x; runs {cpu}); outputs identical: {same}")
+        _gate_runs(path, args.chunk, args.before, args.runs)
     print(f"load after: {os.getloadavg()[0]:.2f}")
 
 

@@ -144,6 +144,135 @@ def test_scan_reads_hard_roundings_as_arrow_does():
     assert _bits(values) == _bits(pc.cast(arr, pa.float64()).to_numpy())
 
 
+# The cells the scan with marks reads besides plain numbers, and their near misses:
+# blanks, spaces and tabs (and blanks it leaves: no-break and em spaces, form feeds,
+# vertical tabs), comparators and flags in every order, lower-case flags, doubled marks.
+_BLANKS = ["", " ", "  ", "\t", " \t ", "\u00a0", "\u2003", "\f", "\v", "\r", "\n"]
+_CMPS = ["<", "<=", ">", ">=", "=<", "=>", "<<", "><", "=", "≤", "<=="]
+_FLAGS = [*cells.LAB_FLAGS, "l", "h", "LH", "LA", "HHH", "**", "L*", "AAA", "NN", "HI", "LOW",
+          "H L", "Z"]
+_NUMBERS = st.one_of(short_plain, st.sampled_from(["7,4", "7,", ",5", "1,400", "7.4.1", "7,4,1",
+                                                    "-7.4", "+0.3", "1e2", ".", ",", "1" * 320,
+                                                    "<5", "7.4L"]))
+marked_cells = st.one_of(
+    st.sampled_from(_BLANKS),
+    st.builds(lambda a, c, b, x, d, f, e: a + c + b + x + d + f + e,
+              st.sampled_from(_BLANKS), st.one_of(st.just(""), st.sampled_from(_CMPS)),
+              st.sampled_from(_BLANKS), _NUMBERS, st.sampled_from(_BLANKS),
+              st.one_of(st.just(""), st.sampled_from(_FLAGS)), st.sampled_from(_BLANKS)),
+    st.builds(lambda x, f: x + f, _NUMBERS, st.sampled_from(_FLAGS)),
+    st.builds(lambda c, x: c + x, st.sampled_from(_CMPS), _NUMBERS),
+)
+
+
+def _python_reading(text: str, decimal: str) -> tuple[cells.ParsedColumn, bool]:
+    """The pure-Python route's reading of one cell alone (the reference), and whether
+    the route reads it as a plain number (the quick test and the first cast)."""
+    old = os.environ.get("ACIDBASE_PURE_PYTHON")
+    os.environ["ACIDBASE_PURE_PYTHON"] = "1"
+    try:
+        p = cells.parse_numeric_many([pa.array([text], pa.string())], decimal)[0]
+    finally:
+        if old is None:
+            del os.environ["ACIDBASE_PURE_PYTHON"]
+        else:
+            os.environ["ACIDBASE_PURE_PYTHON"] = old
+    return p, p.plain
+
+
+def _mark_of(col) -> str | None:
+    return None if col is None else col.to_pylist()[0]
+
+
+@compiled
+@settings(max_examples=500, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.lists(st.one_of(marked_cells, any_cell, st.none()), max_size=30), st.integers(0, 3),
+       st.booleans(), st.sampled_from([".", ","]))
+def test_scan_with_marks_reads_each_cell_as_the_pattern_does(texts, pad, large, decimal):
+    """Cell by cell: each cell the scan reads (not left to the pattern) has the Python
+    route's value bit for bit, its comparator and flag, no refusal, and is marked plain
+    exactly when the Python route reads it as a plain number; the counts add up."""
+    arr = pa.array(["7.4"] * pad + texts, pa.large_string() if large else pa.string())
+    arr = arr.slice(pad)
+    values, rest, marks, count, not_plain, marked = csvtext.scanned_numbers(arr, decimal)
+    assert count == int(rest.sum())
+    assert not_plain == int(((marks & csvtext.NOT_PLAIN) != 0).sum())
+    assert marked == int(((marks & 0x7F) != 0).sum())
+    for t, v, r, m in zip(texts, values.tolist(), rest.tolist(), marks.tolist()):
+        if t is None:
+            assert not r and m == 0 and math.isnan(v)
+            continue
+        if r:
+            assert m == 0 and math.isnan(v), repr(t)
+            continue
+        want, is_plain = _python_reading(t, decimal)
+        assert not want.bad[0], repr(t)
+        assert _bits(np.array([v])) == _bits(want.values), (repr(t), v, want.values[0])
+        assert csvtext.COMPARATOR_CODES[m & 7] == _mark_of(want.comparator), repr(t)
+        assert cells._FLAG_CODES[(m >> 3) & 15] == _mark_of(want.flag), repr(t)
+        assert ((m & csvtext.NOT_PLAIN) == 0) == is_plain, repr(t)
+
+
+def _grid_cells() -> list[str]:
+    """Every combination of a blank, a comparator, a blank, a number, a blank, a flag and
+    a blank from short lists of the shapes that matter and their near misses."""
+    import itertools
+
+    ends = ["", " ", "\t", "\v", "\u00a0"]
+    inner = ["", " ", "\t", "\v", "\f"]
+    cmps = ["", "<", "<=", ">", ">=", "=<", "<<", "="]
+    numbers = ["7.4", "7,4", ".5", "5.", "007", "-1", "1e2", ".", ",", "1.2.3", "1" * 25]
+    flags = ["", "L", "HH", "AA", "*", "l", "LA", "LLL"]
+    return ["".join(p) for p in itertools.product(ends, cmps, inner, numbers, inner, flags,
+                                                  ends)]
+
+
+@compiled
+@pytest.mark.parametrize("decimal", [".", ","])
+def test_scan_with_marks_reads_every_combination_as_the_pattern_does(monkeypatch, decimal):
+    """Every combination (440,000 cells): each cell the scan reads has the pure-Python
+    route's value bit for bit, comparator and flag and is not refused; each it leaves is
+    left whole (NaN, no marks); the whole column reads the same both ways."""
+    texts = _grid_cells()
+    arr = pa.array(texts, pa.string())
+    values, rest, marks, _, _, _ = csvtext.scanned_numbers(arr, decimal)
+    monkeypatch.setenv("ACIDBASE_PURE_PYTHON", "1")
+    want = cells.parse_numeric_many([arr], decimal)[0]
+    monkeypatch.delenv("ACIDBASE_PURE_PYTHON")
+    read = ~rest
+    assert not want.bad[read].any(), [texts[i] for i in np.flatnonzero(read & want.bad)[:5]]
+    assert _bits(values[read]) == _bits(want.values[read])
+    assert np.isnan(values[rest]).all() and not marks[rest].any()
+    for col, words, code in ((want.comparator, csvtext.COMPARATOR_CODES, marks & 7),
+                             (want.flag, cells._FLAG_CODES, marks >> 3 & 15)):
+        expected = col.to_pylist() if col is not None else [None] * len(texts)
+        got = [words[c] for c in code.tolist()]
+        wrong = [texts[i] for i in np.flatnonzero(read) if got[i] != expected[i]]
+        assert not wrong, wrong[:5]
+    bare = (marks & csvtext.NOT_PLAIN) == 0  # plain: digits and one point, as written
+    want_bare = [decimal == "." and t.strip("0123456789.") == "" for t in texts]
+    assert [texts[i] for i in np.flatnonzero(read) if bare[i] != want_bare[i]] == []
+    got = cells.parse_numeric_many([arr], decimal)[0]
+    _same_parsed(got, want)
+
+
+@compiled
+def test_scan_with_marks_reads_the_ordinary_cells_of_an_export():
+    """The cells a laboratory export prints (each read as the pattern reads it, by the
+    test above) are read by the scan and none is left to the pattern; a refusal is."""
+    texts = ["7.21 L", "7.21L", " 7.4 ", "\t35.3", "<0.3", "< 0.3", ">=180 H", "<=5 *",
+             "6.1 HH", "", "   ", "140 N", "haem", "-7.4", "1e2", "7,4"]
+    values, rest, marks, count, _, _ = csvtext.scanned_numbers(pa.array(texts), ".")
+    assert rest.tolist() == [False] * 12 + [True] * 4
+    assert values[:3].tolist() == [7.21, 7.21, 7.4] and math.isnan(values[4])
+    assert [csvtext.COMPARATOR_CODES[m & 7] for m in marks[:8]] == [
+        None, None, None, None, "<", "<", ">=", "<="]
+    assert [cells._FLAG_CODES[m >> 3 & 15] for m in marks[:9]] == [
+        "L", "L", None, None, None, None, "H", "*", "HH"]
+    values, rest, _, _, _, _ = csvtext.scanned_numbers(pa.array(["7,4", "7.4", "<1,5 L"]), ",")
+    assert rest.tolist() == [False, True, False] and values[0] == 7.4
+
+
 def _same_parsed(a: cells.ParsedColumn, b: cells.ParsedColumn) -> None:
     assert _bits(a.values) == _bits(b.values)
     for x, y in ((a.comparator, b.comparator), (a.flag, b.flag)):
@@ -166,6 +295,7 @@ def _both(monkeypatch, read):
 
 column_of_cells = st.one_of(
     st.lists(st.one_of(plain_cells, st.none()), max_size=30),  # the common, plain case
+    st.lists(st.one_of(plain_cells, st.none(), marked_cells), max_size=30),  # blanks, marks
     st.lists(st.one_of(plain_cells, st.none(), st.sampled_from(["-7.4", "1e2", "+.5"])),
              max_size=30),  # what the first cast reads whole
     st.lists(st.one_of(any_cell, st.none()), max_size=30),
@@ -387,3 +517,94 @@ def test_packing_refuses_buffers_that_do_not_hold_their_cells():
         _csvfast.pack_rules(b"\1" * 65, 65, 1, np.empty(1, np.uint64))
     with pytest.raises(ValueError):
         _csvfast.group_words(np.zeros(3, np.uint64), 3, np.empty(2, np.int32))
+
+
+@compiled
+def test_leftover_cells_are_read_once_per_text_and_decimal_mark(monkeypatch):
+    """The cells the scan leaves ("haem", "-7,4", "+1e2 L") go through the pattern once per
+    distinct text and decimal mark; later chunks read them from the table, the same
+    as the pure-Python route reads them, and a decimal comma's reading is its own."""
+    monkeypatch.setattr(cells, "_LEFTOVERS", {})
+    calls = []
+    parse = cells._parse_cells
+    monkeypatch.setattr(cells, "_parse_cells", lambda c, d: calls.append(len(c)) or parse(c, d))
+    texts = ["haem", "-7,4", "-7.4", "+1e2 L", "<-5", "7.4", None, "haem", "-7,4"]
+    arr = pa.array(texts * 3, pa.string())
+    for decimal in (".", ",", ".", ","):
+        got, want = _both(monkeypatch, lambda: cells.parse_numeric_many([arr], decimal)[0])
+        _same_parsed(got, want)
+    # the pure route reads whole leftovers (15 cells and more) each time; the compiled one
+    # reads the distinct texts once per mark: 5 with a point, 6 with a comma ("7.4" too)
+    assert sorted(c for c in calls if c < 10) == [5, 6]
+
+
+# ---------------------------------------------------------------------------
+# Choice columns
+
+_SPELLINGS = ["arterial", "Arterial", " venous ", "VENOUS", "capillary", "mixed venous", "",
+              " ", "unknown", "art", "=1+1", "-", "NA", "arterial\u00a0", "ärtérial", "\u2003"]
+
+
+@compiled
+@settings(max_examples=300, deadline=None,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.function_scoped_fixture])
+@given(st.lists(st.one_of(st.sampled_from(_SPELLINGS), st.text(max_size=6), st.none()),
+                max_size=60), st.integers(0, 3), st.booleans(), st.integers(1, 8))
+def test_distinct_texts_encode_as_arrow_does(texts, pad, large, limit):
+    """The same distinct texts in the same order, and the same index per cell (-1 for
+    null), as Arrow's dictionary encoding; None beyond the limit; sliced and large text."""
+    arr = pa.array(["pad"] * pad + texts, pa.large_string() if large else pa.string())
+    arr = arr.slice(pad)
+    got = csvtext.distinct_texts(arr, limit)
+    encoded = pc.dictionary_encode(arr)
+    want_texts = encoded.dictionary.to_pylist()
+    if len(want_texts) > limit:
+        assert got is None
+        return
+    indices, distinct = got
+    assert distinct == want_texts
+    assert indices.tolist() == pc.fill_null(encoded.indices, -1).to_pylist()
+
+
+@compiled
+@settings(max_examples=200, deadline=None,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.function_scoped_fixture])
+@given(st.lists(st.one_of(st.sampled_from(_SPELLINGS), st.text(max_size=4), st.none()),
+                max_size=40), st.booleans(), st.sampled_from(["sample_type", "hco3_source"]))
+def test_choice_columns_read_the_same_with_and_without_the_extension(monkeypatch, texts,
+                                                                     use_missing, name):
+    """Codes, refusals, texts and the plain mark of a choice column from both routes."""
+    from acidbase.inputs.vocab import CHOICE_BY_NAME
+
+    missing = MISSING if use_missing else []
+    arr = pa.array(texts, pa.string())
+    got, want = _both(monkeypatch, lambda: cells.read_choices(arr, CHOICE_BY_NAME[name],
+                                                              missing))
+    assert got.codes.dtype == want.codes.dtype
+    assert got.codes.tolist() == want.codes.tolist()
+    assert got.bad.tolist() == want.bad.tolist()
+    assert got.plain == want.plain
+    assert got.text.equals(want.text)
+
+
+_TOKEN_CELLS = ["7.4", "\u00a0NA\u2003", " NA", "NA ", "NA", "na", "9999", " 9999 ", "<0.1",
+                "7.4 L", "", " ", "\t", "haem", None, "-7.4", "1e2", "7,4", "n/a", "\u00a0", "-"]
+
+
+@compiled
+@pytest.mark.parametrize("missing", [["NA"], ["NA", "-", "n/a", "."], ["9999", "NA"], [""],
+                                     [" "], ["<0.1"], ["n/a", "\u00a0"], ["7,4"], ["haem"]])
+@pytest.mark.parametrize("decimal", [".", ","])
+@pytest.mark.parametrize("cells_of", ["all", "plain_and_tokens", "tokens"])
+def test_missing_tokens_read_the_same_with_and_without_the_extension(monkeypatch, missing,
+                                                                      decimal, cells_of):
+    """Declared missing tokens, with Unicode spaces around them, tokens the scan would read
+    (digits, blanks, a censored value) and tokens it would not: the same ParsedColumn
+    (values, marks, refusals, plain, and the text with the tokens made null) both ways."""
+    texts = {"all": _TOKEN_CELLS, "plain_and_tokens": ["7.4", "35", " NA", "NA", None, "7"],
+             "tokens": ["NA", " NA ", "\u00a0NA"]}[cells_of]
+    arr = pa.array(texts * 2, pa.string())
+    got, want = _both(monkeypatch, lambda: cells.parse_numeric_many([arr, arr.slice(3)],
+                                                                    decimal, missing))
+    for g, w in zip(got, want):
+        _same_parsed(g, w)

@@ -28,6 +28,7 @@ message whatever way it came in.  The policy, as docs/input.md states it:
 
 from __future__ import annotations
 
+import functools
 import math
 import re
 from collections.abc import Sequence
@@ -38,7 +39,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from .._arrow import is_arrow
-from ..csvtext import plain_numbers
+from ..csvtext import COMPARATOR_CODES, compiled_available, distinct_texts, scanned_numbers
 from .vocab import Choice, normalise_word
 
 if TYPE_CHECKING:
@@ -89,6 +90,12 @@ class ParsedColumn:
     def cell(self, i: int) -> str | None:
         """The text of cell ``i`` as given (None when empty)."""
         return _item(self.text, i)
+
+    def cells(self, rows: np.ndarray) -> list[str | None]:
+        """The texts of the cells ``rows`` (int indices), as ``cell`` gives each."""
+        if isinstance(self.text, np.ndarray):
+            return [_item(self.text, i) for i in rows.tolist()]
+        return self.text.take(pa.array(rows, pa.int64())).to_pylist()
 
     def marks(self, which: str) -> list[tuple[int, str]]:
         """(row, mark) for each row with a comparator (``which="comparator"``, the mark
@@ -161,11 +168,26 @@ def _text_column(column: pa.Array | pa.ChunkedArray, missing: Sequence[str] = ()
     if pa.types.is_large_string(t) or pa.types.is_string_view(t):
         column = column.cast(pa.string())
     if missing and pa.types.is_string(column.type):
-        hit = pc.is_in(pc.utf8_trim_whitespace(column), value_set=pa.array(list(missing),
-                                                                           pa.string()))
+        hit = _missing_hits(column, missing)
         if pc.any(hit).as_py():
             column = pc.if_else(hit, pa.scalar(None, pa.string()), column)
     return column
+
+
+def _missing_hits(column: pa.Array, missing: Sequence[str]) -> pa.Array:
+    """Where a text cell, its surrounding spaces trimmed, is a declared missing token."""
+    return pc.is_in(pc.utf8_trim_whitespace(column), value_set=pa.array(list(missing),
+                                                                        pa.string()))
+
+
+@functools.lru_cache(maxsize=64)
+def _scan_reads_a_token(missing: tuple[str, ...], decimal: str) -> bool:
+    """True when the compiled scan would read one of the missing tokens as a cell (a
+    number, a blank...), or cannot say: the tokens are then made null before the scan.
+    Otherwise no cell the scan reads is a token (a cell that trims to a token would be
+    one the scan reads trimmed too), so only the cells it leaves are compared with them."""
+    got = scanned_numbers(pa.array(list(missing), pa.string()), decimal)
+    return got is None or not got[1].all()
 
 
 def _nested(t: pa.DataType) -> bool:
@@ -200,9 +222,7 @@ def parse_numeric(column: pa.Array | pa.ChunkedArray, decimal: str = ".",
             text = pc.cast(column, pa.string())
         bad = _mask(pc.is_valid(column))
         return ParsedColumn(np.full(n, np.nan), None, None, bad, text)
-    if decimal == ".":
-        return parse_numeric_many([column])[0]
-    return _parse_cells(column, decimal)
+    return parse_numeric_many([column], decimal)[0]
 
 
 def parse_numeric_many(columns: Sequence[pa.Array | pa.ChunkedArray],
@@ -213,23 +233,37 @@ def parse_numeric_many(columns: Sequence[pa.Array | pa.ChunkedArray],
     time; the few others (flags, comparators, signs, spaces, text) of all the
     columns go through the full pattern together, since each pattern call has a
     fixed cost (about half a millisecond) that a per-column call would pay again.
-    When the compiled edge is built (``csvtext.plain_numbers``) it reads the cells of
-    digits and points in one pass instead of the casts, with the same result (the
-    Python code below stays the reference; tests/test_compiled_edges.py).
+    With a decimal comma each column goes through the full pattern.
+
+    When the compiled edge is built (``csvtext.scanned_numbers``) it reads, in one pass
+    a column, the plain numbers and the ordinary cells around them (blank cells,
+    spaces, a decimal comma, comparators, laboratory flags), exactly as the routes
+    below read them; only the cells it leaves (signs, exponents, words, refusals...)
+    go through the pattern, all columns' together.  The Python code below stays the
+    reference (tests/test_compiled_edges.py compares the two cell by cell).
     """
     _bind_arrow()
     out: list[ParsedColumn | None] = [None] * len(columns)
-    pending: list[tuple[int, pa.Array, np.ndarray, np.ndarray]] = []
+    pending: list[tuple[int, pa.Array, np.ndarray, np.ndarray, np.ndarray | None]] = []
+    # With the compiled scan, missing tokens it cannot read are looked for only among the
+    # cells it leaves (trimming and comparing every cell costs more than the scan).
+    late = tuple(missing) if (missing and compiled_available() and decimal in (".", ",")
+                              and not _scan_reads_a_token(tuple(missing), decimal)) else ()
     for i, column in enumerate(columns):
-        column = _text_column(column, missing)
-        if decimal != "." or not pa.types.is_string(column.type):
+        column = _text_column(column, () if late else missing)
+        if not pa.types.is_string(column.type):
             out[i] = parse_numeric(column, decimal)
             continue
-        n = len(column)
-        scanned = plain_numbers(column)
+        scanned = scanned_numbers(column, decimal)
         if scanned is not None:  # the compiled scan: the same reading (see _scanned)
-            out[i] = _scanned(column, *scanned, pending, i)
+            out[i] = _scanned(column, decimal, *scanned, pending, i, late)
             continue
+        if late:  # the scan declined the column: the tokens as the reference makes them
+            column = _text_column(column, late)
+        if decimal != ".":
+            out[i] = _parse_cells(column, decimal)
+            continue
+        n = len(column)
         try:  # the common case: every cell a plain number, no spaces
             out[i] = ParsedColumn(_text_floats(column), None, None, np.zeros(n, dtype=bool),
                                   column, plain=True)
@@ -250,11 +284,26 @@ def parse_numeric_many(columns: Sequence[pa.Array | pa.ChunkedArray],
         if rest.size == 0:
             out[i] = ParsedColumn(vals, None, None, np.zeros(n, dtype=bool), column, plain=True)
         else:
-            pending.append((i, column, vals, rest))
-    if pending:
-        sub = _parse_cells(pa.concat_arrays([c.take(pa.array(r)) for _, c, _, r in pending]), ".")
+            pending.append((i, column, vals, rest, None))
+    scanned = [e for e in pending if e[4] is not None]
+    if scanned:  # the compiled scan's leftovers: their values, refusals and marks
+        got = _read_leftovers(pa.concat_arrays([c.take(pa.array(r)) for _, c, _, r, _ in scanned]),
+                              decimal)
         pos = 0
-        for i, column, vals, rest in pending:
+        for i, column, vals, rest, marks in scanned:
+            k = rest.size
+            vals[rest] = got[0][pos:pos + k]
+            bad = np.zeros(len(column), dtype=bool)
+            bad[rest] = got[1][pos:pos + k]
+            marks[rest] |= got[2][pos:pos + k]
+            out[i] = _marked(column, vals, marks, bad, plain=False)
+            pos += k
+    pending = [e for e in pending if e[4] is None]
+    if pending:
+        sub = _parse_cells(pa.concat_arrays([c.take(pa.array(r)) for _, c, _, r, _ in pending]),
+                           decimal)
+        pos = 0
+        for i, column, vals, rest, _ in pending:
             n, k = len(column), rest.size
             vals[rest] = sub.values[pos:pos + k]
             bad = np.zeros(n, dtype=bool)
@@ -271,30 +320,103 @@ def parse_numeric_many(columns: Sequence[pa.Array | pa.ChunkedArray],
     return out  # type: ignore[return-value]
 
 
-def _scanned(column: pa.Array, vals: np.ndarray, rest_mask: np.ndarray, count: int,
-             pending: list[tuple[int, pa.Array, np.ndarray, np.ndarray]], i: int
-             ) -> ParsedColumn | None:
-    """``parse_numeric_many``'s reading of one column from the compiled scan
-    (``csvtext.plain_numbers``): the plain numbers' values, and the valid cells that are
-    not plain (``rest_mask``, ``count`` of them).
+#: The laboratory flags by their code in the compiled scan's marks (bits 3-6; 0: none).
+_FLAG_CODES: tuple[str | None, ...] = (None, *LAB_FLAGS)
 
-    The Python route above is the reference, and this gives its result: the compiled
-    scan accepts exactly the cells that pass the quick test and cast to a finite number,
-    with the same values.  So when every other cell casts too, the first cast would have
-    read the whole column (plain); otherwise the other cells go through the full
-    pattern, as the quick route's leftovers do (a quick cell that does not cast, which
-    sends the Python route's whole column through the pattern, reads the same there).
-    Returns None when the column joins ``pending``."""
+
+#: The pattern's reading of cells the compiled scan leaves, by (decimal mark, text):
+#: (value, refused, marks).  A reading depends on the cell's text alone, and a file's
+#: leftovers repeat a few texts ("haem", "-7.4"), so each is read once; bounded as
+#: ``_CHOICE_CACHE`` is.  Up to ``_LOOKED_UP`` leftovers in a chunk are looked up one
+#: by one; more go through the pattern together.
+_LEFTOVERS: dict[tuple[str, str], tuple[float, bool, int]] = {}
+_LOOKED_UP = 2048
+
+
+def _read_leftovers(cells: pa.Array, decimal: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(values, refused, marks) of the cells the compiled scan left, as the pattern
+    (``_parse_cells``) reads them; marks as the scan's (comparator and flag codes)."""
+    if len(cells) <= _LOOKED_UP:
+        texts = cells.to_pylist()
+        table = _LEFTOVERS
+        unknown = list(dict.fromkeys(t for t in texts if (decimal, t) not in table))
+        if unknown:
+            if len(table) > 10_000:  # bounded: a column of free text cannot grow it for ever
+                table.clear()
+            read = _pattern_marks(pa.array(unknown, pa.string()), decimal)
+            for t, v, b, m in zip(unknown, *(x.tolist() for x in read)):
+                table[(decimal, t)] = (v, b, m)
+        rows = [table.get((decimal, t)) for t in texts]
+        if None not in rows:  # (the other thread may have cleared the table meanwhile)
+            return (np.array([r[0] for r in rows], dtype=np.float64),
+                    np.array([r[1] for r in rows], dtype=bool),
+                    np.array([r[2] for r in rows], dtype=np.uint8))
+    return _pattern_marks(cells, decimal)
+
+
+def _pattern_marks(cells: pa.Array, decimal: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """``_parse_cells`` of ``cells``, its comparators and flags as the scan's mark codes."""
+    sub = _parse_cells(cells, decimal)
+    marks = np.zeros(len(cells), dtype=np.uint8)
+    for part, words, shift in ((sub.comparator, COMPARATOR_CODES, 0), (sub.flag, _FLAG_CODES, 3)):
+        if part is not None and part.null_count < len(part):
+            marks |= np.array([words.index(w) for w in part.to_pylist()], np.uint8) << shift
+    return sub.values, sub.bad, marks
+
+
+def _marked(column: pa.Array, vals: np.ndarray, marks: np.ndarray | None, bad: np.ndarray,
+            plain: bool) -> ParsedColumn:
+    """A ParsedColumn from the compiled scan's marks: the comparators and flags as text
+    columns (null where none; None when the column has none), as the pattern gives them."""
+    parts: list[pa.Array | None] = [None, None]
+    if marks is not None:
+        for j, (codes, words) in enumerate(((marks & 7, COMPARATOR_CODES),
+                                            ((marks >> 3) & 15, _FLAG_CODES))):
+            if codes.any():
+                parts[j] = pc.take(pa.array(words, pa.string()), pa.array(codes))
+    return ParsedColumn(vals, parts[0], parts[1], bad, column, plain)
+
+
+def _scanned(column: pa.Array, decimal: str, vals: np.ndarray, rest_mask: np.ndarray,
+             marks: np.ndarray, count: int, not_plain: int, marked: int,
+             pending: list[tuple[int, pa.Array, np.ndarray, np.ndarray, np.ndarray | None]],
+             i: int, missing: tuple[str, ...] = ()) -> ParsedColumn | None:
+    """``parse_numeric_many``'s reading of one column from the compiled scan
+    (``csvtext.scanned_numbers``): the values and marks of the cells it read, and the
+    valid cells it left (``rest_mask``, ``count`` of them).
+
+    The Python route above is the reference, and this gives its result: the scan reads
+    exactly the cells that the quick test and cast read (plain), and the blank, spaced,
+    censored and flagged cells as the pattern reads them (each cell's reading depends
+    on no other cell).  A column is plain (read whole by the Python route's first
+    cast) when every cell read is plain, with a decimal point, and the cells left cast
+    too; otherwise the cells left go through the full pattern, as the quick route's
+    leftovers do.  Returns None when the column joins ``pending``.
+
+    ``missing``: tokens the scan reads in no cell (``_scan_reads_a_token``), not yet made
+    null: the cells left that are one are made null here, as ``_text_column`` does."""
     n = len(column)
+    bad = np.zeros(n, dtype=bool)
+    if count and missing:
+        left = np.flatnonzero(rest_mask)
+        hit = _mask(_missing_hits(column.take(pa.array(left)), missing))
+        if hit.any():
+            gone = np.zeros(n, dtype=bool)
+            gone[left[hit]] = True
+            column = pc.if_else(pa.array(gone), pa.scalar(None, pa.string()), column)
+            rest_mask = rest_mask & ~gone
+            count -= int(hit.sum())
     if count == 0:
-        return ParsedColumn(vals, None, None, np.zeros(n, dtype=bool), column, plain=True)
+        return _marked(column, vals, marks if marked else None, bad,
+                       plain=decimal == "." and not not_plain)
     rest = np.flatnonzero(rest_mask)
-    try:  # "-7.4", "1e2": the Python route's first cast reads them, and the column is plain
-        vals[rest] = _text_floats(column.take(pa.array(rest)))
-        return ParsedColumn(vals, None, None, np.zeros(n, dtype=bool), column, plain=True)
-    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
-        pass
-    pending.append((i, column, vals, rest))
+    if decimal == "." and not not_plain:
+        try:  # "-7.4", "1e2": the Python route's first cast reads them, and the column is plain
+            vals[rest] = _text_floats(column.take(pa.array(rest)))
+            return ParsedColumn(vals, None, None, bad, column, plain=True)
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+            pass
+    pending.append((i, column, vals, rest, marks))
     return None
 
 
@@ -495,6 +617,24 @@ def read_numbers(column: Any, decimal: str = ".", missing: Sequence[str] = (),
     return _object_numbers(list(arr), decimal, missing)  # bytes, dates, complex: refused
 
 
+def read_numbers_many(columns: Sequence[Any], decimal: str = ".", missing: Sequence[str] = (),
+                      n: int | None = None) -> list[ParsedColumn]:
+    """``read_numbers`` of each of ``columns``, in order: the Arrow ones read together
+    (``parse_numeric_many``: their leftover cells share one pass of the pattern), each
+    cell still read alone."""
+    out: list[ParsedColumn | None] = [None] * len(columns)
+    arrow = [i for i, c in enumerate(columns) if is_arrow(c)]
+    if arrow:
+        _bind_arrow()
+        for i, p in zip(arrow, parse_numeric_many([columns[i] for i in arrow], decimal,
+                                                  missing)):
+            out[i] = p
+    for i, c in enumerate(columns):
+        if out[i] is None:
+            out[i] = read_numbers(c, decimal, missing, n=n)
+    return out  # type: ignore[return-value]
+
+
 def _one(cell: object) -> np.ndarray:
     arr = np.empty(1, dtype=object)
     arr[0] = cell
@@ -633,11 +773,17 @@ def read_choices(column: Any, choice: Choice, missing: Sequence[str] = (),
 
 def _choices_of_text(text: pa.Array, words: tuple[str, ...], default: int,
                      missing: Sequence[str]) -> ChoiceColumn:
-    encoded = pc.dictionary_encode(text)
+    seen = distinct_texts(text)  # the compiled edge: the same encoding (None: not built)
+    if seen is not None:
+        idx, distinct = seen  # -1 for a null cell: the last entry of the lookups below
+    else:
+        encoded = pc.dictionary_encode(text)
+        distinct = encoded.dictionary.to_pylist()
+        idx = np.asarray(pc.fill_null(encoded.indices, len(distinct))
+                         .to_numpy(zero_copy_only=False))
     table = _CHOICE_CACHE.setdefault(words, {})
     if len(table) > 10_000:  # bounded: a column of free text cannot grow it for ever
         table.clear()
-    distinct = encoded.dictionary.to_pylist()
     pairs = []
     for v in distinct:
         key = v if not missing else None
@@ -649,7 +795,6 @@ def _choices_of_text(text: pa.Array, words: tuple[str, ...], default: int,
         pairs.append(got)
     lookup = np.array([c for c, _ in pairs] + [default], dtype=np.int8)
     refused = np.array([b for _, b in pairs] + [False], dtype=bool)
-    idx = np.asarray(pc.fill_null(encoded.indices, len(pairs)).to_numpy(zero_copy_only=False))
     plain = not any(v.startswith(_FORMULA_START) for v in distinct if v)
     return ChoiceColumn(lookup[idx], refused[idx], text, plain)
 

@@ -17,6 +17,7 @@ number would be ordinary in another unit of the field, the message says so.
 from __future__ import annotations
 
 import functools
+import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from dataclasses import field as dataclass_field
@@ -30,7 +31,7 @@ from .._arrow import is_arrow
 from ..errors import Problem, UnitError
 from ..fields import BY_NAME, NUMERIC, REQUIRED, TEXT_FIELDS, FieldSpec
 from .cells import (ParsedColumn, is_column, number_hint, read_choice, read_choices, read_number,
-                    read_numbers)
+                    read_numbers_many)
 from .vocab import CHOICES, Choice
 
 if TYPE_CHECKING:  # pydantic is imported when ``Panel`` is first used (module __getattr__)
@@ -74,13 +75,20 @@ def range_problems(spec: FieldSpec, raw: np.ndarray, unit: str) -> tuple[np.ndar
 
 def describe_value(spec: FieldSpec, value: float, unit: str) -> Problem:
     """The Problem for one refused value (message built in one place)."""
+    return describe_values(spec, np.array([value], dtype=np.float64), unit)[0]
+
+
+def describe_values(spec: FieldSpec, values: np.ndarray, unit: str) -> list[Problem]:
+    """The Problem for each refused value of ``values`` (float64): the unit, the range
+    and the hints worked out once for them all."""
     code = _units.normalise(unit)
     f = _units.factor(spec.name, spec.kind, unit)
-    if not np.isfinite(value):
-        return Problem(spec.name, spec.title, value, code, kind="not_a_number")
     lo, hi = spec.accepted
-    hint = str(_hint(spec, np.array([value]), unit)[0])
-    return Problem(spec.name, spec.title, float(value), code, (lo / f, hi / f), hint)
+    allowed = (lo / f, hi / f)
+    hints = _hint(spec, values, unit).tolist()
+    return [Problem(spec.name, spec.title, v, code, allowed, str(h)) if math.isfinite(v)
+            else Problem(spec.name, spec.title, v, code, kind="not_a_number")
+            for v, h in zip(values.tolist(), hints)]
 
 
 @dataclass
@@ -218,13 +226,21 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None, *
     present: set[str] = set()
     plain: set[str] = set()
     absent = np.full(n, np.nan)  # shared by every missing column: never written to
+    unit_of = {}
     for spec in NUMERIC:
         unit = units.get(spec.name, spec.unit)
         _units.factor(spec.name, spec.kind, unit)  # an unknown unit fails the whole column
         if columns.get(spec.name) is None and not spec.required:
             values[spec.name] = absent
             continue
-        p = read_numbers(columns.get(spec.name), decimal, missing, n=n)
+        unit_of[spec.name] = unit
+    # Read together: a chunk's Arrow columns share one pass of the reader's pattern.
+    parsed = dict(zip(unit_of, read_numbers_many([columns.get(k) for k in unit_of], decimal,
+                                                 missing, n=n)))
+    for spec in NUMERIC:
+        if spec.name not in unit_of:
+            continue
+        unit, p = unit_of[spec.name], parsed[spec.name]
         if p.comparator is not None or p.flag is not None:
             readings[spec.name] = p
         if p.plain:
@@ -232,10 +248,20 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None, *
         raw = p.values
         canonical, bad = range_problems(spec, raw, unit)
         code = _units.normalise(unit)
-        add(p.bad, lambda i, s=spec, c=code, p=p: Problem(
-            s.name, s.title, cell_text(p, i), c, kind="not_a_number",
-            hint=number_hint(cell_text(p, i), decimal, c)))
-        add(bad, lambda i, s=spec, r=raw, u=unit: describe_value(s, float(r[i]), u))
+        if p.bad.any():
+            rows = np.flatnonzero(p.bad)
+            texts = p.cells(rows)
+            hint_of: dict[Any, str] = {}  # a chunk's refused cells repeat a few texts
+            for i, t in zip(rows.tolist(), texts):
+                hint = hint_of.get(t)
+                if hint is None:
+                    hint = hint_of[t] = number_hint(t, decimal, code)
+                problems.setdefault(i, []).append(Problem(
+                    spec.name, spec.title, t, code, kind="not_a_number", hint=hint))
+        if bad.any():
+            rows = np.flatnonzero(bad)
+            for i, problem in zip(rows.tolist(), describe_values(spec, raw[rows], unit)):
+                problems.setdefault(i, []).append(problem)
         bad = bad | p.bad
         if spec.required:
             censored = p.censored
