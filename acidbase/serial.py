@@ -152,7 +152,8 @@ class SerialChecker:
 
     ``keep=True`` keeps the first pass's files until ``close`` so that the run's
     panels can be read back (``panels``) to be stored for later runs;
-    ``hashed_ids=True`` says the patient ids given are the store's hex hashes.
+    ``hashed_ids=True`` says the patient ids given are the store's keyed hashes:
+    16 bytes each (``fixed_size_binary(16)``, null for no id), or their hex text.
     """
 
     def __init__(self, rules: Sequence[DeltaRule] = DELTA_RULES,
@@ -167,13 +168,16 @@ class SerialChecker:
         self.fields = tuple(dict.fromkeys([*STORED_FIELDS, *(r.field for r in self.rules)]))
         self.keep = keep
         self.hashed_ids = hashed_ids
-        """Patient ids are the history store's hex hashes: partitioned by their first
-        64 bits, with no Python call per id, into a multiple of 16 partitions."""
+        """Patient ids are the history store's keyed hashes: kept as 16 bytes,
+        partitioned by their first 64 bits, with no Python call per id, into a
+        multiple of 16 partitions."""
         if hashed_ids:
             self.k = 16 * -(-self.k // 16)
         self._tmp = tempfile.TemporaryDirectory(prefix="acidbase-serial-", dir=workdir)
         self.schema = pa.schema(
-            [("row", pa.int64()), ("patient", pa.string()), ("t", pa.int64()),
+            [("row", pa.int64()), ("patient", pa.binary(KEYED_BYTES) if hashed_ids
+                                         else pa.string()),
+             ("t", pa.int64()),
              ("zoned", pa.bool_()), ("sample", pa.string())]
             + [(f, pa.float64()) for f in self.fields])
         # This file's rows ("p") and earlier panels ("e"), each by partition.
@@ -215,8 +219,12 @@ class SerialChecker:
         n = len(patient)
         first = self._n
         self._n += n
-        pat_all = _strings(patient)
-        has_id = _mask(pc.not_equal(pc.utf8_trim_whitespace(pat_all), ""))
+        if self.hashed_ids:
+            pat_all = keyed_binary(patient)
+            has_id = _mask(pc.is_valid(pat_all))
+        else:
+            pat_all = _strings(patient)
+            has_id = _mask(pc.not_equal(pc.utf8_trim_whitespace(pat_all), ""))
         status = np.full(n, NO_ID, dtype=np.uint8)
         status[has_id & (kind == TIME_INVALID)] = BAD_TIME
         usable = has_id & ((kind == TIME_NAIVE) | (kind == TIME_ZONED))
@@ -260,7 +268,7 @@ class SerialChecker:
         """Append rows to the partition files, by a hash of the patient."""
         if self.k > 1:
             if self.hashed_ids:
-                part = self._hash_partition(hex_prefix64(table["patient"]))
+                part = self._hash_partition(prefix64(table["patient"]))
             else:
                 enc = pc.dictionary_encode(table["patient"]).combine_chunks()
                 buckets = np.array([hash(s) % self.k for s in enc.dictionary.to_pylist()],
@@ -722,9 +730,12 @@ def _strings(x: pa.Array | pa.ChunkedArray | np.ndarray) -> pa.Array:
 
 
 def _codes(x: pa.ChunkedArray | pa.Array) -> np.ndarray:
-    """Equal texts get equal integers (missing or empty is -1): for grouping, not
-    ordering."""
-    enc = pc.dictionary_encode(pc.if_else(pc.equal(x, ""), pa.scalar(None, x.type), x))
+    """Equal texts (or keyed ids) get equal integers (missing or empty is -1): for
+    grouping, not ordering."""
+    if pa.types.is_fixed_size_binary(x.type):  # keyed ids: no id is null
+        enc = pc.dictionary_encode(x)
+    else:
+        enc = pc.dictionary_encode(pc.if_else(pc.equal(x, ""), pa.scalar(None, x.type), x))
     if isinstance(enc, pa.ChunkedArray):
         enc = enc.combine_chunks()
     return np.asarray(pc.fill_null(enc.indices, -1).to_numpy(zero_copy_only=False),
@@ -757,6 +768,48 @@ def hex_prefix64(hashes: pa.Array | pa.ChunkedArray) -> np.ndarray:
     nibbles = _HEX[digits]
     packed = (nibbles[:, 0::2] << 4) | nibbles[:, 1::2]  # 8 bytes, most significant first
     return np.ascontiguousarray(packed).view(">u8").ravel().astype(np.uint64)
+
+
+#: Bytes of the history store's keyed patient ids (HMAC-SHA256 truncated to 16 bytes;
+#: an Arrow ``fixed_size_binary(16)``).
+KEYED_BYTES = 16
+
+
+def keyed_binary(ids: pa.Array | pa.ChunkedArray) -> pa.Array:
+    """Keyed ids as 16 bytes each: as given when they are (``fixed_size_binary(16)``),
+    else from their 32 hex digits (an empty or missing text: null, no id)."""
+    if isinstance(ids, pa.ChunkedArray):
+        ids = ids.combine_chunks()
+    if pa.types.is_fixed_size_binary(ids.type):
+        return ids
+    texts = _strings(ids)
+    n = len(texts)
+    blank = ~_mask(pc.greater(pc.utf8_length(texts), 0))
+    raw = np.zeros((n, 16), dtype=np.uint8)
+    real = np.flatnonzero(~blank)
+    if real.size:
+        hexes = texts.take(pa.array(real))
+        digits = np.frombuffer(b"".join(h.encode("ascii") for h in hexes.to_pylist()),
+                               dtype=np.uint8).reshape(-1, 32)
+        nib = _HEX[digits]
+        raw[real] = (nib[:, 0::2] << 4) | nib[:, 1::2]
+    valid = pa.py_buffer(np.packbits(~blank, bitorder="little").tobytes())
+    return pa.FixedSizeBinaryArray.from_buffers(pa.binary(16), n, [valid, pa.py_buffer(
+        raw.tobytes())])
+
+
+def prefix64(ids: pa.Array | pa.ChunkedArray) -> np.ndarray:
+    """The first 64 bits of each keyed id (16 bytes, or hex text: ``hex_prefix64``) as
+    unsigned integers, read from the Arrow buffers; 0 for a null."""
+    if isinstance(ids, pa.ChunkedArray):
+        ids = ids.combine_chunks()
+    if not pa.types.is_fixed_size_binary(ids.type):
+        return hex_prefix64(ids)
+    n = len(ids)
+    if n == 0:
+        return np.zeros(0, dtype=np.uint64)
+    data = np.frombuffer(ids.buffers()[1], dtype=np.uint8)[16 * ids.offset:16 * (ids.offset + n)]
+    return np.ascontiguousarray(data.reshape(n, 16)[:, :8]).view(">u8").ravel().astype(np.uint64)
 
 
 def _mask(x: pa.Array | pa.ChunkedArray) -> np.ndarray:
