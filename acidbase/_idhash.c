@@ -1,7 +1,7 @@
 /* The history store's keyed patient ids, for many ids at once (acidbase._idhash).
  *
- * One function, ``hmac16``: for each id of an Arrow string array (its validity
- * bitmap, offsets and data buffers, and its offset into them), HMAC-SHA256 with the
+ * The function the store uses, ``hmac16``: for each id of an Arrow string array (its
+ * validity bitmap, offsets and data buffers, and its offset into them), HMAC-SHA256 with the
  * site key, truncated to its first 16 bytes, written into one output buffer; a
  * missing id, or one that is empty or only white space (as Python's ``str.strip``
  * sees it), is marked "blank" instead and its 16 bytes are zero.  No Python object
@@ -174,10 +174,6 @@ static int is_blank(const unsigned char *p, size_t len) {
     return 1;
 }
 
-static int get_buffer(PyObject *obj, Py_buffer *b, int flags) {
-    return PyObject_GetBuffer(obj, b, flags);
-}
-
 /* hmac16(key, n, offset, validity or None, offsets, data, wide, out, blank)
  *
  * ``offsets`` are int32 (``wide`` false: Arrow string) or int64 (large string);
@@ -198,13 +194,13 @@ static PyObject *hmac16(PyObject *self, PyObject *args) {
         PyErr_SetString(PyExc_ValueError, "negative length or offset");
         return NULL;
     }
-    if (get_buffer(okey, &bkey, PyBUF_SIMPLE) < 0) return NULL;
-    if (get_buffer(ooffs, &boffs, PyBUF_SIMPLE) < 0) goto fail_key;
-    if (get_buffer(odata, &bdata, PyBUF_SIMPLE) < 0) goto fail_offs;
-    if (get_buffer(oout, &bout, PyBUF_WRITABLE) < 0) goto fail_data;
-    if (get_buffer(oblank, &bblank, PyBUF_WRITABLE) < 0) goto fail_out;
+    if (PyObject_GetBuffer(okey, &bkey, PyBUF_SIMPLE) < 0) return NULL;
+    if (PyObject_GetBuffer(ooffs, &boffs, PyBUF_SIMPLE) < 0) goto fail_key;
+    if (PyObject_GetBuffer(odata, &bdata, PyBUF_SIMPLE) < 0) goto fail_offs;
+    if (PyObject_GetBuffer(oout, &bout, PyBUF_WRITABLE) < 0) goto fail_data;
+    if (PyObject_GetBuffer(oblank, &bblank, PyBUF_WRITABLE) < 0) goto fail_out;
     if (ovalid != Py_None) {
-        if (get_buffer(ovalid, &bvalid, PyBUF_SIMPLE) < 0) goto fail_blank;
+        if (PyObject_GetBuffer(ovalid, &bvalid, PyBUF_SIMPLE) < 0) goto fail_blank;
         have_valid = 1;
     }
     {
@@ -272,7 +268,22 @@ fail_key:
     return PyLong_FromSsize_t(hashed);
 }
 
+/* sha256(data) -> 32 bytes: the hash alone, so that the tests can hold it to the
+ * published examples of FIPS 180-4 (the store uses only hmac16). */
+static PyObject *sha256_py(PyObject *self, PyObject *arg) {
+    Py_buffer b;
+    unsigned char out[32];
+    (void)self;
+    if (PyObject_GetBuffer(arg, &b, PyBUF_SIMPLE) < 0) return NULL;
+    Py_BEGIN_ALLOW_THREADS
+    sha256((const unsigned char *)b.buf, (size_t)b.len, out);
+    Py_END_ALLOW_THREADS
+    PyBuffer_Release(&b);
+    return PyBytes_FromStringAndSize((const char *)out, 32);
+}
+
 static PyMethodDef methods[] = {
+    {"sha256", sha256_py, METH_O, "sha256(data) -> the 32-byte SHA-256 digest (FIPS 180-4)."},
     {"hmac16", hmac16, METH_VARARGS,
      "hmac16(key, n, offset, validity, offsets, data, wide, out, blank) -> ids hashed: "
      "HMAC-SHA256 (RFC 2104, FIPS 180-4) of each id of an Arrow string array, its first "
