@@ -270,8 +270,6 @@ class Store:
         self._seen: list[tuple[np.ndarray, np.ndarray]] = []
         """This run's patients (hash prefixes) and each one's earliest time, by chunk."""
         self._hmac: _Hmac | None = None
-        self._latest_read: dict[str, pa.Table] = {}
-        """The ``latest`` blocks this run has read (bucket -> panels), for its commit."""
         try:
             self._prepare()
         except BaseException:
@@ -348,18 +346,20 @@ class Store:
     def _migrate_1_to_2(self) -> None:
         self.db.execute("CREATE TABLE latest (bucket TEXT PRIMARY KEY, n INTEGER NOT NULL, "
                         "tmin INTEGER NOT NULL, data BLOB NOT NULL)")
-        latest: dict[str, pa.Table] = {}
-        ids = [r[0] for r in self.db.execute("SELECT id FROM blocks ORDER BY id")]
-        for block_id in ids:  # one block in memory at a time
-            bucket, data = self.db.execute("SELECT bucket, data FROM blocks WHERE id = ?",
-                                           (block_id,)).fetchone()
-            table = _decode(data)  # layout 1's hex ids read as 16 bytes
-            self.db.execute("UPDATE blocks SET data = ? WHERE id = ?", (_encode(table),
-                                                                       block_id))
-            parts = [latest[bucket], table] if bucket in latest else [table]
-            latest[bucket] = _latest(pa.concat_tables(parts))
-        for bucket, table in latest.items():
-            self._put_latest(bucket, table)
+        buckets = [r[0] for r in self.db.execute("SELECT DISTINCT bucket FROM blocks")]
+        for bucket in sorted(buckets):  # one bucket's latest and one block in memory
+            latest = None
+            for (block_id,) in self.db.execute("SELECT id FROM blocks WHERE bucket = ? "
+                                               "ORDER BY id", (bucket,)).fetchall():
+                (data,) = self.db.execute("SELECT data FROM blocks WHERE id = ?",
+                                          (block_id,)).fetchone()
+                table = _decode(data)  # layout 1's hex ids read as 16 bytes
+                self.db.execute("UPDATE blocks SET data = ? WHERE id = ?",
+                                (_encode(table.combine_chunks()), block_id))
+                latest = _latest(table if latest is None else pa.concat_tables([latest,
+                                                                                  table]))
+            if latest is not None:
+                self._put_latest(bucket, latest)
 
     def _key_check(self) -> str:
         assert self.key is not None
@@ -439,7 +439,7 @@ class Store:
                                   (_DIGITS[d],)).fetchone()
             if got is None:
                 continue
-            table = self._latest_read[_DIGITS[d]] = _decode(got[0])
+            table = _decode(got[0])
             p = prefix64(table["patient"])
             t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
             at = np.minimum(np.searchsorted(pref, p), len(pref) - 1)
@@ -535,16 +535,12 @@ class Store:
                     for lo, hi in itertools.pairwise(edges):
                         latest.setdefault(_DIGITS[digit[lo]], []).append(
                             mine.slice(lo, hi - lo))
-            for bucket, parts in latest.items():
-                old = self._latest_read.get(bucket)  # (as this run's ``earlier`` read it)
-                if old is None:
-                    got = self.db.execute("SELECT data FROM latest WHERE bucket = ?",
-                                          (bucket,)).fetchone()
-                    old = _decode(got[0]) if got is not None else None
-                if old is not None:
-                    parts.insert(0, old)
+            for bucket, parts in latest.items():  # (one bucket in memory at a time)
+                got = self.db.execute("SELECT data FROM latest WHERE bucket = ?",
+                                      (bucket,)).fetchone()
+                if got is not None:
+                    parts.insert(0, _decode(got[0]))
                 self._put_latest(bucket, _latest(pa.concat_tables(parts)))
-            self._latest_read = {}
             self.db.execute("UPDATE runs SET panels_added = ?, panels_already_stored = ? "
                             "WHERE id = ?", (record.added, record.already_stored, run_id))
             self._prune(cutoff)
@@ -559,7 +555,6 @@ class Store:
         if self._in_run or self.db.in_transaction:
             self.db.execute("ROLLBACK")
         self._in_run = False
-        self._latest_read = {}
 
     def _write_blocks(self, run_id: int, table: pa.Table) -> None:
         """One block per patient bucket (the first hex digit of the keyed hash)."""

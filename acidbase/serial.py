@@ -744,6 +744,8 @@ def _codes(x: pa.ChunkedArray | pa.Array) -> np.ndarray:
 
 _HEX = np.zeros(256, dtype=np.uint8)
 _HEX[np.frombuffer(b"0123456789abcdef", dtype=np.uint8)] = np.arange(16, dtype=np.uint8)
+_IS_HEX = np.zeros(256, dtype=bool)
+_IS_HEX[np.frombuffer(b"0123456789abcdef", dtype=np.uint8)] = True
 
 
 def hex_prefix64(hashes: pa.Array | pa.ChunkedArray) -> np.ndarray:
@@ -788,9 +790,15 @@ def keyed_binary(ids: pa.Array | pa.ChunkedArray) -> pa.Array:
     raw = np.zeros((n, 16), dtype=np.uint8)
     real = np.flatnonzero(~blank)
     if real.size:
-        hexes = texts.take(pa.array(real))
-        digits = np.frombuffer(b"".join(h.encode("ascii") for h in hexes.to_pylist()),
-                               dtype=np.uint8).reshape(-1, 32)
+        offsets = np.frombuffer(texts.buffers()[1], dtype=np.int32)[texts.offset:
+                                                                    texts.offset + n + 1]
+        data = np.frombuffer(texts.buffers()[2], dtype=np.uint8)
+        start = offsets[real]
+        if not (offsets[real + 1] - start == 32).all():
+            raise ValueError("a keyed id is not 32 hex digits")
+        digits = data[start[:, None] + np.arange(32, dtype=np.int32)]
+        if not _IS_HEX[digits].all():
+            raise ValueError("a keyed id is not 32 hex digits")
         nib = _HEX[digits]
         raw[real] = (nib[:, 0::2] << 4) | nib[:, 1::2]
     valid = pa.py_buffer(np.packbits(~blank, bitorder="little").tobytes())
