@@ -512,7 +512,6 @@ class Store:
                 (_now_text(), record.tool_version, json.dumps(record.settings, sort_keys=True),
                  record.input_sha256, record.earlier_used))
             run_id = cur.lastrowid
-            latest: dict[str, list[pa.Table]] = {}
             for table in panels:
                 if not pa.types.is_fixed_size_binary(table.schema.field("patient").type):
                     table = table.set_column(  # (hex ids, as layout 1 kept them)
@@ -527,20 +526,13 @@ class Store:
                 # One record batch: a block of one batch is encoded and decoded several
                 # times faster than one of the many chunks a run's partition comes in.
                 table = table.combine_chunks()
-                self._write_blocks(run_id, table)
-                if table.num_rows:
-                    mine = _latest(table)
-                    digit = _first_digit(mine["patient"])
-                    edges = np.r_[0, np.flatnonzero(np.diff(digit)) + 1, len(digit)]
-                    for lo, hi in itertools.pairwise(edges):
-                        latest.setdefault(_DIGITS[digit[lo]], []).append(
-                            mine.slice(lo, hi - lo))
-            for bucket, parts in latest.items():  # (one bucket in memory at a time)
-                got = self.db.execute("SELECT data FROM latest WHERE bucket = ?",
-                                      (bucket,)).fetchone()
-                if got is not None:
-                    parts.insert(0, _decode(got[0]))
-                self._put_latest(bucket, _latest(pa.concat_tables(parts)))
+                for bucket, part in self._write_blocks(run_id, table) or ():
+                    # The bucket's latest panels with these (a run's partition holds
+                    # one bucket: one bucket's panels in memory at a time).
+                    got = self.db.execute("SELECT data FROM latest WHERE bucket = ?",
+                                          (bucket,)).fetchone()
+                    parts = [part] if got is None else [_decode(got[0]), part]
+                    self._put_latest(bucket, _latest(pa.concat_tables(parts)))
             self.db.execute("UPDATE runs SET panels_added = ?, panels_already_stored = ? "
                             "WHERE id = ?", (record.added, record.already_stored, run_id))
             self._prune(cutoff)
@@ -556,24 +548,27 @@ class Store:
             self.db.execute("ROLLBACK")
         self._in_run = False
 
-    def _write_blocks(self, run_id: int, table: pa.Table) -> None:
-        """One block per patient bucket (the first hex digit of the keyed hash)."""
+    def _write_blocks(self, run_id: int, table: pa.Table) -> list[tuple[str, pa.Table]]:
+        """One block per patient bucket (the first hex digit of the keyed hash); the
+        buckets and their panels."""
         if table.num_rows == 0:
-            return
+            return []
         idx = _first_digit(table["patient"])
         if not (idx[1:] >= idx[:-1]).all():  # (a run's partitions are one digit each)
             order = np.argsort(idx, kind="stable")
             table = table.take(pa.array(order))
             idx = idx[order]
         edges = np.r_[0, np.flatnonzero(np.diff(idx)) + 1, len(idx)]
-        rows = []
+        parts = []
         for lo, hi in itertools.pairwise(edges):
             part = table.slice(lo, hi - lo)
             t = part["t"]
-            rows.append((run_id, _DIGITS[idx[lo]], part.num_rows, pc.min(t).as_py(),
-                         pc.max(t).as_py(), _encode(part)))
-        self.db.executemany("INSERT INTO blocks (run_id, bucket, n, tmin, tmax, data) "
-                            "VALUES (?, ?, ?, ?, ?, ?)", rows)
+            self.db.execute("INSERT INTO blocks (run_id, bucket, n, tmin, tmax, data) "
+                            "VALUES (?, ?, ?, ?, ?, ?)", (
+                                run_id, _DIGITS[idx[lo]], part.num_rows, pc.min(t).as_py(),
+                                pc.max(t).as_py(), _encode(part)))
+            parts.append((_DIGITS[idx[lo]], part))
+        return parts
 
     def _prune(self, cutoff: int) -> int:
         """Drop panels collected before ``cutoff``: whole blocks, or rewrite a block
@@ -726,12 +721,13 @@ def _latest(table: pa.Table) -> pa.Table:
     return sub.take(pa.array(order))
 
 
-def _encode(table: pa.Table) -> bytes:
+def _encode(table: pa.Table) -> memoryview:
+    """A block's bytes (an Arrow IPC stream), handed to SQLite without a copy."""
     sink = pa.BufferOutputStream()
     opts = ipc.IpcWriteOptions(compression=_COMPRESSION)
     with ipc.new_stream(sink, table.schema, options=opts) as w:
         w.write_table(table)
-    return sink.getvalue().to_pybytes()
+    return memoryview(sink.getvalue())
 
 
 def _decode(data: bytes) -> pa.Table:

@@ -15,6 +15,7 @@ from __future__ import annotations
 import hashlib
 import hmac
 import os
+from contextlib import contextmanager
 from unittest import mock
 
 import numpy as np
@@ -38,15 +39,28 @@ def oracle(word: str | None, key: bytes) -> bytes | None:
     return hmac.digest(key, word.encode("utf-8"), hashlib.sha256)[:16]
 
 
-def compiled_ids(words: pa.Array, key: bytes) -> tuple[np.ndarray, np.ndarray]:
+@contextmanager
+def route(fast: bool):
+    """The compiled edge with the x86 SHA extensions (where the processor has them) or
+    its portable C: both are held to the same oracle."""
+    history._idhash.accelerated(fast)
+    try:
+        yield
+    finally:
+        history._idhash.accelerated(True)
+
+
+def compiled_ids(words: pa.Array, key: bytes, fast: bool = True
+                 ) -> tuple[np.ndarray, np.ndarray]:
     """``history.keyed_ids`` by the compiled edge (never the fallback)."""
     raw = np.zeros((len(words), 16), dtype=np.uint8)
     blank = np.ones(len(words), dtype=np.uint8)
     if len(words):
         bufs = words.buffers()
-        history._idhash.hmac16(key, len(words), words.offset, bufs[0], bufs[1],
-                               bufs[2] if bufs[2] is not None else b"",
-                               pa.types.is_large_string(words.type), raw, blank)
+        with route(fast):
+            history._idhash.hmac16(key, len(words), words.offset, bufs[0], bufs[1],
+                                   bufs[2] if bufs[2] is not None else b"",
+                                   pa.types.is_large_string(words.type), raw, blank)
     return raw, blank.view(bool)
 
 
@@ -70,16 +84,17 @@ keys = st.one_of(st.binary(max_size=80), st.binary(min_size=60, max_size=200))
 
 
 @compiled
+@pytest.mark.parametrize("fast", [True, False])
 @settings(max_examples=300, deadline=None)
 @given(words=st.lists(ids, max_size=40), key=keys, cut=st.integers(0, 5),
        large=st.booleans())
-def test_compiled_keyed_ids_are_the_standard_librarys_hmac(words, key, cut, large):
+def test_compiled_keyed_ids_are_the_standard_librarys_hmac(fast, words, key, cut, large):
     """Byte for byte, also for a slice of an array (its offset into the buffers) and
-    for large text arrays (64-bit offsets)."""
+    for large text arrays (64-bit offsets); both routes of the compiled edge."""
     arr = pa.array(words, pa.large_string() if large else pa.string())
     arr = arr.slice(min(cut, len(words)))
     want = [oracle(w, key) for w in words[min(cut, len(words)):]]
-    assert as_list(*compiled_ids(arr, key)) == want
+    assert as_list(*compiled_ids(arr, key, fast)) == want
 
 
 @settings(max_examples=100, deadline=None)
@@ -140,11 +155,12 @@ RFC_4231 = [
 
 
 @compiled
+@pytest.mark.parametrize("fast", [True, False])
 @pytest.mark.parametrize("key, data, want", RFC_4231)
-def test_rfc_4231_test_vectors_give_their_first_16_bytes(key, data, want):
+def test_rfc_4231_test_vectors_give_their_first_16_bytes(key, data, want, fast):
     offsets = pa.py_buffer(np.array([0, len(data)], dtype=np.int32))
     arr = pa.Array.from_buffers(pa.string(), 1, [None, offsets, pa.py_buffer(data)])
-    raw, blank = compiled_ids(arr, key)
+    raw, blank = compiled_ids(arr, key, fast)
     assert not blank[0] and bytes(raw[0]).hex() == want[:32]
 
 
@@ -161,17 +177,34 @@ FIPS_180 = [
 
 
 @compiled
+@pytest.mark.parametrize("fast", [True, False])
 @pytest.mark.parametrize("data, want", FIPS_180)
-def test_fips_180_4_examples(data, want):
-    assert history._idhash.sha256(data).hex() == want == hashlib.sha256(data).hexdigest()
+def test_fips_180_4_examples(data, want, fast):
+    with route(fast):
+        got = history._idhash.sha256(data).hex()
+    assert got == want == hashlib.sha256(data).hexdigest()
 
 
 @compiled
+@pytest.mark.parametrize("fast", [True, False])
 @settings(max_examples=200, deadline=None)
 @given(data=st.binary(max_size=300))
-def test_sha256_of_every_length_is_hashlibs(data):
+def test_sha256_of_every_length_is_hashlibs(fast, data):
     """Every padding case: lengths around 55, 56 and 64 bytes of FIPS 180-4 5.1.1."""
-    assert history._idhash.sha256(data) == hashlib.sha256(data).digest()
+    with route(fast):
+        got = history._idhash.sha256(data)
+    assert got == hashlib.sha256(data).digest()
+
+
+@compiled
+def test_the_portable_route_can_be_chosen_and_the_fast_one_is_used_where_it_exists():
+    """accelerated(False) forces the portable C; accelerated(True) answers whether the
+    processor's SHA extensions are used (on x86-64 with them: /proc/cpuinfo "sha_ni")."""
+    with route(False):
+        assert history._idhash.accelerated() is False
+    flags = open("/proc/cpuinfo").read() if os.path.exists("/proc/cpuinfo") else ""
+    if " sha_ni" in flags and os.uname().machine == "x86_64":
+        assert history._idhash.accelerated() is True
 
 
 @compiled
