@@ -679,11 +679,58 @@ def _series_order(pid: np.ndarray, t: np.ndarray, row: np.ndarray) -> np.ndarray
 
 
 def _formatted(x: np.ndarray, fmt: Callable[[float], str]) -> pa.Array:
-    """``fmt`` of each value, each distinct value formatted once."""
+    """``fmt`` of each value, each distinct value formatted once: once a process
+    (``_Texts``), apart from zeros and NaN (formatted each time, as ``np.unique``
+    gives them: -0.0 and 0.0 are one value to it)."""
     if len(x) == 0:
         return pa.array([], pa.string())
     u, inv = np.unique(x, return_inverse=True)
-    return pa.array([fmt(float(v)) for v in u], pa.string()).take(pa.array(inv.ravel()))
+    memo = _MEMOS.get(fmt)
+    if memo is None:
+        memo = _MEMOS.setdefault(fmt, _Texts(fmt))
+    return memo.texts(u).take(pa.array(inv.ravel()))
+
+
+class _Texts:
+    """Formatted values kept across partitions (sorted values, their texts), so that a
+    value seen in an earlier partition is not formatted again."""
+
+    def __init__(self, fmt: Callable[[float], str]) -> None:
+        self.fmt = fmt
+        self.keys = np.zeros(0, dtype=np.float64)
+        self.words = pa.array([], pa.string())
+        self.lock = threading.Lock()
+
+    def texts(self, u: np.ndarray) -> pa.Array:
+        """The texts of ``u`` (sorted distinct values, NaN last)."""
+        plain = (u != 0) & ~np.isnan(u)  # kept values
+        with self.lock:
+            keys, words = self.keys, self.words
+            pos = np.minimum(np.searchsorted(keys, u), max(len(keys) - 1, 0))
+            known = plain & (keys[pos] == u) if len(keys) else np.zeros(len(u), dtype=bool)
+            new = plain & ~known
+            if new.any():
+                keys = np.concatenate([keys, u[new]])
+                words = pa.concat_arrays([words, pa.array(
+                    [self.fmt(float(v)) for v in u[new]], pa.string())])
+                order = np.argsort(keys, kind="stable")
+                keys, words = keys[order], words.take(pa.array(order))
+                if len(keys) <= _MEMO_SIZE:
+                    self.keys, self.words = keys, words
+                pos = np.minimum(np.searchsorted(keys, u), len(keys) - 1)
+        out = words.take(pa.array(pos))
+        if plain.all():
+            return out
+        odd = np.flatnonzero(~plain)  # zeros and NaN: as np.unique gave them
+        at = np.arange(len(u))
+        at[odd] = len(u) + np.arange(len(odd))
+        extra = pa.array([self.fmt(float(v)) for v in u[odd]], pa.string())
+        return pa.concat_arrays([out, extra]).take(pa.array(at))
+
+
+#: Formatted values kept per format (at most ``_MEMO_SIZE`` values each).
+_MEMOS: dict[Callable[[float], str], _Texts] = {}
+_MEMO_SIZE = 1 << 20
 
 
 def _numbers(x: np.ndarray) -> pa.Array:
