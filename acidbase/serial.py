@@ -661,9 +661,10 @@ def _joined(parts: Sequence[tuple[str, np.ndarray, pa.Array]], n: int, sep: str,
 
 def _series_order(pid: np.ndarray, t: np.ndarray, row: np.ndarray) -> np.ndarray:
     """The order by patient, then time, then row: ``np.lexsort((row, t, pid))``.
-    With the rows put in row order first, one stable sort of an integer key that
-    holds the patient above the time does it (many times faster on a partition);
-    the lexsort is kept for keys that do not fit in 63 bits."""
+    One stable sort of an integer key that holds the patient above the time does it
+    (many times faster on a partition) when the rows are in row order or no two
+    share a patient and a time; else with the rows put in row order first.  The
+    lexsort is kept for keys that do not fit in 63 bits."""
     if len(row) == 0:
         return np.zeros(0, dtype=np.int64)
     span = int(t.max()) - int(t.min())
@@ -671,10 +672,15 @@ def _series_order(pid: np.ndarray, t: np.ndarray, row: np.ndarray) -> np.ndarray
     bits = span.bit_length()
     if top.bit_length() + bits > 62:
         return np.lexsort((row, t, pid))
-    by_row = None if (row[1:] > row[:-1]).all() else np.argsort(row, kind="stable")
     key = ((pid + 1).astype(np.int64) << bits) | (t - t.min())
-    if by_row is None:
-        return np.argsort(key, kind="stable")
+    order = np.argsort(key, kind="stable")
+    if (row[1:] > row[:-1]).all():
+        return order
+    k = key[order]
+    if not (k[1:] == k[:-1]).any():  # no shared patient and time: the rows decide nothing
+        return order
+    # (earlier panels, numbered below this file's rows, sharing a time with another)
+    by_row = np.argsort(row, kind="stable")
     return by_row[np.argsort(key[by_row], kind="stable")]
 
 

@@ -199,6 +199,9 @@ def test_the_series_order_is_numpys_lexsort_by_patient_time_and_row(span):
     ordered = np.arange(n)
     assert serial._series_order(pid, t, ordered).tolist() == np.lexsort(
         (ordered, t, pid)).tolist()
+    alone = rng.permutation(n) * (span // n)  # no patient and time shared
+    assert serial._series_order(pid, alone, row).tolist() == np.lexsort(
+        (row, alone, pid)).tolist()
 
 
 def test_hex_prefix_reads_the_first_64_bits_as_python_int_does():
