@@ -462,32 +462,34 @@ class Store:
         """Of the patients ``ids`` (sorted hash prefixes), the stored panels in ``lo`` to
         ``hi`` from each one's first panel here (``first``, by ``pref``) on, and the
         latest before it: read from the blocks of their buckets."""
-        buckets = sorted({_DIGITS[d] for d in (ids >> np.uint64(60)).tolist()})
-        cur = self.db.execute(
-            f"SELECT data FROM blocks WHERE bucket IN ({','.join('?' * len(buckets))}) "
-            "AND tmax >= ? AND tmin <= ? ORDER BY id", (*buckets, int(lo), int(hi)))
-        parts = []
-        for (data,) in cur:
-            table = _decode(data)
+        for bucket in sorted({_DIGITS[d] for d in (ids >> np.uint64(60)).tolist()}):
+            # One sixteenth at a time (a patient's panels are all in one): a file read
+            # again holds only that sixteenth's panels in memory.
+            cur = self.db.execute("SELECT data FROM blocks WHERE bucket = ? AND tmax >= ? "
+                                  "AND tmin <= ? ORDER BY id", (bucket, int(lo), int(hi)))
+            parts = []
+            for (data,) in cur:
+                table = _decode(data)
+                p = prefix64(table["patient"])
+                t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
+                at = np.minimum(np.searchsorted(ids, p), len(ids) - 1)
+                mine = (ids[at] == p) & (t >= lo) & (t <= hi)
+                if mine.any():
+                    parts.append(table.filter(pa.array(mine)))
+            if not parts:
+                continue
+            table = pa.concat_tables(parts).combine_chunks()
+            del parts
             p = prefix64(table["patient"])
             t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
-            at = np.minimum(np.searchsorted(ids, p), len(ids) - 1)
-            mine = (ids[at] == p) & (t >= lo) & (t <= hi)
-            if mine.any():
-                parts.append(table.filter(pa.array(mine)))
-        if not parts:
-            return
-        table = pa.concat_tables(parts).combine_chunks()
-        p = prefix64(table["patient"])
-        t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
-        at = np.searchsorted(pref, p)
-        before = t < first[at]
-        keep = ~before
-        if before.any():  # each patient's latest before its first panel here
-            latest = np.full(len(pref), np.iinfo(np.int64).min, dtype=np.int64)
-            np.maximum.at(latest, at[before], t[before])
-            keep |= before & (t == latest[at])
-        yield table.filter(pa.array(keep))
+            at = np.searchsorted(pref, p)
+            before = t < first[at]
+            keep = ~before
+            if before.any():  # each patient's latest before its first panel here
+                latest = np.full(len(pref), np.iinfo(np.int64).min, dtype=np.int64)
+                np.maximum.at(latest, at[before], t[before])
+                keep |= before & (t == latest[at])
+            yield table.filter(pa.array(keep))
 
     def _blocks(self, lo: int, hi: int, filtered: bool = True) -> Iterator[pa.Table]:
         """The blocks that overlap ``lo`` to ``hi``, each cut to that range (or whole:
