@@ -75,9 +75,9 @@ static void compress_c(uint32_t st[8], const unsigned char *p) {
 #include <cpuid.h>
 #include <immintrin.h>
 
-/* The same compression with the x86 SHA extensions (Intel, "Intel SHA Extensions",
- * Gulley et al., 2013): four rounds per two SHA256RNDS2, the schedule by SHA256MSG1
- * and SHA256MSG2.  Used only when the processor has them (CPUID leaf 7, EBX bit 29;
+/* The same compression with the x86 SHA extensions (the processor maker's instruction
+ * set reference, SHA256RNDS2, SHA256MSG1, SHA256MSG2): two rounds per SHA256RNDS2,
+ * the message schedule of FIPS 180-4 6.2.2 step 1 four words at a time.  Used only when the processor has them (CPUID leaf 7, EBX bit 29;
  * SSSE3 and SSE4.1); the tests compare both with hashlib. */
 __attribute__((target("sha,ssse3,sse4.1")))
 static void compress_ni(uint32_t st[8], const unsigned char *p) {
