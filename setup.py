@@ -1,8 +1,10 @@
-"""The optional compiled edge (acidbase._csvfast); everything else is in pyproject.toml.
+"""The optional compiled edges (acidbase._csvfast, acidbase._idhash); everything else is
+in pyproject.toml.
 
-The extension is optional: without a C compiler, or when its build fails, ``pip
+The extensions are optional: without a C compiler, or when a build fails, ``pip
 install .`` still installs acidbase, which then writes CSV with its Python code
-(acidbase/csvtext.py).  Built against the limited API of Python 3.11 (one abi3
+(acidbase/csvtext.py) and hashes the history store's patient ids with hashlib
+(acidbase/history.py).  Built against the limited API of Python 3.11 (one abi3
 binary serves 3.11 and later), without fused multiply-add contraction or fast-math:
 its rounding must be the same IEEE arithmetic as numpy's.
 """
@@ -25,7 +27,15 @@ setup(
             py_limited_api=True,
             extra_compile_args=flags,
             optional=True,
-        )
+        ),
+        Extension(
+            "acidbase._idhash",
+            sources=["acidbase/_idhash.c"],
+            define_macros=[("Py_LIMITED_API", "0x030B0000")],
+            py_limited_api=True,
+            extra_compile_args=flags,
+            optional=True,
+        ),
     ],
     options={"bdist_wheel": {"py_limited_api": "cp311"}},
 )

@@ -6,7 +6,11 @@ run and one sixteenth of the patients (the first hex digit of the keyed hash), w
 its time range beside it.  A run writes one block per serial-check partition (cut
 along the same digits) in one transaction instead of a million rows (row-wise
 inserts measured 4.5 s per million panels here, far beyond the 20 % a store may add
-to a run), and reads back only the blocks that overlap its time range.
+to a run).  Layout 2 keeps the keyed ids as their 16 bytes and, beside the blocks,
+each sixteenth's ``latest`` block: every stored patient's panels at the patient's
+latest time.  A run reads those (the latest panel before each of its patients' first
+panel), and the blocks only for patients stored from their first panel on (a file
+read again, overlapping exports).
 
 Privacy: a patient id is stored only as its keyed hash, HMAC-SHA256 with the
 site's key (RFC 2104; FIPS 198-1), never in plain; the key is never stored (only
@@ -42,10 +46,15 @@ from pyarrow import ipc
 
 from .config import DEFAULT_HISTORY_RETENTION_DAYS
 from .errors import AcidBaseError
-from .serial import STORED_FIELDS, hex_prefix64
+from .serial import KEYED_BYTES, STORED_FIELDS, keyed_binary, prefix64
+
+try:  # optional: absent when the package was installed without a C compiler
+    from . import _idhash
+except ImportError:  # pragma: no cover - depends on the build
+    _idhash = None
 
 #: Version of the store's layout; a store of a later version is refused.
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 #: Environment variable that holds the site key (the site configuration may set it).
 KEY_ENV = "ACIDBASE_HISTORY_KEY"
 #: Shortest key accepted, in bytes (RFC 2104 section 3: at least the hash's output
@@ -63,8 +72,11 @@ _DAY = 86400
 #: retention and the environment variable holding the key.
 SETTINGS = {"path": None, "retention_days": DEFAULT_RETENTION_DAYS, "key_env": KEY_ENV}
 
-BLOCK_SCHEMA = pa.schema([("patient", pa.string()), ("t", pa.int64()), ("zoned", pa.bool_()),
-                          ("sample", pa.string())]
+#: A block's columns (layout 2): the keyed patient id as its 16 bytes (layout 1 kept
+#: it as 32 hex digits), the collection time (seconds; UTC when ``zoned``), the
+#: sample id as written, the stored fields.
+BLOCK_SCHEMA = pa.schema([("patient", pa.binary(KEYED_BYTES)), ("t", pa.int64()),
+                          ("zoned", pa.bool_()), ("sample", pa.string())]
                          + [(f, pa.float64()) for f in STORED_FIELDS])
 
 _DDL = """
@@ -77,7 +89,12 @@ CREATE TABLE blocks (id INTEGER PRIMARY KEY, run_id INTEGER NOT NULL REFERENCES 
                      tmax INTEGER NOT NULL, data BLOB NOT NULL);
 CREATE INDEX blocks_time ON blocks (tmax, tmin);
 CREATE INDEX blocks_bucket ON blocks (bucket);
+CREATE TABLE latest (bucket TEXT PRIMARY KEY, n INTEGER NOT NULL, tmin INTEGER NOT NULL,
+                     data BLOB NOT NULL);
 """
+#: Layout 2 adds ``latest``: per bucket, one block of each stored patient's panels at
+#: the patient's latest collection time (all of them when several share it), in the
+#: order of their ids; a run reads these instead of every block in its time range.
 
 
 class HistoryError(AcidBaseError):
@@ -106,28 +123,84 @@ def hash_id(patient_id: str, key: bytes) -> str:
 
 
 def hash_ids(ids: pa.Array | pa.ChunkedArray, key: bytes) -> pa.Array:
-    """Patient ids -> their stored form (each distinct id hashed once); a missing or
-    blank id stays empty (it takes no part in the serial checks)."""
-    indices, hashed = _hash_distinct(ids, _Hmac(key))
-    return pc.fill_null(hashed.take(indices), "")
+    """Patient ids -> their stored form in hex (each distinct id hashed once); a
+    missing or blank id stays empty (it takes no part in the serial checks)."""
+    enc = _distinct(ids)
+    raw, blank = keyed_ids(enc.dictionary, key)
+    return pc.fill_null(_hex(raw, blank).take(enc.indices), "")
 
 
-def _hash_distinct(ids: pa.Array | pa.ChunkedArray, one: _Hmac) -> tuple[pa.Array, pa.Array]:
-    """The ids dictionary-encoded: their indices (null for a missing id) and each
-    distinct id's stored form ("" for a blank one), hashed once per distinct id."""
+def _distinct(ids: pa.Array | pa.ChunkedArray) -> pa.DictionaryArray:
+    """The ids dictionary-encoded (one array of text)."""
     if isinstance(ids, pa.ChunkedArray):
         ids = ids.combine_chunks()
-    if not pa.types.is_string(ids.type):
+    if not (pa.types.is_string(ids.type) or pa.types.is_large_string(ids.type)):
         ids = pc.cast(ids, pa.string())
-    enc = pc.dictionary_encode(ids)
-    words = enc.dictionary.to_pylist()
-    return enc.indices, pa.array([one(w) if w and w.strip() else "" for w in words],
-                                 pa.string())
+    return pc.dictionary_encode(ids)
+
+
+def keyed_ids(words: pa.Array, key: bytes, one: _Hmac | None = None
+              ) -> tuple[np.ndarray, np.ndarray]:
+    """Each id of an Arrow text array as stored: its HMAC-SHA256 truncated to 16
+    bytes (rows of an ``(n, 16)`` uint8 array), and whether it is blank (missing,
+    empty or only white space as ``str.strip`` sees it: no hash, zeros).
+
+    The compiled edge (``acidbase._idhash``) works on the array's buffers when it is
+    built and not switched off (``ACIDBASE_PURE_PYTHON=1``); the Python code below it
+    (``_Hmac``, hashlib) is the fallback and the reference (tests/test_idhash.py)."""
+    n = len(words)
+    raw = np.zeros((n, 16), dtype=np.uint8)
+    blank = np.ones(n, dtype=np.uint8)
+    if n == 0:
+        return raw, blank.astype(bool)
+    if _idhash is not None and not os.environ.get("ACIDBASE_PURE_PYTHON"):
+        bufs = words.buffers()
+        _idhash.hmac16(key, n, words.offset, bufs[0] if words.null_count else None,
+                       bufs[1], bufs[2] if bufs[2] is not None else b"",
+                       pa.types.is_large_string(words.type), raw, blank)
+        return raw, blank.view(bool)
+    one = one or _Hmac(key)
+    for i, w in enumerate(words.to_pylist()):
+        if w and w.strip():
+            raw[i] = np.frombuffer(one.raw(w), dtype=np.uint8)
+            blank[i] = 0
+    return raw, blank.view(bool)
+
+
+def _prefix(raw: np.ndarray) -> np.ndarray:
+    """The first 64 bits of 16-byte hashes as unsigned integers (big-endian, as
+    ``serial.hex_prefix64`` reads the hex digits)."""
+    return np.ascontiguousarray(raw[:, :8]).view(">u8").ravel().astype(np.uint64)
+
+
+_HEX_PAIRS = np.frombuffer(b"".join(b"%02x" % i for i in range(256)),
+                           dtype=np.uint8).reshape(256, 2)
+
+
+def _hex(raw: np.ndarray, blank: np.ndarray) -> pa.Array:
+    """16-byte hashes as 32 hex digits ("" where blank), without a Python object each."""
+    n = len(raw)
+    width = np.where(blank, 0, 32).astype(np.int32)
+    offsets = np.zeros(n + 1, dtype=np.int32)
+    np.cumsum(width, out=offsets[1:])
+    data = _HEX_PAIRS[raw[~blank]].reshape(-1)
+    return pa.StringArray.from_buffers(n, pa.py_buffer(offsets), pa.py_buffer(data.tobytes()))
+
+
+def _binary(raw: np.ndarray, blank: np.ndarray) -> pa.Array:
+    """16-byte hashes as an Arrow ``fixed_size_binary(16)`` array, null where blank."""
+    n = len(raw)
+    valid = None
+    if blank.any():
+        valid = pa.py_buffer(np.packbits(~blank, bitorder="little").tobytes())
+    return pa.FixedSizeBinaryArray.from_buffers(pa.binary(16), n, [
+        valid, pa.py_buffer(np.ascontiguousarray(raw).tobytes())])
 
 
 class _Hmac:
     """``hash_id`` for many ids: HMAC-SHA256 (RFC 2104 section 2) from the key's inner
-    and outer hash states, copied per id (half the time of a one-shot call each)."""
+    and outer hash states, copied per id (half the time of a one-shot call each).
+    The fallback of the compiled ``acidbase._idhash`` and its reference."""
 
     def __init__(self, key: bytes) -> None:
         if len(key) > 64:  # longer than SHA-256's block: hashed first (RFC 2104)
@@ -136,12 +209,16 @@ class _Hmac:
         self.inner = hashlib.sha256(bytes(b ^ 0x36 for b in key))
         self.outer = hashlib.sha256(bytes(b ^ 0x5C for b in key))
 
-    def __call__(self, patient_id: str) -> str:
+    def raw(self, patient_id: str) -> bytes:
+        """The first 16 bytes of the HMAC (RFC 2104 section 5 truncation)."""
         i = self.inner.copy()
         i.update(patient_id.encode("utf-8"))
         o = self.outer.copy()
         o.update(i.digest())
-        return o.digest()[:16].hex()
+        return o.digest()[:16]
+
+    def __call__(self, patient_id: str) -> str:
+        return self.raw(patient_id).hex()
 
 
 @dataclass
@@ -235,18 +312,58 @@ class Store:
                 f"{self.path} was written by a later version of acidbase (store version "
                 f"{version}; this version reads up to {SCHEMA_VERSION}); use that version, "
                 "or a new store")
-        if version < SCHEMA_VERSION:
-            self._migrate(version)
         if self.key is not None and meta.get("key_check") != self._key_check():
             raise HistoryError(f"{self.path} was made with another site key; this key would "
                                "match none of its patients")
+        if version < SCHEMA_VERSION:
+            self._migrate(version)
 
     def _migrate(self, version: int) -> None:
-        """Bring an older store up to date, one step at a time, in one transaction."""
-        steps: dict[int, str] = {}  # version -> SQL to the next; none yet (1 is the first)
-        if version not in steps:
+        """Bring an older store up to this layout in one transaction (all or nothing):
+        from layout 1, each block's patient ids from hex text to their 16 bytes, and
+        the ``latest`` table built from the blocks."""
+        if version != 1:
             raise HistoryError(f"{self.path}: store version {version} cannot be read or "
                                f"migrated by this version (store version {SCHEMA_VERSION})")
+        self._lock()
+        try:
+            now = int(dict(self.db.execute("SELECT name, value FROM meta")).get(
+                "schema_version", "0"))
+            if now == 1:  # (unless another run migrated it while this one waited)
+                self._migrate_1_to_2()
+                self.db.execute("UPDATE meta SET value = ? WHERE name = 'schema_version'",
+                                (str(SCHEMA_VERSION),))
+                self.db.execute("INSERT OR REPLACE INTO meta VALUES ('migrated_at', ?)",
+                                (_now_text(),))
+            self.db.execute("COMMIT")
+        except (sqlite3.DatabaseError, pa.ArrowException, ValueError) as e:
+            self.db.execute("ROLLBACK")
+            raise HistoryError(
+                f"{self.path}: this store (version 1) could not be brought to store version "
+                f"{SCHEMA_VERSION} ({e}); it is unchanged: read it with the acidbase version "
+                "that wrote it, or start a new store") from None
+        except BaseException:
+            if self.db.in_transaction:
+                self.db.execute("ROLLBACK")
+            raise
+
+    def _migrate_1_to_2(self) -> None:
+        self.db.execute("CREATE TABLE latest (bucket TEXT PRIMARY KEY, n INTEGER NOT NULL, "
+                        "tmin INTEGER NOT NULL, data BLOB NOT NULL)")
+        buckets = [r[0] for r in self.db.execute("SELECT DISTINCT bucket FROM blocks")]
+        for bucket in sorted(buckets):  # one bucket's latest and one block in memory
+            latest = None
+            for (block_id,) in self.db.execute("SELECT id FROM blocks WHERE bucket = ? "
+                                               "ORDER BY id", (bucket,)).fetchall():
+                (data,) = self.db.execute("SELECT data FROM blocks WHERE id = ?",
+                                          (block_id,)).fetchone()
+                table = _decode(data)  # layout 1's hex ids read as 16 bytes
+                self.db.execute("UPDATE blocks SET data = ? WHERE id = ?",
+                                (_encode(table.combine_chunks()), block_id))
+                latest = _latest(table if latest is None else pa.concat_tables([latest,
+                                                                                  table]))
+            if latest is not None:
+                self._put_latest(bucket, latest)
 
     def _key_check(self) -> str:
         assert self.key is not None
@@ -272,24 +389,27 @@ class Store:
 
     def hash_ids(self, ids: pa.Array | pa.ChunkedArray,
                  seconds: np.ndarray | None = None) -> pa.Array:
-        """``hash_ids`` with the store's key, remembering the run's patients and (with
-        ``seconds``, the collection times) each one's earliest time."""
+        """The ids' stored form as 16 bytes each (``fixed_size_binary(16)``, null for a
+        missing or blank id), remembering the run's patients and (with ``seconds``,
+        the collection times) each one's earliest time."""
         if self.key is None:
             raise HistoryError("hashing patient ids needs the site key")
         if self._hmac is None:
             self._hmac = _Hmac(self.key)
-        indices, words = _hash_distinct(ids, self._hmac)
+        enc = _distinct(ids)
+        raw, blank = keyed_ids(enc.dictionary, self.key, self._hmac)
+        m = len(raw)
         # Each distinct id's earliest time, from the indices (a missing id: the last slot).
-        idx = np.asarray(pc.fill_null(indices, len(words)).to_numpy(zero_copy_only=False),
+        idx = np.asarray(pc.fill_null(enc.indices, m).to_numpy(zero_copy_only=False),
                          dtype=np.int64)
-        first = np.full(len(words) + 1, np.iinfo(np.int64).max, dtype=np.int64)
+        first = np.full(m + 1, np.iinfo(np.int64).max, dtype=np.int64)
         if seconds is not None:
             np.minimum.at(first, idx, np.asarray(seconds, dtype=np.int64))
         else:
             first[:] = np.iinfo(np.int64).min
-        real = np.asarray(pc.not_equal(words, "").to_numpy(zero_copy_only=False), dtype=bool)
-        self._seen.append((hex_prefix64(words.filter(pa.array(real))), first[:-1][real]))
-        return pc.fill_null(words.take(indices), "")
+        real = ~blank
+        self._seen.append((_prefix(raw[real]), first[:-1][real]))
+        return _binary(raw, blank).take(enc.indices)
 
     def earlier(self, lo: int, hi: int) -> Iterator[pa.Table]:
         """Stored panels collected from ``lo`` to ``hi`` (seconds), a block at a time.
@@ -313,25 +433,63 @@ class Store:
         pref, first = pref[head], first[head]  # sorted; each patient's earliest time
         if len(pref) == 0:
             return
-        for table in self._blocks(lo, hi, filtered=False):
-            # One filter per block: in the time range, one of the run's patients, and
-            # of those before the patient's first panel here, the latest.
-            p = hex_prefix64(table["patient"])
+        # Each patient's latest stored panels, from the ``latest`` table: the one
+        # before the patient's first panel here, unless the store has panels of the
+        # patient from then on (a file read again, overlapping exports): those
+        # patients are read from the blocks.
+        again: list[np.ndarray] = []
+        for d in np.unique(pref >> np.uint64(60)).tolist():
+            got = self.db.execute("SELECT data FROM latest WHERE bucket = ?",
+                                  (_DIGITS[d],)).fetchone()
+            if got is None:
+                continue
+            table = _decode(got[0])
+            p = prefix64(table["patient"])
             t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
             at = np.minimum(np.searchsorted(pref, p), len(pref) - 1)
-            mine = np.flatnonzero((pref[at] == p) & (t >= lo) & (t <= hi))
-            if mine.size == 0:
+            mine = pref[at] == p
+            before = mine & (t < first[at])
+            if (mine & ~before).any():
+                again.append(p[mine & ~before])
+            keep = before & (t >= lo) & (t <= hi)
+            if keep.any():
+                yield table.filter(pa.array(keep))
+        if again:
+            yield from self._from_blocks(np.unique(np.concatenate(again)), pref, first, lo, hi)
+
+    def _from_blocks(self, ids: np.ndarray, pref: np.ndarray, first: np.ndarray, lo: int,
+                     hi: int) -> Iterator[pa.Table]:
+        """Of the patients ``ids`` (sorted hash prefixes), the stored panels in ``lo`` to
+        ``hi`` from each one's first panel here (``first``, by ``pref``) on, and the
+        latest before it: read from the blocks of their buckets."""
+        for bucket in sorted({_DIGITS[d] for d in (ids >> np.uint64(60)).tolist()}):
+            # One sixteenth at a time (a patient's panels are all in one): a file read
+            # again holds only that sixteenth's panels in memory.
+            cur = self.db.execute("SELECT data FROM blocks WHERE bucket = ? AND tmax >= ? "
+                                  "AND tmin <= ? ORDER BY id", (bucket, int(lo), int(hi)))
+            parts = []
+            for (data,) in cur:
+                table = _decode(data)
+                p = prefix64(table["patient"])
+                t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
+                at = np.minimum(np.searchsorted(ids, p), len(ids) - 1)
+                mine = (ids[at] == p) & (t >= lo) & (t <= hi)
+                if mine.any():
+                    parts.append(table.filter(pa.array(mine)))
+            if not parts:
                 continue
-            at, t = at[mine], t[mine]
+            table = pa.concat_tables(parts).combine_chunks()
+            del parts
+            p = prefix64(table["patient"])
+            t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
+            at = np.searchsorted(pref, p)
             before = t < first[at]
             keep = ~before
             if before.any():  # each patient's latest before its first panel here
                 latest = np.full(len(pref), np.iinfo(np.int64).min, dtype=np.int64)
                 np.maximum.at(latest, at[before], t[before])
                 keep |= before & (t == latest[at])
-            mask = np.zeros(table.num_rows, dtype=bool)
-            mask[mine[keep]] = True
-            yield table.filter(pa.array(mask))
+            yield table.filter(pa.array(keep))
 
     def _blocks(self, lo: int, hi: int, filtered: bool = True) -> Iterator[pa.Table]:
         """The blocks that overlap ``lo`` to ``hi``, each cut to that range (or whole:
@@ -361,13 +519,26 @@ class Store:
                  record.input_sha256, record.earlier_used))
             run_id = cur.lastrowid
             for table in panels:
+                if not pa.types.is_fixed_size_binary(table.schema.field("patient").type):
+                    table = table.set_column(  # (hex ids, as layout 1 kept them)
+                        table.schema.get_field_index("patient"), "patient",
+                        keyed_binary(table["patient"]))
                 old = pc.less(table["t"], cutoff)
                 n_old = int(pc.sum(old).as_py() or 0)
                 if n_old:  # (a copy only when there is something to leave out)
                     record.too_old += n_old
                     table = table.filter(pc.invert(old))
                 record.added += table.num_rows
-                self._write_blocks(run_id, table)
+                # One record batch: a block of one batch is encoded and decoded several
+                # times faster than one of the many chunks a run's partition comes in.
+                table = table.combine_chunks()
+                for bucket, part in self._write_blocks(run_id, table) or ():
+                    # The bucket's latest panels with these (a run's partition holds
+                    # one bucket: one bucket's panels in memory at a time).
+                    got = self.db.execute("SELECT data FROM latest WHERE bucket = ?",
+                                          (bucket,)).fetchone()
+                    parts = [part] if got is None else [_decode(got[0]), part]
+                    self._put_latest(bucket, _latest(pa.concat_tables(parts)))
             self.db.execute("UPDATE runs SET panels_added = ?, panels_already_stored = ? "
                             "WHERE id = ?", (record.added, record.already_stored, run_id))
             self._prune(cutoff)
@@ -383,25 +554,27 @@ class Store:
             self.db.execute("ROLLBACK")
         self._in_run = False
 
-    def _write_blocks(self, run_id: int, table: pa.Table) -> None:
-        """One block per patient bucket (the first hex digit of the keyed hash)."""
+    def _write_blocks(self, run_id: int, table: pa.Table) -> list[tuple[str, pa.Table]]:
+        """One block per patient bucket (the first hex digit of the keyed hash); the
+        buckets and their panels."""
         if table.num_rows == 0:
-            return
+            return []
         idx = _first_digit(table["patient"])
         if not (idx[1:] >= idx[:-1]).all():  # (a run's partitions are one digit each)
             order = np.argsort(idx, kind="stable")
             table = table.take(pa.array(order))
             idx = idx[order]
         edges = np.r_[0, np.flatnonzero(np.diff(idx)) + 1, len(idx)]
-        names = "0123456789abcdef"
-        rows = []
+        parts = []
         for lo, hi in itertools.pairwise(edges):
             part = table.slice(lo, hi - lo)
             t = part["t"]
-            rows.append((run_id, names[idx[lo]], part.num_rows, pc.min(t).as_py(),
-                         pc.max(t).as_py(), _encode(part)))
-        self.db.executemany("INSERT INTO blocks (run_id, bucket, n, tmin, tmax, data) "
-                            "VALUES (?, ?, ?, ?, ?, ?)", rows)
+            self.db.execute("INSERT INTO blocks (run_id, bucket, n, tmin, tmax, data) "
+                            "VALUES (?, ?, ?, ?, ?, ?)", (
+                                run_id, _DIGITS[idx[lo]], part.num_rows, pc.min(t).as_py(),
+                                pc.max(t).as_py(), _encode(part)))
+            parts.append((_DIGITS[idx[lo]], part))
+        return parts
 
     def _prune(self, cutoff: int) -> int:
         """Drop panels collected before ``cutoff``: whole blocks, or rewrite a block
@@ -417,7 +590,22 @@ class Store:
             keep = table.filter(pc.greater_equal(table["t"], cutoff))
             gone += table.num_rows - keep.num_rows
             self._replace(block_id, keep)
+        # A patient whose latest panel is gone has no panel left.
+        for bucket, data in self.db.execute("SELECT bucket, data FROM latest WHERE tmin < ?",
+                                            (cutoff,)).fetchall():
+            table = _decode(data)
+            self._put_latest(bucket, table.filter(pc.greater_equal(table["t"], cutoff)))
         return gone
+
+    def _put_latest(self, bucket: str, table: pa.Table) -> None:
+        """Replace one bucket's block of latest panels (``_latest``'s order)."""
+        if table.num_rows == 0:
+            self.db.execute("DELETE FROM latest WHERE bucket = ?", (bucket,))
+        else:
+            self.db.execute("INSERT OR REPLACE INTO latest (bucket, n, tmin, data) "
+                            "VALUES (?, ?, ?, ?)", (bucket, table.num_rows,
+                                                    pc.min(table["t"]).as_py(),
+                                                    _encode(table)))
 
     def _replace(self, block_id: int, table: pa.Table) -> None:
         if table.num_rows == 0:
@@ -432,9 +620,10 @@ class Store:
         """Every stored panel of one patient, oldest first."""
         h = self._hash(patient_id)
         parts = []
-        for (data,) in self.db.execute("SELECT data FROM blocks WHERE bucket = ?", (h[0],)):
+        for (data,) in self.db.execute("SELECT data FROM blocks WHERE bucket = ?",
+                                       (h.hex()[0],)):
             table = _decode(data)
-            parts.append(table.filter(pc.equal(table["patient"], h)))
+            parts.append(table.filter(_is(table["patient"], h)))
         if not parts:
             return BLOCK_SCHEMA.empty_table()
         return pa.concat_tables(parts).sort_by([("t", "ascending")])
@@ -445,14 +634,20 @@ class Store:
         self._lock()
         removed = 0
         try:
+            bucket = h.hex()[0]
             rows = self.db.execute("SELECT id, data FROM blocks WHERE bucket = ?",
-                                   (h[0],)).fetchall()
+                                   (bucket,)).fetchall()
             for block_id, data in rows:
                 table = _decode(data)
-                keep = table.filter(pc.not_equal(table["patient"], h))
+                keep = table.filter(pc.invert(_is(table["patient"], h)))
                 if keep.num_rows != table.num_rows:
                     removed += table.num_rows - keep.num_rows
                     self._replace(block_id, keep)
+            got = self.db.execute("SELECT data FROM latest WHERE bucket = ?",
+                                  (bucket,)).fetchone()
+            if got is not None:
+                table = _decode(got[0])
+                self._put_latest(bucket, table.filter(pc.invert(_is(table["patient"], h))))
             self.db.execute("COMMIT")
         except BaseException:
             self.db.execute("ROLLBACK")
@@ -470,27 +665,28 @@ class Store:
             raise
         return gone
 
-    def _hash(self, patient_id: str) -> str:
+    def _hash(self, patient_id: str) -> bytes:
+        """One patient's stored id (16 bytes)."""
         if self.key is None:
             raise HistoryError("looking up a patient needs the site key")
         if not patient_id or not patient_id.strip():
             raise HistoryError("give a patient id")
-        return hash_id(patient_id, self.key)
+        return bytes.fromhex(hash_id(patient_id, self.key))
 
     # -- what is in it ----------------------------------------------------------
     def summary(self) -> dict[str, object]:
         """Counts, the collection-date range and the runs recorded."""
         panels, tmin, tmax = self.db.execute(
             "SELECT COALESCE(SUM(n), 0), MIN(tmin), MAX(tmax) FROM blocks").fetchone()
-        distinct: set[str] = set()
-        for (data,) in self.db.execute("SELECT data FROM blocks"):
-            distinct.update(_decode(data).column("patient").unique().to_pylist())
+        distinct = 0  # each patient is in one bucket's latest panels
+        for (data,) in self.db.execute("SELECT data FROM latest"):
+            distinct += len(_decode(data).column("patient").unique())
         runs = [dict(zip(("id", "finished_at", "tool_version", "input_sha256", "panels_added",
                           "panels_already_stored"), r)) for r in self.db.execute(
             "SELECT id, finished_at, tool_version, input_sha256, panels_added, "
             "panels_already_stored FROM runs ORDER BY id")]
         return {"path": self.path, "schema_version": SCHEMA_VERSION, "panels": int(panels),
-                "patients": len(distinct), "first_collected": _stamp(tmin),
+                "patients": distinct, "first_collected": _stamp(tmin),
                 "last_collected": _stamp(tmax), "retention_days": self.retention / _DAY,
                 "runs": runs}
 
@@ -501,33 +697,51 @@ class Store:
             self.db.close()
 
 
+_DIGITS = "0123456789abcdef"
+
+
 def _first_digit(hashes: pa.Array | pa.ChunkedArray) -> np.ndarray:
-    """The first hex digit of each stored hash (0 to 15): its block's bucket."""
-    hashes = hashes.combine_chunks() if isinstance(hashes, pa.ChunkedArray) else hashes
-    if len(hashes) == 0:
-        return np.zeros(0, dtype=np.int64)
-    offsets = np.frombuffer(hashes.buffers()[1], dtype=np.int32)[hashes.offset:
-                                                                  hashes.offset + len(hashes) + 1]
-    if hashes.null_count or not (np.diff(offsets) > 0).all():  # not a run's hashes
-        return np.array([int(h[:1], 16) for h in hashes.to_pylist()], dtype=np.int64)
-    data = np.frombuffer(hashes.buffers()[2], dtype=np.uint8)
-    return _HEX_DIGIT[data[offsets[:-1]]].astype(np.int64)
+    """The first hex digit of each stored id (0 to 15): its block's bucket."""
+    return (prefix64(hashes) >> np.uint64(60)).astype(np.int64)
 
 
-_HEX_DIGIT = np.zeros(256, dtype=np.uint8)
-_HEX_DIGIT[np.frombuffer(b"0123456789abcdef", dtype=np.uint8)] = np.arange(16, dtype=np.uint8)
+def _is(ids: pa.ChunkedArray | pa.Array, h: bytes) -> pa.Array:
+    """Which stored ids are ``h`` (16 bytes)."""
+    return pc.fill_null(pc.equal(ids, pa.scalar(h, pa.binary(KEYED_BYTES))), False)
 
 
-def _encode(table: pa.Table) -> bytes:
+def _latest(table: pa.Table) -> pa.Table:
+    """Each patient's panels at the patient's latest time (all of them when several
+    share it), in the order of their ids' first 64 bits (stable)."""
+    if table.num_rows == 0:
+        return table
+    table = table.combine_chunks()
+    enc = pc.dictionary_encode(table["patient"]).combine_chunks()
+    pid = np.asarray(enc.indices.to_numpy(zero_copy_only=False), dtype=np.int64)
+    t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
+    top = np.full(len(enc.dictionary), np.iinfo(np.int64).min, dtype=np.int64)
+    np.maximum.at(top, pid, t)
+    keep = t == top[pid]
+    sub = table.filter(pa.array(keep)) if not keep.all() else table
+    order = np.argsort(prefix64(sub["patient"]), kind="stable")
+    return sub.take(pa.array(order))
+
+
+def _encode(table: pa.Table) -> memoryview:
+    """A block's bytes (an Arrow IPC stream), handed to SQLite without a copy."""
     sink = pa.BufferOutputStream()
     opts = ipc.IpcWriteOptions(compression=_COMPRESSION)
     with ipc.new_stream(sink, table.schema, options=opts) as w:
         w.write_table(table)
-    return sink.getvalue().to_pybytes()
+    return memoryview(sink.getvalue())
 
 
 def _decode(data: bytes) -> pa.Table:
     table = ipc.open_stream(pa.py_buffer(data)).read_all()
+    if not pa.types.is_fixed_size_binary(table.schema.field("patient").type):
+        # layout 1 (hex text), read once while migrating
+        at = table.schema.get_field_index("patient")
+        table = table.set_column(at, "patient", keyed_binary(table["patient"]))
     # Fields added to STORED_FIELDS later are missing from older blocks: NaN.
     for name in BLOCK_SCHEMA.names:
         if name not in table.column_names:
@@ -817,13 +1031,14 @@ def keep_panel(path: str, patient_id: str, values: Mapping[str, object], collect
         if any((s or None) == sample for s in same["sample"].to_pylist()):
             store.rollback()
             return KeptPanel(False, already_stored=True, retention_days=retention_days)
-        row: dict[str, list] = {"patient": [hash_id(patient_id, store.key)],
+        row: dict[str, list] = {"patient": [bytes.fromhex(hash_id(patient_id, store.key))],
                                 "t": [int(secs[0])], "zoned": [bool(kind[0] == TIME_ZONED)],
                                 "sample": [sample]}
         row.update({f: [_number(values.get(f))] for f in STORED_FIELDS})
         table = pa.Table.from_pydict(row, schema=BLOCK_SCHEMA)
-        digest = hashlib.sha256(json.dumps(
-            {k: (None if isinstance(v[0], float) and v[0] != v[0] else v[0])
+        digest = hashlib.sha256(json.dumps(  # (the patient's stored id in hex)
+            {k: (None if isinstance(v[0], float) and v[0] != v[0] else
+                 v[0].hex() if isinstance(v[0], bytes) else v[0])
              for k, v in row.items()}, sort_keys=True).encode("utf-8")).hexdigest()
         record = RunRecord(tool_version=__version__,
                            settings={"surface": "acidbase tui", **dict(settings or {})},

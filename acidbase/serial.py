@@ -152,7 +152,8 @@ class SerialChecker:
 
     ``keep=True`` keeps the first pass's files until ``close`` so that the run's
     panels can be read back (``panels``) to be stored for later runs;
-    ``hashed_ids=True`` says the patient ids given are the store's hex hashes.
+    ``hashed_ids=True`` says the patient ids given are the store's keyed hashes:
+    16 bytes each (``fixed_size_binary(16)``, null for no id), or their hex text.
     """
 
     def __init__(self, rules: Sequence[DeltaRule] = DELTA_RULES,
@@ -167,13 +168,16 @@ class SerialChecker:
         self.fields = tuple(dict.fromkeys([*STORED_FIELDS, *(r.field for r in self.rules)]))
         self.keep = keep
         self.hashed_ids = hashed_ids
-        """Patient ids are the history store's hex hashes: partitioned by their first
-        64 bits, with no Python call per id, into a multiple of 16 partitions."""
+        """Patient ids are the history store's keyed hashes: kept as 16 bytes,
+        partitioned by their first 64 bits, with no Python call per id, into a
+        multiple of 16 partitions."""
         if hashed_ids:
             self.k = 16 * -(-self.k // 16)
         self._tmp = tempfile.TemporaryDirectory(prefix="acidbase-serial-", dir=workdir)
         self.schema = pa.schema(
-            [("row", pa.int64()), ("patient", pa.string()), ("t", pa.int64()),
+            [("row", pa.int64()), ("patient", pa.binary(KEYED_BYTES) if hashed_ids
+                                         else pa.string()),
+             ("t", pa.int64()),
              ("zoned", pa.bool_()), ("sample", pa.string())]
             + [(f, pa.float64()) for f in self.fields])
         # This file's rows ("p") and earlier panels ("e"), each by partition.
@@ -215,8 +219,12 @@ class SerialChecker:
         n = len(patient)
         first = self._n
         self._n += n
-        pat_all = _strings(patient)
-        has_id = _mask(pc.not_equal(pc.utf8_trim_whitespace(pat_all), ""))
+        if self.hashed_ids:
+            pat_all = keyed_binary(patient)
+            has_id = _mask(pc.is_valid(pat_all))
+        else:
+            pat_all = _strings(patient)
+            has_id = _mask(pc.not_equal(pc.utf8_trim_whitespace(pat_all), ""))
         status = np.full(n, NO_ID, dtype=np.uint8)
         status[has_id & (kind == TIME_INVALID)] = BAD_TIME
         usable = has_id & ((kind == TIME_NAIVE) | (kind == TIME_ZONED))
@@ -260,7 +268,7 @@ class SerialChecker:
         """Append rows to the partition files, by a hash of the patient."""
         if self.k > 1:
             if self.hashed_ids:
-                part = self._hash_partition(hex_prefix64(table["patient"]))
+                part = self._hash_partition(prefix64(table["patient"]))
             else:
                 enc = pc.dictionary_encode(table["patient"]).combine_chunks()
                 buckets = np.array([hash(s) % self.k for s in enc.dictionary.to_pylist()],
@@ -519,8 +527,8 @@ class SerialChecker:
                 new[np.flatnonzero(twin)[o[~first]]] = False
             if new.all():  # (the usual case: no copy)
                 yield table.select(names)
-            elif new.any():
-                yield table.filter(pa.array(new)).select(names)
+            elif new.any():  # (one chunk first: a filter of many small chunks is slower)
+                yield table.select(names).combine_chunks().filter(pa.array(new))
 
     def arrow_columns(self, start: int, stop: int) -> dict[str, pa.Array]:
         """The serial output columns for rows ``start`` to ``stop`` (file order); the
@@ -653,9 +661,10 @@ def _joined(parts: Sequence[tuple[str, np.ndarray, pa.Array]], n: int, sep: str,
 
 def _series_order(pid: np.ndarray, t: np.ndarray, row: np.ndarray) -> np.ndarray:
     """The order by patient, then time, then row: ``np.lexsort((row, t, pid))``.
-    With the rows put in row order first, one stable sort of an integer key that
-    holds the patient above the time does it (many times faster on a partition);
-    the lexsort is kept for keys that do not fit in 63 bits."""
+    One stable sort of an integer key that holds the patient above the time does it
+    (many times faster on a partition) when the rows are in row order or no two
+    share a patient and a time; else with the rows put in row order first.  The
+    lexsort is kept for keys that do not fit in 63 bits."""
     if len(row) == 0:
         return np.zeros(0, dtype=np.int64)
     span = int(t.max()) - int(t.min())
@@ -663,19 +672,71 @@ def _series_order(pid: np.ndarray, t: np.ndarray, row: np.ndarray) -> np.ndarray
     bits = span.bit_length()
     if top.bit_length() + bits > 62:
         return np.lexsort((row, t, pid))
-    by_row = None if (row[1:] > row[:-1]).all() else np.argsort(row, kind="stable")
     key = ((pid + 1).astype(np.int64) << bits) | (t - t.min())
-    if by_row is None:
-        return np.argsort(key, kind="stable")
+    order = np.argsort(key, kind="stable")
+    if (row[1:] > row[:-1]).all():
+        return order
+    k = key[order]
+    if not (k[1:] == k[:-1]).any():  # no shared patient and time: the rows decide nothing
+        return order
+    # (earlier panels, numbered below this file's rows, sharing a time with another)
+    by_row = np.argsort(row, kind="stable")
     return by_row[np.argsort(key[by_row], kind="stable")]
 
 
 def _formatted(x: np.ndarray, fmt: Callable[[float], str]) -> pa.Array:
-    """``fmt`` of each value, each distinct value formatted once."""
+    """``fmt`` of each value, each distinct value formatted once: once a process
+    (``_Texts``), apart from zeros and NaN (formatted each time, as ``np.unique``
+    gives them: -0.0 and 0.0 are one value to it)."""
     if len(x) == 0:
         return pa.array([], pa.string())
     u, inv = np.unique(x, return_inverse=True)
-    return pa.array([fmt(float(v)) for v in u], pa.string()).take(pa.array(inv.ravel()))
+    memo = _MEMOS.get(fmt)
+    if memo is None:
+        memo = _MEMOS.setdefault(fmt, _Texts(fmt))
+    return memo.texts(u).take(pa.array(inv.ravel()))
+
+
+class _Texts:
+    """Formatted values kept across partitions (sorted values, their texts), so that a
+    value seen in an earlier partition is not formatted again."""
+
+    def __init__(self, fmt: Callable[[float], str]) -> None:
+        self.fmt = fmt
+        self.keys = np.zeros(0, dtype=np.float64)
+        self.words = pa.array([], pa.string())
+        self.lock = threading.Lock()
+
+    def texts(self, u: np.ndarray) -> pa.Array:
+        """The texts of ``u`` (sorted distinct values, NaN last)."""
+        plain = (u != 0) & ~np.isnan(u)  # kept values
+        with self.lock:
+            keys, words = self.keys, self.words
+            pos = np.minimum(np.searchsorted(keys, u), max(len(keys) - 1, 0))
+            known = plain & (keys[pos] == u) if len(keys) else np.zeros(len(u), dtype=bool)
+            new = plain & ~known
+            if new.any():
+                keys = np.concatenate([keys, u[new]])
+                words = pa.concat_arrays([words, pa.array(
+                    [self.fmt(float(v)) for v in u[new]], pa.string())])
+                order = np.argsort(keys, kind="stable")
+                keys, words = keys[order], words.take(pa.array(order))
+                if len(keys) <= _MEMO_SIZE:
+                    self.keys, self.words = keys, words
+                pos = np.minimum(np.searchsorted(keys, u), len(keys) - 1)
+        out = words.take(pa.array(pos))
+        if plain.all():
+            return out
+        odd = np.flatnonzero(~plain)  # zeros and NaN: as np.unique gave them
+        at = np.arange(len(u))
+        at[odd] = len(u) + np.arange(len(odd))
+        extra = pa.array([self.fmt(float(v)) for v in u[odd]], pa.string())
+        return pa.concat_arrays([out, extra]).take(pa.array(at))
+
+
+#: Formatted values kept per format (at most ``_MEMO_SIZE`` values each).
+_MEMOS: dict[Callable[[float], str], _Texts] = {}
+_MEMO_SIZE = 1 << 20
 
 
 def _numbers(x: np.ndarray) -> pa.Array:
@@ -722,9 +783,12 @@ def _strings(x: pa.Array | pa.ChunkedArray | np.ndarray) -> pa.Array:
 
 
 def _codes(x: pa.ChunkedArray | pa.Array) -> np.ndarray:
-    """Equal texts get equal integers (missing or empty is -1): for grouping, not
-    ordering."""
-    enc = pc.dictionary_encode(pc.if_else(pc.equal(x, ""), pa.scalar(None, x.type), x))
+    """Equal texts (or keyed ids) get equal integers (missing or empty is -1): for
+    grouping, not ordering."""
+    if pa.types.is_fixed_size_binary(x.type):  # keyed ids: no id is null
+        enc = pc.dictionary_encode(x)
+    else:
+        enc = pc.dictionary_encode(pc.if_else(pc.equal(x, ""), pa.scalar(None, x.type), x))
     if isinstance(enc, pa.ChunkedArray):
         enc = enc.combine_chunks()
     return np.asarray(pc.fill_null(enc.indices, -1).to_numpy(zero_copy_only=False),
@@ -733,6 +797,8 @@ def _codes(x: pa.ChunkedArray | pa.Array) -> np.ndarray:
 
 _HEX = np.zeros(256, dtype=np.uint8)
 _HEX[np.frombuffer(b"0123456789abcdef", dtype=np.uint8)] = np.arange(16, dtype=np.uint8)
+_IS_HEX = np.zeros(256, dtype=bool)
+_IS_HEX[np.frombuffer(b"0123456789abcdef", dtype=np.uint8)] = True
 
 
 def hex_prefix64(hashes: pa.Array | pa.ChunkedArray) -> np.ndarray:
@@ -757,6 +823,54 @@ def hex_prefix64(hashes: pa.Array | pa.ChunkedArray) -> np.ndarray:
     nibbles = _HEX[digits]
     packed = (nibbles[:, 0::2] << 4) | nibbles[:, 1::2]  # 8 bytes, most significant first
     return np.ascontiguousarray(packed).view(">u8").ravel().astype(np.uint64)
+
+
+#: Bytes of the history store's keyed patient ids (HMAC-SHA256 truncated to 16 bytes;
+#: an Arrow ``fixed_size_binary(16)``).
+KEYED_BYTES = 16
+
+
+def keyed_binary(ids: pa.Array | pa.ChunkedArray) -> pa.Array:
+    """Keyed ids as 16 bytes each: as given when they are (``fixed_size_binary(16)``),
+    else from their 32 hex digits (an empty or missing text: null, no id)."""
+    if isinstance(ids, pa.ChunkedArray):
+        ids = ids.combine_chunks()
+    if pa.types.is_fixed_size_binary(ids.type):
+        return ids
+    texts = _strings(ids)
+    n = len(texts)
+    blank = ~_mask(pc.greater(pc.utf8_length(texts), 0))
+    raw = np.zeros((n, 16), dtype=np.uint8)
+    real = np.flatnonzero(~blank)
+    if real.size:
+        offsets = np.frombuffer(texts.buffers()[1], dtype=np.int32)[texts.offset:
+                                                                    texts.offset + n + 1]
+        data = np.frombuffer(texts.buffers()[2], dtype=np.uint8)
+        start = offsets[real]
+        if not (offsets[real + 1] - start == 32).all():
+            raise ValueError("a keyed id is not 32 hex digits")
+        digits = data[start[:, None] + np.arange(32, dtype=np.int32)]
+        if not _IS_HEX[digits].all():
+            raise ValueError("a keyed id is not 32 hex digits")
+        nib = _HEX[digits]
+        raw[real] = (nib[:, 0::2] << 4) | nib[:, 1::2]
+    valid = pa.py_buffer(np.packbits(~blank, bitorder="little").tobytes())
+    return pa.FixedSizeBinaryArray.from_buffers(pa.binary(16), n, [valid, pa.py_buffer(
+        raw.tobytes())])
+
+
+def prefix64(ids: pa.Array | pa.ChunkedArray) -> np.ndarray:
+    """The first 64 bits of each keyed id (16 bytes, or hex text: ``hex_prefix64``) as
+    unsigned integers, read from the Arrow buffers; 0 for a null."""
+    if isinstance(ids, pa.ChunkedArray):
+        ids = ids.combine_chunks()
+    if not pa.types.is_fixed_size_binary(ids.type):
+        return hex_prefix64(ids)
+    n = len(ids)
+    if n == 0:
+        return np.zeros(0, dtype=np.uint64)
+    data = np.frombuffer(ids.buffers()[1], dtype=np.uint8)[16 * ids.offset:16 * (ids.offset + n)]
+    return np.ascontiguousarray(data.reshape(n, 16)[:, :8]).view(">u8").ravel().astype(np.uint64)
 
 
 def _mask(x: pa.Array | pa.ChunkedArray) -> np.ndarray:

@@ -20,7 +20,13 @@ resident memory of the run alone), medians of ``--repeats`` runs:
    checks (``SerialChecker.add`` and ``finish``), then the output columns for
    every chunk (``arrow_columns``), which is what the checks add to a run;
 3. peak memory of ``acidbase batch`` with serial checks on a ``--big-n``-row file
-   (target: 300 MB at 5M rows).
+   (target: 300 MB at 5M rows);
+4. where the store's time goes (part ``phases``): the second day's run in this
+   process, with and without the store, one after the other, and the CPU time of
+   the main thread (``time.thread_time``) in each step that the store adds to or
+   changes: hashing the ids, reading the stored panels, the checks, adding the
+   run's panels.  A per-step figure is steadier than a whole run's on a shared
+   machine.
 
 With ``--before TREE`` (a checkout of other code, e.g. main's), parts 1 and 2 are
 also run with that tree's ``acidbase``, interleaved with this tree's runs (before,
@@ -168,6 +174,64 @@ def serial_alone_in(tree: str, path: str) -> dict[str, float]:
     return out
 
 
+_STEPS = {"hash_ids": ("history", "Store.hash_ids"), "read": ("history", "feed_earlier"),
+          "first_pass": ("serial", "SerialChecker.add"),
+          "checks": ("serial", "SerialChecker.finish"), "add": ("history", "commit_run")}
+
+
+def phases(day2: str, store: str | None) -> dict[str, float]:
+    """One ``acidbase batch`` of ``day2`` in this process (with the store ``store``, a
+    copy of the first day's, when given): its CPU seconds, and the main thread's CPU
+    seconds in each of ``_STEPS``."""
+    import contextlib
+    import importlib
+    import io
+
+    from acidbase.cli import main as cli_main
+
+    spent = dict.fromkeys(_STEPS, 0.0)
+    for name, (module, attr) in _STEPS.items():
+        mod = importlib.import_module(f"acidbase.{module}")
+        owner, _, fn = attr.rpartition(".")
+        obj = getattr(mod, owner) if owner else mod
+        real = getattr(obj, fn)
+
+        def timed(*a, _real=real, _name=name, **k):
+            t = time.thread_time()
+            try:
+                return _real(*a, **k)
+            finally:
+                spent[_name] += time.thread_time() - t
+        setattr(obj, fn, timed)
+    with tempfile.TemporaryDirectory(prefix="acidbase-bench-phases-") as tmp:
+        args = ["batch", day2, "-o", os.path.join(tmp, "out.csv"), "--quiet"]
+        if store:
+            db = os.path.join(tmp, "store.db")
+            with open(store, "rb") as src, open(db, "wb") as dst:
+                dst.write(src.read())
+            args += ["--history", db, "--history-retention-days", "3650"]
+        c0 = time.process_time()
+        with contextlib.redirect_stderr(io.StringIO()):
+            rc = cli_main(args)
+        if rc != 0:
+            raise SystemExit(f"acidbase batch failed (exit {rc})")
+        return {"cpu_s": time.process_time() - c0, **spent}
+
+
+def phases_in(tree: str, day2: str, store: str | None) -> dict[str, float]:
+    """``phases`` with ``tree``'s acidbase, in a child process."""
+    with tempfile.NamedTemporaryFile(suffix=".json", delete=False) as f:
+        report = f.name
+    env = dict(os.environ, ACIDBASE_BENCH_TREE=tree, PYTHONPATH=tree,
+               ACIDBASE_HISTORY_KEY="bench-only-site-key-0123456789abcdef")
+    subprocess.run([sys.executable, str(HERE / "bench_serial.py"), "--phases-json", report,
+                    day2, store or ""], check=True, env=env)
+    with open(report) as f:
+        out = json.load(f)
+    os.remove(report)
+    return out
+
+
 def _medians(runs: list[dict]) -> dict[str, float]:
     return {"seconds": statistics.median(r["seconds"] for r in runs),
             "cpu_s": statistics.median(r["cpu_s"] for r in runs),
@@ -180,15 +244,22 @@ def main() -> None:
     p.add_argument("--big-n", type=int, default=5_000_000)
     p.add_argument("--repeats", type=int, default=3)
     p.add_argument("--spike-share", type=float, default=0.09)
-    p.add_argument("--skip", default="", help="comma-separated parts to skip: e2e,alone,big,history")
+    p.add_argument("--skip", default="",
+                   help="comma-separated parts to skip: e2e,alone,big,history,phases")
     p.add_argument("--before", metavar="TREE",
                    help="also measure this checkout's acidbase, interleaved (before/after)")
     p.add_argument("--json", help="also write the figures to this file")
     p.add_argument("--alone-json", nargs=2, metavar=("OUT", "CSV"), help=argparse.SUPPRESS)
+    p.add_argument("--phases-json", nargs=3, metavar=("OUT", "CSV", "STORE"),
+                   help=argparse.SUPPRESS)
     a = p.parse_args()
     if a.alone_json:  # a child of serial_alone_in: this tree's checker on one file
         with open(a.alone_json[0], "w") as f:
             json.dump(serial_alone(a.alone_json[1]), f)
+        return
+    if a.phases_json:  # a child of phases_in
+        with open(a.phases_json[0], "w") as f:
+            json.dump(phases(a.phases_json[1], a.phases_json[2] or None), f)
         return
     skip = set(filter(None, a.skip.split(",")))
     trees = {"after": TREE}
@@ -240,6 +311,29 @@ def main() -> None:
                 figures[name][mode] = _medians(got)
                 figures[name][mode]["cpu_runs"] = [r["cpu_s"] for r in got]
                 print(name, mode, figures[name][mode], flush=True)
+        if "phases" not in skip:
+            if not os.path.exists(day2):
+                write(day2, a.n, a.spike_share, day=1)
+            stores = {}
+            for name, tree in trees.items():  # each tree's store of the first day
+                stores[name] = os.path.join(tmp, f"day1-{name}.db")
+                child([day1, "-o", sink, "--quiet", "--summary", sink + ".txt", "--history",
+                       stores[name], "--history-retention-days", "3650"], env, tree)
+            steps: dict[tuple[str, str], list] = {}
+            for _ in range(a.repeats):
+                for name, tree in trees.items():
+                    for mode in ("serial", "serial_history"):
+                        steps.setdefault((name, mode), []).append(phases_in(
+                            tree, day2, stores[name] if mode == "serial_history" else None))
+            for (name, mode), got in steps.items():
+                med = {k: statistics.median(r[k] for r in got) for k in got[0]}
+                med["cpu_runs"] = [r["cpu_s"] for r in got]
+                if mode == "serial_history":  # each pair (one after the other): its ratio
+                    plain = steps[name, "serial"]
+                    med["pair_ratios"] = [h["cpu_s"] / p["cpu_s"] for h, p in zip(got, plain)]
+                    med["store_overhead"] = statistics.median(med["pair_ratios"]) - 1
+                figures[name][f"phases_{mode}"] = med
+                print(name, "phases", mode, med, flush=True)
         if a.big_n and "big" not in skip:
             big = os.path.join(tmp, "big.csv")
             write(big, a.big_n, a.spike_share)

@@ -533,3 +533,177 @@ def test_the_app_takes_the_site_files_store_and_the_option_wins(tmp_path, monkey
     monkeypatch.setenv("XDG_CONFIG_HOME", str(tmp_path / "no-config-here"))
     assert main(["tui"]) == 0
     assert seen["history"] is None  # no site file in reach, no option: no store
+
+
+# -- layout 2: each patient's latest panels; a layout-1 store migrated ----------------
+def _v1_store(path: Path, rows: list[tuple[str, int, str, float]], data: bytes | None = None
+              ) -> None:
+    """A store as layout 1 wrote it (this test encodes that layout on purpose): blocks
+    of Arrow IPC with the keyed ids as 32 hex digits, no ``latest`` table.  rows:
+    (patient id, time in seconds, sample id, Na+)."""
+    import hashlib
+    import hmac
+
+    from pyarrow import ipc
+
+    key = KEY.encode()
+    ids = [hmac.digest(key, p.encode(), hashlib.sha256)[:16].hex() for p, *_ in rows]
+    fields = list(history.STORED_FIELDS)
+    cols = {"patient": pa.array(ids, pa.string()), "t": pa.array([r[1] for r in rows], pa.int64()),
+            "zoned": pa.array([True] * len(rows)), "sample": pa.array([r[2] for r in rows])}
+    for f in fields:
+        cols[f] = pa.array([r[3] if f == "na" else None for r in rows], pa.float64())
+    table = pa.table(cols)
+    db = sqlite3.connect(path)
+    db.executescript("""
+        CREATE TABLE meta (name TEXT PRIMARY KEY, value TEXT NOT NULL);
+        CREATE TABLE runs (id INTEGER PRIMARY KEY, finished_at TEXT NOT NULL, tool_version TEXT,
+                           settings TEXT, input_sha256 TEXT, panels_added INTEGER,
+                           panels_already_stored INTEGER, earlier_panels_used INTEGER);
+        CREATE TABLE blocks (id INTEGER PRIMARY KEY, run_id INTEGER NOT NULL REFERENCES runs(id),
+                             bucket TEXT NOT NULL, n INTEGER NOT NULL, tmin INTEGER NOT NULL,
+                             tmax INTEGER NOT NULL, data BLOB NOT NULL);
+        CREATE INDEX blocks_time ON blocks (tmax, tmin);
+        CREATE INDEX blocks_bucket ON blocks (bucket);""")
+    check = hmac.digest(key, b"acidbase history key check", hashlib.sha256).hex()
+    db.executemany("INSERT INTO meta VALUES (?, ?)", [("schema_version", "1"),
+                                                      ("key_check", check),
+                                                      ("created_at", "2026-12-01T00:00:00Z")])
+    db.execute("INSERT INTO runs (id, finished_at, panels_added) VALUES (1, 'x', ?)",
+               (len(rows),))
+    for digit in sorted({h[0] for h in ids}):
+        part = table.filter(pa.array([h[0] == digit for h in ids]))
+        sink = pa.BufferOutputStream()
+        with ipc.new_stream(sink, part.schema) as w:
+            w.write_table(part)
+        t = part["t"].to_pylist()
+        db.execute("INSERT INTO blocks (run_id, bucket, n, tmin, tmax, data) VALUES "
+                   "(1, ?, ?, ?, ?, ?)", (digit, part.num_rows, min(t), max(t),
+                                          data if data is not None else
+                                          sink.getvalue().to_pybytes()))
+    db.commit()
+    db.close()
+
+
+def _secs(days_ago: float) -> int:
+    return int(dt.datetime.strptime(stamp(days_ago), "%Y-%m-%dT%H:%M:%SZ")
+               .replace(tzinfo=dt.UTC).timestamp())
+
+
+def test_a_version_1_store_is_migrated_in_place_and_keeps_working(tmp_path, capsys):
+    """Layout 1's blocks (hex ids) become layout 2's (16 bytes) with the ``latest``
+    table, in one transaction; the next run compares with the migrated panels, and
+    export, purge and the summary read them."""
+    store = tmp_path / "store.db"
+    _v1_store(store, [("MRN-ALPHA-7", _secs(2.0), "S0", 139.0),
+                      ("MRN-ALPHA-7", _secs(1.5), "S1", 140.0),
+                      ("P-2", _secs(1.5), "S9", 150.0)])
+    rc, rows, err = run(capsys, panels(tmp_path / "day2.csv",
+                                       [("S2", "MRN-ALPHA-7", 1.0, 155)]), store)
+    assert rc == 0 and rows[0]["serial_codes"] == "SERIAL-DELTA-NA"
+    assert "(sample S1)" in rows[0]["serial_detail"] and "1 earlier panels compared" in err
+    db = sqlite3.connect(store)
+    meta = dict(db.execute("SELECT name, value FROM meta"))
+    assert meta["schema_version"] == str(history.SCHEMA_VERSION) == "2"
+    assert "migrated_at" in meta
+    assert db.execute("SELECT SUM(n) FROM latest").fetchone()[0] == 2  # S2 (after S1), S9
+    for (data,) in db.execute("SELECT data FROM blocks"):  # as written, not as read
+        assert pa.ipc.open_stream(data).schema.field("patient").type == pa.binary(16)
+    db.close()
+    got = history.earlier_panels(str(store), "MRN-ALPHA-7", KEY)
+    assert [p["sample_id"] for p in got] == ["S0", "S1", "S2"]
+    assert count(store) == (4, 2)
+    assert main(["history", str(store), "--patient", "P-2", "--purge"]) == 0
+    assert count(store) == (3, 2)
+
+
+def test_a_version_1_store_that_cannot_be_migrated_is_refused_and_left_as_it_was(
+        tmp_path, capsys):
+    store = tmp_path / "store.db"
+    _v1_store(store, [("P-1", _secs(1.5), "S1", 140.0)], data=b"not an Arrow stream")
+    before = store.read_bytes()
+    rc, _, err = run(capsys, panels(tmp_path / "day2.csv", [("S2", "P-1", 1.0, 155)]), store)
+    assert rc == 2 and "could not be brought to store version 2" in err
+    assert "it is unchanged" in err and "Traceback" not in err
+    assert store.read_bytes() == before
+
+
+def _reference(stored: list[tuple[str, int, str]], run: dict[str, int], lo: int, hi: int
+               ) -> list[tuple[str, int, str]]:
+    """What ``Store.earlier`` must give (its docstring, stated over all stored panels):
+    of each of the run's patients, the panels in lo..hi from its first panel here on,
+    and those at the latest time before it."""
+    out = []
+    for p, first in run.items():
+        mine = [r for r in stored if r[0] == p and lo <= r[1] <= hi]
+        before = [r[1] for r in mine if r[1] < first]
+        out += [r for r in mine if r[1] >= first or (before and r[1] == max(before))]
+    return sorted(out)
+
+
+@pytest.mark.parametrize("seed", range(12))
+def test_earlier_gives_each_patients_panels_from_its_first_on_and_the_latest_before(
+        tmp_path, seed):
+    """Random stores of several runs (shared times, patients read again, a prune, a
+    purge) against the reference over every stored panel: the ``latest`` table and
+    the blocks read for patients stored from their first panel on give the same."""
+    import numpy as np
+
+    rng = np.random.default_rng(seed)
+    key = KEY.encode()
+    path = str(tmp_path / "store.db")
+    now = 2_000_000_000
+    patients = [f"P-{i}" for i in range(int(rng.integers(3, 40)))]
+    stored: list[tuple[str, int, str]] = []
+    s = history.Store(path, key, retention_days=3650)
+    try:
+        for runno in range(int(rng.integers(1, 5))):
+            n = int(rng.integers(1, 60))
+            pids = [patients[i] for i in rng.integers(0, len(patients), n)]
+            t = (now - rng.integers(0, 40, n) * 3600 * 6).tolist()  # many shared times
+            samples = [f"S{runno}-{i}" for i in range(n)]
+            table = {"patient": history.hash_ids(pa.array(pids), key), "t": pa.array(t),
+                     "zoned": pa.array([True] * n), "sample": pa.array(samples)}
+            for f in history.STORED_FIELDS:
+                table[f] = pa.array(rng.normal(140, 5, n))
+            s.begin()
+            s.commit(iter([pa.table(table)]), history.RunRecord("t", {}, "x"), now=now)
+            stored += list(zip(pids, t, samples))
+        if rng.random() < 0.5:  # a shorter retention prunes some
+            cut = now - int(rng.integers(1, 40)) * 3600 * 6
+            s.retention = now - cut
+            s.prune(now=now)
+            stored = [r for r in stored if r[1] >= cut]
+        if rng.random() < 0.5:
+            gone = patients[int(rng.integers(0, len(patients)))]
+            s.purge(gone)
+            stored = [r for r in stored if r[0] != gone]
+        m = int(rng.integers(1, len(patients) + 1))
+        run_ids = [patients[i] for i in rng.choice(len(patients), m, replace=False)]
+        # first panels here: mostly after the store, some inside it (a file read again)
+        first = {p: int(now - rng.integers(-8, 30) * 3600 * 6) for p in run_ids}
+        lo, hi = min(first.values()) - 3 * 86400, max(first.values()) + 86400
+        s.begin()
+        s.hash_ids(pa.array(run_ids), np.array([first[p] for p in run_ids]))
+        got = list(s.earlier(lo, hi))
+    finally:
+        s.close()
+    by_hash = {history.hash_id(p, key): p for p in patients}
+    rows = []
+    for table in got:
+        for h, t, sample in zip(table["patient"].to_pylist(), table["t"].to_pylist(),
+                                table["sample"].to_pylist()):
+            rows.append((by_hash[h.hex()], t, sample))
+    assert sorted(rows) == _reference(stored, first, lo, hi)
+
+
+def test_a_purged_patient_is_no_ones_earlier_panel(tmp_path, capsys):
+    """Purge takes the patient out of the latest panels too: the next run finds none."""
+    store = tmp_path / "store.db"
+    run(capsys, panels(tmp_path / "day1.csv", [("S1", "P-1", 1.5, 140), ("S5", "P-2", 1.5, 140)]),
+        store)
+    assert main(["history", str(store), "--patient", "P-1", "--purge"]) == 0
+    rc, rows, err = run(capsys, panels(tmp_path / "day2.csv", [("S2", "P-1", 1.0, 155),
+                                                               ("S6", "P-2", 1.0, 155)]), store)
+    assert rc == 0 and [r["serial_codes"] for r in rows] == ["", "SERIAL-DELTA-NA"]
+    assert "1 earlier panels compared" in err

@@ -199,6 +199,9 @@ def test_the_series_order_is_numpys_lexsort_by_patient_time_and_row(span):
     ordered = np.arange(n)
     assert serial._series_order(pid, t, ordered).tolist() == np.lexsort(
         (ordered, t, pid)).tolist()
+    alone = rng.permutation(n) * (span // n)  # no patient and time shared
+    assert serial._series_order(pid, alone, row).tolist() == np.lexsort(
+        (row, alone, pid)).tolist()
 
 
 def test_hex_prefix_reads_the_first_64_bits_as_python_int_does():
@@ -244,3 +247,20 @@ def test_a_jump_and_a_larger_jump_back_past_the_start_is_two_deltas_not_a_break(
     differ by more than the limit (140 and 160 mmol/L): no break, two deltas."""
     out = run(["P"] * 3, [0, 1, 2], {"na": [140.0, 128.0, 160.0]})
     assert out["serial_codes"].tolist() == ["", "SERIAL-DELTA-NA", "SERIAL-DELTA-NA"]
+
+
+def test_numbers_kept_across_partitions_read_as_formatting_each_does():
+    """The formatted values kept across calls (serial._Texts) give what formatting each
+    distinct value of each call gives (Python's format, the reference), over calls that
+    share values, with zeros of both signs and NaN, for both formats."""
+    rng = np.random.default_rng(5)
+    for _ in range(200):
+        n = int(rng.integers(0, 150))
+        x = np.round(rng.normal(0, 30, n), int(rng.integers(0, 4)))
+        x[rng.random(n) < 0.05] = 0.0
+        x[rng.random(n) < 0.05] = -0.0
+        x[rng.random(n) < 0.05] = np.nan
+        for fmt in (serial._fmt, serial._hours):
+            u, inv = np.unique(x, return_inverse=True)
+            want = [fmt(float(u[i])) for i in inv.ravel()]
+            assert serial._formatted(x, fmt).to_pylist() == want
