@@ -18,24 +18,15 @@ if sys.platform == "win32":
 else:
     flags = ["-O2", "-ffp-contract=off", "-fno-fast-math", "-std=c99"]
 
+
+def edge(name: str) -> Extension:
+    """One optional compiled edge, acidbase/<name>.c, on the limited API of 3.11."""
+    return Extension(f"acidbase.{name}", sources=[f"acidbase/{name}.c"],
+                     define_macros=[("Py_LIMITED_API", "0x030B0000")], py_limited_api=True,
+                     extra_compile_args=flags, optional=True)
+
+
 setup(
-    ext_modules=[
-        Extension(
-            "acidbase._csvfast",
-            sources=["acidbase/_csvfast.c"],
-            define_macros=[("Py_LIMITED_API", "0x030B0000")],
-            py_limited_api=True,
-            extra_compile_args=flags,
-            optional=True,
-        ),
-        Extension(
-            "acidbase._idhash",
-            sources=["acidbase/_idhash.c"],
-            define_macros=[("Py_LIMITED_API", "0x030B0000")],
-            py_limited_api=True,
-            extra_compile_args=flags,
-            optional=True,
-        ),
-    ],
+    ext_modules=[edge("_csvfast"), edge("_idhash")],
     options={"bdist_wheel": {"py_limited_api": "cp311"}},
 )

@@ -169,6 +169,20 @@ static int formula(const uint8_t *s, int64_t n) {
 
 static inline int bit(const uint8_t *bits, int64_t i) { return (bits[i >> 3] >> (i & 7)) & 1; }
 
+/* Where string cell j of an Arrow string (or, `large`, large_string) column's data
+ * starts and ends, from its offsets buffer; -1 when they lie outside `ndata` bytes. */
+static inline int span(const void *offs, int large, int64_t j, Py_ssize_t ndata, int64_t *a,
+                       int64_t *b) {
+    if (large) {
+        *a = ((const int64_t *)offs)[j];
+        *b = ((const int64_t *)offs)[j + 1];
+    } else {
+        *a = ((const int32_t *)offs)[j];
+        *b = ((const int32_t *)offs)[j + 1];
+    }
+    return (*a < 0 || *b < *a || *b > (int64_t)ndata) ? -1 : 0;
+}
+
 /* One cell of row `row`; -1 on corrupt input, -2 when out of memory. */
 static int cell(Out *o, Column *c, int64_t row) {
     while (row >= c->chunks[c->cur].end) c->cur++;
@@ -707,14 +721,7 @@ static PyObject *scan_numbers(PyObject *self, PyObject *args) {
         uint8_t r = 0, m = 0;
         if (!valid || bit(valid, j)) {
             int64_t a, b;
-            if (large) {
-                a = ((const int64_t *)offs)[j];
-                b = ((const int64_t *)offs)[j + 1];
-            } else {
-                a = ((const int32_t *)offs)[j];
-                b = ((const int32_t *)offs)[j + 1];
-            }
-            if (a < 0 || b < a || b > (int64_t)ndata) {
+            if (span(offs, large, j, ndata, &a, &b)) {
                 rc = -1;
                 break;
             }
@@ -810,14 +817,7 @@ static PyObject *distinct_texts(PyObject *self, PyObject *args) {
             continue;
         }
         int64_t a, b;
-        if (large) {
-            a = ((const int64_t *)offs)[j];
-            b = ((const int64_t *)offs)[j + 1];
-        } else {
-            a = ((const int32_t *)offs)[j];
-            b = ((const int32_t *)offs)[j + 1];
-        }
-        if (a < 0 || b < a || b > (int64_t)ndata) {
+        if (span(offs, large, j, ndata, &a, &b)) {
             rc = -1;
             break;
         }

@@ -153,26 +153,35 @@ def compiled_csv(table: pa.Table, decimals: Mapping[str, int], escape: Collectio
     return _csvfast.encode(specs, table.num_rows, sep)
 
 
+def _text_buffers(column: pa.Array) -> tuple | None:
+    """How the compiled edge is handed a ``string`` or ``large_string`` column: (length,
+    offset, validity or None, offsets, data, large); None when the extension is not built
+    or switched off, or the column is not text."""
+    if not compiled_available():
+        return None
+    t = column.type
+    if not (pa.types.is_string(t) or pa.types.is_large_string(t)):
+        return None
+    bufs = column.buffers()
+    return (len(column), column.offset, bufs[0] if column.null_count else None, bufs[1],
+            bufs[2], pa.types.is_large_string(t))
+
+
 def plain_numbers(column: pa.Array) -> tuple[np.ndarray, np.ndarray, int] | None:
     """(values, rest, count) of a ``string`` or ``large_string`` column: ``values`` the
     float64 value of each plain decimal number (digits and at most one point, finite;
     NaN elsewhere), ``rest`` the valid cells that are not one (a bool array), ``count``
     their number.  None when the extension is not built or switched off."""
-    if not compiled_available():
-        return None
-    t = column.type
-    if not (pa.types.is_string(t) or pa.types.is_large_string(t)):
+    text = _text_buffers(column)
+    if text is None:
         return None
     n = len(column)
     values = np.empty(n, dtype=np.float64)
     rest = np.empty(n, dtype=np.bool_)
     if n == 0:
         return values, rest, 0
-    bufs = column.buffers()
     try:
-        count = _csvfast.scan_numbers(n, column.offset, bufs[0] if column.null_count else None,
-                                      bufs[1], bufs[2], pa.types.is_large_string(t), values,
-                                      rest.view(np.uint8))
+        count = _csvfast.scan_numbers(*text, values, rest.view(np.uint8))
     except ValueError:  # buffers laid out as the scan does not expect: the reference reads
         return None
     return values, rest, count
@@ -195,10 +204,8 @@ def scanned_numbers(column: pa.Array, decimal: str = "."
     flag, 1 + its index in ``inputs.cells.LAB_FLAGS``; ``NOT_PLAIN``), ``not_plain`` how
     many cells read are not plain numbers as written, ``marked`` how many carry a
     comparator or a flag.  None when the extension is not built or switched off."""
-    if not compiled_available() or decimal not in (".", ","):
-        return None
-    t = column.type
-    if not (pa.types.is_string(t) or pa.types.is_large_string(t)):
+    text = _text_buffers(column)
+    if text is None or decimal not in (".", ","):
         return None
     n = len(column)
     values = np.empty(n, dtype=np.float64)
@@ -206,11 +213,9 @@ def scanned_numbers(column: pa.Array, decimal: str = "."
     marks = np.empty(n, dtype=np.uint8)
     if n == 0:
         return values, rest, marks, 0, 0, 0
-    bufs = column.buffers()
     try:
         count, not_plain, marked = _csvfast.scan_numbers(
-            n, column.offset, bufs[0] if column.null_count else None, bufs[1], bufs[2],
-            pa.types.is_large_string(t), values, rest.view(np.uint8), ord(decimal), marks)
+            *text, values, rest.view(np.uint8), ord(decimal), marks)
     except ValueError:  # buffers laid out as the scan does not expect: the reference reads
         return None
     return values, rest, marks, count, not_plain, marked
@@ -221,20 +226,15 @@ def distinct_texts(column: pa.Array, limit: int = 64) -> tuple[np.ndarray, list[
     the order of their first cell, and each cell's index into them (int32; -1 for a null
     cell), as Arrow's dictionary encoding gives them.  None when the column has more
     than ``limit`` distinct texts, or the extension is not built or switched off."""
-    if not compiled_available():
-        return None
-    t = column.type
-    if not (pa.types.is_string(t) or pa.types.is_large_string(t)):
+    text = _text_buffers(column)
+    if text is None:
         return None
     n = len(column)
     indices = np.empty(n, dtype=np.int32)
     if n == 0:
         return indices, []
-    bufs = column.buffers()
     try:
-        got = _csvfast.distinct_texts(n, column.offset, bufs[0] if column.null_count else None,
-                                      bufs[1], bufs[2], pa.types.is_large_string(t), indices,
-                                      limit)
+        got = _csvfast.distinct_texts(*text, indices, limit)
         return None if got is None else (indices, [b.decode("utf-8") for b in got])
     except (ValueError, UnicodeDecodeError):  # the reference reads it
         return None
