@@ -68,7 +68,11 @@ class OwnKeys:
     Backspace.  Mixed in before the widget class: ``class ValueInput(OwnKeys, Input)``."""
 
     async def _on_key(self, event: events.Key) -> None:
-        bindings = self._bindings.key_to_bindings  # type: ignore[attr-defined]
+        # Textual's map of this widget's own keys (not public API): where a version has
+        # none, the keys go the default way.
+        bindings = getattr(getattr(self, "_bindings", None), "key_to_bindings", None)
+        if bindings is None:
+            return
         for key in (event.key, *event.aliases):
             for binding in bindings.get(key, ()):
                 if binding.priority:
