@@ -70,7 +70,11 @@ class AcidBaseApp(App[None]):
     def action_help(self) -> None:
         from .screens.help import HelpScreen
 
-        if not isinstance(self.screen, HelpScreen):
+        # F1 is the app's key (a priority binding, taken before the help screen's own):
+        # on the help screen it closes it, as the key line there says.
+        if isinstance(self.screen, HelpScreen):
+            self.pop_screen()
+        else:
             self.push_screen(HelpScreen())
 
     async def action_quit(self) -> None:

@@ -116,3 +116,14 @@ async def test_help_opens_from_a_field_and_closes_with_escape():
         await pilot.press("escape")
         await pilot.pause()
         assert app.focused.id == "ph" and app.focused.value == "7"
+
+
+async def test_f1_on_the_help_closes_it_as_its_key_line_says():
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await pilot.press("f1")
+        await pilot.pause()
+        assert type(app.screen).__name__ == "HelpScreen"
+        await pilot.press("f1")
+        await pilot.pause()
+        assert type(app.screen).__name__ == "EntryScreen"
