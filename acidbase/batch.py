@@ -43,7 +43,7 @@ from .fields import BY_NAME
 from .fileio import BatchInputError, Layout, Source
 from .files import hl7
 from .files.check import (EXTRA_COLUMNS, ROW_COLUMN, check_chunk, field_column,  # noqa: F401
-                          output_names, review_mask, review_rules)
+                          field_values, output_names, review_mask, review_rules)
 from .files.outputs import (
     OutputSet,
     Staged,
@@ -520,7 +520,7 @@ def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.Seri
     for table in src.chunks(wanted):
         values = {}
         many = fileio.parse_numeric_many(
-            [field_column(table, columns_of[f], layout.missing)[0] for f in fields_used],
+            [field_values(table, columns_of[f], layout.missing) for f in fields_used],
             decimal, layout.missing)
         for f, p in zip(fields_used, many):
             spec = BY_NAME[f]

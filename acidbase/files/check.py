@@ -120,11 +120,26 @@ def field_column(table: pa.Table | pa.RecordBatch, headers: Sequence[str],
     filled = {h: _filled(table.column(h), missing) for h in headers}
     if len(headers) == 1:
         return table.column(headers[0]), filled
+    return _merged(table, headers, filled), filled
+
+
+def field_values(table: pa.Table | pa.RecordBatch, headers: Sequence[str],
+                 missing: Sequence[str] = ()) -> Any:
+    """``field_column``'s column alone: a field with one input column is that column,
+    as read (no cell looked at: the serial checks' first pass reads many)."""
+    if len(headers) == 1:
+        return table.column(headers[0])
+    return _merged(table, headers, {h: _filled(table.column(h), missing) for h in headers})
+
+
+def _merged(table: pa.Table | pa.RecordBatch, headers: Sequence[str],
+            filled: dict[str, np.ndarray]) -> Any:
+    """The columns of one field merged row by row: each row takes the filled one."""
     merged = None
     for h in headers:
         text = _as_text(table.column(h))
         merged = text if merged is None else pc.if_else(pa.array(filled[h]), text, merged)
-    return merged, filled
+    return merged
 
 
 def panel_columns(table: pa.Table | pa.RecordBatch, layout: Layout,
@@ -408,5 +423,5 @@ def check_table(table: pa.Table | pa.RecordBatch, settings: Settings | None = No
 
 
 __all__ = ["EXTRA_COLUMNS", "PanelTable", "ROW_COLUMN", "check_chunk", "check_table",
-           "field_column",
+           "field_column", "field_values",
            "output_names", "panel_columns", "panel_table", "review_mask", "review_rules"]
