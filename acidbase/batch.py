@@ -540,7 +540,7 @@ def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.Seri
         progress.update(rows)
     if store is not None:
         history.feed_earlier(store, checker)
-    checker.finish()
+    checker.finish(workers=WORKERS)
 
 
 def _audit(args: argparse.Namespace) -> dict[str, object]:

@@ -311,57 +311,78 @@ class SerialChecker:
             return ipc.open_file(src).read_all()
 
     # -- checks -----------------------------------------------------------------
-    def finish(self) -> None:
-        """Check every partition; afterwards ``columns`` answers by row number."""
+    def finish(self, workers: int = 1) -> None:
+        """Check every partition; afterwards ``columns`` answers by row number.
+
+        ``workers`` > 1 checks that many partitions at a time on threads (numpy's
+        sorts and Arrow's kernels let go of the interpreter lock); a patient is in
+        one partition, so each writes rows of its own, and their flagged text is
+        spilled here, in partition order: the same files whatever the workers."""
         status = np.concatenate(self._status) if self._status else np.zeros(0, dtype=np.uint8)
         self._status = []
         self.known = np.zeros(len(status), dtype=bool)
         self.twins = np.zeros(len(status), dtype=bool)
-        mixed = self._naive > 0 and self._zoned > 0
         self._bucket_rows = max(_BUCKET_ROWS, -(-self._n // _MAX_BUCKETS))
         spill: dict[int, ipc.RecordBatchFileWriter] = {}
         for w in self._writers.values():
             w.close()
         self._writers = {}
+        pool = None
         try:
-            for b in range(self.k):
-                parts = [t for t in (self._read_part(b, "p"), self._read_part(b, "e"))
-                         if t is not None]
-                if not parts:
-                    continue
-                table = pa.concat_tables(parts) if len(parts) > 1 else parts[0]
-                del parts
-                row = np.asarray(table["row"].to_numpy(), dtype=np.int64)
-                pid = _codes(table["patient"])
-                if (row < 0).any() or self.keep:
-                    keep = self._identities(table, pid, row)
-                    if keep is not None:
-                        table, row, pid = table.filter(pa.array(keep)), row[keep], pid[keep]
-                zoned = np.asarray(table["zoned"].to_numpy(zero_copy_only=False), dtype=bool)
-                earlier = row < 0
-                drop = earlier & (zoned != (self._zoned > 0))  # other clock: not comparable
-                if earlier.any():  # patients with no panel in this file: not needed
-                    mine = np.zeros(pid.max() + 2, dtype=bool)
-                    mine[pid[~earlier]] = True
-                    drop |= earlier & ~mine[pid]
-                if mixed:
-                    naive = ~zoned & ~earlier
-                    status[row[naive]] = MIXED_ZONE
-                    drop |= naive
-                if drop.any():
-                    table, pid = table.filter(pa.array(~drop)), pid[~drop]
-                found = self._check(table, pid, status)
-                if found is not None:
-                    self._spill_text(*found, spill)
-                del table
-                for kind in ("p", "e"):
-                    if (kind == "e" or not self.keep) and os.path.exists(self._part_path(b, kind)):
-                        os.remove(self._part_path(b, kind))
+            if workers > 1 and self.k > 1:
+                from concurrent.futures import ThreadPoolExecutor
+
+                pool = ThreadPoolExecutor(workers, thread_name_prefix="acidbase-serial")
+                # ``workers`` partitions in hand at a time: memory stays bounded.
+                found = _ahead(pool, self._check_partition, range(self.k), status, workers)
+            else:
+                found = (self._check_partition(b, status) for b in range(self.k))
+            for got in found:
+                if got is not None:
+                    self._spill_text(*got, spill)
         finally:
+            if pool is not None:
+                pool.shutdown(wait=True, cancel_futures=True)
             for w in spill.values():
                 w.close()
         self.status = status
         self.interpreted = np.zeros(len(status), dtype=bool)
+
+    def _check_partition(self, b: int, status: np.ndarray
+                         ) -> tuple[np.ndarray, pa.Array, pa.Array] | None:
+        """Check partition ``b`` (this file's rows and the earlier panels that join
+        them): its rows' status set in ``status``; its flagged rows and their text."""
+        parts = [t for t in (self._read_part(b, "p"), self._read_part(b, "e"))
+                 if t is not None]
+        if not parts:
+            return None
+        table = pa.concat_tables(parts) if len(parts) > 1 else parts[0]
+        del parts
+        row = np.asarray(table["row"].to_numpy(), dtype=np.int64)
+        pid = _codes(table["patient"])
+        if (row < 0).any() or self.keep:
+            keep = self._identities(table, pid, row)
+            if keep is not None:
+                table, row, pid = table.filter(pa.array(keep)), row[keep], pid[keep]
+        zoned = np.asarray(table["zoned"].to_numpy(zero_copy_only=False), dtype=bool)
+        earlier = row < 0
+        drop = earlier & (zoned != (self._zoned > 0))  # other clock: not comparable
+        if earlier.any():  # patients with no panel in this file: not needed
+            mine = np.zeros(pid.max() + 2, dtype=bool)
+            mine[pid[~earlier]] = True
+            drop |= earlier & ~mine[pid]
+        if self._naive > 0 and self._zoned > 0:  # mixed clocks
+            naive = ~zoned & ~earlier
+            status[row[naive]] = MIXED_ZONE
+            drop |= naive
+        if drop.any():
+            table, pid = table.filter(pa.array(~drop)), pid[~drop]
+        found = self._check(table, pid, status)
+        del table
+        for kind in ("p", "e"):
+            if (kind == "e" or not self.keep) and os.path.exists(self._part_path(b, kind)):
+                os.remove(self._part_path(b, kind))
+        return found
 
     def _check(self, table: pa.Table, pid: np.ndarray, status: np.ndarray
                ) -> tuple[np.ndarray, pa.Array, pa.Array] | None:
@@ -384,7 +405,9 @@ class SerialChecker:
         near = np.zeros(n, dtype=bool)
         near[:-1] |= pair & ours[1:]
         near[1:] |= pair & ours[:-1]
-        self.earlier_used += int(np.count_nonzero(near & ~ours))
+        used = int(np.count_nonzero(near & ~ours))
+        with self._lock:  # (partitions may be checked on threads)
+            self.earlier_used += used
         vals = {r.field: np.asarray(table[r.field].to_numpy(zero_copy_only=False),
                                     dtype=np.float64)[order] for r in self.rules}
         delta, brk = {}, {}
@@ -657,6 +680,20 @@ def _joined(parts: Sequence[tuple[str, np.ndarray, pa.Array]], n: int, sep: str,
     np.cumsum(np.bincount(at, minlength=n), out=offsets[1:])
     lists = pa.ListArray.from_arrays(pa.array(offsets), texts)
     return names.take(pa.array(inverse.ravel())), pc.binary_join(lists, sep)
+
+
+def _ahead(pool, fn: Callable, items: Iterator, arg, depth: int) -> Iterator:
+    """``fn(item, arg)`` for each item on ``pool``, yielded in order, with at most
+    ``depth`` submitted and not yet yielded."""
+    from collections import deque
+
+    pending: deque = deque()
+    for item in items:
+        pending.append(pool.submit(fn, item, arg))
+        if len(pending) >= depth:
+            yield pending.popleft().result()
+    while pending:
+        yield pending.popleft().result()
 
 
 def _series_order(pid: np.ndarray, t: np.ndarray, row: np.ndarray) -> np.ndarray:

@@ -18,7 +18,7 @@ HOUR = 3600
 
 
 def run(patients, hours, values, partitions=1, rules=serial.DELTA_RULES, window=24.0,
-        times=None):
+        times=None, workers=1):
     checker = serial.SerialChecker(rules, window, partitions)
     if times is None:
         secs = np.array([int(h * HOUR) for h in hours], dtype=np.int64)
@@ -28,7 +28,7 @@ def run(patients, hours, values, partitions=1, rules=serial.DELTA_RULES, window=
     vals = {k: np.asarray(v, dtype=np.float64) for k, v in values.items()}
     checker.add(pa.array(patients, type=pa.string()), secs, kind, vals,
                 pa.array([f"S{i + 1}" for i in range(len(patients))]))
-    checker.finish()
+    checker.finish(workers=workers)
     return checker.columns(0, len(patients))
 
 
@@ -86,14 +86,17 @@ def test_unsorted_rows_give_the_same_flags_as_sorted_rows():
     assert out["serial_codes"].tolist() == ref["serial_codes"][perm].tolist()
 
 
-def test_partitioning_does_not_change_the_result():
+@pytest.mark.parametrize("workers", [1, 2, 3])
+def test_partitioning_does_not_change_the_result(workers):
+    """Partitions checked one after the other or on threads (``workers``): the
+    flags and their text are those of one partition."""
     rng = np.random.default_rng(3)
     n = 400
     pats = [f"P{i}" for i in rng.integers(0, 40, n)]
     hours = rng.uniform(0, 72, n)
     na = 140.0 + rng.normal(0, 6, n)
     one = run(pats, hours, {"na": na}, partitions=1)
-    many = run(pats, hours, {"na": na}, partitions=7)
+    many = run(pats, hours, {"na": na}, partitions=7, workers=workers)
     for key in serial.COLUMNS:
         assert one[key].tolist() == many[key].tolist()
     assert (one["serial_codes"] != "").any()
@@ -235,7 +238,7 @@ def test_keyed_ids_in_many_partitions_give_the_plain_ids_result():
     checker.add(keyed, secs, np.full(n, fileio.TIME_ZONED, dtype=np.int8),
                 {k: np.asarray(v) for k, v in values.items()},
                 pa.array([f"S{i + 1}" for i in range(n)]))
-    checker.finish()
+    checker.finish(workers=2)
     got = checker.columns(0, n)
     for key in serial.COLUMNS:
         assert got[key].tolist() == plain[key].tolist()
