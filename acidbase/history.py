@@ -36,8 +36,10 @@ import json
 import os
 import sqlite3
 import time
+from collections import deque
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 import pyarrow as pa
@@ -505,12 +507,18 @@ class Store:
                                        pc.less_equal(table["t"], hi)))
 
     def commit(self, panels: Iterator[pa.Table], record: RunRecord,
-               now: float | None = None) -> RunRecord:
+               now: float | None = None, workers: int = 1) -> RunRecord:
         """Add a run's new panels (columns of ``BLOCK_SCHEMA``, identity already
-        checked against the store) and its audit record; prune; commit."""
+        checked against the store) and its audit record; prune; commit.
+
+        ``workers`` > 1 encodes the blocks and the latest panels of that many tables
+        at a time on threads (Arrow's encoding lets go of the interpreter lock);
+        the rows go into the store here, in the order the tables came: the same
+        store whatever the workers."""
         if not self._in_run:
             raise HistoryError("commit without begin")
         cutoff = int((time.time() if now is None else now) - self.retention)
+        pool = None
         try:
             cur = self.db.execute(
                 "INSERT INTO runs (finished_at, tool_version, settings, input_sha256, "
@@ -518,27 +526,40 @@ class Store:
                 (_now_text(), record.tool_version, json.dumps(record.settings, sort_keys=True),
                  record.input_sha256, record.earlier_used))
             run_id = cur.lastrowid
+            if workers > 1:
+                from concurrent.futures import ThreadPoolExecutor
+
+                pool = ThreadPoolExecutor(workers, thread_name_prefix="acidbase-store")
+            # (buckets, prepared or its future), in the order the tables came
+            pending: deque[tuple[frozenset[str], Any]] = deque()
+
+            def put_oldest() -> None:
+                _, job = pending.popleft()
+                self._put_prepared(run_id, job.result() if pool is not None else job)
+
             for table in panels:
-                if not pa.types.is_fixed_size_binary(table.schema.field("patient").type):
-                    table = table.set_column(  # (hex ids, as layout 1 kept them)
-                        table.schema.get_field_index("patient"), "patient",
-                        keyed_binary(table["patient"]))
-                old = pc.less(table["t"], cutoff)
-                n_old = int(pc.sum(old).as_py() or 0)
-                if n_old:  # (a copy only when there is something to leave out)
-                    record.too_old += n_old
-                    table = table.filter(pc.invert(old))
-                record.added += table.num_rows
-                # One record batch: a block of one batch is encoded and decoded several
-                # times faster than one of the many chunks a run's partition comes in.
-                table = table.combine_chunks()
-                for bucket, part in self._write_blocks(run_id, table) or ():
-                    # The bucket's latest panels with these (a run's partition holds
-                    # one bucket: one bucket's panels in memory at a time).
+                table = self._fresh(table, cutoff, record)
+                if table.num_rows == 0:
+                    continue
+                digits = _first_digit(table["patient"])
+                buckets = frozenset(_DIGITS[d] for d in np.unique(digits).tolist())
+                # A bucket's latest panels are read after its previous table is in.
+                while pending and any(buckets & b for b, _ in pending):
+                    put_oldest()
+                old = {}
+                for bucket in buckets:
                     got = self.db.execute("SELECT data FROM latest WHERE bucket = ?",
                                           (bucket,)).fetchone()
-                    parts = [part] if got is None else [_decode(got[0]), part]
-                    self._put_latest(bucket, _latest(pa.concat_tables(parts)))
+                    if got is not None:
+                        old[bucket] = got[0]
+                if pool is None:
+                    pending.append((buckets, _prepared(table, digits, old)))
+                else:
+                    pending.append((buckets, pool.submit(_prepared, table, digits, old)))
+                while len(pending) > workers:
+                    put_oldest()
+            while pending:
+                put_oldest()
             self.db.execute("UPDATE runs SET panels_added = ?, panels_already_stored = ? "
                             "WHERE id = ?", (record.added, record.already_stored, run_id))
             self._prune(cutoff)
@@ -546,6 +567,9 @@ class Store:
         except BaseException:
             self.rollback()
             raise
+        finally:
+            if pool is not None:
+                pool.shutdown(wait=True, cancel_futures=True)
         self._in_run = False
         return record
 
@@ -554,27 +578,32 @@ class Store:
             self.db.execute("ROLLBACK")
         self._in_run = False
 
-    def _write_blocks(self, run_id: int, table: pa.Table) -> list[tuple[str, pa.Table]]:
-        """One block per patient bucket (the first hex digit of the keyed hash); the
-        buckets and their panels."""
-        if table.num_rows == 0:
-            return []
-        idx = _first_digit(table["patient"])
-        if not (idx[1:] >= idx[:-1]).all():  # (a run's partitions are one digit each)
-            order = np.argsort(idx, kind="stable")
-            table = table.take(pa.array(order))
-            idx = idx[order]
-        edges = np.r_[0, np.flatnonzero(np.diff(idx)) + 1, len(idx)]
-        parts = []
-        for lo, hi in itertools.pairwise(edges):
-            part = table.slice(lo, hi - lo)
-            t = part["t"]
+    @staticmethod
+    def _fresh(table: pa.Table, cutoff: int, record: RunRecord) -> pa.Table:
+        """A table of new panels as stored: ids as 16 bytes, panels collected before
+        ``cutoff`` left out (counted in ``record``), one record batch."""
+        if not pa.types.is_fixed_size_binary(table.schema.field("patient").type):
+            table = table.set_column(  # (hex ids, as layout 1 kept them)
+                table.schema.get_field_index("patient"), "patient",
+                keyed_binary(table["patient"]))
+        old = pc.less(table["t"], cutoff)
+        n_old = int(pc.sum(old).as_py() or 0)
+        if n_old:  # (a copy only when there is something to leave out)
+            record.too_old += n_old
+            table = table.filter(pc.invert(old))
+        record.added += table.num_rows
+        # One record batch: a block of one batch is encoded and decoded several
+        # times faster than one of the many chunks a run's partition comes in.
+        return table.combine_chunks()
+
+    def _put_prepared(self, run_id: int, prepared: list[_Prepared]) -> None:
+        """Insert one table's blocks and replace its buckets' latest panels."""
+        for p in prepared:
             self.db.execute("INSERT INTO blocks (run_id, bucket, n, tmin, tmax, data) "
-                            "VALUES (?, ?, ?, ?, ?, ?)", (
-                                run_id, _DIGITS[idx[lo]], part.num_rows, pc.min(t).as_py(),
-                                pc.max(t).as_py(), _encode(part)))
-            parts.append((_DIGITS[idx[lo]], part))
-        return parts
+                            "VALUES (?, ?, ?, ?, ?, ?)",
+                            (run_id, p.bucket, p.n, p.tmin, p.tmax, p.block))
+            self.db.execute("INSERT OR REPLACE INTO latest (bucket, n, tmin, data) "
+                            "VALUES (?, ?, ?, ?)", (p.bucket, *p.latest))
 
     def _prune(self, cutoff: int) -> int:
         """Drop panels collected before ``cutoff``: whole blocks, or rewrite a block
@@ -708,6 +737,42 @@ def _first_digit(hashes: pa.Array | pa.ChunkedArray) -> np.ndarray:
 def _is(ids: pa.ChunkedArray | pa.Array, h: bytes) -> pa.Array:
     """Which stored ids are ``h`` (16 bytes)."""
     return pc.fill_null(pc.equal(ids, pa.scalar(h, pa.binary(KEYED_BYTES))), False)
+
+
+@dataclass(frozen=True)
+class _Prepared:
+    """One bucket's block of a run's new panels and its new latest panels, encoded."""
+
+    bucket: str
+    n: int
+    tmin: int
+    tmax: int
+    block: memoryview
+    latest: tuple[int, int, memoryview]  #: n, tmin, data
+
+
+def _prepared(table: pa.Table, digits: np.ndarray,
+              old: Mapping[str, bytes]) -> list[_Prepared]:
+    """A table of new panels (``Store._fresh``) as one block per bucket (the first
+    hex digit of the keyed id: ``digits``), each with its bucket's latest panels:
+    those of ``old`` (the stored latest, by bucket) and the block's.  No store
+    access: the caller inserts them."""
+    if not (digits[1:] >= digits[:-1]).all():  # (a run's partitions are one digit each)
+        order = np.argsort(digits, kind="stable")
+        table = table.take(pa.array(order))
+        digits = digits[order]
+    edges = np.r_[0, np.flatnonzero(np.diff(digits)) + 1, len(digits)]
+    out = []
+    for lo, hi in itertools.pairwise(edges):
+        part = table.slice(lo, hi - lo)
+        bucket = _DIGITS[digits[lo]]
+        t = part["t"]
+        got = old.get(bucket)
+        latest = _latest(part if got is None else pa.concat_tables([_decode(got), part]))
+        out.append(_Prepared(bucket, part.num_rows, pc.min(t).as_py(), pc.max(t).as_py(),
+                             _encode(part), (latest.num_rows, pc.min(latest["t"]).as_py(),
+                                             _encode(latest))))
+    return out
 
 
 def _latest(table: pa.Table) -> pa.Table:
@@ -845,10 +910,10 @@ def run_settings(settings: Mapping[str, object], checker, store: Store) -> dict[
 
 
 def commit_run(store: Store, checker, input_path: str, settings: Mapping[str, object],
-               input_sha256: str | None = None) -> str:
+               input_sha256: str | None = None, workers: int = 1) -> str:
     """Add the run's new panels with its audit record; the summary's line.
     ``input_sha256``: the input's SHA-256 when the run has it already (read again
-    otherwise)."""
+    otherwise); ``workers``: threads that encode the blocks (``Store.commit``)."""
     from . import __version__
 
     known = checker.known & checker.interpreted
@@ -856,7 +921,7 @@ def commit_run(store: Store, checker, input_path: str, settings: Mapping[str, ob
                        input_sha256=input_sha256 or file_sha256(input_path),
                        already_stored=int(np.count_nonzero(known)),
                        earlier_used=checker.earlier_used)
-    store.commit(checker.new_panels(), record)
+    store.commit(checker.new_panels(), record, workers=workers)
     line = (f"history store: {record.earlier_used:,} earlier panels compared; "
             f"{record.added:,} panels added; {record.already_stored:,} already stored "
             "(same patient, time and sample id), not added again")
