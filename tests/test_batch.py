@@ -547,3 +547,32 @@ def test_plane_counts_are_numpys_histogram(points, on_edges):
     ref, _, _ = np.histogram2d(hco3, pco2, bins=(batch_module.PLANE_ROWS, batch_module.PLANE_COLS),
                                range=(batch_module.PLANE_HCO3, batch_module.PLANE_PCO2))
     assert (batch_module.plane_counts(hco3, pco2) == ref.astype(np.int64)).all()
+
+
+def test_an_absent_optional_module_is_marked_absent_and_nothing_else(monkeypatch):
+    """pyarrow looks for dateutil each time it converts a Python value; where it is
+    not installed, the batch marks it absent the import system's way (None in
+    sys.modules: importing it fails at once, as it would have anyway); where it is
+    installed, nothing is touched.  pyarrow still converts values either way."""
+    import importlib.util
+    import sys
+
+    import pyarrow as pa
+
+    real_find = importlib.util.find_spec
+    monkeypatch.delitem(sys.modules, "dateutil", raising=False)
+    monkeypatch.setattr(importlib.util, "find_spec",
+                        lambda name, *a: None if name == "dateutil" else real_find(name, *a))
+    batch_module._absent_imports_fail_fast()
+    assert "dateutil" in sys.modules and sys.modules["dateutil"] is None
+    with pytest.raises(ImportError):
+        import dateutil.relativedelta  # noqa: F401
+    assert pa.scalar("7.40").as_py() == "7.40"
+    monkeypatch.undo()
+
+    spec = object()  # installed: left alone
+    monkeypatch.delitem(sys.modules, "dateutil", raising=False)
+    monkeypatch.setattr(importlib.util, "find_spec",
+                        lambda name, *a: spec if name == "dateutil" else real_find(name, *a))
+    batch_module._absent_imports_fail_fast()
+    assert "dateutil" not in sys.modules
