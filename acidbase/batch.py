@@ -711,7 +711,10 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         checker = serial.SerialChecker(serial.rules_with(site.deltas), site.window_hours,
                                        serial.SerialChecker.partitions_for(src.size)
                                        * (2 if store else 1), keep=store is not None,
-                                       hashed_ids=store is not None)
+                                       hashed_ids=store is not None,
+                                       # the sentences: in the file, or for the report's list
+                                       detail_rows=None if profile.serial_text
+                                       else FLAGGED_LISTED)
         stack.callback(checker.close)  # its scratch folder goes, whatever happens
         progress = Progress(src.estimated_rows(), not args.quiet)
         progress.label = "serial 1/2"

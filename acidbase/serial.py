@@ -159,9 +159,18 @@ class SerialChecker:
     def __init__(self, rules: Sequence[DeltaRule] = DELTA_RULES,
                  window_hours: float = DEFAULT_WINDOW_HOURS, partitions: int = 1,
                  workdir: str | None = None, keep: bool = False,
-                 hashed_ids: bool = False) -> None:
+                 hashed_ids: bool = False, detail_rows: int | None = None) -> None:
         if not window_hours > 0:
             raise ValueError("the serial window must be a positive number of hours")
+        self.detail_rows = detail_rows
+        """None: every flagged row's detail sentence.  A number N: the sentence only
+        for the first N flagged rows of the file (by row number), "" for the others,
+        whose codes are still given: what a batch needs when it writes no
+        ``serial_detail`` column and lists at most N rows for review.  (Every
+        flagged row needs review, so the first N rows listed are among the first N
+        flagged ones.  Each partition words its own first N, a set that holds
+        them; ``arrow_columns`` gives those of the file's first N only.)"""
+        self._detail_last: int | None = None
         self.rules = tuple(rules)
         self.window = float(window_hours) * 3600.0
         self.k = max(1, int(partitions))
@@ -347,6 +356,11 @@ class SerialChecker:
                 w.close()
         self.status = status
         self.interpreted = np.zeros(len(status), dtype=bool)
+        if self.detail_rows is not None:  # the last row of the file's first N flagged
+            flagged = np.flatnonzero(status == FLAGGED)
+            if len(flagged) > self.detail_rows:
+                self._detail_last = int(flagged[self.detail_rows - 1]) if self.detail_rows \
+                    else -1
 
     def _check_partition(self, b: int, status: np.ndarray
                          ) -> tuple[np.ndarray, pa.Array, pa.Array] | None:
@@ -436,9 +450,20 @@ class SerialChecker:
         zoned = np.asarray(table["zoned"].to_numpy(zero_copy_only=False), dtype=bool)[order]
         samples = table["sample"].combine_chunks()
         by_row = np.argsort(row[flagged], kind="stable")  # the order the text is spilled in
-        codes, detail = _texts(self.rules, flagged, row, t, zoned,
-                               lambda at: samples.take(pa.array(order[at])), vals, delta, brk,
-                               by_row)
+        limit = self.detail_rows
+        if limit is None or limit >= len(flagged):
+            codes, detail = _texts(self.rules, flagged, row, t, zoned,
+                                   lambda at: samples.take(pa.array(order[at])), vals, delta,
+                                   brk, by_row)
+            return row[flagged][by_row], codes, detail
+        # The codes of every flagged row; the sentences of the first ``limit`` by row.
+        codes = _code_names(self.rules, flagged, delta, brk, by_row)
+        first = np.sort(by_row[:limit])  # positions in ``flagged`` (sorted: by partition)
+        _, said = _texts(self.rules, flagged[first], row, t, zoned,
+                         lambda at: samples.take(pa.array(order[at])), vals, delta, brk,
+                         np.argsort(row[flagged[first]], kind="stable"))
+        detail = pa.concat_arrays([said, pa.repeat(pa.scalar("", pa.string()),
+                                                   len(flagged) - len(first))])
         return row[flagged][by_row], codes, detail
 
     def _identities(self, table: pa.Table, pid: np.ndarray,
@@ -580,7 +605,10 @@ class SerialChecker:
         where[rows - start] = np.arange(len(rows))
         index = pa.array(where, mask=where < 0)
         codes = pc.fill_null(pc.take(pa.concat_arrays([p[1] for p in parts]), index), "")
-        detail = pc.fill_null(pc.take(pa.concat_arrays([p[2] for p in parts]), index), "")
+        said = pa.concat_arrays([p[2] for p in parts])
+        if self._detail_last is not None and rows[-1] > self._detail_last:
+            said = pc.if_else(pa.array(rows > self._detail_last), "", said)  # (detail_rows)
+        detail = pc.fill_null(pc.take(said, index), "")
         return {"serial_status": status, "serial_codes": codes, "serial_detail": detail}
 
     def columns(self, start: int, stop: int) -> dict[str, np.ndarray]:
@@ -666,20 +694,45 @@ def _joined(parts: Sequence[tuple[str, np.ndarray, pa.Array]], n: int, sep: str,
     part) in one take and joined as lists, so each text is copied twice at most;
     the names are joined once per combination of parts (there are few)."""
     rank = np.arange(n) if out_order is None else np.argsort(out_order)
-    key = np.zeros(n, dtype=np.int64)
-    for j, (_, rows, _) in enumerate(parts):
-        key[rows] |= 1 << j
-    combos, inverse = np.unique(key if out_order is None else key[out_order],
-                                return_inverse=True)
-    names = pa.array([code_sep.join(p[0] for j, p in enumerate(parts) if c >> j & 1)
-                      for c in combos.tolist()], pa.string())
+    names = _names(parts, n, code_sep, out_order)
     at = np.concatenate([rank[rows] for _, rows, _ in parts])
     piece = np.argsort(at, kind="stable")  # by output row, then by part (stable)
     texts = pa.concat_arrays([p[2] for p in parts]).take(pa.array(piece))
     offsets = np.zeros(n + 1, dtype=np.int32)
     np.cumsum(np.bincount(at, minlength=n), out=offsets[1:])
     lists = pa.ListArray.from_arrays(pa.array(offsets), texts)
-    return names.take(pa.array(inverse.ravel())), pc.binary_join(lists, sep)
+    return names, pc.binary_join(lists, sep)
+
+
+def _names(parts: Sequence[tuple], n: int, code_sep: str,
+           out_order: np.ndarray | None) -> pa.Array:
+    """Rows 0..n-1, each the names of the parts (name, sorted rows covered, ...) that
+    cover it, in the order of ``parts``, joined by ``code_sep``; in the order
+    ``out_order`` of the rows (their own when None).  Joined once per combination of
+    parts (there are few)."""
+    key = np.zeros(n, dtype=np.int64)
+    for j, part in enumerate(parts):
+        key[part[1]] |= 1 << j
+    combos, inverse = np.unique(key if out_order is None else key[out_order],
+                                return_inverse=True)
+    names = pa.array([code_sep.join(p[0] for j, p in enumerate(parts) if c >> j & 1)
+                      for c in combos.tolist()], pa.string())
+    return names.take(pa.array(inverse.ravel()))
+
+
+def _code_names(rules: Sequence[DeltaRule], flagged: np.ndarray, delta: Mapping[str, np.ndarray],
+                brk: Mapping[str, np.ndarray], out_order: np.ndarray) -> pa.Array:
+    """``_texts``'s codes alone (no sentence built): a break first, then the delta
+    codes in the order of ``rules``, as ``_texts`` puts its parts."""
+    any_break = np.zeros(len(flagged), dtype=bool)
+    for r in rules:
+        any_break |= brk[r.field][flagged]
+    parts = [(CODE_BREAK, np.flatnonzero(any_break))] if any_break.any() else []
+    for r in rules:
+        sel = np.flatnonzero(delta[r.field][flagged])
+        if sel.size:
+            parts.append((r.code, sel))
+    return _names(parts, len(flagged), ";", out_order)
 
 
 def _ahead(pool, fn: Callable, items: Iterator, arg, depth: int) -> Iterator:

@@ -576,3 +576,33 @@ def test_an_absent_optional_module_is_marked_absent_and_nothing_else(monkeypatch
                         lambda name, *a: spec if name == "dateutil" else real_find(name, *a))
     batch_module._absent_imports_fail_fast()
     assert "dateutil" not in sys.modules
+
+
+def test_the_reports_list_is_the_same_whatever_the_profile(tmp_path, monkeypatch, capsys):
+    """A lean run words the serial flags of only the rows its report can list (the
+    first FLAGGED_LISTED flagged ones); its report lists the same rows, with the same
+    serial detail, as a run that words them all (``--profile full``), over several
+    partitions.  Invented panels, for this test only."""
+    from acidbase import serial
+
+    monkeypatch.setattr(batch_module, "FLAGGED_LISTED", 12)
+    monkeypatch.setattr(serial.SerialChecker, "partitions_for", staticmethod(lambda size: 5))
+    rng = np.random.default_rng(8)
+    lines = ["sample_id,patient_id,collected_at,ph,pco2,hco3,na,cl,k"]
+    for i in range(600):
+        na = 140 + (25 if rng.random() < 0.15 else 0) + rng.normal(0, 2)
+        lines.append(f"S{i},P{rng.integers(0, 40)},2026-03-{1 + i // 200:02d}T"
+                     f"{(i // 10) % 20:02d}:{i % 60:02d}:00Z,7.40,40,24,{na:.0f},104,4.1")
+    src = tmp_path / "panels.csv"
+    src.write_text("\n".join(lines) + "\n")
+    listed = []
+    for profile in ("lean", "full"):
+        report = tmp_path / f"{profile}.md"
+        rc = main(["batch", str(src), "-o", str(tmp_path / f"{profile}.csv"), "--report",
+                   str(report), "--profile", profile, "--quiet"])
+        assert rc == 0
+        text = report.read_text()
+        listed.append(text[text.index("## Rows that need review"):text.index("## Panels on")])
+    capsys.readouterr()
+    assert listed[0] == listed[1]
+    assert listed[0].count("SERIAL-DELTA-NA") >= 8 and listed[0].count("delta limit") >= 8

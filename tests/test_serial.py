@@ -18,8 +18,8 @@ HOUR = 3600
 
 
 def run(patients, hours, values, partitions=1, rules=serial.DELTA_RULES, window=24.0,
-        times=None, workers=1):
-    checker = serial.SerialChecker(rules, window, partitions)
+        times=None, workers=1, detail_rows=None):
+    checker = serial.SerialChecker(rules, window, partitions, detail_rows=detail_rows)
     if times is None:
         secs = np.array([int(h * HOUR) for h in hours], dtype=np.int64)
         kind = np.full(len(secs), fileio.TIME_ZONED, dtype=np.int8)
@@ -267,3 +267,25 @@ def test_numbers_kept_across_partitions_read_as_formatting_each_does():
             u, inv = np.unique(x, return_inverse=True)
             want = [fmt(float(u[i])) for i in inv.ravel()]
             assert serial._formatted(x, fmt).to_pylist() == want
+
+
+@pytest.mark.parametrize("partitions,workers", [(1, 1), (7, 1), (7, 2)])
+def test_sentences_for_the_first_flagged_rows_only_keep_every_code(partitions, workers):
+    """``detail_rows=N`` (a batch that writes no ``serial_detail`` column and lists N
+    rows for review): every flagged row keeps its codes and status; the first N
+    flagged rows of the file keep their sentence, word for word; the others have
+    none.  Whatever the partitions and threads."""
+    rng = np.random.default_rng(11)
+    n = 2000
+    pats = [f"P{i}" for i in rng.integers(0, 120, n)]
+    hours = rng.uniform(0, 96, n)
+    values = {"na": 140.0 + rng.normal(0, 7, n), "k": 4.0 + rng.normal(0, 0.7, n)}
+    full = run(pats, hours, values, partitions=partitions, workers=workers)
+    some = run(pats, hours, values, partitions=partitions, workers=workers, detail_rows=25)
+    assert some["serial_codes"].tolist() == full["serial_codes"].tolist()
+    assert some["serial_status"].tolist() == full["serial_status"].tolist()
+    flagged = np.flatnonzero(full["serial_codes"] != "")
+    assert len(flagged) > 200 and (full["serial_detail"][flagged] != "").all()
+    assert some["serial_detail"][flagged[:25]].tolist() == full["serial_detail"][flagged[:25]].tolist()
+    assert (some["serial_detail"][flagged[25:]] == "").all()
+    assert (some["serial_detail"][full["serial_codes"] == ""] == "").all()
