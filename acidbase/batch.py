@@ -793,7 +793,7 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
     if store is not None:  # only a run whose every row was written is stored
         _give_back_memory()
         notes.append(history.commit_run(store, checker, args.input, _audit(args),
-                                        input_hash.result(), workers=WORKERS))
+                                        input_hash.result()))
     summary = staged.get("--summary")
     record = audit.record(site, started, input_name=label, input_path=args.input,
                           input_sha256=input_hash.result(),

@@ -36,10 +36,8 @@ import json
 import os
 import sqlite3
 import time
-from collections import deque
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field
-from typing import Any
 
 import numpy as np
 import pyarrow as pa
@@ -507,18 +505,16 @@ class Store:
                                        pc.less_equal(table["t"], hi)))
 
     def commit(self, panels: Iterator[pa.Table], record: RunRecord,
-               now: float | None = None, workers: int = 1) -> RunRecord:
+               now: float | None = None) -> RunRecord:
         """Add a run's new panels (columns of ``BLOCK_SCHEMA``, identity already
         checked against the store) and its audit record; prune; commit.
 
-        ``workers`` > 1 encodes the blocks and the latest panels of that many tables
-        at a time on threads (Arrow's encoding lets go of the interpreter lock);
-        the rows go into the store here, in the order the tables came: the same
-        store whatever the workers."""
+        One table in hand at a time.  (Encoding two at once on threads took about
+        0.1 s off a 1M-row run's commit but added 36 MB to a 5M-row run's peak,
+        above its 300 MB bound: docs/performance.md.)"""
         if not self._in_run:
             raise HistoryError("commit without begin")
         cutoff = int((time.time() if now is None else now) - self.retention)
-        pool = None
         try:
             cur = self.db.execute(
                 "INSERT INTO runs (finished_at, tool_version, settings, input_sha256, "
@@ -526,40 +522,18 @@ class Store:
                 (_now_text(), record.tool_version, json.dumps(record.settings, sort_keys=True),
                  record.input_sha256, record.earlier_used))
             run_id = cur.lastrowid
-            if workers > 1:
-                from concurrent.futures import ThreadPoolExecutor
-
-                pool = ThreadPoolExecutor(workers, thread_name_prefix="acidbase-store")
-            # (buckets, prepared or its future), in the order the tables came
-            pending: deque[tuple[frozenset[str], Any]] = deque()
-
-            def put_oldest() -> None:
-                _, job = pending.popleft()
-                self._put_prepared(run_id, job.result() if pool is not None else job)
-
             for table in panels:
                 table = self._fresh(table, cutoff, record)
                 if table.num_rows == 0:
                     continue
                 digits = _first_digit(table["patient"])
-                buckets = frozenset(_DIGITS[d] for d in np.unique(digits).tolist())
-                # A bucket's latest panels are read after its previous table is in.
-                while pending and any(buckets & b for b, _ in pending):
-                    put_oldest()
                 old = {}
-                for bucket in buckets:
+                for d in np.unique(digits).tolist():
                     got = self.db.execute("SELECT data FROM latest WHERE bucket = ?",
-                                          (bucket,)).fetchone()
+                                          (_DIGITS[d],)).fetchone()
                     if got is not None:
-                        old[bucket] = got[0]
-                if pool is None:
-                    pending.append((buckets, _prepared(table, digits, old)))
-                else:
-                    pending.append((buckets, pool.submit(_prepared, table, digits, old)))
-                while len(pending) > workers:
-                    put_oldest()
-            while pending:
-                put_oldest()
+                        old[_DIGITS[d]] = got[0]
+                self._put_prepared(run_id, _prepared(table, digits, old))
             self.db.execute("UPDATE runs SET panels_added = ?, panels_already_stored = ? "
                             "WHERE id = ?", (record.added, record.already_stored, run_id))
             self._prune(cutoff)
@@ -567,9 +541,6 @@ class Store:
         except BaseException:
             self.rollback()
             raise
-        finally:
-            if pool is not None:
-                pool.shutdown(wait=True, cancel_futures=True)
         self._in_run = False
         return record
 
@@ -755,8 +726,8 @@ def _prepared(table: pa.Table, digits: np.ndarray,
               old: Mapping[str, bytes]) -> list[_Prepared]:
     """A table of new panels (``Store._fresh``) as one block per bucket (the first
     hex digit of the keyed id: ``digits``), each with its bucket's latest panels:
-    those of ``old`` (the stored latest, by bucket) and the block's.  No store
-    access: the caller inserts them."""
+    those of ``old`` (the stored latest, by bucket) and the block's; the caller
+    inserts them."""
     if not (digits[1:] >= digits[:-1]).all():  # (a run's partitions are one digit each)
         order = np.argsort(digits, kind="stable")
         table = table.take(pa.array(order))
@@ -780,16 +751,17 @@ def _latest(table: pa.Table) -> pa.Table:
     share it), in the order of their ids' first 64 bits (stable)."""
     if table.num_rows == 0:
         return table
-    table = table.combine_chunks()
-    enc = pc.dictionary_encode(table["patient"]).combine_chunks()
+    ids = table["patient"].combine_chunks()
+    enc = pc.dictionary_encode(ids)
     pid = np.asarray(enc.indices.to_numpy(zero_copy_only=False), dtype=np.int64)
     t = np.asarray(table["t"].to_numpy(), dtype=np.int64)
     top = np.full(len(enc.dictionary), np.iinfo(np.int64).min, dtype=np.int64)
     np.maximum.at(top, pid, t)
-    keep = t == top[pid]
-    sub = table.filter(pa.array(keep)) if not keep.all() else table
-    order = np.argsort(prefix64(sub["patient"]), kind="stable")
-    return sub.take(pa.array(order))
+    at = np.flatnonzero(t == top[pid])
+    # One copy of the rows kept, taken in their final order (the memory of a store
+    # commit is mostly these tables: docs/performance.md).
+    order = at[np.argsort(prefix64(ids)[at], kind="stable")]
+    return table.take(pa.array(order)).combine_chunks()
 
 
 def _encode(table: pa.Table) -> memoryview:
@@ -910,10 +882,10 @@ def run_settings(settings: Mapping[str, object], checker, store: Store) -> dict[
 
 
 def commit_run(store: Store, checker, input_path: str, settings: Mapping[str, object],
-               input_sha256: str | None = None, workers: int = 1) -> str:
+               input_sha256: str | None = None) -> str:
     """Add the run's new panels with its audit record; the summary's line.
     ``input_sha256``: the input's SHA-256 when the run has it already (read again
-    otherwise); ``workers``: threads that encode the blocks (``Store.commit``)."""
+    otherwise)."""
     from . import __version__
 
     known = checker.known & checker.interpreted
@@ -921,7 +893,7 @@ def commit_run(store: Store, checker, input_path: str, settings: Mapping[str, ob
                        input_sha256=input_sha256 or file_sha256(input_path),
                        already_stored=int(np.count_nonzero(known)),
                        earlier_used=checker.earlier_used)
-    store.commit(checker.new_panels(), record, workers=workers)
+    store.commit(checker.new_panels(), record)
     line = (f"history store: {record.earlier_used:,} earlier panels compared; "
             f"{record.added:,} panels added; {record.already_stored:,} already stored "
             "(same patient, time and sample id), not added again")

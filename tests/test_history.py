@@ -130,24 +130,33 @@ def test_a_run_that_fails_adds_nothing(tmp_path, capsys, monkeypatch):
     assert count(store) == before
 
 
-@pytest.mark.parametrize("where", ["writing a block", "encoding a block on a thread"])
+@pytest.mark.parametrize("where", ["writing a block", "encoding a block"])
 def test_a_failure_while_storing_rolls_the_whole_run_back(tmp_path, capsys, monkeypatch, where):
-    """A disk that fills while the blocks go in, or an error in the encoding that
-    runs on the store's worker threads: nothing of the run stays in the store."""
+    """A disk that fills while the blocks go in, or an error while they are encoded
+    (after other buckets' blocks went in): nothing of the run stays in the store."""
     store = tmp_path / "store.db"
     run(capsys, panels(tmp_path / "day1.csv", [("S1", "P-1", 2.0, 140)]), store)
     before = count(store)
 
-    def broken(*args):
-        raise OSError(28, "No space left on device")
+    calls = []
 
+    def broken(real):
+        def call(*args):
+            calls.append(1)
+            if len(calls) == 3:  # two tables' blocks are in by then
+                raise OSError(28, "No space left on device")
+            return real(*args)
+        return call
+
+    monkeypatch.setattr(batch.serial.SerialChecker, "partitions_for",
+                        staticmethod(lambda size: 48))  # several tables to store
     if where == "writing a block":
-        monkeypatch.setattr(history.Store, "_put_prepared", broken)
+        monkeypatch.setattr(history.Store, "_put_prepared", broken(history.Store._put_prepared))
     else:
-        monkeypatch.setattr(history, "_prepared", broken)
+        monkeypatch.setattr(history, "_prepared", broken(history._prepared))
     rows = [(f"S{i}", f"P-{i}", 1.0, 141) for i in range(2, 200)]  # several buckets
     rc, _, err = run(capsys, panels(tmp_path / "day2.csv", rows), store)
-    assert rc == 2 and "No space left" in err
+    assert rc == 2 and "No space left" in err and len(calls) == 3
     monkeypatch.undo()
     monkeypatch.setenv(history.KEY_ENV, KEY)
     assert count(store) == before
@@ -714,47 +723,3 @@ def test_a_purged_patient_is_no_ones_earlier_panel(tmp_path, capsys):
                                                                ("S6", "P-2", 1.0, 155)]), store)
     assert rc == 0 and [r["serial_codes"] for r in rows] == ["", "SERIAL-DELTA-NA"]
     assert "1 earlier panels compared" in err
-
-
-@pytest.mark.parametrize("workers", [2, 3])
-def test_the_store_is_the_same_whatever_the_threads_that_encode_it(tmp_path, workers):
-    """``Store.commit`` with its blocks encoded on threads writes the same rows, byte
-    for byte, as one thread: tables of one bucket, of several, and tables that share a
-    bucket with the one before (whose latest panels must be in before it is read)."""
-    import numpy as np
-
-    rng = np.random.default_rng(5)
-    key = KEY.encode()
-    now = 2_000_000_000
-
-    def tables():
-        for j in range(6):
-            n = int(rng.integers(20, 300))
-            pids = [f"P-{i}" for i in rng.integers(0, 50 if j % 2 else 4000, n)]
-            table = {"patient": history.hash_ids(pa.array(pids), key),
-                     "t": pa.array((now - rng.integers(0, 40, n) * 3600).tolist()),
-                     "zoned": pa.array([True] * n), "sample": pa.array([f"S{j}-{i}" for i in range(n)])}
-            for f in history.STORED_FIELDS:
-                table[f] = pa.array(rng.normal(140, 5, n))
-            yield pa.table(table)
-
-    made = list(tables())
-    dumps = []
-    for w in (1, workers):
-        path = str(tmp_path / f"store{w}.db")
-        s = history.Store(path, key, retention_days=3650)
-        try:
-            for start in (0, 3):  # two runs: the second reads the first's latest panels
-                s.begin()
-                s.commit(iter(made[start:start + 3]), history.RunRecord("t", {}, "x"), now=now,
-                         workers=w)
-        finally:
-            s.close()
-        db = sqlite3.connect(path)
-        dumps.append([db.execute("SELECT run_id, bucket, n, tmin, tmax, data FROM blocks "
-                                 "ORDER BY id").fetchall(),
-                      db.execute("SELECT bucket, n, tmin, data FROM latest ORDER BY bucket")
-                      .fetchall()])
-        db.close()
-    assert len(dumps[0][0]) > 16 and len(dumps[0][1]) == 16
-    assert dumps[0] == dumps[1]
