@@ -24,12 +24,14 @@ the first pass keeps, for each row with a patient and a time, only the row
 number, the patient id, the time, the sample id and the few delta fields,
 spilled to temporary Arrow files partitioned by a hash of the patient id.  Each
 partition is then sorted by (patient, time, row) and checked on its own in
-column operations: neighbours are compared as shifted arrays, and the text of
-the flagged rows is assembled with Arrow string kernels (each distinct number
-is formatted once).  That text is spilled again, to files by row range, and read
-back one range at a time when the batch writes those rows.  What stays in memory
-for the whole file is one byte of status per row; one partition, and one or two
-row ranges of flagged text, are in memory at a time.
+column operations (``finish(workers=N)``: N partitions at a time, on threads):
+neighbours are compared as shifted arrays, and the text of the flagged rows is
+assembled with Arrow string kernels (each distinct number is formatted once;
+``detail_rows`` limits the sentences to the first flagged rows).  That text is
+spilled again, to files by row range, and read back one range at a time when the
+batch writes those rows.  What stays in memory for the whole file is one byte of
+status per row; N partitions, and one or two row ranges of flagged text, are in
+memory at a time.
 
 Earlier panels (a history store, ``acidbase.history``) join the partitions as
 rows with negative row numbers: they are neighbours of this file's panels but
