@@ -186,10 +186,11 @@ def test_folders_and_files_of_other_names_are_left(tmp):
     assert (tmp / "acidbase-other-a" / "p0.arrow").exists()
 
 
-def test_another_users_folder_is_left(tmp, monkeypatch):
+@pytest.mark.parametrize("theirs", [("folder", "lock"), ("folder",), ("lock",)])
+def test_another_users_folder_is_left(tmp, monkeypatch, theirs):
     folder = dead_folder(tmp)
     if os.geteuid() == 0:
-        for p in (folder, folder / scratch.LOCK):
+        for p in [{"folder": folder, "lock": folder / scratch.LOCK}[t] for t in theirs]:
             os.chown(p, 65534, 65534)  # conventionally "nobody"
     else:
         me = os.geteuid()
