@@ -21,6 +21,7 @@ from pathlib import Path
 
 import pytest
 
+from acidbase import batch
 from acidbase.cli import main
 from acidbase.files import scratch
 
@@ -290,3 +291,10 @@ def test_without_flock_a_folder_is_made_and_removed_as_before_and_nothing_is_swe
         assert os.listdir(name) == []
         assert scratch.sweep(scratch.PREFIXES, str(tmp)) == scratch.Swept()
     assert os.listdir(tmp) == [dead.name]
+
+
+def test_docs_batch_quotes_the_note_and_names_the_lock_file():
+    doc = " ".join((ROOT / "docs" / "batch.md").read_text(encoding="utf-8").split())
+    note = batch._swept_notes(scratch.Swept(removed=2))[0]
+    assert f"`{note}`" in doc
+    assert f"`{scratch.LOCK}`" in doc and all(f"`{p}*`" in doc for p in scratch.PREFIXES)
