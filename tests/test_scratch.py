@@ -266,6 +266,28 @@ def test_a_run_whose_sweep_fails_goes_on_and_names_the_folder(tmp, tmp_path, cap
     assert os.listdir(tmp) == [folder.name]  # the run's own folder went
 
 
+def test_a_shard_checked_for_dask_goes_through_a_marked_scratch_folder(tmp, monkeypatch):
+    """Its folder holds the shard's rows: marked while the check runs, removed after."""
+    import pyarrow as pa
+
+    from acidbase import cli, partitions
+
+    monkeypatch.setattr(tempfile, "tempdir", str(tmp))
+    seen = []
+    real = cli.main
+
+    def watched(argv):
+        folder = Path(argv[1]).parent
+        seen.append((folder.name, sorted(os.listdir(folder))))
+        return real(argv)
+
+    monkeypatch.setattr(cli, "main", watched)
+    shard = pa.table({"sample_id": ["S1"], "ph": ["7.40"], "pco2": ["40"], "hco3": ["24"]})
+    assert partitions.check_shard(shard, ("--no-serial",)).num_rows == 1
+    assert seen[0][0].startswith(scratch.SHARD) and scratch.LOCK in seen[0][1]
+    assert os.listdir(tmp) == []
+
+
 # -- the folder itself -----------------------------------------------------------------
 
 def test_a_scratch_folder_is_private_locked_while_alive_and_removed_whole(tmp):

@@ -3,7 +3,8 @@
 A run keeps panel data in scratch folders of the system's temporary folder
 (``tempfile.gettempdir()``: ``$TMPDIR``, else ``/tmp``): the serial checks'
 partitions (``acidbase-serial-*``: patient ids, sample ids, collection times and
-values) and the copy of standard input (``acidbase-stdin-*``).  An error, Ctrl-C,
+values), the copy of standard input (``acidbase-stdin-*``) and a shard checked for
+Dask (``acidbase-shard-*``).  An error, Ctrl-C,
 SIGTERM or SIGHUP removes them (the run's clean-up); SIGKILL, the out-of-memory killer
 or a power cut does not.  So:
 
@@ -41,7 +42,9 @@ except ImportError:  # not POSIX: scratch folders are not marked, and not swept
 #: The prefixes of acidbase's scratch folders (what ``acidbase batch`` sweeps).
 SERIAL = "acidbase-serial-"
 STDIN = "acidbase-stdin-"
-PREFIXES = (SERIAL, STDIN)
+SHARD = "acidbase-shard-"
+"""A shard checked for Dask (``acidbase.partitions.check_shard``): its rows in and out."""
+PREFIXES = (SERIAL, STDIN, SHARD)
 
 #: The lock file inside a scratch folder; locked (``flock``) while its run lives.
 LOCK = "in-use.lock"
