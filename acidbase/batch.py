@@ -24,7 +24,6 @@ import json
 import os
 import shutil
 import sys
-import tempfile
 import time
 from collections import Counter, deque
 from concurrent.futures import Future, ThreadPoolExecutor
@@ -41,7 +40,7 @@ from .engine import SLOTS
 from .errors import AcidBaseError
 from .fields import BY_NAME
 from .fileio import BatchInputError, Layout, Source
-from .files import hl7
+from .files import hl7, scratch
 from .files.check import (EXTRA_COLUMNS, ROW_COLUMN, check_chunk, field_column,  # noqa: F401
                           field_values, output_names, review_mask, review_rules)
 from .files.outputs import (
@@ -678,7 +677,7 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
         decimal = fileio.detect_decimal(fileio.csv_sample(src), numeric_idx, src.delimiter)
     else:
         decimal = "."
-    notes = list(layout.notes)
+    notes = list(layout.notes) + _swept_notes(outcome.swept)
     left = [p for s in staged.values() for p in stale(s)]
     if left:
         notes.append("temporary files of another run to this output, still running or "
@@ -816,6 +815,19 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
 STDIN_LABEL = "standard input"
 
 
+def _swept_notes(swept: scratch.Swept) -> list[str]:
+    """The run's notes on the scratch folders of killed runs it found at its start."""
+    notes = []
+    if swept.removed:
+        n = swept.removed
+        notes.append(f"removed {n} temporary folder{'s' * (n != 1)} left by earlier runs that "
+                     "were killed before they could clean up (they held panel data)")
+    if swept.stuck:
+        notes.append("could not remove temporary folders left by runs that were killed "
+                     "(they hold panel data; delete them): " + ", ".join(swept.stuck))
+    return notes
+
+
 def _spool_stdin(folder: str) -> str:
     """Standard input copied to a file in ``folder`` (the serial checks read the input
     twice, and format and dialect are sniffed from its start); its path."""
@@ -842,6 +854,8 @@ class _Outcome:
     rows_out: int = 0
     """Rows put to the output (a file's are staged until the commit)."""
     outputs: OutputSet | None = None
+    swept: scratch.Swept = field(default_factory=scratch.Swept)
+    """The scratch folders of killed runs this run removed at its start."""
 
     @property
     def committed(self) -> bool:
@@ -876,8 +890,10 @@ def run(args: argparse.Namespace) -> int:
     try:
         with stop_on_signals(), ExitStack() as stack:
             outputs = outcome.outputs = stack.enter_context(OutputSet())
+            # Before this run makes its own: the scratch folders of runs that were killed.
+            outcome.swept = scratch.sweep(scratch.PREFIXES)
             if args.input == "-":
-                spool = stack.enter_context(tempfile.TemporaryDirectory(prefix="acidbase-stdin-"))
+                spool = stack.enter_context(scratch.ScratchFolder(scratch.STDIN))
                 args.input = _spool_stdin(spool)
             return _run(args, STDIN_LABEL if shown == "-" else args.input, outputs, stack,
                         outcome)

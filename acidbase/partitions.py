@@ -26,11 +26,12 @@ def check_shard(table: pa.Table, options: Sequence[str] = ()) -> pa.Table:
     ``ShardError`` with the command's message."""
     import contextlib
     import io
-    import tempfile
 
     from .cli import main
+    from .files import scratch
 
-    with tempfile.TemporaryDirectory(prefix="acidbase-shard-") as tmp:
+    # Marked as in use: a later batch run removes it if this process is killed.
+    with scratch.ScratchFolder(scratch.SHARD) as tmp:
         src, out = os.path.join(tmp, "in.parquet"), os.path.join(tmp, "out.parquet")
         pq.write_table(table, src)
         err = io.StringIO()

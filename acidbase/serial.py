@@ -43,7 +43,6 @@ from __future__ import annotations
 
 import math
 import os
-import tempfile
 import threading
 from collections import OrderedDict
 from collections.abc import Callable, Iterator, Mapping, Sequence
@@ -54,6 +53,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from .fields import BY_NAME
+from .files import scratch
 
 if TYPE_CHECKING:
     import pyarrow as pa
@@ -184,7 +184,9 @@ class SerialChecker:
         multiple of 16 partitions."""
         if hashed_ids:
             self.k = 16 * -(-self.k // 16)
-        self._tmp = tempfile.TemporaryDirectory(prefix="acidbase-serial-", dir=workdir)
+        # Marked as in use for the run's life: a later run removes it if this one is
+        # killed (SIGKILL) before its clean-up (acidbase.files.scratch).
+        self._tmp = scratch.ScratchFolder(scratch.SERIAL, workdir)
         self.schema = pa.schema(
             [("row", pa.int64()), ("patient", pa.binary(KEYED_BYTES) if hashed_ids
                                          else pa.string()),

@@ -366,7 +366,7 @@ def test_a_run_killed_while_storing_leaves_the_store_as_it_was(tmp_path, capsys)
     before = count(store)
     rows = [(f"S{i}", f"P-{i % 5000}", 1 + i / 100000, 140) for i in range(60000)]
     src = panels(tmp_path / "day2.csv", rows)
-    env = dict(os.environ, **{history.KEY_ENV: KEY})
+    env = dict(os.environ, TMPDIR=str(tmp_path), **{history.KEY_ENV: KEY})  # scratch stays here
     proc = subprocess.Popen([sys.executable, "-m", "acidbase", "batch", str(src), "-o",
                              str(tmp_path / "o.csv"), "--history", str(store), "--quiet"],
                             env=env, stderr=subprocess.DEVNULL)

@@ -212,7 +212,7 @@ def _stop_mid_run(tmp_path: Path, signum: int, stdin: bool, during: str) -> tupl
     deadline = time.monotonic() + 120
     while time.monotonic() < deadline and proc.poll() is None:
         if during == "serial":
-            if any(any(d.iterdir()) for d in scratch.glob("acidbase-serial-*")):
+            if any(any(d.glob("*.arrow")) for d in scratch.glob("acidbase-serial-*")):
                 break
         else:
             staged = list(tmp_path.glob(".out.csv.*" + INCOMPLETE))

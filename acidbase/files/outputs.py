@@ -17,7 +17,8 @@
 
 What SIGKILL (or a power cut) leaves behind cannot be cleaned up by the process: the
 ``.incomplete`` files, the serial checks' scratch folder ``acidbase-serial-*`` and the
-copy of standard input ``acidbase-stdin-*`` in the temporary folder (docs/batch.md).
+copy of standard input ``acidbase-stdin-*`` in the temporary folder (docs/batch.md); the
+next ``acidbase batch`` removes those two folders (``acidbase.files.scratch``).
 """
 
 from __future__ import annotations
