@@ -723,3 +723,43 @@ def test_a_purged_patient_is_no_ones_earlier_panel(tmp_path, capsys):
                                                                ("S6", "P-2", 1.0, 155)]), store)
     assert rc == 0 and [r["serial_codes"] for r in rows] == ["", "SERIAL-DELTA-NA"]
     assert "1 earlier panels compared" in err
+
+
+def test_one_commit_of_many_tables_stores_what_a_commit_of_each_stores(tmp_path):
+    """``Store.commit`` encodes each table on a thread while the one before goes in:
+    tables of one bucket, of several, and tables sharing a bucket with the one before
+    (whose latest panels must be in before they are read) give, in one commit, the
+    blocks and latest panels that a commit of each table on its own gives."""
+    import numpy as np
+
+    rng = np.random.default_rng(5)
+    key = KEY.encode()
+    now = 2_000_000_000
+    made = []
+    for j in range(8):
+        n = int(rng.integers(20, 300))
+        pids = [f"P-{i}" for i in rng.integers(0, 30 if j % 2 else 4000, n)]
+        table = {"patient": history.hash_ids(pa.array(pids), key),
+                 "t": pa.array((now - rng.integers(0, 40, n) * 3600).tolist()),
+                 "zoned": pa.array([True] * n), "sample": pa.array([f"S{j}-{i}" for i in range(n)])}
+        for f in history.STORED_FIELDS:
+            table[f] = pa.array(rng.normal(140, 5, n))
+        made.append(pa.table(table))
+    dumps = []
+    for together in (True, False):
+        path = str(tmp_path / f"store{together}.db")
+        s = history.Store(path, key, retention_days=3650)
+        try:
+            for group in ([made] if together else [[t] for t in made]):
+                s.begin()
+                s.commit(iter(group), history.RunRecord("t", {}, "x"), now=now)
+        finally:
+            s.close()
+        db = sqlite3.connect(path)
+        dumps.append([db.execute("SELECT bucket, n, tmin, tmax, data FROM blocks ORDER BY id")
+                      .fetchall(),
+                      db.execute("SELECT bucket, n, tmin, data FROM latest ORDER BY bucket")
+                      .fetchall()])
+        db.close()
+    assert len(dumps[0][0]) > 40 and len(dumps[0][1]) == 16
+    assert dumps[0] == dumps[1]
