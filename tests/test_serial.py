@@ -289,3 +289,30 @@ def test_sentences_for_the_first_flagged_rows_only_keep_every_code(partitions, w
     assert some["serial_detail"][flagged[:25]].tolist() == full["serial_detail"][flagged[:25]].tolist()
     assert (some["serial_detail"][flagged[25:]] == "").all()
     assert (some["serial_detail"][full["serial_codes"] == ""] == "").all()
+
+
+@pytest.mark.parametrize("spill_rows", [1, 7, 1 << 17])
+def test_rows_gathered_before_spilling_give_the_same_flags(monkeypatch, spill_rows):
+    """The first pass gathers chunks before it spills them to the partitions: spilled
+    every chunk, every few chunks or once at the end, the flags and their text are
+    those of one partition read whole."""
+    rng = np.random.default_rng(4)
+    n = 900
+    pats = [f"P{i}" for i in rng.integers(0, 60, n)]
+    hours = rng.uniform(0, 72, n)
+    na = 140.0 + rng.normal(0, 7, n)
+    one = run(pats, hours, {"na": na}, partitions=1)
+    monkeypatch.setattr(serial, "_SPILL_ROWS", spill_rows)
+    checker = serial.SerialChecker(serial.DELTA_RULES, 24.0, 5)
+    secs = np.array([int(h * HOUR) for h in hours], dtype=np.int64)
+    for lo in range(0, n, 50):  # chunks of 50 rows, in file order
+        hi = lo + 50
+        checker.add(pa.array(pats[lo:hi]), secs[lo:hi],
+                    np.full(hi - lo, fileio.TIME_ZONED, dtype=np.int8), {"na": na[lo:hi]},
+                    pa.array([f"S{i + 1}" for i in range(lo, hi)]))
+    checker.finish(workers=2)
+    got = checker.columns(0, n)
+    checker.close()
+    for key in serial.COLUMNS:
+        assert got[key].tolist() == one[key].tolist()
+    assert (one["serial_codes"] != "").sum() > 50
