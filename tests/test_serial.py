@@ -32,6 +32,14 @@ def run(patients, hours, values, partitions=1, rules=serial.DELTA_RULES, window=
     return checker.columns(0, len(patients))
 
 
+def random_na(seed: int, n: int, patients: int, sd: float):
+    """Invented panels for these tests only: ``n`` rows of ``patients`` patients over
+    three days in random order, Na+ around 140 mmol/L (standard deviation ``sd``)."""
+    rng = np.random.default_rng(seed)
+    pats = [f"P{i}" for i in rng.integers(0, patients, n)]
+    return pats, rng.uniform(0, 72, n), 140.0 + rng.normal(0, sd, n)
+
+
 def test_change_above_the_limit_is_flagged_on_the_later_panel():
     na = 140.0 + LIMIT["na"] + 1
     out = run(["P", "P"], [0, 2], {"na": [140.0, na]})
@@ -90,11 +98,7 @@ def test_unsorted_rows_give_the_same_flags_as_sorted_rows():
 def test_partitioning_does_not_change_the_result(workers):
     """Partitions checked one after the other or on threads (``workers``): the
     flags and their text are those of one partition."""
-    rng = np.random.default_rng(3)
-    n = 400
-    pats = [f"P{i}" for i in rng.integers(0, 40, n)]
-    hours = rng.uniform(0, 72, n)
-    na = 140.0 + rng.normal(0, 6, n)
+    pats, hours, na = random_na(3, 400, 40, 6)
     one = run(pats, hours, {"na": na}, partitions=1)
     many = run(pats, hours, {"na": na}, partitions=7, workers=workers)
     for key in serial.COLUMNS:
@@ -296,11 +300,8 @@ def test_rows_gathered_before_spilling_give_the_same_flags(monkeypatch, spill_ro
     """The first pass gathers chunks before it spills them to the partitions: spilled
     every chunk, every few chunks or once at the end, the flags and their text are
     those of one partition read whole."""
-    rng = np.random.default_rng(4)
     n = 900
-    pats = [f"P{i}" for i in rng.integers(0, 60, n)]
-    hours = rng.uniform(0, 72, n)
-    na = 140.0 + rng.normal(0, 7, n)
+    pats, hours, na = random_na(4, n, 60, 7)
     one = run(pats, hours, {"na": na}, partitions=1)
     monkeypatch.setattr(serial, "_SPILL_ROWS", spill_rows)
     checker = serial.SerialChecker(serial.DELTA_RULES, 24.0, 5)
