@@ -27,7 +27,8 @@ partition is then sorted by (patient, time, row) and checked on its own in
 column operations (``finish(workers=N)``: N partitions at a time, on threads):
 neighbours are compared as shifted arrays, and the text of the flagged rows is
 assembled with Arrow string kernels (each distinct number is formatted once;
-``detail_rows`` limits the sentences to the first flagged rows).  That text is
+with ``detail_rows``, each partition sets aside what its first flagged rows need and
+the file's first are worded once, after the last partition).  That text is
 spilled again, to files by row range, and read back one range at a time when the
 batch writes those rows.  What stays in memory for the whole file is one byte of
 status per row; N partitions, and one or two row ranges of flagged text, are in
@@ -173,9 +174,10 @@ class SerialChecker:
         whose codes are still given: what a batch needs when it writes no
         ``serial_detail`` column and lists at most N rows for review.  (Every
         flagged row needs review, so the first N rows listed are among the first N
-        flagged ones.  Each partition words its own first N, a set that holds
-        them; ``arrow_columns`` gives those of the file's first N only.)"""
-        self._detail_last: int | None = None
+        flagged ones.  Each partition sets aside what its own first N need, a set
+        that holds them, and ``finish`` words the file's first N in one go.)"""
+        self._to_word: list[_Neighbours] = []  # (detail_rows) set aside by partitions
+        self._worded: tuple[np.ndarray, pa.Array] | None = None  # rows, their sentences
         self.rules = tuple(rules)
         self.window = float(window_hours) * 3600.0
         self.k = max(1, int(partitions))
@@ -376,11 +378,9 @@ class SerialChecker:
                 w.close()
         self.status = status
         self.interpreted = np.zeros(len(status), dtype=bool)
-        if self.detail_rows is not None:  # the last row of the file's first N flagged
-            flagged = np.flatnonzero(status == FLAGGED)
-            if len(flagged) > self.detail_rows:
-                self._detail_last = int(flagged[self.detail_rows - 1]) if self.detail_rows \
-                    else -1
+        if self._to_word and self.detail_rows:
+            self._worded = _word_first(self.rules, self._to_word, self.detail_rows)
+        self._to_word = []
 
     def _check_partition(self, b: int, status: np.ndarray
                          ) -> tuple[np.ndarray, pa.Array, pa.Array] | None:
@@ -471,20 +471,27 @@ class SerialChecker:
         samples = table["sample"].combine_chunks()
         by_row = np.argsort(row[flagged], kind="stable")  # the order the text is spilled in
         limit = self.detail_rows
-        if limit is None or limit >= len(flagged):
+        if limit is None:
             codes, detail = _texts(self.rules, flagged, row, t, zoned,
                                    lambda at: samples.take(pa.array(order[at])), vals, delta,
                                    brk, by_row)
             return row[flagged][by_row], codes, detail
-        # The codes of every flagged row; the sentences of the first ``limit`` by row.
+        # The codes of every flagged row.  What the sentences of this partition's first
+        # ``limit`` flagged rows need (each panel and the ones before and after it) is
+        # set aside: ``finish`` words the file's first ``limit`` in one go.
         codes = _code_names(self.rules, flagged, delta, brk, by_row)
-        first = np.sort(by_row[:limit])  # positions in ``flagged`` (sorted: by partition)
-        _, said = _texts(self.rules, flagged[first], row, t, zoned,
-                         lambda at: samples.take(pa.array(order[at])), vals, delta, brk,
-                         np.argsort(row[flagged[first]], kind="stable"))
-        detail = pa.concat_arrays([said, pa.repeat(pa.scalar("", pa.string()),
-                                                   len(flagged) - len(first))])
-        return row[flagged][by_row], codes, detail
+        at = flagged[by_row[:limit]]
+        around = np.minimum(np.stack([at - 1, at, at + 1], axis=1).ravel(), len(row) - 1)
+        middle = np.zeros(len(around), dtype=bool)
+        middle[1::3] = True
+        aside = _Neighbours(
+            row[around], t[around], zoned[around], samples.take(pa.array(order[around])),
+            {f: v[around] for f, v in vals.items()},
+            {f: middle & d[around] for f, d in delta.items()},
+            {f: middle & b[around] for f, b in brk.items()})
+        with self._lock:  # (partitions may be checked on threads)
+            self._to_word.append(aside)
+        return row[flagged][by_row], codes, pa.repeat(pa.scalar("", pa.string()), len(flagged))
 
     def _identities(self, table: pa.Table, pid: np.ndarray,
                     row: np.ndarray) -> np.ndarray | None:
@@ -625,10 +632,15 @@ class SerialChecker:
         where[rows - start] = np.arange(len(rows))
         index = pa.array(where, mask=where < 0)
         codes = pc.fill_null(pc.take(pa.concat_arrays([p[1] for p in parts]), index), "")
-        said = pa.concat_arrays([p[2] for p in parts])
-        if self._detail_last is not None and rows[-1] > self._detail_last:
-            said = pc.if_else(pa.array(rows > self._detail_last), "", said)  # (detail_rows)
-        detail = pc.fill_null(pc.take(said, index), "")
+        detail = pc.fill_null(pc.take(pa.concat_arrays([p[2] for p in parts]), index), "")
+        if self._worded is not None:  # (detail_rows) the first rows' sentences
+            worded, said = self._worded
+            lo, hi = np.searchsorted(worded, [start, stop])
+            if hi > lo:
+                put = np.full(n, -1, dtype=np.int64)
+                put[worded[lo:hi] - start] = np.arange(lo, hi)
+                detail = pc.if_else(pa.array(put >= 0), pc.take(said, pa.array(
+                    put, mask=put < 0)), detail)
         return {"serial_status": status, "serial_codes": codes, "serial_detail": detail}
 
     def columns(self, start: int, stop: int) -> dict[str, np.ndarray]:
@@ -648,6 +660,45 @@ class SerialChecker:
         self._gathered = []
         self._cache.clear()
         self._tmp.cleanup()
+
+
+@dataclass(frozen=True)
+class _Neighbours:
+    """Flagged panels set aside to be worded later (``detail_rows``), each with the
+    panels before and after it in its patient's series: entries ``3j``, ``3j + 1``
+    (the flagged panel) and ``3j + 2``; its changes and breaks on the middle entry."""
+
+    row: np.ndarray
+    t: np.ndarray
+    zoned: np.ndarray
+    sample: pa.Array
+    vals: dict[str, np.ndarray]
+    delta: dict[str, np.ndarray]
+    brk: dict[str, np.ndarray]
+
+
+def _word_first(rules: Sequence[DeltaRule], parts: Sequence[_Neighbours],
+                limit: int) -> tuple[np.ndarray, pa.Array]:
+    """The first ``limit`` flagged rows of the file (by row number) among those the
+    partitions set aside, and their sentences (``_texts``, called once)."""
+    row = np.concatenate([p.row for p in parts])
+    mid = row[1::3]
+    pick = np.sort(np.argsort(mid, kind="stable")[:limit])
+    take = (3 * pick[:, None] + np.arange(3)).ravel()
+
+    def cat(name: str) -> dict[str, np.ndarray]:
+        return {f: np.concatenate([getattr(p, name)[f] for p in parts])[take]
+                for f in getattr(parts[0], name)}
+
+    samples = pa.concat_arrays([p.sample for p in parts]).take(pa.array(take))
+    flagged = 3 * np.arange(len(pick)) + 1
+    row = row[take]
+    by_row = np.argsort(row[flagged], kind="stable")
+    _, said = _texts(rules, flagged, row, np.concatenate([p.t for p in parts])[take],
+                     np.concatenate([p.zoned for p in parts])[take],
+                     lambda at: samples.take(pa.array(at)), cat("vals"), cat("delta"),
+                     cat("brk"), by_row)
+    return row[flagged][by_row], said
 
 
 def _texts(rules: Sequence[DeltaRule], flagged: np.ndarray, row: np.ndarray, t: np.ndarray,
