@@ -921,6 +921,9 @@ def run(args: argparse.Namespace) -> int:
     except (pa.ArrowInvalid, pa.ArrowTypeError, UnicodeDecodeError) as e:
         message = f"the file could not be read ({e})"
     except Exception as e:  # noqa: BLE001 - a defect: one line, still nothing written
+        if outcome.committed:  # (in the clean-up, after every output was in place)
+            return _after_commit(f"unexpected {type(e).__name__}: {e} (a defect of acidbase; "
+                                 "please report it with the command line)")
         args.input = shown
         print(f"acidbase batch: failed: unexpected {type(e).__name__}: {e} (a defect of "
               f"acidbase; please report it with the command line); {_kept(args, outcome)}",
@@ -929,8 +932,21 @@ def run(args: argparse.Namespace) -> int:
     if shown == "-":
         message = message.replace(args.input, STDIN_LABEL)
         args.input = shown
+    if outcome.committed:
+        return _after_commit(message)
     print(f"acidbase batch: could not run: {message}; {_kept(args, outcome)}", file=sys.stderr)
     return EXIT_CANNOT_RUN
+
+
+def _after_commit(message: str) -> int:
+    """An error in the clean-up after every output was renamed into place: the outputs
+    are whole, so the run says so (and ends with 0, as a run whose every row was
+    written); what the clean-up left is named, and the next run removes the scratch
+    folders of this one (``files.scratch``)."""
+    print(f"acidbase batch: every output was written in full; then the clean-up failed: "
+          f"{message} (temporary files may be left; the next run removes its scratch "
+          "folders)", file=sys.stderr)
+    return EXIT_OK
 
 
 __all__ = ["run", "plane_picture"]

@@ -196,6 +196,32 @@ def test_a_run_that_fails_after_writing_rows_keeps_the_previous_output(tmp_path,
     assert leftovers(tmp_path) == []
 
 
+@pytest.mark.parametrize("error", [OSError(5, "Input/output error"), RuntimeError("boom")])
+def test_a_clean_up_that_fails_after_the_outputs_are_in_place_says_they_are_whole(
+        tmp_path, capsys, monkeypatch, error):
+    """The scratch folder cannot be removed (a disk error, or a defect) after every
+    output was renamed into place: the run says the outputs are whole, not "nothing
+    written" (they are there, complete), and ends with 0 (docs/batch.md)."""
+    from acidbase import serial
+
+    real = serial.SerialChecker.close
+
+    def close(self):
+        real(self)
+        raise error
+
+    monkeypatch.setattr(serial.SerialChecker, "close", close)
+    src = big_file(tmp_path / "day.csv", 300)
+    out, summary = tmp_path / "o.csv", tmp_path / "s.txt"
+    out.write_bytes(PREVIOUS)
+    rc, err = batch(capsys, src, "-o", out, "--summary", summary, "--quiet")
+    assert rc == 0
+    assert "every output was written in full; then the clean-up failed" in err
+    assert "nothing written" not in err and "could not run" not in err
+    assert len(list(csv.DictReader(out.open()))) == 300 and summary.exists()
+    assert leftovers(tmp_path) == []
+
+
 def _stop_mid_run(tmp_path: Path, signum: int, stdin: bool, during: str) -> tuple[int, str]:
     """Start a run on a large file; signal it ``during`` its serial pass (the scratch
     folder exists) or its "write" (its temporary output already holds rows)."""
