@@ -23,10 +23,11 @@ resident memory of the run alone), medians of ``--repeats`` runs:
    (target: 300 MB at 5M rows);
 4. where the store's time goes (part ``phases``): the second day's run in this
    process, with and without the store, one after the other, and the CPU time of
-   the main thread (``time.thread_time``) in each step that the store adds to or
-   changes: hashing the ids, reading the stored panels, the checks, adding the
-   run's panels.  A per-step figure is steadier than a whole run's on a shared
-   machine.
+   each step that the store adds to or changes: hashing the ids and reading the
+   stored panels (the main thread's, ``time.thread_time``), the checks and adding
+   the run's panels (the process's, ``time.process_time``: they work on threads of
+   their own while nothing else runs).  A per-step figure is steadier than a whole
+   run's on a shared machine.
 
 With ``--before TREE`` (a checkout of other code, e.g. main's), parts 1 and 2 are
 also run with that tree's ``acidbase``, interleaved with this tree's runs (before,
@@ -177,12 +178,15 @@ def serial_alone_in(tree: str, path: str) -> dict[str, float]:
 _STEPS = {"hash_ids": ("history", "Store.hash_ids"), "read": ("history", "feed_earlier"),
           "first_pass": ("serial", "SerialChecker.add"),
           "checks": ("serial", "SerialChecker.finish"), "add": ("history", "commit_run")}
+#: Steps that work on threads of their own (the partitions on the batch's workers, the
+#: store's encoding on its thread), while nothing else runs: timed by the process's CPU.
+_THREADED = {"checks", "add"}
 
 
 def phases(day2: str, store: str | None) -> dict[str, float]:
     """One ``acidbase batch`` of ``day2`` in this process (with the store ``store``, a
-    copy of the first day's, when given): its CPU seconds, and the main thread's CPU
-    seconds in each of ``_STEPS``."""
+    copy of the first day's, when given): its CPU seconds, and the CPU seconds of each
+    of ``_STEPS``: the main thread's, or the process's for ``_THREADED``."""
     import contextlib
     import importlib
     import io
@@ -196,12 +200,14 @@ def phases(day2: str, store: str | None) -> dict[str, float]:
         obj = getattr(mod, owner) if owner else mod
         real = getattr(obj, fn)
 
-        def timed(*a, _real=real, _name=name, **k):
-            t = time.thread_time()
+        clock = time.process_time if name in _THREADED else time.thread_time
+
+        def timed(*a, _real=real, _name=name, _clock=clock, **k):
+            t = _clock()
             try:
                 return _real(*a, **k)
             finally:
-                spent[_name] += time.thread_time() - t
+                spent[_name] += _clock() - t
         setattr(obj, fn, timed)
     with tempfile.TemporaryDirectory(prefix="acidbase-bench-phases-") as tmp:
         args = ["batch", day2, "-o", os.path.join(tmp, "out.csv"), "--quiet"]
