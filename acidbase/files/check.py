@@ -120,7 +120,11 @@ def field_column(table: pa.Table | pa.RecordBatch, headers: Sequence[str],
     filled = {h: _filled(table.column(h), missing) for h in headers}
     if len(headers) == 1:
         return table.column(headers[0]), filled
-    return _merged(table, headers, filled), filled
+    merged = None
+    for h in headers:
+        text = _as_text(table.column(h))
+        merged = text if merged is None else pc.if_else(pa.array(filled[h]), text, merged)
+    return merged, filled
 
 
 def field_values(table: pa.Table | pa.RecordBatch, headers: Sequence[str],
@@ -129,17 +133,7 @@ def field_values(table: pa.Table | pa.RecordBatch, headers: Sequence[str],
     as read (no cell looked at: the serial checks' first pass reads many)."""
     if len(headers) == 1:
         return table.column(headers[0])
-    return _merged(table, headers, {h: _filled(table.column(h), missing) for h in headers})
-
-
-def _merged(table: pa.Table | pa.RecordBatch, headers: Sequence[str],
-            filled: dict[str, np.ndarray]) -> Any:
-    """The columns of one field merged row by row: each row takes the filled one."""
-    merged = None
-    for h in headers:
-        text = _as_text(table.column(h))
-        merged = text if merged is None else pc.if_else(pa.array(filled[h]), text, merged)
-    return merged
+    return field_column(table, headers, missing)[0]
 
 
 def panel_columns(table: pa.Table | pa.RecordBatch, layout: Layout,
