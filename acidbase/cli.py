@@ -16,6 +16,7 @@ from typing import Any
 
 from . import audit
 from .api import interpret_many
+from .commands import command_word
 from .config import ENV_VAR, OBSERVATION_STATUSES
 from .config import resolve as resolve_site
 from .errors import AcidBaseError
@@ -458,18 +459,12 @@ def _configure_config(config: argparse.ArgumentParser) -> None:
     show.add_argument("--version", action="version", version=f"acidbase {audit.version()}")
 
 
-def _command(argv: Sequence[str]) -> str:
-    """The command word of ``argv``: its first word that is not an option (the top level
-    takes no option with a value), or "" when there is none (``acidbase --help``)."""
-    return next((a for a in argv if not a.startswith("-")), "")
-
-
 def main(argv: Sequence[str] | None = None) -> int:
     """Run one command; its exit status (module docstring).  A reader that closes
     standard output early (``acidbase demo | head``) ends the command quietly with 141."""
     if argv is None:
         argv = sys.argv[1:]
-    parser = build_parser(_command(argv))
+    parser = build_parser(command_word(argv))
     try:
         args = parser.parse_args(argv)
     except BrokenPipeError:  # --help into a closed pipe
