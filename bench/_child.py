@@ -14,7 +14,13 @@ import resource
 import sys
 import time
 
-from acidbase.cli import main
+try:  # the command's own process settings (acidbase/process.py), as `acidbase batch` has them
+    from acidbase.process import prepare
+except ImportError:  # (a checkout from before they existed)
+    pass
+else:
+    prepare(["batch"])
+from acidbase.cli import main  # noqa: E402
 
 
 def _peak_kb() -> int:

@@ -23,6 +23,10 @@ CHILD = r'''
 import sys, time, resource, os, json
 si = float(os.environ.get("SI", "0"))
 if si: sys.setswitchinterval(si)
+try:  # the command's process settings (acidbase/process.py), where the tree has them
+    from acidbase.process import prepare; prepare(["batch"])
+except ImportError:
+    pass
 from acidbase.cli import main
 import pyarrow as pa; pa.array([1.0])
 r0 = resource.getrusage(resource.RUSAGE_SELF); t0 = time.perf_counter()
