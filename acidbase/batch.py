@@ -515,8 +515,9 @@ def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.Seri
     columns_of = layout.columns_of  # one column per specimen: a row reads the filled one
     wanted += [h for f in fields_used for h in columns_of[f]]
     wanted = list(dict.fromkeys(wanted))
-    rows = 0
-    for table in src.chunks(wanted):
+
+    def read(table: pa.Table) -> tuple:
+        """One chunk's serial fields, as ``checker.add`` takes them (on a thread)."""
         values = {}
         many = fileio.parse_numeric_many(
             [field_values(table, columns_of[f], layout.missing) for f in fields_used],
@@ -534,9 +535,39 @@ def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.Seri
         patient = table[col_of["patient_id"]]
         if store is not None:  # compared, and stored, as keyed hashes only
             patient = store.hash_ids(patient, secs)
-        checker.add(patient, secs, kind, values, sample)
-        rows += table.num_rows
-        progress.update(rows)
+        return patient, secs, kind, values, sample
+
+    # Three stages at once: this thread reads the chunks; WORKERS threads read their
+    # cells; one thread adds them to the checker in file order (its row numbers) and
+    # spills them to the partitions.  The CSV reader, the cell reader, the hashing
+    # and the spills let go of the interpreter lock.  At most WORKERS + 1 chunks wait
+    # to be read and two to be added: memory stays bounded.
+    rows = 0
+    reading: deque[Future] = deque()
+    adding: deque[Future] = deque()
+    pool = ThreadPoolExecutor(WORKERS, thread_name_prefix="acidbase-serial-read")
+    adder = ThreadPoolExecutor(1, thread_name_prefix="acidbase-serial-add")
+
+    def hand_on() -> None:
+        adding.append(adder.submit(checker.add, *reading.popleft().result()))
+        while len(adding) > 1:
+            adding.popleft().result()
+
+    try:
+        for table in src.chunks(wanted):
+            rows += table.num_rows
+            reading.append(pool.submit(read, table))
+            del table
+            while len(reading) > WORKERS:
+                hand_on()
+            progress.update(rows)
+        while reading:
+            hand_on()
+        while adding:
+            adding.popleft().result()
+    finally:
+        pool.shutdown(wait=True, cancel_futures=True)
+        adder.shutdown(wait=True, cancel_futures=True)
     if store is not None:
         history.feed_earlier(store, checker)
     checker.finish(workers=WORKERS)

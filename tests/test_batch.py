@@ -290,6 +290,35 @@ def test_chunks_on_worker_threads_keep_rows_counts_and_report_as_one_chunk(tmp_p
     assert outs["one"][2] == outs["many"][2].replace(str(tmp_path / "many"), str(tmp_path / "one"))
 
 
+@pytest.mark.parametrize("stage", ["read", "add"])
+def test_a_failure_on_a_thread_of_the_serial_checks_first_pass_fails_the_run(
+        tmp_path, capsys, monkeypatch, stage):
+    """The first pass reads chunks' cells on worker threads and adds them to the
+    checker on another: a failure in either (here a full disk, on the third chunk)
+    stops the run with its message, nothing written, no traceback, and no thread
+    left hanging."""
+    from acidbase import fileio, serial
+
+    calls = []
+    target, name = (fileio, "parse_times") if stage == "read" else (serial.SerialChecker, "add")
+    real = getattr(target, name)
+
+    def failing(*a, **k):
+        calls.append(1)
+        if len(calls) == 3:
+            raise OSError(28, "No space left on device")
+        return real(*a, **k)
+
+    monkeypatch.setattr(target, name, failing)
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, DATA / "serial_unsorted.csv", "-o", out, "--chunk-rows", "2")
+    assert rc == 2 and "No space left on device" in err and "Traceback" not in err
+    assert not out.exists() and list(tmp_path.iterdir()) == []
+    import threading
+
+    assert not [t for t in threading.enumerate() if t.name.startswith("acidbase-serial")]
+
+
 # -- serial through the command -----------------------------------------------------------
 
 def test_serial_checks_on_an_unsorted_file(tmp_path, capsys):
