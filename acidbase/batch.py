@@ -793,18 +793,28 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
                 notes.append("input columns renamed to keep them apart from output columns: "
                              + ", ".join(f"{h!r} -> {names[h]!r}" for h in clash))
         tally.merge(part)
-        writer.put(encoded)
         done += rows
-        outcome.rows_out = done
+        writing.append(out.submit(put, encoded, done))
+        while len(writing) > 1:
+            writing.popleft().result()
         progress.update(done)
 
+    def put(encoded, rows_after: int) -> None:
+        """One chunk's bytes into the output, on the writing thread."""
+        writer.put(encoded)
+        outcome.rows_out = rows_after
+
     # Chunks are checked and formatted on WORKERS threads (numpy and pyarrow release
-    # the GIL inside each operation) and written here in file order.  One chunk more
-    # than there are workers is handed over, so that both stay busy while this thread
-    # reads the next; besides the chunk being read, at most WORKERS + 1 are in hand at
-    # once, so memory stays bounded.
+    # the GIL inside each operation), counted here and written on one thread of its
+    # own, all in file order.  One chunk more than there are workers is handed over,
+    # so that both stay busy while this thread reads the next, and the writing thread
+    # takes the copy of the bytes into the system's file cache (most of the output's
+    # cost: docs/performance.md) off this one.  Besides the chunk being read, at most
+    # WORKERS + 1 chunks are in hand and two being written: memory stays bounded.
     pool = ThreadPoolExecutor(WORKERS, thread_name_prefix="acidbase-batch")
+    out = ThreadPoolExecutor(1, thread_name_prefix="acidbase-write")
     pending: deque[Future] = deque()
+    writing: deque[Future] = deque()
     try:
         start = 0
         for table in src.chunks():
@@ -814,10 +824,13 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
                 finish(pending.popleft().result())
         while pending:
             finish(pending.popleft().result())
+        while writing:
+            writing.popleft().result()
         if done == 0:
             raise BatchInputError(f"{label}: no rows")
     finally:
         pool.shutdown(wait=True, cancel_futures=True)
+        out.shutdown(wait=True, cancel_futures=True)
         progress.end()
     writer.finish()
     if store is not None:  # only a run whose every row was written is stored
