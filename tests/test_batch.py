@@ -319,6 +319,30 @@ def test_a_failure_on_a_thread_of_the_serial_checks_first_pass_fails_the_run(
     assert not [t for t in threading.enumerate() if t.name.startswith("acidbase-serial")]
 
 
+def test_a_failure_on_the_writing_thread_fails_the_run(tmp_path, capsys, monkeypatch):
+    """The output is written on a thread of its own: a full disk on the third chunk
+    stops the run with its message, nothing written, no thread left hanging."""
+    import threading
+
+    from acidbase.files import writer
+
+    calls = []
+    real = writer.Writer.put
+
+    def failing(self, *a, **k):
+        calls.append(1)
+        if len(calls) == 3:
+            raise OSError(28, "No space left on device")
+        return real(self, *a, **k)
+
+    monkeypatch.setattr(writer.Writer, "put", failing)
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, DATA / "mixed.csv", "-o", out, "--chunk-rows", "2")
+    assert rc == 2 and "No space left on device" in err and "Traceback" not in err
+    assert len(calls) >= 3 and not out.exists() and list(tmp_path.iterdir()) == []
+    assert not [t for t in threading.enumerate() if t.name.startswith("acidbase-write")]
+
+
 # -- serial through the command -----------------------------------------------------------
 
 def test_serial_checks_on_an_unsorted_file(tmp_path, capsys):
