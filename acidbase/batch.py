@@ -666,7 +666,7 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
     mapping = fileio.read_mapping(site.mapping) if site.mapping else None
     layout = fileio.map_headers(src.headers, mapping, units,
                                 args.strict_columns and src.format != hl7.FORMAT,
-                                defaults=site.units)
+                                defaults=site.units, repeats=src.repeats)
     layout = dataclasses.replace(layout, missing=src.missing, notes=src.notes + layout.notes,
                                  duplicates=src.duplicates,
                                  row_problems=getattr(src, "row_problems", {}))

@@ -606,3 +606,38 @@ def test_the_reports_list_is_the_same_whatever_the_profile(tmp_path, monkeypatch
     capsys.readouterr()
     assert listed[0] == listed[1]
     assert listed[0].count("SERIAL-DELTA-NA") >= 8 and listed[0].count("delta limit") >= 8
+
+
+# -- a header given twice ------------------------------------------------------------------
+
+@pytest.mark.parametrize("header, others", [("ph", "pco2,hco3"), ("pCO2 (kPa)", "ph,hco3"),
+                                            ("2744-1", "pco2,hco3")])
+def test_a_field_header_given_twice_stops_the_run_as_two_spellings_do(tmp_path, capsys, header,
+                                                                      others):
+    """``ph,ph`` is two columns for one field, as ``pH,PH`` is: the run stops and names
+    both, never reading the first and passing the second through unread (a row with its
+    value only in the second would be refused as "not given")."""
+    src = tmp_path / "twice.csv"
+    src.write_text(f"sample_id,{header},{others},{header}\nA,7.40,40,24,\nB,,40,24,7.30\n")
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, src, "-o", out, "--quiet")
+    assert rc == 2 and not out.exists()
+    assert f"columns {header!r} and '{header} (2)' both map to" in err
+
+
+def test_a_field_header_given_twice_in_parquet_stops_the_run(tmp_path, capsys):
+    src = tmp_path / "twice.parquet"
+    pq.write_table(pa.table([["7.40"], ["40"], ["24"], ["7.41"]],
+                            names=["ph", "pco2", "hco3", "ph"]), src)
+    rc, err = batch(capsys, src, "-o", tmp_path / "out.csv", "--quiet")
+    assert rc == 2 and "columns 'ph' and 'ph (2)' both map to ph" in err
+
+
+def test_a_passed_through_header_given_twice_is_renamed_and_kept(tmp_path, capsys):
+    src = tmp_path / "twice.csv"
+    src.write_text("sample_id,ph,pco2,hco3,note,note\nA,7.40,40,24,one,two\n")
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, src, "-o", out, "--quiet")
+    assert rc == 0 and "'note' -> 'note (2)'" in err
+    row = rows_of(out)[0]
+    assert (row["note"], row["note (2)"], row["status"]) == ("one", "two", "interpreted")
