@@ -494,6 +494,19 @@ def main(argv: Sequence[str] | None = None) -> int:
     except AcidBaseError as e:
         print(f"acidbase: {e}", file=sys.stderr)
         return EXIT_REFUSED
+    except OSError as e:
+        if e.filename is not None:  # a file the command named: its own words
+            print(f"acidbase {args.command}: could not run: {e.filename}: {e.strerror}",
+                  file=sys.stderr)
+            return EXIT_REFUSED
+        # Standard output refused a write (``> /dev/full``, a disk filled): say so, and
+        # let the interpreter's last flush raise nothing more.
+        from .files.outputs import silence_stdout
+
+        silence_stdout()
+        print(f"acidbase {args.command}: standard output: {e.strerror or e}; what was "
+              "written is incomplete", file=sys.stderr)
+        return EXIT_REFUSED
     except KeyboardInterrupt:
         return 130
 

@@ -161,3 +161,16 @@ def test_a_unit_the_field_does_not_take_is_refused_by_check_as_panel_refuses_it(
     assert _refusal_lines(r.stderr) == acidbase.describe(info.value) == [
         "pco2_unit: unit 'bar' is not accepted for pCO2; use one of mm[Hg], kPa",
         "k_unit: unit 'mmol' is not accepted for K+; use one of mmol/L, mEq/L"]
+
+
+@pytest.mark.skipif(not Path("/dev/full").exists(), reason="no /dev/full here")
+@pytest.mark.parametrize("command", [["check", *BASE], ["check", "--json", *BASE], ["demo"]])
+def test_a_full_disk_on_standard_output_is_named_not_a_traceback(command):
+    """``acidbase check > /dev/full``: /dev/full refuses every write with ENOSPC, as a
+    full disk does; the command says so and exits 2, never a traceback or status 1."""
+    with open("/dev/full", "w") as full:
+        r = subprocess.run([sys.executable, "-m", "acidbase", *command], stdout=full,
+                           stderr=subprocess.PIPE, text=True, cwd=ROOT, timeout=120)
+    assert r.returncode == 2, r.stderr
+    assert "Traceback" not in r.stderr and "Exception ignored" not in r.stderr
+    assert r.stderr.startswith(f"acidbase {command[0]}: standard output: No space left on device")
