@@ -23,7 +23,7 @@ from .fields import BY_NAME, NUMERIC, TEXT_FIELDS
 from .inputs.panel import unit_refusal
 from .inputs.vocab import CHOICES
 from .reference import Settings
-from .report import as_text
+from .report import as_text, wrap_lines
 from .results import CAUTION
 
 EXIT_OK, EXIT_REFUSED = 0, 2
@@ -285,27 +285,28 @@ def cmd_demo(args: argparse.Namespace) -> int:
             docs.append(d)
         print(json.dumps({"caution": CAUTION, "panels": docs}, indent=2, allow_nan=False))
         return EXIT_OK
-    print(CAUTION)
-    print()
-    print("Demo: one night's blood gases on an invented respiratory high-dependency unit.")
-    print("Each panel is read in full by `acidbase check`; here, the statements only.")
+    lines = [*wrap_lines(CAUTION), "",
+             "Demo: one night's blood gases on an invented respiratory high-dependency unit.",
+             "Each panel is read in full by `acidbase check`; here, the statements only."]
     for i, p in enumerate(DEMO_PANELS):
         it = results.interpretation(i)
-        print()
-        print(f"=== {p['sample_id']} {p['collected_at']} {p['patient_id']}: {p['note']}")
+        lines.append("")
+        lines += wrap_lines(f"=== {p['sample_id']} {p['collected_at']} {p['patient_id']}: "
+                            f"{p['note']}", hang="    ")
         if it.status == "refused":
-            print("  refused:")
-            for line in it.problems:
-                print(f"    - {line}")
+            lines.append("  refused:")
+            for problem in it.problems:
+                lines += wrap_lines(str(problem), "    - ", hang="      ")
             continue
         labels = "; ".join(d.label() for d in it.disorders) or "none"
-        print(f"  consistency: {it.consistency.status if it.consistency else 'not assessable'}")
-        print(f"  disorders:   {labels}")
+        status = it.consistency.status if it.consistency else "not assessable"
+        lines.append(f"  consistency: {status}")
+        lines += wrap_lines(f"disorders:   {labels}", "  ", hang="               ")
         for f in it.findings:
             if f.severity != "info" or f.section == "process":
-                print(f"  [{f.severity}] {f.code}: {f.text}")
-    print()
-    print(CAUTION)
+                lines += wrap_lines(f"[{f.severity}] {f.code}: {f.text}", "  ", hang="      ")
+    lines += ["", *wrap_lines(CAUTION)]
+    print("\n".join(lines))
     return EXIT_OK
 
 

@@ -174,3 +174,18 @@ def test_a_full_disk_on_standard_output_is_named_not_a_traceback(command):
     assert r.returncode == 2, r.stderr
     assert "Traceback" not in r.stderr and "Exception ignored" not in r.stderr
     assert r.stderr.startswith(f"acidbase {command[0]}: standard output: No space left on device")
+
+
+# An 80-column terminal: the width of a VT100 and of the terminals that followed it, and
+# the width the terminal app is built for (docs/tui.md). Common practice, no source.
+@pytest.mark.parametrize("command", [
+    ["demo"],
+    ["check", "--ph", "7.21", "--pco2", "5.3", "--pco2-unit", "kPa", "--hco3", "15.4", "--na",
+     "138", "--cl", "104", "--albumin", "32", "--sample-type", "arterial", "--hco3-source",
+     "analyser"],
+])
+def test_text_output_fits_an_80_column_terminal(command):
+    r = run(*command)
+    assert r.returncode == 0 and "does not replace" in r.stdout
+    wide = [line for line in r.stdout.splitlines() if len(line) > 80]
+    assert not wide, wide[:3]
