@@ -172,6 +172,11 @@ def _sliceable(value: Any, n: int) -> Any:
 
 def interpret(panel: Panel, settings: Settings | None = None) -> Interpretation:
     """Check and interpret one validated panel."""
+    if not callable(getattr(panel, "columns", None)):  # Panel itself is imported lazily
+        raise TypeError(
+            f"interpret takes an acidbase.Panel, not {type(panel).__name__}: build one with "
+            "Panel(ph=..., ...) or Panel.model_validate(mapping); for columns of panels use "
+            "interpret_many")
     columns, units = panel.columns()
     it = interpret_many(columns, units, settings).interpretation(0)
     # The panel was read from its cells already: its marks are the panel's own.

@@ -362,3 +362,20 @@ def test_serial_checks_read_one_column_per_specimen_as_the_reading_does(tmp_path
     rc, rows, err = _batch(tmp_path, path)
     assert rc == 0, err
     assert "SERIAL-DELTA-PH" in rows[1]["serial_codes"]
+
+
+# -- the library given the wrong kind of thing ------------------------------------------
+
+@pytest.mark.parametrize("given", [{"ph": 7.40, "pco2": 40, "hco3": 24}, None, "7.40"])
+def test_interpret_given_no_panel_says_what_it_takes(given):
+    """``interpret({"ph": ...})``: a TypeError naming ``Panel``, not an AttributeError
+    about ``.columns`` from inside the library."""
+    with pytest.raises(TypeError, match=r"interpret takes an acidbase\.Panel.*Panel\.model_validate"):
+        acidbase.interpret(given)
+
+
+@pytest.mark.parametrize("given", [{"ph": [7.40], "pco2": [40], "hco3": [24]},
+                                   [{"ph": 7.40, "pco2": 40, "hco3": 24}], "day.csv"])
+def test_check_table_given_no_arrow_table_says_what_it_takes(given):
+    with pytest.raises(TypeError, match=r"check_table takes a pyarrow Table.*pyarrow\.table"):
+        acidbase.check_table(given)
