@@ -632,7 +632,10 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
     delimiter = _DELIMS.get((args.delimiter or "").lower(), args.delimiter)
     if delimiter is not None and len(delimiter) != 1:
         raise BatchInputError(f"--delimiter {args.delimiter!r}: give one character, or 'tab'")
-    out_delim = _DELIMS.get(args.output_delimiter.lower(), args.output_delimiter)
+    given_delim = args.output_delimiter
+    if given_delim is None:  # a .tsv name asks for tabs
+        given_delim = "\t" if (args.output or "").lower().endswith(".tsv") else ","
+    out_delim = _DELIMS.get(given_delim.lower(), given_delim)
     if len(out_delim) != 1:
         raise BatchInputError(f"--output-delimiter {args.output_delimiter!r}: give one character")
     if args.chunk_rows < 1:

@@ -641,3 +641,50 @@ def test_a_passed_through_header_given_twice_is_renamed_and_kept(tmp_path, capsy
     assert rc == 0 and "'note' -> 'note (2)'" in err
     row = rows_of(out)[0]
     assert (row["note"], row["note (2)"], row["status"]) == ("one", "two", "interpreted")
+
+
+# -- compressed files and tab-separated output ---------------------------------------------
+
+TWO_PANELS = "sample_id,ph,pco2,hco3\nA,7.40,40,24\nB,7.35,45,24.1\n"
+
+
+@pytest.mark.parametrize("name", ["out.csv.gz", "out.jsonl.bz2", "out.csv.zip", "out.CSV.XZ"])
+def test_an_output_named_as_compressed_is_refused_not_written_as_plain_text(
+        tmp_path, capsys, name):
+    """``-o out.csv.gz`` once wrote plain CSV under a gzip name (gunzip then fails)."""
+    src = tmp_path / "day.csv"
+    src.write_text(TWO_PANELS)
+    rc, err = batch(capsys, src, "-o", tmp_path / name, "--quiet")
+    assert rc == 2 and not (tmp_path / name).exists()
+    assert f"-o {tmp_path / name}: acidbase writes no compressed files" in err
+
+
+def test_a_compressed_input_is_named_as_such_with_the_way_to_read_it(tmp_path, capsys):
+    """A gzip file was reported as "byte 0x8b is not utf-8; give --encoding cp1252"."""
+    import gzip
+
+    src = tmp_path / "day.csv.gz"
+    src.write_bytes(gzip.compress(TWO_PANELS.encode()))
+    rc, err = batch(capsys, src, "-o", tmp_path / "out.csv", "--quiet")
+    assert rc == 2 and "gzip-compressed" in err and "gunzip -c" in err
+    assert "--encoding" not in err
+
+
+def test_a_tsv_output_is_separated_by_tabs(tmp_path, capsys):
+    src = tmp_path / "day.csv"
+    src.write_text(TWO_PANELS)
+    out = tmp_path / "out.tsv"
+    rc, _ = batch(capsys, src, "-o", out, "--quiet")
+    assert rc == 0
+    with out.open(newline="", encoding="utf-8") as f:
+        rows = list(csv.DictReader(f, delimiter="\t"))
+    assert [(r["row"], r["sample_id"], r["status"]) for r in rows] == [
+        ("1", "A", "interpreted"), ("2", "B", "interpreted")]
+
+
+def test_an_output_delimiter_given_wins_over_a_tsv_name(tmp_path, capsys):
+    src = tmp_path / "day.csv"
+    src.write_text(TWO_PANELS)
+    out = tmp_path / "out.tsv"
+    rc, _ = batch(capsys, src, "-o", out, "--quiet", "--output-delimiter", ";")
+    assert rc == 0 and out.read_text().startswith('"row";"sample_id"')
