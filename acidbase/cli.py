@@ -37,8 +37,8 @@ def _help(text: str) -> str:
 
 def add_panel_options(p: argparse.ArgumentParser) -> None:
     """One option per panel field and one per unit (shared by check and tui)."""
-    g = p.add_argument_group("panel values (required: --ph --pco2 --hco3; without --na and "
-                             "--cl the gap-based readings are not assessable)")
+    g = p.add_argument_group("panel values", "required: --ph --pco2 --hco3; without --na "
+                             "and --cl the gap-based readings are not assessable")
     for spec in NUMERIC:
         opt = spec.name.replace("_", "-")
         g.add_argument(f"--{opt}", dest=spec.name, metavar="X",
@@ -71,8 +71,9 @@ def add_settings_options(p: argparse.ArgumentParser) -> None:
                    help="judge the anion gap with K+ included (interval default 10 16)")
     s.add_argument("--reference-albumin", type=float, metavar="G_PER_L",
                    help="albumin to correct the gap to, g/L (default 44)")
-    s.add_argument("--fhir-status", choices=OBSERVATION_STATUSES,
-                   help="FHIR Observation status of machine readings (default preliminary)")
+    s.add_argument("--fhir-status", choices=OBSERVATION_STATUSES, metavar="STATUS",
+                   help="FHIR Observation status of machine readings: "
+                        f"{', '.join(OBSERVATION_STATUSES)} (default preliminary)")
     add_config_option(s)
 
 
@@ -389,18 +390,22 @@ def build_parser(command: str | None = None) -> argparse.ArgumentParser:
                 versioned.append(p)
 
     add("check", _configure_check, help="read one panel given as options",
-        description="Read one panel: trust, processes, derived values.")
-    add("demo", _configure_demo, help="read the built-in demo panels")
+        description=_help("Read one panel: trust, processes, derived values. " + CAUTION))
+    add("demo", _configure_demo, help="read the built-in demo panels",
+        description=_help("Read the built-in demo panels (invented). " + CAUTION))
     add("batch", _configure_batch, help="check a file of panels")
     add("shard", _configure_shard, version=False,
-        help="split a file into Parquet shards by patient", description="Split INPUT into Parquet files, a patient's rows always in the same "
-                    "one, for checking shard by shard (docs/scale.md).")
+        help="split a file into Parquet shards by patient",
+        description=_help("Split INPUT into Parquet files, a patient's rows always in the same "
+                          "one, for checking shard by shard (docs/scale.md). " + CAUTION))
     add("history", _configure_history, version=False,
         help="what a history store holds; export or purge a patient")
-    add("tui", _configure_tui, help="the keyboard-only terminal app")
+    add("tui", _configure_tui, help="the keyboard-only terminal app",
+        description=_help("The keyboard-only terminal app: key in a panel and read it as "
+                          "you type. " + CAUTION))
     add("config", _configure_config, help="the site configuration in force",
-        description="Show the settings in force and where each came from (built-in "
-                    "default, configuration file, option).")
+        description=_help("Show the settings in force and where each came from (built-in "
+                          "default, configuration file, option). " + CAUTION))
     for p in (parser, *versioned):
         p.add_argument("--version", action="version", version=f"acidbase {audit.version()}")
     return parser
@@ -453,7 +458,9 @@ def _configure_tui(tui: argparse.ArgumentParser) -> None:
 
 def _configure_config(config: argparse.ArgumentParser) -> None:
     config_sub = config.add_subparsers(dest="action", required=True, metavar="ACTION")
-    show = config_sub.add_parser("show", help="print every setting and its origin")
+    show = config_sub.add_parser("show", help="print every setting and its origin",
+                                 description=_help("Print every setting in force and its "
+                                                   "origin. " + CAUTION))
     add_settings_options(show)
     show.set_defaults(func=cmd_config)
     show.add_argument("--version", action="version", version=f"acidbase {audit.version()}")

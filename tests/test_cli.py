@@ -6,6 +6,7 @@ Expected readings cite the published rule they follow.
 from __future__ import annotations
 
 import json
+import os
 import subprocess
 import sys
 from pathlib import Path
@@ -189,3 +190,17 @@ def test_text_output_fits_an_80_column_terminal(command):
     assert r.returncode == 0 and "does not replace" in r.stdout
     wide = [line for line in r.stdout.splitlines() if len(line) > 80]
     assert not wide, wide[:3]
+
+
+@pytest.mark.parametrize("command", [[], ["check"], ["demo"], ["batch"], ["shard"],
+                                     ["history"], ["tui"], ["config"], ["config", "show"]])
+def test_help_of_every_command_carries_the_caution_within_80_columns(command):
+    """Every surface carries the caution (COMMON safety rule), --help included; argparse
+    wraps to COLUMNS, but not a group's title, which once ran to 109 columns."""
+    r = subprocess.run([sys.executable, "-m", "acidbase", *command, "--help"],
+                       capture_output=True, text=True, cwd=ROOT, timeout=120,
+                       env={**os.environ, "COLUMNS": "80"})
+    assert r.returncode == 0, r.stderr
+    assert "does not replace" in " ".join(r.stdout.split())
+    wide = [line for line in r.stdout.splitlines() if len(line) > 80]
+    assert not wide, wide
