@@ -35,30 +35,45 @@ def _help(text: str) -> str:
     return text.replace("%", "%%")  # argparse formats help strings with %
 
 
+class Once(argparse.Action):
+    """Store an option's value; the same option again with another value is refused
+    (argparse would keep the last): which of two values was meant cannot be told, as
+    with a JSON Lines key given twice (docs/input.md)."""
+
+    def __call__(self, parser, namespace, values, option_string=None) -> None:
+        before = getattr(namespace, self.dest, None)
+        if before is not None and before != values:
+            raise argparse.ArgumentError(
+                self, f"given twice ({before!r}, then {values!r}); give it once")
+        setattr(namespace, self.dest, values)
+
+
 def add_panel_options(p: argparse.ArgumentParser) -> None:
     """One option per panel field and one per unit (shared by check and tui)."""
     g = p.add_argument_group("panel values", "required: --ph --pco2 --hco3; without --na "
                              "and --cl the gap-based readings are not assessable")
     for spec in NUMERIC:
         opt = spec.name.replace("_", "-")
-        g.add_argument(f"--{opt}", dest=spec.name, metavar="X",
+        g.add_argument(f"--{opt}", dest=spec.name, metavar="X", action=Once,
                        help=_help(f"{spec.title} [{spec.unit}]. {spec.help}"))
     u = p.add_argument_group("units (UCUM spellings; default is the first listed)")
     for spec in NUMERIC:
         if len(spec.units) > 1:
             u.add_argument(f"--{spec.name}-unit", dest=f"{spec.name}_unit", metavar="UNIT",
+                           action=Once,
                            help=_help(f"unit of {spec.title}: {', '.join(spec.units)}"))
     c = p.add_argument_group("sample")
     # No argparse choices=: the words are read by the library's one choice reader,
     # so "Arterial" reads here as it does in a file.
     for choice in CHOICES:
         c.add_argument(f"--{choice.name.replace('_', '-')}", dest=choice.name, metavar="WORD",
+                       action=Once,
                        help=_help(f"{choice.help} ({', '.join(choice.words)}; default "
                                   f"{choice.default})"))
     c.add_argument("--decimal", choices=(".", ","), default=".",
                    help="decimal mark of the values given (default .)")
     for name in TEXT_FIELDS:
-        c.add_argument(f"--{name.replace('_', '-')}", dest=name, metavar="TEXT")
+        c.add_argument(f"--{name.replace('_', '-')}", dest=name, metavar="TEXT", action=Once)
     add_settings_options(p)
 
 

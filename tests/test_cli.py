@@ -204,3 +204,20 @@ def test_help_of_every_command_carries_the_caution_within_80_columns(command):
     assert "does not replace" in " ".join(r.stdout.split())
     wide = [line for line in r.stdout.splitlines() if len(line) > 80]
     assert not wide, wide
+
+
+@pytest.mark.parametrize("again", [["--ph", "7.41"], ["--pco2-unit", "kPa", "--pco2-unit", "mm[Hg]"],
+                                   ["--sample-type", "venous", "--sample-type", "arterial"]])
+def test_a_panel_option_given_twice_with_two_values_is_refused(again):
+    """``... --ph 7.21 ... --ph 7.41`` (a recalled command with a value appended) read the
+    last pH silently; which was meant cannot be told, as with a JSON Lines key given
+    twice (docs/input.md), so the command refuses it, naming both."""
+    r = run("check", *BASE, *again)
+    assert r.returncode == 2 and "Traceback" not in r.stderr
+    option = again[-2]
+    assert f"argument {option}: given twice" in r.stderr
+
+
+def test_a_panel_option_given_twice_with_one_value_is_read():
+    r = run("check", *BASE, "--ph", "7.40")
+    assert r.returncode == 0, r.stderr
