@@ -86,7 +86,7 @@ class Problem:
 
     def __str__(self) -> str:
         head = f"{self.title} ({self.field})"
-        unit = f" {self.unit}" if self.unit else ""
+        unit = f" {self.unit}" if self.unit and self.unit not in UNITLESS else ""
         if self.kind == "outside_accepted_range" and self.allowed is not None:
             lo, hi = self.allowed
             text = (f"{head} {_num(self.value)}{unit} is outside the accepted range "
@@ -124,6 +124,10 @@ class ColumnError(ValueError, AcidBaseError):
     def __str__(self) -> str:
         return self.message
 
+
+#: UCUM codes of no unit (FiO2 as a fraction, pH), left out of a sentence as the text
+#: report leaves them out: "21 1 ... 0.16 to 1 1" reads as nonsense.
+UNITLESS: frozenset[str] = frozenset({"1", "[pH]"})
 
 #: A value longer than this is shown by its start and its length (``Problem.value``
 #: keeps it whole): a 10,000-character cell would flood a terminal and a reason column.

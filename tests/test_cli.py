@@ -221,3 +221,15 @@ def test_a_panel_option_given_twice_with_two_values_is_refused(again):
 def test_a_panel_option_given_twice_with_one_value_is_read():
     r = run("check", *BASE, "--ph", "7.40")
     assert r.returncode == 0, r.stderr
+
+
+@pytest.mark.parametrize("option, value, words", [
+    # UCUM "1" (FiO2 as a fraction) and "[pH]" are codes, not words: "21 1 ... 0.16 to 1 1"
+    ("--fio2", "21", "FiO2 (fio2) 21 is outside the accepted range 0.16 to 1 - FiO2 would "
+                     "be ordinary at this value in %"),
+    ("--ph", "8.9", "pH (ph) 8.9 is outside the accepted range 6 to 8\n"),
+])
+def test_a_refusal_leaves_out_units_that_are_no_unit(option, value, words):
+    args = dict(zip(BASE[::2], BASE[1::2])) | {option: value}
+    r = run("check", *[x for kv in args.items() for x in kv])
+    assert r.returncode == 2 and words in r.stderr, r.stderr
