@@ -379,3 +379,14 @@ def test_interpret_given_no_panel_says_what_it_takes(given):
 def test_check_table_given_no_arrow_table_says_what_it_takes(given):
     with pytest.raises(TypeError, match=r"check_table takes a pyarrow Table.*pyarrow\.table"):
         acidbase.check_table(given)
+
+
+def test_results_to_pandas_without_pandas_says_how_to_get_it(monkeypatch):
+    """The README's install has no pandas: ``to_pandas`` says what it needs and that
+    ``to_arrow`` needs nothing more (was: pyarrow's bare "No module named 'pandas'")."""
+    import sys
+
+    results = acidbase.interpret_many({"ph": [7.40], "pco2": [40], "hco3": [24]})
+    monkeypatch.setitem(sys.modules, "pandas", None)  # import pandas now fails
+    with pytest.raises(ImportError, match=r"to_pandas needs pandas .*pip install pandas.*to_arrow"):
+        results.to_pandas()
