@@ -233,3 +233,14 @@ def test_a_refusal_leaves_out_units_that_are_no_unit(option, value, words):
     args = dict(zip(BASE[::2], BASE[1::2])) | {option: value}
     r = run("check", *[x for kv in args.items() for x in kv])
     assert r.returncode == 2 and words in r.stderr, r.stderr
+
+
+@pytest.mark.parametrize("value, unit", [("5.3 kPa", "kPa"), ("40mmHg", "mm[Hg]"),
+                                         ("40 mm Hg", "mm[Hg]")])
+def test_a_unit_typed_after_the_number_is_refused_with_where_the_unit_goes(value, unit):
+    """``--pco2 "5.3 kPa"``: refused (a cell holds a number), with the way to state the
+    unit, not only "expected a number in mm[Hg]"."""
+    r = run("check", "--ph", "7.40", "--pco2", value, "--hco3", "24")
+    assert r.returncode == 2
+    assert f"the unit is not read from the value: state it on its own (pco2 unit {unit})" \
+        in r.stderr, r.stderr
