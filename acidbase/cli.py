@@ -105,7 +105,7 @@ def configure_batch_parser(p: argparse.ArgumentParser) -> None:
     p.add_argument("input", metavar="INPUT",
                    help="panel file (.csv, .jsonl, .parquet, or .hl7: HL7 v2 ORU^R01 messages), "
                         "or - for standard input")
-    p.add_argument("-o", "--output", metavar="OUTPUT",
+    p.add_argument("-o", "--output", metavar="OUTPUT", action=Once,
                    help="output file (.csv, .jsonl, .parquet); default: CSV on stdout")
     g = p.add_argument_group("reading")
     g.add_argument("--format", choices=(*FORMATS, "hl7"),
@@ -148,9 +148,9 @@ def configure_batch_parser(p: argparse.ArgumentParser) -> None:
                         "line (needs acidbase[fhir])")
     o.add_argument("--output-delimiter", default=None, metavar="CHAR",
                    help="CSV output delimiter (default , or tab for a .tsv output)")
-    o.add_argument("--summary", metavar="FILE",
+    o.add_argument("--summary", metavar="FILE", action=Once,
                    help="write the summary here (.json for JSON) instead of stderr")
-    o.add_argument("--report", metavar="FILE",
+    o.add_argument("--report", metavar="FILE", action=Once,
                    help="summary report with flagged rows and the pCO2-HCO3 plane (.md or .html)")
     o.add_argument("--profile", default="lean", choices=PROFILES,
                    help="output columns: lean (default; see docs/batch.md) or full (every "

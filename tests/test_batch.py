@@ -688,3 +688,15 @@ def test_an_output_delimiter_given_wins_over_a_tsv_name(tmp_path, capsys):
     out = tmp_path / "out.tsv"
     rc, _ = batch(capsys, src, "-o", out, "--quiet", "--output-delimiter", ";")
     assert rc == 0 and out.read_text().startswith('"row";"sample_id"')
+
+
+@pytest.mark.parametrize("option", ["-o", "--summary", "--report"])
+def test_an_output_option_given_twice_with_two_files_is_refused(tmp_path, capsys, option):
+    """``-o a.csv ... -o b.csv`` wrote b.csv only, silently; the run now stops at once."""
+    src = tmp_path / "day.csv"
+    src.write_text(TWO_PANELS)
+    first, second = (tmp_path / f"{n}.md" for n in ("a", "b"))
+    with pytest.raises(SystemExit) as stop:
+        batch(capsys, src, option, first, option, second, "--quiet")
+    assert stop.value.code == 2 and "given twice" in capsys.readouterr().err
+    assert not first.exists() and not second.exists()
