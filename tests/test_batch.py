@@ -700,3 +700,15 @@ def test_an_output_option_given_twice_with_two_files_is_refused(tmp_path, capsys
         batch(capsys, src, option, first, option, second, "--quiet")
     assert stop.value.code == 2 and "given twice" in capsys.readouterr().err
     assert not first.exists() and not second.exists()
+
+
+def test_a_utf16_file_is_named_with_the_encoding_that_reads_it(tmp_path, capsys):
+    """A spreadsheet's "Unicode text" export (UTF-16 with its byte-order mark) was told
+    "give --encoding (for example cp1252)", which would read it as nonsense."""
+    src = tmp_path / "export.txt"
+    src.write_bytes("sample_id\tph\tpco2\thco3\r\nA\t7.40\t40\t24\r\n".encode("utf-16"))
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, src, "-o", out, "--quiet")
+    assert rc == 2 and "give --encoding utf-16" in err and "cp1252" not in err
+    rc, _ = batch(capsys, src, "-o", out, "--quiet", "--encoding", "utf-16")
+    assert rc == 0 and [r["status"] for r in rows_of(out)] == ["interpreted"]

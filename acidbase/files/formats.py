@@ -78,6 +78,10 @@ def _read_text_sample(path: str | os.PathLike[str], encoding: str, size: int = 1
         raise BatchInputError(f"{path}: the file is empty")
     _refuse_compressed(path, raw)
     codec = "utf-8-sig" if encoding.lower().replace("_", "-") in ("utf-8", "utf8") else encoding
+    if codec == "utf-8-sig" and raw.startswith((b"\xff\xfe", b"\xfe\xff")):
+        # A spreadsheet's "Unicode text" export: its byte-order mark says UTF-16.
+        raise BatchInputError(f"{path}: the file is UTF-16 text (it starts with a UTF-16 "
+                              "byte-order mark); give --encoding utf-16")
     try:
         text = raw.decode(codec)
     except UnicodeDecodeError as e:

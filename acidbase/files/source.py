@@ -200,7 +200,7 @@ def _csv_error(text: str) -> str:
     m = re.search(r"Expected (\d+) columns, got (\d+): (.*)", text, re.S)
     if m:
         return (f"a line has {m[2]} fields where the header has {m[1]}: {m[3].strip()[:120]!r}; "
-                "nothing was written (fix the line, or check --delimiter)")
+                "fix the line, or check --delimiter")
     return text
 
 
