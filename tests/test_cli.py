@@ -244,3 +244,15 @@ def test_a_unit_typed_after_the_number_is_refused_with_where_the_unit_goes(value
     assert r.returncode == 2
     assert f"the unit is not read from the value: state it on its own (pco2 unit {unit})" \
         in r.stderr, r.stderr
+
+
+@pytest.mark.parametrize("stdin, stdout", [(subprocess.DEVNULL, subprocess.PIPE),
+                                           (None, subprocess.PIPE)])
+def test_the_app_without_a_terminal_says_so_instead_of_waiting_unseen(stdin, stdout):
+    """``acidbase tui > file`` or ``< /dev/null`` once drew into the file and waited for
+    keys that could not come (a stuck, invisible app)."""
+    r = subprocess.run([sys.executable, "-m", "acidbase", "tui"], stdin=stdin, stdout=stdout,
+                       stderr=subprocess.PIPE, text=True, cwd=ROOT, timeout=30)
+    assert r.returncode == 2
+    assert "acidbase: tui needs a terminal" in r.stderr and "acidbase check" in r.stderr
+    assert r.stdout == ""
