@@ -390,3 +390,20 @@ def test_results_to_pandas_without_pandas_says_how_to_get_it(monkeypatch):
     monkeypatch.setitem(sys.modules, "pandas", None)  # import pandas now fails
     with pytest.raises(ImportError, match=r"to_pandas needs pandas .*pip install pandas.*to_arrow"):
         results.to_pandas()
+
+
+def test_a_unit_for_a_name_that_is_no_numeric_field_says_so():
+    """``units={"sodium": ...}`` said "sodium: unit 'mmol/L' is not accepted; use one of "
+    (an empty list): the name is what is wrong."""
+    with pytest.raises(ColumnError, match=r"units: 'sodium' is not a numeric field.*\bna\b"):
+        acidbase.interpret_many(BASE, units={"sodium": "mmol/L"})
+
+
+@pytest.mark.parametrize("settings", [{"reference_albumin": 40}, "default", 44])
+def test_settings_that_are_no_settings_say_what_they_should_be(settings):
+    """``interpret(panel, {"reference_albumin": 40})`` raised an AttributeError from inside."""
+    panel = acidbase.Panel(ph=7.40, pco2=40, hco3=24)
+    for call in (lambda: acidbase.interpret(panel, settings),
+                 lambda: acidbase.interpret_many(BASE, settings=settings)):
+        with pytest.raises(TypeError, match=r"settings must be an acidbase\.Settings"):
+            call()
