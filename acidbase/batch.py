@@ -605,14 +605,18 @@ def _give_back_memory() -> None:
         pass
 
 
-def _stage_outputs(args: argparse.Namespace, outputs: OutputSet) -> dict[str, Staged]:
+def _stage_outputs(args: argparse.Namespace, outputs: OutputSet,
+                   site: config.Site | None = None) -> dict[str, Staged]:
     """Guard the output paths, then create their temporary files: before any work, so
-    an output that is an input (by any name), two outputs that are one file, or a
-    folder that is missing or cannot be written stops the run with nothing done."""
+    an output that is an input (by any name: the site file and the mapping file it
+    names included), two outputs that are one file, or a folder that is missing or
+    cannot be written stops the run with nothing done."""
     named = [(opt, path) for opt, path in (("-o", args.output), ("--summary", args.summary),
                                            ("--report", args.report)) if path and path != "-"]
+    mapping = args.mapping or (site.mapping if site else None)
     inputs = [("INPUT", args.input)] + [(o, p) for o, p in (
-        ("--map", args.mapping), ("--history", getattr(args, "history", None))) if p]
+        ("--map", mapping), ("--history", getattr(args, "history", None)),
+        ("--config", site.file if site else None)) if p]
     check_paths([(o, p) for o, p in inputs if p != "-"], named)
     return {opt: outputs.add(opt, path) for opt, path in named}
 
@@ -655,7 +659,7 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
             raise BatchInputError("--output-format fhir writes one Bundle per line "
                                   "(newline-delimited JSON): name the output .ndjson")
     out_fmt = "jsonl" if fhir_out else fileio.output_format(args.output, args.output_format)
-    staged = _stage_outputs(args, outputs)
+    staged = _stage_outputs(args, outputs, site)
     if hl7.looks_like_hl7(args.input, args.format):
         src = hl7.open_source(args.input, args.encoding, args.chunk_rows)
     else:

@@ -712,3 +712,28 @@ def test_a_utf16_file_is_named_with_the_encoding_that_reads_it(tmp_path, capsys)
     assert rc == 2 and "give --encoding utf-16" in err and "cp1252" not in err
     rc, _ = batch(capsys, src, "-o", out, "--quiet", "--encoding", "utf-16")
     assert rc == 0 and [r["status"] for r in rows_of(out)] == ["interpreted"]
+
+
+@pytest.mark.parametrize("option", ["-o", "--summary"])
+def test_the_site_file_is_never_an_output(tmp_path, capsys, option):
+    """``--config site.toml --summary site.toml`` overwrote the laboratory's site file
+    with the summary: an input, by any name, is never written (docs/batch.md)."""
+    src = tmp_path / "day.csv"
+    src.write_text(TWO_PANELS)
+    site = tmp_path / "site.toml"
+    site.write_text("[intervals.arterial]\n")
+    rc, err = batch(capsys, src, "--config", site, option, site, "--quiet")
+    assert rc == 2 and site.read_text() == "[intervals.arterial]\n"
+    assert "is the --config file" in err
+
+
+def test_the_site_files_mapping_file_is_never_an_output(tmp_path, capsys):
+    src = tmp_path / "day.csv"
+    src.write_text(TWO_PANELS)
+    mapping = tmp_path / "map.csv"
+    mapping.write_text("header,field\nPH,ph\n")
+    site = tmp_path / "site.toml"
+    site.write_text(f"[batch]\nmapping = \"{mapping}\"\n")
+    rc, err = batch(capsys, src, "--config", site, "-o", mapping, "--quiet")
+    assert rc == 2 and mapping.read_text() == "header,field\nPH,ph\n"
+    assert "is the --map file" in err
