@@ -31,6 +31,26 @@ EXIT_OK, EXIT_REFUSED = 0, 2
 EXIT_CLOSED_PIPE = 141
 
 
+class StdoutRefused(Exception):
+    """Standard output refused a write (``> /dev/full``, a disk filled); ``error`` is why."""
+
+    def __init__(self, error: OSError) -> None:
+        super().__init__(error)
+        self.error = error
+
+
+def emit(text: str) -> None:
+    """Write a command's result to standard output; a refusal of the write is raised as
+    ``StdoutRefused``, so it is never blamed on, or confused with, any other file."""
+    try:
+        sys.stdout.write(text)
+        sys.stdout.flush()
+    except BrokenPipeError:
+        raise
+    except OSError as e:
+        raise StdoutRefused(e) from e
+
+
 def _help(text: str) -> str:
     return text.replace("%", "%%")  # argparse formats help strings with %
 
@@ -175,7 +195,7 @@ def add_config_option(p: argparse.ArgumentParser) -> None:
 
 def cmd_config(args: argparse.Namespace) -> int:
     """``acidbase config show``: every setting in force and where it came from."""
-    print(resolve_site(args).show())
+    emit(resolve_site(args).show() + "\n")
     return EXIT_OK
 
 
@@ -255,13 +275,13 @@ def cmd_check(args: argparse.Namespace) -> int:
         panel = _validated_panel(args, site.units)
         if isinstance(panel, int):
             return panel
-        print(check_bundle_json(panel, it, site, started))
+        emit(check_bundle_json(panel, it, site, started) + "\n")
     elif args.json:
         doc = it.to_dict()
         doc["audit"] = audit.record(site, started)
-        print(json.dumps(doc, indent=2, ensure_ascii=False, allow_nan=False))
+        emit(json.dumps(doc, indent=2, ensure_ascii=False, allow_nan=False) + "\n")
     else:
-        print(as_text(it, working=not args.brief), end="")
+        emit(as_text(it, working=not args.brief))
     return EXIT_OK
 
 
@@ -299,7 +319,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
             d = results.interpretation(i).to_dict()
             d["sample_id"], d["note"] = p["sample_id"], p["note"]
             docs.append(d)
-        print(json.dumps({"caution": CAUTION, "panels": docs}, indent=2, allow_nan=False))
+        emit(json.dumps({"caution": CAUTION, "panels": docs}, indent=2, allow_nan=False) + "\n")
         return EXIT_OK
     lines = [*wrap_lines(CAUTION), "",
              "Demo: one night's blood gases on an invented respiratory high-dependency unit.",
@@ -322,7 +342,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
             if f.severity != "info" or f.section == "process":
                 lines += wrap_lines(f"[{f.severity}] {f.code}: {f.text}", "  ", hang="      ")
     lines += ["", *wrap_lines(CAUTION)]
-    print("\n".join(lines))
+    emit("\n".join(lines) + "\n")
     return EXIT_OK
 
 
@@ -507,7 +527,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         status = int(args.func(args))
         if sys.stdout is not None:
-            sys.stdout.flush()  # a closed pipe shows here, not at the interpreter's exit
+            emit("")  # a closed pipe or a full disk shows here, not at the interpreter's exit
         return status
     except BrokenPipeError:
         from .files.outputs import silence_stdout
@@ -517,18 +537,19 @@ def main(argv: Sequence[str] | None = None) -> int:
     except AcidBaseError as e:
         print(f"acidbase: {e}", file=sys.stderr)
         return EXIT_REFUSED
-    except OSError as e:
-        if e.filename is not None:  # a file the command named: its own words
-            print(f"acidbase {args.command}: could not run: {e.filename}: {e.strerror}",
-                  file=sys.stderr)
-            return EXIT_REFUSED
-        # Standard output refused a write (``> /dev/full``, a disk filled): say so, and
-        # let the interpreter's last flush raise nothing more.
+    except StdoutRefused as refused:
+        # Say so, and let the interpreter's last flush raise nothing more.
         from .files.outputs import silence_stdout
 
         silence_stdout()
+        e = refused.error
         print(f"acidbase {args.command}: standard output: {e.strerror or e}; what was "
               "written is incomplete", file=sys.stderr)
+        return EXIT_REFUSED
+    except OSError as e:  # a file the command read or wrote
+        where = f"{e.filename}: " if e.filename is not None else ""
+        print(f"acidbase {args.command}: could not run: {where}{e.strerror or e}",
+              file=sys.stderr)
         return EXIT_REFUSED
     except KeyboardInterrupt:
         return 130
