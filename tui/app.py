@@ -55,7 +55,7 @@ class AcidBaseApp(App[None]):
         (Tests drive the app with ``run_test``, which this does not touch.)"""
         missing = [name for name, stream in (("input", sys.stdin), ("output", sys.stdout))
                    if stream is None or not stream.isatty()]
-        if missing:
+        if missing and not kwargs.get("headless"):  # headless (snapshots) draws nowhere
             raise NoTerminal(
                 f"tui needs a terminal (standard {' and '.join(missing)} "
                 f"{'is' if len(missing) == 1 else 'are'} not one); acidbase check reads one "
