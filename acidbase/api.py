@@ -14,7 +14,7 @@ import numpy as np
 
 from . import engine, rules
 from ._arrow import is_arrow
-from .errors import ColumnError, Problem, UnitError
+from .errors import ColumnError, Problem
 from .fields import BY_NAME, TEXT_FIELDS
 from .inputs.cells import _objects, is_column, read_choices
 from .inputs.vocab import CHOICES
@@ -93,7 +93,9 @@ def check_units(units: Mapping[str, str] | None) -> None:
         raise ColumnError(f"units must be a mapping of field -> unit; got {type(units).__name__}")
     for name, unit in units.items():
         if name not in BY_NAME:
-            raise UnitError(field=str(name), unit=str(unit), accepted=())
+            raise ColumnError(f"units: {str(name)!r} is not a numeric field; the fields that "
+                              f"take a unit are {', '.join(BY_NAME)}", names=(str(name),),
+                              known=tuple(BY_NAME))
         factor(name, BY_NAME[name].kind, unit)
 
 
@@ -121,9 +123,14 @@ def interpret_many(
     Rows that fail the input checks are kept, marked refused with their problems;
     nothing is dropped or reordered.  Raises only ``ColumnError`` (unknown column,
     unequal lengths, not columns at all) and ``UnitError`` (a unit the field does
-    not accept), both ``ValueError`` and ``AcidBaseError``.
+    not accept), both ``ValueError`` and ``AcidBaseError``; and ``TypeError`` when
+    ``settings`` is not a ``Settings``.
     """
-    settings = settings or Settings()
+    if settings is None:
+        settings = Settings()
+    elif not isinstance(settings, Settings):
+        raise TypeError(f"settings must be an acidbase.Settings (or None for the defaults), "
+                        f"not {type(settings).__name__}")
     if decimal not in (".", ","):
         raise ColumnError(f"decimal must be '.' or ','; got {decimal!r}")
     if isinstance(missing, str) or not all(isinstance(m, str) for m in missing):
@@ -172,6 +179,11 @@ def _sliceable(value: Any, n: int) -> Any:
 
 def interpret(panel: Panel, settings: Settings | None = None) -> Interpretation:
     """Check and interpret one validated panel."""
+    if not callable(getattr(panel, "columns", None)):  # Panel itself is imported lazily
+        raise TypeError(
+            f"interpret takes an acidbase.Panel, not {type(panel).__name__}: build one with "
+            "Panel(ph=..., ...) or Panel.model_validate(mapping); for columns of panels use "
+            "interpret_many")
     columns, units = panel.columns()
     it = interpret_many(columns, units, settings).interpretation(0)
     # The panel was read from its cells already: its marks are the panel's own.

@@ -636,14 +636,18 @@ def _give_back_memory() -> None:
         pass
 
 
-def _stage_outputs(args: argparse.Namespace, outputs: OutputSet) -> dict[str, Staged]:
+def _stage_outputs(args: argparse.Namespace, outputs: OutputSet,
+                   site: config.Site | None = None) -> dict[str, Staged]:
     """Guard the output paths, then create their temporary files: before any work, so
-    an output that is an input (by any name), two outputs that are one file, or a
-    folder that is missing or cannot be written stops the run with nothing done."""
+    an output that is an input (by any name: the site file and the mapping file it
+    names included), two outputs that are one file, or a folder that is missing or
+    cannot be written stops the run with nothing done."""
     named = [(opt, path) for opt, path in (("-o", args.output), ("--summary", args.summary),
                                            ("--report", args.report)) if path and path != "-"]
+    mapping = args.mapping or (site.mapping if site else None)
     inputs = [("INPUT", args.input)] + [(o, p) for o, p in (
-        ("--map", args.mapping), ("--history", getattr(args, "history", None))) if p]
+        ("--map", mapping), ("--history", getattr(args, "history", None)),
+        ("--config", site.file if site else None)) if p]
     check_paths([(o, p) for o, p in inputs if p != "-"], named)
     return {opt: outputs.add(opt, path) for opt, path in named}
 
@@ -663,7 +667,10 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
     delimiter = _DELIMS.get((args.delimiter or "").lower(), args.delimiter)
     if delimiter is not None and len(delimiter) != 1:
         raise BatchInputError(f"--delimiter {args.delimiter!r}: give one character, or 'tab'")
-    out_delim = _DELIMS.get(args.output_delimiter.lower(), args.output_delimiter)
+    given_delim = args.output_delimiter
+    if given_delim is None:  # a .tsv name asks for tabs
+        given_delim = "\t" if (args.output or "").lower().endswith(".tsv") else ","
+    out_delim = _DELIMS.get(given_delim.lower(), given_delim)
     if len(out_delim) != 1:
         raise BatchInputError(f"--output-delimiter {args.output_delimiter!r}: give one character")
     if args.chunk_rows < 1:
@@ -683,7 +690,7 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
             raise BatchInputError("--output-format fhir writes one Bundle per line "
                                   "(newline-delimited JSON): name the output .ndjson")
     out_fmt = "jsonl" if fhir_out else fileio.output_format(args.output, args.output_format)
-    staged = _stage_outputs(args, outputs)
+    staged = _stage_outputs(args, outputs, site)
     if hl7.looks_like_hl7(args.input, args.format):
         src = hl7.open_source(args.input, args.encoding, args.chunk_rows)
     else:
@@ -697,7 +704,7 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
     mapping = fileio.read_mapping(site.mapping) if site.mapping else None
     layout = fileio.map_headers(src.headers, mapping, units,
                                 args.strict_columns and src.format != hl7.FORMAT,
-                                defaults=site.units)
+                                defaults=site.units, repeats=src.repeats)
     layout = dataclasses.replace(layout, missing=src.missing, notes=src.notes + layout.notes,
                                  duplicates=src.duplicates,
                                  row_problems=getattr(src, "row_problems", {}))

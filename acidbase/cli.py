@@ -24,7 +24,7 @@ from .fields import BY_NAME, NUMERIC, TEXT_FIELDS
 from .inputs.panel import unit_refusal
 from .inputs.vocab import CHOICES
 from .reference import Settings
-from .report import as_text
+from .report import as_text, wrap_lines
 from .results import CAUTION
 
 EXIT_OK, EXIT_REFUSED = 0, 2
@@ -32,34 +32,69 @@ EXIT_OK, EXIT_REFUSED = 0, 2
 EXIT_CLOSED_PIPE = 141
 
 
+class StdoutRefused(Exception):
+    """Standard output refused a write (``> /dev/full``, a disk filled); ``error`` is why."""
+
+    def __init__(self, error: OSError) -> None:
+        super().__init__(error)
+        self.error = error
+
+
+def emit(text: str) -> None:
+    """Write a command's result to standard output; a refusal of the write is raised as
+    ``StdoutRefused``, so it is never blamed on, or confused with, any other file."""
+    try:
+        sys.stdout.write(text)
+        sys.stdout.flush()
+    except BrokenPipeError:
+        raise
+    except OSError as e:
+        raise StdoutRefused(e) from e
+
+
 def _help(text: str) -> str:
     return text.replace("%", "%%")  # argparse formats help strings with %
 
 
+class Once(argparse.Action):
+    """Store an option's value; the same option again with another value is refused
+    (argparse would keep the last): which of two values was meant cannot be told, as
+    with a JSON Lines key given twice (docs/input.md)."""
+
+    def __call__(self, parser, namespace, values, option_string=None) -> None:
+        before = getattr(namespace, self.dest, None)
+        if before is not None and before != values:
+            raise argparse.ArgumentError(
+                self, f"given twice ({before!r}, then {values!r}); give it once")
+        setattr(namespace, self.dest, values)
+
+
 def add_panel_options(p: argparse.ArgumentParser) -> None:
     """One option per panel field and one per unit (shared by check and tui)."""
-    g = p.add_argument_group("panel values (required: --ph --pco2 --hco3; without --na and "
-                             "--cl the gap-based readings are not assessable)")
+    g = p.add_argument_group("panel values", "required: --ph --pco2 --hco3; without --na "
+                             "and --cl the gap-based readings are not assessable")
     for spec in NUMERIC:
         opt = spec.name.replace("_", "-")
-        g.add_argument(f"--{opt}", dest=spec.name, metavar="X",
+        g.add_argument(f"--{opt}", dest=spec.name, metavar="X", action=Once,
                        help=_help(f"{spec.title} [{spec.unit}]. {spec.help}"))
     u = p.add_argument_group("units (UCUM spellings; default is the first listed)")
     for spec in NUMERIC:
         if len(spec.units) > 1:
             u.add_argument(f"--{spec.name}-unit", dest=f"{spec.name}_unit", metavar="UNIT",
+                           action=Once,
                            help=_help(f"unit of {spec.title}: {', '.join(spec.units)}"))
     c = p.add_argument_group("sample")
     # No argparse choices=: the words are read by the library's one choice reader,
     # so "Arterial" reads here as it does in a file.
     for choice in CHOICES:
         c.add_argument(f"--{choice.name.replace('_', '-')}", dest=choice.name, metavar="WORD",
+                       action=Once,
                        help=_help(f"{choice.help} ({', '.join(choice.words)}; default "
                                   f"{choice.default})"))
     c.add_argument("--decimal", choices=(".", ","), default=".",
                    help="decimal mark of the values given (default .)")
     for name in TEXT_FIELDS:
-        c.add_argument(f"--{name.replace('_', '-')}", dest=name, metavar="TEXT")
+        c.add_argument(f"--{name.replace('_', '-')}", dest=name, metavar="TEXT", action=Once)
     add_settings_options(p)
 
 
@@ -72,8 +107,9 @@ def add_settings_options(p: argparse.ArgumentParser) -> None:
                    help="judge the anion gap with K+ included (interval default 10 16)")
     s.add_argument("--reference-albumin", type=float, metavar="G_PER_L",
                    help="albumin to correct the gap to, g/L (default 44)")
-    s.add_argument("--fhir-status", choices=OBSERVATION_STATUSES,
-                   help="FHIR Observation status of machine readings (default preliminary)")
+    s.add_argument("--fhir-status", choices=OBSERVATION_STATUSES, metavar="STATUS",
+                   help="FHIR Observation status of machine readings: "
+                        f"{', '.join(OBSERVATION_STATUSES)} (default preliminary)")
     add_config_option(s)
 
 
@@ -90,7 +126,7 @@ def configure_batch_parser(p: argparse.ArgumentParser) -> None:
     p.add_argument("input", metavar="INPUT",
                    help="panel file (.csv, .jsonl, .parquet, or .hl7: HL7 v2 ORU^R01 messages), "
                         "or - for standard input")
-    p.add_argument("-o", "--output", metavar="OUTPUT",
+    p.add_argument("-o", "--output", metavar="OUTPUT", action=Once,
                    help="output file (.csv, .jsonl, .parquet); default: CSV on stdout")
     g = p.add_argument_group("reading")
     g.add_argument("--format", choices=(*FORMATS, "hl7"),
@@ -131,11 +167,11 @@ def configure_batch_parser(p: argparse.ArgumentParser) -> None:
     o.add_argument("--output-format", choices=(*FORMATS, "fhir"),
                    help="default: from the name; fhir: one FHIR R4 Bundle per panel, one per "
                         "line (needs acidbase[fhir])")
-    o.add_argument("--output-delimiter", default=",", metavar="CHAR",
-                   help="CSV output delimiter (default ,)")
-    o.add_argument("--summary", metavar="FILE",
+    o.add_argument("--output-delimiter", default=None, metavar="CHAR",
+                   help="CSV output delimiter (default , or tab for a .tsv output)")
+    o.add_argument("--summary", metavar="FILE", action=Once,
                    help="write the summary here (.json for JSON) instead of stderr")
-    o.add_argument("--report", metavar="FILE",
+    o.add_argument("--report", metavar="FILE", action=Once,
                    help="summary report with flagged rows and the pCO2-HCO3 plane (.md or .html)")
     o.add_argument("--profile", default="lean", choices=PROFILES,
                    help="output columns: lean (default; see docs/batch.md) or full (every "
@@ -160,7 +196,7 @@ def add_config_option(p: argparse.ArgumentParser) -> None:
 
 def cmd_config(args: argparse.Namespace) -> int:
     """``acidbase config show``: every setting in force and where it came from."""
-    print(resolve_site(args).show())
+    emit(resolve_site(args).show() + "\n")
     return EXIT_OK
 
 
@@ -240,13 +276,13 @@ def cmd_check(args: argparse.Namespace) -> int:
         panel = _validated_panel(args, site.units)
         if isinstance(panel, int):
             return panel
-        print(check_bundle_json(panel, it, site, started))
+        emit(check_bundle_json(panel, it, site, started) + "\n")
     elif args.json:
         doc = it.to_dict()
         doc["audit"] = audit.record(site, started)
-        print(json.dumps(doc, indent=2, ensure_ascii=False, allow_nan=False))
+        emit(json.dumps(doc, indent=2, ensure_ascii=False, allow_nan=False) + "\n")
     else:
-        print(as_text(it, working=not args.brief), end="")
+        emit(as_text(it, working=not args.brief))
     return EXIT_OK
 
 
@@ -284,29 +320,30 @@ def cmd_demo(args: argparse.Namespace) -> int:
             d = results.interpretation(i).to_dict()
             d["sample_id"], d["note"] = p["sample_id"], p["note"]
             docs.append(d)
-        print(json.dumps({"caution": CAUTION, "panels": docs}, indent=2, allow_nan=False))
+        emit(json.dumps({"caution": CAUTION, "panels": docs}, indent=2, allow_nan=False) + "\n")
         return EXIT_OK
-    print(CAUTION)
-    print()
-    print("Demo: one night's blood gases on an invented respiratory high-dependency unit.")
-    print("Each panel is read in full by `acidbase check`; here, the statements only.")
+    lines = [*wrap_lines(CAUTION), "",
+             "Demo: one night's blood gases on an invented respiratory high-dependency unit.",
+             "Each panel is read in full by `acidbase check`; here, the statements only."]
     for i, p in enumerate(DEMO_PANELS):
         it = results.interpretation(i)
-        print()
-        print(f"=== {p['sample_id']} {p['collected_at']} {p['patient_id']}: {p['note']}")
+        lines.append("")
+        lines += wrap_lines(f"=== {p['sample_id']} {p['collected_at']} {p['patient_id']}: "
+                            f"{p['note']}", hang="    ")
         if it.status == "refused":
-            print("  refused:")
-            for line in it.problems:
-                print(f"    - {line}")
+            lines.append("  refused:")
+            for problem in it.problems:
+                lines += wrap_lines(str(problem), "    - ", hang="      ")
             continue
         labels = "; ".join(d.label() for d in it.disorders) or "none"
-        print(f"  consistency: {it.consistency.status if it.consistency else 'not assessable'}")
-        print(f"  disorders:   {labels}")
+        status = it.consistency.status if it.consistency else "not assessable"
+        lines.append(f"  consistency: {status}")
+        lines += wrap_lines(f"disorders:   {labels}", "  ", hang="               ")
         for f in it.findings:
             if f.severity != "info" or f.section == "process":
-                print(f"  [{f.severity}] {f.code}: {f.text}")
-    print()
-    print(CAUTION)
+                lines += wrap_lines(f"[{f.severity}] {f.code}: {f.text}", "  ", hang="      ")
+    lines += ["", *wrap_lines(CAUTION)]
+    emit("\n".join(lines) + "\n")
     return EXIT_OK
 
 
@@ -389,18 +426,22 @@ def build_parser(command: str | None = None) -> argparse.ArgumentParser:
                 versioned.append(p)
 
     add("check", _configure_check, help="read one panel given as options",
-        description="Read one panel: trust, processes, derived values.")
-    add("demo", _configure_demo, help="read the built-in demo panels")
+        description=_help("Read one panel: trust, processes, derived values. " + CAUTION))
+    add("demo", _configure_demo, help="read the built-in demo panels",
+        description=_help("Read the built-in demo panels (invented). " + CAUTION))
     add("batch", _configure_batch, help="check a file of panels")
     add("shard", _configure_shard, version=False,
-        help="split a file into Parquet shards by patient", description="Split INPUT into Parquet files, a patient's rows always in the same "
-                    "one, for checking shard by shard (docs/scale.md).")
+        help="split a file into Parquet shards by patient",
+        description=_help("Split INPUT into Parquet files, a patient's rows always in the same "
+                          "one, for checking shard by shard (docs/scale.md). " + CAUTION))
     add("history", _configure_history, version=False,
         help="what a history store holds; export or purge a patient")
-    add("tui", _configure_tui, help="the keyboard-only terminal app")
+    add("tui", _configure_tui, help="the keyboard-only terminal app",
+        description=_help("The keyboard-only terminal app: key in a panel and read it as "
+                          "you type. " + CAUTION))
     add("config", _configure_config, help="the site configuration in force",
-        description="Show the settings in force and where each came from (built-in "
-                    "default, configuration file, option).")
+        description=_help("Show the settings in force and where each came from (built-in "
+                          "default, configuration file, option). " + CAUTION))
     for p in (parser, *versioned):
         p.add_argument("--version", action="version", version=f"acidbase {audit.version()}")
     return parser
@@ -453,7 +494,9 @@ def _configure_tui(tui: argparse.ArgumentParser) -> None:
 
 def _configure_config(config: argparse.ArgumentParser) -> None:
     config_sub = config.add_subparsers(dest="action", required=True, metavar="ACTION")
-    show = config_sub.add_parser("show", help="print every setting and its origin")
+    show = config_sub.add_parser("show", help="print every setting and its origin",
+                                 description=_help("Print every setting in force and its "
+                                                   "origin. " + CAUTION))
     add_settings_options(show)
     show.set_defaults(func=cmd_config)
     show.add_argument("--version", action="version", version=f"acidbase {audit.version()}")
@@ -479,7 +522,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         status = int(args.func(args))
         if sys.stdout is not None:
-            sys.stdout.flush()  # a closed pipe shows here, not at the interpreter's exit
+            emit("")  # a closed pipe or a full disk shows here, not at the interpreter's exit
         return status
     except BrokenPipeError:
         from .files.outputs import silence_stdout
@@ -488,6 +531,20 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_CLOSED_PIPE
     except AcidBaseError as e:
         print(f"acidbase: {e}", file=sys.stderr)
+        return EXIT_REFUSED
+    except StdoutRefused as refused:
+        # Say so, and let the interpreter's last flush raise nothing more.
+        from .files.outputs import silence_stdout
+
+        silence_stdout()
+        e = refused.error
+        print(f"acidbase {args.command}: standard output: {e.strerror or e}; what was "
+              "written is incomplete", file=sys.stderr)
+        return EXIT_REFUSED
+    except OSError as e:  # a file the command read or wrote
+        where = f"{e.filename}: " if e.filename is not None else ""
+        print(f"acidbase {args.command}: could not run: {where}{e.strerror or e}",
+              file=sys.stderr)
         return EXIT_REFUSED
     except KeyboardInterrupt:
         return 130

@@ -86,26 +86,26 @@ class Problem:
 
     def __str__(self) -> str:
         head = f"{self.title} ({self.field})"
-        unit = f" {self.unit}" if self.unit else ""
+        unit = f" {self.unit}" if self.unit and self.unit not in UNITLESS else ""
         if self.kind == "outside_accepted_range" and self.allowed is not None:
             lo, hi = self.allowed
             text = (f"{head} {_num(self.value)}{unit} is outside the accepted range "
                     f"{_num(lo)} to {_num(hi)}{unit}")
         elif self.kind == "not_a_number":
-            text = f"{head} {self.value!r} is not a number"
+            text = f"{head} {_shown(self.value)} is not a number"
         elif self.kind == "missing":
             text = f"{head} is required and was not given"
         elif self.kind == "censored" and self.allowed is not None:
             lo, hi = self.allowed
-            text = (f"{head} {self.value!r}{unit} is a censored value (beyond the reporting "
+            text = (f"{head} {_shown(self.value)}{unit} is a censored value (beyond the reporting "
                     f"limit), but a required field needs an exact number (accepted range "
                     f"{_num(lo)} to {_num(hi)}{unit})")
         elif self.kind == "not_a_choice":
-            text = f"{head} {self.value!r} is not one of {', '.join(self.choices)}"
+            text = f"{head} {_shown(self.value)} is not one of {', '.join(self.choices)}"
         elif self.kind == "urea_and_bun":
             text = "give urea or urea nitrogen (bun), not both"
         else:
-            text = f"{head} {self.value!r}: {self.KINDS.get(self.kind, self.kind)}"
+            text = f"{head} {_shown(self.value)}: {self.KINDS.get(self.kind, self.kind)}"
         # " - ", not "; ": a row's reasons are joined with "; ", one per problem
         return text + (f" - {self.hint}" if self.hint else "")
 
@@ -123,6 +123,24 @@ class ColumnError(ValueError, AcidBaseError):
 
     def __str__(self) -> str:
         return self.message
+
+
+#: UCUM codes of no unit (FiO2 as a fraction, pH), left out of a sentence as the text
+#: report leaves them out: "21 1 ... 0.16 to 1 1" reads as nonsense.
+UNITLESS: frozenset[str] = frozenset({"1", "[pH]"})
+
+#: A value longer than this is shown by its start and its length (``Problem.value``
+#: keeps it whole): a 10,000-character cell would flood a terminal and a reason column.
+SHOWN_CHARACTERS = 60
+
+
+def _shown(x: object) -> str:
+    """The value as given, quoted (``repr``); a long one shortened, with its length."""
+    text = repr(x)
+    if len(text) <= SHOWN_CHARACTERS:
+        return text
+    n = len(x) if isinstance(x, str) else len(text)
+    return f"{text[:SHOWN_CHARACTERS - 20]}... ({n} characters)"
 
 
 def _num(x: object) -> str:

@@ -38,6 +38,10 @@ def _run(args: Any) -> int:
         raise history.HistoryError("--patient needs --export or --purge")
     if args.output and not args.export:
         raise history.HistoryError("-o is for --export")
+    if args.output and args.output != "-":  # the store is the export's input
+        from .files.outputs import check_paths
+
+        check_paths([("INPUT", args.store)], [("-o", args.output)])
     key = history.site_key() if args.patient else None
     store = history.Store(args.store, key, args.retention_days, create=False)
     try:

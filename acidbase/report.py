@@ -76,20 +76,30 @@ def as_json_dict(it: Interpretation) -> dict[str, Any]:
     }
 
 
-def _wrap(text: str, indent: str, width: int = 88, hang: str | None = None) -> list[str]:
+#: Text reports fit an 80-column terminal, the width the terminal app is built for
+#: (docs/tui.md; common practice, no source).
+TEXT_WIDTH = 80
+
+
+def wrap_lines(text: str, indent: str = "", width: int = TEXT_WIDTH,
+               hang: str | None = None) -> list[str]:
+    """``text`` as lines of at most ``width`` columns, the first led by ``indent``, the
+    others by ``hang`` (default: ``indent``)."""
     rest = indent if hang is None else hang
-    return textwrap.wrap(text, width=width, initial_indent=indent, subsequent_indent=rest) or [indent]
+    # Whole words only: "low-flow", "Henderson-Hasselbalch" and "7.35-7.45" stay on one line.
+    return textwrap.wrap(text, width=width, initial_indent=indent, subsequent_indent=rest,
+                         break_on_hyphens=False) or [indent]
 
 
-def as_text(it: Interpretation, width: int = 88, working: bool = True) -> str:
+def as_text(it: Interpretation, width: int = TEXT_WIDTH, working: bool = True) -> str:
     """A readable report: caution, the three questions in order, then sources."""
     lines: list[str] = []
-    lines += _wrap(it.caution, "", width)
+    lines += wrap_lines(it.caution, "", width)
     lines.append("")
     if it.status == "refused":
         lines.append("Panel refused; nothing was interpreted:")
         for p in it.problems:
-            lines += _wrap(str(p), "  - ", width)
+            lines += wrap_lines(str(p), "  - ", width)
         return "\n".join(lines) + "\n"
     lines.append(f"Sample: {it.sample_type}; HCO3- source: {it.hco3_source}")
     shown = []
@@ -97,12 +107,12 @@ def as_text(it: Interpretation, width: int = 88, working: bool = True) -> str:
         spec = BY_NAME[name]
         unit = "" if item["unit"] in ("1", "[pH]") else f" {item['unit']}"
         shown.append(f"{spec.title} {item['value']:.4g}{unit}")
-    lines += _wrap("Inputs (canonical units): " + ", ".join(shown), "", width)
+    lines += wrap_lines("Inputs (canonical units): " + ", ".join(shown), "", width)
     if it.qualifiers:
-        lines += _wrap("Censored values, read as not measured: " + ", ".join(it.qualifiers),
+        lines += wrap_lines("Censored values, read as not measured: " + ", ".join(it.qualifiers),
                        "", width)
     if it.lab_flags:
-        lines += _wrap("Laboratory flags read off the values: " + ", ".join(it.lab_flags),
+        lines += wrap_lines("Laboratory flags read off the values: " + ", ".join(it.lab_flags),
                        "", width)
     cited: dict[str, Any] = {}
     for section, heading in QUESTIONS.items():
@@ -110,25 +120,25 @@ def as_text(it: Interpretation, width: int = 88, working: bool = True) -> str:
         lines.append(heading)
         if section == "process":
             labels = "; ".join(d.label() for d in it.disorders) or "none"
-            lines += _wrap(f"Disorders: {labels}", "  ", width)
+            lines += wrap_lines(f"Disorders: {labels}", "  ", width)
         if section == "detail":
             for key, label, unit, fmt in DERIVED_LABELS:
                 value = it.derived.get(key)
                 if value is not None:
                     lines.append(f"  {label:<44} {number_text(value, fmt):>8} {unit}")
         for f in it.in_section(section):
-            lines += _wrap(f"[{f.severity}] {f.code}: {f.text}", "  ", width)
+            lines += wrap_lines(f"[{f.severity}] {f.code}: {f.text}", "  ", width)
             if working:
-                lines += _wrap(f"working: {f.working}", "      ", width)
-            lines += _wrap("source: " + "; ".join(c.short() for c in f.citations), "      ", width)
+                lines += wrap_lines(f"working: {f.working}", "      ", width)
+            lines += wrap_lines("source: " + "; ".join(c.short() for c in f.citations), "      ", width)
             for c in f.citations:
                 cited[c.key] = c
     lines.append("")
     lines.append("Sources")
     for c in cited.values():
-        lines += _wrap(c.full(), "  - ", width, hang="    ")
+        lines += wrap_lines(c.full(), "  - ", width, hang="    ")
     lines.append("")
-    lines += _wrap(it.caution, "", width)
+    lines += wrap_lines(it.caution, "", width)
     return "\n".join(lines) + "\n"
 
 

@@ -431,6 +431,12 @@ class Results:
     def to_pandas(self):
         """``to_arrow()`` as a pandas DataFrame (categoricals for the dictionary columns);
         pandas is an optional dependency, imported here."""
+        try:
+            import pandas  # noqa: F401  (pyarrow's own message would not say what to do)
+        except ImportError:
+            raise ImportError("Results.to_pandas needs pandas (python -m pip install pandas); "
+                              "Results.to_arrow gives the same table with what acidbase "
+                              "installs") from None
         return self.to_arrow().to_pandas()
 
     def table(self) -> dict[str, np.ndarray]:

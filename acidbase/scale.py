@@ -22,6 +22,7 @@ code as ``acidbase batch``); this module only moves rows.  Dask is optional
 
 from __future__ import annotations
 
+import glob
 import os
 import zlib
 
@@ -84,6 +85,13 @@ def shard(path: str | os.PathLike[str], folder: str | os.PathLike[str], shards: 
                          f"{', '.join(src.headers)})")
     if INPUT_ROW in src.headers:
         raise ShardError(f"{path}: a column is already named {INPUT_ROW!r}")
+    # A folder read as one archive must hold one input's shards: fewer shards than
+    # last time would leave the old higher-numbered files beside the new ones.
+    old = sorted(glob.glob(os.path.join(glob.escape(os.fspath(folder)), "part-*.parquet")))
+    if old:
+        raise ShardError(f"{folder} holds shard files already ({os.path.basename(old[0])}"
+                         f"{f' and {len(old) - 1} more' if len(old) > 1 else ''}); give a new "
+                         "or empty folder, or remove them first")
     os.makedirs(folder, exist_ok=True)
     writers: dict[int, pq.ParquetWriter] = {}
     names: dict[int, str] = {}

@@ -659,3 +659,134 @@ def test_the_reports_list_is_the_same_whatever_the_profile(tmp_path, monkeypatch
     capsys.readouterr()
     assert listed[0] == listed[1]
     assert listed[0].count("SERIAL-DELTA-NA") >= 8 and listed[0].count("delta limit") >= 8
+
+
+# -- a header given twice ------------------------------------------------------------------
+
+@pytest.mark.parametrize("header, others", [("ph", "pco2,hco3"), ("pCO2 (kPa)", "ph,hco3"),
+                                            ("2744-1", "pco2,hco3")])
+def test_a_field_header_given_twice_stops_the_run_as_two_spellings_do(tmp_path, capsys, header,
+                                                                      others):
+    """``ph,ph`` is two columns for one field, as ``pH,PH`` is: the run stops and names
+    both, never reading the first and passing the second through unread (a row with its
+    value only in the second would be refused as "not given")."""
+    src = tmp_path / "twice.csv"
+    src.write_text(f"sample_id,{header},{others},{header}\nA,7.40,40,24,\nB,,40,24,7.30\n")
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, src, "-o", out, "--quiet")
+    assert rc == 2 and not out.exists()
+    assert f"columns {header!r} and '{header} (2)' both map to" in err
+
+
+def test_a_field_header_given_twice_in_parquet_stops_the_run(tmp_path, capsys):
+    src = tmp_path / "twice.parquet"
+    pq.write_table(pa.table([["7.40"], ["40"], ["24"], ["7.41"]],
+                            names=["ph", "pco2", "hco3", "ph"]), src)
+    rc, err = batch(capsys, src, "-o", tmp_path / "out.csv", "--quiet")
+    assert rc == 2 and "columns 'ph' and 'ph (2)' both map to ph" in err
+
+
+def test_a_passed_through_header_given_twice_is_renamed_and_kept(tmp_path, capsys):
+    src = tmp_path / "twice.csv"
+    src.write_text("sample_id,ph,pco2,hco3,note,note\nA,7.40,40,24,one,two\n")
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, src, "-o", out, "--quiet")
+    assert rc == 0 and "'note' -> 'note (2)'" in err
+    row = rows_of(out)[0]
+    assert (row["note"], row["note (2)"], row["status"]) == ("one", "two", "interpreted")
+
+
+# -- compressed files and tab-separated output ---------------------------------------------
+
+TWO_PANELS = "sample_id,ph,pco2,hco3\nA,7.40,40,24\nB,7.35,45,24.1\n"
+
+
+@pytest.mark.parametrize("name", ["out.csv.gz", "out.jsonl.bz2", "out.csv.zip", "out.CSV.XZ"])
+def test_an_output_named_as_compressed_is_refused_not_written_as_plain_text(
+        tmp_path, capsys, name):
+    """``-o out.csv.gz`` once wrote plain CSV under a gzip name (gunzip then fails)."""
+    src = tmp_path / "day.csv"
+    src.write_text(TWO_PANELS)
+    rc, err = batch(capsys, src, "-o", tmp_path / name, "--quiet")
+    assert rc == 2 and not (tmp_path / name).exists()
+    assert f"-o {tmp_path / name}: acidbase writes no compressed files" in err
+
+
+def test_a_compressed_input_is_named_as_such_with_the_way_to_read_it(tmp_path, capsys):
+    """A gzip file was reported as "byte 0x8b is not utf-8; give --encoding cp1252"."""
+    import gzip
+
+    src = tmp_path / "day.csv.gz"
+    src.write_bytes(gzip.compress(TWO_PANELS.encode()))
+    rc, err = batch(capsys, src, "-o", tmp_path / "out.csv", "--quiet")
+    assert rc == 2 and "gzip-compressed" in err and "gunzip -c" in err
+    assert "--encoding" not in err
+
+
+def test_a_tsv_output_is_separated_by_tabs(tmp_path, capsys):
+    src = tmp_path / "day.csv"
+    src.write_text(TWO_PANELS)
+    out = tmp_path / "out.tsv"
+    rc, _ = batch(capsys, src, "-o", out, "--quiet")
+    assert rc == 0
+    with out.open(newline="", encoding="utf-8") as f:
+        rows = list(csv.DictReader(f, delimiter="\t"))
+    assert [(r["row"], r["sample_id"], r["status"]) for r in rows] == [
+        ("1", "A", "interpreted"), ("2", "B", "interpreted")]
+
+
+def test_an_output_delimiter_given_wins_over_a_tsv_name(tmp_path, capsys):
+    src = tmp_path / "day.csv"
+    src.write_text(TWO_PANELS)
+    out = tmp_path / "out.tsv"
+    rc, _ = batch(capsys, src, "-o", out, "--quiet", "--output-delimiter", ";")
+    assert rc == 0 and out.read_text().startswith('"row";"sample_id"')
+
+
+@pytest.mark.parametrize("option", ["-o", "--summary", "--report"])
+def test_an_output_option_given_twice_with_two_files_is_refused(tmp_path, capsys, option):
+    """``-o a.csv ... -o b.csv`` wrote b.csv only, silently; the run now stops at once."""
+    src = tmp_path / "day.csv"
+    src.write_text(TWO_PANELS)
+    first, second = (tmp_path / f"{n}.md" for n in ("a", "b"))
+    with pytest.raises(SystemExit) as stop:
+        batch(capsys, src, option, first, option, second, "--quiet")
+    assert stop.value.code == 2 and "given twice" in capsys.readouterr().err
+    assert not first.exists() and not second.exists()
+
+
+def test_a_utf16_file_is_named_with_the_encoding_that_reads_it(tmp_path, capsys):
+    """A spreadsheet's "Unicode text" export (UTF-16 with its byte-order mark) was told
+    "give --encoding (for example cp1252)", which would read it as nonsense."""
+    src = tmp_path / "export.txt"
+    src.write_bytes("sample_id\tph\tpco2\thco3\r\nA\t7.40\t40\t24\r\n".encode("utf-16"))
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, src, "-o", out, "--quiet")
+    assert rc == 2 and "give --encoding utf-16" in err and "cp1252" not in err
+    rc, _ = batch(capsys, src, "-o", out, "--quiet", "--encoding", "utf-16")
+    assert rc == 0 and [r["status"] for r in rows_of(out)] == ["interpreted"]
+
+
+@pytest.mark.parametrize("option", ["-o", "--summary"])
+def test_the_site_file_is_never_an_output(tmp_path, capsys, option):
+    """``--config site.toml --summary site.toml`` overwrote the laboratory's site file
+    with the summary: an input, by any name, is never written (docs/batch.md)."""
+    src = tmp_path / "day.csv"
+    src.write_text(TWO_PANELS)
+    site = tmp_path / "site.toml"
+    site.write_text("[intervals.arterial]\n")
+    rc, err = batch(capsys, src, "--config", site, option, site, "--quiet")
+    assert rc == 2 and site.read_text() == "[intervals.arterial]\n"
+    assert "is the --config file" in err
+
+
+def test_the_site_files_mapping_file_is_never_an_output(tmp_path, capsys):
+    src = tmp_path / "day.csv"
+    src.write_text(TWO_PANELS)
+    mapping = tmp_path / "map.csv"
+    mapping.write_text("header,field\nPH,ph\n")
+    site = tmp_path / "site.toml"
+    site.write_text(f"[batch]\nmapping = \"{mapping}\"\n")
+    rc, err = batch(capsys, src, "--config", site, "-o", mapping, "--quiet")
+    assert rc == 2 and mapping.read_text() == "header,field\nPH,ph\n"
+    assert "is the --map file" in err

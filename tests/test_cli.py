@@ -6,6 +6,7 @@ Expected readings cite the published rule they follow.
 from __future__ import annotations
 
 import json
+import os
 import subprocess
 import sys
 from pathlib import Path
@@ -161,3 +162,97 @@ def test_a_unit_the_field_does_not_take_is_refused_by_check_as_panel_refuses_it(
     assert _refusal_lines(r.stderr) == acidbase.describe(info.value) == [
         "pco2_unit: unit 'bar' is not accepted for pCO2; use one of mm[Hg], kPa",
         "k_unit: unit 'mmol' is not accepted for K+; use one of mmol/L, mEq/L"]
+
+
+@pytest.mark.skipif(not Path("/dev/full").exists(), reason="no /dev/full here")
+@pytest.mark.parametrize("command", [["check", *BASE], ["check", "--json", *BASE], ["demo"]])
+def test_a_full_disk_on_standard_output_is_named_not_a_traceback(command):
+    """``acidbase check > /dev/full``: /dev/full refuses every write with ENOSPC, as a
+    full disk does; the command says so and exits 2, never a traceback or status 1."""
+    with open("/dev/full", "w") as full:
+        r = subprocess.run([sys.executable, "-m", "acidbase", *command], stdout=full,
+                           stderr=subprocess.PIPE, text=True, cwd=ROOT, timeout=120)
+    assert r.returncode == 2, r.stderr
+    assert "Traceback" not in r.stderr and "Exception ignored" not in r.stderr
+    assert r.stderr.startswith(f"acidbase {command[0]}: standard output: No space left on device")
+
+
+# An 80-column terminal: the width of a VT100 and of the terminals that followed it, and
+# the width the terminal app is built for (docs/tui.md). Common practice, no source.
+@pytest.mark.parametrize("command", [
+    ["demo"],
+    ["check", "--ph", "7.21", "--pco2", "5.3", "--pco2-unit", "kPa", "--hco3", "15.4", "--na",
+     "138", "--cl", "104", "--albumin", "32", "--sample-type", "arterial", "--hco3-source",
+     "analyser"],
+])
+def test_text_output_fits_an_80_column_terminal(command):
+    r = run(*command)
+    assert r.returncode == 0 and "does not replace" in r.stdout
+    wide = [line for line in r.stdout.splitlines() if len(line) > 80]
+    assert not wide, wide[:3]
+
+
+@pytest.mark.parametrize("command", [[], ["check"], ["demo"], ["batch"], ["shard"],
+                                     ["history"], ["tui"], ["config"], ["config", "show"]])
+def test_help_of_every_command_carries_the_caution_within_80_columns(command):
+    """Every surface carries the caution (COMMON safety rule), --help included; argparse
+    wraps to COLUMNS, but not a group's title, which once ran to 109 columns."""
+    r = subprocess.run([sys.executable, "-m", "acidbase", *command, "--help"],
+                       capture_output=True, text=True, cwd=ROOT, timeout=120,
+                       env={**os.environ, "COLUMNS": "80"})
+    assert r.returncode == 0, r.stderr
+    assert "does not replace" in " ".join(r.stdout.split())
+    wide = [line for line in r.stdout.splitlines() if len(line) > 80]
+    assert not wide, wide
+
+
+@pytest.mark.parametrize("again", [["--ph", "7.41"], ["--pco2-unit", "kPa", "--pco2-unit", "mm[Hg]"],
+                                   ["--sample-type", "venous", "--sample-type", "arterial"]])
+def test_a_panel_option_given_twice_with_two_values_is_refused(again):
+    """``... --ph 7.21 ... --ph 7.41`` (a recalled command with a value appended) read the
+    last pH silently; which was meant cannot be told, as with a JSON Lines key given
+    twice (docs/input.md), so the command refuses it, naming both."""
+    r = run("check", *BASE, *again)
+    assert r.returncode == 2 and "Traceback" not in r.stderr
+    option = again[-2]
+    assert f"argument {option}: given twice" in r.stderr
+
+
+def test_a_panel_option_given_twice_with_one_value_is_read():
+    r = run("check", *BASE, "--ph", "7.40")
+    assert r.returncode == 0, r.stderr
+
+
+@pytest.mark.parametrize("option, value, words", [
+    # UCUM "1" (FiO2 as a fraction) and "[pH]" are codes, not words: "21 1 ... 0.16 to 1 1"
+    ("--fio2", "21", "FiO2 (fio2) 21 is outside the accepted range 0.16 to 1 - FiO2 would "
+                     "be ordinary at this value in %"),
+    ("--ph", "8.9", "pH (ph) 8.9 is outside the accepted range 6 to 8\n"),
+])
+def test_a_refusal_leaves_out_units_that_are_no_unit(option, value, words):
+    args = dict(zip(BASE[::2], BASE[1::2])) | {option: value}
+    r = run("check", *[x for kv in args.items() for x in kv])
+    assert r.returncode == 2 and words in r.stderr, r.stderr
+
+
+@pytest.mark.parametrize("value, unit", [("5.3 kPa", "kPa"), ("40mmHg", "mm[Hg]"),
+                                         ("40 mm Hg", "mm[Hg]")])
+def test_a_unit_typed_after_the_number_is_refused_with_where_the_unit_goes(value, unit):
+    """``--pco2 "5.3 kPa"``: refused (a cell holds a number), with the way to state the
+    unit, not only "expected a number in mm[Hg]"."""
+    r = run("check", "--ph", "7.40", "--pco2", value, "--hco3", "24")
+    assert r.returncode == 2
+    assert f"the unit is not read from the value: state it on its own (pco2 unit {unit})" \
+        in r.stderr, r.stderr
+
+
+@pytest.mark.parametrize("stdin, stdout", [(subprocess.DEVNULL, subprocess.PIPE),
+                                           (None, subprocess.PIPE)])
+def test_the_app_without_a_terminal_says_so_instead_of_waiting_unseen(stdin, stdout):
+    """``acidbase tui > file`` or ``< /dev/null`` once drew into the file and waited for
+    keys that could not come (a stuck, invisible app)."""
+    r = subprocess.run([sys.executable, "-m", "acidbase", "tui"], stdin=stdin, stdout=stdout,
+                       stderr=subprocess.PIPE, text=True, cwd=ROOT, timeout=30)
+    assert r.returncode == 2
+    assert "acidbase: tui needs a terminal" in r.stderr and "acidbase check" in r.stderr
+    assert r.stdout == ""

@@ -13,6 +13,8 @@ from __future__ import annotations
 import csv
 import io
 import json
+import subprocess
+import sys
 from contextlib import redirect_stderr, redirect_stdout
 
 import numpy as np
@@ -316,3 +318,16 @@ def test_a_declared_decimal_comma_reads_alike_on_every_path(tmp_path):
         assert cli.main(["batch", str(path), "-o", str(out), "--quiet", "--decimal", ","]) == 0
     rows = [json.loads(x) for x in out.read_text(encoding="utf-8").splitlines()]
     assert [r["status"] == "refused" for r in rows] == [f == BAD for _, f in COMMA_CELLS]
+
+
+def test_a_very_long_cell_is_shown_shortened_with_its_length_on_every_path(tmp_path):
+    """A 10,000-character cell was echoed whole in its refusal (and in the batch file's
+    reason column); the message shows its start and says how long it is."""
+    cell = "7" * 10_000
+    lib_status, lib_message = library_reading(cell)
+    assert lib_status == "refused" and len(lib_message) < 400
+    assert "'7777777777" in lib_message and "(10000 characters)" in lib_message
+    r = subprocess.run([sys.executable, "-m", "acidbase", "check",
+                        *[f"--{k}={v}" for k, v in BASE.items()], f"--k={cell}"],
+                       capture_output=True, text=True, timeout=120)
+    assert r.returncode == 2 and lib_message in r.stderr

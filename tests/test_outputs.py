@@ -528,3 +528,23 @@ def test_a_temporary_name_that_is_the_input_is_never_opened(tmp_path, capsys, mo
     rc, _ = batch(capsys, src, "--format", "csv", "-o", tmp_path / "o.csv")
     assert rc == 0 and src.read_bytes() == (DATA / "mixed.csv").read_bytes()
     assert len((tmp_path / "o.csv").read_text().splitlines()) == 13
+
+
+def test_a_history_export_onto_its_own_store_is_refused(tmp_path, capsys, monkeypatch):
+    """``acidbase history h.db --patient P1 --export -o h.db`` wrote the CSV over the
+    store (every patient's stored panels lost); the store is an input of the export."""
+    from acidbase import history
+
+    monkeypatch.setenv(history.KEY_ENV, "site-key-for-tests-only-0123456789")
+    src = tmp_path / "day.csv"
+    src.write_text("patient_id,collected_at,ph,pco2,hco3\nP1,2026-12-01T08:00Z,7.40,40,24\n")
+    store = tmp_path / "h.db"
+    assert main(["batch", str(src), "-o", str(tmp_path / "out.csv"), "--history", str(store),
+                 "--quiet"]) == 0
+    before = store.read_bytes()
+    capsys.readouterr()
+    for target in (store, tmp_path / "." / "h.db"):
+        rc = main(["history", str(store), "--patient", "P1", "--export", "-o", str(target)])
+        assert rc == 2 and "is the input" in capsys.readouterr().err
+    assert store.read_bytes() == before
+    assert main(["history", str(store)]) == 0  # still a store

@@ -129,3 +129,23 @@ def test_shard_command_writes_the_files_and_refuses_a_bad_count(tmp_path, capsys
     assert sum(pq.read_metadata(f).num_rows for f in files) == 50
     assert main(["shard", str(src), str(tmp_path / "t"), "--shards", "0"]) == 2
     assert "shards" in capsys.readouterr().err
+
+
+def test_a_folder_holding_shards_already_is_refused_not_mixed(tmp_path, capsys):
+    """Sharding again into the same folder with fewer shards left the first run's
+    higher-numbered files beside the new ones: a folder read as one archive then held
+    two inputs' rows. The second run is refused and the first run's files are kept."""
+    from acidbase.cli import main
+
+    big, small = tmp_path / "big.csv", tmp_path / "small.csv"
+    _archive(big, n=200)
+    _archive(small, n=20)
+    folder = tmp_path / "s"
+    assert main(["shard", str(big), str(folder), "--shards", "8"]) == 0
+    before = {f.name: f.read_bytes() for f in folder.iterdir()}
+    capsys.readouterr()
+    assert main(["shard", str(small), str(folder), "--shards", "2"]) == 2
+    err = capsys.readouterr().err
+    assert "holds shard files already" in err and "part-00000.parquet" in err
+    assert {f.name: f.read_bytes() for f in folder.iterdir()} == before
+    assert main(["shard", str(small), str(tmp_path / "empty-and-new"), "--shards", "2"]) == 0

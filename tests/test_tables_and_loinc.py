@@ -362,3 +362,48 @@ def test_serial_checks_read_one_column_per_specimen_as_the_reading_does(tmp_path
     rc, rows, err = _batch(tmp_path, path)
     assert rc == 0, err
     assert "SERIAL-DELTA-PH" in rows[1]["serial_codes"]
+
+
+# -- the library given the wrong kind of thing ------------------------------------------
+
+@pytest.mark.parametrize("given", [{"ph": 7.40, "pco2": 40, "hco3": 24}, None, "7.40"])
+def test_interpret_given_no_panel_says_what_it_takes(given):
+    """``interpret({"ph": ...})``: a TypeError naming ``Panel``, not an AttributeError
+    about ``.columns`` from inside the library."""
+    with pytest.raises(TypeError, match=r"interpret takes an acidbase\.Panel.*Panel\.model_validate"):
+        acidbase.interpret(given)
+
+
+@pytest.mark.parametrize("given", [{"ph": [7.40], "pco2": [40], "hco3": [24]},
+                                   [{"ph": 7.40, "pco2": 40, "hco3": 24}], "day.csv"])
+def test_check_table_given_no_arrow_table_says_what_it_takes(given):
+    with pytest.raises(TypeError, match=r"check_table takes a pyarrow Table.*pyarrow\.table"):
+        acidbase.check_table(given)
+
+
+def test_results_to_pandas_without_pandas_says_how_to_get_it(monkeypatch):
+    """The README's install has no pandas: ``to_pandas`` says what it needs and that
+    ``to_arrow`` needs nothing more (was: pyarrow's bare "No module named 'pandas'")."""
+    import sys
+
+    results = acidbase.interpret_many({"ph": [7.40], "pco2": [40], "hco3": [24]})
+    monkeypatch.setitem(sys.modules, "pandas", None)  # import pandas now fails
+    with pytest.raises(ImportError, match=r"to_pandas needs pandas .*pip install pandas.*to_arrow"):
+        results.to_pandas()
+
+
+def test_a_unit_for_a_name_that_is_no_numeric_field_says_so():
+    """``units={"sodium": ...}`` said "sodium: unit 'mmol/L' is not accepted; use one of "
+    (an empty list): the name is what is wrong."""
+    with pytest.raises(ColumnError, match=r"units: 'sodium' is not a numeric field.*\bna\b"):
+        acidbase.interpret_many(BASE, units={"sodium": "mmol/L"})
+
+
+@pytest.mark.parametrize("settings", [{"reference_albumin": 40}, "default", 44])
+def test_settings_that_are_no_settings_say_what_they_should_be(settings):
+    """``interpret(panel, {"reference_albumin": 40})`` raised an AttributeError from inside."""
+    panel = acidbase.Panel(ph=7.40, pco2=40, hco3=24)
+    for call in (lambda: acidbase.interpret(panel, settings),
+                 lambda: acidbase.interpret_many(BASE, settings=settings)):
+        with pytest.raises(TypeError, match=r"settings must be an acidbase\.Settings"):
+            call()

@@ -8,6 +8,7 @@ used, so the app opens quickly.
 
 from __future__ import annotations
 
+import sys
 from datetime import datetime
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, ClassVar
@@ -31,6 +32,10 @@ def now() -> datetime:
     return datetime.now().astimezone().replace(microsecond=0)
 
 
+class NoTerminal(acidbase.AcidBaseError, RuntimeError):
+    """The app was started without a terminal to draw on and read keys from."""
+
+
 class AcidBaseApp(App[None]):
     """Holds the sitting, the units and the settings; the screens do the showing."""
 
@@ -43,6 +48,19 @@ class AcidBaseApp(App[None]):
         Binding("ctrl+q", "quit", "quit", tooltip="Quit (asks first while kept panels are "
                 "not saved).", id="quit", priority=True),
     ]
+
+    def run(self, *args: Any, **kwargs: Any) -> None:
+        """Run in the terminal; without one (``acidbase tui > file``, ``< /dev/null``) say
+        so, instead of drawing into a file and waiting for keys that cannot come.
+        (Tests drive the app with ``run_test``, which this does not touch.)"""
+        missing = [name for name, stream in (("input", sys.stdin), ("output", sys.stdout))
+                   if stream is None or not stream.isatty()]
+        if missing and not kwargs.get("headless"):  # headless (snapshots) draws nowhere
+            raise NoTerminal(
+                f"tui needs a terminal (standard {' and '.join(missing)} "
+                f"{'is' if len(missing) == 1 else 'are'} not one); acidbase check reads one "
+                "panel, acidbase batch a file")
+        return super().run(*args, **kwargs)
 
     def __init__(self, panel: acidbase.Panel | None = None, demo: bool = False,
                  settings: acidbase.Settings | None = None,

@@ -21,6 +21,7 @@ UNIT_LABELS: dict[str, str] = {
 #: Titles too long for the form's title column, shortened for the form only.
 SHORT_TITLES: dict[str, str] = {
     "bun": "BUN",
+    "ica": "Ionised Ca",  # "Ionised Ca2+" filled the column and ran into its value
     "pb": "Barometric",
     "temperature": "Temperature",
 }

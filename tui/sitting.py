@@ -219,7 +219,7 @@ def read_csv(path: str | os.PathLike[str]) -> tuple[list[Entry], list[str]]:
 
     try:
         src = source.open_source(path)
-        layout = headers.map_headers(src.headers)
+        layout = headers.map_headers(src.headers, repeats=src.repeats)
         decimal, notes = ".", []
         if src.format == "csv":
             numeric = [i for i, h in enumerate(src.headers)

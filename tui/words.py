@@ -7,6 +7,8 @@ words it.
 
 from __future__ import annotations
 
+import re
+
 from pydantic import ValidationError
 
 import acidbase
@@ -36,6 +38,10 @@ def f2_hint(name: str, value: object, unit: str) -> str:
     return f"press F2 for {unit_label(others[0]) or others[0]}" if others else ""
 
 
+#: A number written with a decimal comma, as typed in a field ("7,21").
+_COMMA = re.compile(r"[+-]?\d+,\d+")
+
+
 def refusal(error: dict, engine_line: str) -> str:
     """One refused value in the app's words: "refused: not in 8-200 mmHg; press F2 for kPa".
 
@@ -52,6 +58,10 @@ def refusal(error: dict, engine_line: str) -> str:
         return f"{line}; {hint}" if hint else line
     if kind == "float_parsing":
         return f"refused: {error.get('input')!r} is not a number"
+    typed = error.get("input")
+    if kind == "not_a_number" and isinstance(typed, str) and _COMMA.fullmatch(typed.strip()):
+        # The library's hint names --decimal, an option the form cannot take.
+        return f"refused: the form reads a decimal point; type {typed.strip().replace(',', '.')}"
     return f"refused: {on_screen(engine_line)}"
 
 

@@ -405,6 +405,11 @@ def check_table(table: pa.Table | pa.RecordBatch, settings: Settings | None = No
     """
     if isinstance(table, pa.RecordBatch):
         table = pa.Table.from_batches([table])
+    if not isinstance(table, pa.Table):
+        raise TypeError(
+            f"check_table takes a pyarrow Table or RecordBatch, not {type(table).__name__}: "
+            "pyarrow.table(columns) or pyarrow.Table.from_pylist(rows) makes one; for a "
+            "file, acidbase batch; for columns of panels, interpret_many")
     layout = map_headers(table.schema.names, mapping, units)
     out, meta = check_chunk(table, layout, decimal, settings, None, start,
                             tuple(derived), missing)

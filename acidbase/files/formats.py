@@ -53,12 +53,35 @@ class Dialect:
     """A quoted cell of the first rows holds a line break (slower parsing needed)."""
 
 
+#: The first bytes of compressed files, as their formats define them (RFC 1952 gzip;
+#: PKWARE APPNOTE zip; bzip2 "BZh"; xz "\xfd7zXZ\0"; RFC 8878 Zstandard; 7z), and a
+#: command that writes the text to standard output for ``acidbase batch -``.
+COMPRESSED_MAGIC: tuple[tuple[bytes, str, str], ...] = (
+    (b"\x1f\x8b", "gzip", "gunzip -c"), (b"PK\x03\x04", "zip", "unzip -p"),
+    (b"BZh", "bzip2", "bunzip2 -c"), (b"\xfd7zXZ\x00", "xz", "unxz -c"),
+    (b"\x28\xb5\x2f\xfd", "zstd", "zstd -dc"), (b"7z\xbc\xaf\x27\x1c", "7z", "7z e -so"))
+
+
+def _refuse_compressed(path: str | os.PathLike[str], raw: bytes) -> None:
+    for magic, kind, command in COMPRESSED_MAGIC:
+        # bzip2: "BZh", the block size 1-9, then the block magic (a header could say "BZh")
+        if raw.startswith(magic) and (kind != "bzip2" or raw[4:10] == b"1AY&SY"):
+            raise BatchInputError(
+                f"{path}: a {kind}-compressed file; decompress it first, for example "
+                f"{command} {path} | acidbase batch - ...")
+
+
 def _read_text_sample(path: str | os.PathLike[str], encoding: str, size: int = 1 << 16) -> str:
     with open(path, "rb") as f:
         raw = f.read(size)
     if not raw.strip():
         raise BatchInputError(f"{path}: the file is empty")
+    _refuse_compressed(path, raw)
     codec = "utf-8-sig" if encoding.lower().replace("_", "-") in ("utf-8", "utf8") else encoding
+    if codec == "utf-8-sig" and raw.startswith((b"\xff\xfe", b"\xfe\xff")):
+        # A spreadsheet's "Unicode text" export: its byte-order mark says UTF-16.
+        raise BatchInputError(f"{path}: the file is UTF-16 text (it starts with a UTF-16 "
+                              "byte-order mark); give --encoding utf-16")
     try:
         text = raw.decode(codec)
     except UnicodeDecodeError as e:

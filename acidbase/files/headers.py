@@ -121,7 +121,8 @@ def read_mapping(path: str | os.PathLike[str]) -> dict[str, tuple[str, str | Non
 
 def map_headers(headers: Sequence[str], mapping: Mapping[str, tuple[str, str | None]] | None = None,
                 units: Mapping[str, str] | None = None, strict: bool = False,
-                defaults: Mapping[str, str] | None = None) -> Layout:
+                defaults: Mapping[str, str] | None = None,
+                repeats: Mapping[str, str] | None = None) -> Layout:
     """Decide which input column feeds which field, and in which unit.
 
     Precedence for a column: the mapping file, then our field name, then a LOINC
@@ -130,6 +131,9 @@ def map_headers(headers: Sequence[str], mapping: Mapping[str, tuple[str, str | N
     site's default unit (``defaults``, the configuration file), the field's canonical
     unit.  Two columns for one field, a unit a field does not
     accept, or a missing required field stop the run (``BatchInputError``).
+    ``repeats`` (``Source.repeats``): a column renamed because its header came again
+    (``"ph (2)"`` -> ``"ph"``) is read as the header it repeats, so ``ph,ph`` stops the
+    run as ``pH,PH`` does instead of passing the second column through unread.
     """
     mapping = dict(mapping or {})
     given_units = {k.lower(): v for k, v in (units or {}).items()}
@@ -139,14 +143,15 @@ def map_headers(headers: Sequence[str], mapping: Mapping[str, tuple[str, str | N
     needs_unit: dict[str, str] = {}
     not_read: list[str] = []
     for h in headers:
-        base, suffix = split_unit(h)
+        given = (repeats or {}).get(h, h)  # the header as the file gives it
+        base, suffix = split_unit(given)
         fld = unit = None
         where = ""
-        if h in mapping:
-            fld, unit = mapping[h]
+        if given in mapping:
+            fld, unit = mapping[given]
             where = f"mapping file for column {h!r}"
-        elif h.strip().lower() in ALL_FIELDS:
-            fld, where = h.strip().lower(), f"header {h!r}"
+        elif given.strip().lower() in ALL_FIELDS:
+            fld, where = given.strip().lower(), f"header {h!r}"
         elif base.lower() in ALL_FIELDS and _is_unit_of(base.lower(), suffix):
             fld, unit, where = base.lower(), suffix, f"header {h!r}"
         elif (code_field := loinc.field_for(base)) is not None and (

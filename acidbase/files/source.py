@@ -58,6 +58,9 @@ class Source:
     total_rows: int | None = None
     notes: tuple[str, ...] = ()
     """What the reader changed and the user should know (duplicate headers renamed)."""
+    repeats: dict[str, str] = field(default_factory=dict)
+    """A header given more than once: our name for each repeat -> the header it repeats
+    (``"ph (2)"`` -> ``"ph"``), for ``map_headers``."""
     duplicates: dict[int, tuple[str, ...]] = field(default_factory=dict)
     """JSON Lines: row (from 0) -> keys its record gave more than once (filled as read)."""
     _progress: list[int] = field(default_factory=lambda: [0])
@@ -197,7 +200,7 @@ def _csv_error(text: str) -> str:
     m = re.search(r"Expected (\d+) columns, got (\d+): (.*)", text, re.S)
     if m:
         return (f"a line has {m[2]} fields where the header has {m[1]}: {m[3].strip()[:120]!r}; "
-                "nothing was written (fix the line, or check --delimiter)")
+                "fix the line, or check --delimiter")
     return text
 
 
@@ -305,7 +308,7 @@ def open_source(path: str | os.PathLike[str], fmt: str | None = None, delimiter:
         d = sniff_csv(p, delimiter, encoding)
         headers, notes = unique_headers(d.headers)
         src = Source(p, fmt, headers, d.delimiter, encoding=encoding, multiline=d.multiline,
-                     notes=notes)
+                     notes=notes, repeats=_repeats(d.headers, headers))
         src._sample = d.sample  # type: ignore[attr-defined]
     elif fmt == "parquet":
         try:
@@ -319,7 +322,8 @@ def open_source(path: str | os.PathLike[str], fmt: str | None = None, delimiter:
                 f"{p}: column(s) {', '.join(nested)} hold lists or records, not one value per "
                 "cell; write them as text or drop them before the run")
         headers, notes = unique_headers(schema.names)
-        src = Source(p, fmt, headers, total_rows=pf.metadata.num_rows, notes=notes)
+        src = Source(p, fmt, headers, total_rows=pf.metadata.num_rows, notes=notes,
+                     repeats=_repeats(schema.names, headers))
     else:
         src = Source(p, fmt, jsonl_headers(p))
     src.size = size
@@ -344,6 +348,11 @@ def unique_headers(headers: Sequence[str]) -> tuple[tuple[str, ...], tuple[str, 
             renamed.append(f"{h!r} -> {name!r}")
     notes = ("repeated column names renamed: " + ", ".join(renamed),) if renamed else ()
     return tuple(out), notes
+
+
+def _repeats(given: Sequence[str], ours: Sequence[str]) -> dict[str, str]:
+    """Our name -> the header as given, for each header ``unique_headers`` renamed."""
+    return {o: g for g, o in zip(given, ours) if o != g}
 
 
 def csv_sample(src: Source) -> tuple[tuple[str, ...], ...]:

@@ -248,9 +248,18 @@ def escape_formula(column: pa.Array | pa.ChunkedArray) -> pa.Array | pa.ChunkedA
     return column
 
 
+#: Names of compressed files: the writer writes none, and a plain file under such a
+#: name would fail whatever reads it next.
+COMPRESSED_SUFFIXES: tuple[str, ...] = (".gz", ".bz2", ".xz", ".zip", ".zst", ".7z")
+
+
 def output_format(path: str | None, given: str | None) -> str:
     """``csv``, ``jsonl`` or ``parquet``: as given, else from the name (CSV on standard
-    output)."""
+    output).  A name of a compressed file is refused (``COMPRESSED_SUFFIXES``)."""
+    if path and Path(path).suffix.lower() in COMPRESSED_SUFFIXES:
+        plain = Path(path).with_suffix("")
+        raise OutputError(f"-o {path}: acidbase writes no compressed files; write {plain} "
+                          "and compress it afterwards")
     if given:
         if given not in OUTPUT_FORMATS:
             raise OutputError(f"output format {given!r} is not one of "

@@ -660,8 +660,14 @@ def read_number(cell: object, decimal: str = ".", missing: Sequence[str] = ()) -
                       bool(p.bad[0]), p.cell(0))
 
 
-def number_hint(cell: object, decimal: str, unit: str) -> str:
-    """What to do about a refused number cell (part of its Problem)."""
+#: A number with a word after it that may be a unit ("5.3 kPa", "40mmHg", "40 mm Hg").
+_NUMBER_THEN_WORDS = re.compile(r"(?:[<>]=?)?\s*[+-]?[0-9.,]*[0-9]\s*(?P<after>[^\s0-9].*)")
+
+
+def number_hint(cell: object, decimal: str, unit: str, field: str = "",
+                units: Sequence[str] = ()) -> str:
+    """What to do about a refused number cell (part of its Problem); ``field`` and its
+    accepted ``units`` name the way to state a unit typed after the number."""
     if isinstance(cell, (bool, np.bool_)) or str(cell).strip().lower() in ("true", "false"):
         return "a yes/no value is not a measurement"
     text = str(cell).strip()
@@ -683,6 +689,13 @@ def number_hint(cell: object, decimal: str, unit: str) -> str:
                 "input declares one (--decimal ,)")
     if decimal == "," and "." in text:
         return "the decimal mark is declared as a comma; a point is not read"
+    after = _NUMBER_THEN_WORDS.fullmatch(text)
+    if after and units:
+        from ..units import normalise
+
+        stated = normalise(after["after"])
+        if stated in units:
+            return f"the unit is not read from the value: state it on its own ({field} unit {stated})"
     return (f"expected a number in {unit}, optionally with < > <= >= before it or a "
             f"laboratory flag ({' '.join(LAB_FLAGS)}) after it")
 

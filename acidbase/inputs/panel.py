@@ -255,7 +255,7 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None, *
             for i, t in zip(rows.tolist(), texts):
                 hint = hint_of.get(t)
                 if hint is None:
-                    hint = hint_of[t] = number_hint(t, decimal, code)
+                    hint = hint_of[t] = number_hint(t, decimal, code, spec.name, spec.units)
                 problems.setdefault(i, []).append(Problem(
                     spec.name, spec.title, t, code, kind="not_a_number", hint=hint))
         if bad.any():
@@ -439,7 +439,8 @@ def _read_validator(spec: FieldSpec):
         cell = read_number(value, _decimal(info))
         if cell.bad:
             _raise(Problem(spec.name, spec.title, cell.text, unit, kind="not_a_number",
-                           hint=number_hint(cell.text, _decimal(info), unit)))
+                           hint=number_hint(cell.text, _decimal(info), unit, spec.name,
+                                            spec.units)))
         if cell.comparator is not None and spec.required:
             _raise(censored_problem(spec, cell.text, unit))
         if cell.value is None and spec.required:

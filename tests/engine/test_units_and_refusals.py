@@ -154,8 +154,8 @@ def test_osmolal_gap_is_raised_just_above_10(interpret, measured, code):
     [
         # Analysers' measuring ranges, pH 6.0-8.0 at the widest (methods 11.2, value from
         # memory); HCO3- 1-80 (design, docs/methods.md "Accepted ranges").
-        ("ph", 8.1, "pH (ph) 8.1 [pH] is outside the accepted range 6 to 8 [pH]"),
-        ("ph", 5.9, "pH (ph) 5.9 [pH] is outside the accepted range 6 to 8 [pH]"),
+        ("ph", 8.1, "pH (ph) 8.1 is outside the accepted range 6 to 8"),
+        ("ph", 5.9, "pH (ph) 5.9 is outside the accepted range 6 to 8"),
         ("hco3", 81.0, "HCO3- (hco3) 81 mmol/L is outside the accepted range 1 to 80 mmol/L"),
         ("hco3", 0.5, "HCO3- (hco3) 0.5 mmol/L is outside the accepted range 1 to 80 mmol/L"),
     ],

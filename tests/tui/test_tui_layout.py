@@ -4,11 +4,12 @@ and the form's titles on one line."""
 from __future__ import annotations
 
 import pytest
+from rich.cells import cell_len
 from textual.geometry import Region
 from tui_helpers import PANELS, key_in, processes_line, replace_value
 
 from tui.app import make_app
-from tui.widgets.form import RowTitle
+from tui.widgets.form import RowTitle, marked
 from tui.widgets.reading import FindingList, VerdictLine, verdict
 
 SIZES = [(80, 24), (100, 30), (132, 40)]
@@ -82,3 +83,17 @@ async def test_every_title_of_the_form_is_on_one_line(size):
         for title in app.screen.query(RowTitle):
             if title.display and title.parent.display:
                 assert title.region.height <= 1, title.title
+
+
+@pytest.mark.parametrize("size", SIZES)
+async def test_every_title_of_the_form_ends_before_its_value(size):
+    """A blank column between a row's title and its value, focused or not: "Ionised Ca2+"
+    ran into "1.1" ("Ionised Ca2+1.1", a charge of 2+1.1 at a glance)."""
+    app = make_app()
+    async with app.run_test(size=size) as pilot:
+        await pilot.pause()
+        for title in app.screen.query(RowTitle):
+            if title.display and title.parent.display:
+                for focused in (False, True):
+                    drawn = marked(title.title, focused)
+                    assert cell_len(drawn) < title.region.width, drawn

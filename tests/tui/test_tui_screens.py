@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import pytest
-from tui_helpers import PANELS, key_in
+from tui_helpers import PANELS, key_in, replace_value
 
 import acidbase
 from tui.app import make_app
@@ -127,3 +127,36 @@ async def test_f1_on_the_help_closes_it_as_its_key_line_says():
         await pilot.press("f1")
         await pilot.pause()
         assert type(app.screen).__name__ == "EntryScreen"
+
+
+@pytest.mark.parametrize("size", [(80, 24), (120, 40)])
+async def test_the_plane_of_a_stale_reading_says_stale_where_it_is_seen(size):
+    """The form holds a refused value: the plane draws the last accepted panel, and says
+    so on screen. "(STALE: ...)" once ended an 85-column title and was cut at 80."""
+    from tui.widgets.chrome import TitleLine
+
+    app = make_app()
+    async with app.run_test(size=size) as pilot:
+        await key_in(pilot, PANELS["metabolic acidosis"])
+        await replace_value(pilot, "ph", "99")
+        await pilot.press("f4")
+        await pilot.pause()
+        title = app.screen.query_one(TitleLine)
+        shown = str(title.render())[: title.content_region.width]
+        assert "STALE" in shown, shown
+        legend = str(app.screen.query_one("#legend").render())
+        assert "STALE" in legend and "mm[Hg]" not in legend + shown
+
+
+async def test_the_plane_of_a_fresh_reading_names_its_axes_in_the_apps_units():
+    from tui.widgets.chrome import TitleLine
+
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in(pilot, PANELS["metabolic acidosis"])
+        await pilot.press("f4")
+        await pilot.pause()
+        title = app.screen.query_one(TitleLine)
+        shown = str(title.render())[: title.content_region.width]
+        assert shown.endswith("HCO3- mmol/L (up), pCO2 mmHg (across) - @ is the panel"), shown
+        assert "STALE" not in shown + str(app.screen.query_one("#legend").render())

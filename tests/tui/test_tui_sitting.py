@@ -423,3 +423,14 @@ def test_pregnancy_is_written_and_read_back(tmp_path):
     assert row["pregnancy"] == "third_trimester"
     entries, _ = read_csv(tmp_path / "f.csv")
     assert entries[0].panel().pregnancy == "third_trimester"
+
+
+def test_a_series_file_with_a_field_header_twice_is_refused_not_half_read(tmp_path):
+    """``ph,ph``: the app's loader stops as ``acidbase batch`` does, never keeping the
+    first pH and dropping the second column unread."""
+    from tui.sitting import SittingFileError
+
+    path = tmp_path / "f.csv"
+    path.write_text("ph,pco2,hco3,ph\n7.40,40,24,\n,40,24,7.30\n")
+    with pytest.raises(SittingFileError, match="'ph' and 'ph \\(2\\)' both map to ph"):
+        read_csv(path)

@@ -12,9 +12,9 @@ from textual.widgets import Static
 import acidbase
 from acidbase.fields import BY_NAME
 
-from ..labels import on_screen
+from ..labels import on_screen, unit_label
 from ..widgets.chrome import CautionBar, KeyLine, TitleLine
-from ..widgets.plane import PlaneView, legend_lines
+from ..widgets.plane import POINT, PlaneView, legend_lines
 
 
 def point_of(it: acidbase.Interpretation | None) -> tuple[float, float] | None:
@@ -38,11 +38,14 @@ class PlaneScreen(Screen[None]):
         self.stale = stale
 
     def compose(self) -> ComposeResult:
-        what = "no panel read yet" if self.point is None else "@ is the panel"
-        if self.stale:
-            what += " (STALE: the last accepted reading)"
-        yield TitleLine(f"acidbase - plane - HCO3- {BY_NAME['hco3'].unit} (up) against pCO2 "
-                        f"{BY_NAME['pco2'].unit} (across) - {what}")
+        axes = (f"HCO3- {unit_label(BY_NAME['hco3'].unit)} (up), pCO2 "
+                f"{unit_label(BY_NAME['pco2'].unit)} (across)")
+        if self.stale:  # first, so that an 80-column title never cuts it off
+            title = f"acidbase - plane - STALE: @ is the last accepted panel - {axes}"
+        else:
+            what = "no panel read yet" if self.point is None else "@ is the panel"
+            title = f"acidbase - plane - {axes} - {what}"
+        yield TitleLine(title)
         yield PlaneView(self.point, id="plane")
         yield Static("", id="legend", markup=False)
         yield CautionBar()
@@ -56,6 +59,9 @@ class PlaneScreen(Screen[None]):
 
     def show_legend(self) -> None:
         legend = self.query_one(PlaneView).drawing().legend
+        if self.stale:
+            legend = [(m, f"STALE, the last accepted {w.removeprefix('this ')}" if m == POINT
+                       else w) for m, w in legend]
         width = self.query_one("#legend", Static).content_region.width or 78
         self.query_one("#legend", Static).update(
             on_screen("\n".join(legend_lines(legend, width))))
