@@ -505,6 +505,29 @@ def escaped_columns(headers: tuple[str, ...]) -> list[str]:
         "reason", "serial_detail", "qualifiers", "lab_flags"]
 
 
+class _InOrder:
+    """Calls run one at a time on a thread of their own, in the order given, with at
+    most ``ahead`` waiting: ``put`` hands one on (waiting for the oldest when that many
+    are in hand), ``drain`` waits for all; an error on the thread is raised here."""
+
+    def __init__(self, name: str, ahead: int = 1) -> None:
+        self.pool = ThreadPoolExecutor(1, thread_name_prefix=name)
+        self.ahead = ahead
+        self.pending: deque[Future] = deque()
+
+    def put(self, fn, *args) -> None:
+        self.pending.append(self.pool.submit(fn, *args))
+        while len(self.pending) > self.ahead:
+            self.pending.popleft().result()
+
+    def drain(self) -> None:
+        while self.pending:
+            self.pending.popleft().result()
+
+    def close(self) -> None:
+        self.pool.shutdown(wait=True, cancel_futures=True)
+
+
 def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.SerialChecker,
                  progress: Progress, store=None) -> None:
     col_of = layout.column_of
@@ -544,30 +567,22 @@ def _serial_pass(src: Source, layout: Layout, decimal: str, checker: serial.Seri
     # to be read and two to be added: memory stays bounded.
     rows = 0
     reading: deque[Future] = deque()
-    adding: deque[Future] = deque()
     pool = ThreadPoolExecutor(WORKERS, thread_name_prefix="acidbase-serial-read")
-    adder = ThreadPoolExecutor(1, thread_name_prefix="acidbase-serial-add")
-
-    def hand_on() -> None:
-        adding.append(adder.submit(checker.add, *reading.popleft().result()))
-        while len(adding) > 1:
-            adding.popleft().result()
-
+    adder = _InOrder("acidbase-serial-add")
     try:
         for table in src.chunks(wanted):
             rows += table.num_rows
             reading.append(pool.submit(read, table))
             del table
             while len(reading) > WORKERS:
-                hand_on()
+                adder.put(checker.add, *reading.popleft().result())
             progress.update(rows)
         while reading:
-            hand_on()
-        while adding:
-            adding.popleft().result()
+            adder.put(checker.add, *reading.popleft().result())
+        adder.drain()
     finally:
         pool.shutdown(wait=True, cancel_futures=True)
-        adder.shutdown(wait=True, cancel_futures=True)
+        adder.close()
     if store is not None:
         history.feed_earlier(store, checker)
     checker.finish(workers=WORKERS)
@@ -801,9 +816,7 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
                              + ", ".join(f"{h!r} -> {names[h]!r}" for h in clash))
         tally.merge(part)
         done += rows
-        writing.append(out.submit(put, encoded, done))
-        while len(writing) > 1:
-            writing.popleft().result()
+        out.put(put, encoded, done)
         progress.update(done)
 
     def put(encoded, rows_after: int) -> None:
@@ -819,9 +832,8 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
     # cost: docs/performance.md) off this one.  Besides the chunk being read, at most
     # WORKERS + 1 chunks are in hand and two being written: memory stays bounded.
     pool = ThreadPoolExecutor(WORKERS, thread_name_prefix="acidbase-batch")
-    out = ThreadPoolExecutor(1, thread_name_prefix="acidbase-write")
+    out = _InOrder("acidbase-write")
     pending: deque[Future] = deque()
-    writing: deque[Future] = deque()
     try:
         start = 0
         for table in src.chunks():
@@ -831,13 +843,12 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
                 finish(pending.popleft().result())
         while pending:
             finish(pending.popleft().result())
-        while writing:
-            writing.popleft().result()
+        out.drain()
         if done == 0:
             raise BatchInputError(f"{label}: no rows")
     finally:
         pool.shutdown(wait=True, cancel_futures=True)
-        out.shutdown(wait=True, cancel_futures=True)
+        out.close()
         progress.end()
     writer.finish()
     if store is not None:  # only a run whose every row was written is stored
