@@ -16,8 +16,11 @@ Measures, on synthetic panels (bench/synthetic.py, seeded):
    ``--repeats`` runs, peak resident memory of the child;
 3. the row-by-row baseline: what a plain script does, the csv module in and out and
    a handful of rules per row in Python (``plain_script``), on ``--baseline-n`` rows;
-4. peak memory of ``acidbase batch`` (serial checks on) on a ``--big-n``-row file;
-5. cold start: ``acidbase check`` on one panel and ``acidbase --help`` against
+4. the I/O floor: in a fresh process, the CSV read by pyarrow on one thread while the
+   other writes the lean output's bytes into a new file (no checks, no formatting);
+   the most any program writing that output could do here, against the plain script;
+5. peak memory of ``acidbase batch`` (serial checks on) on a ``--big-n``-row file;
+6. cold start: ``acidbase check`` on one panel and ``acidbase --help`` against
    ``python -c "import numpy"``, ``--start-runs`` fresh processes each, alternating,
    medians.
 
@@ -192,6 +195,54 @@ def plain_script(path: str, out: str, n: int) -> dict[str, float]:
     return {"rows_per_s": rows / t, "seconds": t, "rows": rows}
 
 
+def io_floor_child(src: str, data: str, dest: str, report: str) -> None:
+    """The I/O floor, in a fresh process: read ``src`` with pyarrow's streaming CSV
+    reader (as ``acidbase batch`` reads it) on one thread while the other writes the
+    bytes of ``data`` (a finished run's output, read into memory first) into a new
+    file ``dest``, 1 MiB at a time.  No checks, no formatting: the least time any
+    program that reads this file and writes that output can take on this machine
+    with two threads.  Imports count, as they do in the batch runs."""
+    with open(data, "rb") as f:
+        payload = f.read()
+    t0 = time.perf_counter()
+    import threading
+
+    import pyarrow.csv as pa_csv
+
+    def read() -> None:
+        with pa_csv.open_csv(src) as reader:
+            for _ in reader:
+                pass
+
+    reading = threading.Thread(target=read)
+    reading.start()
+    view = memoryview(payload)
+    with open(dest, "wb") as f:
+        f.writelines(view[at:at + (1 << 20)] for at in range(0, len(view), 1 << 20))
+    reading.join()
+    seconds = time.perf_counter() - t0
+    with open(report, "w") as f:
+        json.dump({"seconds": seconds}, f)
+
+
+def io_floor(src: str, data: str, dest: str, n: int, repeats: int) -> dict[str, float]:
+    """Median of ``repeats`` runs of ``io_floor_child``, each a new file."""
+    times = []
+    for _ in range(repeats):
+        if os.path.exists(dest):
+            os.remove(dest)
+        with tempfile.NamedTemporaryFile(suffix=".json", delete=False) as f:
+            report = f.name
+        subprocess.run([sys.executable, __file__, "--io-floor-child", src, data, dest, report],
+                       check=True, env=child_env())
+        with open(report) as f:
+            times.append(json.load(f)["seconds"])
+        os.remove(report)
+    os.remove(dest)
+    t = statistics.median(times)
+    return {"rows_per_s": n / t, "seconds": t}
+
+
 def cold_start(runs: int) -> dict[str, float]:
     """Median wall time of fresh processes, alternating the commands run by run."""
     py = sys.executable
@@ -302,7 +353,11 @@ def main() -> None:
     ap.add_argument("--workdir", default=None)
     ap.add_argument("--json", dest="json_out")
     ap.add_argument("--profile", action="store_true", help="print the kernel's hot spots")
+    ap.add_argument("--io-floor-child", nargs=4, help=argparse.SUPPRESS)
     a = ap.parse_args()
+    if a.io_floor_child:
+        io_floor_child(*a.io_floor_child)
+        return
     from acidbase import csvtext
 
     compile_tree()
@@ -328,6 +383,11 @@ def main() -> None:
         results["plain_script"] = plain_script(src, out, a.baseline_n)
         for key, _, extra, env in RUNS:
             results[key] = end_to_end(src, out, a.n, a.repeats, extra, env)
+            if key == "csv_no_serial":  # its output: the bytes the floor writes
+                lean = os.path.join(tmp, "lean.csv")
+                os.replace(out, lean)
+        results["io_floor"] = io_floor(src, lean, out, a.n, a.repeats)
+        os.remove(lean)
         results["plain_script_again"] = plain_script(src, out, a.baseline_n)
         results["stages_seconds"] = stages(src)
         if a.big_n:
@@ -362,6 +422,10 @@ def main() -> None:
         lines.append(f"  {label:<44} {r['rows_per_s']:>10,.0f} rows/s  peak {r['peak_mb']:5.0f} MB"
                      f"  {r['bytes_per_row'] or 0:5.0f} B/row  {r['rows_per_s'] / base:5.2f}x "
                      f"plain script")
+    r = results["io_floor"]
+    lines.append(f"  {'I/O floor (read, write lean bytes, no work)':<44} "
+                 f"{r['rows_per_s']:>10,.0f} rows/s{'':28}{r['rows_per_s'] / base:5.2f}x "
+                 f"plain script")
     if a.big_n:
         r = results["big_serial"]
         lines.append(f"  {a.big_n:,}-row file ({results['big_file_mb']:.0f} MB), serial on, lean: "
