@@ -595,6 +595,12 @@ def _audit(args: argparse.Namespace) -> dict[str, object]:
     return {k: getattr(args, k) for k in names if hasattr(args, k)}
 
 
+#: glibc heap settings of a batch run (``_lean_allocators``).
+_KEEP_FREED = 64 << 20
+_GROW_BY = 16 << 20
+_MAP_ABOVE = 32 << 20
+
+
 def _lean_allocators() -> None:
     """Allocator settings that keep the peak memory of a run down.
 
@@ -604,12 +610,25 @@ def _lean_allocators() -> None:
     * pyarrow's jemalloc pool returns freed memory sooner than its default pool
       (5M-row file, serial checks: 304 MB peak with the default, 257 MB with
       jemalloc), unless ``ARROW_DEFAULT_MEMORY_POOL`` chooses a pool.
+    * glibc hands a freed block back to the system as soon as 128 KiB are free at the
+      top of a heap, and maps every block of 128 KiB or more on its own, so a run of
+      chunks took fresh pages from the system for each chunk's arrays (each one a page
+      fault, zeroed by the kernel; costly on a virtual machine): the heap keeps up to
+      ``_KEEP_FREED`` at its top, grows ``_GROW_BY`` at a time, and blocks below
+      ``_MAP_ABOVE`` come from the heap (mallopt(3): M_TRIM_THRESHOLD, M_TOP_PAD,
+      M_MMAP_THRESHOLD).  Not where the user has set glibc's malloc in the
+      environment (``MALLOC_*_``, ``GLIBC_TUNABLES``).  Measured in docs/performance.md
+      ("Session 9").
     Both at the same speed within the noise; each a no-op where unavailable.  The
     batch command owns its process, so the settings are its own.
     """
     try:
         libc = ctypes.CDLL("libc.so.6")
         libc.mallopt(ctypes.c_int(-8), ctypes.c_int(2))  # M_ARENA_MAX
+        if not any(k.startswith("MALLOC_") or k == "GLIBC_TUNABLES" for k in os.environ):
+            libc.mallopt(ctypes.c_int(-1), ctypes.c_int(_KEEP_FREED))  # M_TRIM_THRESHOLD
+            libc.mallopt(ctypes.c_int(-2), ctypes.c_int(_GROW_BY))  # M_TOP_PAD
+            libc.mallopt(ctypes.c_int(-3), ctypes.c_int(_MAP_ABOVE))  # M_MMAP_THRESHOLD
     except (OSError, AttributeError):
         pass
     if "ARROW_DEFAULT_MEMORY_POOL" not in os.environ:

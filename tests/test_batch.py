@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import csv
 import json
+import os
 import re
 import shutil
 from pathlib import Path
@@ -790,3 +791,40 @@ def test_the_site_files_mapping_file_is_never_an_output(tmp_path, capsys):
     rc, err = batch(capsys, src, "--config", site, "-o", mapping, "--quiet")
     assert rc == 2 and mapping.read_text() == "header,field\nPH,ph\n"
     assert "is the --map file" in err
+
+
+class _FakeLibc:
+    """Records mallopt(3) calls instead of making them."""
+
+    def __init__(self):
+        self.calls = []
+
+    def mallopt(self, param, value):
+        self.calls.append((param.value, value.value))
+        return 1
+
+
+@pytest.mark.parametrize("user_setting", [None, "MALLOC_TRIM_THRESHOLD_", "GLIBC_TUNABLES"])
+def test_a_batch_run_keeps_freed_heap_memory_unless_the_user_set_glibc_malloc(
+        monkeypatch, user_setting):
+    """The batch's glibc settings (batch._lean_allocators): two arenas always; the heap
+    kept for reuse (M_TRIM_THRESHOLD -1, M_TOP_PAD -2, M_MMAP_THRESHOLD -3: glibc's
+    malloc.h) only where the user's environment does not set glibc's malloc itself."""
+    libc = _FakeLibc()
+    monkeypatch.setattr(batch_module.ctypes, "CDLL", lambda name: libc)
+    monkeypatch.setenv("ARROW_DEFAULT_MEMORY_POOL", "system")  # (leave this process's pool)
+    for name in [k for k in os.environ if k.startswith("MALLOC_")]:
+        monkeypatch.delenv(name)
+    monkeypatch.delenv("GLIBC_TUNABLES", raising=False)
+    if user_setting:
+        monkeypatch.setenv(user_setting, "glibc.malloc.trim_threshold=0"
+                           if user_setting == "GLIBC_TUNABLES" else "0")
+    batch_module._lean_allocators()
+    params = dict(libc.calls)
+    assert params[-8] == 2  # M_ARENA_MAX
+    heap = {-1: batch_module._KEEP_FREED, -2: batch_module._GROW_BY,
+            -3: batch_module._MAP_ABOVE}
+    if user_setting:
+        assert not heap.keys() & params.keys()
+    else:
+        assert {k: params.get(k) for k in heap} == heap
