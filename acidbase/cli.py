@@ -361,7 +361,9 @@ def cmd_shard(args: argparse.Namespace) -> int:
     try:
         files = shard(args.input, args.folder, args.shards, patient_column=args.patient_column)
     except OSError as e:
-        print(f"acidbase shard: could not run: {e}", file=sys.stderr)
+        where = f"{e.filename}: " if e.filename is not None else ""
+        print(f"acidbase shard: could not run: {where}{e.strerror or e}; no shard file "
+              "written", file=sys.stderr)
         return EXIT_REFUSED
     print(f"{len(files)} shard files in {args.folder}", file=sys.stderr)
     return EXIT_OK
