@@ -44,12 +44,25 @@ def emit(text: str) -> None:
     """Write a command's result to standard output; a refusal of the write is raised as
     ``StdoutRefused``, so it is never blamed on, or confused with, any other file."""
     try:
-        sys.stdout.write(text)
+        if text:  # (a write of "" is one of no bytes, which /dev/full refuses too)
+            sys.stdout.write(text)
         sys.stdout.flush()
     except BrokenPipeError:
         raise
     except OSError as e:
         raise StdoutRefused(e) from e
+
+
+class Parser(argparse.ArgumentParser):
+    """argparse's parser, except that help and ``--version`` go to standard output through
+    ``emit``: argparse drops a refused write (``--help > /dev/full`` ended with 0), and
+    its last flush came at the interpreter's exit, where a failure is not reported."""
+
+    def _print_message(self, message: str, file=None) -> None:
+        if message and (file is None or file is sys.stdout) and file is not None:
+            emit(message)
+        else:
+            super()._print_message(message, file)
 
 
 def _help(text: str) -> str:
@@ -414,7 +427,7 @@ def build_parser(command: str | None = None) -> argparse.ArgumentParser:
     """The whole command line; with ``command``, only that command's options are added
     (the others are listed with their one-line help, as ``--help`` shows them), so a
     run builds, and imports for, the options it can use and no other."""
-    parser = argparse.ArgumentParser(
+    parser = Parser(
         prog="acidbase",
         description=_help("Check and interpret blood-gas and electrolyte panels. " + CAUTION))
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
@@ -517,6 +530,8 @@ def main(argv: Sequence[str] | None = None) -> int:
 
         silence_stdout()
         return EXIT_CLOSED_PIPE
+    except StdoutRefused as refused:  # --help or --version into a full disk
+        return _stdout_refused(refused, command_word(argv))
     if sys.stdout is None and args.command in ("check", "demo", "tui"):
         print(f"acidbase {args.command}: standard output is closed; nothing to write to",
               file=sys.stderr)
@@ -535,14 +550,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         print(f"acidbase: {e}", file=sys.stderr)
         return EXIT_REFUSED
     except StdoutRefused as refused:
-        # Say so, and let the interpreter's last flush raise nothing more.
-        from .files.outputs import silence_stdout
-
-        silence_stdout()
-        e = refused.error
-        print(f"acidbase {args.command}: standard output: {e.strerror or e}; what was "
-              "written is incomplete", file=sys.stderr)
-        return EXIT_REFUSED
+        return _stdout_refused(refused, args.command)
     except OSError as e:  # a file the command read or wrote
         where = f"{e.filename}: " if e.filename is not None else ""
         print(f"acidbase {args.command}: could not run: {where}{e.strerror or e}",
@@ -550,6 +558,18 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_REFUSED
     except KeyboardInterrupt:
         return 130
+
+
+def _stdout_refused(refused: StdoutRefused, command: str) -> int:
+    """Say that standard output refused a write, on one line, and let the interpreter's
+    last flush raise nothing more."""
+    from .files.outputs import silence_stdout
+
+    silence_stdout()
+    e = refused.error
+    print(f"acidbase{' ' + command if command else ''}: standard output: {e.strerror or e}; "
+          "what was written is incomplete", file=sys.stderr)
+    return EXIT_REFUSED
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -136,3 +136,17 @@ def test_an_export_to_dash_goes_to_standard_output(tmp_path, capsys, monkeypatch
     assert main(["history", str(store), "--patient", "P-1", "--export", "-o", "-"]) == 0
     assert capsys.readouterr().out.startswith("patient_id,collected_at,sample_id,")
     assert not (tmp_path / "-").exists()
+
+
+@pytest.mark.skipif(not Path("/dev/full").exists(), reason="no /dev/full here")
+def test_an_export_to_a_full_standard_output_names_standard_output(tmp_path, capsys):
+    """An export larger than the output buffer into a full disk: the failed write is
+    standard output's, not the store's (it said "store.db: No space left on device")."""
+    store = _store(tmp_path, capsys, n=300)
+    with open("/dev/full", "w") as full:
+        r = subprocess.run([sys.executable, "-m", "acidbase", "history", str(store),
+                            "--patient", "P-1", "--export"], stdout=full, stderr=subprocess.PIPE,
+                           text=True, timeout=120, env={**os.environ, history.KEY_ENV: KEY})
+    assert r.returncode == 2
+    assert r.stderr == ("acidbase history: standard output: No space left on device; what "
+                        "was written is incomplete\n")
