@@ -175,7 +175,8 @@ def configure_batch_parser(p: argparse.ArgumentParser) -> None:
                         "then add this run's (patient ids stored as keyed hashes; the site key "
                         "in ACIDBASE_HISTORY_KEY)")
     s.add_argument("--history-retention-days", type=float, default=None, metavar="DAYS",
-                   help="prune stored panels collected longer ago (default 30)")
+                   help="prune stored panels collected longer ago (default 30; needs a "
+                        "history store)")
     o = p.add_argument_group("output")
     o.add_argument("--output-format", choices=(*FORMATS, "fhir"),
                    help="default: from the name; fhir: one FHIR R4 Bundle per panel, one per "

@@ -150,3 +150,23 @@ def test_an_export_to_a_full_standard_output_names_standard_output(tmp_path, cap
     assert r.returncode == 2
     assert r.stderr == ("acidbase history: standard output: No space left on device; what "
                         "was written is incomplete\n")
+
+
+def test_a_retention_without_a_history_store_is_refused(tmp_path, capsys):
+    """``--history-retention-days`` with no store to prune was dropped unseen (exit 0);
+    refused as an option that cannot apply, with nothing written. With a store from the
+    site file it applies."""
+    src = tmp_path / "day.csv"
+    src.write_text("sample_id,patient_id,collected_at,ph,pco2,hco3\n"
+                   f"S1,P-1,{dt.datetime.now(dt.UTC):%Y-%m-%dT%H:%M:%SZ},7.40,40,24\n")
+    out = tmp_path / "out.csv"
+    assert main(["batch", str(src), "-o", str(out), "--history-retention-days", "5",
+                 "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert "--history-retention-days needs a history store" in err and "Traceback" not in err
+    assert not out.exists()
+    site = tmp_path / "site.toml"
+    site.write_text('[history]\npath = "store.db"\n')
+    assert main(["batch", str(src), "-o", str(out), "--history-retention-days", "5",
+                 "--config", str(site), "--quiet"]) == 0
+    assert (tmp_path / "store.db").exists() and out.exists()
