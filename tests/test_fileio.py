@@ -357,3 +357,33 @@ def test_number_words_are_refused_by_the_library_too():
     assert r.refused.tolist() == [True, False]
     assert "'nan' is not a number" in r.reasons[0]
     assert "'inf' is not a number" in r.reasons[0]
+
+
+# -- a ragged CSV line ----------------------------------------------------------------------
+
+@pytest.mark.parametrize("text, line, got, header", [
+    # (file text, the file line of the ragged record (header = 1), its fields, the header's)
+    ("ph,pco2,hco3\n7.40,40,24\n7.30,40,24,5\n", 3, 4, 3),
+    ("ph,pco2,hco3\n7.30,40,24,1,2\n7.40,40,24\n", 2, 5, 3),
+    # a quoted cell over two lines and a blank line before it: file lines, not records
+    ('ph,pco2,hco3,note\n7.40,40,24,"first\nsecond"\n\n7.30,40\n', 5, 2, 4),
+    ("\ufeffph;pco2;hco3\n7,40;40;24\n7,30;40;24;9\n", 3, 4, 3),
+])
+def test_a_ragged_csv_line_is_named_by_its_file_line_and_counts(tmp_path, capsys, text, line,
+                                                                 got, header):
+    """The run stops at a line with more (or fewer) cells than the header; the message
+    names the file line as an editor numbers it (the header is line 1), so the line can
+    be found and fixed (it said only "a line has 4 fields")."""
+    from acidbase.cli import main
+
+    src = tmp_path / "ragged.csv"
+    src.write_bytes(text.encode("utf-8"))
+    with pytest.raises(BatchInputError) as info:
+        for _ in fileio.open_source(src).chunks():
+            pass
+    assert f"line {line} has {got} fields where the header (line 1) has {header}:" in str(info.value)
+    assert main(["batch", str(src), "-o", str(tmp_path / "out.csv"), "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert f"ragged.csv: line {line} has {got} fields where the header (line 1) has {header}" \
+        in err and "Traceback" not in err
+    assert not (tmp_path / "out.csv").exists()

@@ -116,7 +116,7 @@ class Source:
                 if not multiline and ("Expected" in text or "straddling" in text):
                     multiline = True  # a quoted line break the sample did not show
                     continue
-                raise BatchInputError(f"{self.path}: {_csv_error(text)}") from None
+                raise BatchInputError(f"{self.path}: {_csv_error(text, self)}") from None
 
     def _csv_pass(self, cols: list[str], on_progress, block: int, multiline: bool,
                   skip: int) -> Iterator[pa.RecordBatch]:
@@ -195,13 +195,37 @@ class Source:
             f.close()
 
 
-def _csv_error(text: str) -> str:
+def _csv_error(text: str, src: Source | None = None) -> str:
     text = text.replace("CSV parse error: ", "")
     m = re.search(r"Expected (\d+) columns, got (\d+): (.*)", text, re.S)
     if m:
-        return (f"a line has {m[2]} fields where the header has {m[1]}: {m[3].strip()[:120]!r}; "
-                "fix the line, or check --delimiter")
+        line = _ragged_line(src, int(m[1]), int(m[2])) if src is not None else None
+        where = f"line {line} " if line is not None else "a line "
+        return (f"{where}has {m[2]} fields where the header (line 1) has {m[1]}: "
+                f"{m[3].strip()[:120]!r}; fix the line, or check --delimiter")
     return text
+
+
+def _ragged_line(src: Source, expected: int, got: int) -> int | None:
+    """The file line (from 1, the header's) where the first record of ``got`` fields
+    begins, read again with Python's CSV reader (the file's delimiter, quoted line
+    breaks read as the Arrow reader read them when it stopped): the Arrow reader's
+    message gives the record, not its line.  None when it cannot be told."""
+    import csv
+
+    encoding = "utf-8-sig" if src.encoding.lower().replace("_", "-") in ("utf-8", "utf8") \
+        else src.encoding
+    try:
+        with open(src.path, encoding=encoding, errors="replace", newline="") as f:
+            reader = csv.reader(f, delimiter=src.delimiter)
+            start = 1
+            for record in reader:
+                if record and len(record) == got != expected and start > 1:
+                    return start
+                start = reader.line_num + 1
+    except (OSError, csv.Error, LookupError):
+        return None
+    return None
 
 
 class _Record(dict):
