@@ -200,9 +200,10 @@ def _csv_error(text: str, src: Source | None = None) -> str:
     m = re.search(r"Expected (\d+) columns, got (\d+): (.*)", text, re.S)
     if m:
         line = _ragged_line(src, int(m[1]), int(m[2])) if src is not None else None
-        where = f"line {line} " if line is not None else "a line "
-        return (f"{where}has {m[2]} fields where the header (line 1) has {m[1]}: "
-                f"{m[3].strip()[:120]!r}; fix the line, or check --delimiter")
+        where = (f"line {line} has {m[2]} fields where the header has {m[1]} (line 1 is "
+                 "the header)" if line is not None
+                 else f"a line has {m[2]} fields where the header has {m[1]}")
+        return f"{where}: {m[3].strip()[:120]!r}; fix the line, or check --delimiter"
     return text
 
 
