@@ -387,3 +387,31 @@ def test_a_ragged_csv_line_is_named_by_its_file_line_and_counts(tmp_path, capsys
     err = capsys.readouterr().err
     assert f"ragged.csv: {said}" in err and "Traceback" not in err
     assert not (tmp_path / "out.csv").exists()
+
+
+# -- JSON Lines numbers beyond the floating-point range ----------------------------------
+
+@pytest.mark.parametrize("written", ["1e999", "-1E+400", "NaN", "-Infinity"])
+def test_a_json_number_beyond_range_is_refused_as_written(tmp_path, capsys, written):
+    """``"pco2": 1e999`` (a valid JSON number; Python's reader makes it infinity) was
+    refused as ``'inf'``, a value not in the file: the refusal and the output's copy of
+    the cell show it as written, as for the same cell in a CSV file."""
+    from acidbase.cli import main
+
+    src = tmp_path / "p.jsonl"
+    src.write_text(f'{{"ph": 7.40, "pco2": {written}, "hco3": 24}}\n'
+                   '{"ph": 7.40, "pco2": 40, "hco3": 24}\n')
+    out = tmp_path / "out.csv"
+    assert main(["batch", str(src), "-o", str(out), "--quiet"]) == 0
+    capsys.readouterr()
+    rows = list(csv.DictReader(out.open()))
+    assert rows[0]["status"] == "refused" and rows[1]["status"] == "interpreted"
+    assert rows[0]["reason"].startswith(f"pCO2 (pco2) {written!r} is not a number")
+    assert rows[0]["pco2"].lstrip("'") == written
+    assert "inf" not in rows[0]["reason"].lower().replace("infinity", "")
+    # The same cell in a CSV file is refused with the same words.
+    same = tmp_path / "p.csv"
+    same.write_text(f"ph,pco2,hco3\n7.40,{written},24\n")
+    assert main(["batch", str(same), "-o", str(tmp_path / "same.csv"), "--quiet"]) == 0
+    capsys.readouterr()
+    assert next(csv.DictReader((tmp_path / "same.csv").open()))["reason"] == rows[0]["reason"]

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import io
 import json
+import math
 import os
 import re
 from collections.abc import Callable, Iterator, Sequence
@@ -247,9 +248,21 @@ def _pairs(pairs: list[tuple[str, object]]) -> _Record:
     return rec
 
 
+class _Written(str):
+    """A JSON number kept as the text the file wrote: one beyond the floating-point range
+    (``1e999``, which Python reads as infinity) or a ``NaN``/``Infinity`` token, so a
+    refusal shows the value as written (it showed ``'inf'``)."""
+
+
+def _json_float(text: str) -> float | _Written:
+    value = float(text)
+    return value if math.isfinite(value) else _Written(text)
+
+
 def _json_record(line: str, lineno: int, path: str) -> dict:
     try:
-        rec = json.loads(line, object_pairs_hook=_pairs)
+        rec = json.loads(line, object_pairs_hook=_pairs, parse_float=_json_float,
+                         parse_constant=_Written)
     except json.JSONDecodeError as e:
         raise BatchInputError(f"{path} line {lineno}: not JSON ({e.msg})") from None
     if not isinstance(rec, dict):
