@@ -20,6 +20,7 @@ from .commands import command_word
 from .config import ENV_VAR, OBSERVATION_STATUSES
 from .config import resolve as resolve_site
 from .errors import AcidBaseError
+from .files.outputs import StdoutRefused, emit
 from .fields import BY_NAME, NUMERIC, TEXT_FIELDS
 from .inputs.panel import unit_refusal
 from .inputs.vocab import CHOICES
@@ -30,27 +31,6 @@ from .results import CAUTION
 EXIT_OK, EXIT_REFUSED = 0, 2
 #: Standard output closed by its reader: 128 + SIGPIPE, as a shell reports it.
 EXIT_CLOSED_PIPE = 141
-
-
-class StdoutRefused(Exception):
-    """Standard output refused a write (``> /dev/full``, a disk filled); ``error`` is why."""
-
-    def __init__(self, error: OSError) -> None:
-        super().__init__(error)
-        self.error = error
-
-
-def emit(text: str) -> None:
-    """Write a command's result to standard output; a refusal of the write is raised as
-    ``StdoutRefused``, so it is never blamed on, or confused with, any other file."""
-    try:
-        if text:  # (a write of "" is one of no bytes, which /dev/full refuses too)
-            sys.stdout.write(text)
-        sys.stdout.flush()
-    except BrokenPipeError:
-        raise
-    except OSError as e:
-        raise StdoutRefused(e) from e
 
 
 class Parser(argparse.ArgumentParser):

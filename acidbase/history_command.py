@@ -11,9 +11,8 @@ import sys
 from typing import Any
 
 from . import history
-from .cli import emit
 from .errors import AcidBaseError
-from .files.outputs import OutputSet, Staged, check_paths
+from .files.outputs import OutputSet, Staged, check_paths, emit
 from .results import CAUTION
 
 EXIT_OK, EXIT_CANNOT_RUN = 0, 2
