@@ -72,6 +72,7 @@ class Problem:
         "urea_and_bun": "urea and urea nitrogen both given",
         "specimen_conflict": "specimens disagree (LOINC-coded columns or sample type)",
         "duplicate_key": "a key given twice in one record",
+        "unknown_field": "not a field of the panel",
     }
 
     @property
@@ -102,6 +103,8 @@ class Problem:
                     f"{_num(lo)} to {_num(hi)}{unit})")
         elif self.kind == "not_a_choice":
             text = f"{head} {_shown(self.value)} is not one of {', '.join(self.choices)}"
+        elif self.kind == "unknown_field":
+            text = f"{_shown(self.field)} is not a field of the panel"
         elif self.kind == "urea_and_bun":
             text = "give urea or urea nitrogen (bun), not both"
         else:

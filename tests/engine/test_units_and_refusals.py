@@ -219,13 +219,44 @@ def test_every_problem_is_collected_in_one_error():
         ({"ph": "seven"}, "not_a_number", ("ph",)),
         ({"ph": float("nan")}, "missing", ("ph",)),
         ({"pco2": float("inf")}, "not_a_number", ("pco2",)),
-        ({"colour": "red"}, "extra_forbidden", ("colour",)),
+        ({"colour": "red"}, "unknown_field", ("colour",)),
         ({"sample_type": "arterialised"}, "not_a_choice", ("sample_type",)),
     ],
 )
 def test_malformed_input_is_refused_by_pydantic(changes, type_, loc):
     e = only(refusal(**changes))
     assert (e["type"], e["loc"]) == (type_, loc)
+
+
+@pytest.mark.parametrize(("key", "use"), [
+    ("sodium", "na (Na+)"), ("chloride", "cl (Cl-)"), ("potassium", "k (K+)"),
+    ("bicarbonate", "hco3 (HCO3-)"), ("Na", "na (Na+)"), ("hemoglobin", "hb (Haemoglobin)"),
+    ("sodium_unit", "na_unit (the unit of Na+)"), ("Sample Type", "sample_type"),
+])
+def test_an_unknown_key_that_names_a_field_in_other_words_is_refused_with_that_field(key, use):
+    """``Panel(sodium=140)`` gave pydantic's "Extra inputs are not permitted". The key is
+    refused, never read as Na+ (so E3 without its na stays without one), and the
+    message names the key and the field to use; the other problems are kept."""
+    panel = {k: v for k, v in E3.items() if k not in ("na", "cl")}
+    with pytest.raises(pydantic.ValidationError) as info:
+        acidbase.Panel(**panel, **{key: 140}, pco2_unit="bar")
+    errors = info.value.errors(include_url=False)
+    assert [(e["type"], e["loc"]) for e in errors] == [
+        ("unit_not_accepted", ("pco2_unit",)), ("unknown_field", (key,))]
+    assert acidbase.describe(info.value)[1] == (
+        f"{key!r} is not a field of the panel - use {use}")
+    assert f"{key!r} is not a field of the panel - use {use}" in str(info.value)
+
+
+def test_an_unknown_key_in_no_words_of_a_field_is_refused_with_the_fields():
+    """No guess: "calcium" is not ionised calcium, "colour" is nothing; the message lists
+    the fields there are."""
+    for key in ("calcium", "colour"):
+        e = only(refusal(**{key: 1.2}))
+        assert e["type"] == "unknown_field"
+        assert e["msg"].startswith(f"{key!r} is not a field of the panel - the fields are ph, "
+                                   "pco2, hco3, na, cl, k,")
+        assert e["msg"].endswith("and <field>_unit for a unit")
 
 
 def test_missing_required_field_is_refused():
