@@ -21,12 +21,14 @@ class UnitError(ValueError, AcidBaseError):
     field: str
     unit: str
     accepted: tuple[str, ...]
+    hint: str = ""
+    """What to do, where more can be said (a unit of the quantity not taken: [degF])."""
 
     def __str__(self) -> str:
         return (
             f"{self.field}: unit {self.unit!r} is not accepted; "
             f"use one of {', '.join(self.accepted)}"
-        )
+        ) + (f" - {self.hint}" if self.hint else "")
 
 
 class BatchInputError(ValueError, AcidBaseError):

@@ -55,6 +55,16 @@ def _hint(spec: FieldSpec, values: np.ndarray, unit: str) -> np.ndarray:
             f"{spec.title} would be ordinary at this value in {other}: if that is the unit, "
             f"state it ({spec.name} unit {other}), the value was not converted"
         )
+    for other, (name, to_canonical) in _units.NOT_TAKEN.get(spec.kind, {}).items():
+        if other == given:
+            continue
+        with np.errstate(over="ignore", invalid="ignore"):
+            there = to_canonical(values)
+            fits = (there >= lo) & (there <= hi) & (hints == "")
+        hints[fits] = (
+            f"{spec.title} would be ordinary at this value in {other} ({name}), which "
+            f"acidbase does not take: give it in {spec.unit}; the value was not converted"
+        )
     return hints
 
 
@@ -315,11 +325,13 @@ def censored_problem(spec: FieldSpec, cell: object, unit: str) -> Problem:
 
 #: A unit its field does not accept, as ``Panel`` and ``acidbase check`` say it (the
 #: line is ``<field>_unit: `` and this sentence; ``describe_fields``, ``unit_refusal``).
-UNIT_NOT_ACCEPTED = "unit '{unit}' is not accepted for {title}; use one of {accepted}"
+UNIT_NOT_ACCEPTED = "unit '{unit}' is not accepted for {title}; use one of {accepted}{hint}"
 
 
 def _unit_context(spec: FieldSpec, unit: object) -> dict[str, str]:
-    return {"unit": unit, "title": spec.title, "accepted": ", ".join(spec.units)}
+    hint = _units.not_taken_hint(spec.kind, unit)
+    return {"unit": unit, "title": spec.title, "accepted": ", ".join(spec.units),
+            "hint": f" - {hint}" if hint else ""}
 
 
 def unit_refusal(spec: FieldSpec, unit: object) -> str | None:
