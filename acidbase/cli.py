@@ -39,7 +39,7 @@ class Parser(argparse.ArgumentParser):
     its last flush came at the interpreter's exit, where a failure is not reported."""
 
     def _print_message(self, message: str, file=None) -> None:
-        if message and (file is None or file is sys.stdout) and file is not None:
+        if message and file is not None and file is sys.stdout:
             emit(message)
         else:
             super()._print_message(message, file)
