@@ -106,7 +106,9 @@ class Problem:
         elif self.kind == "not_a_choice":
             text = f"{head} {_shown(self.value)} is not one of {', '.join(self.choices)}"
         elif self.kind == "unknown_field":
-            text = f"{_shown(self.field)} is not a field of the panel"
+            # "<key>: ..." as pydantic's other lines name a field that is not numeric
+            key = self.field if len(self.field) <= SHOWN_CHARACTERS else _shown(self.field)
+            text = f"{key}: not a field of the panel"
         elif self.kind == "urea_and_bun":
             text = "give urea or urea nitrogen (bun), not both"
         else:

@@ -243,9 +243,8 @@ def test_an_unknown_key_that_names_a_field_in_other_words_is_refused_with_that_f
     errors = info.value.errors(include_url=False)
     assert [(e["type"], e["loc"]) for e in errors] == [
         ("unit_not_accepted", ("pco2_unit",)), ("unknown_field", (key,))]
-    assert acidbase.describe(info.value)[1] == (
-        f"{key!r} is not a field of the panel - use {use}")
-    assert f"{key!r} is not a field of the panel - use {use}" in str(info.value)
+    assert acidbase.describe(info.value)[1] == f"{key}: not a field of the panel - use {use}"
+    assert f"{key}: not a field of the panel - use {use}" in str(info.value)
 
 
 def test_an_unknown_key_in_no_words_of_a_field_is_refused_with_the_fields():
@@ -254,7 +253,7 @@ def test_an_unknown_key_in_no_words_of_a_field_is_refused_with_the_fields():
     for key in ("calcium", "colour"):
         e = only(refusal(**{key: 1.2}))
         assert e["type"] == "unknown_field"
-        assert e["msg"].startswith(f"{key!r} is not a field of the panel - the fields are ph, "
+        assert e["msg"].startswith(f"{key}: not a field of the panel - the fields are ph, "
                                    "pco2, hco3, na, cl, k,")
         assert e["msg"].endswith("and <field>_unit for a unit")
 
