@@ -695,7 +695,13 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
     _absent_imports_fail_fast()
     started = audit.now()
     units = _pairs(args.unit, "unit")
+    retention_option = args.history_retention_days
     site = config.resolve(args, deltas=_delta_overrides(args.delta))
+    if retention_option is not None and site.history_path is None:
+        # A retention with no store to prune would be dropped unseen (as --unit for a
+        # column that is not there).
+        raise BatchInputError("--history-retention-days needs a history store: give "
+                              "--history PATH (or a [history] path in the site file)")
     # The history store and its retention: the options, else the site file's [history].
     args.history, args.history_retention_days = site.history_path, site.history_retention_days
     delimiter = _DELIMS.get((args.delimiter or "").lower(), args.delimiter)

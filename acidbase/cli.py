@@ -20,6 +20,7 @@ from .commands import command_word
 from .config import ENV_VAR, OBSERVATION_STATUSES
 from .config import resolve as resolve_site
 from .errors import AcidBaseError
+from .files.outputs import StdoutRefused, emit
 from .fields import BY_NAME, NUMERIC, TEXT_FIELDS
 from .inputs.panel import unit_refusal
 from .inputs.vocab import CHOICES
@@ -32,24 +33,16 @@ EXIT_OK, EXIT_REFUSED = 0, 2
 EXIT_CLOSED_PIPE = 141
 
 
-class StdoutRefused(Exception):
-    """Standard output refused a write (``> /dev/full``, a disk filled); ``error`` is why."""
+class Parser(argparse.ArgumentParser):
+    """argparse's parser, except that help and ``--version`` go to standard output through
+    ``emit``: argparse drops a refused write (``--help > /dev/full`` ended with 0), and
+    its last flush came at the interpreter's exit, where a failure is not reported."""
 
-    def __init__(self, error: OSError) -> None:
-        super().__init__(error)
-        self.error = error
-
-
-def emit(text: str) -> None:
-    """Write a command's result to standard output; a refusal of the write is raised as
-    ``StdoutRefused``, so it is never blamed on, or confused with, any other file."""
-    try:
-        sys.stdout.write(text)
-        sys.stdout.flush()
-    except BrokenPipeError:
-        raise
-    except OSError as e:
-        raise StdoutRefused(e) from e
+    def _print_message(self, message: str, file=None) -> None:
+        if message and file is not None and file is sys.stdout:
+            emit(message)
+        else:
+            super()._print_message(message, file)
 
 
 def _help(text: str) -> str:
@@ -162,7 +155,8 @@ def configure_batch_parser(p: argparse.ArgumentParser) -> None:
                         "then add this run's (patient ids stored as keyed hashes; the site key "
                         "in ACIDBASE_HISTORY_KEY)")
     s.add_argument("--history-retention-days", type=float, default=None, metavar="DAYS",
-                   help="prune stored panels collected longer ago (default 30)")
+                   help="prune stored panels collected longer ago (default 30; needs a "
+                        "history store)")
     o = p.add_argument_group("output")
     o.add_argument("--output-format", choices=(*FORMATS, "fhir"),
                    help="default: from the name; fhir: one FHIR R4 Bundle per panel, one per "
@@ -361,7 +355,9 @@ def cmd_shard(args: argparse.Namespace) -> int:
     try:
         files = shard(args.input, args.folder, args.shards, patient_column=args.patient_column)
     except OSError as e:
-        print(f"acidbase shard: could not run: {e}", file=sys.stderr)
+        where = f"{e.filename}: " if e.filename is not None else ""
+        print(f"acidbase shard: could not run: {where}{e.strerror or e}; no shard file "
+              "written", file=sys.stderr)
         return EXIT_REFUSED
     print(f"{len(files)} shard files in {args.folder}", file=sys.stderr)
     return EXIT_OK
@@ -412,7 +408,7 @@ def build_parser(command: str | None = None) -> argparse.ArgumentParser:
     """The whole command line; with ``command``, only that command's options are added
     (the others are listed with their one-line help, as ``--help`` shows them), so a
     run builds, and imports for, the options it can use and no other."""
-    parser = argparse.ArgumentParser(
+    parser = Parser(
         prog="acidbase",
         description=_help("Check and interpret blood-gas and electrolyte panels. " + CAUTION))
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
@@ -515,6 +511,8 @@ def main(argv: Sequence[str] | None = None) -> int:
 
         silence_stdout()
         return EXIT_CLOSED_PIPE
+    except StdoutRefused as refused:  # --help or --version into a full disk
+        return _stdout_refused(refused, command_word(argv))
     if sys.stdout is None and args.command in ("check", "demo", "tui"):
         print(f"acidbase {args.command}: standard output is closed; nothing to write to",
               file=sys.stderr)
@@ -533,14 +531,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         print(f"acidbase: {e}", file=sys.stderr)
         return EXIT_REFUSED
     except StdoutRefused as refused:
-        # Say so, and let the interpreter's last flush raise nothing more.
-        from .files.outputs import silence_stdout
-
-        silence_stdout()
-        e = refused.error
-        print(f"acidbase {args.command}: standard output: {e.strerror or e}; what was "
-              "written is incomplete", file=sys.stderr)
-        return EXIT_REFUSED
+        return _stdout_refused(refused, args.command)
     except OSError as e:  # a file the command read or wrote
         where = f"{e.filename}: " if e.filename is not None else ""
         print(f"acidbase {args.command}: could not run: {where}{e.strerror or e}",
@@ -548,6 +539,18 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_REFUSED
     except KeyboardInterrupt:
         return 130
+
+
+def _stdout_refused(refused: StdoutRefused, command: str) -> int:
+    """Say that standard output refused a write, on one line, and let the interpreter's
+    last flush raise nothing more."""
+    from .files.outputs import silence_stdout
+
+    silence_stdout()
+    e = refused.error
+    print(f"acidbase{' ' + command if command else ''}: standard output: {e.strerror or e}; "
+          "what was written is incomplete", file=sys.stderr)
+    return EXIT_REFUSED
 
 
 if __name__ == "__main__":  # pragma: no cover

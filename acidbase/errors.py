@@ -21,12 +21,14 @@ class UnitError(ValueError, AcidBaseError):
     field: str
     unit: str
     accepted: tuple[str, ...]
+    hint: str = ""
+    """What to do, where more can be said (a unit of the quantity not taken: [degF])."""
 
     def __str__(self) -> str:
         return (
             f"{self.field}: unit {self.unit!r} is not accepted; "
             f"use one of {', '.join(self.accepted)}"
-        )
+        ) + (f" - {self.hint}" if self.hint else "")
 
 
 class BatchInputError(ValueError, AcidBaseError):
@@ -72,6 +74,7 @@ class Problem:
         "urea_and_bun": "urea and urea nitrogen both given",
         "specimen_conflict": "specimens disagree (LOINC-coded columns or sample type)",
         "duplicate_key": "a key given twice in one record",
+        "unknown_field": "not a field of the panel",
     }
 
     @property
@@ -102,6 +105,10 @@ class Problem:
                     f"{_num(lo)} to {_num(hi)}{unit})")
         elif self.kind == "not_a_choice":
             text = f"{head} {_shown(self.value)} is not one of {', '.join(self.choices)}"
+        elif self.kind == "unknown_field":
+            # "<key>: ..." as pydantic's other lines name a field that is not numeric
+            key = self.field if len(self.field) <= SHOWN_CHARACTERS else _shown(self.field)
+            text = f"{key}: not a field of the panel"
         elif self.kind == "urea_and_bun":
             text = "give urea or urea nitrogen (bun), not both"
         else:

@@ -22,6 +22,7 @@ anything but column matching.
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 from . import units as _units
@@ -43,6 +44,9 @@ class FieldSpec:
     required: bool = False
     loinc: tuple[str, ...] = ()
     help: str = ""
+    also: tuple[str, ...] = ()
+    """Plain names of this same quantity ("sodium" for ``na``).  Never read as the
+    field: a key spelled so is refused, with a hint naming the field (``suggest``)."""
 
     @property
     def unit(self) -> str:
@@ -66,13 +70,13 @@ NUMERIC: tuple[FieldSpec, ...] = (
     FieldSpec("hco3", "HCO3-", "electrolyte", (1.0, 80.0), (4.0, 50.0), True,
               ("1960-4", "14627-4", "1959-6", "1963-8", "2028-9"),
               "Bicarbonate: the analyser's calculated value, or a chemistry total CO2 "
-              "(say which with hco3_source)."),
+              "(say which with hco3_source).", also=("bicarbonate", "bicarb")),
     FieldSpec("na", "Na+", "electrolyte", (80.0, 200.0), (110.0, 170.0), False,
-              ("2951-2", "2947-0", "32717-1", "39791-9", "39792-7"), "Sodium."),
+              ("2951-2", "2947-0", "32717-1", "39791-9", "39792-7"), "Sodium.", also=("sodium",)),
     FieldSpec("cl", "Cl-", "electrolyte", (50.0, 160.0), (70.0, 135.0), False,
-              ("2075-0", "41650-3", "2069-3", "41649-5", "51590-8"), "Chloride."),
+              ("2075-0", "41650-3", "2069-3", "41649-5", "51590-8"), "Chloride.", also=("chloride",)),
     FieldSpec("k", "K+", "electrolyte", (0.5, 15.0), (1.5, 8.0), False,
-              ("2823-3", "6298-4", "32713-0", "39789-3", "39790-1"), "Potassium."),
+              ("2823-3", "6298-4", "32713-0", "39789-3", "39790-1"), "Potassium.", also=("potassium",)),
     FieldSpec("albumin", "Albumin", "albumin", (8.0, 80.0), (10.0, 60.0), False,
               ("1751-7",), "Serum or plasma albumin."),
     FieldSpec("lactate", "Lactate", "electrolyte", (0.0, 40.0), (0.0, 25.0), False,
@@ -82,17 +86,21 @@ NUMERIC: tuple[FieldSpec, ...] = (
     FieldSpec("urea", "Urea", "urea", (0.3, 100.0), (0.5, 80.0), False,
               ("22664-7", "3091-6"), "Urea (not urea nitrogen; for urea nitrogen use bun)."),
     FieldSpec("bun", "Urea nitrogen (BUN)", "bun", (0.8, 280.0), (1.4, 224.0), False,
-              ("3094-0", "14937-7", "6299-2"), "Urea nitrogen (BUN); give urea or BUN, not both."),
+              ("3094-0", "14937-7", "6299-2"), "Urea nitrogen (BUN); give urea or BUN, not both.",
+              also=("urea_nitrogen", "blood_urea_nitrogen")),
     FieldSpec("osmolality", "Osmolality", "osmolality", (150.0, 500.0), (230.0, 400.0), False,
               ("2692-2",), "Measured serum osmolality (freezing point)."),
     FieldSpec("ica", "Ionised Ca2+", "calcium", (0.2, 4.0), (0.5, 2.5), False,
-              ("1994-3", "34581-9", "41645-3", "41644-6", "41646-1", "1995-0"), "Ionised calcium."),
+              ("1994-3", "34581-9", "41645-3", "41644-6", "41646-1", "1995-0"), "Ionised calcium.",
+              also=("ionised_calcium", "ionized_calcium")),
     FieldSpec("mg", "Mg2+", "magnesium", (0.1, 5.0), (0.3, 3.0), False,
-              ("2601-3", "19123-9"), "Magnesium (total), used as an approximation in the apparent SID."),
+              ("2601-3", "19123-9"), "Magnesium (total), used as an approximation in the apparent SID.",
+              also=("magnesium",)),
     FieldSpec("phosphate", "Phosphate", "phosphate", (0.1, 6.0), (0.2, 4.0), False,
               ("14879-1", "2777-1"), "Inorganic phosphate."),
     FieldSpec("hb", "Haemoglobin", "haemoglobin", (2.0, 25.0), (4.0, 22.0), False,
-              ("718-7", "30313-1", "30350-3", "30352-9"), "Total haemoglobin."),
+              ("718-7", "30313-1", "30350-3", "30352-9"), "Total haemoglobin.",
+              also=("hemoglobin", "hgb")),
     FieldSpec("po2", "pO2", "pressure", (5.0, 800.0), (20.0, 700.0), False,
               ("2703-7", "2705-2", "11556-8", "2704-5"), "Partial pressure of oxygen at 37 degC."),
     FieldSpec("fio2", "FiO2", "fraction", (0.16, 1.0), (0.21, 1.0), False,
@@ -100,7 +108,7 @@ NUMERIC: tuple[FieldSpec, ...] = (
     FieldSpec("pb", "Barometric pressure", "pressure", (350.0, 800.0), (450.0, 800.0), False,
               (), "Barometric pressure; 760 mm[Hg] is assumed when not given."),
     FieldSpec("temperature", "Patient temperature", "temperature", (25.0, 45.0), (30.0, 42.0),
-              False, ("8310-5",), "Patient temperature in degC."),
+              False, ("8310-5",), "Patient temperature in degC.", also=("temp",)),
     FieldSpec("age", "Age", "age", (0.0, 120.0), (0.0, 120.0), False, ("30525-0",),
               "Age in years."),
 )
@@ -124,6 +132,40 @@ PREGNANCY_STATES: tuple[str, ...] = CHOICE_BY_NAME["pregnancy"].words
 
 #: Text fields carried with a panel; they do not enter the chemistry.
 TEXT_FIELDS: tuple[str, ...] = ("sample_id", "patient_id", "collected_at")
+
+
+def _squash(text: str) -> str:
+    """A spelling reduced to its letters and digits, lower case ("Na+" -> "na")."""
+    return "".join(ch for ch in text.lower() if ch.isascii() and ch.isalnum())
+
+
+@functools.cache
+def _spellings() -> dict[str, str]:
+    """Squashed spelling -> field: each field's name and title (the words a report
+    prints), a numeric field's plain names (``FieldSpec.also``), the choice and text
+    fields' names."""
+    out: dict[str, str] = {}
+    for spec in NUMERIC:
+        for word in (spec.name, spec.title, *spec.also):
+            if out.setdefault(_squash(word), spec.name) != spec.name:
+                raise AssertionError(f"{word!r} names two fields")
+    for name in (*CHOICE_BY_NAME, *TEXT_FIELDS):
+        out.setdefault(_squash(name), name)
+    return out
+
+
+def suggest(key: object) -> str | None:
+    """The field that a key which is not one names in other words (``sodium`` -> ``na``,
+    ``Na+`` -> ``na``, ``sodium_unit`` -> ``na_unit``), or None.  For a hint only: the
+    key itself is refused, never read as that field."""
+    text = str(key)
+    if _squash(text) in _spellings():
+        return _spellings()[_squash(text)]
+    if text.lower().endswith("unit"):
+        base = _spellings().get(_squash(text[:-4]))
+        if base in BY_NAME:
+            return f"{base}_unit"
+    return None
 
 
 def convert(field: str, value: float | str, from_unit: str, to_unit: str) -> float:

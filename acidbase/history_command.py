@@ -12,6 +12,7 @@ from typing import Any
 
 from . import history
 from .errors import AcidBaseError
+from .files.outputs import OutputSet, Staged, check_paths, emit
 from .results import CAUTION
 
 EXIT_OK, EXIT_CANNOT_RUN = 0, 2
@@ -23,6 +24,8 @@ def run(args: Any) -> int:
         return _run(args)
     except AcidBaseError as e:
         message = str(e)
+    except BrokenPipeError:  # standard output closed by its reader: acidbase.cli's to end
+        raise
     except OSError as e:
         message = f"{e.filename or args.store}: {e.strerror or e}"
     except sqlite3.DatabaseError as e:  # a damaged file
@@ -38,26 +41,37 @@ def _run(args: Any) -> int:
         raise history.HistoryError("--patient needs --export or --purge")
     if args.output and not args.export:
         raise history.HistoryError("-o is for --export")
-    if args.output and args.output != "-":  # the store is the export's input
-        from .files.outputs import check_paths
+    with OutputSet() as outputs:
+        staged = None
+        if args.output and args.output != "-":
+            # As ``acidbase batch -o``: never the store (the export's input) by any name;
+            # staged beside the target before any work, renamed into place when whole.
+            check_paths([("INPUT", args.store)], [("-o", args.output)])
+            staged = outputs.add("-o", args.output)
+            if staged.temp and not os.path.exists(staged.target):
+                # Owner only, as the store itself: the file names a patient beside
+                # their values.  (A file replaced keeps its own mode.)
+                os.fchmod(staged.file.fileno(), 0o600)
+        return _run_on(args, outputs, staged)
 
-        check_paths([("INPUT", args.store)], [("-o", args.output)])
+
+def _run_on(args: Any, outputs: OutputSet, staged: Staged | None) -> int:
     key = history.site_key() if args.patient else None
     store = history.Store(args.store, key, args.retention_days, create=False)
     try:
         if args.export:
-            _export(store.patient(args.patient), args.patient, args.output)
+            _export(store.patient(args.patient), args.patient, outputs, staged, args.output)
         elif args.purge:
             n = store.purge(args.patient)
-            print(f"acidbase history: removed {n} stored panel{'s' * (n != 1)} of that patient")
+            emit(f"acidbase history: removed {n} stored panel{'s' * (n != 1)} of that patient\n")
         elif args.prune:
             n = store.prune()
-            print(f"acidbase history: removed {n} panel{'s' * (n != 1)} collected more than "
-                  f"{args.retention_days:g} days ago")
+            emit(f"acidbase history: removed {n} panel{'s' * (n != 1)} collected more than "
+                 f"{args.retention_days:g} days ago\n")
         else:
             info = store.summary()
-            print(json.dumps({**info, "caution": CAUTION}, indent=1) if args.json
-                  else _text(info))
+            emit((json.dumps({**info, "caution": CAUTION}, indent=1) if args.json
+                  else _text(info)) + "\n")
     finally:
         store.close()
     return EXIT_OK
@@ -79,8 +93,10 @@ def _text(info: dict) -> str:
     return "\n".join(lines)
 
 
-def _export(table, patient_id: str, output: str | None) -> None:
-    """CSV: the patient id as given, each stored panel, the caution on the first row."""
+def _export(table, patient_id: str, outputs: OutputSet, staged: Staged | None,
+            output: str | None) -> None:
+    """CSV: the patient id as given, each stored panel, the caution on the first row;
+    to ``staged`` (renamed into place here, once whole) or standard output."""
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     fields = list(history.STORED_FIELDS)
@@ -90,15 +106,14 @@ def _export(table, patient_id: str, output: str | None) -> None:
         w.writerow([_cell(patient_id), r["collected_at"], _cell(r["sample_id"] or ""),
                     *("" if r[f] != r[f] else repr(r[f]) for f in fields),
                     CAUTION if i == 0 else ""])
-    if output is None:
-        sys.stdout.write(buf.getvalue())
+    if staged is None:
+        emit(buf.getvalue())
         return
-    tmp = output + ".partial"
-    # Owner only, as the store itself: the file names a patient beside their values.
-    with os.fdopen(os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600), "w",
-                   encoding="utf-8", newline="") as f:
-        f.write(buf.getvalue())
-    os.replace(tmp, output)
+    try:
+        staged.file.write(buf.getvalue().encode("utf-8"))
+        outputs.commit()
+    except OSError as e:  # named by the export's path, not the store's
+        raise OSError(e.errno, e.strerror, output) from e
     print(f"acidbase history: {len(rows)} stored panel{'s' * (len(rows) != 1)} written to "
           f"{output}", file=sys.stderr)
 

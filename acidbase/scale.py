@@ -22,6 +22,7 @@ code as ``acidbase batch``); this module only moves rows.  Dask is optional
 
 from __future__ import annotations
 
+import contextlib
 import glob
 import os
 import zlib
@@ -68,7 +69,9 @@ def shard(path: str | os.PathLike[str], folder: str | os.PathLike[str], shards: 
           patient_column: str | None = None, chunk_rows: int = 1 << 16) -> list[str]:
     """Write ``path``'s rows into ``shards`` Parquet files in ``folder`` (created);
     the files written, ``part-00000.parquet`` onwards (a shard with no rows writes
-    no file).  Cells stay text, as the batch reader hands them over.
+    no file).  Cells stay text, as the batch reader hands them over.  The files
+    appear together when every row is written, or not at all (a run that fails
+    leaves no part file, and removes the folder if it made it).
 
     ``patient_column``: the header that holds the patient id (default: the one
     acidbase batch maps to ``patient_id``).
@@ -92,27 +95,49 @@ def shard(path: str | os.PathLike[str], folder: str | os.PathLike[str], shards: 
         raise ShardError(f"{folder} holds shard files already ({os.path.basename(old[0])}"
                          f"{f' and {len(old) - 1} more' if len(old) > 1 else ''}); give a new "
                          "or empty folder, or remove them first")
+    from .files.outputs import OutputSet, check_paths
+
+    made = not os.path.isdir(folder)
     os.makedirs(folder, exist_ok=True)
     writers: dict[int, pq.ParquetWriter] = {}
     names: dict[int, str] = {}
     start = 0
+    # Staged as ``acidbase batch -o`` stages its output (``files.outputs``): each part is
+    # written to a temporary file beside it and every part is renamed into place only
+    # when the whole input was read and written, so a failed run leaves no part file.
     try:
-        for table in src.chunks():
-            n = table.num_rows
-            table = table.append_column(INPUT_ROW, pa.array(np.arange(start + 1, start + n + 1)))
-            which = shard_of(table[patient_column], shards)
-            order = np.argsort(which, kind="stable")  # file order kept within a shard
-            bounds = np.searchsorted(which[order], np.arange(shards + 1))
-            for k in np.flatnonzero(np.diff(bounds)).tolist():
-                part = table.take(pa.array(order[bounds[k]:bounds[k + 1]]))
-                if k not in writers:
-                    names[k] = os.path.join(os.fspath(folder), f"part-{k:05d}.parquet")
-                    writers[k] = pq.ParquetWriter(names[k], part.schema)
-                writers[k].write_table(part)
-            start += n
-    finally:
-        for w in writers.values():
-            w.close()
+        with OutputSet() as outputs:
+            try:
+                for table in src.chunks():
+                    n = table.num_rows
+                    table = table.append_column(
+                        INPUT_ROW, pa.array(np.arange(start + 1, start + n + 1)))
+                    which = shard_of(table[patient_column], shards)
+                    order = np.argsort(which, kind="stable")  # file order kept within a shard
+                    bounds = np.searchsorted(which[order], np.arange(shards + 1))
+                    for k in np.flatnonzero(np.diff(bounds)).tolist():
+                        part = table.take(pa.array(order[bounds[k]:bounds[k + 1]]))
+                        if k not in writers:
+                            target = os.path.join(os.fspath(folder), f"part-{k:05d}.parquet")
+                            check_paths([("INPUT", os.fspath(path))], [("FOLDER", target)])
+                            staged = outputs.add("FOLDER", target)
+                            names[k] = target
+                            writers[k] = pq.ParquetWriter(staged.file, part.schema)
+                        writers[k].write_table(part)
+                    start += n
+            except BaseException:
+                for w in writers.values():
+                    with contextlib.suppress(Exception):  # the first error is the one to say
+                        w.close()
+                raise
+            for w in writers.values():
+                w.close()
+            outputs.commit()
+    except BaseException:
+        if made:  # the folder this run made, left empty by the failure
+            with contextlib.suppress(OSError):
+                os.rmdir(folder)
+        raise
     return [names[k] for k in sorted(names)]
 
 

@@ -9,6 +9,8 @@ the same unit and normalised (this is a spelling fix, never a conversion).
 
 from __future__ import annotations
 
+from collections.abc import Callable
+
 from .errors import UnitError
 
 #: 1 mm[Hg] = 0.133322 kPa (UCUM defines m[Hg] as 133.3220 kPa).
@@ -51,6 +53,11 @@ ALIASES: dict[str, str] = {
     "years": "a",
     "[ph]": "[pH]",
     "ph": "[pH]",
+    # Degrees Fahrenheit: named so that its refusal can say what it is (NOT_TAKEN).
+    "[degf]": "[degF]",
+    "degf": "[degF]",
+    "°f": "[degF]",
+    "fahrenheit": "[degF]",
 }
 
 #: For each kind of quantity: unit -> factor that takes a value in that unit to
@@ -77,6 +84,30 @@ FACTORS: dict[str, dict[str, float]] = {
 }
 
 
+#: Units of a field's own quantity that acidbase does not take, and never converts: unit
+#: -> (its name, the function taking a value in it to the canonical unit).  The function
+#: only decides whether a refused number would be ordinary in that unit, for the hint;
+#: no value is ever converted with it.  Degrees Fahrenheit: t/Cel = (t/[degF] - 32) / 1.8
+#: (UCUM [ucum], "[degF]" defined as degF(5 K/9) on the Fahrenheit scale; value from
+#: memory), docs/methods.md section 1.
+NOT_TAKEN: dict[str, dict[str, tuple[str, Callable[[float], float]]]] = {
+    "temperature": {"[degF]": ("degrees Fahrenheit", lambda f: (f - 32.0) / 1.8)},
+}
+
+
+def not_taken_hint(kind: str, unit: object) -> str:
+    """The hint for a unit of the field's quantity that acidbase does not take ("" for any
+    other unit): what it is, the unit to give instead, and that nothing is converted."""
+    if not isinstance(unit, str):
+        return ""
+    code = normalise(unit)
+    if code not in NOT_TAKEN.get(kind, {}):
+        return ""
+    name = NOT_TAKEN[kind][code][0]
+    return (f"{code} is {name}, which acidbase does not take or convert: give the value "
+            f"in {canonical_unit(kind)}")
+
+
 def normalise(unit: str) -> str:
     """The UCUM code for a unit label, accepting the common aliases."""
     if not isinstance(unit, str):
@@ -95,7 +126,8 @@ def factor(field: str, kind: str, unit: str) -> float:
         raise UnitError(field=field, unit=repr(unit), accepted=tuple(table))
     code = normalise(unit)
     if code not in table:
-        raise UnitError(field=field, unit=unit, accepted=tuple(table))
+        raise UnitError(field=field, unit=unit, accepted=tuple(table),
+                        hint=not_taken_hint(kind, unit))
     return table[code]
 
 

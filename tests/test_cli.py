@@ -177,6 +177,33 @@ def test_a_full_disk_on_standard_output_is_named_not_a_traceback(command):
     assert r.stderr.startswith(f"acidbase {command[0]}: standard output: No space left on device")
 
 
+@pytest.mark.skipif(not Path("/dev/full").exists(), reason="no /dev/full here")
+@pytest.mark.parametrize("command", [["--help"], ["batch", "--help"], ["history", "--help"],
+                                     ["--version"], ["check", "--version"]])
+def test_help_and_version_into_a_full_disk_fail_with_one_line(command):
+    """``acidbase --help > /dev/full`` ended with 0: argparse drops a refused write, and
+    the last flush came at the interpreter's exit, unreported. Now exit 2 and one line."""
+    with open("/dev/full", "w") as full:
+        r = subprocess.run([sys.executable, "-m", "acidbase", *command], stdout=full,
+                           stderr=subprocess.PIPE, text=True, cwd=ROOT, timeout=120)
+    assert r.returncode == 2, r.stderr
+    who = "acidbase" + (f" {command[0]}" if not command[0].startswith("-") else "")
+    assert r.stderr == (f"{who}: standard output: No space left on device; what was written "
+                        "is incomplete\n")
+
+
+@pytest.mark.skipif(not Path("/dev/full").exists(), reason="no /dev/full here")
+def test_a_refused_panel_into_a_full_disk_says_only_the_refusal():
+    """Nothing was written to standard output, so nothing is said of it (a last write of
+    no bytes, which /dev/full refuses too, added "what was written is incomplete")."""
+    with open("/dev/full", "w") as full:
+        r = subprocess.run([sys.executable, "-m", "acidbase", "check", "--ph", "7.4",
+                            "--pco2", "40"], stdout=full, stderr=subprocess.PIPE, text=True,
+                           cwd=ROOT, timeout=120)
+    assert r.returncode == 2
+    assert r.stderr == "acidbase: panel refused:\n  - HCO3- (hco3) is required and was not given\n"
+
+
 # An 80-column terminal: the width of a VT100 and of the terminals that followed it, and
 # the width the terminal app is built for (docs/tui.md). Common practice, no source.
 @pytest.mark.parametrize("command", [

@@ -357,3 +357,61 @@ def test_number_words_are_refused_by_the_library_too():
     assert r.refused.tolist() == [True, False]
     assert "'nan' is not a number" in r.reasons[0]
     assert "'inf' is not a number" in r.reasons[0]
+
+
+# -- a ragged CSV line ----------------------------------------------------------------------
+
+@pytest.mark.parametrize("text, line, got, header", [
+    # (file text, the file line of the ragged record (header = 1), its fields, the header's)
+    ("ph,pco2,hco3\n7.40,40,24\n7.30,40,24,5\n", 3, 4, 3),
+    ("ph,pco2,hco3\n7.30,40,24,1,2\n7.40,40,24\n", 2, 5, 3),
+    # a quoted cell over two lines and a blank line before it: file lines, not records
+    ('ph,pco2,hco3,note\n7.40,40,24,"first\nsecond"\n\n7.30,40\n', 5, 2, 4),
+    ("\ufeffph;pco2;hco3\n7,40;40;24\n7,30;40;24;9\n", 3, 4, 3),
+])
+def test_a_ragged_csv_line_is_named_by_its_file_line_and_counts(tmp_path, capsys, text, line,
+                                                                 got, header):
+    """The run stops at a line with more (or fewer) cells than the header; the message
+    names the file line as an editor numbers it (the header is line 1), so the line can
+    be found and fixed (it said only "a line has 4 fields")."""
+    from acidbase.cli import main
+
+    src = tmp_path / "ragged.csv"
+    src.write_bytes(text.encode("utf-8"))
+    with pytest.raises(BatchInputError) as info:
+        for _ in fileio.open_source(src).chunks():
+            pass
+    said = f"line {line} has {got} fields where the header has {header} (line 1 is the header):"
+    assert said in str(info.value)
+    assert main(["batch", str(src), "-o", str(tmp_path / "out.csv"), "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert f"ragged.csv: {said}" in err and "Traceback" not in err
+    assert not (tmp_path / "out.csv").exists()
+
+
+# -- JSON Lines numbers beyond the floating-point range ----------------------------------
+
+@pytest.mark.parametrize("written", ["1e999", "-1E+400", "NaN", "-Infinity"])
+def test_a_json_number_beyond_range_is_refused_as_written(tmp_path, capsys, written):
+    """``"pco2": 1e999`` (a valid JSON number; Python's reader makes it infinity) was
+    refused as ``'inf'``, a value not in the file: the refusal and the output's copy of
+    the cell show it as written, as for the same cell in a CSV file."""
+    from acidbase.cli import main
+
+    src = tmp_path / "p.jsonl"
+    src.write_text(f'{{"ph": 7.40, "pco2": {written}, "hco3": 24}}\n'
+                   '{"ph": 7.40, "pco2": 40, "hco3": 24}\n')
+    out = tmp_path / "out.csv"
+    assert main(["batch", str(src), "-o", str(out), "--quiet"]) == 0
+    capsys.readouterr()
+    rows = list(csv.DictReader(out.open()))
+    assert rows[0]["status"] == "refused" and rows[1]["status"] == "interpreted"
+    assert rows[0]["reason"].startswith(f"pCO2 (pco2) {written!r} is not a number")
+    assert rows[0]["pco2"].lstrip("'") == written
+    assert "inf" not in rows[0]["reason"].lower().replace("infinity", "")
+    # The same cell in a CSV file is refused with the same words.
+    same = tmp_path / "p.csv"
+    same.write_text(f"ph,pco2,hco3\n7.40,{written},24\n")
+    assert main(["batch", str(same), "-o", str(tmp_path / "same.csv"), "--quiet"]) == 0
+    capsys.readouterr()
+    assert next(csv.DictReader((tmp_path / "same.csv").open()))["reason"] == rows[0]["reason"]

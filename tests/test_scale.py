@@ -149,3 +149,43 @@ def test_a_folder_holding_shards_already_is_refused_not_mixed(tmp_path, capsys):
     assert "holds shard files already" in err and "part-00000.parquet" in err
     assert {f.name: f.read_bytes() for f in folder.iterdir()} == before
     assert main(["shard", str(small), str(tmp_path / "empty-and-new"), "--shards", "2"]) == 0
+
+
+def _limited_file_size(limit: int):
+    """For a child process: files it writes may grow to ``limit`` bytes, then each
+    write fails with EFBIG ("File too large"), as on a full disk (POSIX setrlimit,
+    RLIMIT_FSIZE; SIGXFSZ ignored so the write returns the error)."""
+    import resource
+    import signal
+
+    def apply() -> None:
+        signal.signal(signal.SIGXFSZ, signal.SIG_IGN)
+        resource.setrlimit(resource.RLIMIT_FSIZE, (limit, limit))
+    return apply
+
+
+def test_a_shard_run_that_fails_writing_leaves_no_part_file(tmp_path):
+    """The disk fills while the parts are written: the run fails (exit 2, one line, no
+    traceback) and leaves no part file, whole or cut short, and not the folder it made:
+    the parts are staged as ``acidbase batch -o`` stages its output. (It left each part
+    cut at the limit, a Parquet file without its footer, in a folder that looked done.)"""
+    import subprocess
+    import sys
+
+    src = tmp_path / "archive.csv"
+    _archive(src, n=600)
+    folder = tmp_path / "s"
+    r = subprocess.run([sys.executable, "-m", "acidbase", "shard", str(src), str(folder),
+                        "--shards", "3"], capture_output=True, text=True, timeout=120,
+                       preexec_fn=_limited_file_size(2000))
+    assert r.returncode == 2, r.stderr
+    assert r.stderr.startswith("acidbase shard: could not run:") and "Traceback" not in r.stderr
+    assert len(r.stderr.strip().splitlines()) == 1, r.stderr
+    assert not folder.exists() or list(folder.iterdir()) == []
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["archive.csv"]
+    # The same run with room to write gives every row, in parts renamed into place.
+    assert subprocess.run([sys.executable, "-m", "acidbase", "shard", str(src), str(folder),
+                           "--shards", "3"], capture_output=True, timeout=120).returncode == 0
+    assert sorted(p.name for p in folder.iterdir()) == [f"part-{k:05d}.parquet" for k in range(3)]
+    assert sum(pq.read_metadata(f).num_rows for f in folder.iterdir()) == 600
+

@@ -254,6 +254,27 @@ def silence_stdout() -> None:
         os.close(devnull)
 
 
+class StdoutRefused(Exception):
+    """Standard output refused a write (``> /dev/full``, a disk filled); ``error`` is why."""
+
+    def __init__(self, error: OSError) -> None:
+        super().__init__(error)
+        self.error = error
+
+
+def emit(text: str) -> None:
+    """Write a command's result to standard output; a refusal of the write is raised as
+    ``StdoutRefused``, so it is never blamed on, or confused with, any other file."""
+    try:
+        if text:  # (a write of "" is one of no bytes, which /dev/full refuses too)
+            sys.stdout.write(text)
+        sys.stdout.flush()
+    except BrokenPipeError:
+        raise
+    except OSError as e:
+        raise StdoutRefused(e) from e
+
+
 def _fsync_folder(folder: str) -> None:
     """Make a rename durable (POSIX: the folder entry is data of the folder)."""
     try:
@@ -328,4 +349,5 @@ class OutputSet:
 
 
 __all__ = ["INCOMPLETE", "OutputError", "OutputPathError", "OutputSet", "Staged", "Stopped",
-           "check_paths", "identity", "silence_stdout", "stale", "stop_on_signals"]
+           "StdoutRefused", "check_paths", "emit", "identity", "silence_stdout", "stale",
+           "stop_on_signals"]

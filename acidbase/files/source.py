@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import io
 import json
+import math
 import os
 import re
 from collections.abc import Callable, Iterator, Sequence
@@ -116,7 +117,7 @@ class Source:
                 if not multiline and ("Expected" in text or "straddling" in text):
                     multiline = True  # a quoted line break the sample did not show
                     continue
-                raise BatchInputError(f"{self.path}: {_csv_error(text)}") from None
+                raise BatchInputError(f"{self.path}: {_csv_error(text, self)}") from None
 
     def _csv_pass(self, cols: list[str], on_progress, block: int, multiline: bool,
                   skip: int) -> Iterator[pa.RecordBatch]:
@@ -195,13 +196,38 @@ class Source:
             f.close()
 
 
-def _csv_error(text: str) -> str:
+def _csv_error(text: str, src: Source | None = None) -> str:
     text = text.replace("CSV parse error: ", "")
     m = re.search(r"Expected (\d+) columns, got (\d+): (.*)", text, re.S)
     if m:
-        return (f"a line has {m[2]} fields where the header has {m[1]}: {m[3].strip()[:120]!r}; "
-                "fix the line, or check --delimiter")
+        line = _ragged_line(src, int(m[1]), int(m[2])) if src is not None else None
+        where = (f"line {line} has {m[2]} fields where the header has {m[1]} (line 1 is "
+                 "the header)" if line is not None
+                 else f"a line has {m[2]} fields where the header has {m[1]}")
+        return f"{where}: {m[3].strip()[:120]!r}; fix the line, or check --delimiter"
     return text
+
+
+def _ragged_line(src: Source, expected: int, got: int) -> int | None:
+    """The file line (from 1, the header's) where the first record of ``got`` fields
+    begins, read again with Python's CSV reader (the file's delimiter, quoted line
+    breaks read as the Arrow reader read them when it stopped): the Arrow reader's
+    message gives the record, not its line.  None when it cannot be told."""
+    import csv
+
+    encoding = "utf-8-sig" if src.encoding.lower().replace("_", "-") in ("utf-8", "utf8") \
+        else src.encoding
+    try:
+        with open(src.path, encoding=encoding, errors="replace", newline="") as f:
+            reader = csv.reader(f, delimiter=src.delimiter)
+            start = 1
+            for record in reader:
+                if record and len(record) == got != expected and start > 1:
+                    return start
+                start = reader.line_num + 1
+    except (OSError, csv.Error, LookupError):
+        return None
+    return None
 
 
 class _Record(dict):
@@ -222,9 +248,21 @@ def _pairs(pairs: list[tuple[str, object]]) -> _Record:
     return rec
 
 
+class _Written(str):
+    """A JSON number kept as the text the file wrote: one beyond the floating-point range
+    (``1e999``, which Python reads as infinity) or a ``NaN``/``Infinity`` token, so a
+    refusal shows the value as written (it showed ``'inf'``)."""
+
+
+def _json_float(text: str) -> float | _Written:
+    value = float(text)
+    return value if math.isfinite(value) else _Written(text)
+
+
 def _json_record(line: str, lineno: int, path: str) -> dict:
     try:
-        rec = json.loads(line, object_pairs_hook=_pairs)
+        rec = json.loads(line, object_pairs_hook=_pairs, parse_float=_json_float,
+                         parse_constant=_Written)
     except json.JSONDecodeError as e:
         raise BatchInputError(f"{path} line {lineno}: not JSON ({e.msg})") from None
     if not isinstance(rec, dict):

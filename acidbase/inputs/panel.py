@@ -29,7 +29,7 @@ import numpy as np
 from .. import units as _units
 from .._arrow import is_arrow
 from ..errors import Problem, UnitError
-from ..fields import BY_NAME, NUMERIC, REQUIRED, TEXT_FIELDS, FieldSpec
+from ..fields import BY_NAME, NUMERIC, REQUIRED, TEXT_FIELDS, FieldSpec, suggest
 from .cells import (ParsedColumn, is_column, number_hint, read_choice, read_choices, read_number,
                     read_numbers_many)
 from .vocab import CHOICES, Choice
@@ -54,6 +54,16 @@ def _hint(spec: FieldSpec, values: np.ndarray, unit: str) -> np.ndarray:
         hints[fits] = (
             f"{spec.title} would be ordinary at this value in {other}: if that is the unit, "
             f"state it ({spec.name} unit {other}), the value was not converted"
+        )
+    for other, (name, to_canonical) in _units.NOT_TAKEN.get(spec.kind, {}).items():
+        if other == given:
+            continue
+        with np.errstate(over="ignore", invalid="ignore"):
+            there = to_canonical(values)
+            fits = (there >= lo) & (there <= hi) & (hints == "")
+        hints[fits] = (
+            f"{spec.title} would be ordinary at this value in {other} ({name}), which "
+            f"acidbase does not take: give it in {spec.unit}; the value was not converted"
         )
     return hints
 
@@ -315,11 +325,13 @@ def censored_problem(spec: FieldSpec, cell: object, unit: str) -> Problem:
 
 #: A unit its field does not accept, as ``Panel`` and ``acidbase check`` say it (the
 #: line is ``<field>_unit: `` and this sentence; ``describe_fields``, ``unit_refusal``).
-UNIT_NOT_ACCEPTED = "unit '{unit}' is not accepted for {title}; use one of {accepted}"
+UNIT_NOT_ACCEPTED = "unit '{unit}' is not accepted for {title}; use one of {accepted}{hint}"
 
 
 def _unit_context(spec: FieldSpec, unit: object) -> dict[str, str]:
-    return {"unit": unit, "title": spec.title, "accepted": ", ".join(spec.units)}
+    hint = _units.not_taken_hint(spec.kind, unit)
+    return {"unit": unit, "title": spec.title, "accepted": ", ".join(spec.units),
+            "hint": f" - {hint}" if hint else ""}
 
 
 def unit_refusal(spec: FieldSpec, unit: object) -> str | None:
@@ -400,6 +412,52 @@ def _marks(cls, data: Any, info: ValidationInfo) -> Any:
     return data
 
 
+def unknown_field(key: object, value: object) -> Problem:
+    """The Problem for a key that is no field of the panel: refused, never read as another
+    field; the hint names the field it is a plain name of (``sodium``: ``na``), else the
+    fields there are."""
+    name = suggest(key)
+    if name is None:
+        names = (*BY_NAME, *(c.name for c in CHOICES), *TEXT_FIELDS)
+        hint = f"the fields are {', '.join(names)}, and <field>_unit for a unit"
+    elif name.endswith("_unit"):
+        hint = f"use {name} (the unit of {BY_NAME[name[:-5]].title})"
+    else:
+        hint = f"use {name}" + (f" ({BY_NAME[name].title})" if name in BY_NAME else "")
+    return Problem(str(key), str(key), value, "", kind="unknown_field", hint=hint)
+
+
+def _known_fields(cls, data: Any, handler, info: ValidationInfo) -> Any:
+    """Each key that is no field (pydantic's "Extra inputs are not permitted") as the
+    Problem ``unknown_field`` says it, the other problems kept as they were, in order."""
+    from pydantic import ValidationError
+    from pydantic_core import PydanticCustomError
+
+    try:
+        return handler(data)
+    except ValidationError as e:
+        errors = e.errors(include_url=False)
+        if not any(err["type"] == "extra_forbidden" for err in errors):
+            raise
+        again = []
+        for err in errors:
+            ctx = dict(err.get("ctx") or {})
+            if err["type"] == "extra_forbidden":
+                problem = unknown_field(err["loc"][-1], err["input"])
+                kind = PydanticCustomError(problem.kind, "{message}", {
+                    "message": str(problem), "field": problem.field, "value": problem.value,
+                    "hint": problem.hint, "code": problem.code})
+            elif err["type"] in PROBLEM_KINDS or err["type"] == "unit_not_accepted":
+                kind = PydanticCustomError(err["type"], "{message}",
+                                           {**ctx, "message": err["msg"]})
+            else:  # pydantic's own type: it knows its message
+                again.append({"type": err["type"], "loc": err["loc"], "input": err["input"],
+                              **({"ctx": ctx} if ctx else {})})
+                continue
+            again.append({"type": kind, "loc": err["loc"], "input": err["input"]})
+        raise ValidationError.from_exception_data(e.title, again) from None
+
+
 def _urea_or_bun(self: BaseModel) -> BaseModel:
     if getattr(self, "urea") is not None and getattr(self, "bun") is not None:
         _raise(Problem("urea", "Urea", "urea and bun", "", kind="urea_and_bun"))
@@ -411,6 +469,7 @@ def _panel_base() -> type[BaseModel]:
 
     class _PanelBase(BaseModel, _PanelMethods):
         model_config = ConfigDict(extra="forbid", frozen=True)
+        _known_fields = model_validator(mode="wrap")(classmethod(_known_fields))
         _marks = model_validator(mode="before")(classmethod(_marks))
         _urea_or_bun = model_validator(mode="after")(_urea_or_bun)
 

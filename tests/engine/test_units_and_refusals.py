@@ -219,13 +219,91 @@ def test_every_problem_is_collected_in_one_error():
         ({"ph": "seven"}, "not_a_number", ("ph",)),
         ({"ph": float("nan")}, "missing", ("ph",)),
         ({"pco2": float("inf")}, "not_a_number", ("pco2",)),
-        ({"colour": "red"}, "extra_forbidden", ("colour",)),
+        ({"colour": "red"}, "unknown_field", ("colour",)),
         ({"sample_type": "arterialised"}, "not_a_choice", ("sample_type",)),
     ],
 )
 def test_malformed_input_is_refused_by_pydantic(changes, type_, loc):
     e = only(refusal(**changes))
     assert (e["type"], e["loc"]) == (type_, loc)
+
+
+@pytest.mark.parametrize(("key", "use"), [
+    ("sodium", "na (Na+)"), ("chloride", "cl (Cl-)"), ("potassium", "k (K+)"),
+    ("bicarbonate", "hco3 (HCO3-)"), ("Na", "na (Na+)"), ("hemoglobin", "hb (Haemoglobin)"),
+    ("sodium_unit", "na_unit (the unit of Na+)"), ("Sample Type", "sample_type"),
+])
+def test_an_unknown_key_that_names_a_field_in_other_words_is_refused_with_that_field(key, use):
+    """``Panel(sodium=140)`` gave pydantic's "Extra inputs are not permitted". The key is
+    refused, never read as Na+ (so E3 without its na stays without one), and the
+    message names the key and the field to use; the other problems are kept."""
+    panel = {k: v for k, v in E3.items() if k not in ("na", "cl")}
+    with pytest.raises(pydantic.ValidationError) as info:
+        acidbase.Panel(**panel, **{key: 140}, pco2_unit="bar")
+    errors = info.value.errors(include_url=False)
+    assert [(e["type"], e["loc"]) for e in errors] == [
+        ("unit_not_accepted", ("pco2_unit",)), ("unknown_field", (key,))]
+    assert acidbase.describe(info.value)[1] == f"{key}: not a field of the panel - use {use}"
+    assert f"{key}: not a field of the panel - use {use}" in str(info.value)
+
+
+def test_an_unknown_key_in_no_words_of_a_field_is_refused_with_the_fields():
+    """No guess: "calcium" is not ionised calcium, "colour" is nothing; the message lists
+    the fields there are."""
+    for key in ("calcium", "colour"):
+        e = only(refusal(**{key: 1.2}))
+        assert e["type"] == "unknown_field"
+        assert e["msg"].startswith(f"{key}: not a field of the panel - the fields are ph, "
+                                   "pco2, hco3, na, cl, k,")
+        assert e["msg"].endswith("and <field>_unit for a unit")
+
+
+# Degrees Fahrenheit: t/Cel = (t/[degF] - 32) / 1.8 (UCUM, [degF]; value from memory):
+# 98.6 [degF] is 37 Cel, an ordinary temperature, and 98.6 Cel is none.
+@pytest.mark.parametrize("unit", ["[degF]", "degF", "°F"])
+def test_a_temperature_in_fahrenheit_is_refused_with_the_unit_to_give(unit):
+    """A unit of the field's quantity that acidbase does not take: refused, never
+    converted, and the hint names it and the unit accepted (it said only "use one of
+    Cel"). The same words from ``Panel`` and from ``acidbase batch --unit``."""
+    e = only(refusal(temperature=98.6, temperature_unit=unit))
+    assert e["type"] == "unit_not_accepted"
+    hint = ("[degF] is degrees Fahrenheit, which acidbase does not take or convert: give the "
+            "value in Cel")
+    assert e["msg"] == (f"unit {unit!r} is not accepted for Patient temperature; use one of "
+                        f"Cel - {hint}")
+    with pytest.raises(acidbase.UnitError) as info:
+        acidbase.interpret_many({"ph": [7.4], "pco2": [40], "hco3": [24],
+                                 "temperature": [98.6]}, {"temperature": unit})
+    assert info.value.hint == hint and str(info.value).endswith(hint)
+
+
+def test_a_fahrenheit_number_given_as_celsius_is_refused_with_a_hint(tmp_path, capsys):
+    """``--temperature 98.6`` (in Cel, the only unit): refused as outside 25-45 Cel, and the
+    hint says it would be ordinary in [degF], which is not taken; 200 would be ordinary
+    in neither, so no hint. The same sentence from the check command, ``Panel`` and a
+    file."""
+    import csv
+
+    from acidbase.cli import main
+
+    said = ("Patient temperature (temperature) 98.6 Cel is outside the accepted range 25 to "
+            "45 Cel - Patient temperature would be ordinary at this value in [degF] (degrees "
+            "Fahrenheit), which acidbase does not take: give it in Cel; the value was not "
+            "converted")
+    assert only(refusal(temperature=98.6))["msg"] == said
+    assert only(refusal(temperature=200.0))["msg"] == (
+        "Patient temperature (temperature) 200 Cel is outside the accepted range 25 to 45 Cel")
+    assert main(["check", "--ph", "7.4", "--pco2", "40", "--hco3", "24",
+                 "--temperature", "98.6"]) == 2
+    assert f"  - {said}\n" in capsys.readouterr().err
+    src = tmp_path / "t.csv"
+    src.write_text("ph,pco2,hco3,temperature\n7.40,40,24,98.6\n")
+    assert main(["batch", str(src), "-o", str(tmp_path / "o.csv"), "--quiet"]) == 0
+    assert main(["batch", str(src), "-o", str(tmp_path / "u.csv"), "--quiet",
+                 "--unit", "temperature=[degF]"]) == 2
+    assert "give the value in Cel" in capsys.readouterr().err
+    assert not (tmp_path / "u.csv").exists()
+    assert next(csv.DictReader((tmp_path / "o.csv").open()))["reason"] == said
 
 
 def test_missing_required_field_is_refused():
