@@ -15,7 +15,7 @@ import numpy as np
 from . import engine, rules
 from ._arrow import is_arrow
 from .errors import ColumnError, Problem
-from .fields import BY_NAME, TEXT_FIELDS
+from .fields import BY_NAME, TEXT_FIELDS, suggest
 from .inputs.cells import _objects, is_column, read_choices
 from .inputs.vocab import CHOICES
 from .inputs.panel import _length, screen
@@ -73,10 +73,12 @@ def check_columns(columns: Mapping[str, Any]) -> int:
     names = [str(k) for k in columns]
     unknown = [k for k in names if k not in KNOWN_COLUMNS and k not in CARRIED_COLUMNS]
     if unknown:
+        hints = tuple(h if (h := suggest(k)) in KNOWN_COLUMNS else None for k in unknown)
+        said = ", ".join(repr(k) + (f" (use {h!r})" if h else "") for k, h in zip(unknown, hints))
         raise ColumnError(
-            f"column(s) {', '.join(repr(k) for k in unknown)} not known; the columns read are "
+            f"column(s) {said} not known; the columns read are "
             f"{', '.join(KNOWN_COLUMNS)} (carried, not read: {', '.join(CARRIED_COLUMNS)})",
-            tuple(unknown), KNOWN_COLUMNS)
+            tuple(unknown), KNOWN_COLUMNS, hints)
     lengths = {k: n for k, v in columns.items() if (n := _length(v)) is not None}
     if len(set(lengths.values())) > 1:
         shown = ", ".join(f"{k} {n}" for k, n in lengths.items())

@@ -127,6 +127,9 @@ class ColumnError(ValueError, AcidBaseError):
     """The offending column names."""
     known: tuple[str, ...] = ()
     """The names that would be read."""
+    suggested: tuple[str | None, ...] = ()
+    """For each of ``names``, the column it names in other words (``sodium`` -> ``na``:
+    ``fields.suggest``), else None; a hint only, the column is not read."""
 
     def __str__(self) -> str:
         return self.message

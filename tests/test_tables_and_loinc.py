@@ -49,6 +49,15 @@ def test_an_unknown_column_is_refused_naming_the_known_ones():
     assert "albumin" in str(info.value) and "albumen" in str(info.value)
 
 
+def test_an_unknown_column_naming_a_field_in_other_words_says_which_column_to_use():
+    """As Panel(sodium=...) does (fields.suggest): refused, never read as that field."""
+    with pytest.raises(ColumnError) as info:
+        acidbase.interpret_many({**BASE, "sodium": [140, 140], "albumen": [40, 40]})
+    assert info.value.names == ("sodium", "albumen")
+    assert info.value.suggested == ("na", None)
+    assert "'sodium' (use 'na')" in str(info.value)
+
+
 def test_columns_of_unequal_length_are_refused():
     with pytest.raises(ColumnError, match="unequal lengths"):
         acidbase.interpret_many({**BASE, "k": [4.0]})
