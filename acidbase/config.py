@@ -228,7 +228,9 @@ def _file_values(site: SiteFile, path: Path) -> dict[str, Any]:
             raise bad(key, f"{name!r} is not a numeric field ({', '.join(BY_NAME)})")
         spec = BY_NAME[name]
         if _units.normalise(unit) not in spec.units:
-            raise bad(key, f"{unit!r} is not a unit of {spec.title} ({', '.join(spec.units)})")
+            hint = _units.not_taken_hint(spec.kind, unit)
+            raise bad(key, f"{unit!r} is not a unit of {spec.title} ({', '.join(spec.units)})"
+                           + (f"; {hint}" if hint else ""))
         out[key] = _units.normalise(unit)
     if site.batch.mapping:
         mapping = Path(site.batch.mapping)

@@ -190,6 +190,20 @@ def test_conflicting_units_stop_the_run():
         fileio.map_headers(["ph", "pco2 (kPa)", "hco3", "na", "cl"], units={"pco2": "mmHg"})
 
 
+@pytest.mark.parametrize("header", ["temperature (degF)", "Temperature ([degF])", "temperature (°F)"])
+def test_a_header_in_degrees_fahrenheit_stops_the_run_with_the_unit_to_give(header):
+    """Passed through unread, the column's temperatures would silently go unused."""
+    with pytest.raises(BatchInputError) as info:
+        fileio.map_headers(["ph", "pco2", "hco3", "na", "cl", header])
+    assert repr(header) in str(info.value)
+    assert "[degF] is degrees Fahrenheit" in str(info.value) and "in Cel" in str(info.value)
+
+
+def test_a_header_whose_brackets_hold_no_unit_is_still_passed_through():
+    layout = fileio.map_headers(["ph", "pco2", "hco3", "na", "cl", "temperature (ward 7)"])
+    assert "temperature (ward 7)" not in layout.field_of
+
+
 def test_strict_columns_refuses_unknown_headers():
     with pytest.raises(BatchInputError, match="'ward'"):
         fileio.map_headers(["ph", "pco2", "hco3", "na", "cl", "ward"], strict=True)

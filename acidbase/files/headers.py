@@ -163,6 +163,11 @@ def map_headers(headers: Sequence[str], mapping: Mapping[str, tuple[str, str | N
                 needs_unit[code_field] = h
         elif base in loinc.NOT_READ:
             not_read.append(f"{h!r} (LOINC {base}: {loinc.NOT_READ[base]})")
+        elif (base.lower() in BY_NAME and suffix is not None
+              and (hint := _units.not_taken_hint(BY_NAME[base.lower()].kind, suffix))):
+            # a field in a unit of its quantity that is not taken ([degF]): refused, not
+            # passed through unread as a header that names no field would be
+            raise BatchInputError(f"header {h!r}: {hint}")
         if fld is None:
             continue
         if fld in field_of.values():

@@ -145,9 +145,10 @@ class Hl7Problem(Problem):
         return self.text
 
 
-def _problem(kind: str, name: str, text: str) -> Hl7Problem:
+def _problem(kind: str, name: str, text: str, hint: str = "") -> Hl7Problem:
     title = BY_NAME[name].title if name in BY_NAME else "HL7 message"
-    return Hl7Problem(name, title, None, "", kind=kind, text=text)
+    return Hl7Problem(name, title, None, "", kind=kind, hint=hint,
+                      text=text + (f" - {hint}" if hint else ""))
 
 
 @dataclass
@@ -303,7 +304,8 @@ def _read_obx(m: _Message, k: int, where: int, p: Panel, status: str, skipped: C
     elif _units.normalise(unit) not in spec.units:
         p.problems.append(_problem(
             "hl7_unit", name, f"{spec.title} ({name}) {text!r} OBX {label}: unit {unit!r} is "
-                              f"not one of {', '.join(spec.units)}"))
+                              f"not one of {', '.join(spec.units)}",
+            _units.not_taken_hint(spec.kind, unit)))
         return
     if name in p.values:
         p.problems.append(_problem(

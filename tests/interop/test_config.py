@@ -76,6 +76,9 @@ def test_options_override_the_file(tmp_path, capsys):
     ("[intervals.venus]\npco2 = [41, 55]\n", "key 'intervals.venus'"),
     ("[anion_gap]\nlowest = 3\n", "key 'anion_gap.lowest': unknown key"),
     ("[units]\npco2 = \"bar\"\n", "key 'units.pco2': 'bar' is not a unit of pCO2"),
+    ("[units]\ntemperature = \"[degF]\"\n",
+     "'[degF]' is not a unit of Patient temperature (Cel); [degF] is degrees Fahrenheit, "
+     "which acidbase does not take or convert: give the value in Cel"),
     ("[serial]\ndelta = { na = -3 }\n", "key 'serial.delta.na': give a positive limit"),
     ("[fhir]\nobservation_status = \"done\"\n", "key 'fhir.observation_status'"),
     ("[albumin\n", "not valid TOML"),

@@ -155,6 +155,17 @@ def test_a_unit_the_field_does_not_take_refuses_the_panel_with_the_unit(tmp_path
     assert "unit 'mg/dL' is not one of mmol/L" in rows[0]["reason"]
 
 
+def test_a_temperature_in_fahrenheit_refuses_the_panel_with_the_unit_to_give(tmp_path, capsys):
+    """Body temperature, LOINC 8310-5, in UCUM [degF]: refused, the hint names Cel
+    (units.not_taken_hint, as the options, the library and the CSV units say it)."""
+    path = write_spool(tmp_path / "degf.hl7", _simple(
+        [obx(6, "NM", "8310-5^Body temperature^LN", "98.6", "[degF]")]))
+    rows, _ = _batch(capsys, tmp_path, path, "o")
+    assert rows[0]["status"] == "refused"
+    assert "unit '[degF]' is not one of Cel" in rows[0]["reason"]
+    assert "does not take or convert: give the value in Cel" in rows[0]["reason"]
+
+
 def test_a_value_impossible_in_its_unit_is_refused_not_converted(tmp_path, capsys):
     """pCO2 5.3 with OBX-6 mm[Hg] is a kPa value in the wrong unit: refused."""
     segs = _simple([])
