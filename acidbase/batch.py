@@ -878,8 +878,10 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
     writer.finish()
     if store is not None:  # only a run whose every row was written is stored
         _give_back_memory()
+        # Held: committed below, once every output is in place, so that a run that fails
+        # after this (a summary or report that cannot be written) adds nothing either.
         notes.append(history.commit_run(store, checker, args.input, _audit(args),
-                                        input_hash.result()))
+                                        input_hash.result(), hold=True))
     summary = staged.get("--summary")
     record = audit.record(site, started, input_name=label, input_path=args.input,
                           input_sha256=input_hash.result(),
@@ -894,6 +896,10 @@ def _run(args: argparse.Namespace, label: str, outputs: OutputSet, stack: ExitSt
             (".html", ".htm")) else report_markdown(tally, notes, label, record)
         staged["--report"].file.write(doc.encode("utf-8"))
     outputs.commit()  # every output in place, or (on an error above) none
+    if store is not None:
+        outcome.store = args.history
+        store.finish()
+        outcome.store = None
     if summary is None:
         print(text, file=sys.stderr)
     return EXIT_OK
@@ -943,6 +949,9 @@ class _Outcome:
     outputs: OutputSet | None = None
     swept: scratch.Swept = field(default_factory=scratch.Swept)
     """The scratch folders of killed runs this run removed at its start."""
+    store: str | None = None
+    """The history store whose commit was under way after every output was in place
+    (None once it is committed): a failure or stop then left it as it was."""
 
     @property
     def committed(self) -> bool:
@@ -989,7 +998,7 @@ def run(args: argparse.Namespace) -> int:
         args.input = shown
         if outcome.committed:  # the signal came as the last output was renamed
             print(f"acidbase batch: stopped by {stop.name} after every output was written "
-                  "in full", file=sys.stderr)
+                  f"in full{_store_left(outcome)}", file=sys.stderr)
         else:
             print(f"acidbase batch: stopped by {stop.name} before the end: "
                   f"{_kept(args, outcome)}", file=sys.stderr)
@@ -1020,9 +1029,21 @@ def run(args: argparse.Namespace) -> int:
         message = message.replace(args.input, STDIN_LABEL)
         args.input = shown
     if outcome.committed:
+        if outcome.store:  # every output whole, but the run's panels not stored
+            print(f"acidbase batch: every output was written in full{_store_left(outcome)}: "
+                  f"{message}", file=sys.stderr)
+            return EXIT_CANNOT_RUN
         return _after_commit(message)
     print(f"acidbase batch: could not run: {message}; {_kept(args, outcome)}", file=sys.stderr)
     return EXIT_CANNOT_RUN
+
+
+def _store_left(outcome: _Outcome) -> str:
+    """What a failure or a stop after the outputs' commit left of the history store."""
+    if not outcome.store:
+        return ""
+    return (f"; the history store {outcome.store} was left as it was: this run's panels "
+            "were not added (the summary's line on the store says what would have been)")
 
 
 def _after_commit(message: str) -> int:

@@ -505,9 +505,11 @@ class Store:
                                        pc.less_equal(table["t"], hi)))
 
     def commit(self, panels: Iterator[pa.Table], record: RunRecord,
-               now: float | None = None) -> RunRecord:
+               now: float | None = None, hold: bool = False) -> RunRecord:
         """Add a run's new panels (columns of ``BLOCK_SCHEMA``, identity already
-        checked against the store) and its audit record; prune; commit.
+        checked against the store) and its audit record; prune; commit.  With
+        ``hold``, everything but the commit: ``finish`` commits (once the run's
+        outputs are in place), ``rollback`` or ``close`` adds nothing.
 
         Each table's blocks are encoded on a thread while the table before goes into
         the store, in the order the tables came.  (Encoding two tables at once on
@@ -553,12 +555,27 @@ class Store:
             self.db.execute("UPDATE runs SET panels_added = ?, panels_already_stored = ? "
                             "WHERE id = ?", (record.added, record.already_stored, run_id))
             self._prune(cutoff)
+            if not hold:
+                self.db.execute("COMMIT")
+        except BaseException:
+            self.rollback()
+            raise
+        self._in_run = hold
+        return record
+
+    def finish(self) -> None:
+        """Commit a run held by ``commit(..., hold=True)``."""
+        if not self._in_run:
+            raise HistoryError("finish without a held commit")
+        try:
             self.db.execute("COMMIT")
+        except sqlite3.Error as e:
+            self.rollback()
+            raise HistoryError(f"{self.path}: {e}") from None
         except BaseException:
             self.rollback()
             raise
         self._in_run = False
-        return record
 
     def rollback(self) -> None:
         if self._in_run or self.db.in_transaction:
@@ -898,10 +915,10 @@ def run_settings(settings: Mapping[str, object], checker, store: Store) -> dict[
 
 
 def commit_run(store: Store, checker, input_path: str, settings: Mapping[str, object],
-               input_sha256: str | None = None) -> str:
+               input_sha256: str | None = None, hold: bool = False) -> str:
     """Add the run's new panels with its audit record; the summary's line.
     ``input_sha256``: the input's SHA-256 when the run has it already (read again
-    otherwise)."""
+    otherwise).  ``hold``: as ``Store.commit``'s (``store.finish()`` commits)."""
     from . import __version__
 
     known = checker.known & checker.interpreted
@@ -909,7 +926,7 @@ def commit_run(store: Store, checker, input_path: str, settings: Mapping[str, ob
                        input_sha256=input_sha256 or file_sha256(input_path),
                        already_stored=int(np.count_nonzero(known)),
                        earlier_used=checker.earlier_used)
-    store.commit(checker.new_panels(), record)
+    store.commit(checker.new_panels(), record, hold=hold)
     line = (f"history store: {record.earlier_used:,} earlier panels compared; "
             f"{record.added:,} panels added; {record.already_stored:,} already stored "
             "(same patient, time and sample id), not added again")

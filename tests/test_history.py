@@ -162,6 +162,49 @@ def test_a_failure_while_storing_rolls_the_whole_run_back(tmp_path, capsys, monk
     assert count(store) == before
 
 
+def test_a_run_whose_summary_cannot_be_written_adds_nothing(tmp_path, capsys, monkeypatch):
+    """The store's commit waits for every output (the summary is written after the
+    panels are added to the transaction): a summary that fails leaves the store as it
+    was, as it leaves no output file."""
+    store = tmp_path / "store.db"
+    run(capsys, panels(tmp_path / "day1.csv", [("S1", "P-1", 2.0, 140)]), store)
+    before = count(store)
+
+    def full_disk(*a, **k):
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(batch, "summary_text", full_disk)
+    src = panels(tmp_path / "day2.csv", [("S2", "P-1", 1.0, 141), ("S3", "P-2", 1.0, 141)])
+    rc, _, err = run(capsys, src, store, "--summary", str(tmp_path / "s.txt"))
+    assert rc == 2 and "No space left" in err and "nothing written" in err
+    assert not (tmp_path / "s.txt").exists() and not src.with_suffix(".out.csv").exists()
+    assert count(store) == before
+
+
+def test_a_store_commit_that_fails_after_the_outputs_says_so_and_adds_nothing(
+        tmp_path, capsys, monkeypatch):
+    """The outputs are whole and stay; the store is left as it was; the run says both
+    and does not end with 0."""
+    store = tmp_path / "store.db"
+    run(capsys, panels(tmp_path / "day1.csv", [("S1", "P-1", 2.0, 140)]), store)
+    before = count(store)
+    real = history.Store.finish
+
+    def failing(self):
+        self.rollback()
+        raise history.HistoryError(f"{self.path}: database or disk is full")
+
+    monkeypatch.setattr(history.Store, "finish", failing)
+    src = panels(tmp_path / "day2.csv", [("S2", "P-1", 1.0, 141)])
+    rc, _, err = run(capsys, src, store)
+    assert rc == 2
+    assert "every output was written in full" in err and "disk is full" in err
+    assert f"history store {store} was left as it was" in err
+    assert src.with_suffix(".out.csv").exists()
+    monkeypatch.setattr(history.Store, "finish", real)
+    assert count(store) == before
+
+
 def test_two_runs_at_once_keep_every_panel(tmp_path):
     store = tmp_path / "store.db"
     env = dict(os.environ, **{history.KEY_ENV: KEY})
