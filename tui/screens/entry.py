@@ -428,18 +428,21 @@ class EntryScreen(Screen[None]):
     def action_save(self) -> None:
         from .files import SaveScreen
 
-        self.app.push_screen(SaveScreen(self.app.default_names(self.form.data())), self._save)
+        self.app.push_screen(SaveScreen(self.app.default_names(self.form.data()),
+                                        save=self._save_now), self._saved)
 
-    def _save(self, choice: tuple[str, str, bool] | None) -> None:
-        if choice is None:
-            return
-        kind, path, replace = choice
+    def _save_now(self, kind: str, path: str, replace: bool) -> tuple[bool, str]:
+        """The save dialog's saver: (written, what to tell the user)."""
         if kind != "csv":
             why = self._report_refused()
             if why:
-                self.say(f"Not saved. {why}")
-                return
-        self.say(self.app.save(kind, path, self.pane.reading, self.form.data(), replace))
+                return False, f"Not saved. {why}"
+        return self.app.try_save(kind, path, self.pane.reading, self.form.data(), replace)
+
+    def _saved(self, message: str | None) -> None:
+        if message:
+            self.say(message)
+        self.show_title()
 
     @after_typed_keys
     def action_load(self) -> None:
