@@ -7,8 +7,6 @@ words it.
 
 from __future__ import annotations
 
-import re
-
 from pydantic import ValidationError
 
 import acidbase
@@ -38,14 +36,12 @@ def f2_hint(name: str, value: object, unit: str) -> str:
     return f"press F2 for {unit_label(others[0]) or others[0]}" if others else ""
 
 
-#: A number written with a decimal comma, as typed in a field ("7,21").
-_COMMA = re.compile(r"[+-]?\d+,\d+")
-
-
-def refusal(error: dict, engine_line: str) -> str:
+def refusal(error: dict, engine_line: str, mixed_marks: bool = False) -> str:
     """One refused value in the app's words: "refused: not in 8-200 mmHg; press F2 for kPa".
 
-    The value itself is in the field beside it.
+    The value itself is in the field beside it.  ``mixed_marks``: the form's values use
+    a decimal comma and a decimal point (``sitting.typed_decimal``), so they were read
+    with a point.
     """
     ctx = error.get("ctx") or {}
     kind = error.get("type")
@@ -59,13 +55,16 @@ def refusal(error: dict, engine_line: str) -> str:
     if kind == "float_parsing":
         return f"refused: {error.get('input')!r} is not a number"
     typed = error.get("input")
-    if kind == "not_a_number" and isinstance(typed, str) and _COMMA.fullmatch(typed.strip()):
-        # The library's hint names --decimal, an option the form cannot take.
-        return f"refused: the form reads a decimal point; type {typed.strip().replace(',', '.')}"
+    if kind == "not_a_number" and mixed_marks and isinstance(typed, str) and "," in typed:
+        # The library's hint names --decimal, an option the form cannot take: the form's
+        # mark is that of its values, one mark for the whole panel.
+        return ("refused: other values have a decimal point; type every value with "
+                "the same decimal mark")
     return f"refused: {on_screen(engine_line)}"
 
 
-def problems_by_field(error: ValidationError) -> tuple[dict[str, list[str]], list[str]]:
+def problems_by_field(error: ValidationError, mixed_marks: bool = False
+                      ) -> tuple[dict[str, list[str]], list[str]]:
     """The app's lines keyed by field ("panel" for the whole), and the missing fields.
 
     ``acidbase.describe`` gives one line per error, in the order of ``errors()``.
@@ -77,5 +76,5 @@ def problems_by_field(error: ValidationError) -> tuple[dict[str, list[str]], lis
         if e["type"] == "missing":
             missing.append(name)
         else:
-            by_field.setdefault(name, []).append(refusal(e, line))
+            by_field.setdefault(name, []).append(refusal(e, line, mixed_marks))
     return by_field, missing

@@ -9,12 +9,15 @@ from __future__ import annotations
 
 import csv
 
+import pytest
 from textual.widgets import Input
-from tui_helpers import PANELS, key_in
+from tui_helpers import PANELS, key_in, processes_line
 
+import acidbase
 from tui.app import make_app
 from tui.screens.files import SaveScreen
-from tui.widgets.form import ChoiceField
+from tui.sitting import read_csv
+from tui.widgets.form import ChoiceField, ValueField
 
 
 async def _keep_two(pilot) -> None:
@@ -74,3 +77,65 @@ async def test_a_series_save_that_fails_mid_write_keeps_the_dialog(tmp_path, mon
         assert str(target) in app.screen.problem
         assert app.screen.query_one("#path", Input).value == str(target)
         assert app.sitting.unsaved and not target.exists()
+
+
+# -- 1. a decimal comma typed in the form is read by the one reader ---------------------
+
+def _comma(values: tuple[str, ...]) -> tuple[str, ...]:
+    return tuple(v.replace(".", ",") for v in values)
+
+
+@pytest.mark.parametrize("name", ["metabolic acidosis", "chronic respiratory acidosis"])
+async def test_a_panel_typed_with_decimal_commas_reads_as_with_points(name, tmp_path):
+    """"7,30" is 7.30 in the form as in a file with a decimal comma: the library reads the
+    panel typed with points and with commas alike (the oracle: ``acidbase.interpret`` of
+    the panel with points)."""
+    points = dict(zip(("ph", "pco2", "hco3", "na", "cl"), PANELS[name]))
+    expected = acidbase.interpret(acidbase.Panel.model_validate(points))
+    labels = "; ".join(d.label() for d in expected.disorders) or "none"
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in(pilot, _comma(PANELS[name]))
+        assert app.screen.query_one("#ph", Input).value == PANELS[name][0].replace(".", ",")
+        refused = [f.spec.name for f in app.screen.query(ValueField) if f.has_class("-refused")]
+        assert refused == []
+        assert processes_line(app) == f"Processes: {labels}"
+        assert app.panel is not None and app.panel.ph == float(PANELS[name][0])
+        # kept, it stays read (the series, and the file the series is saved to)
+        await pilot.press("f5")
+        await pilot.pause()
+        assert app.sitting.entries[0].panel() == app.panel
+        ok, message = app.try_save("csv", str(tmp_path / "s.csv"), None)
+        assert ok, message
+    entries, _ = read_csv(tmp_path / "s.csv")
+    assert entries[0].panel() == app.panel
+
+
+async def test_pco2_5_comma_3_in_mmhg_is_refused_with_the_f2_way_out_and_f2_converts_it():
+    """"5,3" is read as 5.3: outside 8-250 mm[Hg] (acidbase/fields.py) and ordinary in kPa,
+    so the form says how to switch; in kPa, F2 offers 5.3 kPa = 39.75 mm[Hg] (UCUM:
+    1 mm[Hg] = 133.322 Pa)."""
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await pilot.press("7", ",", "4", "0", "tab", "5", ",", "3")
+        await pilot.pause()
+        field = app.screen.query_one("#field-pco2", ValueField)
+        assert field.message == "refused: not in 8-250 mmHg; press F2 for kPa"
+        await pilot.press("f2")  # a refused number: read in kPa as typed
+        await pilot.pause()
+        assert field.unit == "kPa" and field.text == "5,3" and field.message == ""
+        await pilot.press("f2")  # a filled, accepted value: convert or reinterpret?
+        await pilot.pause()
+        assert type(app.screen).__name__ == "UnitScreen"
+        assert str(app.screen.query_one("#convert").render()) == \
+            "C  convert: 39.75 mmHg (the same pCO2)"
+
+
+async def test_a_comma_among_values_with_points_is_refused_in_the_apps_words():
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in(pilot, ("7,40", "40.5", "24.2", "140", "105"))
+        field = app.screen.query_one("#field-ph", ValueField)
+        assert field.message == ("refused: other values have a decimal point; type every "
+                                 "value with the same decimal mark")
+        assert "--decimal" not in field.message
