@@ -139,3 +139,32 @@ async def test_a_comma_among_values_with_points_is_refused_in_the_apps_words():
         assert field.message == ("refused: other values have a decimal point; type every "
                                  "value with the same decimal mark")
         assert "--decimal" not in field.message
+
+
+# -- 4. help and quit are on the key line at 60x20 and 80x24 ------------------------------
+
+@pytest.mark.parametrize("size", [(60, 20), (80, 24)])
+async def test_help_and_quit_are_drawn_on_every_screens_key_line(size):
+    from textual.geometry import Region
+
+    from tui.widgets.chrome import KeyLine
+
+    async def drawn() -> str:
+        line = app.screen.query_one(KeyLine)
+        region = line.region
+        assert app.screen.region.contains_region(region) and region.height == 1
+        strips = line.render_lines(Region(0, 0, region.width, 1))
+        return strips[0].text
+
+    app = make_app(demo=True)
+    async with app.run_test(size=size) as pilot:
+        for open_keys, name in [((), "entry"), (("f9",), "series"), (("ctrl+s",), "save"),
+                                (("f4",), "plane"), (("f8",), "compare"), (("f1",), "help")]:
+            await pilot.press(*open_keys)
+            await pilot.pause()
+            text = await drawn()
+            assert "F1 help" in text and "^Q quit" in text, (name, text)
+            if name != "entry":
+                assert "Esc" in text, (name, text)
+            await pilot.press("escape" if name != "help" else "f1")
+            await pilot.pause()
