@@ -168,3 +168,83 @@ async def test_help_and_quit_are_drawn_on_every_screens_key_line(size):
                 assert "Esc" in text, (name, text)
             await pilot.press("escape" if name != "help" else "f1")
             await pilot.pause()
+
+
+# -- 2, 5, 6. the series list: values as keyed, in their unit and precision; refusals in
+# the app's words ----------------------------------------------------------------------
+
+def _series_cells(app) -> tuple[list[str], list[list[str]]]:
+    from tui.screens.series import SeriesTable
+
+    table = app.screen.query_one(SeriesTable)
+    headings = [str(c.label) for c in table.columns.values()]
+    return headings, [[str(c) for c in table.get_row_at(i)] for i in range(table.row_count)]
+
+
+async def _keep(pilot, ph: str, pco2: str, hco3: str, kpa: bool = False) -> None:
+    """Key in pH, pCO2 (switched to kPa first with F2 when ``kpa``) and HCO3-, and keep."""
+    await pilot.press("ctrl+n", *ph, "tab")
+    if kpa:
+        await pilot.press("f2")
+    await pilot.press(*pco2, "tab", "tab", *hco3, "f5")
+    await pilot.pause()
+
+
+async def test_the_series_shows_a_pco2_keyed_in_kpa_in_kpa_and_says_so():
+    """5.3 kPa was shown as 39.75 (mm[Hg], unlabelled).  5.3 kPa = 39.75 mm[Hg] (UCUM:
+    1 mm[Hg] = 133.322 Pa); with HCO3- 24.2 at pH 7.40 the panel is consistent by
+    Henderson-Hasselbalch (CLSI C46-A2: 0.0307 x 39.75 x 10^(7.40 - 6.105) = 24.1)."""
+    app = make_app()
+    async with app.run_test(size=(100, 24)) as pilot:
+        await _keep(pilot, "7.40", "5.3", "24.2", kpa=True)
+        await pilot.press("f9")
+        await pilot.pause()
+        headings, rows = _series_cells(app)
+        assert headings[5] == "pCO2 kPa" and rows[0][5] == "5.3"
+        await pilot.press("escape")
+        await _keep(pilot, "7.40", "40", "24.2", kpa=True)  # F2 back to mm[Hg]
+        await pilot.press("f9")
+        await pilot.pause()
+        headings, rows = _series_cells(app)
+        assert headings[5] == "pCO2"
+        assert [r[5] for r in rows] == ["5.3 kPa", "40 mmHg"]
+        assert not any("39.7" in cell or "39.8" in cell for r in rows for cell in r)
+
+
+async def test_the_series_shows_ph_to_two_decimals_at_least_and_values_as_reported():
+    """pH 7.40 was shown as "7.4"; a pH is reported to 0.01 at least (PH_MIN_DECIMALS,
+    acidbase/chemistry.py), other values with the decimals they were keyed with."""
+    app = make_app(demo=True)
+    async with app.run_test(size=(100, 30)) as pilot:
+        await _keep(pilot, "7.4", "40", "24.2")
+        await _keep(pilot, "7.355", "40.5", "24")
+        await pilot.press("f9")
+        await pilot.pause()
+        headings, rows = _series_cells(app)
+        assert headings[4:7] == ["pH", "pCO2 mmHg", "HCO3- mmol/L"]
+        assert [r[4:7] for r in rows[-2:]] == [["7.40", "40", "24.2"], ["7.355", "40.5", "24"]]
+        from acidbase.demo import DEMO_PANELS
+        for panel, row in zip(DEMO_PANELS, rows):
+            if row[-1].startswith("refused"):
+                continue
+            assert row[4] == f"{panel['ph']:.2f}", row  # the demo's pH 7.40 is "7.40"
+
+
+async def test_a_refused_kept_panel_says_why_in_the_apps_words_with_the_unit_key():
+    """pCO2 5.3 in mm[Hg] is outside 8-250 mm[Hg] (acidbase/fields.py) and ordinary in
+    kPa: the series says so with the app's key for the unit (F2), not the library's
+    generic hint, built from the refusal's data."""
+    app = make_app()
+    async with app.run_test(size=(100, 24)) as pilot:
+        await _keep(pilot, "7.40", "5.3", "24.2")
+        await pilot.press("f9")
+        await pilot.pause()
+        _, rows = _series_cells(app)
+        assert rows[0][5] == "5.3"
+        assert rows[0][-1] == "refused: pCO2 not in 8-250 mmHg; press F2 for kPa"
+        await pilot.press("escape")
+        await _keep(pilot, "7.40", "40", "")  # no HCO3-: needed
+        await pilot.press("f9")
+        await pilot.pause()
+        _, rows = _series_cells(app)
+        assert rows[1][-1] == "refused: needed: HCO3-"
