@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import math
 from typing import TYPE_CHECKING, ClassVar
 
 from textual.app import ComposeResult
@@ -26,14 +25,19 @@ if TYPE_CHECKING:
 
 SHOWN = ("ph", "pco2", "hco3")
 
+#: The most decimals a value is shown with (``printed_half_step``'s own default).
+MOST_DECIMALS = 3
+
 
 def reported(name: str, value: float) -> str:
     """A measured value at the precision it was reported with: the decimals its number
     carries, as the engine reads a printed value (``chemistry.printed_half_step``), pH to
     at least two (``chemistry.PH_MIN_DECIMALS``): 7.40 is "7.40", 5.3 "5.3", 40 "40"."""
     least = PH_MIN_DECIMALS if name == "ph" else 0
-    step = float(printed_half_step(value, least))
-    decimals = max(least, round(-math.log10(2 * step)))
+    step = float(printed_half_step(value, least, MOST_DECIMALS))
+    # the step is half of 10^-d for the decimals d it found: look d up, compute nothing
+    decimals = next((d for d in range(least, MOST_DECIMALS + 1) if step == 0.5 * 10.0 ** -d),
+                    MOST_DECIMALS)
     return number_text(value, f".{decimals}f")
 
 
