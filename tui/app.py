@@ -134,27 +134,36 @@ class AcidBaseApp(App[None]):
 
     def save(self, kind: str, path: str, reading: acidbase.Interpretation | None,
              data: dict[str, Any] | None = None, replace: bool = False) -> str:
-        """Write the report or the series; returns what to tell the user.
+        """Write the report or the series; returns what to tell the user (``try_save``)."""
+        return self.try_save(kind, path, reading, data, replace)[1]
 
-        An existing file is replaced only when ``replace`` (the user said so).
+    def try_save(self, kind: str, path: str, reading: acidbase.Interpretation | None,
+                 data: dict[str, Any] | None = None, replace: bool = False
+                 ) -> tuple[bool, str]:
+        """Write the report or the series; returns (written, what to tell the user).
+
+        An existing file is replaced only when ``replace`` (the user said so).  A
+        failure names the path and the reason, and leaves the sitting unsaved.
         """
         target = Path(path).expanduser()
         if target.exists() and not replace:
-            return f"Not saved: {target} exists (asked before replacing)."
+            return False, f"Not saved: {target} exists (asked before replacing)."
         try:
             if kind == "csv":
                 written, left_out = write_csv(target, self.sitting.entries)
                 self.sitting.unsaved = False
                 note = (f"; left out (refused, in a unit other than the file's): "
                         f"{', '.join(map(str, left_out))}" if left_out else "")
-                return f"Saved {written} panels to {target}{note}."
+                return True, f"Saved {written} panels to {target}{note}."
             if reading is None:
-                return "Nothing to save yet: no reading."
+                return False, "Nothing to save yet: no reading."
             text = self.report_text(reading, data or {}, markdown=kind == "markdown")
             write_text(target, text)
         except (OSError, OutputError) as e:
-            return f"Not saved: {e}"
-        return f"Saved the report to {target}."
+            reason = str(e)  # the path, where the error does not name it
+            return False, (f"Not saved: {reason}" if str(target) in reason else
+                           f"Not saved: {target}: {reason}")
+        return True, f"Saved the report to {target}."
 
     def load(self, path: str) -> tuple[str, int | None]:
         """Add a series file's panels; returns (message, index of the first one added)."""

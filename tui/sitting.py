@@ -42,22 +42,34 @@ class Entry:
     note: str = ""
     """A free note shown beside the entry (the demo panels carry one); not saved."""
     context: dict[str, Any] | None = None
-    """How its cells are read (``{"decimal": ","}`` for a file with decimal commas)."""
+    """How its cells are read (a file's ``{"decimal": ...}``); None for a panel keyed in the
+    form, whose decimal mark is that of its values as typed (``typed_decimal``)."""
+
+    def reading_context(self) -> dict[str, Any]:
+        """The validation context its cells are read with."""
+        if self.context is not None:
+            return self.context
+        return {"decimal": typed_decimal(self.data)[0]}
 
     def panel(self) -> acidbase.Panel | None:
         """The validated panel, or None when the engine refuses it."""
         try:
-            return acidbase.Panel.model_validate(self.data, context=self.context)
+            return acidbase.Panel.model_validate(self.data, context=self.reading_context())
         except ValidationError:
             return None
 
+    def error(self) -> ValidationError | None:
+        """What the engine refuses, as its structured error (None when accepted)."""
+        try:
+            acidbase.Panel.model_validate(self.data, context=self.reading_context())
+        except ValidationError as e:
+            return e
+        return None
+
     def problems(self) -> list[str]:
         """The engine's messages for what it refuses (empty when accepted)."""
-        try:
-            acidbase.Panel.model_validate(self.data, context=self.context)
-        except ValidationError as e:
-            return acidbase.describe(e)
-        return []
+        error = self.error()
+        return acidbase.describe(error) if error is not None else []
 
     def label(self) -> str:
         """How the entry is named in lists: its time, patient and sample id."""
@@ -122,6 +134,34 @@ class Sitting:
         self.unsaved = True
         if self.current is not None and self.current >= index:
             self.current += 1
+
+
+def typed_decimal(data: dict[str, Any]) -> tuple[str, bool]:
+    """The decimal mark of the values keyed in the form, and whether they mix two marks.
+
+    The form is a source like any file: its decimal mark is found from its values by the
+    library's detection for a CSV file's first rows (``formats.detect_decimal``): ","
+    when the values use a decimal comma ("7,21"), else "."; the one reader then reads
+    every value with it.  Values with a comma and with a point: "." (the values with a
+    comma are then refused by the reader) and True.
+    """
+    from acidbase.errors import BatchInputError
+    from acidbase.files.formats import detect_decimal
+
+    cells = [data[spec.name] for spec in NUMERIC if isinstance(data.get(spec.name), str)]
+    try:
+        # one row of the typed values; the form has no delimiter (a tab stands in for one)
+        return detect_decimal([cells], range(len(cells)), "\t"), False
+    except BatchInputError:
+        return ".", True
+
+
+def typed_number(text: str, decimal: str) -> float | None:
+    """The number a field's text holds, as the one reader reads it (None: none)."""
+    from acidbase.inputs.cells import read_number
+
+    cell = read_number(text, decimal)
+    return None if cell.bad or cell.comparator is not None else cell.value
 
 
 def demo_entries() -> list[Entry]:
@@ -237,7 +277,7 @@ def read_csv(path: str | os.PathLike[str]) -> tuple[list[Entry], list[str]]:
         notes.append("columns not read: " + ", ".join(layout.unread))
     units = {f"{name}_unit": unit for name, unit in layout.units.items()
              if unit != acidbase.fields.BY_NAME[name].unit}
-    context = {"decimal": decimal} if decimal != "." else None
+    context = {"decimal": decimal}  # the file's mark, whatever a row's cells look like
     entries = []
     for table in tables:
         columns = {fld: table.column(h).to_pylist() for h, fld in layout.field_of.items()

@@ -7,8 +7,6 @@ words it.
 
 from __future__ import annotations
 
-import re
-
 from pydantic import ValidationError
 
 import acidbase
@@ -38,34 +36,58 @@ def f2_hint(name: str, value: object, unit: str) -> str:
     return f"press F2 for {unit_label(others[0]) or others[0]}" if others else ""
 
 
-#: A number written with a decimal comma, as typed in a field ("7,21").
-_COMMA = re.compile(r"[+-]?\d+,\d+")
-
-
-def refusal(error: dict, engine_line: str) -> str:
+def refusal(error: dict, engine_line: str, mixed_marks: bool = False) -> str:
     """One refused value in the app's words: "refused: not in 8-200 mmHg; press F2 for kPa".
 
-    The value itself is in the field beside it.
+    The value itself is in the field beside it.  ``mixed_marks``: the form's values use
+    a decimal comma and a decimal point (``sitting.typed_decimal``), so they were read
+    with a point.
     """
+    return f"refused: {refusal_words(error, engine_line, mixed_marks)}"
+
+
+def refusal_words(error: dict, engine_line: str, mixed_marks: bool = False) -> str:
+    """``refusal`` without its leading "refused: " (for a line that names the field)."""
     ctx = error.get("ctx") or {}
     kind = error.get("type")
     if kind == "outside_accepted_range" and {"field", "value", "unit", "low", "high"} <= set(ctx):
         unit = ctx["unit"]
         label = unit_label(unit)
         where = f"{ctx['low']:.4g}-{ctx['high']:.4g}" + (f" {label}" if label else "")
-        line = f"refused: not in {where}"
+        line = f"not in {where}"
         hint = f2_hint(ctx["field"], ctx["value"], unit)
         return f"{line}; {hint}" if hint else line
     if kind == "float_parsing":
-        return f"refused: {error.get('input')!r} is not a number"
+        return f"{error.get('input')!r} is not a number"
     typed = error.get("input")
-    if kind == "not_a_number" and isinstance(typed, str) and _COMMA.fullmatch(typed.strip()):
-        # The library's hint names --decimal, an option the form cannot take.
-        return f"refused: the form reads a decimal point; type {typed.strip().replace(',', '.')}"
-    return f"refused: {on_screen(engine_line)}"
+    if kind == "not_a_number" and mixed_marks and isinstance(typed, str) and "," in typed:
+        # The library's hint names --decimal, an option the form cannot take: the form's
+        # mark is that of its values, one mark for the whole panel.
+        return "other values have a decimal point; type every value with the same decimal mark"
+    return on_screen(engine_line)
 
 
-def problems_by_field(error: ValidationError) -> tuple[dict[str, list[str]], list[str]]:
+def titled_refusals(error: ValidationError, mixed_marks: bool = False) -> list[str]:
+    """Each refusal of a panel in the app's words, led by its field's title where the line
+    does not stand beside the field ("pCO2 not in 8-250 mmHg; press F2 for kPa"), and the
+    required values not given ("needed: HCO3-")."""
+    lines, missing = [], []
+    for e, line in zip(error.errors(include_url=False), acidbase.describe(error)):
+        name = str(e["loc"][0]) if e["loc"] else ""
+        title = BY_NAME[name].title if name in BY_NAME else ""
+        if e["type"] == "missing":
+            missing.append(title or name)
+            continue
+        words = refusal_words(e, line, mixed_marks)
+        # the library's own sentence (another kind of refusal) names the field already
+        lines.append(words if words == on_screen(line) or not title else f"{title} {words}")
+    if missing:
+        lines.append("needed: " + ", ".join(missing))
+    return lines
+
+
+def problems_by_field(error: ValidationError, mixed_marks: bool = False
+                      ) -> tuple[dict[str, list[str]], list[str]]:
     """The app's lines keyed by field ("panel" for the whole), and the missing fields.
 
     ``acidbase.describe`` gives one line per error, in the order of ``errors()``.
@@ -77,5 +99,5 @@ def problems_by_field(error: ValidationError) -> tuple[dict[str, list[str]], lis
         if e["type"] == "missing":
             missing.append(name)
         else:
-            by_field.setdefault(name, []).append(refusal(e, line))
+            by_field.setdefault(name, []).append(refusal(e, line, mixed_marks))
     return by_field, missing

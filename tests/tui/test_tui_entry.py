@@ -239,13 +239,3 @@ async def test_a_panel_given_on_the_command_line_opens_read():
         assert processes_line(app) == EXPECTED["metabolic acidosis"]
 
 
-@pytest.mark.parametrize("typed, point", [("7,21", "7.21"), ("15,4", "15.4")])
-async def test_a_decimal_comma_in_the_form_is_refused_with_the_apps_own_way_out(typed, point):
-    """The form reads a point only; its message said "declares one (--decimal ,)", an
-    option of the command line that the form has no way to take (six lines at 80x24)."""
-    app = make_app()
-    async with app.run_test(size=(80, 24)) as pilot:
-        await replace_value(pilot, "ph" if typed == "7,21" else "hco3", typed)
-        field = app.screen.query_one(f"#field-{'ph' if typed == '7,21' else 'hco3'}", ValueField)
-        assert field.has_class("-refused")
-        assert field.message == f"refused: the form reads a decimal point; type {point}"

@@ -311,3 +311,26 @@ def test_arrows_then_enter_in_a_burst_open_the_row_the_arrows_reached(session):
     _tmux("send-keys", "-t", s, "F9", "Up", "Delete", "F9")  # removes panel 2, not 3
     screen = _wait_for(s, "kept 2 of 2")
     assert form_rows(screen)["pH"][0] == "7.33"
+
+
+def test_a_save_typed_in_one_burst_that_fails_keeps_the_dialog_and_the_typed_path(
+        session, tmp_path):
+    """Ctrl+S, the kind, Tab, the path and Enter in ONE burst: the path lands in the path
+    box (Tab is the dialog's priority key), the save into a missing folder fails, and the
+    dialog stays with the path as typed and why; the corrected path then saves."""
+    s = session(no_color=True)
+    missing = f"no-such-folder-{uuid.uuid4().hex[:6]}/s.csv"  # short: the box shows it whole
+    before = sorted(p.name for p in ROOT.iterdir())
+    _tmux("send-keys", "-t", s, *PANEL_KEYS, "F5", "C-s", "Right", "Right", "Tab", "C-u",
+          str(missing), "Enter")
+    screen = _wait_for(s, "Not saved")
+    flat = _flat(screen.replace("\u2502", " "))  # the dialog's borders out
+    box = next(line for line in screen.splitlines() if "s.csv" in line and "Not saved" not in line)
+    assert box.split("\u258a", 1)[1].split("\u258e")[0].strip() == missing  # the path box
+    assert f"Not saved: series file {missing}: the folder does not exist" in flat
+    assert "the series as CSV" in flat
+    assert sorted(p.name for p in ROOT.iterdir()) == before  # nothing written elsewhere
+    good = tmp_path / "series.csv"
+    _tmux("send-keys", "-t", s, "C-u", str(good), "Enter")
+    _wait_for(s, "Saved 1 panels")
+    assert good.exists()

@@ -31,7 +31,7 @@ from acidbase.fields import BY_NAME, REQUIRED
 
 from ..keys import after_typed_keys
 from ..labels import unit_label, with_unit
-from ..sitting import Entry
+from ..sitting import Entry, typed_decimal, typed_number
 from ..widgets.chrome import CautionBar, KeyLine, TitleLine
 from ..widgets.form import ChoiceField, EntryForm, MoreValues, ValueField
 from ..widgets.reading import FindingList, ReadingPane, VerdictLine, verdict
@@ -156,10 +156,12 @@ class EntryScreen(Screen[None]):
         """Validate the form with the engine and show the reading, or mark it stale."""
         data = self.form.data()
         verdict_line = self.query_one(VerdictLine)
+        # the decimal mark of the values as typed: the one reader reads them with it
+        decimal, mixed = typed_decimal(data)
         try:
-            panel = acidbase.Panel.model_validate(data)
+            panel = acidbase.Panel.model_validate(data, context={"decimal": decimal})
         except ValidationError as e:
-            by_field, missing = problems_by_field(e)
+            by_field, missing = problems_by_field(e, mixed)
             self.form.show_messages(self._with_hints(by_field))
             reasons = []
             if by_field:
@@ -218,9 +220,11 @@ class EntryScreen(Screen[None]):
     def _with_hints(self, by_field: dict[str, list[str]]) -> dict[str, list[str]]:
         """Add "check: press F2 for kPa?" under values also ordinary in another unit."""
         out = dict(by_field)
+        decimal = typed_decimal(self.form.data())[0]
         for f in self.form.fields():
             if f.text and f.spec.name not in by_field:
-                hint = f2_hint(f.spec.name, f.text, f.unit)
+                number = typed_number(f.text, decimal)
+                hint = f2_hint(f.spec.name, number, f.unit) if number is not None else ""
                 if hint:
                     out[f.spec.name] = [f"check: {hint}?"]
         return out
@@ -270,9 +274,12 @@ class EntryScreen(Screen[None]):
             # nothing to convert (or a refused number): the typed number is read in the new unit
             self._switch(field, new)
             return
+        number = typed_number(field.text, typed_decimal(self.form.data())[0])
         try:
-            converted = acidbase.convert(field.spec.name, field.text, field.unit, new)
-            back = acidbase.convert(field.spec.name, field.text, new, field.unit)
+            if number is None:
+                raise ValueError(field.text)
+            converted = acidbase.convert(field.spec.name, number, field.unit, new)
+            back = acidbase.convert(field.spec.name, number, new, field.unit)
         except ValueError:
             self._switch(field, new)
             return
@@ -428,18 +435,21 @@ class EntryScreen(Screen[None]):
     def action_save(self) -> None:
         from .files import SaveScreen
 
-        self.app.push_screen(SaveScreen(self.app.default_names(self.form.data())), self._save)
+        self.app.push_screen(SaveScreen(self.app.default_names(self.form.data()),
+                                        save=self._save_now), self._saved)
 
-    def _save(self, choice: tuple[str, str, bool] | None) -> None:
-        if choice is None:
-            return
-        kind, path, replace = choice
+    def _save_now(self, kind: str, path: str, replace: bool) -> tuple[bool, str]:
+        """The save dialog's saver: (written, what to tell the user)."""
         if kind != "csv":
             why = self._report_refused()
             if why:
-                self.say(f"Not saved. {why}")
-                return
-        self.say(self.app.save(kind, path, self.pane.reading, self.form.data(), replace))
+                return False, f"Not saved. {why}"
+        return self.app.try_save(kind, path, self.pane.reading, self.form.data(), replace)
+
+    def _saved(self, message: str | None) -> None:
+        if message:
+            self.say(message)
+        self.show_title()
 
     @after_typed_keys
     def action_load(self) -> None:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from pathlib import Path
 from typing import ClassVar
 
@@ -33,18 +34,36 @@ class PathInput(OwnKeys, Input):
     """Where to write or read the file."""
 
 
-class SaveScreen(ModalScreen[tuple[str, str, bool] | None]):
-    """Ask what to save and where; returns (kind, path, replace) or None.
+#: Saves ``kind`` to ``path`` (replacing an existing file when the third argument is True);
+#: returns whether the file was written, and what to tell the user.
+Saver = Callable[[str, str, bool], tuple[bool, str]]
 
-    An existing file is replaced only after a yes to the question that names it.
+
+class SaveScreen(ModalScreen[str | None]):
+    """Ask what to save and where, and save it; returns what to tell the user, or None
+    when closed without saving.
+
+    The dialog closes only when the file was written: a failure (the folder, the
+    permission, the disk, a report refused) is said in the dialog, with the kind and
+    the path as typed, so the user corrects the path or presses Esc.  An existing file
+    is replaced only after a yes to the question that names it.
     """
 
-    def __init__(self, names: dict[str, str] | None = None) -> None:
+    def __init__(self, names: dict[str, str] | None = None, save: Saver | None = None) -> None:
         super().__init__()
         self.names = {**KINDS, **(names or {})}
+        self.save = save
 
-    BINDINGS: ClassVar[list[BindingType]] = [Binding("escape", "cancel", "cancel", tooltip="Close without saving.",
-                        id="save-cancel", priority=True)]
+    BINDINGS: ClassVar[list[BindingType]] = [
+        Binding("escape", "cancel", "cancel", tooltip="Close without saving.",
+                id="save-cancel", priority=True),
+        # Priority, as on the entry screen: in a burst ("Right Tab path Enter") the focus
+        # moves when Tab is taken, so the path typed after it lands in the path box.
+        Binding("tab", "next_box", "next", tooltip="Next: the kind, then the file.",
+                id="save-next", show=False, priority=True),
+        Binding("shift+tab", "previous_box", "previous", tooltip="Back to the kind.",
+                id="save-previous", show=False, priority=True),
+    ]
 
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog-area"), Vertical(classes="dialog"):
@@ -53,11 +72,28 @@ class SaveScreen(ModalScreen[tuple[str, str, bool] | None]):
             yield Label(KIND_WORDS["text"], id="kind-words")
             yield Label("File (Enter saves; an existing file is not replaced unasked):")
             yield PathInput(self.names["text"], id="path")
+            yield Label("", id="save-problem", markup=False, classes="-empty")
         yield CautionBar()
         yield KeyLine([*self.BINDINGS, *self.app.BINDINGS])
 
     def on_mount(self) -> None:
         self.query_one(ChoiceField).focus()
+
+    def action_next_box(self) -> None:
+        self.focus_next()
+
+    def action_previous_box(self) -> None:
+        self.focus_previous()
+
+    @property
+    def problem(self) -> str:
+        """What the last failed save said ("" when none)."""
+        return str(self.query_one("#save-problem", Label).content)
+
+    def _say(self, text: str) -> None:
+        label = self.query_one("#save-problem", Label)
+        label.update(text)
+        label.set_class(not text, "-empty")
 
     @on(ChoiceField.Changed)
     def kind_changed(self, event: ChoiceField.Changed) -> None:
@@ -74,16 +110,28 @@ class SaveScreen(ModalScreen[tuple[str, str, bool] | None]):
             return
         kind = self.query_one(ChoiceField).value
         if not Path(path).expanduser().exists():
-            self.dismiss((kind, path, False))
+            self._write(kind, path, False)
             return
         from .confirm import ConfirmScreen
 
         def answered(yes: bool | None) -> None:
             if yes:
-                self.dismiss((kind, path, True))
+                self._write(kind, path, True)
 
         self.app.push_screen(ConfirmScreen(f"{path} exists. Replace it?", "replace it",
                                            "keep it and choose another name"), answered)
+
+    def _write(self, kind: str, path: str, replace: bool) -> None:
+        """Save; close only when written, else say why and stay (nothing typed is lost)."""
+        if self.save is None:  # pragma: no cover - every caller passes its saver
+            self.dismiss(None)
+            return
+        done, message = self.save(kind, path, replace)
+        if done:
+            self.dismiss(message)
+            return
+        self._say(message)
+        self.query_one(PathInput).focus()
 
     def action_cancel(self) -> None:
         self.dismiss(None)

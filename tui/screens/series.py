@@ -10,14 +10,78 @@ from textual.screen import Screen
 from textual.widgets import Static
 
 import acidbase
+from acidbase.chemistry import PH_MIN_DECIMALS, printed_half_step
+from acidbase.fields import BY_NAME
+from acidbase.rules import number_text
 
 from ..keys import after_typed_keys
+from ..labels import unit_label, with_unit
+from ..sitting import Entry, typed_decimal
 from ..widgets.chrome import CautionBar, KeyLine, PlainTable, TitleLine
+from ..words import titled_refusals
 
 if TYPE_CHECKING:
     from ..app import AcidBaseApp
 
 SHOWN = ("ph", "pco2", "hco3")
+
+#: The most decimals a value is shown with (``printed_half_step``'s own default).
+MOST_DECIMALS = 3
+
+
+def reported(name: str, value: float) -> str:
+    """A measured value at the precision it was reported with: the decimals its number
+    carries, as the engine reads a printed value (``chemistry.printed_half_step``), pH to
+    at least two (``chemistry.PH_MIN_DECIMALS``): 7.40 is "7.40", 5.3 "5.3", 40 "40"."""
+    least = PH_MIN_DECIMALS if name == "ph" else 0
+    step = float(printed_half_step(value, least, MOST_DECIMALS))
+    # the step is half of 10^-d for the decimals d it found: look d up, compute nothing
+    decimals = next((d for d in range(least, MOST_DECIMALS + 1) if step == 0.5 * 10.0 ** -d),
+                    MOST_DECIMALS)
+    return number_text(value, f".{decimals}f")
+
+
+def shown_values(entry: Entry, panel: acidbase.Panel | None) -> list[tuple[str, str]]:
+    """The series' values of an entry as (number, unit), each in the unit it was keyed in:
+    an accepted panel's numbers as the reader read them, a refused one's text as typed."""
+    out = []
+    for name in SHOWN:
+        if panel is not None:
+            value = getattr(panel, name)
+            unit = getattr(panel, f"{name}_unit")
+            out.append(("", unit) if value is None else (reported(name, value), unit))
+        else:
+            typed = entry.data.get(name)
+            unit = entry.data.get(f"{name}_unit") or BY_NAME[name].unit
+            out.append(("" if typed in (None, "") else str(typed).strip(), unit))
+    return out
+
+
+def unit_columns(rows: list[list[tuple[str, str]]]) -> tuple[list[str], list[list[str]]]:
+    """The value columns' headings and cells: a column whose values share one unit says it
+    in its heading ("pCO2 kPa"), one of mixed units beside each value ("5.3 kPa")."""
+    headings, columns = [], []
+    for j, name in enumerate(SHOWN):
+        cells = [row[j] for row in rows]
+        units = {unit for text, unit in cells if text}
+        if len(units) <= 1:
+            unit = next(iter(units), BY_NAME[name].unit)
+            label = unit_label(unit)
+            headings.append(f"{BY_NAME[name].title} {label}".strip())
+            columns.append([text for text, _ in cells])
+        else:
+            headings.append(BY_NAME[name].title)
+            columns.append([with_unit(text, unit) if text else "" for text, unit in cells])
+    return headings, [list(r) for r in zip(*columns)] if rows else []
+
+
+def refused_words(entry: Entry) -> str:
+    """Why the engine refuses an entry, in the app's words, from its structured error."""
+    error = entry.error()
+    if error is None:
+        return ""
+    mixed = entry.context is None and typed_decimal(entry.data)[1]
+    return "refused: " + "; ".join(titled_refusals(error, mixed))
 
 
 class SeriesTable(PlainTable):
@@ -54,32 +118,32 @@ class SeriesScreen(Screen[int | None]):
         yield KeyLine([*self.BINDINGS, *self.app.BINDINGS])
 
     def on_mount(self) -> None:
-        table = self.query_one(SeriesTable)
-        table.add_columns("#", "collected", "patient", "sample",
-                          *(acidbase.fields.BY_NAME[n].title for n in SHOWN), "reading")
         self.fill()
-        table.focus()
+        self.query_one(SeriesTable).focus()
 
     def fill(self) -> None:
         table = self.query_one(SeriesTable)
-        table.clear()
+        table.clear(columns=True)
         s = self.app.sitting
-        for i, entry in enumerate(s.entries):
+        values, readings = [], []
+        for entry in s.entries:
             panel = entry.panel()
+            values.append(shown_values(entry, panel))
             if panel is None:
-                values = [str(entry.data.get(n, "")) for n in SHOWN]
-                reading = "refused: " + "; ".join(entry.problems())
+                reading = refused_words(entry)
             else:
-                canonical = panel.canonical()
-                values = [f"{canonical[n]:.4g}" for n in SHOWN]
                 it = acidbase.interpret(panel, self.app.settings)
                 reading = "; ".join(d.label() for d in it.disorders) or "none"
                 if it.consistency and it.consistency.status != "consistent":
                     reading = f"{it.consistency.status}; {reading}"
+            readings.append(reading)
+        headings, cells = unit_columns(values)
+        table.add_columns("#", "collected", "patient", "sample", *headings, "reading")
+        for i, entry in enumerate(s.entries):
             mark = ">" if i == s.current else " "
             table.add_row(f"{mark}{i + 1}", entry.data.get("collected_at", ""),
                           entry.data.get("patient_id", ""), entry.data.get("sample_id", ""),
-                          *values, reading, key=str(i))
+                          *cells[i], readings[i], key=str(i))
         if s.current is not None and s.entries:
             table.move_cursor(row=s.current)
         self.query_one("#series-note", Static).update(

@@ -44,14 +44,48 @@ def key_words(keys: str, short: bool = False) -> str:
     return " / ".join(out)
 
 
+#: Keys the key line shows at any width: help, quit (the app's keys) and the way back (Esc).
+ALWAYS_SHOWN_IDS = frozenset({"help", "quit"})
+
+
+def _always(binding: Binding) -> bool:
+    return binding.id in ALWAYS_SHOWN_IDS or "escape" in binding.key.split(",")
+
+
 class KeyLine(Static):
-    """The screen's main keys in one line (a plain line: it does not follow the focus)."""
+    """The screen's main keys in one line (a plain line: it does not follow the focus).
+
+    Help (F1), quit (Ctrl+Q) and the way back (Esc) are shown at any width; the screen's
+    other keys fill the rest of the line, in their order, as many as fit (F1 lists them
+    all).  At 60 columns the entry screen's line ran past the edge and hid Ctrl+Q."""
 
     def __init__(self, bindings: list[Binding], **kwargs) -> None:
-        shown = [b for b in bindings if b.show]
-        text = "  ".join(f"{key_words(b.key.split(',')[0], short=True)} {b.description}"
-                         for b in shown)
-        super().__init__(text, markup=False, classes="key-line", **kwargs)
+        self.items = [(f"{key_words(b.key.split(',')[0], short=True)} {b.description}",
+                       _always(b)) for b in bindings if b.show]
+        super().__init__(self.fitted(10_000), markup=False, classes="key-line", **kwargs)
+
+    def fitted(self, width: int) -> str:
+        """The keys that fit in ``width`` cells: every key that is always shown, then the
+        others in order while they fit."""
+        gap = 2
+        used = sum(len(text) for text, always in self.items if always)
+        used += gap * max(0, sum(1 for _, always in self.items if always) - 1)
+        shown = []
+        for text, always in self.items:
+            if always:
+                shown.append(text)
+            elif used + gap + len(text) <= width:
+                shown.append(text)
+                used += gap + len(text)
+        return (" " * gap).join(shown)
+
+    @property
+    def text(self) -> str:
+        """The line as drawn at the widget's width."""
+        return self.fitted(self.content_region.width or 10_000)
+
+    def on_resize(self) -> None:
+        self.update(self.text)
 
 
 class PlainTable(OwnKeys, DataTable):
