@@ -8,7 +8,7 @@ from datetime import datetime
 
 import pytest
 from textual.widgets import Input
-from tui_helpers import PANELS, key_in, processes_line, replace_value
+from tui_helpers import PANELS, keep_two, key_in, processes_line, replace_value
 
 import acidbase
 from acidbase.demo import DEMO_PANELS
@@ -18,15 +18,6 @@ from tui.screens.compare import CompareScreen, CompareTable
 from tui.screens.series import SeriesScreen, SeriesTable
 from tui.sitting import COLUMNS, Entry, read_csv, write_csv
 from tui.widgets.reading import ReadingPane
-
-
-async def keep_two(pilot) -> None:
-    """Key in and keep an acute, then a chronic respiratory acidosis (serial gases)."""
-    await key_in(pilot, PANELS["acute respiratory acidosis"])
-    await pilot.press("f5", "ctrl+n")
-    await key_in(pilot, PANELS["chronic respiratory acidosis"])
-    await pilot.press("f5")
-    await pilot.pause()
 
 
 async def test_keeping_adds_the_panel_and_moving_shows_each_in_turn():

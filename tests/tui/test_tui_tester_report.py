@@ -11,21 +11,13 @@ import csv
 
 import pytest
 from textual.widgets import Input
-from tui_helpers import PANELS, key_in, processes_line
+from tui_helpers import PANELS, keep_two, key_in, processes_line
 
 import acidbase
 from tui.app import make_app
 from tui.screens.files import SaveScreen
 from tui.sitting import read_csv
 from tui.widgets.form import ChoiceField, ValueField
-
-
-async def _keep_two(pilot) -> None:
-    await key_in(pilot, PANELS["acute respiratory acidosis"])
-    await pilot.press("f5", "ctrl+n")
-    await key_in(pilot, PANELS["chronic respiratory acidosis"])
-    await pilot.press("f5")
-    await pilot.pause()
 
 
 def _status(app) -> str:
@@ -38,7 +30,7 @@ async def test_a_failed_series_save_keeps_the_dialog_and_the_typed_path_and_says
     missing = tmp_path / "no-such-folder" / "series.csv"
     app = make_app()
     async with app.run_test(size=(80, 24)) as pilot:
-        await _keep_two(pilot)
+        await keep_two(pilot)
         # one burst: open the dialog, choose CSV, type the path, Enter
         await pilot.press("ctrl+s", "right", "right", "tab", "ctrl+u", *str(missing), "enter")
         await pilot.pause()
@@ -68,7 +60,7 @@ async def test_a_series_save_that_fails_mid_write_keeps_the_dialog(tmp_path, mon
 
     app = make_app()
     async with app.run_test(size=(80, 24)) as pilot:
-        await _keep_two(pilot)
+        await keep_two(pilot)
         monkeypatch.setattr(csv.DictWriter, "writerows", full_disk)
         await pilot.press("ctrl+s", "right", "right", "tab", "ctrl+u", *str(target), "enter")
         await pilot.pause()

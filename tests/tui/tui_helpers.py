@@ -37,6 +37,15 @@ async def key_in(pilot: Pilot, values: tuple[str, ...]) -> None:
     await pilot.pause()
 
 
+async def keep_two(pilot: Pilot) -> None:
+    """Key in and keep an acute, then a chronic respiratory acidosis (serial gases)."""
+    await key_in(pilot, PANELS["acute respiratory acidosis"])
+    await pilot.press("f5", "ctrl+n")
+    await key_in(pilot, PANELS["chronic respiratory acidosis"])
+    await pilot.press("f5")
+    await pilot.pause()
+
+
 async def replace_value(pilot: Pilot, name: str, text: str) -> None:
     """Focus field ``name`` with Tab from pH, clear it and type ``text``."""
     app = pilot.app
