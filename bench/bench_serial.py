@@ -230,6 +230,18 @@ def phases_in(tree: str, day2: str, store: str | None) -> dict[str, float]:
         report = f.name
     env = dict(os.environ, ACIDBASE_BENCH_TREE=tree, PYTHONPATH=tree,
                ACIDBASE_HISTORY_KEY="bench-only-site-key-0123456789abcdef")
+    # The command's process settings (acidbase/process.py), which this file cannot make
+    # for itself (it loads numpy and pyarrow before it knows it is the child): without
+    # them Arrow's own work and pyarrow's calls use two memory pools, and the store's
+    # commit takes fresh pages that the command does not (docs/performance.md, "Session 8").
+    env.setdefault("OPENBLAS_NUM_THREADS", "1")
+    try:
+        from acidbase.process import arrow_has_jemalloc
+    except ImportError:  # (a checkout from before they existed)
+        pass
+    else:
+        if arrow_has_jemalloc():
+            env.setdefault("ARROW_DEFAULT_MEMORY_POOL", "jemalloc")
     subprocess.run([sys.executable, str(HERE / "bench_serial.py"), "--phases-json", report,
                     day2, store or ""], check=True, env=env)
     with open(report) as f:
