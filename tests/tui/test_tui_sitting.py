@@ -85,6 +85,24 @@ async def test_compare_shows_two_panels_side_by_side_with_their_differences():
         assert not isinstance(app.screen, CompareScreen)
 
 
+async def test_compare_shows_ph_to_two_decimals_as_reported():
+    """7.40 and 7.30, not 7.4 and 7.3 (pH is reported to two decimals at least:
+    chemistry.PH_MIN_DECIMALS), and their difference to two decimals."""
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await key_in(pilot, ("7.40", "40", "24.2", "140", "104"))
+        await pilot.press("f5", "ctrl+n")
+        await key_in(pilot, ("7.30", "40", "19.2", "140", "104"))
+        await pilot.press("f5")
+        await pilot.pause()
+        await pilot.press("f8")
+        await pilot.pause()
+        table = app.screen.query_one(CompareTable)
+        rows = {str(table.get_row_at(i)[0]): [str(c) for c in table.get_row_at(i)[1:]]
+                for i in range(table.row_count)}
+        assert rows["pH"] == ["7.40", "7.30", "-0.10", ""]
+
+
 async def test_compare_needs_two_panels_and_says_so():
     app = make_app()
     async with app.run_test(size=(80, 24)) as pilot:

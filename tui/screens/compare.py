@@ -10,12 +10,14 @@ from textual.screen import Screen
 from textual.widgets import Static
 
 import acidbase
+from acidbase.chemistry import PH_MIN_DECIMALS
 from acidbase.fields import NUMERIC
 from acidbase.report import DERIVED_LABELS
 from acidbase.rules import number_text
 
 from ..labels import unit_label
 from ..widgets.chrome import CautionBar, KeyLine, PlainTable, TitleLine
+from .series import reported
 
 if TYPE_CHECKING:
     from ..app import AcidBaseApp
@@ -93,7 +95,13 @@ class CompareScreen(Screen[None]):
         cb = pb.canonical() if pb else {}
         for spec in NUMERIC:
             va, vb = ca.get(spec.name), cb.get(spec.name)
-            if va is not None or vb is not None:
+            if va is None and vb is None:
+                continue
+            if spec.name == "ph":  # to two decimals at least, as reported (7.40, not 7.4)
+                table.add_row(spec.title, "" if va is None else reported("ph", va),
+                              "" if vb is None else reported("ph", vb),
+                              _change(va, vb, f".{PH_MIN_DECIMALS}f"), "")
+            else:
                 table.add_row(spec.title, _num(va), _num(vb), _change(va, vb), unit_label(spec.unit))
         sa = ia.consistency.status if ia and ia.consistency else "refused"
         sb = ib.consistency.status if ib and ib.consistency else "refused"
