@@ -1,4 +1,5 @@
-"""Words for people: unit labels, short titles and the form's order (display only).
+"""Words for people: unit labels, short titles, the form's order and measured numbers
+as reported (display only).
 
 Files and the library keep UCUM codes (``mm[Hg]``, ``1``, ``a``); the screen shows
 what a respiratory therapist reads on the analyser printout.
@@ -6,7 +7,9 @@ what a respiratory therapist reads on the analyser printout.
 
 from __future__ import annotations
 
+from acidbase.chemistry import PH_MIN_DECIMALS, printed_half_step
 from acidbase.fields import BY_NAME, NUMERIC
+from acidbase.rules import number_text
 
 #: UCUM code -> the label on screen.  A unit not listed is shown as its code.
 UNIT_LABELS: dict[str, str] = {
@@ -67,3 +70,19 @@ def rest() -> tuple[str, ...]:
     """Every other numeric field, in the library's order (new fields land here)."""
     shown = set(GAS + AFTER_GAS + ELECTROLYTES)
     return tuple(s.name for s in NUMERIC if s.name not in shown)
+
+
+#: The most decimals a value is shown with (``printed_half_step``'s own default).
+MOST_DECIMALS = 3
+
+
+def reported(name: str, value: float) -> str:
+    """A measured value at the precision it was reported with: the decimals its number
+    carries, as the engine reads a printed value (``chemistry.printed_half_step``), pH to
+    at least two (``chemistry.PH_MIN_DECIMALS``): 7.40 is "7.40", 5.3 "5.3", 40 "40"."""
+    least = PH_MIN_DECIMALS if name == "ph" else 0
+    step = float(printed_half_step(value, least, MOST_DECIMALS))
+    # the step is half of 10^-d for the decimals d it found: look d up, compute nothing
+    decimals = next((d for d in range(least, MOST_DECIMALS + 1) if step == 0.5 * 10.0 ** -d),
+                    MOST_DECIMALS)
+    return number_text(value, f".{decimals}f")

@@ -15,9 +15,8 @@ from acidbase.fields import NUMERIC
 from acidbase.report import DERIVED_LABELS
 from acidbase.rules import number_text
 
-from ..labels import unit_label
+from ..labels import reported, unit_label
 from ..widgets.chrome import CautionBar, KeyLine, PlainTable, TitleLine
-from .series import reported
 
 if TYPE_CHECKING:
     from ..app import AcidBaseApp

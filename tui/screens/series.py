@@ -10,12 +10,10 @@ from textual.screen import Screen
 from textual.widgets import Static
 
 import acidbase
-from acidbase.chemistry import PH_MIN_DECIMALS, printed_half_step
 from acidbase.fields import BY_NAME
-from acidbase.rules import number_text
 
 from ..keys import after_typed_keys
-from ..labels import unit_label, with_unit
+from ..labels import reported, unit_label, with_unit
 from ..sitting import Entry, typed_decimal
 from ..widgets.chrome import CautionBar, KeyLine, PlainTable, TitleLine
 from ..words import titled_refusals
@@ -24,22 +22,6 @@ if TYPE_CHECKING:
     from ..app import AcidBaseApp
 
 SHOWN = ("ph", "pco2", "hco3")
-
-#: The most decimals a value is shown with (``printed_half_step``'s own default).
-MOST_DECIMALS = 3
-
-
-def reported(name: str, value: float) -> str:
-    """A measured value at the precision it was reported with: the decimals its number
-    carries, as the engine reads a printed value (``chemistry.printed_half_step``), pH to
-    at least two (``chemistry.PH_MIN_DECIMALS``): 7.40 is "7.40", 5.3 "5.3", 40 "40"."""
-    least = PH_MIN_DECIMALS if name == "ph" else 0
-    step = float(printed_half_step(value, least, MOST_DECIMALS))
-    # the step is half of 10^-d for the decimals d it found: look d up, compute nothing
-    decimals = next((d for d in range(least, MOST_DECIMALS + 1) if step == 0.5 * 10.0 ** -d),
-                    MOST_DECIMALS)
-    return number_text(value, f".{decimals}f")
-
 
 def shown_values(entry: Entry, panel: acidbase.Panel | None) -> list[tuple[str, str]]:
     """The series' values of an entry as (number, unit), each in the unit it was keyed in:
