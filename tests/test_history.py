@@ -806,3 +806,27 @@ def test_one_commit_of_many_tables_stores_what_a_commit_of_each_stores(tmp_path)
         db.close()
     assert len(dumps[0][0]) > 40 and len(dumps[0][1]) == 16
     assert dumps[0] == dumps[1]
+
+
+def test_a_new_store_has_large_pages_and_an_older_one_keeps_its_own(tmp_path, capsys):
+    """The page size of a new store (history.PAGE_BYTES; SQLite documentation,
+    "PRAGMA page_size": 512 to 65536, set while the file is empty).  A store made with
+    SQLite's default pages, as by an earlier version, is read and added to as before."""
+    def page_size(path: Path) -> int:
+        with sqlite3.connect(path) as db:
+            return db.execute("PRAGMA page_size").fetchone()[0]
+
+    new = tmp_path / "new.db"
+    assert run(capsys, panels(tmp_path / "a.csv", [("S1", "P-1", 1.5, 140)]), new)[0] == 0
+    assert page_size(new) == history.PAGE_BYTES == 65536
+    old = tmp_path / "old.db"
+    s = history.Store(str(old), history.site_key())  # made as before the setting
+    s.close()
+    with sqlite3.connect(old) as db:  # rewritten with the default pages
+        db.execute("PRAGMA page_size = 4096")
+        db.execute("VACUUM")
+    assert page_size(old) == 4096
+    assert run(capsys, panels(tmp_path / "b.csv", [("S1", "P-1", 1.5, 140)]), old)[0] == 0
+    rc, rows, err = run(capsys, panels(tmp_path / "c.csv", [("S2", "P-1", 1.0, 155)]), old)
+    assert rc == 0 and rows[0]["serial_codes"] == "SERIAL-DELTA-NA"
+    assert page_size(old) == 4096 and count(old) == (2, 2)
