@@ -71,6 +71,46 @@ async def test_a_series_save_that_fails_mid_write_keeps_the_dialog(tmp_path, mon
         assert app.sitting.unsaved and not target.exists()
 
 
+async def test_a_failed_load_keeps_the_dialog_and_the_typed_path_and_says_why(tmp_path):
+    """As a failed save: a missing file, then a file with no panels, each said in the
+    dialog with the path as typed; corrected in place, Enter loads and the dialog closes."""
+    from tui.screens.files import LoadScreen
+
+    missing = tmp_path / "no-such-series.csv"
+    empty = tmp_path / "empty.csv"
+    empty.write_text("ph,pco2,hco3\n")
+    good = tmp_path / "series.csv"
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await keep_two(pilot)
+        ok, message = app.try_save("csv", str(good), None)
+        assert ok, message
+        app.sitting.entries.clear()
+        # one burst: open the dialog, type the path, Enter
+        await pilot.press("ctrl+o", "ctrl+u", *str(missing), "enter")
+        await pilot.pause()
+        assert isinstance(app.screen, LoadScreen), "the dialog closed on a failed load"
+        dialog = app.screen
+        assert dialog.query_one("#path", Input).value == str(missing)
+        assert str(missing) in dialog.problem and "Not loaded" in dialog.problem
+        assert dialog.query_one("#load-problem").display
+        assert app.focused is dialog.query_one("#path", Input)
+        await pilot.press("ctrl+u", *str(empty), "enter")
+        await pilot.pause()
+        assert isinstance(app.screen, LoadScreen)
+        assert app.screen.problem == f"{empty} holds no panels."
+        assert app.sitting.entries == []
+        await pilot.press("ctrl+u", *str(good), "enter")
+        await pilot.pause()
+        assert not isinstance(app.screen, LoadScreen)
+        assert len(app.sitting.entries) == 2 and app.sitting.current == 0
+        assert f"Loaded 2 panels from {good}" in _status(app)
+        # Esc closes it without loading anything
+        await pilot.press("ctrl+o", "escape")
+        await pilot.pause()
+        assert not isinstance(app.screen, LoadScreen) and len(app.sitting.entries) == 2
+
+
 # -- 1. a decimal comma typed in the form is read by the one reader ---------------------
 
 def _comma(values: tuple[str, ...]) -> tuple[str, ...]:

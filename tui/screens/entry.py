@@ -455,13 +455,13 @@ class EntryScreen(Screen[None]):
     def action_load(self) -> None:
         from .files import LoadScreen
 
-        self.app.push_screen(LoadScreen(), self._load)
+        self.app.push_screen(LoadScreen(self.app.load), self._loaded)
 
-    def _load(self, path: str | None) -> None:
-        if not path:
+    def _loaded(self, done: tuple[str, int] | None) -> None:
+        """After the load dialog: the first panel added, opened (None: nothing added)."""
+        if done is None:
             return
-        message, first = self.app.load(path)
-        if first is not None:
-            self.app.sitting.current = first
-            self.load_entry(self.app.sitting.entries[first])
+        message, first = done
+        self.app.sitting.current = first
+        self.load_entry(self.app.sitting.entries[first])
         self.say(message)

@@ -137,11 +137,26 @@ class SaveScreen(ModalScreen[str | None]):
         self.dismiss(None)
 
 
-class LoadScreen(ModalScreen[str | None]):
-    """Ask for a series file; returns its path or None."""
+#: Loads the series file at a path; returns what to tell the user and the index of the
+#: first panel added (None when nothing was added: the file is missing, unreadable or empty).
+Loader = Callable[[str], tuple[str, int | None]]
+
+
+class LoadScreen(ModalScreen[tuple[str, int] | None]):
+    """Ask for a series file and load it; returns (what to tell the user, the index of
+    the first panel added), or None when closed without loading.
+
+    As the save dialog: it closes only when panels were added.  A file that is
+    missing, unreadable or holds no panels is said in the dialog, with the path as
+    typed, so the user corrects it or presses Esc.
+    """
 
     BINDINGS: ClassVar[list[BindingType]] = [Binding("escape", "cancel", "cancel", tooltip="Close without loading.",
                         id="load-cancel", priority=True)]
+
+    def __init__(self, load: Loader | None = None) -> None:
+        super().__init__()
+        self.load = load
 
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog-area"), Vertical(classes="dialog"):
@@ -149,17 +164,31 @@ class LoadScreen(ModalScreen[str | None]):
                         classes="dialog-title")
             yield Label("File (Enter loads; its panels are added after those kept):")
             yield PathInput(KINDS["csv"], id="path")
+            yield Label("", id="load-problem", markup=False, classes="-empty")
         yield CautionBar()
         yield KeyLine([*self.BINDINGS, *self.app.BINDINGS])
 
     def on_mount(self) -> None:
         self.query_one(PathInput).focus()
 
+    @property
+    def problem(self) -> str:
+        """What the last failed load said ("" when none)."""
+        return str(self.query_one("#load-problem", Label).content)
+
     @on(Input.Submitted, "#path")
     def submit(self) -> None:
         path = self.query_one(PathInput).value.strip()
-        if path:
-            self.dismiss(path)
+        if not path or self.load is None:
+            return
+        message, first = self.load(path)
+        if first is not None:
+            self.dismiss((message, first))
+            return
+        label = self.query_one("#load-problem", Label)  # stay: nothing typed is lost
+        label.update(message)
+        label.set_class(False, "-empty")
+        self.query_one(PathInput).focus()
 
     def action_cancel(self) -> None:
         self.dismiss(None)
