@@ -830,3 +830,19 @@ def test_a_new_store_has_large_pages_and_an_older_one_keeps_its_own(tmp_path, ca
     rc, rows, err = run(capsys, panels(tmp_path / "c.csv", [("S2", "P-1", 1.0, 155)]), old)
     assert rc == 0 and rows[0]["serial_codes"] == "SERIAL-DELTA-NA"
     assert page_size(old) == 4096 and count(old) == (2, 2)
+
+
+@pytest.mark.parametrize("make", ["folder", "missing folder"])
+def test_a_store_path_that_cannot_be_a_file_is_refused_naming_it(tmp_path, capsys, make):
+    """The path, a colon, then the system's words, as every command says it (it said
+    "store.db Is a directory"); nothing written, exit 2."""
+    src = panels(tmp_path / "a.csv", [("S1", "P-1", 1.5, 140)])
+    store = tmp_path / ("store.db" if make == "folder" else "no-such-folder/store.db")
+    if make == "folder":
+        store.mkdir()
+    out = tmp_path / "o.csv"
+    rc = main(["batch", str(src), "-o", str(out), "--history", str(store), "--quiet"])
+    err = capsys.readouterr().err
+    assert rc == 2 and not out.exists()
+    words = "Is a directory" if make == "folder" else "No such file or directory"
+    assert f"could not run: {store}: {words}; nothing written" in err, err
