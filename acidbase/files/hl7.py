@@ -36,12 +36,15 @@ from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from typing import ClassVar
 
+import numpy as np
 import pyarrow as pa
 
 from .. import loinc
 from .. import units as _units
 from ..errors import BatchInputError, Problem
 from ..fields import BY_NAME, REQUIRED
+from ..inputs.cells import number_hint, read_number
+from ..inputs.panel import describe_value, range_problems
 from .source import Source
 
 FORMAT = "hl7"
@@ -65,7 +68,6 @@ HCO3_SOURCE = {"1960-4": "analyser", "14627-4": "analyser", "1959-6": "analyser"
 NUMERIC_TYPES = ("NM", "SN")
 
 _SEGMENT_ID = re.compile(r"^[A-Z][A-Z0-9]{2}$")
-_NM = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)$")  # HL7 NM: sign, digits, decimal point
 _DTM = re.compile(r"^(\d{4})(\d{2})?(\d{2})?(\d{2})?(\d{2})?(\d{2}(?:\.\d{1,4})?)?([+-]\d{4})?$")
 
 
@@ -355,18 +357,6 @@ def _sample_type(p: Panel) -> str:
     return "unknown"
 
 
-def _number(text: str) -> tuple[str, float, str] | None:
-    """(comparator, number, flag) of an HL7 value cell, or None when it is not one."""
-    parts = text.split(" ")
-    flag = parts[1] if len(parts) == 2 else ""
-    body = parts[0]
-    cmp = re.match(r"^(<=|>=|<|>)?", body)[0]
-    num = body[len(cmp):]
-    if len(parts) > 2 or not _NM.match(num):
-        return None
-    return cmp, float(num), flag
-
-
 def to_table(reading: Reading) -> tuple[pa.Table, list[str], dict[int, tuple[Problem, ...]]]:
     """The panels as one table of text cells for the reader, notes for the summary, and
     the problems the messages carry, by row."""
@@ -416,16 +406,31 @@ def _refused_whole(p: Panel) -> bool:
 
 
 def _canonical_cell(p: Panel, name: str) -> str | None:
+    """The cell of ``name`` in the field's canonical unit, for a field whose results came
+    in more than one unit (one column takes one unit).  The cell is read by the one cell
+    reader in the unit its OBX-6 states, and only a value it reads is converted; a cell
+    it refuses, or a value outside the accepted range in its own unit, is refused here
+    in that unit (with the hint of the unit where it would be ordinary), as data, and
+    left out of the column (never passed on unconverted)."""
     if name not in p.values:
         return None
     text, unit, _, _ = p.values[name]
-    got = _number(text)
-    if got is None:
-        return text  # the reader refuses it, naming the cell
-    cmp, value, flag = got
     spec = BY_NAME[name]
-    canonical = value * _units.factor(name, spec.kind, unit)
-    return f"{cmp}{canonical!r}" + (f" {flag}" if flag else "")
+    cell = read_number(text)
+    number = cell
+    if cell.comparator:  # a censored value: its limit, read by the same reader
+        number = read_number(text.strip()[len(cell.comparator):])
+    if cell.bad or number.bad or number.value is None:
+        if cell.bad or number.bad:
+            p.problems.append(Problem(name, spec.title, text, unit, kind="not_a_number",
+                                      hint=number_hint(text, ".", unit, name, spec.units)))
+        return None
+    canonical, bad = range_problems(spec, np.array([number.value]), unit)
+    if bad[0] and not cell.comparator:
+        p.problems.append(describe_value(spec, number.value, unit))
+        return None
+    flag = number.flag
+    return f"{cell.comparator or ''}{float(canonical[0])!r}" + (f" {flag}" if flag else "")
 
 
 class Hl7Source(Source):

@@ -226,6 +226,9 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None, *
                                           if p and 0 <= int(i) < n}
     if problems:
         refused[np.fromiter(problems, dtype=np.int64)] = True
+    # (row, field) already refused before the cells (an HL7 value refused in the unit its
+    # message states, then left out): not also said to be "not given".
+    told = {(i, p.field) for i, found in problems.items() for p in found}
 
     def add(rows: np.ndarray, make) -> None:
         for i in np.flatnonzero(rows).tolist():
@@ -278,6 +281,8 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None, *
             add(censored, lambda i, s=spec, c=code, p=p: censored_problem(
                 s, cell_text(p, i), c))
             missing_rows = np.isnan(raw) & ~p.bad & ~censored
+            if told:
+                missing_rows[[i for i, f in told if f == spec.name]] = False
             add(missing_rows, lambda i, s=spec, c=code: Problem(s.name, s.title, None, c,
                                                                 kind="missing"))
             bad = bad | missing_rows | censored

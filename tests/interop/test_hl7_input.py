@@ -254,3 +254,37 @@ def test_deleted_and_wrong_results_are_skipped_and_counted(tmp_path, capsys):
     assert rows[0]["status"] == "interpreted"
     assert "k (mmol/L)" not in rows[0] and "lactate (mmol/L)" not in rows[0]
     assert "2 result(s) skipped by status (X/D/W) D 1, W 1" in err
+
+
+def _pco2_message(n: int, value: str, unit: str) -> list[str]:
+    return [msh("20260301101500+0100", f"M{n}"), f"PID|1||P{n}",
+            f"OBR|1||S{n}|24336-0^Gas panel^LN|||202603011{n:03d}",
+            obx(1, "NM", "2744-1^pH^LN", "7.40", "[pH]"),
+            obx(2, "NM", "2019-8^pCO2^LN", value, unit),
+            obx(3, "NM", "1960-4^HCO3^LN", "24", "mmol/L")]
+
+
+def test_a_field_in_two_units_is_read_by_the_one_reader_in_each_cells_unit(tmp_path, capsys):
+    """pCO2 in kPa in one message and mm[Hg] in another (one column takes one unit, so
+    each cell is taken to mm[Hg]).  Each cell is read by the one cell reader in the unit
+    its OBX-6 states: full-width digits are refused, not converted (docs/input.md); an
+    exponent is read, then converted (1e1 kPa was passed on unconverted and read as
+    10 mm[Hg]); a value impossible in its own unit is refused in that unit with the
+    hint (40 kPa was refused as "300 mm[Hg]", with no hint).  UCUM: 1 kPa =
+    7.50062 mm[Hg] (value from memory; acidbase.units holds the factor)."""
+    segs = (_pco2_message(1, "5.3", "kPa") + _pco2_message(2, "\uff14\uff10", "mm[Hg]")
+            + _pco2_message(3, "1e1", "kPa") + _pco2_message(4, "40", "kPa")
+            + _pco2_message(5, "\uff15.\uff13", "kPa") + _pco2_message(6, "40", "mm[Hg]"))
+    rows, _ = _batch(capsys, tmp_path, write_spool(tmp_path / "mixed.hl7", segs), "o")
+    assert len(rows) == 6 and [r["message"] for r in rows] == ["1", "2", "3", "4", "5", "6"]
+    assert [r["status"] for r in rows] == ["interpreted", "refused", "interpreted", "refused",
+                                           "refused", "interpreted"]
+    assert float(rows[0]["pco2 (mm[Hg])"]) == pytest.approx(5.3 * 7.50062, abs=1e-3)
+    assert float(rows[2]["pco2 (mm[Hg])"]) == pytest.approx(10 * 7.50062, abs=1e-3)
+    assert "only the digits 0-9 are read" in rows[1]["reason"]
+    assert rows[4]["reason"] == ("pCO2 (pco2) '\uff15.\uff13' is not a number - only the digits "
+                                 "0-9 are read; digits of other scripts are refused, not converted")
+    assert rows[3]["reason"] == (
+        "pCO2 (pco2) 40 kPa is outside the accepted range 1.067 to 33.33 kPa - pCO2 would be "
+        "ordinary at this value in mm[Hg]: if that is the unit, state it (pco2 unit mm[Hg]), "
+        "the value was not converted")
