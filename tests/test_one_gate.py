@@ -16,6 +16,7 @@ import json
 import subprocess
 import sys
 from contextlib import redirect_stderr, redirect_stdout
+from decimal import Decimal
 
 import numpy as np
 import pyarrow as pa
@@ -231,6 +232,32 @@ def test_numbers_and_missing_markers_read_alike_in_panel_and_library(cell, read)
     assert r[0].derived["anion_gap_k"] == (pytest.approx(read) if read else None)
     assert acidbase.interpret(acidbase.Panel(**BASE, k=cell)).derived["anion_gap_k"] == (
         pytest.approx(read) if read else None)
+
+
+@pytest.mark.parametrize(("cell", "read"), [
+    (Decimal("4.0"), 16.0), (Decimal("4"), 16.0), (Decimal("0.4E+1"), 16.0),
+    (Decimal("NaN"), "not_a_number"), (Decimal("sNaN"), "not_a_number"),
+    (Decimal("-Infinity"), "not_a_number"),
+    (Decimal("1E+400"), "not_a_number"), (Decimal("40"), "outside_accepted_range"),
+])
+def test_a_python_decimal_reads_as_an_arrow_decimal_column_does(cell, read):
+    """A database's NUMERIC values come to Python as ``decimal.Decimal``: read as the
+    number it is, as a decimal128 Arrow column of it is (was refused as "not a
+    number", with the generic hint); NaN, infinity and values beyond the
+    floating-point range are refused as any such number is (docs/input.md)."""
+    cols = {k: [v] for k, v in BASE.items()}
+    r = acidbase.interpret_many({**cols, "k": [cell]})
+    if isinstance(read, str):
+        assert [p.kind for p in r[0].problems] == [read]
+        with pytest.raises(Exception) as info:
+            acidbase.Panel(**BASE, k=cell)
+        assert [e["type"] for e in info.value.errors()] == [read]
+        return
+    assert r[0].derived["anion_gap_k"] == pytest.approx(read)
+    arrow = acidbase.interpret_many({**cols, "k": pa.array([cell], pa.decimal128(5, 2))})
+    assert arrow[0].derived["anion_gap_k"] == pytest.approx(read)
+    assert acidbase.interpret(acidbase.Panel(**BASE, k=cell)).derived["anion_gap_k"] == (
+        pytest.approx(read))
 
 
 def test_a_clean_row_beside_nan_is_read():

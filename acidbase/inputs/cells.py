@@ -21,6 +21,8 @@ message whatever way it came in.  The policy, as docs/input.md states it:
 * Not measured: an empty cell, None, a floating-point NaN, or a token declared
   with ``--missing`` (compared after trimming spaces).  The words "NA", "nan",
   "inf" are not numbers and refuse the row unless declared missing.
+* A Python ``Decimal`` (a database's NUMERIC) is the number it writes, as an Arrow
+  decimal column is.
 * Refused: yes/no values (``True``, a boolean column), non-finite numbers,
   integers beyond the floating-point range, digits of other scripts (full-width,
   Arabic-Indic: refused, never converted), digit grouping, anything else.
@@ -33,6 +35,7 @@ import math
 import re
 from collections.abc import Sequence
 from dataclasses import dataclass
+from decimal import Decimal
 from types import ModuleType
 from typing import TYPE_CHECKING, Any
 
@@ -542,12 +545,16 @@ def _object_numbers(cells: list[Any], decimal: str, missing: Sequence[str]) -> P
         elif isinstance(c, str):
             texts[i] = c
             vals[i], cmps[i], flags[i], bad[i] = _text_cell(c, decimal, missing)
-        elif isinstance(c, (int, np.integer, float, np.floating)):
+        elif isinstance(c, (int, np.integer, float, np.floating, Decimal)):
+            # a Decimal (a database's NUMERIC) is the number it writes, as an Arrow
+            # decimal column is; its text as written ("7.40") for messages
             texts[i] = repr(c) if isinstance(c, float) else str(c)[:40]
             try:
-                v = float(c)
+                v = float(c)  # a Decimal NaN or infinity, or 1E+400, is not finite
             except OverflowError:  # an integer beyond the floating-point range
                 v = math.inf
+            except ValueError:  # a signalling Decimal NaN
+                v = math.nan
             if math.isfinite(v):
                 vals[i] = v
             else:
