@@ -39,6 +39,7 @@ from . import units as _units
 from .engine import SLOTS
 from .errors import AcidBaseError
 from .fields import BY_NAME
+from .inputs.cells import read_setting
 from .fileio import BatchInputError, Layout, Source
 from .files import hl7, scratch
 from .files.check import (EXTRA_COLUMNS, ROW_COLUMN, check_chunk, field_column,  # noqa: F401
@@ -96,11 +97,8 @@ def _delta_overrides(items: list[str]) -> dict[str, float | None]:
         if v.lower() == "off":
             out[k] = None
             continue
-        try:
-            lim = float(v)
-        except ValueError:
-            lim = float("nan")
-        if not np.isfinite(lim) or lim <= 0:
+        lim = read_setting(v)  # the one reader: '１０', '1_0' and 'inf' are no limit
+        if lim is None or lim <= 0:
             raise BatchInputError(f"--delta {k}={v}: the limit must be a positive number in "
                                   f"{BY_NAME[k].unit}, or 'off'")
         out[k] = lim

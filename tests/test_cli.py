@@ -283,3 +283,41 @@ def test_the_app_without_a_terminal_says_so_instead_of_waiting_unseen(stdin, std
     assert r.returncode == 2
     assert "acidbase: tui needs a terminal" in r.stderr and "acidbase check" in r.stderr
     assert r.stdout == ""
+
+
+@pytest.mark.parametrize(("command", "option", "value"), [
+    ("check", "--reference-albumin", "\uff14\uff14"),       # full-width digits
+    ("check", "--reference-albumin", "4_4"),                # digit grouping
+    ("check", "--reference-albumin", "nan"),
+    ("check", "--anion-gap-interval", "\uff16"),
+    ("batch", "--window-hours", "inf"),
+    ("batch", "--window-hours", "1e400"),                   # beyond the float range
+    ("batch", "--window-hours", "\uff12\uff14"),
+    ("batch", "--chunk-rows", "\uff18"),
+    ("batch", "--chunk-rows", "1_0"),
+    ("batch", "--chunk-rows", "2.5"),
+    ("batch", "--delta", "pco2=\uff11\uff10"),
+    ("batch", "--delta", "ph=1_0"),
+])
+def test_a_setting_given_as_an_option_is_read_as_a_value_is(tmp_path, command, option, value):
+    """A number given to a setting (the anion-gap interval, the reference albumin, the
+    serial window, a delta limit, the chunk size) is read by the one cell reader, as a
+    panel value is (docs/input.md): other scripts' digits, digit grouping and
+    non-finite numbers are refused, naming the option and the text (they were read by
+    Python's float(): '４４' as 44, '1_0' as 10, and --window-hours inf was taken)."""
+    data = tmp_path / "in.csv"
+    data.write_text("ph,pco2,hco3\n7.40,40,24\n", encoding="utf-8")
+    values = [value, "20"] if option == "--anion-gap-interval" else [value]
+    args = ([*BASE, option, *values] if command == "check"
+            else [str(data), "-o", str(tmp_path / "out.csv"), option, *values])
+    r = run(command, *args)
+    assert r.returncode == 2, r.stdout
+    assert repr(value) in r.stderr or value in r.stderr
+    assert option.lstrip("-").split("-")[0] in r.stderr
+    assert "Traceback" not in r.stderr
+    assert not (tmp_path / "out.csv").exists()
+
+
+def test_a_setting_written_as_an_ordinary_number_is_read():
+    r = run("check", *BASE, "--reference-albumin", "+4.0e1 ", "--anion-gap-interval", "8", "16")
+    assert r.returncode == 0, r.stderr

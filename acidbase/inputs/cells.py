@@ -667,6 +667,17 @@ def read_number(cell: object, decimal: str = ".", missing: Sequence[str] = ()) -
                       bool(p.bad[0]), p.cell(0))
 
 
+def read_setting(text: object) -> float | None:
+    """A number given to a setting (an option's value: the anion-gap interval, the serial
+    window, a delta limit, a count), read by ``read_number`` as a panel value is, and
+    plain: no comparator, no laboratory flag, finite.  None when it is not one (other
+    scripts' digits, digit grouping, NaN and infinity words, nothing)."""
+    cell = read_number(text)
+    if cell.bad or cell.comparator or cell.flag or cell.value is None:
+        return None
+    return cell.value
+
+
 #: A number with a word after it that may be a unit ("5.3 kPa", "40mmHg", "40 mm Hg").
 _NUMBER_THEN_WORDS = re.compile(r"(?:[<>]=?)?\s*[+-]?[0-9.,]*[0-9]\s*(?P<after>[^\s0-9].*)")
 
