@@ -828,3 +828,30 @@ def test_a_batch_run_keeps_freed_heap_memory_unless_the_user_set_glibc_malloc(
         assert not heap.keys() & params.keys()
     else:
         assert {k: params.get(k) for k in heap} == heap
+
+
+def test_a_parquet_bytes_column_is_copied_as_text_or_refused_by_name(tmp_path, capsys):
+    """A Parquet column of bytes (BYTE_ARRAY without the UTF-8 annotation, as some older
+    writers store text) passed through: CSV and JSON Lines carry it as the same text
+    (JSON Lines wrote Python's "b'S-1'"); bytes that are not UTF-8 cannot be text, so a
+    CSV or JSON Lines output is refused naming the column and the row, and Parquet
+    keeps them (the run said "the file could not be read (Invalid UTF8 payload)")."""
+    good, bad = tmp_path / "good.parquet", tmp_path / "bad.parquet"
+    base = {"ph": [7.40, 7.40], "pco2": [40.0, 40.0], "hco3": [24.0, 24.0]}
+    pq.write_table(pa.table({**base, "note": pa.array([b"S-1", None], pa.binary())}), good)
+    pq.write_table(pa.table({**base, "note": pa.array([b"ok", b"\xff\xfe"], pa.binary())}), bad)
+    rc, err = batch(capsys, good, "-o", tmp_path / "g.csv")
+    assert rc == 0, err
+    assert [r["note"] for r in rows_of(tmp_path / "g.csv")] == ["S-1", ""]
+    rc, err = batch(capsys, good, "-o", tmp_path / "g.jsonl")
+    assert rc == 0, err
+    lines = (tmp_path / "g.jsonl").read_text(encoding="utf-8").splitlines()
+    assert [json.loads(x)["note"] for x in lines] == ["S-1", None]
+    for name in ("b.csv", "b.jsonl"):
+        rc, err = batch(capsys, bad, "-o", tmp_path / name)
+        assert rc == 2 and not (tmp_path / name).exists()
+        assert "column 'note'" in err and "row 2" in err and "not UTF-8" in err, err
+        assert "Parquet" in err
+    rc, err = batch(capsys, bad, "-o", tmp_path / "b.parquet")
+    assert rc == 0, err
+    assert pq.read_table(tmp_path / "b.parquet")["note"].to_pylist() == [b"ok", b"\xff\xfe"]

@@ -379,6 +379,37 @@ def csv_rows(table: pa.Table, decimals: Mapping[str, int], escape: Collection[st
     return sink.getvalue()  # Arrow's buffer: no copy into bytes
 
 
+def _bytes_as_text(table: pa.Table, fmt: str) -> pa.Table:
+    """``table`` with its columns of bytes (Parquet's BYTE_ARRAY without the UTF-8
+    annotation, passed through) as the text they hold, for the text formats; bytes that
+    are not UTF-8 cannot be written as text: refused, naming the column and the row."""
+    for i, t in enumerate(table.schema.types):
+        if not (pa.types.is_binary(t) or pa.types.is_large_binary(t)):
+            continue
+        name = table.column_names[i]
+        try:
+            text = table.column(i).cast(pa.string())
+        except pa.ArrowInvalid:
+            cells = table.column(i).to_pylist()
+            at = next(k for k, c in enumerate(cells) if c is not None and not _utf8(c))
+            row = table.column("row")[at].as_py() if "row" in table.column_names else at + 1
+            raise OutputError(
+                f"column {name!r} holds bytes that are not UTF-8 text (row {row}: "
+                f"{cells[at][:20]!r}); {'CSV' if fmt == 'csv' else 'JSON Lines'} output "
+                "carries text only: write Parquet (-o NAME.parquet), which keeps the bytes"
+            ) from None
+        table = table.set_column(i, name, text)
+    return table
+
+
+def _utf8(data: bytes) -> bool:
+    try:
+        data.decode("utf-8")
+    except UnicodeDecodeError:
+        return False
+    return True
+
+
 class Writer:
     """Writes output tables in one format; the schema is fixed by the first table.
 
@@ -449,6 +480,8 @@ class Writer:
         ``plain``: columns of this table the caller has read cell by cell and found
         to hold only numbers or its own vocabulary, so escaping would change nothing.
         """
+        if self.fmt != "parquet":
+            table = _bytes_as_text(table, self.fmt)
         if self.fmt == "csv":  # derived values and labels as text: the schema says text
             from ..csvtext import compiled_csv
 
