@@ -475,14 +475,33 @@ def test_bad_choice_message_is_the_kernels_own(tmp_path, capsys):
     assert reason == kernel.reasons[0]
 
 
-def test_header_without_rows_could_not_run(tmp_path, capsys):
+@pytest.mark.parametrize("text", ["ph,pco2,hco3,na,cl\n", "ph,pco2,hco3,na,cl",
+                                  "ph;pco2;hco3;na;cl", "ph,pco2,hco3,na,cl\r"])
+def test_header_without_rows_could_not_run(tmp_path, capsys, text):
+    """A header line alone, with or without its line end: "no rows" (without one it was
+    Arrow's "Empty CSV file or block: cannot infer number of columns")."""
     f = tmp_path / "empty.csv"
-    f.write_text("ph,pco2,hco3,na,cl\n")
+    f.write_bytes(text.encode())
     (tmp_path / "o.csv").write_bytes(b"previous\n")
     rc, err = batch(capsys, f, "-o", tmp_path / "o.csv")
     assert rc == 2 and "no rows" in err
     assert (tmp_path / "o.csv").read_bytes() == b"previous\n"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["empty.csv", "o.csv"]
+
+
+def test_an_input_that_is_no_file_is_named_for_what_it_is(tmp_path, capsys):
+    """A folder, or a pipe (``<(cat file)``, read once, where a run reads its file more than
+    once), as INPUT: said so, with what to give (both said "no such file")."""
+    (tmp_path / "d").mkdir()
+    os.mkfifo(tmp_path / "pipe")
+    for given, words in ((tmp_path / "d", "d: is a folder; name a file"),
+                         (tmp_path / "pipe", "pipe: is not a regular file (a pipe or a device); "
+                                             "give - to read standard input"),
+                         (tmp_path / "nothing.csv", "nothing.csv: no such file")):
+        for fmt in ((), ("--format", "hl7")):
+            rc, err = batch(capsys, given, *fmt, "-o", tmp_path / "o.csv")
+            assert rc == 2 and words in err, err
+            assert not (tmp_path / "o.csv").exists()
 
 
 def test_columns_left_unescaped_never_start_like_a_formula(tmp_path, capsys):

@@ -45,7 +45,7 @@ from ..errors import BatchInputError, Problem
 from ..fields import BY_NAME, REQUIRED
 from ..inputs.cells import number_hint, read_number
 from ..inputs.panel import describe_value, range_problems
-from .source import Source
+from .source import Source, not_a_file
 
 FORMAT = "hl7"
 CODES_COLUMN = "hl7_codes"
@@ -77,6 +77,8 @@ def looks_like_hl7(path: str, given: str | None = None) -> bool:
         return given == FORMAT
     if path.lower().endswith((".hl7", ".oru")):
         return True
+    if not os.path.isfile(path):  # a pipe would block the look (open_source says what it is)
+        return False
     try:
         with open(path, "rb") as f:
             head = f.read(64)
@@ -454,7 +456,7 @@ class Hl7Source(Source):
 def open_source(path: str, encoding: str = "utf-8", chunk_rows: int = 1 << 14) -> Hl7Source:
     """Open a spool for ``acidbase batch``."""
     if not os.path.isfile(path):
-        raise BatchInputError(f"{path}: no such file")
+        raise BatchInputError(not_a_file(path))
     reading = read_spool(path, encoding)
     if not reading.panels:
         raise BatchInputError(f"{path}: no HL7 v2 messages (a message starts with MSH|)")

@@ -117,6 +117,9 @@ class Source:
                 if not multiline and ("Expected" in text or "straddling" in text):
                     multiline = True  # a quoted line break the sample did not show
                     continue
+                if given == 0 and "Empty CSV file" in text:
+                    # a header line with no line end after it, and nothing more
+                    raise BatchInputError(f"{self.path}: no rows") from None
                 raise BatchInputError(f"{self.path}: {_csv_error(text, self)}") from None
 
     def _csv_pass(self, cols: list[str], on_progress, block: int, multiline: bool,
@@ -339,7 +342,7 @@ def open_source(path: str | os.PathLike[str], fmt: str | None = None, delimiter:
     """Open INPUT: format, delimiter and headers (decimal is set after mapping)."""
     p = str(path)
     if not os.path.isfile(p):
-        raise BatchInputError(f"{p}: no such file")
+        raise BatchInputError(not_a_file(p))
     fmt = detect_format(p, fmt)
     size = os.path.getsize(p)
     if fmt == "csv":
@@ -368,6 +371,18 @@ def open_source(path: str | os.PathLike[str], fmt: str | None = None, delimiter:
     src.missing = tuple(missing)
     src.chunk_rows = max(1, int(chunk_rows))
     return src
+
+
+def not_a_file(path: str) -> str:
+    """Why ``path`` cannot be read as an input file: no such file, a folder, or something
+    that is not a regular file (a pipe, a device: read once, while a run reads its file
+    more than once)."""
+    if os.path.isdir(path):
+        return f"{path}: is a folder; name a file"
+    if os.path.exists(path):
+        return (f"{path}: is not a regular file (a pipe or a device); give - to read "
+                "standard input")
+    return f"{path}: no such file"
 
 
 def unique_headers(headers: Sequence[str]) -> tuple[tuple[str, ...], tuple[str, ...]]:
