@@ -1010,8 +1010,8 @@ def run(args: argparse.Namespace) -> int:
     except AcidBaseError as e:  # BatchInputError, and the library's own (settings, units)
         message = str(e)
     except OSError as e:
-        where = f" {e.filename}" if getattr(e, "filename", None) else ""
-        message = f"{where.strip()} {e.strerror or e}".strip()
+        where = f"{e.filename}: " if getattr(e, "filename", None) else ""
+        message = f"{where}{e.strerror or e}"
     except (pa.ArrowInvalid, pa.ArrowTypeError, UnicodeDecodeError) as e:
         message = f"the file could not be read ({e})"
     except Exception as e:  # noqa: BLE001 - a defect: one line, still nothing written

@@ -178,6 +178,22 @@ def test_a_full_disk_on_standard_output_is_named_not_a_traceback(command):
 
 
 @pytest.mark.skipif(not Path("/dev/full").exists(), reason="no /dev/full here")
+@pytest.mark.parametrize("fmt", ["csv", "jsonl"])
+def test_batch_into_a_full_disk_names_standard_output(tmp_path, fmt):
+    """``acidbase batch in.csv > /dev/full`` said "could not run: No space left on device",
+    naming no file (the input could be blamed); it names standard output, as check does."""
+    data = tmp_path / "in.csv"
+    data.write_text("ph,pco2,hco3\n7.40,40,24\n", encoding="utf-8")
+    with open("/dev/full", "w") as full:
+        r = subprocess.run([sys.executable, "-m", "acidbase", "batch", str(data), "--quiet",
+                            "--output-format", fmt], stdout=full, stderr=subprocess.PIPE,
+                           text=True, cwd=ROOT, timeout=120)
+    assert r.returncode == 2, r.stderr
+    assert "Traceback" not in r.stderr and "Exception ignored" not in r.stderr
+    assert "could not run: standard output: No space left on device" in r.stderr, r.stderr
+
+
+@pytest.mark.skipif(not Path("/dev/full").exists(), reason="no /dev/full here")
 @pytest.mark.parametrize("command", [["--help"], ["batch", "--help"], ["history", "--help"],
                                      ["--version"], ["check", "--version"]])
 def test_help_and_version_into_a_full_disk_fail_with_one_line(command):

@@ -379,6 +379,36 @@ def csv_rows(table: pa.Table, decimals: Mapping[str, int], escape: Collection[st
     return sink.getvalue()  # Arrow's buffer: no copy into bytes
 
 
+class _StandardOutput:
+    """Standard output's bytes, a refused write (``> /dev/full``, a full disk) raised
+    with the name "standard output", so the run's message says where it failed; a
+    closed pipe (``BrokenPipeError``) passes as it is."""
+
+    closed = False
+
+    def __init__(self, raw: BinaryIO) -> None:
+        self.raw = raw
+
+    def writable(self) -> bool:
+        return True
+
+    def write(self, data) -> int:
+        try:
+            return self.raw.write(data)
+        except BrokenPipeError:
+            raise
+        except OSError as e:
+            raise OSError(e.errno, e.strerror, "standard output") from e
+
+    def flush(self) -> None:
+        try:
+            self.raw.flush()
+        except BrokenPipeError:
+            raise
+        except OSError as e:
+            raise OSError(e.errno, e.strerror, "standard output") from e
+
+
 def _bytes_as_text(table: pa.Table, fmt: str) -> pa.Table:
     """``table`` with its columns of bytes (Parquet's BYTE_ARRAY without the UTF-8
     annotation, passed through) as the text they hold, for the text formats; bytes that
@@ -461,7 +491,8 @@ class Writer:
                                    quoting_style="needed")
 
     def _open(self, schema: pa.Schema) -> None:
-        self._sink = self._given if self._given is not None else sys.stdout.buffer
+        self._sink = self._given if self._given is not None else _StandardOutput(
+            sys.stdout.buffer)
         if callable(self.metadata):
             self.metadata = dict(self.metadata())
         self.schema = schema.with_metadata(self.metadata) if self.metadata else schema
