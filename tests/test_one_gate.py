@@ -358,3 +358,19 @@ def test_a_very_long_cell_is_shown_shortened_with_its_length_on_every_path(tmp_p
                         *[f"--{k}={v}" for k, v in BASE.items()], f"--k={cell}"],
                        capture_output=True, text=True, timeout=120)
     assert r.returncode == 2 and lib_message in r.stderr
+
+
+@pytest.mark.parametrize(("cell", "hint"), [
+    ("1_400", "digit grouping is not read"),
+    ("1 400", "digit grouping is not read"),
+    ("snake_case", "expected a number in mmol/L"),
+    ("K_4.0", "expected a number in mmol/L"),
+    (np.bytes_(b"4.0"), "expected a number in mmol/L"),
+])
+def test_the_hint_of_a_refused_cell_says_what_is_wrong_with_it(cell, hint):
+    """Digit grouping is digits either side of a separator; an underscore elsewhere (a
+    word, a numpy bytes value's name) is no grouping (each was told "digit grouping is
+    not read; write the number without separators")."""
+    r = acidbase.interpret_many({**{k: [v] for k, v in BASE.items()}, "k": [cell]})
+    assert [p.kind for p in r[0].problems] == ["not_a_number"]
+    assert hint in r[0].problems[0].hint

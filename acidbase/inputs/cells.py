@@ -700,7 +700,7 @@ def number_hint(cell: object, decimal: str, unit: str, field: str = "",
         return "a number beyond the floating-point range is no measurement"
     if any(ch.isdigit() and not "0" <= ch <= "9" for ch in text):
         return "only the digits 0-9 are read; digits of other scripts are refused, not converted"
-    if "_" in text or re.search(r"[0-9] [0-9]", text):
+    if re.search(r"[0-9][_ ][0-9]", text):
         return "digit grouping is not read; write the number without separators"
     if decimal == "." and "," in text:
         return ("a comma is not read as digit grouping, nor as a decimal mark unless the "
