@@ -787,6 +787,26 @@ def test_a_utf16_file_is_named_with_the_encoding_that_reads_it(tmp_path, capsys)
     assert rc == 0 and [r["status"] for r in rows_of(out)] == ["interpreted"]
 
 
+@pytest.mark.parametrize("codec", ["utf-16-le", "utf-16-be"])
+def test_a_utf16_file_without_its_mark_is_named_with_the_encoding_that_reads_it(
+        tmp_path, capsys, codec):
+    """UTF-16 text without a byte-order mark decodes as UTF-8 (ASCII and NUL bytes), so the
+    run said "no column for required field(s)", listing headers like 'p\\x00h\\x00'; a
+    sample with every other byte NUL is named UTF-16, with the encoding to give.  One NUL
+    byte in a cell is still read (that row refused)."""
+    src = tmp_path / "export.csv"
+    src.write_bytes("ph,pco2,hco3\r\n7.40,40,24\r\n".encode(codec))
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, src, "-o", out, "--quiet")
+    assert rc == 2 and f"give --encoding {codec}" in err and not out.exists(), err
+    rc, err = batch(capsys, src, "-o", out, "--quiet", "--encoding", codec)
+    assert rc == 0 and [r["status"] for r in rows_of(out)] == ["interpreted"], err
+    one = tmp_path / "one.csv"
+    one.write_bytes(b"ph,pco2,hco3\n7.40,4\x000,24\n7.40,40,24\n")
+    rc, err = batch(capsys, one, "-o", out, "--quiet")
+    assert rc == 0 and [r["status"] for r in rows_of(out)] == ["refused", "interpreted"]
+
+
 @pytest.mark.parametrize("option", ["-o", "--summary"])
 def test_the_site_file_is_never_an_output(tmp_path, capsys, option):
     """``--config site.toml --summary site.toml`` overwrote the laboratory's site file

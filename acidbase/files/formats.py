@@ -82,6 +82,14 @@ def _read_text_sample(path: str | os.PathLike[str], encoding: str, size: int = 1
         # A spreadsheet's "Unicode text" export: its byte-order mark says UTF-16.
         raise BatchInputError(f"{path}: the file is UTF-16 text (it starts with a UTF-16 "
                               "byte-order mark); give --encoding utf-16")
+    if codec == "utf-8-sig" and len(raw) >= 8:
+        # UTF-16 without its mark decodes as UTF-8 (ASCII and NUL bytes): every other
+        # byte NUL says which half; a NUL byte or two in a cell says nothing.
+        for half, name in ((raw[1::2], "utf-16-le"), (raw[0::2], "utf-16-be")):
+            if half.count(0) >= 0.9 * len(half):
+                raise BatchInputError(
+                    f"{path}: the file looks like UTF-16 text without a byte-order mark "
+                    f"(every other byte is 0); give --encoding {name}")
     try:
         text = raw.decode(codec)
     except UnicodeDecodeError as e:
