@@ -292,12 +292,17 @@ def cmd_check(args: argparse.Namespace) -> int:
         if isinstance(panel, int):
             return panel
         emit(check_bundle_json(panel, it, site, started) + "\n")
-    elif args.json:
-        doc = it.to_dict()
+        return EXIT_OK
+    # The ids given (they were read only into the FHIR Bundle: the text and JSON readings
+    # carried no sign of the panel they were of).
+    identity = {name: getattr(args, name) for name in TEXT_FIELDS
+                if getattr(args, name, None) is not None}
+    if args.json:
+        doc = {**it.to_dict(), **identity}  # the ids given, as demo --json names them
         doc["audit"] = audit.record(site, started)
         emit(json.dumps(doc, indent=2, ensure_ascii=False, allow_nan=False) + "\n")
     else:
-        emit(as_text(it, working=not args.brief))
+        emit(as_text(it, working=not args.brief, identity=identity))
     return EXIT_OK
 
 

@@ -337,3 +337,21 @@ def test_a_setting_given_as_an_option_is_read_as_a_value_is(tmp_path, command, o
 def test_a_setting_written_as_an_ordinary_number_is_read():
     r = run("check", *BASE, "--reference-albumin", "+4.0e1 ", "--anion-gap-interval", "8", "16")
     assert r.returncode == 0, r.stderr
+
+
+def test_check_shows_the_ids_it_was_given_in_text_and_json():
+    """--sample-id, --patient-id and --collected-at were read only into the FHIR Bundle:
+    the text and JSON readings carried no sign of which panel they were of.  They are
+    shown as given; a control character (a terminal escape) is written as an escape."""
+    ids = ["--sample-id", "S-77\x1b[2J", "--patient-id", "P-9", "--collected-at",
+           "2024-01-01T10:00"]
+    r = run("check", "--brief", *BASE, *ids)
+    assert r.returncode == 0, r.stderr
+    assert ("Sample id: S-77\\x1b[2J; Patient id: P-9; Collected at: 2024-01-01T10:00"
+            in r.stdout)
+    assert "\x1b" not in r.stdout
+    r = run("check", "--json", *BASE, *ids)
+    doc = json.loads(r.stdout)
+    assert (doc["sample_id"], doc["patient_id"], doc["collected_at"]) == (
+        "S-77\x1b[2J", "P-9", "2024-01-01T10:00")
+    assert "sample_id" not in json.loads(run("check", "--json", *BASE).stdout)
