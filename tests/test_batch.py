@@ -894,3 +894,33 @@ def test_a_parquet_bytes_column_is_copied_as_text_or_refused_by_name(tmp_path, c
     rc, err = batch(capsys, bad, "-o", tmp_path / "b.parquet")
     assert rc == 0, err
     assert pq.read_table(tmp_path / "b.parquet")["note"].to_pylist() == [b"ok", b"\xff\xfe"]
+
+
+def test_a_pregnancy_column_is_read_as_check_reads_the_option(tmp_path, capsys):
+    """The ``pregnancy`` column was mapped but never handed to the kernel: a
+    third-trimester panel read against the adult intervals in a file (a respiratory
+    alkalosis) and against the third-trimester ones by ``check --pregnancy`` (none;
+    Abbassi-Ghanavati, Greer & Cunningham 2009, acidbase.reference), and a word outside
+    the vocabulary ("banana", a JSON false) was passed over unread."""
+    src = tmp_path / "preg.csv"
+    src.write_text("ph,pco2,hco3,pregnancy\n7.44,31,21,third_trimester\n7.44,31,21,no\n"
+                   "7.44,31,21,banana\n7.44,31,21,\n", encoding="utf-8")
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, src, "-o", out, "--profile", "full")
+    assert rc == 0, err
+    rows = rows_of(out)
+    library = acidbase.interpret_many({"ph": [7.44] * 4, "pco2": [31] * 4, "hco3": [21] * 4,
+                                       "pregnancy": ["third_trimester", "no", "banana", None]})
+    assert [r["status"] for r in rows] == ["interpreted", "interpreted", "refused",
+                                           "interpreted"]
+    assert "T-PREGNANCY-INTERVALS" in rows[0]["finding_codes"].split(";")
+    assert "T-PREGNANCY-INTERVALS" not in rows[1]["finding_codes"].split(";")
+    for row, it in zip(rows, library):
+        assert row["disorders"] == "; ".join(d.label() for d in it.disorders)
+        assert row["reason"] == "; ".join(map(str, it.problems))
+    assert "Pregnancy (pregnancy) 'banana' is not one of" in rows[2]["reason"]
+    jsonl = tmp_path / "preg.jsonl"
+    jsonl.write_text('{"ph": 7.44, "pco2": 31, "hco3": 21, "pregnancy": false}\n',
+                     encoding="utf-8")
+    rc, err = batch(capsys, jsonl, "-o", out)
+    assert rc == 0 and rows_of(out)[0]["status"] == "refused", err
