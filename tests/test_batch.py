@@ -924,3 +924,25 @@ def test_a_pregnancy_column_is_read_as_check_reads_the_option(tmp_path, capsys):
                      encoding="utf-8")
     rc, err = batch(capsys, jsonl, "-o", out)
     assert rc == 0 and rows_of(out)[0]["status"] == "refused", err
+
+
+def test_json_lines_take_the_encoding_option_as_csv_does(tmp_path, capsys):
+    """JSON Lines were always decoded as UTF-8, whatever --encoding said, and a byte that
+    is not UTF-8 stopped the run with Python's words ("the file could not be read ('utf-8'
+    codec can't decode byte 0xe9 ...)"); a UTF-16 export likewise.  They are read in the
+    encoding given, and refused as a CSV file is, naming the encoding to give."""
+    line = '{"ph": 7.40, "pco2": 40, "hco3": 24, "sample_id": "Sé-1"}\n'
+    latin, utf16 = tmp_path / "latin.jsonl", tmp_path / "utf16.jsonl"
+    latin.write_bytes(line.encode("latin-1"))
+    utf16.write_bytes(line.encode("utf-16"))
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, latin, "-o", out)
+    assert rc == 2 and "is not utf-8 text" in err and "--encoding" in err, err
+    assert "codec can't decode" not in err and not out.exists()
+    rc, err = batch(capsys, utf16, "-o", out)
+    assert rc == 2 and "give --encoding utf-16" in err and not out.exists(), err
+    for path, encoding in ((latin, "latin-1"), (utf16, "utf-16")):
+        rc, err = batch(capsys, path, "-o", out, "--encoding", encoding)
+        assert rc == 0, err
+        row = rows_of(out)[0]
+        assert (row["status"], row["sample_id"]) == ("interpreted", "Sé-1")

@@ -174,7 +174,7 @@ class Source:
         # typed JSON reader refuses; records are read here and kept as text.
         f = _CountingReader(open(self.path, "rb"))
         try:
-            lines = io.TextIOWrapper(io.BufferedReader(f), encoding="utf-8-sig")
+            lines = io.TextIOWrapper(io.BufferedReader(f), encoding=text_codec(self.encoding))
             buf: list[dict] = []
             row = 0
             for lineno, line in enumerate(lines, start=1):
@@ -296,14 +296,35 @@ def _records_to_batch(records: list[dict], cols: list[str],
     return pa.RecordBatch.from_arrays(arrays, names=cols)
 
 
-def jsonl_headers(path: str | os.PathLike[str]) -> tuple[str, ...]:
-    """Keys of a JSON Lines file, in order of first appearance (one pass)."""
+def text_codec(encoding: str) -> str:
+    """The codec a file's text is read with: UTF-8 with or without its byte-order mark
+    for ``utf-8``, else the encoding given (``--encoding``)."""
+    return "utf-8-sig" if encoding.lower().replace("_", "-") in ("utf-8", "utf8") else encoding
+
+
+def jsonl_headers(path: str | os.PathLike[str], encoding: str = "utf-8") -> tuple[str, ...]:
+    """Keys of a JSON Lines file, in order of first appearance (one pass).  The text is
+    read in ``encoding`` (``--encoding``, as a CSV file's); bytes it cannot decode stop
+    the run naming the byte, its position and the encoding to try."""
     keys: dict[str, None] = {}
-    with open(path, encoding="utf-8-sig") as f:
-        for lineno, line in enumerate(f, start=1):
-            if line.strip():
-                for k in _json_record(line, lineno, str(path)):
-                    keys.setdefault(k, None)
+    codec = text_codec(encoding)
+    try:
+        with open(path, encoding=codec) as f:
+            for lineno, line in enumerate(f, start=1):
+                if line.strip():
+                    for k in _json_record(line, lineno, str(path)):
+                        keys.setdefault(k, None)
+    except LookupError:
+        raise BatchInputError(f"encoding {encoding!r} is not known") from None
+    except UnicodeDecodeError as e:
+        with open(path, "rb") as f:
+            head = f.read(2)
+        if codec == "utf-8-sig" and head in (b"\xff\xfe", b"\xfe\xff"):
+            raise BatchInputError(f"{path}: the file is UTF-16 text (it starts with a UTF-16 "
+                                  "byte-order mark); give --encoding utf-16") from None
+        raise BatchInputError(
+            f"{path}: a byte (0x{e.object[e.start]:02x}) is not {encoding} text; save the "
+            "file as UTF-8 or give --encoding (for example cp1252)") from None
     if not keys:
         raise BatchInputError(f"{path}: no records")
     return tuple(keys)
@@ -366,7 +387,7 @@ def open_source(path: str | os.PathLike[str], fmt: str | None = None, delimiter:
         src = Source(p, fmt, headers, total_rows=pf.metadata.num_rows, notes=notes,
                      repeats=_repeats(schema.names, headers))
     else:
-        src = Source(p, fmt, jsonl_headers(p))
+        src = Source(p, fmt, jsonl_headers(p, encoding), encoding=encoding)
     src.size = size
     src.missing = tuple(missing)
     src.chunk_rows = max(1, int(chunk_rows))
