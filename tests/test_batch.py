@@ -494,12 +494,12 @@ def test_an_input_that_is_no_file_is_named_for_what_it_is(tmp_path, capsys):
     once), as INPUT: said so, with what to give (both said "no such file")."""
     (tmp_path / "d").mkdir()
     os.mkfifo(tmp_path / "pipe")
-    for given, words in ((tmp_path / "d", "d: is a folder; name a file"),
+    for path, words in ((tmp_path / "d", "d: is a folder; name a file"),
                          (tmp_path / "pipe", "pipe: is not a regular file (a pipe or a device); "
                                              "give - to read standard input"),
                          (tmp_path / "nothing.csv", "nothing.csv: no such file")):
         for fmt in ((), ("--format", "hl7")):
-            rc, err = batch(capsys, given, *fmt, "-o", tmp_path / "o.csv")
+            rc, err = batch(capsys, path, *fmt, "-o", tmp_path / "o.csv")
             assert rc == 2 and words in err, err
             assert not (tmp_path / "o.csv").exists()
 
