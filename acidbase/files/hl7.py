@@ -138,6 +138,7 @@ class Hl7Problem(Problem):
         "hl7_two_results": "two results in one order",
         "hl7_unit": "a unit the field does not take",
         "hl7_unit_missing": "no unit for a code that may be a mass concentration",
+        "hl7_many_values": "more than one value in one result",
     }
 
     @property
@@ -194,6 +195,27 @@ class _Message:
         for sid in self.ids:
             seen[sid] += 1
             self._nth.append(seen[sid])
+
+    def values(self, index: int, field_num: int) -> tuple[int, int, str]:
+        """(repetitions holding a value, values in all, the field as written) of one
+        field: an NM result holds one value, an SN one repetition."""
+        try:
+            seg = self.msg.segments(self.ids[index])[self._nth[index] - 1]
+            raw = seg[field_num] if len(seg) > field_num else ""
+        except (IndexError, KeyError):
+            return 0, 0, ""
+
+        def leaves(x) -> list[str]:
+            if isinstance(x, str):
+                return [x] if x.strip() else []
+            return [leaf for y in x for leaf in leaves(y)]
+
+        if isinstance(raw, str):
+            return (1, 1, raw) if raw.strip() else (0, 0, raw)
+        parts = list(raw)
+        reps = parts if len(parts) > 1 and not any(isinstance(x, str) for x in parts) \
+            else [raw]
+        return sum(1 for r in reps if leaves(r)), len(leaves(raw)), str(raw)
 
     def get(self, index: int, field_num: int, comp: int = 1, rep: int = 1) -> str:
         try:
@@ -287,6 +309,15 @@ def _read_obx(m: _Message, k: int, where: int, p: Panel, status: str, skipped: C
     vtype = m.get(k, 2).upper()
     if vtype not in NUMERIC_TYPES:
         p.notes.append(f"OBX {label} value type {vtype or 'empty'} not read (NM or SN expected)")
+        return
+    reps, count, raw = m.values(k, 5)
+    if reps > 1 or (vtype == "NM" and count > 1):  # "40~41", "40^41": never the first alone
+        spec = BY_NAME[name]
+        p.problems.append(_problem(
+            "hl7_many_values", name,
+            f"{spec.title} ({name}) OBX {label}: OBX-5 {raw[:40]!r} holds more than one "
+            f"value ({'repetitions' if reps > 1 else 'components'}); which was meant cannot "
+            "be told", "an NM result holds one number, an SN result one comparator^number"))
         return
     if vtype == "SN":
         cmp, num, sep = m.get(k, 5, 1), m.get(k, 5, 2), m.get(k, 5, 3)

@@ -288,3 +288,30 @@ def test_a_field_in_two_units_is_read_by_the_one_reader_in_each_cells_unit(tmp_p
         "pCO2 (pco2) 40 kPa is outside the accepted range 1.067 to 33.33 kPa - pCO2 would be "
         "ordinary at this value in mm[Hg]: if that is the unit, state it (pco2 unit mm[Hg]), "
         "the value was not converted")
+
+
+@pytest.mark.parametrize(("value", "vtype", "words"), [
+    ("40~41", "NM", "'40~41' holds more than one value (repetitions)"),
+    ("40^41", "NM", "'40^41' holds more than one value (components)"),
+    ("40&1", "NM", "'40&1' holds more than one value (components)"),
+    ("<^0.3~>^9", "SN", "holds more than one value (repetitions)"),
+])
+def test_a_result_holding_two_values_refuses_the_panel(tmp_path, capsys, value, vtype, words):
+    """OBX-5 of an NM result holds one number (HL7 v2.5.1 2A.3.47), an SN result one
+    structured number (2A.3.72); a repetition (~) or a component (^, &) more was read as
+    its first value alone, the rest dropped unseen.  Which was meant cannot be told: the
+    panel is refused, naming the field, the OBX and the value."""
+    segs = _simple([])
+    segs[4] = obx(2, vtype, "2019-8^pCO2^LN", value, "mm[Hg]")
+    rows, _ = _batch(capsys, tmp_path, write_spool(tmp_path / "two.hl7", segs), "o")
+    assert rows[0]["status"] == "refused"
+    assert rows[0]["reason"].startswith("pCO2 (pco2) OBX 2019-8: OBX-5 ")
+    assert words in rows[0]["reason"]
+    assert "was not given" not in rows[0]["reason"]
+
+
+def test_an_empty_trailing_component_is_one_value(tmp_path, capsys):
+    segs = _simple([])
+    segs[4] = obx(2, "NM", "2019-8^pCO2^LN", "40^", "mm[Hg]")
+    rows, _ = _batch(capsys, tmp_path, write_spool(tmp_path / "one.hl7", segs), "o")
+    assert rows[0]["status"] == "interpreted" and rows[0]["pco2 (mm[Hg])"] == "40"
