@@ -374,3 +374,20 @@ def test_the_hint_of_a_refused_cell_says_what_is_wrong_with_it(cell, hint):
     r = acidbase.interpret_many({**{k: [v] for k, v in BASE.items()}, "k": [cell]})
     assert [p.kind for p in r[0].problems] == ["not_a_number"]
     assert hint in r[0].problems[0].hint
+
+
+@pytest.mark.parametrize("unit", [None, 5, 1.0])
+def test_a_unit_that_is_not_text_is_refused_as_any_unit_not_taken(unit):
+    """``Panel(pco2_unit=None)`` (a database row's empty unit column) or a number gave
+    pydantic's "Input should be a valid string", naming neither the field's units nor
+    the field; it is refused as ``interpret_many`` refuses it (``UnitError``: "unit
+    'None' is not accepted"), with the units the field takes."""
+    with pytest.raises(Exception) as info:
+        acidbase.Panel(**BASE, pco2_unit=unit)
+    errors = info.value.errors()
+    assert [e["type"] for e in errors] == ["unit_not_accepted"]
+    assert errors[0]["msg"] == (f"unit '{unit}' is not accepted for pCO2; use one of "
+                                "mm[Hg], kPa")
+    with pytest.raises(acidbase.UnitError) as lib:
+        acidbase.interpret_many({k: [v] for k, v in BASE.items()}, {"pco2": unit})
+    assert f"unit '{unit}' is not accepted" in str(lib.value)

@@ -485,13 +485,16 @@ def _unit_validator(spec: FieldSpec):
     from pydantic import field_validator
     from pydantic_core import PydanticCustomError
 
-    def check(cls, value: str) -> str:
-        code = _units.normalise(value)
+    def check(cls, value: object) -> str:
+        # before pydantic's type check: a unit that is no text (None from an empty
+        # database column, a number) is refused as any unit not taken, with the units
+        code = _units.normalise(value) if isinstance(value, str) else None
         if code not in spec.units:
             raise PydanticCustomError("unit_not_accepted", UNIT_NOT_ACCEPTED,
-                                      _unit_context(spec, value))
+                                      _unit_context(spec, value if isinstance(value, str)
+                                                    else str(value)))
         return code
-    return field_validator(f"{spec.name}_unit")(check)
+    return field_validator(f"{spec.name}_unit", mode="before")(check)
 
 
 def _read_validator(spec: FieldSpec):
