@@ -946,3 +946,25 @@ def test_json_lines_take_the_encoding_option_as_csv_does(tmp_path, capsys):
         assert rc == 0, err
         row = rows_of(out)[0]
         assert (row["status"], row["sample_id"]) == ("interpreted", "Sé-1")
+
+
+@pytest.mark.parametrize("text", [
+    " ph , PCO2 ,\"hco3\"\n7.40,40,24\n7.30,40,20\n",       # spaces around headers
+    "\n \r\n ph ,pco2,hco3\n7.40,40,24\n7.30,40,20\n",      # and blank lines before them
+    "\nph,pco2,hco3,note,note\n7.40,40,24,a,b\n7.30,40,20,c,d\n",  # a repeated header
+])
+def test_headers_with_spaces_or_blank_lines_before_them_keep_every_row(tmp_path, capsys, text):
+    """Headers are matched trimmed of their spaces; the CSV reader was asked for the
+    trimmed names, which the file's header line does not hold, and the run ended as a
+    defect (exit 70, ArrowKeyError).  Where the reader is given the names (a repeated
+    header renamed, a header trimmed), blank lines before the header line are skipped
+    with it: the header line was read as a data row, a row that is not in the file."""
+    src = tmp_path / "in.csv"
+    src.write_text(text, encoding="utf-8")
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, src, "-o", out)
+    assert rc == 0, err
+    rows = rows_of(out)
+    assert [r["row"] for r in rows] == ["1", "2"]
+    assert [r["status"] for r in rows] == ["interpreted", "interpreted"]
+    assert [r["ph"] for r in rows] == ["7.40", "7.30"]

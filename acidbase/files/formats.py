@@ -51,6 +51,11 @@ class Dialect:
     """The first data rows (for decimal detection)."""
     multiline: bool = False
     """A quoted cell of the first rows holds a line break (slower parsing needed)."""
+    padded: bool = False
+    """A header has spaces around it: ``headers`` holds it trimmed, so the reader must be
+    given the names (the file's own header line would not match them)."""
+    lead: int = 0
+    """Blank lines before the header line (a reader given the names skips them too)."""
 
 
 #: The first bytes of compressed files, as their formats define them (RFC 1952 gzip;
@@ -135,7 +140,13 @@ def sniff_csv(path: str | os.PathLike[str], delimiter: str | None = None,
     _, _, d, rows = best
     headers = tuple(h.strip() for h in rows[0])
     multiline = any("\n" in c or "\r" in c for r in rows for c in r)
-    return Dialect(d, headers, tuple(tuple(r) for r in rows[1:]), multiline)
+    lead = 0
+    for line in text.splitlines():
+        if line.strip():
+            break
+        lead += 1
+    return Dialect(d, headers, tuple(tuple(r) for r in rows[1:]), multiline,
+                   padded=headers != tuple(rows[0]), lead=lead)
 
 
 def _show_delims(ds: Sequence[str]) -> str:

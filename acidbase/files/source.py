@@ -64,6 +64,11 @@ class Source:
     (``"ph (2)"`` -> ``"ph"``), for ``map_headers``."""
     duplicates: dict[int, tuple[str, ...]] = field(default_factory=dict)
     """JSON Lines: row (from 0) -> keys its record gave more than once (filled as read)."""
+    named: bool = False
+    """CSV: the reader is given ``headers`` as the column names and skips the file's
+    header line (a header trimmed of its spaces, or renamed, is not the file's)."""
+    lead: int = 0
+    """CSV: blank lines before the header line (skipped with it when ``named``)."""
     _progress: list[int] = field(default_factory=lambda: [0])
 
     @property
@@ -127,8 +132,9 @@ class Source:
         f = _CountingReader(open(self.path, "rb"))
         try:
             names = {}
-            if self.notes:  # duplicate headers renamed: our names, the header line skipped
-                names = {"column_names": list(self.headers), "skip_rows": 1}
+            if self.notes or self.named:  # headers renamed or trimmed: our names, the
+                # header line skipped
+                names = {"column_names": list(self.headers), "skip_rows": 1 + self.lead}
             reader = pa_csv.open_csv(
                 io.BufferedReader(f, 1 << 20),
                 read_options=pa_csv.ReadOptions(block_size=block, encoding=self.encoding,
@@ -370,7 +376,8 @@ def open_source(path: str | os.PathLike[str], fmt: str | None = None, delimiter:
         d = sniff_csv(p, delimiter, encoding)
         headers, notes = unique_headers(d.headers)
         src = Source(p, fmt, headers, d.delimiter, encoding=encoding, multiline=d.multiline,
-                     notes=notes, repeats=_repeats(d.headers, headers))
+                     notes=notes, repeats=_repeats(d.headers, headers), named=d.padded,
+                     lead=d.lead)
         src._sample = d.sample  # type: ignore[attr-defined]
     elif fmt == "parquet":
         try:
