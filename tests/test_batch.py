@@ -968,3 +968,33 @@ def test_headers_with_spaces_or_blank_lines_before_them_keep_every_row(tmp_path,
     assert [r["row"] for r in rows] == ["1", "2"]
     assert [r["status"] for r in rows] == ["interpreted", "interpreted"]
     assert [r["ph"] for r in rows] == ["7.40", "7.30"]
+
+
+@pytest.mark.parametrize("with_time", [False, True])
+def test_json_lines_output_is_json_whatever_the_input_numbers(tmp_path, capsys, with_time):
+    """A Parquet input's NaN and infinity, copied to a JSON Lines output, were written as
+    the tokens NaN and Infinity (json.dumps' own, which no JSON reader takes): an
+    infinity sent the whole table through json.dumps row by row, as did any timestamp
+    column, and a NaN beside one.  A NaN is null (as a missing number is), an infinity
+    the text the CSV output shows; every line parses as strict JSON (RFC 8259)."""
+    src = tmp_path / "in.parquet"
+    cols = {"ph": [7.40, float("nan"), float("inf")], "pco2": [40.0, 40.0, float("-inf")],
+            "hco3": [24.0, 24.0, 24.0]}
+    if with_time:
+        cols["collected_at"] = pa.array([np.datetime64("2024-01-01T10:00", "us")] * 3)
+    pq.write_table(pa.table(cols), src)
+    out = tmp_path / "out.jsonl"
+    rc, err = batch(capsys, src, "-o", out)
+    assert rc == 0, err
+
+    def refuse(token):
+        raise ValueError(f"not JSON: {token}")
+
+    rows = [json.loads(line, parse_constant=refuse)
+            for line in out.read_text(encoding="utf-8").splitlines()]
+    assert [r["row"] for r in rows] == [1, 2, 3]
+    assert [r["ph"] for r in rows] == [7.4, None, "inf"]
+    assert rows[2]["pco2"] == "-inf"
+    assert [r["status"] for r in rows] == ["interpreted", "refused", "refused"]
+    if with_time:
+        assert rows[0]["collected_at"] == "2024-01-01 10:00:00"

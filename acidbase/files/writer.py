@@ -19,7 +19,6 @@ from __future__ import annotations
 
 import contextlib
 import functools
-import io
 import json
 import re
 import sys
@@ -294,13 +293,14 @@ def _json_values(col: pa.Array) -> pa.Array | None:
         return pc.fill_null(pc.binary_join_element_wise('"', body, '"', ""), "null")
     if pa.types.is_floating(t):
         col = col.cast(pa.float64())
-        values = np.asarray(col.to_numpy(zero_copy_only=False), dtype=np.float64)
-        if np.isinf(values).any():
-            return None  # json.dumps writes Infinity; never in our output, left to it
         text = pc.cast(col, pa.string())
         # Arrow writes 6 and -0 where Python writes 6.0 and -0.0
         bare = pc.invert(pc.match_substring_regex(text, "[.eEn]"))
         text = pc.if_else(bare, pc.binary_join_element_wise(text, ".0", ""), text)
+        # JSON has no infinity (json.dumps wrote the token Infinity, which no JSON reader
+        # takes): an infinite number passed through from the input is written as the
+        # text the CSV output shows, "inf" or "-inf"
+        text = pc.if_else(pc.is_inf(col), pc.binary_join_element_wise('"', text, '"', ""), text)
         return pc.fill_null(pc.if_else(pc.is_nan(col), pa.scalar(None, pa.string()), text),
                             "null")
     if pa.types.is_integer(t):
@@ -310,12 +310,20 @@ def _json_values(col: pa.Array) -> pa.Array | None:
     return None
 
 
+def _json_cell(v: object) -> object:
+    """A cell for ``json.dumps``: NaN as None, an infinite number as its text."""
+    if isinstance(v, float) and not np.isfinite(v):
+        return None if v != v else ("inf" if v > 0 else "-inf")
+    return v
+
+
 def jsonl_bytes(table: pa.Table) -> bytes:
     """``table`` as JSON Lines, one object per row, the same text as ``json.dumps(row,
     ensure_ascii=False)`` gives (numbers may differ in form, not value: Arrow writes
     0.00001 where Python writes 1e-05).  Built column by column with Arrow's string
-    kernels; a table with a column type not handled here (timestamps, lists, ...)
-    goes row by row through ``json.dumps`` with ``default=str``."""
+    kernels; a column of a type not handled here (timestamps, dates, decimals...) goes
+    cell by cell through ``json.dumps`` with ``default=str``.  Never a NaN or Infinity
+    token: a missing or NaN number is ``null``, an infinite one its text."""
     n = table.num_rows
     if n == 0:
         return b""
@@ -323,12 +331,10 @@ def jsonl_bytes(table: pa.Table) -> bytes:
     for name, col in zip(table.column_names, table.columns):
         col = col.combine_chunks() if isinstance(col, pa.ChunkedArray) else col
         values = _json_values(col)
-        if values is None:
-            out = io.StringIO()
-            for rec in table.to_pylist():
-                out.write(json.dumps(rec, ensure_ascii=False, default=str))
-                out.write("\n")
-            return out.getvalue().encode("utf-8")
+        if values is None:  # (the whole table went row by row: a float NaN beside a
+            # timestamp column was written as the token NaN)
+            values = pa.array([json.dumps(_json_cell(v), ensure_ascii=False, default=str)
+                               for v in col.to_pylist()], pa.string())
         key = json.dumps(name, ensure_ascii=False) + ": "
         parts.append((key, values))
     # the braces ride on the first and last fragments: one join makes the lines
