@@ -998,3 +998,19 @@ def test_json_lines_output_is_json_whatever_the_input_numbers(tmp_path, capsys, 
     assert [r["status"] for r in rows] == ["interpreted", "refused", "refused"]
     if with_time:
         assert rows[0]["collected_at"] == "2024-01-01 10:00:00"
+
+
+def test_a_byte_that_is_not_utf8_past_the_first_lines_is_named_by_line_and_column(
+        tmp_path, capsys):
+    """The first 64 KB are sampled; a byte past them that is not UTF-8 stopped the run
+    with Arrow's words ("In CSV column #2: CSV conversion error to string: invalid UTF8
+    data"), counting columns from 0 and naming no line.  The file line, the byte and the
+    column are named, with the encoding to try; nothing is written."""
+    src = tmp_path / "late.csv"
+    rows = b"note,ph,pco2,hco3\n" + b"x,7.40,40,24\n" * 8000
+    src.write_bytes(rows + b"x,7.40,4\xe90,24\n" + b"x,7.40,40,24\n")
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, src, "-o", out, "--quiet")
+    assert rc == 2 and not out.exists()
+    assert "late.csv: line 8002 (byte 0xe9), column 'pco2': not utf-8 text" in err, err
+    assert "--encoding" in err

@@ -214,7 +214,29 @@ def _csv_error(text: str, src: Source | None = None) -> str:
                  "the header)" if line is not None
                  else f"a line has {m[2]} fields where the header has {m[1]}")
         return f"{where}: {m[3].strip()[:120]!r}; fix the line, or check --delimiter"
+    m = re.search(r"In CSV column #(\d+): CSV conversion error to string: invalid UTF8", text)
+    if m and src is not None:  # a byte past the sampled start that is not UTF-8
+        k = int(m[1])
+        column = f"column {src.headers[k]!r}" if k < len(src.headers) else "a column"
+        found = _undecodable_line(src.path)
+        where = f"line {found[0]} (byte 0x{found[1]:02x})" if found else "a line"
+        return (f"{where}, {column}: not {src.encoding} text; save the file as UTF-8 or "
+                "give --encoding (for example cp1252)")
     return text
+
+
+def _undecodable_line(path: str) -> tuple[int, int] | None:
+    """(file line from 1, the byte) of the first line that is not UTF-8, or None."""
+    try:
+        with open(path, "rb") as f:
+            for lineno, raw in enumerate(f, start=1):
+                try:
+                    raw.decode("utf-8")
+                except UnicodeDecodeError as e:
+                    return lineno, raw[e.start]
+    except OSError:
+        return None
+    return None
 
 
 def _ragged_line(src: Source, expected: int, got: int) -> int | None:
