@@ -1014,3 +1014,14 @@ def test_a_byte_that_is_not_utf8_past_the_first_lines_is_named_by_line_and_colum
     assert rc == 2 and not out.exists()
     assert "late.csv: line 8002 (byte 0xe9), column 'pco2': not utf-8 text" in err, err
     assert "--encoding" in err
+
+
+@pytest.mark.parametrize("option", ["-o", "--summary"])
+def test_an_empty_output_name_is_refused_as_naming_no_file(tmp_path, capsys, option):
+    """``-o ''`` (an unset shell variable, ``-o "$OUT"``) said "OUTPUT : is a folder; name
+    a file" (the empty name is the current folder); it names the option and says the
+    name names no file, before any work."""
+    src = tmp_path / "in.csv"
+    src.write_text("ph,pco2,hco3\n7.40,40,24\n", encoding="utf-8")
+    rc, err = batch(capsys, src, option, "")
+    assert rc == 2 and f"could not run: {option} '': names no file; nothing written" in err, err
