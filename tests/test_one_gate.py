@@ -391,3 +391,15 @@ def test_a_unit_that_is_not_text_is_refused_as_any_unit_not_taken(unit):
     with pytest.raises(acidbase.UnitError) as lib:
         acidbase.interpret_many({k: [v] for k, v in BASE.items()}, {"pco2": unit})
     assert f"unit '{unit}' is not accepted" in str(lib.value)
+
+
+@pytest.mark.parametrize(("given", "text"), [(12345, "12345"), (np.int64(10 ** 12), "1000000000000"),
+                                             ("S-1", "S-1")])
+def test_an_id_given_as_a_whole_number_is_its_text(given, text):
+    """A database's integer key as ``Panel(sample_id=12345)`` was refused with pydantic's
+    "Input should be a valid string", while the same number in a JSON Lines or Parquet
+    file is read as its text; a yes/no value is still no id."""
+    panel = acidbase.Panel(**BASE, sample_id=given, patient_id=given)
+    assert (panel.sample_id, panel.patient_id) == (text, text)
+    with pytest.raises(Exception):
+        acidbase.Panel(**BASE, sample_id=True)

@@ -533,6 +533,18 @@ def _value_validator(spec: FieldSpec):
     return field_validator(spec.name)(check)
 
 
+def _text_validator(name: str):
+    """An id given as a whole number (a database's integer key, numpy's int64) is its
+    decimal text, as a file's cell is; anything else but text is left to the type check."""
+    from pydantic import field_validator
+
+    def read(cls, value: Any) -> Any:
+        if isinstance(value, (int, np.integer)) and not isinstance(value, (bool, np.bool_)):
+            return str(int(value))
+        return value
+    return field_validator(name, mode="before")(read)
+
+
 def _choice_validator(choice: Choice):
     from pydantic import field_validator
 
@@ -577,6 +589,7 @@ def _build_panel() -> type[BaseModel]:
         validators[f"_read_{choice.name}"] = _choice_validator(choice)
     for name in TEXT_FIELDS:
         definitions[name] = (str | None, Field(default=None, max_length=200))
+        validators[f"_text_{name}"] = _text_validator(name)
     for spec in NUMERIC:
         default = ... if spec.required else None
         definitions[spec.name] = (
