@@ -142,6 +142,11 @@ class Hl7Problem(Problem):
     }
 
     @property
+    def whole_row(self) -> bool:
+        """The message could not be read: its row has no cells to be refused for."""
+        return self.kind == "hl7_message"
+
+    @property
     def label(self) -> str:
         head = "HL7" if self.field == "message" else f"{self.title} ({self.field})"
         return f"{head}: {self.HL7_KINDS.get(self.kind, self.kind)}"

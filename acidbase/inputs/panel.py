@@ -229,6 +229,10 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None, *
     # (row, field) already refused before the cells (an HL7 value refused in the unit its
     # message states, then left out): not also said to be "not given".
     told = {(i, p.field) for i, found in problems.items() for p in found}
+    # A row refused whole before its cells (an HL7 message that could not be read): no
+    # field of it is "not given", it was not read.
+    unread = [i for i, found in problems.items()
+              if any(getattr(p, "whole_row", False) for p in found)]
 
     def add(rows: np.ndarray, make) -> None:
         for i in np.flatnonzero(rows).tolist():
@@ -283,6 +287,7 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None, *
             missing_rows = np.isnan(raw) & ~p.bad & ~censored
             if told:
                 missing_rows[[i for i, f in told if f == spec.name]] = False
+                missing_rows[unread] = False
             add(missing_rows, lambda i, s=spec, c=code: Problem(s.name, s.title, None, c,
                                                                 kind="missing"))
             bad = bad | missing_rows | censored
