@@ -366,11 +366,17 @@ def test_a_very_long_cell_is_shown_shortened_with_its_length_on_every_path(tmp_p
     ("snake_case", "expected a number in mmol/L"),
     ("K_4.0", "expected a number in mmol/L"),
     (np.bytes_(b"4.0"), "expected a number in mmol/L"),
+    ("\u22124.0", "the character '\u2212' (U+2212) is not read"),    # minus sign
+    ("4\u00b70", "the character '\u00b7' (U+00B7) is not read"),     # middle dot
+    ("4.0\u200b", "the character '\\u200b' (U+200B) is not read"),  # zero-width space,
+    ("4\u20090", "the character '\\u2009' (U+2009) is not read"),   # thin space: escaped
 ])
 def test_the_hint_of_a_refused_cell_says_what_is_wrong_with_it(cell, hint):
     """Digit grouping is digits either side of a separator; an underscore elsewhere (a
     word, a numpy bytes value's name) is no grouping (each was told "digit grouping is
-    not read; write the number without separators")."""
+    not read; write the number without separators").  A character of another script
+    that looks like a sign, a point or a space is named with its code point (each was
+    told only "expected a number"): the cell looks right on screen."""
     r = acidbase.interpret_many({**{k: [v] for k, v in BASE.items()}, "k": [cell]})
     assert [p.kind for p in r[0].problems] == ["not_a_number"]
     assert hint in r[0].problems[0].hint

@@ -700,6 +700,10 @@ def number_hint(cell: object, decimal: str, unit: str, field: str = "",
         return "a number beyond the floating-point range is no measurement"
     if any(ch.isdigit() and not "0" <= ch <= "9" for ch in text):
         return "only the digits 0-9 are read; digits of other scripts are refused, not converted"
+    odd = next((ch for ch in text if not ch.isascii()), None)
+    if odd is not None:  # a typographic minus, a middle dot, a thin or zero-width space...
+        return (f"the character {odd!r} (U+{ord(odd):04X}) is not read: write the number "
+                "with the digits 0-9, a point (or the declared decimal mark) and - or +")
     if re.search(r"[0-9][_ ][0-9]", text):
         return "digit grouping is not read; write the number without separators"
     if decimal == "." and "," in text:
