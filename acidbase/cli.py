@@ -183,7 +183,8 @@ def configure_batch_parser(p: argparse.ArgumentParser) -> None:
                    help="default: from the name; fhir: one FHIR R4 Bundle per panel, one per "
                         "line (needs acidbase[fhir])")
     o.add_argument("--output-delimiter", default=None, metavar="CHAR",
-                   help="CSV output delimiter (default , or tab for a .tsv output)")
+                   help="CSV output delimiter: , ; | or tab (default , or tab for a .tsv "
+                        "output)")
     o.add_argument("--summary", metavar="FILE", action=Once,
                    help="write the summary here (.json for JSON) instead of stderr")
     o.add_argument("--report", metavar="FILE", action=Once,

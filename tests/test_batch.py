@@ -1025,3 +1025,19 @@ def test_an_empty_output_name_is_refused_as_naming_no_file(tmp_path, capsys, opt
     src.write_text("ph,pco2,hco3\n7.40,40,24\n", encoding="utf-8")
     rc, err = batch(capsys, src, option, "")
     assert rc == 2 and f"could not run: {option} '': names no file; nothing written" in err, err
+
+
+@pytest.mark.parametrize("delimiter", ["1", ".", "-", ":", " ", '"', "\n"])
+def test_an_output_delimiter_that_is_part_of_a_bare_cell_is_refused(tmp_path, capsys,
+                                                                    delimiter):
+    """Numbers (the row number, a Parquet input's numbers) and times are written bare:
+    a digit, a point, a sign, a colon or a space as the delimiter cut them apart (with
+    "1", row 1 came out as "11"), and a quote or a line break failed the run as "the
+    file could not be read (WriteOptions: ...)", blaming the input.  Refused before any
+    work, naming the option and the delimiters to give."""
+    src = tmp_path / "in.csv"
+    src.write_text("ph,pco2,hco3\n7.40,40,24\n", encoding="utf-8")
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, src, "-o", out, "--output-delimiter", delimiter)
+    assert rc == 2 and not out.exists()
+    assert f"--output-delimiter {delimiter!r}: give , ; | or tab" in err, err

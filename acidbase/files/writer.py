@@ -36,6 +36,8 @@ from .outputs import OutputError, OutputSet
 
 #: Output formats, chosen by the name or by option.
 OUTPUT_FORMATS: tuple[str, ...] = ("csv", "jsonl", "parquet")
+#: CSV output delimiters: none of them is part of a cell written bare (numbers, times).
+OUTPUT_DELIMITERS: tuple[str, ...] = (",", ";", "|", "\t")
 
 #: A cell that is a plain number in either decimal convention (escaping exempts it).
 _PLAIN_NUMBER = r"^[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?$"
@@ -472,6 +474,11 @@ class Writer:
         Lines and Parquet keep the full doubles, as ``check --json`` does).
         ``metadata`` (Parquet's key-value metadata) may be a function, called when the
         first table is put (what it needs may still be on its way at the start)."""
+        if fmt == "csv" and delimiter not in OUTPUT_DELIMITERS:
+            raise OutputError(
+                f"--output-delimiter {delimiter!r}: give , ; | or tab (a digit, a point, a "
+                "sign, a colon, a space, a quote or a line break is part of cells written "
+                "bare, such as numbers and times, and would cut them apart)")
         self.escape = None if escape is None else frozenset(escape)
         self.decimals = dict(decimals or {})
         to_stdout = sink is None and path in (None, "-")
