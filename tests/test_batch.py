@@ -1041,3 +1041,23 @@ def test_an_output_delimiter_that_is_part_of_a_bare_cell_is_refused(tmp_path, ca
     rc, err = batch(capsys, src, "-o", out, "--output-delimiter", delimiter)
     assert rc == 2 and not out.exists()
     assert f"--output-delimiter {delimiter!r}: give , ; | or tab" in err, err
+
+
+@pytest.mark.parametrize(("mapping", "words"), [
+    ("header,field\nAcidity,ph\nCO2,pco2\nBic,bicarbonate\n",
+     "line 4: field 'bicarbonate' is not one of"),
+    ("header,field\nAcidity,ph\n,pco2\nBic,hco3\n",
+     "line 3: the header cell is empty (field 'pco2'); name the column it maps"),
+])
+def test_a_mapping_file_line_that_cannot_be_read_says_what_is_wrong(tmp_path, capsys,
+                                                                    mapping, words):
+    """A field spelt in plain words ("bicarbonate") is named as the field to use, as
+    ``Panel(bicarbonate=...)`` does, never read as it; an empty header cell was told
+    "field 'pco2' is not one of ...", about a field that is one."""
+    src, path = tmp_path / "lab.csv", tmp_path / "map.csv"
+    src.write_text("Acidity,CO2,Bic\n7.40,40,24\n", encoding="utf-8")
+    path.write_text(mapping, encoding="utf-8")
+    rc, err = batch(capsys, src, "--map", path, "-o", tmp_path / "o.csv")
+    assert rc == 2 and words in err, err
+    if "bicarbonate" in mapping:
+        assert "(use hco3)" in err
