@@ -409,3 +409,24 @@ def test_an_id_given_as_a_whole_number_is_its_text(given, text):
     assert (panel.sample_id, panel.patient_id) == (text, text)
     with pytest.raises(Exception):
         acidbase.Panel(**BASE, sample_id=True)
+
+
+@pytest.mark.parametrize(("cell", "read"), [
+    (np.array(4.0), 16.0), (np.array("4.0"), 16.0), (np.array(4, dtype=np.int32), 16.0),
+    (np.array(True), "not_a_number"), (np.array(np.nan), None),
+])
+def test_a_zero_dimensional_array_is_the_one_cell_it_holds(cell, read):
+    """``Panel(k=np.array(4.0))`` (a reduction kept as an array) was refused as
+    "'array(4.)' is not a number", though a column reads a 0-d array as its cell."""
+    panel_read = None
+    try:
+        panel_read = acidbase.interpret(acidbase.Panel(**BASE, k=cell)).derived["anion_gap_k"]
+    except Exception as e:  # noqa: BLE001
+        assert read == "not_a_number" and [x["type"] for x in e.errors()] == [read]
+    r = acidbase.interpret_many({**{k: [v] for k, v in BASE.items()}, "k": [cell]})
+    if read == "not_a_number":
+        assert [p.kind for p in r[0].problems] == [read]
+    elif read is None:
+        assert panel_read is None and r[0].derived["anion_gap_k"] is None
+    else:
+        assert panel_read == pytest.approx(read) and r[0].derived["anion_gap_k"] == pytest.approx(read)

@@ -538,6 +538,8 @@ def _object_numbers(cells: list[Any], decimal: str, missing: Sequence[str]) -> P
     cmps = np.full(n, None, dtype=object)
     flags = np.full(n, None, dtype=object)
     for i, c in enumerate(cells):
+        if isinstance(c, np.ndarray) and c.ndim == 0:  # a 0-d array is its one cell
+            c = c.item()
         if isinstance(c, (bool, np.bool_)):
             bad[i], texts[i] = True, str(bool(c))
         elif _is_missing_object(c):
