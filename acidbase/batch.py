@@ -1015,7 +1015,7 @@ def run(args: argparse.Namespace) -> int:
     except AcidBaseError as e:  # BatchInputError, and the library's own (settings, units)
         message = str(e)
     except OSError as e:
-        where = f"{e.filename}: " if getattr(e, "filename", None) else ""
+        where = f"{e.filename}: " if getattr(e, "filename", None) else ""  # as the others'
         message = f"{where}{e.strerror or e}"
     except (pa.ArrowInvalid, pa.ArrowTypeError, UnicodeDecodeError) as e:
         message = f"the file could not be read ({e})"
