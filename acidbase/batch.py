@@ -39,11 +39,13 @@ from . import units as _units
 from .engine import SLOTS
 from .errors import AcidBaseError
 from .fields import BY_NAME
+from .inputs.cells import read_setting
 from .fileio import BatchInputError, Layout, Source
 from .files import hl7, scratch
 from .files.check import (EXTRA_COLUMNS, ROW_COLUMN, check_chunk, field_column,  # noqa: F401
                           field_values, output_names, review_mask, review_rules)
 from .files.outputs import (
+    OutputPathError,
     OutputSet,
     Staged,
     Stopped,
@@ -96,11 +98,8 @@ def _delta_overrides(items: list[str]) -> dict[str, float | None]:
         if v.lower() == "off":
             out[k] = None
             continue
-        try:
-            lim = float(v)
-        except ValueError:
-            lim = float("nan")
-        if not np.isfinite(lim) or lim <= 0:
+        lim = read_setting(v)  # the one reader: '１０', '1_0' and 'inf' are no limit
+        if lim is None or lim <= 0:
             raise BatchInputError(f"--delta {k}={v}: the limit must be a positive number in "
                                   f"{BY_NAME[k].unit}, or 'off'")
         out[k] = lim
@@ -676,6 +675,10 @@ def _stage_outputs(args: argparse.Namespace, outputs: OutputSet,
     an output that is an input (by any name: the site file and the mapping file it
     names included), two outputs that are one file, or a folder that is missing or
     cannot be written stops the run with nothing done."""
+    for opt, path in (("-o", args.output), ("--summary", args.summary),
+                      ("--report", args.report)):
+        if path is not None and not path.strip():  # '' named the current folder
+            raise OutputPathError(opt, repr(path), "names no file")
     named = [(opt, path) for opt, path in (("-o", args.output), ("--summary", args.summary),
                                            ("--report", args.report)) if path and path != "-"]
     mapping = args.mapping or (site.mapping if site else None)
@@ -962,7 +965,7 @@ def _kept(args: argparse.Namespace, outcome: _Outcome) -> str:
     """What a run that did not finish leaves: its files were never renamed into place;
     standard output may hold some rows."""
     files = list(dict.fromkeys(p for p in (args.output, args.summary, args.report)
-                               if p and p != "-"))
+                               if p and p.strip() and p != "-"))
     said = []
     if files:
         said.append(f"nothing written, {', '.join(files)} left as "

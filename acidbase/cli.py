@@ -45,6 +45,27 @@ class Parser(argparse.ArgumentParser):
             super()._print_message(message, file)
 
 
+def setting_number(text: str) -> float:
+    """An option's number (argparse ``type``), read by the one cell reader as a panel
+    value is: Python's ``float`` would take '４４', '4_4' and 'inf'."""
+    from .inputs.cells import read_setting
+
+    value = read_setting(text)
+    if value is None:
+        raise argparse.ArgumentTypeError(
+            f"{text!r} is not a number (the digits 0-9, an optional sign, point and "
+            "exponent; no digit grouping, NaN or infinity)")
+    return value
+
+
+def setting_count(text: str) -> int:
+    """An option's whole number (argparse ``type``), read as ``setting_number`` reads."""
+    value = setting_number(text)
+    if not value.is_integer():
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number")
+    return int(value)
+
+
 def _help(text: str) -> str:
     return text.replace("%", "%%")  # argparse formats help strings with %
 
@@ -94,11 +115,11 @@ def add_panel_options(p: argparse.ArgumentParser) -> None:
 def add_settings_options(p: argparse.ArgumentParser) -> None:
     """The laboratory settings (shared by check, tui and batch)."""
     s = p.add_argument_group("laboratory settings")
-    s.add_argument("--anion-gap-interval", nargs=2, type=float, metavar=("LOW", "HIGH"),
+    s.add_argument("--anion-gap-interval", nargs=2, type=setting_number, metavar=("LOW", "HIGH"),
                    help="local anion-gap reference interval, mmol/L (default 6 12 without K+)")
     s.add_argument("--anion-gap-with-k", action="store_true",
                    help="judge the anion gap with K+ included (interval default 10 16)")
-    s.add_argument("--reference-albumin", type=float, metavar="G_PER_L",
+    s.add_argument("--reference-albumin", type=setting_number, metavar="G_PER_L",
                    help="albumin to correct the gap to, g/L (default 44)")
     s.add_argument("--fhir-status", choices=OBSERVATION_STATUSES, metavar="STATUS",
                    help="FHIR Observation status of machine readings: "
@@ -139,10 +160,10 @@ def configure_batch_parser(p: argparse.ArgumentParser) -> None:
                         "only empty cells by default)")
     g.add_argument("--strict-columns", action="store_true",
                    help="stop when a column is not recognised (default: pass it through)")
-    g.add_argument("--chunk-rows", type=int, default=1 << 14, metavar="N",
+    g.add_argument("--chunk-rows", type=setting_count, default=1 << 14, metavar="N",
                    help="rows per chunk (memory vs speed; default 16384)")
     s = p.add_argument_group("serial checks (need patient_id and collected_at)")
-    s.add_argument("--window-hours", type=float, default=None,
+    s.add_argument("--window-hours", type=setting_number, default=None,
                    metavar="H", help="compare panels of a patient at most H hours apart "
                                      "(default: the site file, else "
                                      f"{serial_defaults.DEFAULT_WINDOW_HOURS:g})")
@@ -154,7 +175,7 @@ def configure_batch_parser(p: argparse.ArgumentParser) -> None:
                    help="history store: compare with each patient's panels from earlier runs, "
                         "then add this run's (patient ids stored as keyed hashes; the site key "
                         "in ACIDBASE_HISTORY_KEY)")
-    s.add_argument("--history-retention-days", type=float, default=None, metavar="DAYS",
+    s.add_argument("--history-retention-days", type=setting_number, default=None, metavar="DAYS",
                    help="prune stored panels collected longer ago (default 30; needs a "
                         "history store)")
     o = p.add_argument_group("output")
@@ -162,7 +183,8 @@ def configure_batch_parser(p: argparse.ArgumentParser) -> None:
                    help="default: from the name; fhir: one FHIR R4 Bundle per panel, one per "
                         "line (needs acidbase[fhir])")
     o.add_argument("--output-delimiter", default=None, metavar="CHAR",
-                   help="CSV output delimiter (default , or tab for a .tsv output)")
+                   help="CSV output delimiter: , ; | or tab (default , or tab for a .tsv "
+                        "output)")
     o.add_argument("--summary", metavar="FILE", action=Once,
                    help="write the summary here (.json for JSON) instead of stderr")
     o.add_argument("--report", metavar="FILE", action=Once,
@@ -271,12 +293,17 @@ def cmd_check(args: argparse.Namespace) -> int:
         if isinstance(panel, int):
             return panel
         emit(check_bundle_json(panel, it, site, started) + "\n")
-    elif args.json:
-        doc = it.to_dict()
+        return EXIT_OK
+    # The ids given (they were read only into the FHIR Bundle: the text and JSON readings
+    # carried no sign of the panel they were of).
+    identity = {name: getattr(args, name) for name in TEXT_FIELDS
+                if getattr(args, name, None) is not None}
+    if args.json:
+        doc = {**it.to_dict(), **identity}  # the ids given, as demo --json names them
         doc["audit"] = audit.record(site, started)
         emit(json.dumps(doc, indent=2, ensure_ascii=False, allow_nan=False) + "\n")
     else:
-        emit(as_text(it, working=not args.brief))
+        emit(as_text(it, working=not args.brief, identity=identity))
     return EXIT_OK
 
 
@@ -398,7 +425,7 @@ def configure_history_parser(p: argparse.ArgumentParser) -> None:
     what.add_argument("--purge", action="store_true", help="remove the patient's stored panels")
     what.add_argument("--prune", action="store_true",
                       help="remove panels collected before the retention period now")
-    p.add_argument("--retention-days", type=float, default=30.0, metavar="DAYS",
+    p.add_argument("--retention-days", type=setting_number, default=30.0, metavar="DAYS",
                    help="retention period for --prune (default 30)")
     p.add_argument("-o", "--output", metavar="FILE", help="file for --export")
     p.add_argument("--json", action="store_true", help="the summary as JSON")
@@ -465,7 +492,7 @@ def _configure_batch(batch: argparse.ArgumentParser) -> None:
 def _configure_shard(shard: argparse.ArgumentParser) -> None:
     shard.add_argument("input", metavar="INPUT")
     shard.add_argument("folder", metavar="FOLDER", help="where the shard files go (created)")
-    shard.add_argument("--shards", type=int, default=16, metavar="N",
+    shard.add_argument("--shards", type=setting_count, default=16, metavar="N",
                        help="number of shards (default 16)")
     shard.add_argument("--patient-column", metavar="HEADER",
                        help="the patient id column (default: the one read as patient_id)")

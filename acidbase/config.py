@@ -160,6 +160,12 @@ def find(option: str | None) -> tuple[Path | None, str]:
     return None, "none"
 
 
+def _file_key(loc: tuple) -> str:
+    """The file's key of a pydantic error location (without its union branch tags)."""
+    return ".".join(str(x) for x in loc if str(x) != "[key]" and not (
+        isinstance(x, str) and (x in ("float", "int", "bool", "str") or x.startswith("literal["))))
+
+
 def load(path: Path) -> tuple[SiteFile, str]:
     """Read and check one file; ``ConfigError`` names the file, the key and the reason.
 
@@ -183,9 +189,12 @@ def load(path: Path) -> tuple[SiteFile, str]:
         site = SiteFile.model_validate(data)
     except ValidationError as e:
         err = e.errors()[0]
-        key = ".".join(str(x) for x in err["loc"] if str(x) != "[key]")
+        # a union's branches ("float", "literal['off']") are no keys of the file: one
+        # value refused by each branch is one refusal
+        keys = list(dict.fromkeys(_file_key(x["loc"]) for x in e.errors()))
+        key = keys[0]
         reason = "unknown key" if err["type"] == "extra_forbidden" else err["msg"]
-        more = f" (and {len(e.errors()) - 1} more)" if len(e.errors()) > 1 else ""
+        more = f" (and {len(keys) - 1} more)" if len(keys) > 1 else ""
         raise ConfigError(f"configuration file {path}: key {key!r}: {reason}{more}") from None
     return site, hashlib.sha256(raw).hexdigest()
 

@@ -7,6 +7,7 @@ Every rendering starts with the caution.  Severity is always written as a word
 from __future__ import annotations
 
 import textwrap
+from collections.abc import Mapping
 from typing import TYPE_CHECKING, Any
 
 from .codes import DERIVED_UNITS
@@ -91,11 +92,29 @@ def wrap_lines(text: str, indent: str = "", width: int = TEXT_WIDTH,
                          break_on_hyphens=False) or [indent]
 
 
-def as_text(it: Interpretation, width: int = TEXT_WIDTH, working: bool = True) -> str:
-    """A readable report: caution, the three questions in order, then sources."""
+#: The panel's identity as ``as_text`` names it (text fields given with the panel).
+IDENTITY_LABELS = {"sample_id": "Sample id", "patient_id": "Patient id",
+                   "collected_at": "Collected at"}
+
+
+def shown_text(text: str) -> str:
+    """Free text as printed: control characters (a terminal's escape sequences, line
+    breaks) written as escapes, so an id cannot move the cursor or forge a line."""
+    return "".join(c if c.isprintable() else repr(c)[1:-1] for c in text)
+
+
+def as_text(it: Interpretation, width: int = TEXT_WIDTH, working: bool = True,
+            identity: Mapping[str, str] | None = None) -> str:
+    """A readable report: caution, the panel's identity (``identity``: the sample id,
+    patient id and collection time given, ``IDENTITY_LABELS``), the three questions in
+    order, then sources."""
     lines: list[str] = []
     lines += wrap_lines(it.caution, "", width)
     lines.append("")
+    named = [f"{IDENTITY_LABELS[k]}: {shown_text(v)}" for k, v in (identity or {}).items()
+             if k in IDENTITY_LABELS and v is not None]
+    if named:
+        lines += wrap_lines("; ".join(named), "", width)
     if it.status == "refused":
         lines.append("Panel refused; nothing was interpreted:")
         for p in it.problems:

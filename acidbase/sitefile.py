@@ -12,7 +12,8 @@ from pydantic import BaseModel, ConfigDict, field_validator
 
 
 class _Strict(BaseModel):
-    model_config = ConfigDict(extra="forbid")
+    # no NaN or infinity (TOML writes them: nan, inf): no setting is one
+    model_config = ConfigDict(extra="forbid", allow_inf_nan=False)
 
 
 class IntervalTable(_Strict):

@@ -475,14 +475,33 @@ def test_bad_choice_message_is_the_kernels_own(tmp_path, capsys):
     assert reason == kernel.reasons[0]
 
 
-def test_header_without_rows_could_not_run(tmp_path, capsys):
+@pytest.mark.parametrize("text", ["ph,pco2,hco3,na,cl\n", "ph,pco2,hco3,na,cl",
+                                  "ph;pco2;hco3;na;cl", "ph,pco2,hco3,na,cl\r"])
+def test_header_without_rows_could_not_run(tmp_path, capsys, text):
+    """A header line alone, with or without its line end: "no rows" (without one it was
+    Arrow's "Empty CSV file or block: cannot infer number of columns")."""
     f = tmp_path / "empty.csv"
-    f.write_text("ph,pco2,hco3,na,cl\n")
+    f.write_bytes(text.encode())
     (tmp_path / "o.csv").write_bytes(b"previous\n")
     rc, err = batch(capsys, f, "-o", tmp_path / "o.csv")
     assert rc == 2 and "no rows" in err
     assert (tmp_path / "o.csv").read_bytes() == b"previous\n"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["empty.csv", "o.csv"]
+
+
+def test_an_input_that_is_no_file_is_named_for_what_it_is(tmp_path, capsys):
+    """A folder, or a pipe (``<(cat file)``, read once, where a run reads its file more than
+    once), as INPUT: said so, with what to give (both said "no such file")."""
+    (tmp_path / "d").mkdir()
+    os.mkfifo(tmp_path / "pipe")
+    for path, words in ((tmp_path / "d", "d: is a folder; name a file"),
+                         (tmp_path / "pipe", "pipe: is not a regular file (a pipe or a device); "
+                                             "give - to read standard input"),
+                         (tmp_path / "nothing.csv", "nothing.csv: no such file")):
+        for fmt in ((), ("--format", "hl7")):
+            rc, err = batch(capsys, path, *fmt, "-o", tmp_path / "o.csv")
+            assert rc == 2 and words in err, err
+            assert not (tmp_path / "o.csv").exists()
 
 
 def test_columns_left_unescaped_never_start_like_a_formula(tmp_path, capsys):
@@ -768,6 +787,26 @@ def test_a_utf16_file_is_named_with_the_encoding_that_reads_it(tmp_path, capsys)
     assert rc == 0 and [r["status"] for r in rows_of(out)] == ["interpreted"]
 
 
+@pytest.mark.parametrize("codec", ["utf-16-le", "utf-16-be"])
+def test_a_utf16_file_without_its_mark_is_named_with_the_encoding_that_reads_it(
+        tmp_path, capsys, codec):
+    """UTF-16 text without a byte-order mark decodes as UTF-8 (ASCII and NUL bytes), so the
+    run said "no column for required field(s)", listing headers like 'p\\x00h\\x00'; a
+    sample with every other byte NUL is named UTF-16, with the encoding to give.  One NUL
+    byte in a cell is still read (that row refused)."""
+    src = tmp_path / "export.csv"
+    src.write_bytes("ph,pco2,hco3\r\n7.40,40,24\r\n".encode(codec))
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, src, "-o", out, "--quiet")
+    assert rc == 2 and f"give --encoding {codec}" in err and not out.exists(), err
+    rc, err = batch(capsys, src, "-o", out, "--quiet", "--encoding", codec)
+    assert rc == 0 and [r["status"] for r in rows_of(out)] == ["interpreted"], err
+    one = tmp_path / "one.csv"
+    one.write_bytes(b"ph,pco2,hco3\n7.40,4\x000,24\n7.40,40,24\n")
+    rc, err = batch(capsys, one, "-o", out, "--quiet")
+    assert rc == 0 and [r["status"] for r in rows_of(out)] == ["refused", "interpreted"]
+
+
 @pytest.mark.parametrize("option", ["-o", "--summary"])
 def test_the_site_file_is_never_an_output(tmp_path, capsys, option):
     """``--config site.toml --summary site.toml`` overwrote the laboratory's site file
@@ -828,3 +867,197 @@ def test_a_batch_run_keeps_freed_heap_memory_unless_the_user_set_glibc_malloc(
         assert not heap.keys() & params.keys()
     else:
         assert {k: params.get(k) for k in heap} == heap
+
+
+def test_a_parquet_bytes_column_is_copied_as_text_or_refused_by_name(tmp_path, capsys):
+    """A Parquet column of bytes (BYTE_ARRAY without the UTF-8 annotation, as some older
+    writers store text) passed through: CSV and JSON Lines carry it as the same text
+    (JSON Lines wrote Python's "b'S-1'"); bytes that are not UTF-8 cannot be text, so a
+    CSV or JSON Lines output is refused naming the column and the row, and Parquet
+    keeps them (the run said "the file could not be read (Invalid UTF8 payload)")."""
+    good, bad = tmp_path / "good.parquet", tmp_path / "bad.parquet"
+    base = {"ph": [7.40, 7.40], "pco2": [40.0, 40.0], "hco3": [24.0, 24.0]}
+    pq.write_table(pa.table({**base, "note": pa.array([b"S-1", None], pa.binary())}), good)
+    pq.write_table(pa.table({**base, "note": pa.array([b"ok", b"\xff\xfe"], pa.binary())}), bad)
+    rc, err = batch(capsys, good, "-o", tmp_path / "g.csv")
+    assert rc == 0, err
+    assert [r["note"] for r in rows_of(tmp_path / "g.csv")] == ["S-1", ""]
+    rc, err = batch(capsys, good, "-o", tmp_path / "g.jsonl")
+    assert rc == 0, err
+    lines = (tmp_path / "g.jsonl").read_text(encoding="utf-8").splitlines()
+    assert [json.loads(x)["note"] for x in lines] == ["S-1", None]
+    for name in ("b.csv", "b.jsonl"):
+        rc, err = batch(capsys, bad, "-o", tmp_path / name)
+        assert rc == 2 and not (tmp_path / name).exists()
+        assert "column 'note'" in err and "row 2" in err and "not UTF-8" in err, err
+        assert "Parquet" in err
+    rc, err = batch(capsys, bad, "-o", tmp_path / "b.parquet")
+    assert rc == 0, err
+    assert pq.read_table(tmp_path / "b.parquet")["note"].to_pylist() == [b"ok", b"\xff\xfe"]
+
+
+def test_a_pregnancy_column_is_read_as_check_reads_the_option(tmp_path, capsys):
+    """The ``pregnancy`` column was mapped but never handed to the kernel: a
+    third-trimester panel read against the adult intervals in a file (a respiratory
+    alkalosis) and against the third-trimester ones by ``check --pregnancy`` (none;
+    Abbassi-Ghanavati, Greer & Cunningham 2009, acidbase.reference), and a word outside
+    the vocabulary ("banana", a JSON false) was passed over unread."""
+    src = tmp_path / "preg.csv"
+    src.write_text("ph,pco2,hco3,pregnancy\n7.44,31,21,third_trimester\n7.44,31,21,no\n"
+                   "7.44,31,21,banana\n7.44,31,21,\n", encoding="utf-8")
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, src, "-o", out, "--profile", "full")
+    assert rc == 0, err
+    rows = rows_of(out)
+    library = acidbase.interpret_many({"ph": [7.44] * 4, "pco2": [31] * 4, "hco3": [21] * 4,
+                                       "pregnancy": ["third_trimester", "no", "banana", None]})
+    assert [r["status"] for r in rows] == ["interpreted", "interpreted", "refused",
+                                           "interpreted"]
+    assert "T-PREGNANCY-INTERVALS" in rows[0]["finding_codes"].split(";")
+    assert "T-PREGNANCY-INTERVALS" not in rows[1]["finding_codes"].split(";")
+    for row, it in zip(rows, library):
+        assert row["disorders"] == "; ".join(d.label() for d in it.disorders)
+        assert row["reason"] == "; ".join(map(str, it.problems))
+    assert "Pregnancy (pregnancy) 'banana' is not one of" in rows[2]["reason"]
+    jsonl = tmp_path / "preg.jsonl"
+    jsonl.write_text('{"ph": 7.44, "pco2": 31, "hco3": 21, "pregnancy": false}\n',
+                     encoding="utf-8")
+    rc, err = batch(capsys, jsonl, "-o", out)
+    assert rc == 0 and rows_of(out)[0]["status"] == "refused", err
+
+
+def test_json_lines_take_the_encoding_option_as_csv_does(tmp_path, capsys):
+    """JSON Lines were always decoded as UTF-8, whatever --encoding said, and a byte that
+    is not UTF-8 stopped the run with Python's words ("the file could not be read ('utf-8'
+    codec can't decode byte 0xe9 ...)"); a UTF-16 export likewise.  They are read in the
+    encoding given, and refused as a CSV file is, naming the encoding to give."""
+    line = '{"ph": 7.40, "pco2": 40, "hco3": 24, "sample_id": "Sé-1"}\n'
+    latin, utf16 = tmp_path / "latin.jsonl", tmp_path / "utf16.jsonl"
+    latin.write_bytes(line.encode("latin-1"))
+    utf16.write_bytes(line.encode("utf-16"))
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, latin, "-o", out)
+    assert rc == 2 and "is not utf-8 text" in err and "--encoding" in err, err
+    assert "codec can't decode" not in err and not out.exists()
+    rc, err = batch(capsys, utf16, "-o", out)
+    assert rc == 2 and "give --encoding utf-16" in err and not out.exists(), err
+    for path, encoding in ((latin, "latin-1"), (utf16, "utf-16")):
+        rc, err = batch(capsys, path, "-o", out, "--encoding", encoding)
+        assert rc == 0, err
+        row = rows_of(out)[0]
+        assert (row["status"], row["sample_id"]) == ("interpreted", "Sé-1")
+
+
+@pytest.mark.parametrize("text", [
+    " ph , PCO2 ,\"hco3\"\n7.40,40,24\n7.30,40,20\n",       # spaces around headers
+    "\n \r\n ph ,pco2,hco3\n7.40,40,24\n7.30,40,20\n",      # and blank lines before them
+    "\nph,pco2,hco3,note,note\n7.40,40,24,a,b\n7.30,40,20,c,d\n",  # a repeated header
+])
+def test_headers_with_spaces_or_blank_lines_before_them_keep_every_row(tmp_path, capsys, text):
+    """Headers are matched trimmed of their spaces; the CSV reader was asked for the
+    trimmed names, which the file's header line does not hold, and the run ended as a
+    defect (exit 70, ArrowKeyError).  Where the reader is given the names (a repeated
+    header renamed, a header trimmed), blank lines before the header line are skipped
+    with it: the header line was read as a data row, a row that is not in the file."""
+    src = tmp_path / "in.csv"
+    src.write_text(text, encoding="utf-8")
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, src, "-o", out)
+    assert rc == 0, err
+    rows = rows_of(out)
+    assert [r["row"] for r in rows] == ["1", "2"]
+    assert [r["status"] for r in rows] == ["interpreted", "interpreted"]
+    assert [r["ph"] for r in rows] == ["7.40", "7.30"]
+
+
+@pytest.mark.parametrize("with_time", [False, True])
+def test_json_lines_output_is_json_whatever_the_input_numbers(tmp_path, capsys, with_time):
+    """A Parquet input's NaN and infinity, copied to a JSON Lines output, were written as
+    the tokens NaN and Infinity (json.dumps' own, which no JSON reader takes): an
+    infinity sent the whole table through json.dumps row by row, as did any timestamp
+    column, and a NaN beside one.  A NaN is null (as a missing number is), an infinity
+    the text the CSV output shows; every line parses as strict JSON (RFC 8259)."""
+    src = tmp_path / "in.parquet"
+    cols = {"ph": [7.40, float("nan"), float("inf")], "pco2": [40.0, 40.0, float("-inf")],
+            "hco3": [24.0, 24.0, 24.0]}
+    if with_time:
+        cols["collected_at"] = pa.array([np.datetime64("2024-01-01T10:00", "us")] * 3)
+    pq.write_table(pa.table(cols), src)
+    out = tmp_path / "out.jsonl"
+    rc, err = batch(capsys, src, "-o", out)
+    assert rc == 0, err
+
+    def refuse(token):
+        raise ValueError(f"not JSON: {token}")
+
+    rows = [json.loads(line, parse_constant=refuse)
+            for line in out.read_text(encoding="utf-8").splitlines()]
+    assert [r["row"] for r in rows] == [1, 2, 3]
+    assert [r["ph"] for r in rows] == [7.4, None, "inf"]
+    assert rows[2]["pco2"] == "-inf"
+    assert [r["status"] for r in rows] == ["interpreted", "refused", "refused"]
+    if with_time:
+        assert rows[0]["collected_at"] == "2024-01-01 10:00:00"
+
+
+def test_a_byte_that_is_not_utf8_past_the_first_lines_is_named_by_line_and_column(
+        tmp_path, capsys):
+    """The first 64 KB are sampled; a byte past them that is not UTF-8 stopped the run
+    with Arrow's words ("In CSV column #2: CSV conversion error to string: invalid UTF8
+    data"), counting columns from 0 and naming no line.  The file line, the byte and the
+    column are named, with the encoding to try; nothing is written."""
+    src = tmp_path / "late.csv"
+    rows = b"note,ph,pco2,hco3\n" + b"x,7.40,40,24\n" * 8000
+    src.write_bytes(rows + b"x,7.40,4\xe90,24\n" + b"x,7.40,40,24\n")
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, src, "-o", out, "--quiet")
+    assert rc == 2 and not out.exists()
+    assert "late.csv: line 8002 (byte 0xe9), column 'pco2': not utf-8 text" in err, err
+    assert "--encoding" in err
+
+
+@pytest.mark.parametrize("option", ["-o", "--summary"])
+def test_an_empty_output_name_is_refused_as_naming_no_file(tmp_path, capsys, option):
+    """``-o ''`` (an unset shell variable, ``-o "$OUT"``) said "OUTPUT : is a folder; name
+    a file" (the empty name is the current folder); it names the option and says the
+    name names no file, before any work."""
+    src = tmp_path / "in.csv"
+    src.write_text("ph,pco2,hco3\n7.40,40,24\n", encoding="utf-8")
+    rc, err = batch(capsys, src, option, "")
+    assert rc == 2 and f"could not run: {option} '': names no file; nothing written" in err, err
+
+
+@pytest.mark.parametrize("delimiter", ["1", ".", "-", ":", " ", '"', "\n"])
+def test_an_output_delimiter_that_is_part_of_a_bare_cell_is_refused(tmp_path, capsys,
+                                                                    delimiter):
+    """Numbers (the row number, a Parquet input's numbers) and times are written bare:
+    a digit, a point, a sign, a colon or a space as the delimiter cut them apart (with
+    "1", row 1 came out as "11"), and a quote or a line break failed the run as "the
+    file could not be read (WriteOptions: ...)", blaming the input.  Refused before any
+    work, naming the option and the delimiters to give."""
+    src = tmp_path / "in.csv"
+    src.write_text("ph,pco2,hco3\n7.40,40,24\n", encoding="utf-8")
+    out = tmp_path / "out.csv"
+    rc, err = batch(capsys, src, "-o", out, "--output-delimiter", delimiter)
+    assert rc == 2 and not out.exists()
+    assert f"--output-delimiter {delimiter!r}: give , ; | or tab" in err, err
+
+
+@pytest.mark.parametrize(("mapping", "words"), [
+    ("header,field\nAcidity,ph\nCO2,pco2\nBic,bicarbonate\n",
+     "line 4: field 'bicarbonate' is not one of"),
+    ("header,field\nAcidity,ph\n,pco2\nBic,hco3\n",
+     "line 3: the header cell is empty (field 'pco2'); name the column it maps"),
+])
+def test_a_mapping_file_line_that_cannot_be_read_says_what_is_wrong(tmp_path, capsys,
+                                                                    mapping, words):
+    """A field spelt in plain words ("bicarbonate") is named as the field to use, as
+    ``Panel(bicarbonate=...)`` does, never read as it; an empty header cell was told
+    "field 'pco2' is not one of ...", about a field that is one."""
+    src, path = tmp_path / "lab.csv", tmp_path / "map.csv"
+    src.write_text("Acidity,CO2,Bic\n7.40,40,24\n", encoding="utf-8")
+    path.write_text(mapping, encoding="utf-8")
+    rc, err = batch(capsys, src, "--map", path, "-o", tmp_path / "o.csv")
+    assert rc == 2 and words in err, err
+    if "bicarbonate" in mapping:
+        assert "(use hco3)" in err

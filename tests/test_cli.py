@@ -178,6 +178,22 @@ def test_a_full_disk_on_standard_output_is_named_not_a_traceback(command):
 
 
 @pytest.mark.skipif(not Path("/dev/full").exists(), reason="no /dev/full here")
+@pytest.mark.parametrize("fmt", ["csv", "jsonl"])
+def test_batch_into_a_full_disk_names_standard_output(tmp_path, fmt):
+    """``acidbase batch in.csv > /dev/full`` said "could not run: No space left on device",
+    naming no file (the input could be blamed); it names standard output, as check does."""
+    data = tmp_path / "in.csv"
+    data.write_text("ph,pco2,hco3\n7.40,40,24\n", encoding="utf-8")
+    with open("/dev/full", "w") as full:
+        r = subprocess.run([sys.executable, "-m", "acidbase", "batch", str(data), "--quiet",
+                            "--output-format", fmt], stdout=full, stderr=subprocess.PIPE,
+                           text=True, cwd=ROOT, timeout=120)
+    assert r.returncode == 2, r.stderr
+    assert "Traceback" not in r.stderr and "Exception ignored" not in r.stderr
+    assert "could not run: standard output: No space left on device" in r.stderr, r.stderr
+
+
+@pytest.mark.skipif(not Path("/dev/full").exists(), reason="no /dev/full here")
 @pytest.mark.parametrize("command", [["--help"], ["batch", "--help"], ["history", "--help"],
                                      ["--version"], ["check", "--version"]])
 def test_help_and_version_into_a_full_disk_fail_with_one_line(command):
@@ -283,3 +299,59 @@ def test_the_app_without_a_terminal_says_so_instead_of_waiting_unseen(stdin, std
     assert r.returncode == 2
     assert "acidbase: tui needs a terminal" in r.stderr and "acidbase check" in r.stderr
     assert r.stdout == ""
+
+
+@pytest.mark.parametrize(("command", "option", "value"), [
+    ("check", "--reference-albumin", "\uff14\uff14"),       # full-width digits
+    ("check", "--reference-albumin", "4_4"),                # digit grouping
+    ("check", "--reference-albumin", "nan"),
+    ("check", "--anion-gap-interval", "\uff16"),
+    ("batch", "--window-hours", "inf"),
+    ("batch", "--window-hours", "1e400"),                   # beyond the float range
+    ("batch", "--window-hours", "\uff12\uff14"),
+    ("batch", "--chunk-rows", "\uff18"),
+    ("batch", "--chunk-rows", "1_0"),
+    ("batch", "--chunk-rows", "2.5"),
+    ("batch", "--delta", "pco2=\uff11\uff10"),
+    ("batch", "--delta", "ph=1_0"),
+])
+def test_a_setting_given_as_an_option_is_read_as_a_value_is(tmp_path, command, option, value):
+    """A number given to a setting (the anion-gap interval, the reference albumin, the
+    serial window, a delta limit, the chunk size) is read by the one cell reader, as a
+    panel value is (docs/input.md): other scripts' digits, digit grouping and
+    non-finite numbers are refused, naming the option and the text (they were read by
+    Python's float(): '４４' as 44, '1_0' as 10, and --window-hours inf was taken)."""
+    data = tmp_path / "in.csv"
+    data.write_text("ph,pco2,hco3\n7.40,40,24\n", encoding="utf-8")
+    values = [value, "20"] if option == "--anion-gap-interval" else [value]
+    args = ([*BASE, option, *values] if command == "check"
+            else [str(data), "-o", str(tmp_path / "out.csv"), option, *values])
+    r = run(command, *args)
+    assert r.returncode == 2, r.stdout
+    assert repr(value) in r.stderr or value in r.stderr
+    assert option.lstrip("-").split("-")[0] in r.stderr
+    assert "Traceback" not in r.stderr
+    assert not (tmp_path / "out.csv").exists()
+
+
+def test_a_setting_written_as_an_ordinary_number_is_read():
+    r = run("check", *BASE, "--reference-albumin", "+4.0e1 ", "--anion-gap-interval", "8", "16")
+    assert r.returncode == 0, r.stderr
+
+
+def test_check_shows_the_ids_it_was_given_in_text_and_json():
+    """--sample-id, --patient-id and --collected-at were read only into the FHIR Bundle:
+    the text and JSON readings carried no sign of which panel they were of.  They are
+    shown as given; a control character (a terminal escape) is written as an escape."""
+    ids = ["--sample-id", "S-77\x1b[2J", "--patient-id", "P-9", "--collected-at",
+           "2024-01-01T10:00"]
+    r = run("check", "--brief", *BASE, *ids)
+    assert r.returncode == 0, r.stderr
+    assert ("Sample id: S-77\\x1b[2J; Patient id: P-9; Collected at: 2024-01-01T10:00"
+            in r.stdout)
+    assert "\x1b" not in r.stdout
+    r = run("check", "--json", *BASE, *ids)
+    doc = json.loads(r.stdout)
+    assert (doc["sample_id"], doc["patient_id"], doc["collected_at"]) == (
+        "S-77\x1b[2J", "P-9", "2024-01-01T10:00")
+    assert "sample_id" not in json.loads(run("check", "--json", *BASE).stdout)

@@ -16,6 +16,7 @@ import json
 import subprocess
 import sys
 from contextlib import redirect_stderr, redirect_stdout
+from decimal import Decimal
 
 import numpy as np
 import pyarrow as pa
@@ -233,6 +234,32 @@ def test_numbers_and_missing_markers_read_alike_in_panel_and_library(cell, read)
         pytest.approx(read) if read else None)
 
 
+@pytest.mark.parametrize(("cell", "read"), [
+    (Decimal("4.0"), 16.0), (Decimal("4"), 16.0), (Decimal("0.4E+1"), 16.0),
+    (Decimal("NaN"), "not_a_number"), (Decimal("sNaN"), "not_a_number"),
+    (Decimal("-Infinity"), "not_a_number"),
+    (Decimal("1E+400"), "not_a_number"), (Decimal("40"), "outside_accepted_range"),
+])
+def test_a_python_decimal_reads_as_an_arrow_decimal_column_does(cell, read):
+    """A database's NUMERIC values come to Python as ``decimal.Decimal``: read as the
+    number it is, as a decimal128 Arrow column of it is (was refused as "not a
+    number", with the generic hint); NaN, infinity and values beyond the
+    floating-point range are refused as any such number is (docs/input.md)."""
+    cols = {k: [v] for k, v in BASE.items()}
+    r = acidbase.interpret_many({**cols, "k": [cell]})
+    if isinstance(read, str):
+        assert [p.kind for p in r[0].problems] == [read]
+        with pytest.raises(Exception) as info:
+            acidbase.Panel(**BASE, k=cell)
+        assert [e["type"] for e in info.value.errors()] == [read]
+        return
+    assert r[0].derived["anion_gap_k"] == pytest.approx(read)
+    arrow = acidbase.interpret_many({**cols, "k": pa.array([cell], pa.decimal128(5, 2))})
+    assert arrow[0].derived["anion_gap_k"] == pytest.approx(read)
+    assert acidbase.interpret(acidbase.Panel(**BASE, k=cell)).derived["anion_gap_k"] == (
+        pytest.approx(read))
+
+
 def test_a_clean_row_beside_nan_is_read():
     """The issue's case: ``["4.0", nan]`` once refused its clean second row."""
     cols = {k: [v, v] for k, v in BASE.items()}
@@ -331,3 +358,75 @@ def test_a_very_long_cell_is_shown_shortened_with_its_length_on_every_path(tmp_p
                         *[f"--{k}={v}" for k, v in BASE.items()], f"--k={cell}"],
                        capture_output=True, text=True, timeout=120)
     assert r.returncode == 2 and lib_message in r.stderr
+
+
+@pytest.mark.parametrize(("cell", "hint"), [
+    ("1_400", "digit grouping is not read"),
+    ("1 400", "digit grouping is not read"),
+    ("snake_case", "expected a number in mmol/L"),
+    ("K_4.0", "expected a number in mmol/L"),
+    (np.bytes_(b"4.0"), "expected a number in mmol/L"),
+    ("\u22124.0", "the character '\u2212' (U+2212) is not read"),    # minus sign
+    ("4\u00b70", "the character '\u00b7' (U+00B7) is not read"),     # middle dot
+    ("4.0\u200b", "the character '\\u200b' (U+200B) is not read"),  # zero-width space,
+    ("4\u20090", "the character '\\u2009' (U+2009) is not read"),   # thin space: escaped
+])
+def test_the_hint_of_a_refused_cell_says_what_is_wrong_with_it(cell, hint):
+    """Digit grouping is digits either side of a separator; an underscore elsewhere (a
+    word, a numpy bytes value's name) is no grouping (each was told "digit grouping is
+    not read; write the number without separators").  A character of another script
+    that looks like a sign, a point or a space is named with its code point (each was
+    told only "expected a number"): the cell looks right on screen."""
+    r = acidbase.interpret_many({**{k: [v] for k, v in BASE.items()}, "k": [cell]})
+    assert [p.kind for p in r[0].problems] == ["not_a_number"]
+    assert hint in r[0].problems[0].hint
+
+
+@pytest.mark.parametrize("unit", [None, 5, 1.0])
+def test_a_unit_that_is_not_text_is_refused_as_any_unit_not_taken(unit):
+    """``Panel(pco2_unit=None)`` (a database row's empty unit column) or a number gave
+    pydantic's "Input should be a valid string", naming neither the field's units nor
+    the field; it is refused as ``interpret_many`` refuses it (``UnitError``: "unit
+    'None' is not accepted"), with the units the field takes."""
+    with pytest.raises(Exception) as info:
+        acidbase.Panel(**BASE, pco2_unit=unit)
+    errors = info.value.errors()
+    assert [e["type"] for e in errors] == ["unit_not_accepted"]
+    assert errors[0]["msg"] == (f"unit '{unit}' is not accepted for pCO2; use one of "
+                                "mm[Hg], kPa")
+    with pytest.raises(acidbase.UnitError) as lib:
+        acidbase.interpret_many({k: [v] for k, v in BASE.items()}, {"pco2": unit})
+    assert f"unit '{unit}' is not accepted" in str(lib.value)
+
+
+@pytest.mark.parametrize(("given", "text"), [(12345, "12345"), (np.int64(10 ** 12), "1000000000000"),
+                                             ("S-1", "S-1")])
+def test_an_id_given_as_a_whole_number_is_its_text(given, text):
+    """A database's integer key as ``Panel(sample_id=12345)`` was refused with pydantic's
+    "Input should be a valid string", while the same number in a JSON Lines or Parquet
+    file is read as its text; a yes/no value is still no id."""
+    panel = acidbase.Panel(**BASE, sample_id=given, patient_id=given)
+    assert (panel.sample_id, panel.patient_id) == (text, text)
+    with pytest.raises(Exception):
+        acidbase.Panel(**BASE, sample_id=True)
+
+
+@pytest.mark.parametrize(("cell", "read"), [
+    (np.array(4.0), 16.0), (np.array("4.0"), 16.0), (np.array(4, dtype=np.int32), 16.0),
+    (np.array(True), "not_a_number"), (np.array(np.nan), None),
+])
+def test_a_zero_dimensional_array_is_the_one_cell_it_holds(cell, read):
+    """``Panel(k=np.array(4.0))`` (a reduction kept as an array) was refused as
+    "'array(4.)' is not a number", though a column reads a 0-d array as its cell."""
+    panel_read = None
+    try:
+        panel_read = acidbase.interpret(acidbase.Panel(**BASE, k=cell)).derived["anion_gap_k"]
+    except Exception as e:  # noqa: BLE001
+        assert read == "not_a_number" and [x["type"] for x in e.errors()] == [read]
+    r = acidbase.interpret_many({**{k: [v] for k, v in BASE.items()}, "k": [cell]})
+    if read == "not_a_number":
+        assert [p.kind for p in r[0].problems] == [read]
+    elif read is None:
+        assert panel_read is None and r[0].derived["anion_gap_k"] is None
+    else:
+        assert panel_read == pytest.approx(read) and r[0].derived["anion_gap_k"] == pytest.approx(read)

@@ -166,7 +166,7 @@ def panel_columns(table: pa.Table | pa.RecordBatch, layout: Layout,
                                                       kind="specimen_conflict", hint=hint))
 
     for fld, headers in layout.columns_of.items():
-        if fld not in BY_NAME and fld not in ("sample_type", "hco3_source"):
+        if fld not in BY_NAME and fld not in CHOICE_BY_NAME:  # every choice, pregnancy too
             continue
         if len(headers) == 1 and not any(_implies(layout, h) for h in headers):
             cols[fld] = table.column(headers[0])

@@ -51,6 +51,11 @@ class Dialect:
     """The first data rows (for decimal detection)."""
     multiline: bool = False
     """A quoted cell of the first rows holds a line break (slower parsing needed)."""
+    padded: bool = False
+    """A header has spaces around it: ``headers`` holds it trimmed, so the reader must be
+    given the names (the file's own header line would not match them)."""
+    lead: int = 0
+    """Blank lines before the header line (a reader given the names skips them too)."""
 
 
 #: The first bytes of compressed files, as their formats define them (RFC 1952 gzip;
@@ -82,6 +87,14 @@ def _read_text_sample(path: str | os.PathLike[str], encoding: str, size: int = 1
         # A spreadsheet's "Unicode text" export: its byte-order mark says UTF-16.
         raise BatchInputError(f"{path}: the file is UTF-16 text (it starts with a UTF-16 "
                               "byte-order mark); give --encoding utf-16")
+    if codec == "utf-8-sig" and len(raw) >= 8:
+        # UTF-16 without its mark decodes as UTF-8 (ASCII and NUL bytes): every other
+        # byte NUL says which half; a NUL byte or two in a cell says nothing.
+        for half, name in ((raw[1::2], "utf-16-le"), (raw[0::2], "utf-16-be")):
+            if half.count(0) >= 0.9 * len(half):
+                raise BatchInputError(
+                    f"{path}: the file looks like UTF-16 text without a byte-order mark "
+                    f"(every other byte is 0); give --encoding {name}")
     try:
         text = raw.decode(codec)
     except UnicodeDecodeError as e:
@@ -127,7 +140,13 @@ def sniff_csv(path: str | os.PathLike[str], delimiter: str | None = None,
     _, _, d, rows = best
     headers = tuple(h.strip() for h in rows[0])
     multiline = any("\n" in c or "\r" in c for r in rows for c in r)
-    return Dialect(d, headers, tuple(tuple(r) for r in rows[1:]), multiline)
+    lead = 0
+    for line in text.splitlines():
+        if line.strip():
+            break
+        lead += 1
+    return Dialect(d, headers, tuple(tuple(r) for r in rows[1:]), multiline,
+                   padded=headers != tuple(rows[0]), lead=lead)
 
 
 def _show_delims(ds: Sequence[str]) -> str:

@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 from .. import loinc
 from .. import units as _units
 from ..errors import BatchInputError, Problem, UnitError
-from ..fields import BY_NAME, REQUIRED, TEXT_FIELDS
+from ..fields import BY_NAME, REQUIRED, TEXT_FIELDS, suggest
 from ..inputs.vocab import CHOICES
 from .formats import sniff_csv
 
@@ -108,10 +108,14 @@ def read_mapping(path: str | os.PathLike[str]) -> dict[str, tuple[str, str | Non
         header = row[ih].strip() if ih < len(row) else ""
         fld = row[jf].strip().lower() if jf < len(row) else ""
         unit = row[ju].strip() if ju is not None and ju < len(row) and row[ju].strip() else None
-        if not header or fld not in ALL_FIELDS:
+        if not header:
+            raise BatchInputError(f"mapping file {path} line {lineno}: the header cell is "
+                                  f"empty (field {fld!r}); name the column it maps")
+        if fld not in ALL_FIELDS:
+            name = suggest(fld)  # a plain name of a field ("bicarbonate"): named, not read
             raise BatchInputError(
                 f"mapping file {path} line {lineno}: field {fld!r} is not one of "
-                f"{', '.join(ALL_FIELDS)}")
+                f"{', '.join(ALL_FIELDS)}" + (f" (use {name})" if name else ""))
         if header in out:
             raise BatchInputError(f"mapping file {path} line {lineno}: header {header!r} "
                                   "is mapped twice")

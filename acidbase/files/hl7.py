@@ -36,13 +36,16 @@ from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from typing import ClassVar
 
+import numpy as np
 import pyarrow as pa
 
 from .. import loinc
 from .. import units as _units
 from ..errors import BatchInputError, Problem
 from ..fields import BY_NAME, REQUIRED
-from .source import Source
+from ..inputs.cells import number_hint, read_number
+from ..inputs.panel import describe_value, range_problems
+from .source import Source, not_a_file
 
 FORMAT = "hl7"
 CODES_COLUMN = "hl7_codes"
@@ -65,7 +68,6 @@ HCO3_SOURCE = {"1960-4": "analyser", "14627-4": "analyser", "1959-6": "analyser"
 NUMERIC_TYPES = ("NM", "SN")
 
 _SEGMENT_ID = re.compile(r"^[A-Z][A-Z0-9]{2}$")
-_NM = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)$")  # HL7 NM: sign, digits, decimal point
 _DTM = re.compile(r"^(\d{4})(\d{2})?(\d{2})?(\d{2})?(\d{2})?(\d{2}(?:\.\d{1,4})?)?([+-]\d{4})?$")
 
 
@@ -75,6 +77,8 @@ def looks_like_hl7(path: str, given: str | None = None) -> bool:
         return given == FORMAT
     if path.lower().endswith((".hl7", ".oru")):
         return True
+    if not os.path.isfile(path):  # a pipe would block the look (open_source says what it is)
+        return False
     try:
         with open(path, "rb") as f:
             head = f.read(64)
@@ -134,7 +138,13 @@ class Hl7Problem(Problem):
         "hl7_two_results": "two results in one order",
         "hl7_unit": "a unit the field does not take",
         "hl7_unit_missing": "no unit for a code that may be a mass concentration",
+        "hl7_many_values": "more than one value in one result",
     }
+
+    @property
+    def whole_row(self) -> bool:
+        """The message could not be read: its row has no cells to be refused for."""
+        return self.kind == "hl7_message"
 
     @property
     def label(self) -> str:
@@ -190,6 +200,27 @@ class _Message:
         for sid in self.ids:
             seen[sid] += 1
             self._nth.append(seen[sid])
+
+    def values(self, index: int, field_num: int) -> tuple[int, int, str]:
+        """(repetitions holding a value, values in all, the field as written) of one
+        field: an NM result holds one value, an SN one repetition."""
+        try:
+            seg = self.msg.segments(self.ids[index])[self._nth[index] - 1]
+            raw = seg[field_num] if len(seg) > field_num else ""
+        except (IndexError, KeyError):
+            return 0, 0, ""
+
+        def leaves(x) -> list[str]:
+            if isinstance(x, str):
+                return [x] if x.strip() else []
+            return [leaf for y in x for leaf in leaves(y)]
+
+        if isinstance(raw, str):
+            return (1, 1, raw) if raw.strip() else (0, 0, raw)
+        parts = list(raw)
+        reps = parts if len(parts) > 1 and not any(isinstance(x, str) for x in parts) \
+            else [raw]
+        return sum(1 for r in reps if leaves(r)), len(leaves(raw)), str(raw)
 
     def get(self, index: int, field_num: int, comp: int = 1, rep: int = 1) -> str:
         try:
@@ -284,6 +315,15 @@ def _read_obx(m: _Message, k: int, where: int, p: Panel, status: str, skipped: C
     if vtype not in NUMERIC_TYPES:
         p.notes.append(f"OBX {label} value type {vtype or 'empty'} not read (NM or SN expected)")
         return
+    reps, count, raw = m.values(k, 5)
+    if reps > 1 or (vtype == "NM" and count > 1):  # "40~41", "40^41": never the first alone
+        spec = BY_NAME[name]
+        p.problems.append(_problem(
+            "hl7_many_values", name,
+            f"{spec.title} ({name}) OBX {label}: OBX-5 {raw[:40]!r} holds more than one "
+            f"value ({'repetitions' if reps > 1 else 'components'}); which was meant cannot "
+            "be told", "an NM result holds one number, an SN result one comparator^number"))
+        return
     if vtype == "SN":
         cmp, num, sep = m.get(k, 5, 1), m.get(k, 5, 2), m.get(k, 5, 3)
         text = f"{cmp}{num}" if not sep else f"{cmp}{num}{sep}{m.get(k, 5, 4)}"
@@ -355,18 +395,6 @@ def _sample_type(p: Panel) -> str:
     return "unknown"
 
 
-def _number(text: str) -> tuple[str, float, str] | None:
-    """(comparator, number, flag) of an HL7 value cell, or None when it is not one."""
-    parts = text.split(" ")
-    flag = parts[1] if len(parts) == 2 else ""
-    body = parts[0]
-    cmp = re.match(r"^(<=|>=|<|>)?", body)[0]
-    num = body[len(cmp):]
-    if len(parts) > 2 or not _NM.match(num):
-        return None
-    return cmp, float(num), flag
-
-
 def to_table(reading: Reading) -> tuple[pa.Table, list[str], dict[int, tuple[Problem, ...]]]:
     """The panels as one table of text cells for the reader, notes for the summary, and
     the problems the messages carry, by row."""
@@ -416,16 +444,31 @@ def _refused_whole(p: Panel) -> bool:
 
 
 def _canonical_cell(p: Panel, name: str) -> str | None:
+    """The cell of ``name`` in the field's canonical unit, for a field whose results came
+    in more than one unit (one column takes one unit).  The cell is read by the one cell
+    reader in the unit its OBX-6 states, and only a value it reads is converted; a cell
+    it refuses, or a value outside the accepted range in its own unit, is refused here
+    in that unit (with the hint of the unit where it would be ordinary), as data, and
+    left out of the column (never passed on unconverted)."""
     if name not in p.values:
         return None
     text, unit, _, _ = p.values[name]
-    got = _number(text)
-    if got is None:
-        return text  # the reader refuses it, naming the cell
-    cmp, value, flag = got
     spec = BY_NAME[name]
-    canonical = value * _units.factor(name, spec.kind, unit)
-    return f"{cmp}{canonical!r}" + (f" {flag}" if flag else "")
+    cell = read_number(text)
+    number = cell
+    if cell.comparator:  # a censored value: its limit, read by the same reader
+        number = read_number(text.strip()[len(cell.comparator):])
+    if cell.bad or number.bad or number.value is None:
+        if cell.bad or number.bad:
+            p.problems.append(Problem(name, spec.title, text, unit, kind="not_a_number",
+                                      hint=number_hint(text, ".", unit, name, spec.units)))
+        return None
+    canonical, bad = range_problems(spec, np.array([number.value]), unit)
+    if bad[0] and not cell.comparator:
+        p.problems.append(describe_value(spec, number.value, unit))
+        return None
+    flag = number.flag
+    return f"{cell.comparator or ''}{float(canonical[0])!r}" + (f" {flag}" if flag else "")
 
 
 class Hl7Source(Source):
@@ -449,7 +492,7 @@ class Hl7Source(Source):
 def open_source(path: str, encoding: str = "utf-8", chunk_rows: int = 1 << 14) -> Hl7Source:
     """Open a spool for ``acidbase batch``."""
     if not os.path.isfile(path):
-        raise BatchInputError(f"{path}: no such file")
+        raise BatchInputError(not_a_file(path))
     reading = read_spool(path, encoding)
     if not reading.panels:
         raise BatchInputError(f"{path}: no HL7 v2 messages (a message starts with MSH|)")

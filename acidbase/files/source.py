@@ -64,6 +64,11 @@ class Source:
     (``"ph (2)"`` -> ``"ph"``), for ``map_headers``."""
     duplicates: dict[int, tuple[str, ...]] = field(default_factory=dict)
     """JSON Lines: row (from 0) -> keys its record gave more than once (filled as read)."""
+    named: bool = False
+    """CSV: the reader is given ``headers`` as the column names and skips the file's
+    header line (a header trimmed of its spaces, or renamed, is not the file's)."""
+    lead: int = 0
+    """CSV: blank lines before the header line (skipped with it when ``named``)."""
     _progress: list[int] = field(default_factory=lambda: [0])
 
     @property
@@ -117,6 +122,9 @@ class Source:
                 if not multiline and ("Expected" in text or "straddling" in text):
                     multiline = True  # a quoted line break the sample did not show
                     continue
+                if given == 0 and "Empty CSV file" in text:
+                    # a header line with no line end after it, and nothing more
+                    raise BatchInputError(f"{self.path}: no rows") from None
                 raise BatchInputError(f"{self.path}: {_csv_error(text, self)}") from None
 
     def _csv_pass(self, cols: list[str], on_progress, block: int, multiline: bool,
@@ -124,8 +132,9 @@ class Source:
         f = _CountingReader(open(self.path, "rb"))
         try:
             names = {}
-            if self.notes:  # duplicate headers renamed: our names, the header line skipped
-                names = {"column_names": list(self.headers), "skip_rows": 1}
+            if self.notes or self.named:  # headers renamed or trimmed: our names, the
+                # header line skipped
+                names = {"column_names": list(self.headers), "skip_rows": 1 + self.lead}
             reader = pa_csv.open_csv(
                 io.BufferedReader(f, 1 << 20),
                 read_options=pa_csv.ReadOptions(block_size=block, encoding=self.encoding,
@@ -171,7 +180,7 @@ class Source:
         # typed JSON reader refuses; records are read here and kept as text.
         f = _CountingReader(open(self.path, "rb"))
         try:
-            lines = io.TextIOWrapper(io.BufferedReader(f), encoding="utf-8-sig")
+            lines = io.TextIOWrapper(io.BufferedReader(f), encoding=text_codec(self.encoding))
             buf: list[dict] = []
             row = 0
             for lineno, line in enumerate(lines, start=1):
@@ -205,7 +214,29 @@ def _csv_error(text: str, src: Source | None = None) -> str:
                  "the header)" if line is not None
                  else f"a line has {m[2]} fields where the header has {m[1]}")
         return f"{where}: {m[3].strip()[:120]!r}; fix the line, or check --delimiter"
+    m = re.search(r"In CSV column #(\d+): CSV conversion error to string: invalid UTF8", text)
+    if m and src is not None:  # a byte past the sampled start that is not UTF-8
+        k = int(m[1])
+        column = f"column {src.headers[k]!r}" if k < len(src.headers) else "a column"
+        found = _undecodable_line(src.path)
+        where = f"line {found[0]} (byte 0x{found[1]:02x})" if found else "a line"
+        return (f"{where}, {column}: not {src.encoding} text; save the file as UTF-8 or "
+                "give --encoding (for example cp1252)")
     return text
+
+
+def _undecodable_line(path: str) -> tuple[int, int] | None:
+    """(file line from 1, the byte) of the first line that is not UTF-8, or None."""
+    try:
+        with open(path, "rb") as f:
+            for lineno, raw in enumerate(f, start=1):
+                try:
+                    raw.decode("utf-8")
+                except UnicodeDecodeError as e:
+                    return lineno, raw[e.start]
+    except OSError:
+        return None
+    return None
 
 
 def _ragged_line(src: Source, expected: int, got: int) -> int | None:
@@ -293,14 +324,35 @@ def _records_to_batch(records: list[dict], cols: list[str],
     return pa.RecordBatch.from_arrays(arrays, names=cols)
 
 
-def jsonl_headers(path: str | os.PathLike[str]) -> tuple[str, ...]:
-    """Keys of a JSON Lines file, in order of first appearance (one pass)."""
+def text_codec(encoding: str) -> str:
+    """The codec a file's text is read with: UTF-8 with or without its byte-order mark
+    for ``utf-8``, else the encoding given (``--encoding``)."""
+    return "utf-8-sig" if encoding.lower().replace("_", "-") in ("utf-8", "utf8") else encoding
+
+
+def jsonl_headers(path: str | os.PathLike[str], encoding: str = "utf-8") -> tuple[str, ...]:
+    """Keys of a JSON Lines file, in order of first appearance (one pass).  The text is
+    read in ``encoding`` (``--encoding``, as a CSV file's); bytes it cannot decode stop
+    the run naming the byte, its position and the encoding to try."""
     keys: dict[str, None] = {}
-    with open(path, encoding="utf-8-sig") as f:
-        for lineno, line in enumerate(f, start=1):
-            if line.strip():
-                for k in _json_record(line, lineno, str(path)):
-                    keys.setdefault(k, None)
+    codec = text_codec(encoding)
+    try:
+        with open(path, encoding=codec) as f:
+            for lineno, line in enumerate(f, start=1):
+                if line.strip():
+                    for k in _json_record(line, lineno, str(path)):
+                        keys.setdefault(k, None)
+    except LookupError:
+        raise BatchInputError(f"encoding {encoding!r} is not known") from None
+    except UnicodeDecodeError as e:
+        with open(path, "rb") as f:
+            head = f.read(2)
+        if codec == "utf-8-sig" and head in (b"\xff\xfe", b"\xfe\xff"):
+            raise BatchInputError(f"{path}: the file is UTF-16 text (it starts with a UTF-16 "
+                                  "byte-order mark); give --encoding utf-16") from None
+        raise BatchInputError(
+            f"{path}: a byte (0x{e.object[e.start]:02x}) is not {encoding} text; save the "
+            "file as UTF-8 or give --encoding (for example cp1252)") from None
     if not keys:
         raise BatchInputError(f"{path}: no records")
     return tuple(keys)
@@ -339,14 +391,15 @@ def open_source(path: str | os.PathLike[str], fmt: str | None = None, delimiter:
     """Open INPUT: format, delimiter and headers (decimal is set after mapping)."""
     p = str(path)
     if not os.path.isfile(p):
-        raise BatchInputError(f"{p}: no such file")
+        raise BatchInputError(not_a_file(p))
     fmt = detect_format(p, fmt)
     size = os.path.getsize(p)
     if fmt == "csv":
         d = sniff_csv(p, delimiter, encoding)
         headers, notes = unique_headers(d.headers)
         src = Source(p, fmt, headers, d.delimiter, encoding=encoding, multiline=d.multiline,
-                     notes=notes, repeats=_repeats(d.headers, headers))
+                     notes=notes, repeats=_repeats(d.headers, headers), named=d.padded,
+                     lead=d.lead)
         src._sample = d.sample  # type: ignore[attr-defined]
     elif fmt == "parquet":
         try:
@@ -363,11 +416,23 @@ def open_source(path: str | os.PathLike[str], fmt: str | None = None, delimiter:
         src = Source(p, fmt, headers, total_rows=pf.metadata.num_rows, notes=notes,
                      repeats=_repeats(schema.names, headers))
     else:
-        src = Source(p, fmt, jsonl_headers(p))
+        src = Source(p, fmt, jsonl_headers(p, encoding), encoding=encoding)
     src.size = size
     src.missing = tuple(missing)
     src.chunk_rows = max(1, int(chunk_rows))
     return src
+
+
+def not_a_file(path: str) -> str:
+    """Why ``path`` cannot be read as an input file: no such file, a folder, or something
+    that is not a regular file (a pipe, a device: read once, while a run reads its file
+    more than once)."""
+    if os.path.isdir(path):
+        return f"{path}: is a folder; name a file"
+    if os.path.exists(path):
+        return (f"{path}: is not a regular file (a pipe or a device); give - to read "
+                "standard input")
+    return f"{path}: no such file"
 
 
 def unique_headers(headers: Sequence[str]) -> tuple[tuple[str, ...], tuple[str, ...]]:

@@ -19,7 +19,6 @@ from __future__ import annotations
 
 import contextlib
 import functools
-import io
 import json
 import re
 import sys
@@ -37,6 +36,8 @@ from .outputs import OutputError, OutputSet
 
 #: Output formats, chosen by the name or by option.
 OUTPUT_FORMATS: tuple[str, ...] = ("csv", "jsonl", "parquet")
+#: CSV output delimiters: none of them is part of a cell written bare (numbers, times).
+OUTPUT_DELIMITERS: tuple[str, ...] = (",", ";", "|", "\t")
 
 #: A cell that is a plain number in either decimal convention (escaping exempts it).
 _PLAIN_NUMBER = r"^[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?$"
@@ -294,13 +295,14 @@ def _json_values(col: pa.Array) -> pa.Array | None:
         return pc.fill_null(pc.binary_join_element_wise('"', body, '"', ""), "null")
     if pa.types.is_floating(t):
         col = col.cast(pa.float64())
-        values = np.asarray(col.to_numpy(zero_copy_only=False), dtype=np.float64)
-        if np.isinf(values).any():
-            return None  # json.dumps writes Infinity; never in our output, left to it
         text = pc.cast(col, pa.string())
         # Arrow writes 6 and -0 where Python writes 6.0 and -0.0
         bare = pc.invert(pc.match_substring_regex(text, "[.eEn]"))
         text = pc.if_else(bare, pc.binary_join_element_wise(text, ".0", ""), text)
+        # JSON has no infinity (json.dumps wrote the token Infinity, which no JSON reader
+        # takes): an infinite number passed through from the input is written as the
+        # text the CSV output shows, "inf" or "-inf"
+        text = pc.if_else(pc.is_inf(col), pc.binary_join_element_wise('"', text, '"', ""), text)
         return pc.fill_null(pc.if_else(pc.is_nan(col), pa.scalar(None, pa.string()), text),
                             "null")
     if pa.types.is_integer(t):
@@ -310,12 +312,20 @@ def _json_values(col: pa.Array) -> pa.Array | None:
     return None
 
 
+def _json_cell(v: object) -> object:
+    """A cell for ``json.dumps``: NaN as None, an infinite number as its text."""
+    if isinstance(v, float) and not np.isfinite(v):
+        return None if v != v else ("inf" if v > 0 else "-inf")
+    return v
+
+
 def jsonl_bytes(table: pa.Table) -> bytes:
     """``table`` as JSON Lines, one object per row, the same text as ``json.dumps(row,
     ensure_ascii=False)`` gives (numbers may differ in form, not value: Arrow writes
     0.00001 where Python writes 1e-05).  Built column by column with Arrow's string
-    kernels; a table with a column type not handled here (timestamps, lists, ...)
-    goes row by row through ``json.dumps`` with ``default=str``."""
+    kernels; a column of a type not handled here (timestamps, dates, decimals...) goes
+    cell by cell through ``json.dumps`` with ``default=str``.  Never a NaN or Infinity
+    token: a missing or NaN number is ``null``, an infinite one its text."""
     n = table.num_rows
     if n == 0:
         return b""
@@ -323,12 +333,10 @@ def jsonl_bytes(table: pa.Table) -> bytes:
     for name, col in zip(table.column_names, table.columns):
         col = col.combine_chunks() if isinstance(col, pa.ChunkedArray) else col
         values = _json_values(col)
-        if values is None:
-            out = io.StringIO()
-            for rec in table.to_pylist():
-                out.write(json.dumps(rec, ensure_ascii=False, default=str))
-                out.write("\n")
-            return out.getvalue().encode("utf-8")
+        if values is None:  # (the whole table went row by row: a float NaN beside a
+            # timestamp column was written as the token NaN)
+            values = pa.array([json.dumps(_json_cell(v), ensure_ascii=False, default=str)
+                               for v in col.to_pylist()], pa.string())
         key = json.dumps(name, ensure_ascii=False) + ": "
         parts.append((key, values))
     # the braces ride on the first and last fragments: one join makes the lines
@@ -379,6 +387,67 @@ def csv_rows(table: pa.Table, decimals: Mapping[str, int], escape: Collection[st
     return sink.getvalue()  # Arrow's buffer: no copy into bytes
 
 
+class _StandardOutput:
+    """Standard output's bytes, a refused write (``> /dev/full``, a full disk) raised
+    with the name "standard output", so the run's message says where it failed; a
+    closed pipe (``BrokenPipeError``) passes as it is."""
+
+    closed = False
+
+    def __init__(self, raw: BinaryIO) -> None:
+        self.raw = raw
+
+    def writable(self) -> bool:
+        return True
+
+    def write(self, data) -> int:
+        try:
+            return self.raw.write(data)
+        except BrokenPipeError:
+            raise
+        except OSError as e:
+            raise OSError(e.errno, e.strerror, "standard output") from e
+
+    def flush(self) -> None:
+        try:
+            self.raw.flush()
+        except BrokenPipeError:
+            raise
+        except OSError as e:
+            raise OSError(e.errno, e.strerror, "standard output") from e
+
+
+def _bytes_as_text(table: pa.Table, fmt: str) -> pa.Table:
+    """``table`` with its columns of bytes (Parquet's BYTE_ARRAY without the UTF-8
+    annotation, passed through) as the text they hold, for the text formats; bytes that
+    are not UTF-8 cannot be written as text: refused, naming the column and the row."""
+    for i, t in enumerate(table.schema.types):
+        if not (pa.types.is_binary(t) or pa.types.is_large_binary(t)):
+            continue
+        name = table.column_names[i]
+        try:
+            text = table.column(i).cast(pa.string())
+        except pa.ArrowInvalid:
+            cells = table.column(i).to_pylist()
+            at = next(k for k, c in enumerate(cells) if c is not None and not _utf8(c))
+            row = table.column("row")[at].as_py() if "row" in table.column_names else at + 1
+            raise OutputError(
+                f"column {name!r} holds bytes that are not UTF-8 text (row {row}: "
+                f"{cells[at][:20]!r}); {'CSV' if fmt == 'csv' else 'JSON Lines'} output "
+                "carries text only: write Parquet (-o NAME.parquet), which keeps the bytes"
+            ) from None
+        table = table.set_column(i, name, text)
+    return table
+
+
+def _utf8(data: bytes) -> bool:
+    try:
+        data.decode("utf-8")
+    except UnicodeDecodeError:
+        return False
+    return True
+
+
 class Writer:
     """Writes output tables in one format; the schema is fixed by the first table.
 
@@ -405,6 +474,11 @@ class Writer:
         Lines and Parquet keep the full doubles, as ``check --json`` does).
         ``metadata`` (Parquet's key-value metadata) may be a function, called when the
         first table is put (what it needs may still be on its way at the start)."""
+        if fmt == "csv" and delimiter not in OUTPUT_DELIMITERS:
+            raise OutputError(
+                f"--output-delimiter {delimiter!r}: give , ; | or tab (a digit, a point, a "
+                "sign, a colon, a space, a quote or a line break is part of cells written "
+                "bare, such as numbers and times, and would cut them apart)")
         self.escape = None if escape is None else frozenset(escape)
         self.decimals = dict(decimals or {})
         to_stdout = sink is None and path in (None, "-")
@@ -430,7 +504,8 @@ class Writer:
                                    quoting_style="needed")
 
     def _open(self, schema: pa.Schema) -> None:
-        self._sink = self._given if self._given is not None else sys.stdout.buffer
+        self._sink = self._given if self._given is not None else _StandardOutput(
+            sys.stdout.buffer)
         if callable(self.metadata):
             self.metadata = dict(self.metadata())
         self.schema = schema.with_metadata(self.metadata) if self.metadata else schema
@@ -449,6 +524,8 @@ class Writer:
         ``plain``: columns of this table the caller has read cell by cell and found
         to hold only numbers or its own vocabulary, so escaping would change nothing.
         """
+        if self.fmt != "parquet":
+            table = _bytes_as_text(table, self.fmt)
         if self.fmt == "csv":  # derived values and labels as text: the schema says text
             from ..csvtext import compiled_csv
 

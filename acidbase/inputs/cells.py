@@ -21,6 +21,8 @@ message whatever way it came in.  The policy, as docs/input.md states it:
 * Not measured: an empty cell, None, a floating-point NaN, or a token declared
   with ``--missing`` (compared after trimming spaces).  The words "NA", "nan",
   "inf" are not numbers and refuse the row unless declared missing.
+* A Python ``Decimal`` (a database's NUMERIC) is the number it writes, as an Arrow
+  decimal column is.
 * Refused: yes/no values (``True``, a boolean column), non-finite numbers,
   integers beyond the floating-point range, digits of other scripts (full-width,
   Arabic-Indic: refused, never converted), digit grouping, anything else.
@@ -33,6 +35,7 @@ import math
 import re
 from collections.abc import Sequence
 from dataclasses import dataclass
+from decimal import Decimal
 from types import ModuleType
 from typing import TYPE_CHECKING, Any
 
@@ -535,6 +538,8 @@ def _object_numbers(cells: list[Any], decimal: str, missing: Sequence[str]) -> P
     cmps = np.full(n, None, dtype=object)
     flags = np.full(n, None, dtype=object)
     for i, c in enumerate(cells):
+        if isinstance(c, np.ndarray) and c.ndim == 0:  # a 0-d array is its one cell
+            c = c.item()
         if isinstance(c, (bool, np.bool_)):
             bad[i], texts[i] = True, str(bool(c))
         elif _is_missing_object(c):
@@ -542,12 +547,16 @@ def _object_numbers(cells: list[Any], decimal: str, missing: Sequence[str]) -> P
         elif isinstance(c, str):
             texts[i] = c
             vals[i], cmps[i], flags[i], bad[i] = _text_cell(c, decimal, missing)
-        elif isinstance(c, (int, np.integer, float, np.floating)):
+        elif isinstance(c, (int, np.integer, float, np.floating, Decimal)):
+            # a Decimal (a database's NUMERIC) is the number it writes, as an Arrow
+            # decimal column is; its text as written ("7.40") for messages
             texts[i] = repr(c) if isinstance(c, float) else str(c)[:40]
             try:
-                v = float(c)
+                v = float(c)  # a Decimal NaN or infinity, or 1E+400, is not finite
             except OverflowError:  # an integer beyond the floating-point range
                 v = math.inf
+            except ValueError:  # a signalling Decimal NaN
+                v = math.nan
             if math.isfinite(v):
                 vals[i] = v
             else:
@@ -660,6 +669,17 @@ def read_number(cell: object, decimal: str = ".", missing: Sequence[str] = ()) -
                       bool(p.bad[0]), p.cell(0))
 
 
+def read_setting(text: object) -> float | None:
+    """A number given to a setting (an option's value: the anion-gap interval, the serial
+    window, a delta limit, a count), read by ``read_number`` as a panel value is, and
+    plain: no comparator, no laboratory flag, finite.  None when it is not one (other
+    scripts' digits, digit grouping, NaN and infinity words, nothing)."""
+    cell = read_number(text)
+    if cell.bad or cell.comparator or cell.flag or cell.value is None:
+        return None
+    return cell.value
+
+
 #: A number with a word after it that may be a unit ("5.3 kPa", "40mmHg", "40 mm Hg").
 _NUMBER_THEN_WORDS = re.compile(r"(?:[<>]=?)?\s*[+-]?[0-9.,]*[0-9]\s*(?P<after>[^\s0-9].*)")
 
@@ -682,7 +702,11 @@ def number_hint(cell: object, decimal: str, unit: str, field: str = "",
         return "a number beyond the floating-point range is no measurement"
     if any(ch.isdigit() and not "0" <= ch <= "9" for ch in text):
         return "only the digits 0-9 are read; digits of other scripts are refused, not converted"
-    if "_" in text or re.search(r"[0-9] [0-9]", text):
+    odd = next((ch for ch in text if not ch.isascii()), None)
+    if odd is not None:  # a typographic minus, a middle dot, a thin or zero-width space...
+        return (f"the character {odd!r} (U+{ord(odd):04X}) is not read: write the number "
+                "with the digits 0-9, a point (or the declared decimal mark) and - or +")
+    if re.search(r"[0-9][_ ][0-9]", text):
         return "digit grouping is not read; write the number without separators"
     if decimal == "." and "," in text:
         return ("a comma is not read as digit grouping, nor as a decimal mark unless the "

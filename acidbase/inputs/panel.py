@@ -226,6 +226,13 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None, *
                                           if p and 0 <= int(i) < n}
     if problems:
         refused[np.fromiter(problems, dtype=np.int64)] = True
+    # (row, field) already refused before the cells (an HL7 value refused in the unit its
+    # message states, then left out): not also said to be "not given".
+    told = {(i, p.field) for i, found in problems.items() for p in found}
+    # A row refused whole before its cells (an HL7 message that could not be read): no
+    # field of it is "not given", it was not read.
+    unread = [i for i, found in problems.items()
+              if any(getattr(p, "whole_row", False) for p in found)]
 
     def add(rows: np.ndarray, make) -> None:
         for i in np.flatnonzero(rows).tolist():
@@ -278,6 +285,9 @@ def screen(columns: Mapping[str, Any], units: Mapping[str, str] | None = None, *
             add(censored, lambda i, s=spec, c=code, p=p: censored_problem(
                 s, cell_text(p, i), c))
             missing_rows = np.isnan(raw) & ~p.bad & ~censored
+            if told:
+                missing_rows[[i for i, f in told if f == spec.name]] = False
+                missing_rows[unread] = False
             add(missing_rows, lambda i, s=spec, c=code: Problem(s.name, s.title, None, c,
                                                                 kind="missing"))
             bad = bad | missing_rows | censored
@@ -480,13 +490,16 @@ def _unit_validator(spec: FieldSpec):
     from pydantic import field_validator
     from pydantic_core import PydanticCustomError
 
-    def check(cls, value: str) -> str:
-        code = _units.normalise(value)
+    def check(cls, value: object) -> str:
+        # before pydantic's type check: a unit that is no text (None from an empty
+        # database column, a number) is refused as any unit not taken, with the units
+        code = _units.normalise(value) if isinstance(value, str) else None
         if code not in spec.units:
             raise PydanticCustomError("unit_not_accepted", UNIT_NOT_ACCEPTED,
-                                      _unit_context(spec, value))
+                                      _unit_context(spec, value if isinstance(value, str)
+                                                    else str(value)))
         return code
-    return field_validator(f"{spec.name}_unit")(check)
+    return field_validator(f"{spec.name}_unit", mode="before")(check)
 
 
 def _read_validator(spec: FieldSpec):
@@ -523,6 +536,18 @@ def _value_validator(spec: FieldSpec):
             _raise(describe_value(spec, value, unit))
         return value
     return field_validator(spec.name)(check)
+
+
+def _text_validator(name: str):
+    """An id given as a whole number (a database's integer key, numpy's int64) is its
+    decimal text, as a file's cell is; anything else but text is left to the type check."""
+    from pydantic import field_validator
+
+    def read(cls, value: Any) -> Any:
+        if isinstance(value, (int, np.integer)) and not isinstance(value, (bool, np.bool_)):
+            return str(int(value))
+        return value
+    return field_validator(name, mode="before")(read)
 
 
 def _choice_validator(choice: Choice):
@@ -569,6 +594,7 @@ def _build_panel() -> type[BaseModel]:
         validators[f"_read_{choice.name}"] = _choice_validator(choice)
     for name in TEXT_FIELDS:
         definitions[name] = (str | None, Field(default=None, max_length=200))
+        validators[f"_text_{name}"] = _text_validator(name)
     for spec in NUMERIC:
         default = ... if spec.required else None
         definitions[spec.name] = (

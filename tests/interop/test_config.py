@@ -255,3 +255,23 @@ def test_the_library_refuses_a_bad_paediatric_interval_too():
         Settings.checked(paediatric_intervals=(("pco2", 50.0, 30.0),))
     with pytest.raises(SettingsError, match="interval of 'k'"):
         Settings.checked(paediatric_intervals=(("k", 3.0, 5.0),))
+
+
+@pytest.mark.parametrize(("text", "key"), [
+    ("[serial]\nwindow_hours = inf\n", "serial.window_hours"),
+    ("[history]\nretention_days = inf\n", "history.retention_days"),
+    ("[serial.delta]\nph = inf\n", "serial.delta.ph"),
+    ("[albumin]\nreference_g_l = nan\n", "albumin.reference_g_l"),
+    ("[intervals.arterial]\nph = [7.35, inf]\n", "intervals.arterial.ph.1"),
+])
+def test_a_site_setting_of_nan_or_infinity_is_refused_naming_its_key(tmp_path, capsys,
+                                                                     text, key):
+    """TOML writes NaN and infinity (``inf``, ``nan``); no setting is one.  An infinite
+    serial window, retention or delta limit was taken (``window_hours = inf`` compared
+    every panel of a patient), and a delta's refusal named the union branch
+    ('serial.delta.ph.float', "(and 1 more)")."""
+    path = site_file(tmp_path, text)
+    rc, _, err = run(capsys, "config", "show", "--config", path)
+    assert rc == 2
+    assert f"key {key!r}: Input should be a finite number" in err, err
+    assert "(and" not in err and "float" not in err

@@ -93,9 +93,10 @@ def test_a_malformed_message_is_refused_with_its_position_and_the_others_read(tm
     rows, err = _batch(capsys, tmp_path, SPOOL, "o")
     bad = rows[3]
     assert bad["status"] == "refused"
-    # Message 4 starts at segment 31 of the file; its OBX (segment 34) lacks OBX-11.
-    assert bad["reason"].startswith("HL7 message 4 (segment 34 of the file) not read: OBX-11 "
-                                    "(result status, required) is empty; ")
+    # Message 4 starts at segment 31 of the file; its OBX (segment 34) lacks OBX-11.  The
+    # message was not read, so no field of it is also said to be "not given" (it was).
+    assert bad["reason"] == ("HL7 message 4 (segment 34 of the file) not read: OBX-11 "
+                             "(result status, required) is empty")
     assert [r["status"] for r in rows].count("interpreted") == 4
     assert (bad["patient_id"], bad["sample_id"]) == ("PT-1004", "SPC-4")  # read before the fault
     assert "Traceback" not in err
@@ -254,3 +255,64 @@ def test_deleted_and_wrong_results_are_skipped_and_counted(tmp_path, capsys):
     assert rows[0]["status"] == "interpreted"
     assert "k (mmol/L)" not in rows[0] and "lactate (mmol/L)" not in rows[0]
     assert "2 result(s) skipped by status (X/D/W) D 1, W 1" in err
+
+
+def _pco2_message(n: int, value: str, unit: str) -> list[str]:
+    return [msh("20260301101500+0100", f"M{n}"), f"PID|1||P{n}",
+            f"OBR|1||S{n}|24336-0^Gas panel^LN|||202603011{n:03d}",
+            obx(1, "NM", "2744-1^pH^LN", "7.40", "[pH]"),
+            obx(2, "NM", "2019-8^pCO2^LN", value, unit),
+            obx(3, "NM", "1960-4^HCO3^LN", "24", "mmol/L")]
+
+
+def test_a_field_in_two_units_is_read_by_the_one_reader_in_each_cells_unit(tmp_path, capsys):
+    """pCO2 in kPa in one message and mm[Hg] in another (one column takes one unit, so
+    each cell is taken to mm[Hg]).  Each cell is read by the one cell reader in the unit
+    its OBX-6 states: full-width digits are refused, not converted (docs/input.md); an
+    exponent is read, then converted (1e1 kPa was passed on unconverted and read as
+    10 mm[Hg]); a value impossible in its own unit is refused in that unit with the
+    hint (40 kPa was refused as "300 mm[Hg]", with no hint).  UCUM: 1 kPa =
+    7.50062 mm[Hg] (value from memory; acidbase.units holds the factor)."""
+    segs = (_pco2_message(1, "5.3", "kPa") + _pco2_message(2, "\uff14\uff10", "mm[Hg]")
+            + _pco2_message(3, "1e1", "kPa") + _pco2_message(4, "40", "kPa")
+            + _pco2_message(5, "\uff15.\uff13", "kPa") + _pco2_message(6, "40", "mm[Hg]"))
+    rows, _ = _batch(capsys, tmp_path, write_spool(tmp_path / "mixed.hl7", segs), "o")
+    assert len(rows) == 6 and [r["message"] for r in rows] == ["1", "2", "3", "4", "5", "6"]
+    assert [r["status"] for r in rows] == ["interpreted", "refused", "interpreted", "refused",
+                                           "refused", "interpreted"]
+    assert float(rows[0]["pco2 (mm[Hg])"]) == pytest.approx(5.3 * 7.50062, abs=1e-3)
+    assert float(rows[2]["pco2 (mm[Hg])"]) == pytest.approx(10 * 7.50062, abs=1e-3)
+    assert "only the digits 0-9 are read" in rows[1]["reason"]
+    assert rows[4]["reason"] == ("pCO2 (pco2) '\uff15.\uff13' is not a number - only the digits "
+                                 "0-9 are read; digits of other scripts are refused, not converted")
+    assert rows[3]["reason"] == (
+        "pCO2 (pco2) 40 kPa is outside the accepted range 1.067 to 33.33 kPa - pCO2 would be "
+        "ordinary at this value in mm[Hg]: if that is the unit, state it (pco2 unit mm[Hg]), "
+        "the value was not converted")
+
+
+@pytest.mark.parametrize(("value", "vtype", "words"), [
+    ("40~41", "NM", "'40~41' holds more than one value (repetitions)"),
+    ("40^41", "NM", "'40^41' holds more than one value (components)"),
+    ("40&1", "NM", "'40&1' holds more than one value (components)"),
+    ("<^0.3~>^9", "SN", "holds more than one value (repetitions)"),
+])
+def test_a_result_holding_two_values_refuses_the_panel(tmp_path, capsys, value, vtype, words):
+    """OBX-5 of an NM result holds one number (HL7 v2.5.1 2A.3.47), an SN result one
+    structured number (2A.3.72); a repetition (~) or a component (^, &) more was read as
+    its first value alone, the rest dropped unseen.  Which was meant cannot be told: the
+    panel is refused, naming the field, the OBX and the value."""
+    segs = _simple([])
+    segs[4] = obx(2, vtype, "2019-8^pCO2^LN", value, "mm[Hg]")
+    rows, _ = _batch(capsys, tmp_path, write_spool(tmp_path / "two.hl7", segs), "o")
+    assert rows[0]["status"] == "refused"
+    assert rows[0]["reason"].startswith("pCO2 (pco2) OBX 2019-8: OBX-5 ")
+    assert words in rows[0]["reason"]
+    assert "was not given" not in rows[0]["reason"]
+
+
+def test_an_empty_trailing_component_is_one_value(tmp_path, capsys):
+    segs = _simple([])
+    segs[4] = obx(2, "NM", "2019-8^pCO2^LN", "40^", "mm[Hg]")
+    rows, _ = _batch(capsys, tmp_path, write_spool(tmp_path / "one.hl7", segs), "o")
+    assert rows[0]["status"] == "interpreted" and rows[0]["pco2 (mm[Hg])"] == "40"
