@@ -92,7 +92,7 @@ class Problem:
         unit = f" {self.unit}" if self.unit and self.unit not in UNITLESS else ""
         if self.kind == "outside_accepted_range" and self.allowed is not None:
             lo, hi = self.allowed
-            text = (f"{head} {_num(self.value)}{unit} is outside the accepted range "
+            text = (f"{head} {_value(self.value)}{unit} is outside the accepted range "
                     f"{_num(lo)} to {_num(hi)}{unit}")
         elif self.kind == "not_a_number":
             text = f"{head} {_shown(self.value)} is not a number"
@@ -154,6 +154,17 @@ def _shown(x: object) -> str:
 
 
 def _num(x: object) -> str:
+    """A range's bound (converted bounds to four significant digits)."""
     if isinstance(x, float):
         return f"{x:.4g}" if abs(x) < 1e5 else f"{x:.6g}"
+    return str(x)
+
+
+def _value(x: object) -> str:
+    """A value as read: the shortest text that reads back as the same float (650.25
+    stays 650.25; four significant digits had made it 650.2, not the value given),
+    without a bare ".0"."""
+    if isinstance(x, float):
+        text = repr(x)
+        return text[:-2] if text.endswith(".0") else text
     return str(x)

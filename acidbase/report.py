@@ -125,7 +125,7 @@ def as_text(it: Interpretation, width: int = TEXT_WIDTH, working: bool = True,
     for name, item in it.inputs.items():
         spec = BY_NAME[name]
         unit = "" if item["unit"] in ("1", "[pH]") else f" {item['unit']}"
-        shown.append(f"{spec.title} {item['value']:.4g}{unit}")
+        shown.append(f"{spec.title} {item['value']:.6g}{unit}")
     lines += wrap_lines("Inputs (canonical units): " + ", ".join(shown), "", width)
     if it.qualifiers:
         lines += wrap_lines("Censored values, read as not measured: " + ", ".join(it.qualifiers),
@@ -173,7 +173,7 @@ def as_markdown(it: Interpretation) -> str:
     out.append("| Input | Value | Unit |")
     out.append("|---|---|---|")
     for name, item in it.inputs.items():
-        out.append(f"| {BY_NAME[name].title} | {item['value']:.4g} | {item['unit']} |")
+        out.append(f"| {BY_NAME[name].title} | {item['value']:.6g} | {item['unit']} |")
     cited: dict[str, Any] = {}
     for section, heading in QUESTIONS.items():
         out += ["", f"## {heading}", ""]

@@ -111,7 +111,7 @@ def _extreme_text(r: Row) -> str:
         lo, hi = spec.physiologic
         x = r[spec.name]
         if np.isfinite(x) and (x < lo or x > hi):
-            items.append(f"{spec.title} {x:.4g} {spec.unit} (usual extremes {lo:g} to {hi:g})")
+            items.append(f"{spec.title} {x:.6g} {spec.unit} (usual extremes {lo:g} to {hi:g})")
     return ("Extreme value, implausible but possible (such values are measured and "
             "published): verify the sample and the entry before use: " + "; ".join(items) + ".")
 

@@ -45,3 +45,21 @@ def test_a_chronic_timing_is_worded_as_consistent_with_and_names_the_alternative
     assert "consistent with a chronic process" in text
     assert "acute one plus a metabolic alkalosis" in text
     assert "reads as chronic" not in text
+
+
+def test_a_value_keeps_every_digit_it_was_given_in_the_report_and_in_a_refusal():
+    """The inputs echoed by the text and Markdown reports, the extreme-value caution and
+    a refusal's value print the number given: four significant digits had turned
+    pCO2 40.125 into 40.13 and a refused 650.25 into 650.2 (a value not in the file).
+    pCO2 40.125 with HCO3- 24 and pH 7.40 is an ordinary panel (Henderson-Hasselbalch,
+    value from memory); 8-250 mm[Hg] is acidbase/fields.py's accepted range."""
+    from acidbase import report
+
+    panel = acidbase.Panel(ph=7.40, pco2=40.125, hco3=24, k=8.125)
+    r = acidbase.interpret(panel)
+    assert "pCO2 40.125 mm[Hg]" in report.as_text(r)
+    assert "| pCO2 | 40.125 | mm[Hg] |" in report.as_markdown(r)
+    assert "K+ 8.125 mmol/L (usual extremes" in report.as_text(r)
+    with pytest.raises(ValueError) as refused:  # pydantic's ValidationError
+        acidbase.Panel(ph=7.40, pco2=650.25, hco3=24)
+    assert "650.25 mm[Hg] is outside the accepted range 8 to 250 mm[Hg]" in str(refused.value)
