@@ -27,11 +27,13 @@ def shown_values(entry: Entry, panel: acidbase.Panel | None) -> list[tuple[str, 
     """The series' values of an entry as (number, unit), each in the unit it was keyed in:
     an accepted panel's numbers as the reader read them, a refused one's text as typed."""
     out = []
+    decimal = entry.reading_context().get("decimal", ".")
     for name in SHOWN:
         if panel is not None:
             value = getattr(panel, name)
             unit = getattr(panel, f"{name}_unit")
-            out.append(("", unit) if value is None else (reported(name, value), unit))
+            out.append(("", unit) if value is None else
+                       (reported(name, value, entry.data.get(name), decimal), unit))
         else:
             typed = entry.data.get(name)
             unit = entry.data.get(f"{name}_unit") or BY_NAME[name].unit

@@ -1,0 +1,42 @@
+"""Defects met using the real app as a respiratory therapist would (branch ``app-sweep``):
+80x24 and 60x20, without colour, keys in bursts.  Each test keys in as a terminal
+delivers keys: many keys in one ``pilot.press`` call.
+
+The gases are consistent by Henderson-Hasselbalch (CLSI C46-A2 constants:
+HCO3- = 0.0307 x pCO2 x 10^(pH - 6.105) within the tolerance), as in tui_helpers.py.
+"""
+
+from __future__ import annotations
+
+import acidbase  # noqa: F401  (the library the app is a surface of)
+from tui.app import make_app
+
+
+def _table(app, selector: str) -> tuple[list[str], list[list[str]]]:
+    table = app.screen.query_one(selector)
+    headings = [str(c.label) for c in table.columns.values()]
+    return headings, [[str(c) for c in table.get_row_at(i)] for i in range(table.row_count)]
+
+
+async def _keep(pilot, ph: str, pco2: str, hco3: str, kpa: bool = False) -> None:
+    """Ctrl+N, then pH, pCO2 (in kPa with F2 first when ``kpa``), HCO3-, and F5: one burst."""
+    keys = ["ctrl+n", *ph, "tab", *(["f2"] if kpa else []), *pco2, "tab", "tab", *hco3, "f5"]
+    await pilot.press(*keys)
+    await pilot.pause()
+
+
+# -- a value keyed with a trailing zero is shown as reported ---------------------------
+
+async def test_the_series_shows_a_value_typed_24_0_as_24_0():
+    """HCO3- typed "24.0" was shown as "24" in the series: a measured value shows the
+    decimals it was reported with, trailing zero included (7.40 / 5.3 kPa / 24.0 is
+    consistent: 0.0307 x 39.75 x 10^1.295 = 24.1, CLSI C46-A2)."""
+    app = make_app()
+    async with app.run_test(size=(100, 24)) as pilot:
+        await _keep(pilot, "7.40", "5.3", "24.0", kpa=True)
+        await _keep(pilot, "7,31", "6,1", "22,5", kpa=False)  # pCO2 stays kPa (chosen)
+        await pilot.press("f9")
+        await pilot.pause()
+        headings, rows = _table(app, "#series")
+        assert headings[4:7] == ["pH", "pCO2 kPa", "HCO3- mmol/L"]
+        assert [r[4:7] for r in rows] == [["7.40", "5.3", "24.0"], ["7.31", "6.1", "22.5"]]
