@@ -40,3 +40,38 @@ async def test_the_series_shows_a_value_typed_24_0_as_24_0():
         headings, rows = _table(app, "#series")
         assert headings[4:7] == ["pH", "pCO2 kPa", "HCO3- mmol/L"]
         assert [r[4:7] for r in rows] == [["7.40", "5.3", "24.0"], ["7.31", "6.1", "22.5"]]
+
+
+# -- the compare screen shows the inputs as reported, the earlier panel as A -------------
+
+def _compare_rows(app) -> dict[str, list[str]]:
+    _, rows = _table(app, "#compare")
+    return {r[0]: r[1:] for r in rows}
+
+
+async def test_compare_shows_inputs_in_the_unit_keyed_with_their_decimals():
+    """pCO2 keyed as 5.3 and 6.1 kPa was shown as 39.75 and 45.75 mmHg with a change of
+    -6.001 mmHg (digits no analyser printed); HCO3- 24.0 as 24.  The inputs are shown as
+    reported, the change to the shown decimals.  (7.40 / 5.3 kPa / 24.0 and 7.31 /
+    6.1 kPa / 22.5 are consistent by Henderson-Hasselbalch, CLSI C46-A2.)"""
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await _keep(pilot, "7.40", "5.3", "24.0", kpa=True)
+        await _keep(pilot, "7.31", "6.1", "22.5")
+        await pilot.press("f8")
+        await pilot.pause()
+        rows = _compare_rows(app)
+        assert rows["pH"] == ["7.40", "7.31", "-0.09", ""]
+        assert rows["pCO2"] == ["5.3", "6.1", "+0.8", "kPa"]
+        assert rows["HCO3-"] == ["24.0", "22.5", "-1.5", "mmol/L"]
+        # a third panel in mmHg: each value with its own unit, no change in a third unit
+        await pilot.press("escape", "ctrl+n", "f2", "f2")  # F2 on pH: one unit, says so
+        await pilot.press("tab", "f2", *"40", "tab", "tab", *"24.2", "shift+tab",
+                          "shift+tab", "shift+tab", *"7.40", "f5")
+        await pilot.pause()
+        await pilot.press("f8")
+        await pilot.pause()
+        rows = _compare_rows(app)
+        assert rows["pCO2"] == ["6.1 kPa", "40 mmHg", "", "differ"]
+        assert not any("39.7" in c or "45.7" in c for r in rows.values() for c in r)
+
