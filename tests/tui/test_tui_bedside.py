@@ -75,3 +75,20 @@ async def test_compare_shows_inputs_in_the_unit_keyed_with_their_decimals():
         assert rows["pCO2"] == ["6.1 kPa", "40 mmHg", "", "differ"]
         assert not any("39.7" in c or "45.7" in c for r in rows.values() for c in r)
 
+
+async def test_compare_from_the_first_kept_panel_puts_the_earlier_panel_as_a():
+    """F8 on the first kept panel (nothing before it) put the later panel as A and the
+    earlier as B, so B - A ran backwards in time (pH 7.40 then 7.30 showed +0.10)."""
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await _keep(pilot, "7.40", "40", "24.2")
+        await _keep(pilot, "7.30", "40", "19.2")
+        await pilot.press("f6", "f6", "f8")  # open panel 1, compare
+        await pilot.pause()
+        title = str(app.screen.query_one("#compare-title").render())
+        assert "A: panel 1" in title and "B: panel 2" in title
+        assert _compare_rows(app)["pH"] == ["7.40", "7.30", "-0.10", ""]
+        await pilot.press("escape", "f9", "home", "f8")  # the series, first row, compare
+        await pilot.pause()
+        title = str(app.screen.query_one("#compare-title").render())
+        assert "A: panel 1" in title and "B: panel 2" in title

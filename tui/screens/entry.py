@@ -408,9 +408,11 @@ class EntryScreen(Screen[None]):
         if len(s.entries) < 2:
             self.say("Compare needs two kept panels (F5 keeps the current one).")
             return
+        # this panel and the one before it (the one after the first), the earlier as A
+        # so that B - A runs forward in time
         a = s.current if s.current is not None else len(s.entries) - 1
         b = a - 1 if a > 0 else a + 1
-        self.app.push_screen(CompareScreen(b, a))
+        self.app.push_screen(CompareScreen(min(a, b), max(a, b)))
 
     # -- files -------------------------------------------------------------------
     def _report_refused(self) -> str:

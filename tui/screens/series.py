@@ -172,4 +172,5 @@ class SeriesScreen(Screen[int | None]):
         if row is None or len(self.app.sitting.entries) < 2:
             self.query_one("#series-note", Static).update("Compare needs two kept panels.")
             return
-        self.app.push_screen(CompareScreen(row - 1 if row > 0 else 1, row))
+        # the one before it (the one after the first), the earlier as A: B - A runs forward
+        self.app.push_screen(CompareScreen(row - 1, row) if row > 0 else CompareScreen(0, 1))
