@@ -272,7 +272,8 @@ def read_csv(path: str | os.PathLike[str]) -> tuple[list[Entry], list[str]]:
                              "decimal point (cells with a comma are refused)")
         tables = list(src.chunks())
     except (AcidBaseError, OSError, UnicodeDecodeError) as e:
-        raise SittingFileError(f"{path}: {e}") from e
+        reason = str(e)  # the path, where the error does not name it already
+        raise SittingFileError(reason if os.fspath(path) in reason else f"{path}: {reason}") from e
     if layout.unread:
         notes.append("columns not read: " + ", ".join(layout.unread))
     units = {f"{name}_unit": unit for name, unit in layout.units.items()

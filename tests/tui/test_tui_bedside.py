@@ -92,3 +92,25 @@ async def test_compare_from_the_first_kept_panel_puts_the_earlier_panel_as_a():
         await pilot.pause()
         title = str(app.screen.query_one("#compare-title").render())
         assert "A: panel 1" in title and "B: panel 2" in title
+
+
+# -- a failed load names the path once ------------------------------------------------
+
+async def test_a_failed_load_names_the_path_once(tmp_path):
+    """"Not loaded: /x/nope.csv: /x/nope.csv: no such file" named the path twice."""
+    from tui.screens.files import LoadScreen
+
+    missing = tmp_path / "nope.csv"
+    junk = tmp_path / "junk.csv"
+    junk.write_text("a,b\n1,2\n", encoding="utf-8")
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await pilot.press("ctrl+o", "ctrl+u", *str(missing), "enter")
+        await pilot.pause()
+        assert isinstance(app.screen, LoadScreen)
+        assert app.screen.problem.startswith(f"Not loaded: {missing}")
+        assert app.screen.problem.count(str(missing)) == 1, app.screen.problem
+        await pilot.press("ctrl+u", *str(junk), "enter")  # a reason without the path
+        await pilot.pause()
+        assert app.screen.problem.startswith(f"Not loaded: {junk}: ")
+        assert app.screen.problem.count(str(junk)) == 1, app.screen.problem
