@@ -114,3 +114,23 @@ async def test_a_failed_load_names_the_path_once(tmp_path):
         await pilot.pause()
         assert app.screen.problem.startswith(f"Not loaded: {junk}: ")
         assert app.screen.problem.count(str(junk)) == 1, app.screen.problem
+
+
+# -- the verdict line never asks for a value that is keyed ------------------------------
+
+async def test_the_verdict_line_names_a_refused_value_not_values_to_key_in():
+    """pH, pCO2 5.3 (mmHg: refused, outside 8-250 mmHg, acidbase/fields.py) and HCO3-
+    keyed on a new form: the verdict line said "none yet - key in pH, pCO2, HCO3-" (all
+    three were keyed) while the reading said pCO2 was refused; with pH alone it asked
+    for pH too."""
+    app = make_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await pilot.press(*"7.40", "tab", *"5.3", "tab", "tab", *"24.0", "tab")
+        await pilot.pause()
+        line = app.screen.query_one("#verdict").text
+        assert "key in" not in line, line
+        assert line == "Verdict: none - Refused: pCO2 (see under the field)."
+        await pilot.press("ctrl+n", *"7.40", "tab")
+        await pilot.pause()
+        line = app.screen.query_one("#verdict").text
+        assert line == "Verdict: none - No reading yet: key in pCO2, HCO3-.", line

@@ -171,8 +171,11 @@ class EntryScreen(Screen[None]):
             if self.pane.reading is None and not by_field:
                 reasons = [f"No reading yet: key in {_titles(missing)}."]
             self.pane.show(None, stale_because=" ".join(reasons))
+            # no reading to keep: the line says what stands in its way (a refused value,
+            # the values still needed), as the reading pane does, never "key in" a value
+            # that is keyed
             verdict_line.show(verdict(self.pane.reading, stale=self.pane.stale)
-                              if self.pane.stale else verdict(None))
+                              if self.pane.stale else verdict(None, why=" ".join(reasons)))
             self.app.panel = None
             return
         self.form.show_messages(self._with_hints({}))
