@@ -8,7 +8,7 @@ HCO3- = 0.0307 x pCO2 x 10^(pH - 6.105) within the tolerance), as in tui_helpers
 
 from __future__ import annotations
 
-import acidbase  # noqa: F401  (the library the app is a surface of)
+import acidbase
 from tui.app import make_app
 
 
@@ -134,3 +134,29 @@ async def test_the_verdict_line_names_a_refused_value_not_values_to_key_in():
         await pilot.pause()
         line = app.screen.query_one("#verdict").text
         assert line == "Verdict: none - No reading yet: key in pCO2, HCO3-.", line
+
+
+# -- the series shows the highlighted panel's whole reading -----------------------------
+
+async def test_the_series_shows_the_highlighted_panels_whole_reading_at_60_columns():
+    """At 80 columns the series' reading column was cut ("respiratory acido"), at 60 it
+    was off the screen: the highlighted panel's reading is shown whole under the table."""
+    from tui.screens.series import SeriesScreen
+
+    app = make_app(demo=True)
+    async with app.run_test(size=(60, 20)) as pilot:
+        await pilot.press("f9", "home", "down", "down", "down")  # panel 4 of the demo
+        await pilot.pause()
+        screen = app.screen
+        assert isinstance(screen, SeriesScreen)
+        entry = app.sitting.entries[3]
+        reading = "; ".join(d.label() for d in acidbase.interpret(
+            entry.panel(), app.settings).disorders)
+        assert len(reading) > 30  # longer than the table's room for it at 60 columns
+        shown = str(screen.query_one("#series-reading").render())
+        assert shown == f"Panel 4: {reading}"
+        widget = screen.query_one("#series-reading")
+        assert widget.region.height >= 1 and widget.region.bottom <= 20  # on the screen
+        await pilot.press("up")
+        await pilot.pause()
+        assert str(screen.query_one("#series-reading").render()).startswith("Panel 3: ")
