@@ -160,3 +160,33 @@ async def test_the_series_shows_the_highlighted_panels_whole_reading_at_60_colum
         await pilot.press("up")
         await pilot.pause()
         assert str(screen.query_one("#series-reading").render()).startswith("Panel 3: ")
+
+
+# -- dialogs fit a 60-column terminal ----------------------------------------------------
+
+async def test_the_save_and_load_dialogs_fit_60_columns_and_wrap_their_words(tmp_path):
+    """At 60 columns the dialogs (72 wide) ran past the edge: "not replaced unaske", the
+    path box and a failure's reason cut off.  They now take the terminal's width and wrap."""
+    from textual.widgets import Label
+
+    from tui.screens.files import LoadScreen, SaveScreen
+
+    missing = tmp_path / "a-folder-that-does-not-exist" / "and-a-long-name" / "series.csv"
+    app = make_app()
+    async with app.run_test(size=(60, 20)) as pilot:
+        await pilot.press("ctrl+s")
+        await pilot.pause()
+        assert isinstance(app.screen, SaveScreen)
+        dialog = app.screen.query_one(".dialog")
+        assert dialog.region.right <= 60, dialog.region
+        for label in app.screen.query(Label):
+            assert label.region.right <= dialog.region.right, (label, label.region)
+        await pilot.press("escape")
+        await pilot.pause()
+        await pilot.press("ctrl+o", "ctrl+u", *str(missing), "enter")
+        await pilot.pause()
+        assert isinstance(app.screen, LoadScreen)
+        dialog = app.screen.query_one(".dialog")
+        problem = app.screen.query_one("#load-problem")
+        assert dialog.region.right <= 60 and problem.region.right <= dialog.region.right
+        assert problem.region.height >= 2  # the reason wraps, whole, inside the dialog
