@@ -190,3 +190,32 @@ async def test_the_save_and_load_dialogs_fit_60_columns_and_wrap_their_words(tmp
         problem = app.screen.query_one("#load-problem")
         assert dialog.region.right <= 60 and problem.region.right <= dialog.region.right
         assert problem.region.height >= 2  # the reason wraps, whole, inside the dialog
+
+
+# -- the caution on the questions --------------------------------------------------------
+
+async def test_the_questions_carry_the_caution_and_their_keys():
+    """The quit question and the unit question (F2 on a filled value) covered the screen
+    with no caution and no key line, unlike every other screen."""
+    from tui.screens.confirm import ConfirmScreen, UnitScreen
+    from tui.widgets.chrome import SHORT_CAUTION, CautionBar, KeyLine
+
+    def check(screen, keys: tuple[str, ...]) -> None:
+        bar = screen.query_one(CautionBar)
+        assert str(bar.render()) == SHORT_CAUTION
+        assert bar.region.height >= 2 and bar.region.bottom <= 20, bar.region
+        line = screen.query_one(KeyLine).text
+        for key in keys:
+            assert key in line, line
+
+    app = make_app()
+    async with app.run_test(size=(60, 20)) as pilot:
+        await pilot.press(*"7.40", "tab", *"40", "tab", "tab", *"24.2", "f5",
+                          "shift+tab", "shift+tab", "f2")  # F2 on pCO2 40 mmHg
+        await pilot.pause()
+        assert isinstance(app.screen, UnitScreen)
+        check(app.screen, ("C convert", "R reinterpret", "Esc keep", "F1 help"))
+        await pilot.press("escape", "ctrl+q")  # one kept panel, not saved: asks
+        await pilot.pause()
+        assert isinstance(app.screen, ConfirmScreen)
+        check(app.screen, ("Y yes", "N no", "F1 help"))
