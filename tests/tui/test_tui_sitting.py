@@ -266,7 +266,9 @@ async def test_quitting_with_unsaved_kept_panels_asks_first():
         await pilot.press("f5", "ctrl+q")
         await pilot.pause()
         assert type(app.screen).__name__ == "ConfirmScreen"
-        assert "1 kept panels are not saved" in str(app.screen.query_one("#question").render())
+        # one panel: "1 panel ... is ... saves it" (it said "1 kept panels are not saved")
+        assert "1 panel kept in this sitting is not saved (Ctrl+S, then CSV, saves it)" in str(
+            app.screen.query_one("#question").render())
         await pilot.press("escape")
         await pilot.pause()
         assert app.is_running and app.focused.id == "cl"

@@ -332,5 +332,5 @@ def test_a_save_typed_in_one_burst_that_fails_keeps_the_dialog_and_the_typed_pat
     assert sorted(p.name for p in ROOT.iterdir()) == before  # nothing written elsewhere
     good = tmp_path / "series.csv"
     _tmux("send-keys", "-t", s, "C-u", str(good), "Enter")
-    _wait_for(s, "Saved 1 panels")
+    _wait_for(s, "Saved 1 panel to")
     assert good.exists()
