@@ -219,3 +219,29 @@ async def test_the_questions_carry_the_caution_and_their_keys():
         await pilot.pause()
         assert isinstance(app.screen, ConfirmScreen)
         check(app.screen, ("Y yes", "N no", "F1 help"))
+
+
+# -- a saved series keeps the decimals a value was keyed with ----------------------------
+
+async def test_a_saved_series_keeps_the_decimals_typed_and_loads_back_as_reported(tmp_path):
+    """pH "7.40" was written as 7.4 and HCO3- "24.0" as 24.0's repr; "7,31" with a decimal
+    comma as 7.31.  The file now carries what was reported (a decimal point: the file's
+    mark), so the series loaded back shows 24.0, not 24.  A pCO2 keyed in kPa is written
+    converted to mm[Hg], the file's unit, as before (docs/tui.md)."""
+    import csv
+
+    good = tmp_path / "series.csv"
+    app = make_app()
+    async with app.run_test(size=(100, 24)) as pilot:
+        await _keep(pilot, "7.40", "40", "24.0")
+        await _keep(pilot, "7,31", "46,0", "22,5")
+        await pilot.press("ctrl+s", "right", "right", "tab", "ctrl+u", *str(good), "enter")
+        await pilot.pause()
+        with good.open(encoding="utf-8", newline="") as fh:
+            rows = list(csv.DictReader(fh))
+        assert [(r["ph"], r["pco2"], r["hco3"]) for r in rows] == [
+            ("7.40", "40", "24.0"), ("7.31", "46.0", "22.5")]
+        await pilot.press("ctrl+o", "ctrl+u", *str(good), "enter", "f9")
+        await pilot.pause()
+        _, shown = _table(app, "#series")
+        assert [r[4:7] for r in shown] == [["7.40", "40", "24.0"], ["7.31", "46.0", "22.5"]] * 2
