@@ -245,3 +245,4 @@ async def test_a_saved_series_keeps_the_decimals_typed_and_loads_back_as_reporte
         await pilot.pause()
         _, shown = _table(app, "#series")
         assert [r[4:7] for r in shown] == [["7.40", "40", "24.0"], ["7.31", "46.0", "22.5"]] * 2
+
