@@ -105,8 +105,10 @@ class AcidBaseApp(App[None]):
         if isinstance(self.screen, ConfirmScreen):
             return
         self.push_screen(ConfirmScreen(
-            f"{len(s.entries)} kept panels are not saved (Ctrl+S, then CSV, saves them).",
-            "quit without saving them", "stay"),
+            (f"{panels(len(s.entries))} kept in this sitting "
+             f"{'is' if len(s.entries) == 1 else 'are'} not saved (Ctrl+S, then CSV, saves "
+             f"{'it' if len(s.entries) == 1 else 'them'})."),
+            f"quit without saving {'it' if len(s.entries) == 1 else 'them'}", "stay"),
             lambda yes: self.exit() if yes else None)
 
     def remember_unit(self, name: str, unit: str) -> None:
@@ -154,7 +156,7 @@ class AcidBaseApp(App[None]):
                 self.sitting.unsaved = False
                 note = (f"; left out (refused, in a unit other than the file's): "
                         f"{', '.join(map(str, left_out))}" if left_out else "")
-                return True, f"Saved {written} panels to {target}{note}."
+                return True, f"Saved {panels(written)} to {target}{note}."
             if reading is None:
                 return False, "Nothing to save yet: no reading."
             text = self.report_text(reading, data or {}, markdown=kind == "markdown")
@@ -178,8 +180,13 @@ class AcidBaseApp(App[None]):
         self.sitting.entries.extend(entries)
         refused = sum(1 for e in entries if e.panel() is None)
         extra = [f"{refused} refused by the engine"] if refused else []
-        return (f"Loaded {len(entries)} panels from {target}"
+        return (f"Loaded {panels(len(entries))} from {target}"
                 + "".join(f"; {n}" for n in extra + notes) + "."), first
+
+
+def panels(n: int) -> str:
+    """"1 panel", "2 panels" (the app's messages count panels)."""
+    return f"{n} panel" if n == 1 else f"{n} panels"
 
 
 def write_text(target: Path, text: str) -> None:

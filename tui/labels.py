@@ -76,13 +76,32 @@ def rest() -> tuple[str, ...]:
 MOST_DECIMALS = 3
 
 
-def reported(name: str, value: float) -> str:
+def reported(name: str, value: float, typed: object = None, decimal: str = ".") -> str:
     """A measured value at the precision it was reported with: the decimals its number
     carries, as the engine reads a printed value (``chemistry.printed_half_step``), pH to
-    at least two (``chemistry.PH_MIN_DECIMALS``): 7.40 is "7.40", 5.3 "5.3", 40 "40"."""
+    at least two (``chemistry.PH_MIN_DECIMALS``): 7.40 is "7.40", 5.3 "5.3", 40 "40".
+
+    ``typed``: the text it was keyed or read from, with its ``decimal`` mark; when the one
+    reader reads it as this very value, its trailing zeros count too ("24.0" is "24.0",
+    not "24": a measured value is shown as reported)."""
     least = PH_MIN_DECIMALS if name == "ph" else 0
     step = float(printed_half_step(value, least, MOST_DECIMALS))
     # the step is half of 10^-d for the decimals d it found: look d up, compute nothing
     decimals = next((d for d in range(least, MOST_DECIMALS + 1) if step == 0.5 * 10.0 ** -d),
                     MOST_DECIMALS)
+    decimals = max(decimals, typed_decimals(typed, value, decimal))
     return number_text(value, f".{decimals}f")
+
+
+def typed_decimals(typed: object, value: float, decimal: str = ".") -> int:
+    """The digits after the decimal mark of ``typed`` when the one reader reads it as
+    ``value`` (0 otherwise: a number without text, or text read as another number)."""
+    if not isinstance(typed, str):
+        return 0
+    from .sitting import typed_number
+
+    text = typed.strip()
+    if decimal not in text or typed_number(text, decimal) != value:
+        return 0
+    fraction = text.split(decimal, 1)[1]
+    return len(fraction) - len(fraction.lstrip("0123456789"))

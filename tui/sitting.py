@@ -185,6 +185,22 @@ def _cell(value: Any) -> str:
     return repr(value) if isinstance(value, float) else str(value)
 
 
+def _as_reported(value: Any, typed: Any, decimal: str) -> str:
+    """A value keyed in the file's unit, with the decimals it was typed with ("7.40",
+    "24.0"; a decimal comma written as a point), when that text reads back as the very
+    same number; else the number as it is (``_cell``)."""
+    if not isinstance(value, float):
+        return _cell(value)
+    from acidbase.rules import number_text
+
+    from .labels import typed_decimals
+
+    if not isinstance(typed, str) or typed_number(typed.strip(), decimal) != value:
+        return _cell(value)  # not typed (a demo's number), or typed as another number
+    text = number_text(value, f".{typed_decimals(typed, value, decimal)}f")
+    return text if float(text) == value else _cell(value)
+
+
 def row_of(entry: Entry) -> dict[str, str] | None:
     """One CSV row: canonical units for an accepted panel.
 
@@ -196,8 +212,12 @@ def row_of(entry: Entry) -> dict[str, str] | None:
     row: dict[str, str] = {}
     if panel is not None:
         canonical = panel.canonical()
+        decimal = entry.reading_context().get("decimal", ".")
         for spec in NUMERIC:
-            row[spec.name] = _cell(canonical[spec.name])
+            value = canonical[spec.name]
+            keyed_in_canonical = getattr(panel, f"{spec.name}_unit") == spec.unit
+            row[spec.name] = (_as_reported(value, entry.data.get(spec.name), decimal)
+                              if keyed_in_canonical else _cell(value))
         for name in (*CHOICE_NAMES, *TEXT_FIELDS):
             row[name] = _cell(getattr(panel, name))
         return row
@@ -272,7 +292,8 @@ def read_csv(path: str | os.PathLike[str]) -> tuple[list[Entry], list[str]]:
                              "decimal point (cells with a comma are refused)")
         tables = list(src.chunks())
     except (AcidBaseError, OSError, UnicodeDecodeError) as e:
-        raise SittingFileError(f"{path}: {e}") from e
+        reason = str(e)  # the path, where the error does not name it already
+        raise SittingFileError(reason if os.fspath(path) in reason else f"{path}: {reason}") from e
     if layout.unread:
         notes.append("columns not read: " + ", ".join(layout.unread))
     units = {f"{name}_unit": unit for name, unit in layout.units.items()

@@ -116,13 +116,26 @@ def _values(panel: acidbase.Panel) -> dict[str, float]:
 def stored_line(row: Mapping[str, object]) -> str:
     """One stored panel in a line: its time, sample id and gas (for the reading pane)."""
     sample = f" (sample {row['sample_id']})" if row.get("sample_id") else ""
-    gas = " ".join(f"{acidbase.fields.BY_NAME[n].title} {_shown(row.get(n))}"
+    gas = " ".join(f"{acidbase.fields.BY_NAME[n].title} {_shown(row.get(n), n)}"
                    for n in ("ph", "pco2", "hco3", "na", "k"))
     return f"stored {row['collected_at']}{sample}: {gas}"
 
 
-def _shown(value: object) -> str:
-    return "-" if not isinstance(value, float) or value != value else f"{value:.4g}"
+def _shown(value: object, name: str = "") -> str:
+    """A stored value; "-" when not stored."""
+    return stored_number(value, name) or "-"
+
+
+def stored_number(value: object, name: str = "") -> str:
+    """A stored value ("" when not stored): pH to two decimals at least, as a pH is
+    reported (``labels.reported``: 7.40, not 7.4); the others as the store keeps them."""
+    if not isinstance(value, float) or value != value:
+        return ""
+    if name == "ph":
+        from .labels import reported
+
+        return reported("ph", value)
+    return f"{value:.4g}"
 
 
 def stored_reading(row: Mapping[str, object], settings: acidbase.Settings) -> str:

@@ -76,7 +76,8 @@ async def test_compare_shows_two_panels_side_by_side_with_their_differences():
         rows = {str(table.get_row_at(i)[0]): [str(c) for c in table.get_row_at(i)[1:]]
                 for i in range(table.row_count)}
         assert rows["pH"] == ["7.25", "7.33", "+0.08", ""]  # pH has no unit to show
-        assert rows["HCO3-"] == ["25.7", "31", "+5.3", "mmol/L"]
+        # typed "31.0" (tui_helpers.PANELS): shown as reported, trailing zero included
+        assert rows["HCO3-"] == ["25.7", "31.0", "+5.3", "mmol/L"]
         assert rows["consistency"] == ["consistent", "consistent", "same", ""]
         words = str(app.screen.query_one("#compare-processes").render())
         assert "A processes: respiratory acidosis (acute, primary)" in words
@@ -265,7 +266,9 @@ async def test_quitting_with_unsaved_kept_panels_asks_first():
         await pilot.press("f5", "ctrl+q")
         await pilot.pause()
         assert type(app.screen).__name__ == "ConfirmScreen"
-        assert "1 kept panels are not saved" in str(app.screen.query_one("#question").render())
+        # one panel: "1 panel ... is ... saves it" (it said "1 kept panels are not saved")
+        assert "1 panel kept in this sitting is not saved (Ctrl+S, then CSV, saves it)" in str(
+            app.screen.query_one("#question").render())
         await pilot.press("escape")
         await pilot.pause()
         assert app.is_running and app.focused.id == "cl"

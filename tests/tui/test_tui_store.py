@@ -127,8 +127,9 @@ async def test_the_panel_is_flagged_against_the_stored_one_in_the_batchs_words(s
         start = lines.index("History store: flagged")
         assert lines[start + 1].startswith("FLAGGED SERIAL-DELTA-NA: Na+ 155 after 140")
         assert "delta limit 10 mmol/L" in lines[start + 1]
-        assert any(line.startswith("stored ") and "(sample S1)" in line
-                   for line in lines[start:])
+        # the stored pH to two decimals, as a pH is reported (it showed "pH 7.4")
+        assert any(line.startswith("stored ") and "(sample S1): pH 7.40 pCO2 40" in line
+                   for line in lines[start:]), lines[start:]
         # a Na+ within the limit: the check follows the form
         app.screen.query_one("#na").focus()
         await pilot.pause()
@@ -149,7 +150,8 @@ async def test_ctrl_t_lists_the_stored_panels_within_the_window(store):
         table = app.screen.query_one(StoredTable)
         assert table.row_count == 1
         row = [str(c) for c in table.get_row_at(0)]
-        assert row[1:5] == ["S1", "7.4", "40", "24.2"] and row[5] == "140"
+        # pH to two decimals, as reported (it showed "7.4")
+        assert row[1:5] == ["S1", "7.40", "40", "24.2"] and row[5] == "140"
         check = str(app.screen.query_one("#store-check").render())
         assert check.startswith("This panel: FLAGGED SERIAL-DELTA-NA")
         note = str(app.screen.query_one("#store-note").render())

@@ -332,5 +332,22 @@ def test_a_save_typed_in_one_burst_that_fails_keeps_the_dialog_and_the_typed_pat
     assert sorted(p.name for p in ROOT.iterdir()) == before  # nothing written elsewhere
     good = tmp_path / "series.csv"
     _tmux("send-keys", "-t", s, "C-u", str(good), "Enter")
-    _wait_for(s, "Saved 1 panels")
+    _wait_for(s, "Saved 1 panel to")
     assert good.exists()
+
+
+def test_a_long_time_and_id_typed_in_a_burst_show_their_beginning_once_left(session):
+    """Typed in one burst and left with Tab, the time showed as "026-12-03T09:00Z" (its
+    box scrolled to the end: a year that misreads) and a long patient id only its tail."""
+    s = session(no_color=True)
+    patient = "P-LONG-" + "0" * 40 + "42"
+    _tmux("send-keys", "-t", s, "F3", *["Tab"] * 14, "2026-12-03T09:00Z", "Tab", patient,
+          "Tab", "S3")
+    def boxes(screen: str) -> dict[str, str]:
+        return {line[2:14].strip(): line[14:31] for line in screen.splitlines()
+                if line[2:14].strip() in ("Collected", "Patient", "Sample id")}
+
+    # the last key drawn, then each box left shows its beginning (else: not on the screen)
+    _wait_for(s, lambda scr: boxes(scr).get("Sample id", "").startswith("S3")
+              and boxes(scr)["Collected"].startswith("2026-12-03T09:00Z")
+              and boxes(scr)["Patient"].startswith("P-LONG-000"), timeout=10)

@@ -10,12 +10,11 @@ from textual.screen import Screen
 from textual.widgets import Static
 
 import acidbase
-from acidbase.chemistry import PH_MIN_DECIMALS
 from acidbase.fields import NUMERIC
 from acidbase.report import DERIVED_LABELS
 from acidbase.rules import number_text
 
-from ..labels import reported, unit_label
+from ..labels import reported, unit_label, with_unit
 from ..widgets.chrome import CautionBar, KeyLine, PlainTable, TitleLine
 
 if TYPE_CHECKING:
@@ -90,18 +89,10 @@ class CompareScreen(Screen[None]):
             f"B: panel {self.b + 1} {entries[self.b].label()}")
         table = self.query_one(CompareTable)
         table.clear()
-        ca = pa.canonical() if pa else {}
-        cb = pb.canonical() if pb else {}
         for spec in NUMERIC:
-            va, vb = ca.get(spec.name), cb.get(spec.name)
-            if va is None and vb is None:
-                continue
-            if spec.name == "ph":  # to two decimals at least, as reported (7.40, not 7.4)
-                table.add_row(spec.title, "" if va is None else reported("ph", va),
-                              "" if vb is None else reported("ph", vb),
-                              _change(va, vb, f".{PH_MIN_DECIMALS}f"), "")
-            else:
-                table.add_row(spec.title, _num(va), _num(vb), _change(va, vb), unit_label(spec.unit))
+            row = self._input_row(spec.name, (self.a, pa), (self.b, pb))
+            if row is not None:
+                table.add_row(spec.title, *row)
         sa = ia.consistency.status if ia and ia.consistency else "refused"
         sb = ib.consistency.status if ib and ib.consistency else "refused"
         table.add_row("consistency", sa, sb, "same" if sa == sb else "changed", "")
@@ -111,6 +102,35 @@ class CompareScreen(Screen[None]):
             if va is not None or vb is not None:
                 table.add_row(label, _num(va, fmt), _num(vb, fmt), _change(va, vb, fmt), unit_label(unit))
         self.query_one("#compare-processes", Static).update("\n".join(self._words(ia, ib)))
+
+    def _input_row(self, name: str, *panels: tuple[int, acidbase.Panel | None]
+                   ) -> tuple[str, str, str, str] | None:
+        """A, B, B - A and the unit of one input, each value as it was reported: in the
+        unit it was keyed in, with its decimals (5.3 kPa stays 5.3 kPa, 24.0 stays 24.0).
+        Two values in different units are shown each with its unit, and no change (a
+        difference in a unit neither was reported in would claim digits none carried)."""
+        shown: list[tuple[str, float, str] | None] = []
+        for i, panel in panels:
+            value = getattr(panel, name) if panel is not None else None
+            if value is None:
+                shown.append(None)
+                continue
+            entry = self.app.sitting.entries[i]
+            decimal = entry.reading_context().get("decimal", ".")
+            shown.append((reported(name, value, entry.data.get(name), decimal), value,
+                          getattr(panel, f"{name}_unit")))
+        if not any(shown):
+            return None
+        units = {cell[2] for cell in shown if cell}
+        if len(units) > 1:
+            return (*(with_unit(c[0], c[2]) if c else "" for c in shown), "", "differ")
+        a, b = shown
+        unit = unit_label(units.pop())
+        if a is None or b is None:
+            return (a[0] if a else "", b[0] if b else "", "only one", unit)
+        # the change to the decimals of the more precise of the two shown values
+        decimals = max(len(text.partition(".")[2]) for text, _, _ in (a, b))
+        return a[0], b[0], _change(a[1], b[1], f".{decimals}f"), unit
 
     @staticmethod
     def _words(ia: acidbase.Interpretation | None,

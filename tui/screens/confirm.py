@@ -10,6 +10,8 @@ from textual.containers import Vertical
 from textual.screen import ModalScreen
 from textual.widgets import Label
 
+from ..widgets.chrome import CautionBar, KeyLine
+
 
 class ConfirmScreen(ModalScreen[bool]):
     """A yes-or-no question; Y answers yes, N or Esc no (Enter answers nothing)."""
@@ -31,6 +33,10 @@ class ConfirmScreen(ModalScreen[bool]):
             yield Label(self.question, classes="dialog-title", markup=False, id="question")
             yield Label(f"Y  {self.yes}", markup=False)
             yield Label(f"N  {self.no} (Esc too)", markup=False)
+        # the caution on every screen, as the save and load dialogs carry it: the dialog's
+        # area covers the screen under it
+        yield CautionBar()
+        yield KeyLine([*self.BINDINGS, *self.app.BINDINGS])
 
     def action_answer(self, yes: bool) -> None:
         self.dismiss(yes)
@@ -62,6 +68,8 @@ class UnitScreen(ModalScreen[str | None]):
             yield Label(f"C  convert: {convert}", markup=False, id="convert")
             yield Label(f"R  reinterpret: {reinterpret}", markup=False, id="reinterpret")
             yield Label(f"Esc  keep {keep}", markup=False)
+        yield CautionBar()
+        yield KeyLine([*self.BINDINGS, *self.app.BINDINGS])
 
     def action_answer(self, answer: str | None) -> None:
         self.dismiss(answer)

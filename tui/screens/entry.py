@@ -171,8 +171,11 @@ class EntryScreen(Screen[None]):
             if self.pane.reading is None and not by_field:
                 reasons = [f"No reading yet: key in {_titles(missing)}."]
             self.pane.show(None, stale_because=" ".join(reasons))
+            # no reading to keep: the line says what stands in its way (a refused value,
+            # the values still needed), as the reading pane does, never "key in" a value
+            # that is keyed
             verdict_line.show(verdict(self.pane.reading, stale=self.pane.stale)
-                              if self.pane.stale else verdict(None))
+                              if self.pane.stale else verdict(None, why=" ".join(reasons)))
             self.app.panel = None
             return
         self.form.show_messages(self._with_hints({}))
@@ -408,9 +411,11 @@ class EntryScreen(Screen[None]):
         if len(s.entries) < 2:
             self.say("Compare needs two kept panels (F5 keeps the current one).")
             return
+        # this panel and the one before it (the one after the first), the earlier as A
+        # so that B - A runs forward in time
         a = s.current if s.current is not None else len(s.entries) - 1
         b = a - 1 if a > 0 else a + 1
-        self.app.push_screen(CompareScreen(b, a))
+        self.app.push_screen(CompareScreen(min(a, b), max(a, b)))
 
     # -- files -------------------------------------------------------------------
     def _report_refused(self) -> str:

@@ -27,11 +27,13 @@ def shown_values(entry: Entry, panel: acidbase.Panel | None) -> list[tuple[str, 
     """The series' values of an entry as (number, unit), each in the unit it was keyed in:
     an accepted panel's numbers as the reader read them, a refused one's text as typed."""
     out = []
+    decimal = entry.reading_context().get("decimal", ".")
     for name in SHOWN:
         if panel is not None:
             value = getattr(panel, name)
             unit = getattr(panel, f"{name}_unit")
-            out.append(("", unit) if value is None else (reported(name, value), unit))
+            out.append(("", unit) if value is None else
+                       (reported(name, value, entry.data.get(name), decimal), unit))
         else:
             typed = entry.data.get(name)
             unit = entry.data.get(f"{name}_unit") or BY_NAME[name].unit
@@ -91,10 +93,14 @@ class SeriesScreen(Screen[int | None]):
     def __init__(self) -> None:
         super().__init__()
         self._removed: list[tuple[int, object]] = []
+        self._readings: list[str] = []
 
     def compose(self) -> ComposeResult:
         yield TitleLine("acidbase - series - the panels kept in this sitting")
         yield SeriesTable(id="series", cursor_type="row", zebra_stripes=True)
+        # the highlighted panel's whole reading: the table's last column is cut at 80
+        # columns and off the screen at 60
+        yield Static("", id="series-reading", markup=False)
         yield Static("", id="series-note", markup=False)
         yield CautionBar()
         yield KeyLine([*self.BINDINGS, *self.app.BINDINGS])
@@ -119,6 +125,7 @@ class SeriesScreen(Screen[int | None]):
                 if it.consistency and it.consistency.status != "consistent":
                     reading = f"{it.consistency.status}; {reading}"
             readings.append(reading)
+        self._readings = readings
         headings, cells = unit_columns(values)
         table.add_columns("#", "collected", "patient", "sample", *headings, "reading")
         for i, entry in enumerate(s.entries):
@@ -128,9 +135,21 @@ class SeriesScreen(Screen[int | None]):
                           *cells[i], readings[i], key=str(i))
         if s.current is not None and s.entries:
             table.move_cursor(row=s.current)
+        self._show_reading()
         self.query_one("#series-note", Static).update(
             "The series is empty: F5 on the entry screen keeps the current panel."
             if not s.entries else "> marks the panel the entry form shows.")
+
+    def on_data_table_row_highlighted(self, event: SeriesTable.RowHighlighted) -> None:
+        self._show_reading()
+
+    def _show_reading(self) -> None:
+        """The highlighted panel's reading in full, under the table."""
+        row = self._row()
+        text = ""
+        if row is not None and row < len(self._readings):
+            text = f"Panel {row + 1}: {self._readings[row]}"
+        self.query_one("#series-reading", Static).update(text)
 
     def _row(self) -> int | None:
         table = self.query_one(SeriesTable)
@@ -170,4 +189,5 @@ class SeriesScreen(Screen[int | None]):
         if row is None or len(self.app.sitting.entries) < 2:
             self.query_one("#series-note", Static).update("Compare needs two kept panels.")
             return
-        self.app.push_screen(CompareScreen(row - 1 if row > 0 else 1, row))
+        # the one before it (the one after the first), the earlier as A: B - A runs forward
+        self.app.push_screen(CompareScreen(row - 1, row) if row > 0 else CompareScreen(0, 1))

@@ -12,7 +12,7 @@ from textual.widgets import Static
 
 from acidbase.fields import BY_NAME
 
-from ..store import StoreLink, stored_reading
+from ..store import StoreLink, stored_number, stored_reading
 from ..widgets.chrome import CautionBar, KeyLine, PlainTable, TitleLine
 
 if TYPE_CHECKING:
@@ -82,7 +82,7 @@ class StoreScreen(Screen[None]):
                 head = f"This panel: {check.status}."
             for i, row in enumerate(check.within):
                 table.add_row(_time(str(row["collected_at"])), row.get("sample_id") or "",
-                              *(_num(row.get(n)) for n in SHOWN), key=str(i))
+                              *(stored_number(row.get(n), n) for n in SHOWN), key=str(i))
             self._rows = check.within
             if not check.within:
                 head += f" No stored panel within {check.window_hours:g} h."
@@ -163,12 +163,6 @@ class StoreScreen(Screen[None]):
 
     def action_back(self) -> None:
         self.dismiss(None)
-
-
-def _num(value: object) -> str:
-    if not isinstance(value, float) or value != value:
-        return ""
-    return f"{value:.4g}"
 
 
 def _time(text: str) -> str:

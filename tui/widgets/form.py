@@ -57,7 +57,23 @@ class RowTitle(Label):
         self.set_class(focused, "-focused")
 
 
-class ValueInput(OwnKeys, Input):
+class ShowsStart:
+    """A text box that shows the beginning of its text once it has lost the focus.
+
+    Typing leaves the view at the end of the text: a long time or id then showed its
+    tail ("026-12-03T09:00Z" for 2026-12-03T09:00Z, a year that misreads)."""
+
+    def on_blur(self) -> None:
+        # after the refresh: the box's own scroll to its cursor, for the keys of a burst
+        # handled just before, comes first
+        self.call_after_refresh(self._show_start)  # type: ignore[attr-defined]
+
+    def _show_start(self) -> None:
+        if not self.has_focus:  # type: ignore[attr-defined]
+            self.scroll_to(x=0, animate=False, immediate=True)  # type: ignore[attr-defined]
+
+
+class ValueInput(OwnKeys, ShowsStart, Input):
     """The text box of one numeric field (its id is the field name)."""
 
 
@@ -207,7 +223,7 @@ class MoreValues(Vertical):
         self.query_one(FoldTitle).refresh()
 
 
-class TextInput(OwnKeys, Input):
+class TextInput(OwnKeys, ShowsStart, Input):
     """A free-text field (time, patient, sample id)."""
 
 

@@ -40,9 +40,14 @@ def heading(section: str, title: str, it: acidbase.Interpretation) -> str:
     return title
 
 
-def verdict(it: acidbase.Interpretation | None, stale: bool = False) -> str:
-    """The pinned line: the trust verdict and the processes, in one sentence."""
+def verdict(it: acidbase.Interpretation | None, stale: bool = False, why: str = "") -> str:
+    """The pinned line: the trust verdict and the processes, in one sentence.
+
+    ``why``: without a reading, what stands in its way, in the reading pane's words
+    ("Refused: pCO2 (see under the field).", "No reading yet: key in HCO3-.")."""
     if it is None:
+        if why:
+            return f"Verdict: none - {why}"
         return ("Verdict: none yet - key in "
                 + ", ".join(s.title for s in NUMERIC if s.required) + ".")
     if it.status == "refused":
