@@ -76,17 +76,28 @@ def _refuse_compressed(path: str | os.PathLike[str], raw: bytes) -> None:
                 f"{command} {path} | acidbase batch - ...")
 
 
+def text_codec(encoding: str) -> str:
+    """The codec a file's text is read with: UTF-8 with or without its byte-order mark
+    for ``utf-8``, else the encoding given (``--encoding``)."""
+    return "utf-8-sig" if encoding.lower().replace("_", "-") in ("utf-8", "utf8") else encoding
+
+
+def refuse_utf16_marked(path: str | os.PathLike[str], codec: str, head: bytes) -> None:
+    """A file read as UTF-8 (``codec``) that starts (``head``) with a UTF-16 byte-order
+    mark, as a spreadsheet's "Unicode text" export does: refused, naming the encoding."""
+    if codec == "utf-8-sig" and head.startswith((b"\xff\xfe", b"\xfe\xff")):
+        raise BatchInputError(f"{path}: the file is UTF-16 text (it starts with a UTF-16 "
+                              "byte-order mark); give --encoding utf-16")
+
+
 def _read_text_sample(path: str | os.PathLike[str], encoding: str, size: int = 1 << 16) -> str:
     with open(path, "rb") as f:
         raw = f.read(size)
     if not raw.strip():
         raise BatchInputError(f"{path}: the file is empty")
     _refuse_compressed(path, raw)
-    codec = "utf-8-sig" if encoding.lower().replace("_", "-") in ("utf-8", "utf8") else encoding
-    if codec == "utf-8-sig" and raw.startswith((b"\xff\xfe", b"\xfe\xff")):
-        # A spreadsheet's "Unicode text" export: its byte-order mark says UTF-16.
-        raise BatchInputError(f"{path}: the file is UTF-16 text (it starts with a UTF-16 "
-                              "byte-order mark); give --encoding utf-16")
+    codec = text_codec(encoding)
+    refuse_utf16_marked(path, codec, raw)
     if codec == "utf-8-sig" and len(raw) >= 8:
         # UTF-16 without its mark decodes as UTF-8 (ASCII and NUL bytes): every other
         # byte NUL says which half; a NUL byte or two in a cell says nothing.

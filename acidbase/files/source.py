@@ -19,7 +19,7 @@ import pyarrow.csv as pa_csv
 
 from .._arrow import pq
 from ..errors import BatchInputError
-from .formats import detect_format, sniff_csv
+from .formats import detect_format, refuse_utf16_marked, sniff_csv, text_codec
 
 
 class _CountingReader(io.RawIOBase):
@@ -246,8 +246,7 @@ def _ragged_line(src: Source, expected: int, got: int) -> int | None:
     message gives the record, not its line.  None when it cannot be told."""
     import csv
 
-    encoding = "utf-8-sig" if src.encoding.lower().replace("_", "-") in ("utf-8", "utf8") \
-        else src.encoding
+    encoding = text_codec(src.encoding)
     try:
         with open(src.path, encoding=encoding, errors="replace", newline="") as f:
             reader = csv.reader(f, delimiter=src.delimiter)
@@ -324,12 +323,6 @@ def _records_to_batch(records: list[dict], cols: list[str],
     return pa.RecordBatch.from_arrays(arrays, names=cols)
 
 
-def text_codec(encoding: str) -> str:
-    """The codec a file's text is read with: UTF-8 with or without its byte-order mark
-    for ``utf-8``, else the encoding given (``--encoding``)."""
-    return "utf-8-sig" if encoding.lower().replace("_", "-") in ("utf-8", "utf8") else encoding
-
-
 def jsonl_headers(path: str | os.PathLike[str], encoding: str = "utf-8") -> tuple[str, ...]:
     """Keys of a JSON Lines file, in order of first appearance (one pass).  The text is
     read in ``encoding`` (``--encoding``, as a CSV file's); bytes it cannot decode stop
@@ -347,9 +340,7 @@ def jsonl_headers(path: str | os.PathLike[str], encoding: str = "utf-8") -> tupl
     except UnicodeDecodeError as e:
         with open(path, "rb") as f:
             head = f.read(2)
-        if codec == "utf-8-sig" and head in (b"\xff\xfe", b"\xfe\xff"):
-            raise BatchInputError(f"{path}: the file is UTF-16 text (it starts with a UTF-16 "
-                                  "byte-order mark); give --encoding utf-16") from None
+        refuse_utf16_marked(path, codec, head)
         raise BatchInputError(
             f"{path}: a byte (0x{e.object[e.start]:02x}) is not {encoding} text; save the "
             "file as UTF-8 or give --encoding (for example cp1252)") from None
